@@ -1,0 +1,93 @@
+"""The bus plan model: valid plans load, bad input is refused with field, value and range, all at once."""
+
+import copy
+
+import pytest
+
+from engine.bus import build_bus
+from engine.plan import BusInputError, load_plan, plan_to_dict
+
+GOOD = {
+    "standard": "rs485",
+    "bit_rate_bps": 115_200,
+    "trunk_length_m": 300.0,
+    "nodes": [{"name": "pump-1", "position_m": 100.0}, {"name": "pump-2", "position_m": 300.0}],
+    "terminations": [
+        {"position_m": 0.0, "resistance_ohm": 120.0},
+        {"position_m": 300.0, "resistance_ohm": 120.0},
+    ],
+}
+
+
+def _problems(doc):
+    with pytest.raises(BusInputError) as err:
+        load_plan(doc)
+    return {p.field: p for p in err.value.problems}
+
+
+def _with(**changes):
+    doc = copy.deepcopy(GOOD)
+    doc.update(changes)
+    return doc
+
+
+def test_good_plan_round_trips_through_its_json_document():
+    plan = load_plan(GOOD)
+    assert load_plan(plan_to_dict(plan)) == plan
+
+
+def test_library_classes_resolve_to_full_values():
+    bus = build_bus(load_plan(GOOD))
+    # Source: TI SLLA272 (RS-485 cable Z0 ~ 120 Ohm); ASTM B258 24 AWG 84.2 Ohm/km per conductor.
+    assert bus.cable.z0_ohm == 120.0
+    assert bus.cable.resistance_ohm_per_m == pytest.approx(0.0842, rel=1e-3)
+    assert bus.driver.rise_time_s == pytest.approx(100e-9)
+
+
+def test_negative_and_non_finite_numbers_are_refused_with_range():
+    found = _problems(_with(bit_rate_bps=-5, trunk_length_m=float("nan")))
+    assert found["bit_rate_bps"].value == -5
+    assert found["bit_rate_bps"].allowed["min"] == 50.0
+    assert "Bit rate" in found["bit_rate_bps"].message and "-5" in found["bit_rate_bps"].message
+    assert "finite" in found["trunk_length_m"].message
+
+
+def test_node_past_the_trunk_end_names_both_fields():
+    doc = _with(nodes=[{"name": "far", "position_m": 400.0}])
+    problem = _problems(doc)["nodes.0.position_m"]
+    assert problem.value == 400.0 and problem.allowed["max"] == 300.0
+    assert "trunk_length_m" in problem.message
+
+
+def test_duplicate_names_and_rs422_second_driver_reported_together():
+    doc = _with(
+        standard="rs422",
+        nodes=[{"name": "a", "position_m": 1.0}, {"name": "a", "position_m": 2.0, "role": "transceiver"}],
+    )
+    found = _problems(doc)
+    assert {"nodes.1.name", "nodes.1.role"} <= set(found)
+
+
+def test_absurd_sizes_are_refused():
+    doc = _with(nodes=[{"name": f"n{i}", "position_m": 1.0} for i in range(10_000)])
+    assert _problems(doc)["nodes"].allowed["max_length"] == 512
+    doc = _with(nodes=[{"name": "a", "position_m": 1.0, "stub_length_m": 1000.0}])
+    assert _problems(doc)["nodes.0.stub_length_m"].allowed["max"] == 100.0
+
+
+def test_field_and_cross_field_problems_come_in_one_list():
+    doc = _with(bit_rate_bps="fast", nodes=[{"name": "a", "position_m": 999.0}], cable={"class_key": "nope"})
+    assert {"bit_rate_bps", "nodes.0.position_m", "cable.class_key"} <= set(_problems(doc))
+
+
+def test_custom_cable_needs_its_values():
+    found = _problems(_with(cable={"class_key": None, "z0_ohm": 100.0}))
+    assert {"cable.velocity_factor", "cable.resistance_ohm_per_m"} <= set(found)
+
+
+def test_unknown_field_is_refused():
+    assert "stubb_length_m" in _problems(_with(stubb_length_m=3))
+
+
+def test_not_an_object():
+    assert _problems([1, 2])[""].message.startswith("A bus plan must be a JSON object")
