@@ -1,0 +1,18 @@
+// Checked-plan enhancements: a print button and an absolute share link. The page works without this file.
+(function () {
+  "use strict";
+  document.documentElement.classList.add("has-js");
+  document.querySelectorAll("[data-print]").forEach(function (b) {
+    b.addEventListener("click", function () { window.print(); });
+  });
+  // The printed sheet lists every finding, including the ones folded away on screen.
+  window.addEventListener("beforeprint", function () {
+    document.querySelectorAll("details").forEach(function (d) { d.open = true; });
+  });
+  const share = document.getElementById("share-url");
+  if (share) {
+    share.value = new URL(share.value, window.location.href).href;
+    share.addEventListener("focus", function () { share.select(); });
+    share.closest(".share").setAttribute("data-share", share.value);
+  }
+})();
