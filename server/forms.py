@@ -30,6 +30,7 @@ class FieldSpec:
     bare: Bare | None = None  # overrides the kind's bare unit
     choices: tuple[tuple[str, str], ...] = ()  # (value, label) for a select
     hint: str = ""
+    placeholder: str = ""  # what a blank input means (the plan's default)
 
     def unit_label(self, units: UnitSystem) -> str:
         return bare_unit(self.kind, units, self.bare).label if self.kind else ""
@@ -69,11 +70,11 @@ DRIVER = (
 NODE = (
     FieldSpec("name", "Name"),
     FieldSpec("position_m", "Position", "length"),
-    FieldSpec("stub_length_m", "Stub", "length"),
-    FieldSpec("unit_loads", "Unit loads", "plain", hint="1, 1/2, 1/4, 1/8"),
+    FieldSpec("stub_length_m", "Stub", "length", placeholder="0"),
+    FieldSpec("unit_loads", "Unit loads", "plain", hint="1, 1/2, 1/4, 1/8", placeholder="1"),
     FieldSpec("role", "Role", choices=(("receiver", "receiver"), ("transceiver", "transceiver"))),
-    FieldSpec("ground_offset_v", "Ground offset", "voltage"),
-    FieldSpec("input_capacitance_f", "Input C", "capacitance"),
+    FieldSpec("ground_offset_v", "Ground offset", "voltage", placeholder="0"),
+    FieldSpec("input_capacitance_f", "Input C", "capacitance", placeholder="20 pF"),
 )
 TERMINATION = (
     FieldSpec("position_m", "Position", "length"),
