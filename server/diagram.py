@@ -14,7 +14,7 @@ from server.quantities import UnitSystem, length_in, length_unit
 
 WIDTH_PX = 960.0
 LEFT_PX = 70.0
-RIGHT_PX = 70.0
+RIGHT_PX = 110.0  # room for the last node's slanted label
 RULER_Y_PX = 22.0  # the scale ruler runs across the top
 LANE_PX = 28.0  # parts above the trunk (driver, terminators, bias) sit in lanes so their labels never overlap
 LANES = 3
@@ -190,8 +190,10 @@ def bus_drawing(plan: BusPlan, node_verdicts: Mapping[str, str], units: UnitSyst
     )
     terminators = tuple(m for m in marks if m.kind == "terminator")
     bias = next((m for m in marks if m.kind == "bias"), None)
-    label_room = 12.0 + 6.5 * min(LABEL_CHARS, max((len(n.label) for n in nodes), default=4)) * 0.75
-    height = TRUNK_Y_PX + STUB_MAX_PX + label_room + 30.0
+    # Labels slant at 40°: they drop by about sin(40°) of their length below the node marker.
+    lowest = max([n.stub_bottom_y for n in nodes], default=TRUNK_Y_PX)
+    longest_label = max((len(n.label) for n in nodes), default=4)
+    height = lowest + 18.0 + 0.65 * CHAR_PX * longest_label + 8.0
     caption = (
         f"Trunk {_length_text(length_m, units)} drawn to scale; the driver, terminators and bias sit above it, "
         f"nodes hang below on their stubs. " + caption_scale

@@ -7,14 +7,14 @@ from collections.abc import Sequence
 from dataclasses import dataclass
 
 import numpy as np
-from engine.check import PlanReport, check_plan
+from engine.check import PlanReport, check_plan, report_to_dict
 from engine.sweep import length_rate_curve
 from engine.waveform import Waveforms, simulate_pattern
 
 from engine.bus import Bus
 from engine.plan import BusPlan
 
-__all__ = ["CheckedPlan", "ReceiverMargin", "check_and_simulate", "check_only", "PlanReport"]
+__all__ = ["CheckedPlan", "ReceiverMargin", "check_and_simulate", "check_only", "PlanReport", "report_to_dict"]
 
 
 @dataclass(frozen=True, slots=True)

@@ -20,7 +20,7 @@ from server.diagram import bus_drawing, node_anchor
 from server.forms import BIAS, CABLE, DRIVER, NODE, TERMINATION, TOP, FormState
 from server.plots import curve_plot, waveform_plot
 from server.quantities import UnitSystem, format_quantity, length_in, length_unit
-from server.results import CheckedPlan
+from server.results import CheckedPlan, report_to_dict
 from server.store import SampleEntry, SavedPlan
 
 _SEVERITY = {"breaks": 0, "tight": 1, "holds": 2}
@@ -295,6 +295,7 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
                 plan, node_verdicts | {plan.driver.name: node_verdicts.get(plan.driver.name, "holds")}, units
             ),
             "cautions": cautions_data(plan),
+            "report": report_to_dict(report),  # the same JSON as `pairline check --json`
         }
     )
 
