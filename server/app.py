@@ -14,8 +14,8 @@ from starlette.types import ASGIApp, Message, Receive, Scope, Send
 
 from engine import ENGINE_VERSION
 from engine.plan import BusInputError, load_plan, plan_to_dict
+from server.errors import input_error_response, not_found
 from server.store import PlanStore
-from server.views import not_found_data
 
 ROOT = Path(__file__).resolve().parents[1]
 TEMPLATES_DIR = ROOT / "templates"
@@ -140,17 +140,7 @@ def create_app(
 
     @app.exception_handler(BusInputError)
     async def bus_input_error(request: Request, exc: BusInputError) -> Response:
-        from server.views import error_envelope
-
-        return JSONResponse(error_envelope(exc.problems), status_code=422)
+        return input_error_response(exc)
 
     app.add_middleware(BodyLimit, max_bytes=max_body_bytes)
     return app
-
-
-def not_found(request: Request) -> Response:
-    path = request.url.path
-    data = not_found_data(path)
-    if path.endswith(".json") or path.startswith("/api/"):
-        return JSONResponse({"status": 404, "message": f"Nothing at {path}."}, status_code=404)
-    return render(request, "not_found.html", data, status_code=404)

@@ -72,11 +72,6 @@ def problem_message(problem: Problem, units: UnitSystem) -> str:
     return problem.message
 
 
-def error_envelope(problems: list[Problem]) -> dict[str, Any]:
-    """The one JSON shape for bad input: status 422 and every problem with field, value and allowed range."""
-    return {"status": 422, "problems": [json_safe(asdict(p)) for p in problems]}
-
-
 SAFETY_CAUTIONS = (
     (
         "ground",

@@ -10,7 +10,8 @@ from fastapi.responses import JSONResponse, RedirectResponse, Response
 
 from engine import ENGINE_VERSION
 from engine.plan import BusInputError, BusPlan, Problem, load_plan, plan_to_dict
-from server.app import not_found, render
+from server.app import render
+from server.errors import not_found
 from server.forms import FormState, form_from_plan, merge_problems, parse_form, with_units
 from server.results import check_and_simulate, check_only
 from server.store import PlanStore, SavedPlan

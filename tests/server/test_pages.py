@@ -203,6 +203,10 @@ def test_json_api_errors_use_one_envelope(client):
     assert_problem(client.post("/api/plans", json=PLAN_DOC | {"nodes": nodes}), field="nodes.0.position_m")
     assert_problem(client.post("/api/check", content=b"{nope", headers={"content-type": "application/json"}), field="")
     assert_problem(client.post("/api/check", content=b'{"trunk_length_m": NaN}'), field="")
+    overflow = assert_problem(
+        client.post("/api/check", content=b'{"trunk_length_m": 1e999, "bit_rate_bps": 9600}'), field="trunk_length_m"
+    )
+    assert overflow["value"] is None and "finite" in overflow["message"]
 
 
 def test_save_open_copy_edit_save_keeps_the_original(client, saved_id):
