@@ -75,6 +75,53 @@
   syncPlaceholders("cable", "cable.class_key");
   syncPlaceholders("driver", "driver.transceiver");
 
+  // Live sketch: trunk, nodes, driver and terminators placed by the positions typed so far.
+  const preview = document.getElementById("live-preview");
+  const SVG = "http://www.w3.org/2000/svg";
+  function lengthValue(text) {
+    const m = /^\s*([-+]?\d*\.?\d+(?:e[-+]?\d+)?)\s*(m|ft|km)?\s*$/i.exec(text || "");
+    if (!m) return NaN;
+    const n = parseFloat(m[1]);
+    // Everything in the display unit: bare numbers already are; "m", "km" and "ft" are converted.
+    const metres = { m: 1, km: 1000, ft: 0.3048 }[(m[2] || preview.dataset.unit).toLowerCase()] * n;
+    return preview.dataset.unit === "ft" ? metres / 0.3048 : metres;
+  }
+  function shape(tag, attrs, text) {
+    const el = document.createElementNS(SVG, tag);
+    Object.keys(attrs).forEach(function (k) { el.setAttribute(k, attrs[k]); });
+    if (text) el.textContent = text;
+    preview.appendChild(el);
+  }
+  function drawPreview() {
+    if (!preview) return;
+    while (preview.firstChild) preview.removeChild(preview.firstChild);
+    const length = lengthValue(form.elements["trunk_length_m"].value);
+    if (!(length > 0)) {
+      shape("text", { x: 20, y: 40 }, "Type a trunk length to see the sketch.");
+      return;
+    }
+    const x0 = 40, x1 = 900;
+    const x = function (p) { return x0 + (x1 - x0) * p / length; };
+    shape("line", { x1: x0, y1: 34, x2: x1, y2: 34, class: "trunk" });
+    shape("text", { x: x0, y: 80 }, "0");
+    shape("text", { x: x1, y: 80, "text-anchor": "end" }, length + " " + preview.dataset.unit);
+    form.querySelectorAll("input[name$='.position_m']").forEach(function (input) {
+      const p = lengthValue(input.value);
+      if (isNaN(p)) return;
+      const outside = p < 0 || p > length;
+      const px = x(Math.min(Math.max(p, 0), length));
+      if (input.name.indexOf("terminations.") === 0) {
+        shape("line", { x1: px, y1: 22, x2: px, y2: 34, class: "term" });
+      } else if (input.name === "driver.position_m") {
+        shape("path", { d: "M" + (px - 6) + ",12 L" + (px + 6) + ",12 L" + px + ",26 Z", class: "node" });
+      } else if (input.name.indexOf("nodes.") === 0) {
+        shape("circle", { cx: px, cy: 48, r: 5, class: outside ? "bad" : "node" });
+      }
+    });
+  }
+  form.addEventListener("input", drawPreview);
+  drawPreview();
+
   form.querySelectorAll("input[name=display_units]").forEach(function (radio) {
     radio.addEventListener("change", function () {
       const action = document.createElement("input");

@@ -198,10 +198,19 @@ def _saved(store: PlanStore, plan_id: str) -> tuple[SavedPlan, BusPlan] | None:
 @router.get("/plans/{ref}")
 def plan_page(request: Request, ref: str, store: StoreDep, receiver: str | None = None) -> Response:
     plan_id, as_json = _split(ref)
-    found = _saved(store, plan_id)
-    if found is None:
+    saved = store.get_plan(plan_id)
+    if saved is None:
         return not_found(request)
-    saved, plan = found
+    try:
+        plan = load_plan(saved.plan)
+    except BusInputError as exc:
+        # Saved under an older engine that accepted it; show it in the editor with what to change.
+        if as_json:
+            raise
+        state = form_from_plan(saved.plan, parent_id=saved.id)
+        state.problems = exc.problems
+        title = "This saved plan needs changes before the current engine can check it"
+        return render(request, "editor.html", editor_data(state, title=title, saved_from=saved), status_code=422)
     data = plan_data(check_and_simulate(plan), saved, receiver)
     data["children"] = store.children_of(saved.id)
     return page(request, "plan.html", data, as_json)

@@ -322,3 +322,14 @@ def test_a_failing_bus_is_a_page_not_an_error(client):
     assert dom.by_id("overall-verdict").attrs["data-verdict"] == "breaks"
     fixes = [p.text() for p in dom.find_all("p", class_="fix")]
     assert fixes
+
+
+def test_a_saved_plan_the_engine_now_refuses_opens_in_the_editor_with_reasons(client):
+    store = client.app.state.store
+    plan_id = store.save_plan(PLAN_DOC | {"trunk_length_m": 99_999.0}, engine_version="0.0.1")
+    resp = client.get(f"/plans/{plan_id}")
+    assert resp.status_code == 422
+    dom = parse_html(resp.text)
+    assert dom.find("input", name="trunk_length_m").attrs["aria-invalid"] == "true"
+    assert dom.find("input", name="parent_id").attrs["value"] == plan_id
+    assert_problem(client.get(f"/plans/{plan_id}.json"), field="trunk_length_m")
