@@ -98,11 +98,11 @@ def x_of(position_m: float, trunk_length_m: float) -> float:
 
 def _nice_step(span: float, target_ticks: int = 6) -> float:
     raw = span / target_ticks
-    magnitude = 10 ** int(f"{raw:e}".split("e")[1])
+    magnitude = 10.0 ** int(f"{raw:e}".split("e")[1])
     for mult in (1, 2, 2.5, 5, 10):
         if raw <= mult * magnitude:
-            return mult * magnitude
-    return 10 * magnitude
+            return float(mult * magnitude)
+    return 10.0 * magnitude
 
 
 def _short(name: str) -> str:

@@ -17,7 +17,7 @@ from typing import Any
 
 from engine.library import CABLES, TRANSCEIVERS
 from engine.plan import PLAN_FORMAT, PLAN_FORMAT_VERSION, Problem
-from server.quantities import UNIT_SYSTEMS, Bare, QuantityError, UnitSystem, bare_unit, format_quantity, parse_quantity
+from server.quantities import Bare, QuantityError, UnitSystem, bare_unit, format_quantity, parse_quantity
 
 MAX_FORM_ROWS = 512
 
@@ -129,7 +129,7 @@ def _path(group: str, key: str) -> str:
 
 def form_from_plan(plan: Mapping[str, Any], units: UnitSystem | None = None, parent_id: str | None = None) -> FormState:
     """Input text for a plan document (validated or not). Missing values give empty inputs."""
-    system: UnitSystem = units or (plan.get("display_units") if plan.get("display_units") in UNIT_SYSTEMS else "metric")
+    system: UnitSystem = units or ("imperial" if plan.get("display_units") == "imperial" else "metric")
     values: dict[str, str] = {}
 
     def put(prefix: str, spec: FieldSpec, source: Any) -> None:

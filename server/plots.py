@@ -157,8 +157,8 @@ def _rate_text(bps: float) -> str:
 
 
 def curve_plot(
-    bit_rate_bps: Sequence[float],
-    max_length_m: Sequence[float],
+    bit_rate_bps: "Sequence[float] | np.ndarray",
+    max_length_m: "Sequence[float] | np.ndarray",
     plan_rate_bps: float,
     plan_length_m: float,
     units: UnitSystem,

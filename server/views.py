@@ -255,7 +255,7 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
         checked.curve_bit_rate_bps, checked.curve_max_length_m, plan.bit_rate_bps, plan.trunk_length_m, units
     )
     plan_id = saved.id if saved else None
-    return json_safe(
+    data: dict[str, Any] = json_safe(
         {
             "page": "plan",
             "title": plan.title or "Untitled bus",
@@ -293,6 +293,7 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
             "report": report_to_dict(report),  # the same JSON as `pairline check --json`
         }
     )
+    return data
 
 
 def _waveforms_data(checked: CheckedPlan, chosen: str | None) -> dict[str, Any]:
