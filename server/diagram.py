@@ -7,7 +7,7 @@ the drawing reads without colour too. The template only places what this module 
 """
 
 from collections.abc import Mapping
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 from engine.plan import BusPlan
 from server.quantities import UnitSystem, length_in, length_unit
@@ -23,6 +23,7 @@ CHAR_PX = 6.6  # average label character width at the drawing's font size
 STUB_MIN_PX = 14.0  # a zero-length stub still shows its node just under the trunk
 STUB_MAX_PX = 90.0
 LABEL_CHARS = 16
+LABEL_GAP_PX = 16.0  # slanted labels need this much horizontal room each (11 px text / sin 40°)
 
 
 @dataclass(frozen=True, slots=True)
@@ -42,6 +43,7 @@ class NodeMark:
     role: str
     stub_text: str
     anchor: str  # id of the node's row in the per-node table
+    show_label: bool = True  # False where nodes crowd too closely for every slanted label
 
 
 @dataclass(frozen=True, slots=True)
@@ -51,7 +53,8 @@ class PartMark:
     text: str
     title: str
     kind: str  # "terminator", "bias" or "driver"
-    text_x: float  # label start; labels run right of the symbol
+    text_x: float  # label anchor point
+    text_anchor: str  # "start" (label right of the symbol) or "end" (left of it, near the right edge)
 
 
 def assign_lanes(items: list[tuple[float, float]]) -> list[int]:
@@ -130,7 +133,7 @@ def bus_drawing(plan: BusPlan, node_verdicts: Mapping[str, str], units: UnitSyst
     else:
         stub_px_per_m = room_px / longest_stub_m
         factor = stub_px_per_m / px_per_m
-        caption_scale = f"Stubs drawn {factor:.3g}× the trunk's scale (their lengths are written beside them)."
+        caption_scale = f"Stubs drawn {factor:.3g}× the trunk's scale (each length is in the node table)."
 
     ticks: list[Tick] = []
     span = length_in(length_m, units)
@@ -157,6 +160,7 @@ def bus_drawing(plan: BusPlan, node_verdicts: Mapping[str, str], units: UnitSyst
                 anchor=node_anchor(i),
             )
         )
+    nodes = _thin_labels(nodes)
     drv = plan.driver
     parts: list[tuple[str, float, str, str]] = [
         ("driver", x_of(drv.position_m, length_m), f"{_short(drv.name)} (driver)", f"Driver {drv.name}"),
@@ -171,10 +175,22 @@ def bus_drawing(plan: BusPlan, node_verdicts: Mapping[str, str], units: UnitSyst
         parts.append(
             ("bias", x_of(b.position_m, length_m), text, f"Failsafe bias at {_length_text(b.position_m, units)}")
         )
-    lanes = assign_lanes([(x - 8.0, 20.0 + CHAR_PX * len(text)) for _, x, text, _ in parts])
+    spans = []
+    for _, x, text, _ in parts:
+        width = 20.0 + CHAR_PX * len(text)
+        spans.append((x - 8.0, width) if x + width <= WIDTH_PX else (x - width + 8.0, width))
+    lanes = assign_lanes(spans)
     marks = [
-        PartMark(x=x, y=lane_y(lane), text=text, title=title, kind=kind, text_x=x + 10.0)
-        for (kind, x, text, title), lane in zip(parts, lanes, strict=True)
+        PartMark(
+            x=x,
+            y=lane_y(lane),
+            text=text,
+            title=title,
+            kind=kind,
+            text_x=x + 10.0 if start == x - 8.0 else x - 10.0,
+            text_anchor="start" if start == x - 8.0 else "end",
+        )
+        for (kind, x, text, title), lane, (start, _) in zip(parts, lanes, spans, strict=True)
     ]
     driver_mark = marks[0]
     driver = NodeMark(
@@ -198,6 +214,8 @@ def bus_drawing(plan: BusPlan, node_verdicts: Mapping[str, str], units: UnitSyst
         f"Trunk {_length_text(length_m, units)} drawn to scale; the driver, terminators and bias sit above it, "
         f"nodes hang below on their stubs. " + caption_scale
     )
+    if any(not n.show_label for n in nodes):
+        caption += " Where nodes crowd, some names are left out; point at a marker for its name, or see the table."
     return BusDrawing(
         width=WIDTH_PX,
         height=round(height, 1),
@@ -229,3 +247,17 @@ def _farad_text(value_f: float) -> str:
         if value_f >= scale:
             return f"{value_f / scale:.3g} {prefix}F"
     return f"{value_f:.3g} F"
+
+
+def _thin_labels(nodes: list[NodeMark]) -> list[NodeMark]:
+    """Keep labels at least LABEL_GAP_PX apart: nodes that do not hold get theirs first, then the rest left to
+    right. A dropped label still has its name in the marker's tooltip and in the node table."""
+    rank = {"breaks": 0, "tight": 1}
+    order = sorted(range(len(nodes)), key=lambda i: (rank.get(nodes[i].verdict, 2), nodes[i].x))
+    placed: list[float] = []
+    keep: set[int] = set()
+    for i in order:
+        if all(abs(nodes[i].x - x) >= LABEL_GAP_PX for x in placed):
+            placed.append(nodes[i].x)
+            keep.add(i)
+    return [replace(n, show_label=i in keep) for i, n in enumerate(nodes)]

@@ -60,3 +60,24 @@ def test_ruler_ticks_are_in_the_plans_display_unit():
     assert metric.ticks[-1].label == "400"
     # Source: 400 m = 1312.34 ft (1 ft = 0.3048 m); the ruler stops at the last round tick under it.
     assert float(imperial.ticks[-1].label) <= 1312.34 and float(imperial.ticks[-1].label) >= 1000
+
+
+def test_crowded_labels_are_thinned_but_nodes_that_do_not_hold_keep_theirs():
+    crowded = PLAN | {
+        "nodes": [{"name": f"p{k}", "position_m": 4.0 * k + 2.0} for k in range(100)],
+    }
+    verdicts = {"p51": "breaks"}
+    drawing = bus_drawing(load_plan(crowded), verdicts, "metric")
+    shown = [n for n in drawing.nodes if n.show_label]
+    assert len(drawing.nodes) == 100 and 0 < len(shown) < 100
+    assert drawing.nodes[51].show_label
+    xs = sorted(n.x for n in shown)
+    assert min(b - a for a, b in zip(xs, xs[1:])) >= 16.0
+    assert "left out" in drawing.caption
+
+
+def test_part_labels_near_the_right_edge_run_leftwards():
+    drawing = bus_drawing(load_plan(PLAN), {}, "metric")
+    left, right = drawing.terminators
+    assert left.text_anchor == "start" and left.text_x > left.x
+    assert right.text_anchor == "end" and right.text_x < right.x
