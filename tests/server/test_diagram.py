@@ -72,12 +72,16 @@ def test_crowded_labels_are_thinned_but_nodes_that_do_not_hold_keep_theirs():
     assert len(drawing.nodes) == 100 and 0 < len(shown) < 100
     assert drawing.nodes[51].show_label
     xs = sorted(n.x for n in shown)
-    assert min(b - a for a, b in zip(xs, xs[1:])) >= 16.0
+    assert min(b - a for a, b in zip(xs, xs[1:], strict=False)) >= 16.0
     assert "left out" in drawing.caption
 
 
 def test_part_labels_near_the_right_edge_run_leftwards():
-    drawing = bus_drawing(load_plan(PLAN), {}, "metric")
+    terminations = [
+        {"position_m": 0.0, "resistance_ohm": 120.0, "kind": "rc", "capacitance_f": 4.7e-9},
+        {"position_m": 400.0, "resistance_ohm": 120.0, "kind": "rc", "capacitance_f": 4.7e-9},
+    ]
+    drawing = bus_drawing(load_plan(PLAN | {"terminations": terminations}), {}, "metric")
     left, right = drawing.terminators
     assert left.text_anchor == "start" and left.text_x > left.x
     assert right.text_anchor == "end" and right.text_x < right.x
