@@ -1,0 +1,212 @@
+"""DC differential level at every receiver through the cable's loop resistance (rule "signal.dc_level").
+
+Model (differential mode, DC). The pair is one conductor path whose series resistance is the loop of both
+wires, 2 * R' per metre. Every element hangs from a point of the trunk, at the end of its stub when it has one:
+the driver is a Thevenin source (open-circuit voltage behind its source resistance), a receiver is its input
+resistance (12 kOhm per unit load), a parallel terminator is its resistance (an RC terminator is open at DC)
+and the failsafe bias network is a Thevenin source of its supply voltage behind pull-up + pull-down. Node
+voltages come from one nodal solve G v = i over the trunk points and stub ends (a DC ladder).
+
+When the driver drives, the bias network pushes the receivers toward its idle level; in one of the two
+driven states it works against the driver. By superposition the weaker state at each receiver has
+|V_AB| = V_driver - |V_bias| (the driver's share with the bias supply off, minus the bias share with the
+driver's source off). That weaker state is what the rule checks against the receiver threshold.
+"""
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from engine.bus import Bus
+from engine.findings import Finding, Verdict
+from engine.plan import input_resistance_ohm
+
+RULE_ID = "signal.dc_level"
+RECEIVER_THRESHOLD_V = 0.200  # TIA/EIA-485-A and TIA/EIA-422-B receiver input sensitivity
+NOISE_MARGIN_V = 0.300  # Pairline's allowance for noise picked up on the pair, on top of the threshold
+_MIN_BRANCH_OHM = 1e-6  # stands in for a zero-resistance wire or source so the nodal matrix stays regular
+SOURCE = (
+    "TIA/EIA-485-A and TIA/EIA-422-B receiver sensitivity +/-200 mV; loop resistance of 24 AWG copper "
+    "84.2 Ohm/km per conductor (ASTM B258); noise margin 300 mV: Pairline's own allowance"
+)
+
+
+@dataclass(frozen=True, slots=True)
+class DcElement:
+    """One branch from the pair to the return conductor, at a trunk point or at the end of a stub."""
+
+    name: str
+    position_m: float
+    stub_m: float
+    resistance_ohm: float  # math.inf for an open branch
+    source_v: float = 0.0  # Thevenin voltage in series with resistance_ohm
+
+
+def loop_resistance_ohm(length_m: float, resistance_ohm_per_m: float) -> float:
+    """Series resistance of a pair run: both conductors, R_loop = 2 * R' * L."""
+    return 2.0 * resistance_ohm_per_m * length_m
+
+
+def solve_dc_v(
+    elements: list[DcElement], trunk_length_m: float, resistance_ohm_per_m: float, sources_v: np.ndarray
+) -> np.ndarray:
+    """Voltage across the pair at each element's own terminal, for several source settings at once.
+
+    sources_v  # (n_elements, n_cases): the Thevenin voltage of every element in each case
+    returns    # (n_elements, n_cases) in volts
+
+    Nodal analysis: unknowns are the trunk points (every element position plus both trunk ends) and one
+    stub end per element with a stub; trunk sections and stubs carry the loop resistance 2 R' L.
+    """
+    positions = np.unique(np.array([0.0, trunk_length_m] + [e.position_m for e in elements]))
+    n_trunk = positions.size
+    stubbed = [i for i, e in enumerate(elements) if e.stub_m > 0.0]
+    n = n_trunk + len(stubbed)
+    g = np.zeros((n, n))
+    i_in = np.zeros((n, sources_v.shape[1]))
+
+    def connect(a: int, b: int, r_ohm: float) -> None:
+        cond = 1.0 / max(r_ohm, _MIN_BRANCH_OHM)
+        g[a, a] += cond
+        g[b, b] += cond
+        g[a, b] -= cond
+        g[b, a] -= cond
+
+    for k in range(n_trunk - 1):
+        connect(k, k + 1, loop_resistance_ohm(positions[k + 1] - positions[k], resistance_ohm_per_m))
+    terminal = np.searchsorted(positions, [e.position_m for e in elements])
+    for j, i in enumerate(stubbed):
+        stub_node = n_trunk + j
+        connect(int(terminal[i]), stub_node, loop_resistance_ohm(elements[i].stub_m, resistance_ohm_per_m))
+        terminal[i] = stub_node
+    for i, e in enumerate(elements):
+        if math.isinf(e.resistance_ohm):
+            continue
+        cond = 1.0 / max(e.resistance_ohm, _MIN_BRANCH_OHM)
+        g[terminal[i], terminal[i]] += cond
+        i_in[terminal[i]] += cond * sources_v[i]
+    # A bus with nothing to the return conductor (every load open) would be singular: tie it with a huge R.
+    g[np.diag_indices(n)] += 1e-15
+    v = np.linalg.solve(g, i_in)
+    return v[terminal]
+
+
+def receiver_elements(bus: Bus) -> list[DcElement]:
+    """Every plan node as a receiver load (a transceiver node that is not driving listens like a receiver)."""
+    return [
+        DcElement(n.name, n.position_m, n.stub_length_m, input_resistance_ohm(n.unit_loads)) for n in bus.plan.nodes
+    ]
+
+
+def fixed_load_elements(bus: Bus) -> list[DcElement]:
+    """Parallel terminators (RC ones are open at DC) and the bias network with its supply."""
+    loads = [
+        DcElement(f"terminator at {t.position_m:g} m", t.position_m, 0.0, t.resistance_ohm)
+        for t in bus.plan.terminations
+        if t.kind == "parallel"
+    ]
+    if bus.plan.bias is not None:
+        b = bus.plan.bias
+        supply_v = b.supply_v if b.supply_v is not None else bus.plan.supply_v
+        loads.append(DcElement("bias network", b.position_m, 0.0, b.pull_up_ohm + b.pull_down_ohm, supply_v))
+    return loads
+
+
+@dataclass(frozen=True, slots=True)
+class DrivenLevels:
+    receiver_names: tuple[str, ...]
+    driver_share_v: np.ndarray  # (n_receivers,) V_AB from the driver alone (bias supply off)
+    bias_share_v: np.ndarray  # (n_receivers,) V_AB from the bias supply alone (driver source off)
+
+    @property
+    def weak_state_v(self) -> np.ndarray:
+        """|V_AB| in the driven state that the bias works against: V_driver - |V_bias|."""
+        return self.driver_share_v - np.abs(self.bias_share_v)
+
+
+def driven_levels(bus: Bus) -> DrivenLevels:
+    """DC differential voltage at every receiver while the primary driver drives (see module docstring)."""
+    d = bus.plan.driver
+    driver = DcElement(d.name, d.position_m, d.stub_length_m, bus.driver.source_ohm, bus.driver.open_circuit_v)
+    receivers = receiver_elements(bus)
+    loads = fixed_load_elements(bus)
+    elements = [driver, *receivers, *loads]
+    sources_v = np.zeros((len(elements), 2))
+    sources_v[0, 0] = driver.source_v
+    if bus.plan.bias is not None:
+        sources_v[-1, 1] = loads[-1].source_v
+    v = solve_dc_v(elements, bus.plan.trunk_length_m, bus.cable.resistance_ohm_per_m, sources_v)
+    rx = slice(1, 1 + len(receivers))
+    return DrivenLevels(tuple(r.name for r in receivers), v[rx, 0], v[rx, 1])
+
+
+def check_receiver_voltage(bus: Bus) -> list[Finding]:
+    """One finding per receiver: DC |V_AB| in the weaker driven state vs the 200 mV threshold plus margin."""
+    try:
+        levels = driven_levels(bus)
+    except (np.linalg.LinAlgError, ValueError) as exc:
+        return [
+            Finding(
+                RULE_ID,
+                "DC level at the receivers",
+                Verdict.TIGHT,
+                None,
+                RECEIVER_THRESHOLD_V,
+                "V",
+                None,
+                "DC nodal solve of the bus",
+                SOURCE,
+                fix="Check the plan's cable and load values; the DC solve could not be done.",
+                detail=f"solve failed: {exc}",
+            )
+        ]
+    v_oc = bus.driver.open_circuit_v
+    tight_below_v = RECEIVER_THRESHOLD_V + NOISE_MARGIN_V
+    findings = []
+    for name, v_rx, v_drv, v_bias in zip(
+        levels.receiver_names, levels.weak_state_v, levels.driver_share_v, levels.bias_share_v, strict=True
+    ):
+        verdict = (
+            Verdict.BREAKS if v_rx < RECEIVER_THRESHOLD_V else Verdict.TIGHT if v_rx < tight_below_v else Verdict.HOLDS
+        )
+        ratio = v_drv / v_oc
+        detail = (
+            f"Driver share {v_drv:.3f} V ({ratio:.3f} of its {v_oc:g} V open-circuit, "
+            f"{20 * math.log10(max(ratio, 1e-12)):.1f} dB)"
+        )
+        if bus.plan.bias is not None:
+            detail += f"; the bias network shifts it by {v_bias:+.3f} V, so the weaker state has {v_rx:.3f} V"
+        findings.append(
+            Finding(
+                RULE_ID,
+                f"DC level at '{name}'",
+                verdict,
+                float(v_rx),
+                RECEIVER_THRESHOLD_V,
+                "V",
+                name,
+                f"|V_AB| in the weaker driven state through the cable's loop resistance >= 200 mV; "
+                f"below {tight_below_v:.1f} V (threshold + {NOISE_MARGIN_V * 1e3:.0f} mV noise margin) is tight",
+                SOURCE,
+                fix="" if verdict is Verdict.HOLDS else _fix(bus, name, float(v_rx), float(v_bias)),
+                detail=detail + ".",
+            )
+        )
+    return findings
+
+
+def _fix(bus: Bus, name: str, v_rx: float, v_bias: float) -> str:
+    r_loop = loop_resistance_ohm(bus.plan.trunk_length_m, bus.cable.resistance_ohm_per_m)
+    parts = [
+        f"Raise the level at '{name}' ({v_rx * 1e3:.0f} mV) to at least "
+        f"{(RECEIVER_THRESHOLD_V + NOISE_MARGIN_V) * 1e3:.0f} mV: use a heavier-gauge pair (22 AWG has 0.63 "
+        f"times the resistance of 24 AWG; the trunk's loop is now {r_loop:.0f} Ohm), shorten the run, or split "
+        f"it with a repeater"
+    ]
+    if abs(v_bias) > 0.25 * max(v_rx, 1e-3):
+        parts.append("and weaken the bias network (larger pull-up and pull-down) so it fights the driver less")
+    terminators = [t for t in bus.plan.terminations if t.kind == "parallel"]
+    if len(terminators) > 2 or any(t.resistance_ohm < 0.9 * bus.cable.z0_ohm for t in terminators):
+        parts.append("and keep only the two end terminators, each equal to the cable's impedance")
+    return ", ".join(parts) + "."
