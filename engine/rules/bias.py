@@ -26,8 +26,11 @@ from engine.units import parallel_ohm
 RULE_ID = "bias.idle_level"
 IDLE_THRESHOLD_V = 0.200  # receiver sensitivity, TIA/EIA-485-A
 IDLE_TARGET_V = 0.250  # Pairline's target: threshold plus 50 mV for noise; below it the verdict is tight
-E24 = (1.0, 1.1, 1.2, 1.3, 1.5, 1.6, 1.8, 2.0, 2.2, 2.4, 2.7, 3.0, 3.3, 3.6, 3.9, 4.3, 4.7, 5.1, 5.6, 6.2, 6.8, 7.5)
-E24 += (8.2, 9.1)  # IEC 60063 E24 series
+# IEC 60063 E24 series
+E24: tuple[float, ...] = (
+    *(1.0, 1.1, 1.2, 1.3, 1.5, 1.6, 1.8, 2.0, 2.2, 2.4, 2.7, 3.0),
+    *(3.3, 3.6, 3.9, 4.3, 4.7, 5.1, 5.6, 6.2, 6.8, 7.5, 8.2, 9.1),
+)
 _PROBE_OHM = 1e-3  # a near-ideal 1 V probe source for the ladder view
 SOURCE = (
     "Idle-bus biasing: TI SLLA272 (The RS-485 Design Guide) and B&B Electronics RS-422/485 application note; "

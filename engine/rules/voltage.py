@@ -122,7 +122,7 @@ class DrivenLevels:
     @property
     def weak_state_v(self) -> np.ndarray:
         """|V_AB| in the driven state that the bias works against: V_driver - |V_bias|."""
-        return self.driver_share_v - np.abs(self.bias_share_v)
+        return np.asarray(self.driver_share_v - np.abs(self.bias_share_v), dtype=float)
 
 
 def driven_levels(bus: Bus) -> DrivenLevels:
