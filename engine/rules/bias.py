@@ -169,7 +169,8 @@ def check_failsafe_bias(bus: Bus) -> list[Finding]:
         else ""
     )
     if bus.plan.bias is None:
-        verdict = Verdict.TIGHT if bus.plan.standard == "rs422" else Verdict.BREAKS
+        # RS-422's one driver is not tri-stated in normal use, so an unbiased line is the usual design.
+        verdict = Verdict.HOLDS if bus.plan.standard == "rs422" else Verdict.BREAKS
         return [
             Finding(
                 RULE_ID,
@@ -181,7 +182,9 @@ def check_failsafe_bias(bus: Bus) -> list[Finding]:
                 None,
                 criterion,
                 SOURCE,
-                fix=f"Add failsafe bias: {advice}; or use receivers with failsafe thresholds on every node.",
+                fix=""
+                if verdict is Verdict.HOLDS
+                else f"Add failsafe bias: {advice}; or use receivers with failsafe thresholds on every node.",
                 detail="With every driver off the pair idles at 0 V, inside the undefined band. "
                 + FAILSAFE_NOTE
                 + rs422_note,
