@@ -50,9 +50,9 @@ RC_ROUND_TRIPS_HOLDS = 3.0
 RC_SETTLE_TIME_CONSTANTS = 3.0
 FIELD_RULE_MAX_RATE_BPS = 200e3
 DECIDING_CRITERION = "three_round_trips"
-E24 = (1.0, 1.1, 1.2, 1.3, 1.5, 1.6, 1.8, 2.0, 2.2, 2.4, 2.7, 3.0, 3.3, 3.6, 3.9, 4.3, 4.7, 5.1, 5.6, 6.2)
-E24 += (6.8, 7.5, 8.2, 9.1)  # IEC 60063
-E6 = (1.0, 1.5, 2.2, 3.3, 4.7, 6.8)  # IEC 60063
+E24: tuple[float, ...] = (1.0, 1.1, 1.2, 1.3, 1.5, 1.6, 1.8, 2.0, 2.2, 2.4, 2.7, 3.0, 3.3, 3.6, 3.9, 4.3, 4.7)
+E24 += (5.1, 5.6, 6.2, 6.8, 7.5, 8.2, 9.1)  # IEC 60063
+E6: tuple[float, ...] = (1.0, 1.5, 2.2, 3.3, 4.7, 6.8)  # IEC 60063
 
 _PLACEMENT_SOURCE = (
     "TI SLLA272 The RS-485 Design Guide and B&B Electronics RS-422/485 application note (both cable ends); "
@@ -417,7 +417,9 @@ def _gamma_verdict(gamma: float) -> Verdict:
     return Verdict.BREAKS
 
 
-def _end_match(bus: Bus, position_m: float, resistance_ohm: float, others_ohm: list[float]) -> tuple:
+def _end_match(
+    bus: Bus, position_m: float, resistance_ohm: float, others_ohm: list[float]
+) -> tuple[float, float, float]:
     """(R_P, ideal R_T, Gamma of the whole end) for a terminator of resistance_ohm at a position."""
     z0 = bus.cable.z0_ohm
     r_p = parallel_ohm(lumped_load_ohm(bus, position_m), *others_ohm)
