@@ -1,13 +1,13 @@
 """Bus loading: the unit-load budget and the total resistive load the driver sees.
 
 Unit loads (TIA-485-A; TI SLLA166 and SLLA272). A unit load (UL) draws at most 1 mA when its line is held at
-+12 V and at most 0.8 mA (out of the input) at -7 V, i.e. about 12 kOhm per line. An RS-485 driver must
-drive 32 UL. Everything hung on the pair counts: each node's receiver, the driver's own receiver (a
-transceiver listens while it does not drive) and the failsafe bias network (SLLA272: bias may consume unit
-loads). The bias is rated like any load, by its current at the two test voltages:
-    pull-up R_u to V_S on line A:   I(+12 V) = (12 - V_S)/R_u,  |I(-7 V)| = (7 + V_S)/R_u
-    pull-down R_d to ground on B:   I(+12 V) = 12/R_d,          |I(-7 V)| = 7/R_d
-    UL of one line = max(I(+12 V)/1 mA, |I(-7 V)|/0.8 mA); the bias counts with its worse line.
++12 V and at most 0.8 mA (out of the input) at -7 V, which Pairline models as 12 kOhm per UL (as
+engine.plan.input_resistance_ohm does). An RS-485 driver must drive 32 UL. Everything hung on the pair
+counts: each node's receiver, the driver's own receiver (a transceiver listens while it does not drive) and
+the failsafe bias network (SLLA272: bias may consume unit loads, up to 20 UL in its example). The budget
+holds per line; the bias puts R_u on line A and R_d on line B, each a load to a rail like a receiver input,
+so it counts with its worse line: UL_bias = 12 kOhm / min(R_u, R_d). A 600 Ohm network is the 20 UL of the
+SLLA272 example. (Rating the pull-up by its current at -7 V from a 5 V supply would be stricter by 25 %.)
 RS-422 (TIA/EIA-422-B) counts receivers instead: one driver, at most 10 receivers of >= 4 kOhm.
 
 Driver load. The driver sees every terminator, every receiver input and the bias network in parallel across
@@ -32,10 +32,7 @@ RS422_MAX_RECEIVERS = 10  # TIA/EIA-422-B
 RS422_MIN_INPUT_OHM = 4_000.0  # TIA/EIA-422-B
 RS485_DESIGN_LOAD_OHM = 54.0  # TIA-485-A driver test load
 RS422_DESIGN_LOAD_OHM = 100.0  # TIA/EIA-422-B driver test load
-UNIT_LOAD_HIGH_TEST_V = 12.0
-UNIT_LOAD_HIGH_CURRENT_A = 1.0e-3
-UNIT_LOAD_LOW_TEST_V = -7.0
-UNIT_LOAD_LOW_CURRENT_A = 0.8e-3
+UNIT_LOAD_OHM = input_resistance_ohm(1.0)  # 12 kOhm, TIA-485-A
 # A budget is TIGHT when less than this fraction of it is left.
 TIGHT_SPARE_FRACTION = 0.10
 # The driver load is TIGHT between the design load and this fraction of the standard's own full bus
@@ -47,21 +44,12 @@ _UL_SOURCE = "TIA-485-A unit load and 32 UL driver capability; TI SLLA166 and SL
 _422_SOURCE = "TIA/EIA-422-B: one driver, up to 10 receivers of at least 4 kOhm"
 
 
-def bias_unit_loads(pull_up_ohm: float, pull_down_ohm: float, supply_v: float) -> float:
-    """The failsafe bias network rated in unit loads: its worse line's current at +12 V / -7 V over the UL current.
+def bias_unit_loads(pull_up_ohm: float, pull_down_ohm: float) -> float:
+    """The failsafe bias network in unit loads, by its worse line: 12 kOhm / min(R_u, R_d).
 
-    Pull-up line: max((12 - V_S)/R_u / 1 mA, (7 + V_S)/R_u / 0.8 mA); pull-down line: max(12/R_d / 1 mA,
-    7/R_d / 0.8 mA). Source: TIA-485-A unit-load definition; TI SLLA272 (bias consumes unit loads).
+    Source: TIA-485-A unit load (~12 kOhm); TI SLLA272 (bias networks consume unit loads).
     """
-    up = max(
-        abs(UNIT_LOAD_HIGH_TEST_V - supply_v) / pull_up_ohm / UNIT_LOAD_HIGH_CURRENT_A,
-        abs(UNIT_LOAD_LOW_TEST_V - supply_v) / pull_up_ohm / UNIT_LOAD_LOW_CURRENT_A,
-    )
-    down = max(
-        UNIT_LOAD_HIGH_TEST_V / pull_down_ohm / UNIT_LOAD_HIGH_CURRENT_A,
-        abs(UNIT_LOAD_LOW_TEST_V) / pull_down_ohm / UNIT_LOAD_LOW_CURRENT_A,
-    )
-    return max(up, down)
+    return UNIT_LOAD_OHM / min(pull_up_ohm, pull_down_ohm)
 
 
 def max_nodes(node_unit_loads: float, budget_unit_loads: float = RS485_UNIT_LOAD_BUDGET) -> int:
@@ -80,20 +68,12 @@ def further_nodes(spare_unit_loads: float) -> dict[str, int]:
     return {label: max_nodes(ul, spare_unit_loads) for label, ul in UNIT_LOAD_CLASSES.items()}
 
 
-def bias_supply_v(bus: Bus) -> float:
-    """The bias network's supply: its own, else the plan's supply."""
-    plan = bus.plan
-    if plan.bias is None:
-        return plan.supply_v
-    return plan.bias.supply_v if plan.bias.supply_v is not None else plan.supply_v
-
-
 def unit_load_parts(bus: Bus) -> dict[str, float]:
     """The RS-485 unit-load budget by contributor: nodes, the driver's own receiver, the bias network."""
     plan = bus.plan
     bias_ul = 0.0
     if plan.bias is not None:
-        bias_ul = bias_unit_loads(plan.bias.pull_up_ohm, plan.bias.pull_down_ohm, bias_supply_v(bus))
+        bias_ul = bias_unit_loads(plan.bias.pull_up_ohm, plan.bias.pull_down_ohm)
     return {
         "nodes": float(sum(n.unit_loads for n in plan.nodes)),
         "driver": bus.driver.unit_loads if plan.standard == "rs485" else 0.0,

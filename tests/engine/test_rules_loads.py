@@ -48,20 +48,28 @@ def test_bias_taking_20_unit_loads_leaves_96_eighth_load_nodes():
     assert further_nodes(32.0 - 20.0)["1/8 UL"] == 96
 
 
-def test_a_12_kohm_pull_down_is_one_unit_load():
-    # Source: TIA-485-A unit load: 1 mA drawn with the line at +12 V (12 V / 12 kOhm = 1 mA).
-    assert bias_unit_loads(pull_up_ohm=1e9, pull_down_ohm=12_000.0, supply_v=5.0) == pytest.approx(1.0, rel=1e-9)
+def test_a_12_kohm_bias_resistor_is_one_unit_load():
+    # Source: TIA-485-A unit load: 1 mA with the line at +12 V, i.e. 12 kOhm.
+    assert bias_unit_loads(pull_up_ohm=12_000.0, pull_down_ohm=12_000.0) == pytest.approx(1.0, rel=1e-12)
 
 
-def test_pull_up_is_rated_at_minus_seven_volts():
-    # Source: TIA-485-A unit load: at most 0.8 mA with the line at -7 V; from 5 V that is (7 + 5) V / 15 kOhm.
-    assert bias_unit_loads(pull_up_ohm=15_000.0, pull_down_ohm=1e9, supply_v=5.0) == pytest.approx(1.0, rel=1e-9)
+def test_a_600_ohm_bias_takes_20_unit_loads_and_leaves_96_eighth_load_nodes():
+    # Source: TI SLLA272 The RS-485 Design Guide: a bias network taking 20 UL leaves 96 nodes of 1/8 UL;
+    # 12 kOhm / 600 Ohm = 20 UL (common practice arithmetic).
+    taken = bias_unit_loads(pull_up_ohm=600.0, pull_down_ohm=600.0)
+    assert taken == pytest.approx(20.0, rel=1e-12)
+    assert further_nodes(32.0 - taken)["1/8 UL"] == 96
+
+
+def test_bias_counts_with_its_worse_line():
+    # common practice: the 32 UL budget holds per line, and the smaller resistor loads its line more.
+    assert bias_unit_loads(pull_up_ohm=1_200.0, pull_down_ohm=2_400.0) == pytest.approx(10.0, rel=1e-12)
 
 
 def test_unit_load_total_counts_nodes_driver_receiver_and_bias():
-    bus = _bus(n_nodes=4, unit_loads=0.5, bias={"pull_up_ohm": 12_000.0, "pull_down_ohm": 12_000.0})
-    # common practice: 4 x 1/2 UL + the driver's 1 UL receiver + the bias's worse line, (7 + 5) V / 12 kOhm / 0.8 mA.
-    assert unit_load_total(bus) == pytest.approx(2.0 + 1.0 + 1.25, rel=1e-9)
+    bus = _bus(n_nodes=4, unit_loads=0.5, bias={"pull_up_ohm": 12_000.0, "pull_down_ohm": 6_000.0})
+    # common practice: 4 x 1/2 UL + the driver's 1 UL receiver + the bias's worse line, 12 kOhm / 6 kOhm = 2 UL.
+    assert unit_load_total(bus) == pytest.approx(2.0 + 1.0 + 2.0, rel=1e-12)
 
 
 def test_thirty_two_unit_loads_are_at_the_limit_and_33_break():
