@@ -14,12 +14,14 @@ single driver stays enabled, so the line idles only when the driver is disabled 
 """
 
 import math
+from dataclasses import dataclass
 
 import numpy as np
 
 from engine.bus import Bus
 from engine.findings import Finding, Verdict
 from engine.plan import input_resistance_ohm
+from engine.rules.loads import RS485_UNIT_LOAD_BUDGET, bias_unit_loads, design_load_ohm, receiver_loads_ohm
 from engine.rules.voltage import DcElement, fixed_load_elements, receiver_elements, solve_dc_v
 from engine.units import parallel_ohm
 
@@ -107,61 +109,141 @@ def bias_view(bus: Bus, position_m: float) -> tuple[float, float]:
 
 
 def recommended_bias_ohm(bus: Bus) -> float:
-    """Each bias resistor to fit (pull-up = pull-down), in ohm; see recommended_bias(bus)."""
-    return recommended_bias(bus)[0]
-
-
-def recommended_bias_position_m(bus: Bus) -> float:
-    """Where to fit the recommended bias network, in metres along the trunk; see recommended_bias(bus)."""
-    return recommended_bias(bus)[1]
+    """Each bias resistor to fit (pull-up = pull-down), in ohm; see bias_choice(bus)."""
+    return bias_choice(bus).resistance_ohm
 
 
 def recommended_bias(bus: Bus) -> tuple[float, float]:
-    """(R_B in ohm, position in m): the largest E24 pull-up = pull-down keeping every listener >= 250 mV idle.
+    """(each bias resistor in ohm, position in m along the trunk); see bias_choice(bus)."""
+    choice = bias_choice(bus)
+    return choice.resistance_ohm, choice.position_m
+
+
+@dataclass(frozen=True, slots=True)
+class BiasChoice:
+    resistance_ohm: float  # each of pull-up and pull-down (E24)
+    position_m: float
+    idle_min_v: float  # lowest idle V_AB over the listeners with this choice (cable included)
+    min_ohm: float  # smallest resistor the 32 UL budget and the driver's 54 Ohm load allow (0: no limit)
+    max_ohm: float  # largest resistor that still holds 200 mV at every listener from position_m
+    fits: bool  # a resistor exists that both holds 200 mV and respects min_ohm
+
+
+def bias_min_ohm(bus: Bus) -> float:
+    """Smallest equal pull-up / pull-down the rest of the bus leaves room for (RS-485; 0 on RS-422).
+
+    Unit loads: the bias is rated like a load (engine.rules.loads.bias_unit_loads, which scales as 1 / R),
+    and nodes + driver's receiver + bias must stay within 32 UL (TIA-485-A). Driver load:
+    terminators || receivers || 2 R_B must stay at or above the 54 Ohm design load (TIA-485-A).
+    """
+    if bus.plan.standard != "rs485":
+        return 0.0
+    used_ul = sum(n.unit_loads for n in bus.plan.nodes) + bus.driver.unit_loads
+    headroom_ul = RS485_UNIT_LOAD_BUDGET - used_ul
+    r_ul = bias_unit_loads(1.0, 1.0) / headroom_ul if headroom_ul > 0 else math.inf
+    rest_ohm = parallel_ohm(*[t.resistance_ohm for t in bus.plan.terminations], *receiver_loads_ohm(bus))
+    design_ohm = design_load_ohm("rs485")
+    r_load = 0.5 / (1.0 / design_ohm - 1.0 / rest_ohm) if rest_ohm > design_ohm else 0.0
+    return max(r_ul, r_load)
+
+
+def e24_at_or_above(resistance_ohm: float) -> float:
+    """Smallest E24 resistor value not below resistance_ohm (IEC 60063)."""
+    below = e24_at_or_below(resistance_ohm)
+    if below >= resistance_ohm * (1 - 1e-9):
+        return below
+    decade = 10.0 ** math.floor(math.log10(resistance_ohm))
+    above = [m * decade for m in E24 if m * decade > resistance_ohm] or [10.0 * decade]
+    return round(above[0], 6)
+
+
+def bias_choice(bus: Bus) -> BiasChoice:
+    """The bias network to fit: the largest E24 pull-up = pull-down keeping every listener >= 250 mV idle,
+    within the unit-load and driver-load room (bias_min_ohm).
 
     Seen from the bias point the idle bus is R_in with each listener at t_k of the bias point's voltage, so
     V_k = V_S t_k R_in / (2 R_B + R_in) and R_B,max = (R_in / 2)(V_S t_min / V_target - 1); for a short bus
-    t_min = 1 and this is the lumped (R_eq / 2)(V_S / V_min - 1). V_target = 200 mV threshold + 50 mV margin.
-    When the far end sags so much that no resistor reaches the target from the plan's bias point, the value
-    for the middle of the trunk is given (fix text says to move the bias there).
+    t_min = 1 and this is the lumped (R_eq / 2)(V_S / V_min - 1). V_target is 250 mV (200 mV threshold +
+    50 mV margin), relaxed to 200 mV when the room allows no more. The plan's bias point is tried first, then
+    the middle of the trunk. When no resistor fits, the one holding 200 mV is given with fits=False: with
+    parallel terminators this bus needs RC terminators or failsafe receivers instead.
     """
     supply_v = bias_supply_v(bus)
+    r_min = bias_min_ohm(bus)
+    fallback: BiasChoice | None = None
     for position_m in (bias_position_m(bus), 0.5 * bus.plan.trunk_length_m):
         r_in, t_min = bias_view(bus, position_m)
-        if supply_v * t_min > IDLE_TARGET_V:
-            return e24_at_or_below(max_bias_ohm(r_in, supply_v * t_min, IDLE_TARGET_V)), position_m
-    return e24_at_or_below(max_bias_ohm(idle_load_ohm(bus), supply_v, IDLE_TARGET_V)), bias_position_m(bus)
+        r_max = max_bias_ohm(r_in, supply_v * t_min, IDLE_THRESHOLD_V) if supply_v * t_min > IDLE_THRESHOLD_V else 0.0
+        for target_v in (IDLE_TARGET_V, IDLE_THRESHOLD_V):
+            if supply_v * t_min <= target_v:
+                continue
+            r_hi = e24_at_or_below(max_bias_ohm(r_in, supply_v * t_min, target_v))
+            if r_hi >= r_min:
+                idle_v = idle_voltage_v(supply_v * t_min, r_hi, r_hi, r_in)
+                return BiasChoice(r_hi, position_m, idle_v, r_min, r_max, True)
+        if fallback is None and r_max > 0.0:
+            r = e24_at_or_below(r_max)
+            fallback = BiasChoice(r, position_m, idle_voltage_v(supply_v * t_min, r, r, r_in), r_min, r_max, False)
+    if fallback is not None:
+        return fallback
+    r = e24_at_or_below(max_bias_ohm(idle_load_ohm(bus), supply_v, IDLE_TARGET_V))
+    return BiasChoice(r, bias_position_m(bus), 0.0, r_min, 0.0, False)
 
 
 def idle_levels_v(bus: Bus) -> tuple[tuple[str, ...], np.ndarray]:
     """Idle V_AB at every listening node (receivers, and the driver's own receiver on RS-485), via the ladder."""
-    receivers = receiver_elements(bus)
-    d = bus.plan.driver
-    if bus.plan.standard == "rs485":
-        receivers.append(DcElement(d.name, d.position_m, d.stub_length_m, input_resistance_ohm(bus.driver.unit_loads)))
-    loads = fixed_load_elements(bus)
-    elements = [*receivers, *loads]
+    receivers = _listeners(bus)
+    elements = [*receivers, *fixed_load_elements(bus)]
     sources_v = np.array([[e.source_v] for e in elements])
     v = solve_dc_v(elements, bus.plan.trunk_length_m, bus.cable.resistance_ohm_per_m, sources_v)
     return tuple(r.name for r in receivers), v[: len(receivers), 0]
+
+
+def bias_advice_text(bus: Bus) -> str:
+    """The fix sentence for the bias: what to fit and where, or why no resistor pair fits and what instead."""
+    choice = bias_choice(bus)
+    supply_v = bias_supply_v(bus)
+    lumped_ohm = max_bias_ohm(idle_load_ohm(bus), supply_v)
+    r = choice.resistance_ohm
+    if choice.fits:
+        room = " and stays within the 32 UL budget and the 54 Ohm driver load" if choice.min_ohm > 0 else ""
+        return (
+            f"fit a pull-up of {r:g} Ohm from the {supply_v:g} V supply to A and a pull-down of {r:g} Ohm from B "
+            f"to ground at {choice.position_m:g} m along the trunk; that idles every receiver at >= "
+            f"{choice.idle_min_v * 1e3:.0f} mV allowing for the cable{room} (lumped formula: R_B,max = "
+            f"{lumped_ohm:.0f} Ohm for 200 mV). Or use receivers with failsafe thresholds on every node."
+        )
+    rc_plan = bus.plan.model_copy(
+        update={
+            "terminations": [
+                t.model_copy(update={"kind": "rc", "capacitance_f": t.capacitance_f or 1e-9})
+                for t in bus.plan.terminations
+            ]
+        }
+    )
+    rc_choice = bias_choice(Bus(plan=rc_plan, cable=bus.cable, driver=bus.driver)) if bus.plan.terminations else None
+    rc_text = (
+        f" (then {rc_choice.resistance_ohm:g} Ohm each from {supply_v:g} V will do)"
+        if rc_choice is not None and rc_choice.fits
+        else ""
+    )
+    return (
+        f"no pull-up / pull-down pair fits this bus with parallel terminators: 200 mV at every receiver needs "
+        f"at most {choice.max_ohm:.0f} Ohm each, while the 32 UL budget and the 54 Ohm driver load need at least "
+        f"{choice.min_ohm:.0f} Ohm. Use receivers with failsafe thresholds on every node, or RC terminators at "
+        f"the cable ends so the bias sees only the receivers{rc_text}, or split the bus with a repeater."
+    )
 
 
 def check_failsafe_bias(bus: Bus) -> list[Finding]:
     """Idle-bus level with the plan's bias (or none) vs the 200 mV receiver threshold; one whole-bus finding."""
     r_eq = idle_load_ohm(bus)
     supply_v = bias_supply_v(bus)
-    r_rec, at_m = recommended_bias(bus)
-    r_max = max_bias_ohm(r_eq, supply_v)
     criterion = (
         "idle V_AB = V_S R_eq / (2 R_B + R_eq) >= 200 mV at every receiver (solved along the cable); "
         f"below {IDLE_TARGET_V * 1e3:.0f} mV is tight"
     )
-    advice = (
-        f"fit a pull-up of {r_rec:g} Ohm from the {supply_v:g} V supply to A and a pull-down of {r_rec:g} Ohm "
-        f"from B to ground at {at_m:g} m along the trunk, which keeps every receiver at >= "
-        f"{IDLE_TARGET_V * 1e3:.0f} mV allowing for the cable (lumped: R_eq {r_eq:.1f} Ohm gives "
-        f"R_B,max = {r_max:.0f} Ohm for 200 mV)"
-    )
+    advice = bias_advice_text(bus)
     rs422_note = (
         " On RS-422 the single driver normally stays enabled, so this matters only if the driver is disabled, "
         "powered down or unplugged."
@@ -182,9 +264,7 @@ def check_failsafe_bias(bus: Bus) -> list[Finding]:
                 None,
                 criterion,
                 SOURCE,
-                fix=""
-                if verdict is Verdict.HOLDS
-                else f"Add failsafe bias: {advice}; or use receivers with failsafe thresholds on every node.",
+                fix="" if verdict is Verdict.HOLDS else f"Add failsafe bias: {advice}",
                 detail="With every driver off the pair idles at 0 V, inside the undefined band. "
                 + FAILSAFE_NOTE
                 + rs422_note,
@@ -207,7 +287,7 @@ def check_failsafe_bias(bus: Bus) -> list[Finding]:
     )
     fix = ""
     if verdict is not Verdict.HOLDS:
-        fix = f"Strengthen the bias: {advice}."
+        fix = f"Change the bias: {advice}"
     return [
         Finding(
             RULE_ID,

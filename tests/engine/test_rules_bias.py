@@ -8,6 +8,8 @@ from engine.bus import build_bus
 from engine.findings import Verdict
 from engine.plan import load_plan
 from engine.rules.bias import (
+    bias_choice,
+    bias_min_ohm,
     check_failsafe_bias,
     e24_at_or_below,
     idle_levels_v,
@@ -133,3 +135,20 @@ def test_idle_level_falls_as_the_bias_resistors_grow(r_small, factor):
 
     assert level(r_small * factor) < level(r_small)
     assert idle_voltage_v(5.0, r_small * factor, r_small * factor, 60.0) < idle_voltage_v(5.0, r_small, r_small, 60.0)
+
+
+def test_bias_room_from_the_unit_load_budget():
+    # common practice: 32 UL budget (TIA/EIA-485-A) with the bias rated 12 kOhm / R unit loads; nine 1 UL
+    # nodes and a 1 UL driver leave 22 UL, so each resistor must be >= 12 kOhm / 22 = 545 Ohm.
+    assert bias_min_ohm(_bus()) == pytest.approx(12_000.0 / 22.0, rel=1e-9)
+
+
+def test_crowded_terminated_bus_gets_failsafe_or_rc_advice():
+    # common practice: 30 UL of nodes leave 1 UL for the bias (>= 12 kOhm each), while two 120 Ohm
+    # terminators need <= 720 Ohm for 200 mV (formula above): no pair fits.
+    nodes = [{"name": f"n{i}", "position_m": 3.0 * i} for i in range(1, 31)]
+    bus = _bus(nodes=nodes, cable=LOSSLESS)
+    choice = bias_choice(bus)
+    assert not choice.fits and choice.min_ohm == pytest.approx(12_000.0, rel=1e-9)
+    fix = check_failsafe_bias(bus)[0].fix
+    assert "failsafe thresholds" in fix and "RC terminators" in fix
