@@ -345,9 +345,9 @@ def _placement_findings(bus: Bus) -> list[Finding]:
         else:
             at_end[end].append(term)
     rule = "Terminators at both cable ends" if len(required) == 2 else "Terminator at the far cable end"
-    criterion = (
-        f"One terminator at each of {', '.join(f'{e:g} m' for e in required)} (within {tol:.3g} m), none elsewhere"
-    )
+    ends_text = " and ".join(f"{e:g} m" for e in required)
+    where = "at each of " if len(required) > 1 else "at "
+    criterion = f"One terminator {where}{ends_text} (within {tol:.3g} m of the end), none elsewhere"
     side = "because the line is electrically long" if needs else "although the line may stay unterminated"
     findings: list[Finding] = []
 
