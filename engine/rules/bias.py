@@ -164,26 +164,25 @@ def bias_choice(bus: Bus) -> BiasChoice:
     Seen from the bias point the idle bus is R_in with each listener at t_k of the bias point's voltage, so
     V_k = V_S t_k R_in / (2 R_B + R_in) and R_B,max = (R_in / 2)(V_S t_min / V_target - 1); for a short bus
     t_min = 1 and this is the lumped (R_eq / 2)(V_S / V_min - 1). V_target is 250 mV (200 mV threshold +
-    50 mV margin), relaxed to 200 mV when the room allows no more. The plan's bias point is tried first, then
-    the middle of the trunk. When no resistor fits, the one holding 200 mV is given with fits=False: with
-    parallel terminators this bus needs RC terminators or failsafe receivers instead.
+    50 mV margin), relaxed to 200 mV when the room allows no more; at each target the plan's bias point is
+    tried first, then the middle of the trunk. When no resistor fits, the one holding 200 mV is given with
+    fits=False: with parallel terminators this bus needs RC terminators or failsafe receivers instead.
     """
     supply_v = bias_supply_v(bus)
     r_min = bias_min_ohm(bus)
     fallback: BiasChoice | None = None
-    for position_m in (bias_position_m(bus), 0.5 * bus.plan.trunk_length_m):
-        r_in, t_min = bias_view(bus, position_m)
-        r_max = max_bias_ohm(r_in, supply_v * t_min, IDLE_THRESHOLD_V) if supply_v * t_min > IDLE_THRESHOLD_V else 0.0
-        for target_v in (IDLE_TARGET_V, IDLE_THRESHOLD_V):
+    views = [(p, *bias_view(bus, p)) for p in (bias_position_m(bus), 0.5 * bus.plan.trunk_length_m)]
+    for target_v in (IDLE_TARGET_V, IDLE_THRESHOLD_V):
+        for position_m, r_in, t_min in views:
             if supply_v * t_min <= target_v:
                 continue
+            r_max = max_bias_ohm(r_in, supply_v * t_min, IDLE_THRESHOLD_V)
             r_hi = e24_at_or_below(max_bias_ohm(r_in, supply_v * t_min, target_v))
+            idle_v = idle_voltage_v(supply_v * t_min, r_hi, r_hi, r_in)
             if r_hi >= r_min:
-                idle_v = idle_voltage_v(supply_v * t_min, r_hi, r_hi, r_in)
                 return BiasChoice(r_hi, position_m, idle_v, r_min, r_max, True)
-        if fallback is None and r_max > 0.0:
-            r = e24_at_or_below(r_max)
-            fallback = BiasChoice(r, position_m, idle_voltage_v(supply_v * t_min, r, r, r_in), r_min, r_max, False)
+            if fallback is None and target_v == IDLE_THRESHOLD_V:
+                fallback = BiasChoice(r_hi, position_m, idle_v, r_min, r_max, False)
     if fallback is not None:
         return fallback
     r = e24_at_or_below(max_bias_ohm(idle_load_ohm(bus), supply_v, IDLE_TARGET_V))
@@ -205,6 +204,18 @@ def bias_advice_text(bus: Bus) -> str:
     supply_v = bias_supply_v(bus)
     lumped_ohm = max_bias_ohm(idle_load_ohm(bus), supply_v)
     r = choice.resistance_ohm
+    plan_bias = bus.plan.bias
+    if (
+        choice.fits
+        and plan_bias is not None
+        and plan_bias.position_m == choice.position_m
+        and max(plan_bias.pull_up_ohm, plan_bias.pull_down_ohm) <= r
+    ):
+        return (
+            f"the plan's bias is already the strongest the room allows (each resistor >= {choice.min_ohm:.0f} Ohm "
+            f"for the 32 UL budget and the 54 Ohm driver load); for more idle margin use receivers with failsafe "
+            f"thresholds on every node, or RC terminators at the cable ends so the bias sees only the receivers."
+        )
     if choice.fits:
         room = " and stays within the 32 UL budget and the 54 Ohm driver load" if choice.min_ohm > 0 else ""
         return (

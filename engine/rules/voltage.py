@@ -56,40 +56,45 @@ def solve_dc_v(
     sources_v  # (n_elements, n_cases): the Thevenin voltage of every element in each case
     returns    # (n_elements, n_cases) in volts
 
-    Nodal analysis: unknowns are the trunk points (every element position plus both trunk ends) and one
-    stub end per element with a stub; trunk sections and stubs carry the loop resistance 2 R' L.
+    Nodal analysis on the trunk points (every element position plus both trunk ends), joined by sections of
+    loop resistance 2 R' L. A stub is folded into its element (stub loop resistance in series with the
+    element's Thevenin resistance), which leaves a chain: a tridiagonal system, solved by the Thomas
+    algorithm in O(n). The stub end's voltage then follows from the element's current.
     """
+    n_cases = sources_v.shape[1]
     positions = np.unique(np.array([0.0, trunk_length_m] + [e.position_m for e in elements]))
-    n_trunk = positions.size
-    stubbed = [i for i, e in enumerate(elements) if e.stub_m > 0.0]
-    n = n_trunk + len(stubbed)
-    g = np.zeros((n, n))
-    i_in = np.zeros((n, sources_v.shape[1]))
-
-    def connect(a: int, b: int, r_ohm: float) -> None:
-        cond = 1.0 / max(r_ohm, _MIN_BRANCH_OHM)
-        g[a, a] += cond
-        g[b, b] += cond
-        g[a, b] -= cond
-        g[b, a] -= cond
-
-    for k in range(n_trunk - 1):
-        connect(k, k + 1, loop_resistance_ohm(positions[k + 1] - positions[k], resistance_ohm_per_m))
-    terminal = np.searchsorted(positions, [e.position_m for e in elements])
-    for j, i in enumerate(stubbed):
-        stub_node = n_trunk + j
-        connect(int(terminal[i]), stub_node, loop_resistance_ohm(elements[i].stub_m, resistance_ohm_per_m))
-        terminal[i] = stub_node
-    for i, e in enumerate(elements):
-        if math.isinf(e.resistance_ohm):
-            continue
-        cond = 1.0 / max(e.resistance_ohm, _MIN_BRANCH_OHM)
-        g[terminal[i], terminal[i]] += cond
-        i_in[terminal[i]] += cond * sources_v[i]
-    # A bus with nothing to the return conductor (every load open) would be singular: tie it with a huge R.
-    g[np.diag_indices(n)] += 1e-15
-    v = np.linalg.solve(g, i_in)
-    return v[terminal]
+    n = positions.size
+    at = np.searchsorted(positions, [e.position_m for e in elements])
+    stub_ohm = np.array([loop_resistance_ohm(e.stub_m, resistance_ohm_per_m) for e in elements])
+    branch_ohm = np.array([max(e.resistance_ohm, _MIN_BRANCH_OHM) for e in elements]) + stub_ohm
+    branch_siemens = np.where(np.isinf(branch_ohm), 0.0, 1.0 / branch_ohm)
+    shunt_siemens = np.zeros(n)
+    np.add.at(shunt_siemens, at, branch_siemens)
+    injected_a = np.zeros((n, n_cases))
+    np.add.at(injected_a, at, branch_siemens[:, None] * sources_v)
+    section_ohm = np.maximum(loop_resistance_ohm(np.diff(positions), resistance_ohm_per_m), _MIN_BRANCH_OHM)
+    link_siemens = 1.0 / section_ohm  # (n - 1,)
+    # Tiny leak to the return conductor keeps a bus with every load open solvable.
+    diag = shunt_siemens + 1e-15
+    diag[:-1] += link_siemens
+    diag[1:] += link_siemens
+    # Thomas algorithm: forward sweep, back substitution; off-diagonals are -link_siemens.
+    c_prime = np.zeros(n)
+    d_prime = np.zeros((n, n_cases))
+    c_prime[0] = -link_siemens[0] / diag[0] if n > 1 else 0.0
+    d_prime[0] = injected_a[0] / diag[0]
+    for k in range(1, n):
+        denom = diag[k] + link_siemens[k - 1] * c_prime[k - 1]
+        if k < n - 1:
+            c_prime[k] = -link_siemens[k] / denom
+        d_prime[k] = (injected_a[k] + link_siemens[k - 1] * d_prime[k - 1]) / denom
+    v_trunk = np.zeros((n, n_cases))
+    v_trunk[-1] = d_prime[-1]
+    for k in range(n - 2, -1, -1):
+        v_trunk[k] = d_prime[k] - c_prime[k] * v_trunk[k + 1]
+    v_tap = v_trunk[at]  # (n_elements, n_cases)
+    current_a = (v_tap - sources_v) * branch_siemens[:, None]  # into each element from the trunk
+    return np.asarray(v_tap - current_a * stub_ohm[:, None], dtype=float)
 
 
 def receiver_elements(bus: Bus) -> list[DcElement]:

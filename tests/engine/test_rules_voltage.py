@@ -1,5 +1,6 @@
 """Rule "signal.dc_level": DC differential level at each receiver through the cable's loop resistance."""
 
+import numpy as np
 import pytest
 
 from engine.bus import build_bus
@@ -7,9 +8,11 @@ from engine.findings import Verdict
 from engine.plan import load_plan
 from engine.rules.voltage import (
     RECEIVER_THRESHOLD_V,
+    DcElement,
     check_receiver_voltage,
     driven_levels,
     loop_resistance_ohm,
+    solve_dc_v,
 )
 
 TINY_UL = 1e-6  # a receiver that draws nothing, to compare with load-free hand formulas
@@ -114,3 +117,43 @@ def test_bias_network_weakens_one_driven_state_by_superposition():
     assert levels.bias_share_v[0] == pytest.approx(bias_share_v, rel=1e-6)
     assert levels.driver_share_v[0] == pytest.approx(driver_share_v, rel=1e-6)
     assert levels.weak_state_v[0] == pytest.approx(driver_share_v - bias_share_v, rel=1e-6)
+
+
+def test_chain_solve_agrees_with_a_dense_nodal_solve_with_stub_nodes():
+    # Source: an independent second route: Kirchhoff's current law written as a full nodal matrix with every
+    # stub end as its own node, solved by numpy's LU solve.
+    elements = [
+        DcElement("drv", 30.0, 2.0, 40.0, 4.0),
+        DcElement("a", 0.0, 0.0, 120.0),
+        DcElement("b", 55.0, 7.5, 12_000.0),
+        DcElement("c", 55.0, 1.0, 3_000.0),
+        DcElement("bias", 80.0, 0.0, 1_000.0, 5.0),
+        DcElement("d", 100.0, 3.0, 120.0),
+    ]
+    r_per_m = 0.0842
+    got = solve_dc_v(elements, 100.0, r_per_m, np.array([[e.source_v] for e in elements]))[:, 0]
+
+    trunk = sorted({0.0, 100.0, *(e.position_m for e in elements)})
+    stubbed = [j for j, e in enumerate(elements) if e.stub_m > 0]
+    node_of = [
+        len(trunk) + stubbed.index(j) if j in stubbed else trunk.index(e.position_m) for j, e in enumerate(elements)
+    ]
+    n = len(trunk) + len(stubbed)
+    g = np.zeros((n, n))
+    i_in = np.zeros(n)
+
+    def link(a, b, r):
+        g[a, a] += 1 / r
+        g[b, b] += 1 / r
+        g[a, b] -= 1 / r
+        g[b, a] -= 1 / r
+
+    for k in range(len(trunk) - 1):
+        link(k, k + 1, 2 * r_per_m * (trunk[k + 1] - trunk[k]))
+    for j, e in enumerate(elements):
+        if e.stub_m > 0:
+            link(trunk.index(e.position_m), node_of[j], 2 * r_per_m * e.stub_m)
+        g[node_of[j], node_of[j]] += 1 / e.resistance_ohm
+        i_in[node_of[j]] += e.source_v / e.resistance_ohm
+    want = np.linalg.solve(g, i_in)[node_of]
+    np.testing.assert_allclose(got, want, rtol=1e-9)
