@@ -1,11 +1,19 @@
 """Rule "power.resistor": terminator and bias resistor power, and the rating to buy."""
 
+import math
+
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from engine.bus import build_bus
 from engine.findings import Verdict
 from engine.plan import load_plan
+from engine.rules.bias import check_failsafe_bias, recommended_bias_ohm
+from engine.rules.common_mode import check_common_mode
+from engine.rules.length_rate import check_length_vs_rate, max_bit_rate_bps
 from engine.rules.power import check_resistor_power, rating_to_buy_w, resistor_powers
+from engine.rules.voltage import check_receiver_voltage
 
 
 def _bus(open_circuit_v=4.0, terminations=None, **changes):
@@ -67,3 +75,69 @@ def test_verdicts_120_holds_54_tight_10_breaks():
     assert tight.verdict is Verdict.TIGHT and "2.67 W" in tight.fix
     broken = verdict(10.0)
     assert broken.verdict is Verdict.BREAKS and broken.value == pytest.approx(1.6) and broken.limit == 1.0
+
+
+_positions = st.floats(min_value=0.0, max_value=1.0)
+
+
+@st.composite
+def _plans(draw):
+    length_m = draw(st.floats(min_value=0.5, max_value=4000.0))
+    n_nodes = draw(st.integers(min_value=1, max_value=6))
+    nodes = [
+        {
+            "name": f"n{i}",
+            "position_m": draw(_positions) * length_m,
+            "stub_length_m": draw(st.floats(min_value=0.0, max_value=100.0)),
+            "unit_loads": draw(st.sampled_from([0.125, 0.25, 1.0, 32.0])),
+            "ground_offset_v": draw(st.floats(min_value=-10_000.0, max_value=10_000.0)),
+            "role": draw(st.sampled_from(["receiver", "transceiver"])),
+        }
+        for i in range(n_nodes)
+    ]
+    terms = [
+        {"position_m": draw(_positions) * length_m, "resistance_ohm": draw(st.floats(min_value=1.0, max_value=1e6))}
+        for _ in range(draw(st.integers(min_value=0, max_value=3)))
+    ]
+    doc = {
+        "bit_rate_bps": draw(st.floats(min_value=50.0, max_value=100e6)),
+        "trunk_length_m": length_m,
+        "cable": draw(
+            st.sampled_from(
+                [
+                    {"class_key": "cat5e-100"},
+                    {"class_key": None, "z0_ohm": 120.0, "velocity_factor": 0.7, "resistance_ohm_per_m": 0.0},
+                ]
+            )
+        ),
+        "driver": {"position_m": draw(_positions) * length_m, "source_ohm": draw(st.floats(0.0, 1000.0))},
+        "nodes": nodes,
+        "terminations": terms,
+    }
+    if draw(st.booleans()):
+        doc["bias"] = {
+            "position_m": draw(_positions) * length_m,
+            "pull_up_ohm": draw(st.floats(min_value=10.0, max_value=10e6)),
+            "pull_down_ohm": draw(st.floats(min_value=10.0, max_value=10e6)),
+        }
+    return doc
+
+
+@settings(max_examples=60, deadline=None)
+@given(doc=_plans())
+def test_rules_7_to_11_never_raise_and_give_finite_numbers(doc):
+    # Source: house rule: a rule check returns findings, never raises; numbers are finite or None.
+    bus = build_bus(load_plan(doc))
+    findings = [
+        *check_receiver_voltage(bus),
+        *check_failsafe_bias(bus),
+        *check_common_mode(bus),
+        *check_length_vs_rate(bus),
+        *check_resistor_power(bus),
+    ]
+    assert len([f for f in findings if f.rule_id == "signal.dc_level"]) == len(doc["nodes"])
+    for f in findings:
+        assert f.value is None or math.isfinite(f.value), f
+        assert f.limit is None or math.isfinite(f.limit), f
+        assert f.verdict is Verdict.HOLDS or f.fix, f
+    assert math.isfinite(max_bit_rate_bps(bus)) and math.isfinite(recommended_bias_ohm(bus))
