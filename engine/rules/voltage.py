@@ -72,7 +72,7 @@ def solve_dc_v(
     np.add.at(shunt_siemens, at, branch_siemens)
     injected_a = np.zeros((n, n_cases))
     np.add.at(injected_a, at, branch_siemens[:, None] * sources_v)
-    section_ohm = np.maximum(loop_resistance_ohm(np.diff(positions), resistance_ohm_per_m), _MIN_BRANCH_OHM)
+    section_ohm = np.maximum(2.0 * resistance_ohm_per_m * np.diff(positions), _MIN_BRANCH_OHM)  # loop, both wires
     link_siemens = 1.0 / section_ohm  # (n - 1,)
     # Tiny leak to the return conductor keeps a bus with every load open solvable.
     diag = shunt_siemens + 1e-15
