@@ -179,13 +179,20 @@ def report_text(report: PlanReport, path: str = "") -> str:
                 out += _finding_line(f, "    ")
     out += ["", "By node"]
     names = [plan.driver.name] + [n.name for n in plan.nodes]
+    holding = []
     for name in names:
         mine = [f for f in report.findings if f.node == name]
         if not mine:
             continue
         verdict = worst([f.verdict for f in mine])
+        if verdict is Verdict.HOLDS:
+            holding.append(name)
+            continue
         notes = ", ".join(f"{f.rule_id} {f.verdict.value}" for f in mine if f.verdict is not Verdict.HOLDS)
-        out.append(f"  {name}: {verdict.value}" + (f" ({notes})" if notes else ""))
+        out.append(f"  {name}: {verdict.value} ({notes})")
+    if holding:
+        shown = ", ".join(holding) if len(holding) <= 12 else ", ".join(holding[:10]) + f", ... {holding[-1]}"
+        out.append(f"  {len(holding)} node(s) hold every rule: {shown}")
     out += ["", "Summary"]
     if s.terminators:
         terms = "; ".join(

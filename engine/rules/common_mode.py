@@ -122,5 +122,5 @@ def _fix(verdict: Verdict, name: str, offset_v: float, limit_v: float) -> str:
     return (
         f"Isolate '{name}' galvanically (isolated transceiver and isolated supply; rated isolation in kV) so its "
         f"{abs(offset_v):g} V ground offset no longer reaches the receiver, which allows only {abs(limit_v):g} V; "
-        f"or use extended common-mode transceivers. Do not rely on a bare ground wire. " + CAUTION
+        f"or use extended common-mode transceivers. " + CAUTION
     )
