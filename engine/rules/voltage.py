@@ -11,6 +11,9 @@ When the driver drives, the bias network pushes the receivers toward its idle le
 driven states it works against the driver. By superposition the weaker state at each receiver has
 |V_AB| = V_driver - |V_bias| (the driver's share with the bias supply off, minus the bias share with the
 driver's source off). That weaker state is what the rule checks against the receiver threshold.
+
+On RS-485 every transceiver node may talk too; each receiver's finding is its weakest level over all talkers
+(a transceiver node is assumed to drive like the primary driver's class; see talker_levels).
 """
 
 import math
@@ -55,46 +58,70 @@ def solve_dc_v(
 
     sources_v  # (n_elements, n_cases): the Thevenin voltage of every element in each case
     returns    # (n_elements, n_cases) in volts
+    """
+    resistance_ohm = np.broadcast_to([e.resistance_ohm for e in elements], (sources_v.shape[1], len(elements)))
+    v = solve_dc_cases_v(elements, resistance_ohm, sources_v.T, trunk_length_m, resistance_ohm_per_m)
+    return np.ascontiguousarray(v.T)
+
+
+def solve_dc_cases_v(
+    elements: list[DcElement],
+    resistance_ohm: np.ndarray,
+    sources_v: np.ndarray,
+    trunk_length_m: float,
+    resistance_ohm_per_m: float,
+) -> np.ndarray:
+    """Voltage at each element's own terminal in several cases that may differ in element resistances too.
+
+    resistance_ohm, sources_v  # (n_cases, n_elements): each element's Thevenin resistance and voltage per case
+    returns                    # (n_cases, n_elements) in volts
 
     Nodal analysis on the trunk points (every element position plus both trunk ends), joined by sections of
     loop resistance 2 R' L. A stub is folded into its element (stub loop resistance in series with the
     element's Thevenin resistance), which leaves a chain: a tridiagonal system, solved by the Thomas
-    algorithm in O(n). The stub end's voltage then follows from the element's current.
+    algorithm in O(n), batched over the cases. The stub end's voltage then follows from the element's current.
     """
-    n_cases = sources_v.shape[1]
+    n_cases = resistance_ohm.shape[0]
     positions = np.unique(np.array([0.0, trunk_length_m] + [e.position_m for e in elements]))
     n = positions.size
     at = np.searchsorted(positions, [e.position_m for e in elements])
     stub_ohm = np.array([loop_resistance_ohm(e.stub_m, resistance_ohm_per_m) for e in elements])
-    branch_ohm = np.array([max(e.resistance_ohm, _MIN_BRANCH_OHM) for e in elements]) + stub_ohm
-    branch_siemens = np.where(np.isinf(branch_ohm), 0.0, 1.0 / branch_ohm)
-    shunt_siemens = np.zeros(n)
-    np.add.at(shunt_siemens, at, branch_siemens)
-    injected_a = np.zeros((n, n_cases))
-    np.add.at(injected_a, at, branch_siemens[:, None] * sources_v)
-    section_ohm = np.maximum(2.0 * resistance_ohm_per_m * np.diff(positions), _MIN_BRANCH_OHM)  # loop, both wires
-    link_siemens = 1.0 / section_ohm  # (n - 1,)
-    # Tiny leak to the return conductor keeps a bus with every load open solvable.
-    diag = shunt_siemens + 1e-15
-    diag[:-1] += link_siemens
-    diag[1:] += link_siemens
-    # Thomas algorithm: forward sweep, back substitution; off-diagonals are -link_siemens.
-    c_prime = np.zeros(n)
-    d_prime = np.zeros((n, n_cases))
-    c_prime[0] = -link_siemens[0] / diag[0] if n > 1 else 0.0
-    d_prime[0] = injected_a[0] / diag[0]
+    branch_ohm = np.maximum(resistance_ohm, _MIN_BRANCH_OHM) + stub_ohm
+    branch_siemens = np.where(np.isinf(branch_ohm), 0.0, 1.0 / branch_ohm)  # (n_cases, n_elements)
+    diag = np.zeros((n_cases, n))
+    rhs = np.zeros((n_cases, n))
+    for j in range(len(elements)):
+        diag[:, at[j]] += branch_siemens[:, j]
+        rhs[:, at[j]] += branch_siemens[:, j] * sources_v[:, j]
+    link_siemens = 1.0 / np.maximum(2.0 * resistance_ohm_per_m * np.diff(positions), _MIN_BRANCH_OHM)  # (n - 1,)
+    diag += 1e-15  # a tiny leak to the return conductor keeps a bus with every load open solvable
+    diag[:, :-1] += link_siemens
+    diag[:, 1:] += link_siemens
+    v_trunk = _thomas_v(link_siemens, diag, rhs)
+    v_tap = v_trunk[:, at]  # (n_cases, n_elements)
+    current_a = (v_tap - sources_v) * branch_siemens  # into each element from the trunk
+    return np.asarray(v_tap - current_a * stub_ohm, dtype=float)
+
+
+def _thomas_v(link_siemens: np.ndarray, diag: np.ndarray, rhs: np.ndarray) -> np.ndarray:
+    """Solve the chain's tridiagonal system (off-diagonals -link_siemens) for every case: forward sweep,
+    back substitution. diag, rhs  # (n_cases, n)"""
+    n = diag.shape[1]
+    c_prime = np.zeros_like(diag)
+    d_prime = np.zeros_like(rhs)
+    if n > 1:
+        c_prime[:, 0] = -link_siemens[0] / diag[:, 0]
+    d_prime[:, 0] = rhs[:, 0] / diag[:, 0]
     for k in range(1, n):
-        denom = diag[k] + link_siemens[k - 1] * c_prime[k - 1]
+        denom = diag[:, k] + link_siemens[k - 1] * c_prime[:, k - 1]
         if k < n - 1:
-            c_prime[k] = -link_siemens[k] / denom
-        d_prime[k] = (injected_a[k] + link_siemens[k - 1] * d_prime[k - 1]) / denom
-    v_trunk = np.zeros((n, n_cases))
-    v_trunk[-1] = d_prime[-1]
+            c_prime[:, k] = -link_siemens[k] / denom
+        d_prime[:, k] = (rhs[:, k] + link_siemens[k - 1] * d_prime[:, k - 1]) / denom
+    v = np.zeros_like(rhs)
+    v[:, -1] = d_prime[:, -1]
     for k in range(n - 2, -1, -1):
-        v_trunk[k] = d_prime[k] - c_prime[k] * v_trunk[k + 1]
-    v_tap = v_trunk[at]  # (n_elements, n_cases)
-    current_a = (v_tap - sources_v) * branch_siemens[:, None]  # into each element from the trunk
-    return np.asarray(v_tap - current_a * stub_ohm[:, None], dtype=float)
+        v[:, k] = d_prime[:, k] - c_prime[:, k] * v[:, k + 1]
+    return v
 
 
 def receiver_elements(bus: Bus) -> list[DcElement]:
@@ -132,25 +159,69 @@ class DrivenLevels:
 
 def driven_levels(bus: Bus) -> DrivenLevels:
     """DC differential voltage at every receiver while the primary driver drives (see module docstring)."""
+    levels = talker_levels(bus)
+    return DrivenLevels(levels.receiver_names, levels.driver_share_v[0], levels.bias_share_v[0])
+
+
+@dataclass(frozen=True, slots=True)
+class TalkerLevels:
+    talker_names: tuple[str, ...]  # the primary driver, then (RS-485) every transceiver node
+    receiver_names: tuple[str, ...]  # every plan node
+    driver_share_v: np.ndarray  # (n_talkers, n_receivers); NaN where a node would hear itself
+    bias_share_v: np.ndarray  # (n_talkers, n_receivers)
+
+    @property
+    def weak_state_v(self) -> np.ndarray:
+        """(n_talkers, n_receivers) |V_AB| in the driven state the bias works against; NaN for a node itself."""
+        return np.asarray(self.driver_share_v - np.abs(self.bias_share_v), dtype=float)
+
+
+def talker_levels(bus: Bus) -> TalkerLevels:
+    """DC levels at every node for each node that may drive.
+
+    On RS-485 a transceiver node may drive; it is assumed to drive like the primary driver's class (same
+    open-circuit voltage and source resistance) from the end of its stub, while the primary driver listens
+    with its own receiver (driver.unit_loads). Two cases per talker: its source on (driver share) and the
+    bias supply on (bias share).
+    """
     d = bus.plan.driver
-    driver = DcElement(d.name, d.position_m, d.stub_length_m, bus.driver.source_ohm, bus.driver.open_circuit_v)
     receivers = receiver_elements(bus)
     loads = fixed_load_elements(bus)
-    elements = [driver, *receivers, *loads]
-    sources_v = np.zeros((len(elements), 2))
-    sources_v[0, 0] = driver.source_v
-    if bus.plan.bias is not None:
-        sources_v[-1, 1] = loads[-1].source_v
-    v = solve_dc_v(elements, bus.plan.trunk_length_m, bus.cable.resistance_ohm_per_m, sources_v)
+    elements = [DcElement(d.name, d.position_m, d.stub_length_m, bus.driver.source_ohm), *receivers, *loads]
+    talkers = [0] + [1 + i for i, n in enumerate(bus.plan.nodes) if n.role == "transceiver"]
+    if bus.plan.standard != "rs485":
+        talkers = [0]
+    base_ohm = np.array([e.resistance_ohm for e in elements])
+    listen_ohm = input_resistance_ohm(bus.driver.unit_loads)
+    n_cases = 2 * len(talkers)
+    resistance_ohm = np.tile(base_ohm, (n_cases, 1))
+    sources_v = np.zeros((n_cases, len(elements)))
+    for t, j in enumerate(talkers):
+        rows = slice(2 * t, 2 * t + 2)
+        if j != 0:
+            resistance_ohm[rows, 0] = listen_ohm
+            resistance_ohm[rows, j] = bus.driver.source_ohm
+        sources_v[2 * t, j] = bus.driver.open_circuit_v
+        if bus.plan.bias is not None:
+            sources_v[2 * t + 1, -1] = loads[-1].source_v
+    v = solve_dc_cases_v(elements, resistance_ohm, sources_v, bus.plan.trunk_length_m, bus.cable.resistance_ohm_per_m)
     rx = slice(1, 1 + len(receivers))
-    return DrivenLevels(tuple(r.name for r in receivers), v[rx, 0], v[rx, 1])
+    driver_share = v[0::2, rx].copy()
+    bias_share = v[1::2, rx].copy()
+    for t, j in enumerate(talkers):
+        if j != 0:
+            driver_share[t, j - 1] = np.nan
+            bias_share[t, j - 1] = np.nan
+    return TalkerLevels(
+        tuple(elements[j].name for j in talkers), tuple(r.name for r in receivers), driver_share, bias_share
+    )
 
 
 def check_receiver_voltage(bus: Bus) -> list[Finding]:
     """One finding per receiver: DC |V_AB| in the weaker driven state vs the 200 mV threshold plus margin."""
     try:
-        levels = driven_levels(bus)
-    except (np.linalg.LinAlgError, ValueError) as exc:
+        levels = talker_levels(bus)
+    except (FloatingPointError, ValueError) as exc:
         return [
             Finding(
                 RULE_ID,
@@ -168,16 +239,22 @@ def check_receiver_voltage(bus: Bus) -> list[Finding]:
         ]
     v_oc = bus.driver.open_circuit_v
     tight_below_v = RECEIVER_THRESHOLD_V + NOISE_MARGIN_V
+    weak_v = np.where(np.isnan(levels.weak_state_v), np.inf, levels.weak_state_v)  # a node never hears itself
+    worst_talker = np.argmin(weak_v, axis=0)  # (n_receivers,)
+    several = len(levels.talker_names) > 1
     findings = []
-    for name, v_rx, v_drv, v_bias in zip(
-        levels.receiver_names, levels.weak_state_v, levels.driver_share_v, levels.bias_share_v, strict=True
-    ):
+    for i, name in enumerate(levels.receiver_names):
+        t = int(worst_talker[i])
+        v_rx = float(weak_v[t, i])
+        v_drv = float(levels.driver_share_v[t, i])
+        v_bias = float(levels.bias_share_v[t, i])
         verdict = (
             Verdict.BREAKS if v_rx < RECEIVER_THRESHOLD_V else Verdict.TIGHT if v_rx < tight_below_v else Verdict.HOLDS
         )
         ratio = v_drv / v_oc
         detail = (
-            f"Driver share {v_drv:.3f} V ({ratio:.3f} of its {v_oc:g} V open-circuit, "
+            (f"Weakest when '{levels.talker_names[t]}' talks: " if several else "")
+            + f"driver share {v_drv:.3f} V ({ratio:.3f} of its {v_oc:g} V open-circuit, "
             f"{20 * math.log10(max(ratio, 1e-12)):.1f} dB)"
         )
         if bus.plan.bias is not None:
@@ -187,14 +264,15 @@ def check_receiver_voltage(bus: Bus) -> list[Finding]:
                 RULE_ID,
                 f"DC level at '{name}'",
                 verdict,
-                float(v_rx),
+                v_rx,
                 RECEIVER_THRESHOLD_V,
                 "V",
                 name,
-                f"|V_AB| in the weaker driven state through the cable's loop resistance >= 200 mV; "
-                f"below {tight_below_v:.1f} V (threshold + {NOISE_MARGIN_V * 1e3:.0f} mV noise margin) is tight",
+                "|V_AB| in the weaker driven state through the cable's loop resistance >= 200 mV, for every node "
+                f"that may talk; below {tight_below_v:.1f} V (threshold + {NOISE_MARGIN_V * 1e3:.0f} mV noise "
+                "margin) is tight",
                 SOURCE,
-                fix="" if verdict is Verdict.HOLDS else _fix(bus, name, float(v_rx), float(v_bias)),
+                fix="" if verdict is Verdict.HOLDS else _fix(bus, name, v_rx, v_bias),
                 detail=detail + ".",
             )
         )

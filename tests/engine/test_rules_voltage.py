@@ -157,3 +157,29 @@ def test_chain_solve_agrees_with_a_dense_nodal_solve_with_stub_nodes():
         i_in[node_of[j]] += e.source_v / e.resistance_ohm
     want = np.linalg.solve(g, i_in)[node_of]
     np.testing.assert_allclose(got, want, rtol=1e-9)
+
+
+def test_a_far_transceiver_talking_sets_the_weakest_level():
+    # Source: closed-form ladder: the west transceiver (1 V, 0 Ohm) drives 500 m of 24 AWG (84.2 Ohm loop,
+    # ASTM B258) to the listening primary driver (12 kOhm, one unit load), then 500 m more into 120 Ohm.
+    r_half = 2 * 0.0842 * 500.0
+    z_mid = 1.0 / (1 / 12_000.0 + 1 / (r_half + 120.0))
+    expected_v = z_mid / (r_half + z_mid) * 120.0 / (r_half + 120.0)
+    bus = _bus(
+        trunk_length_m=1000.0,
+        driver={
+            "transceiver": None,
+            "rise_time_s": 1e-6,
+            "open_circuit_v": 1.0,
+            "source_ohm": 0.0,
+            "position_m": 500.0,
+        },
+        nodes=[
+            {"name": "west", "position_m": 0.0, "unit_loads": TINY_UL, "role": "transceiver"},
+            {"name": "east", "position_m": 1000.0, "unit_loads": TINY_UL},
+        ],
+        terminations=[{"position_m": 1000.0, "resistance_ohm": 120.0}],
+    )
+    east = next(f for f in check_receiver_voltage(bus) if f.node == "east")
+    assert east.value == pytest.approx(expected_v, rel=1e-6)
+    assert "'west' talks" in east.detail
