@@ -60,11 +60,13 @@ def check_common_mode(bus: Bus) -> list[Finding]:
     v_oc = bus.driver.common_mode_v
     lo_allowed, hi_allowed = allowed_offset_v(bus.plan.standard, v_oc)
     v_min, v_max = RANGES_V[bus.plan.standard]
-    drivers = _drivers(bus)
+    by_ground = sorted(_drivers(bus), key=lambda item: item[1])
+    extremes = by_ground[:2] + by_ground[-2:]
     findings = []
     for node in bus.plan.nodes:
         # Offset of this node's ground above each possible driver's ground; find the one closest to a limit.
-        rel = [(node.ground_offset_v - g, name) for name, g in drivers if name != node.name]
+        # The extremes decide: only the two lowest and two highest driver grounds can be the worst.
+        rel = [(node.ground_offset_v - g, name) for name, g in extremes if name != node.name]
         if not rel:
             rel = [(0.0, bus.plan.driver.name)]
 

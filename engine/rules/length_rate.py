@@ -19,6 +19,8 @@ driver; on RS-485 also transceiver nodes) along its stub, the trunk and the rece
 
 import math
 
+import numpy as np
+
 from engine.bus import Bus
 from engine.findings import Finding, Verdict
 
@@ -65,16 +67,13 @@ def loss_db(bus: Bus, frequency_hz: float, length_m: float) -> float:
 def signal_path_m(bus: Bus) -> float:
     """Longest cable path from a node that may drive to another node that listens (stubs included)."""
     d = bus.plan.driver
-    points = [(d.name, d.position_m, d.stub_length_m, True)]
-    points += [(n.name, n.position_m, n.stub_length_m, n.role == "transceiver") for n in bus.plan.nodes]
-    longest = 0.0
-    for name_a, x_a, stub_a, drives in points:
-        if not drives:
-            continue
-        for name_b, x_b, stub_b, _ in points:
-            if name_b != name_a:
-                longest = max(longest, abs(x_a - x_b) + stub_a + stub_b)
-    return longest
+    nodes = bus.plan.nodes
+    x_m = np.array([d.position_m, *(n.position_m for n in nodes)])
+    stub_m = np.array([d.stub_length_m, *(n.stub_length_m for n in nodes)])
+    talks = np.array([True, *(n.role == "transceiver" for n in nodes)])
+    path_m = np.abs(x_m[talks, None] - x_m[None, :]) + stub_m[talks, None] + stub_m[None, :]  # (n_talkers, n_points)
+    path_m[np.arange(path_m.shape[0]), np.flatnonzero(talks)] = 0.0  # not to itself
+    return float(path_m.max())
 
 
 def loss_limited_rate_bps(bus: Bus, length_m: float, limit_db: float = LOSS_LIMIT_DB) -> float:

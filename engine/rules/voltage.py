@@ -88,16 +88,16 @@ def solve_dc_cases_v(
     stub_ohm = np.array([loop_resistance_ohm(e.stub_m, resistance_ohm_per_m) for e in elements])
     branch_ohm = np.maximum(resistance_ohm, _MIN_BRANCH_OHM) + stub_ohm
     branch_siemens = np.where(np.isinf(branch_ohm), 0.0, 1.0 / branch_ohm)  # (n_cases, n_elements)
-    diag = np.zeros((n_cases, n))
-    rhs = np.zeros((n_cases, n))
-    for j in range(len(elements)):
-        diag[:, at[j]] += branch_siemens[:, j]
-        rhs[:, at[j]] += branch_siemens[:, j] * sources_v[:, j]
+    # Internally trunk points come first, (n, n_cases), so each sweep step reads one contiguous row.
+    diag = np.zeros((n, n_cases))
+    rhs = np.zeros((n, n_cases))
+    np.add.at(diag, at, branch_siemens.T)
+    np.add.at(rhs, at, (branch_siemens * sources_v).T)
     link_siemens = 1.0 / np.maximum(2.0 * resistance_ohm_per_m * np.diff(positions), _MIN_BRANCH_OHM)  # (n - 1,)
     diag += 1e-15  # a tiny leak to the return conductor keeps a bus with every load open solvable
-    diag[:, :-1] += link_siemens
-    diag[:, 1:] += link_siemens
-    v_trunk = _thomas_v(link_siemens, diag, rhs)
+    diag[:-1] += link_siemens[:, None]
+    diag[1:] += link_siemens[:, None]
+    v_trunk = _thomas_v(link_siemens, diag, rhs).T  # (n_cases, n)
     v_tap = v_trunk[:, at]  # (n_cases, n_elements)
     current_a = (v_tap - sources_v) * branch_siemens  # into each element from the trunk
     return np.asarray(v_tap - current_a * stub_ohm, dtype=float)
@@ -105,22 +105,22 @@ def solve_dc_cases_v(
 
 def _thomas_v(link_siemens: np.ndarray, diag: np.ndarray, rhs: np.ndarray) -> np.ndarray:
     """Solve the chain's tridiagonal system (off-diagonals -link_siemens) for every case: forward sweep,
-    back substitution. diag, rhs  # (n_cases, n)"""
-    n = diag.shape[1]
-    c_prime = np.zeros_like(diag)
-    d_prime = np.zeros_like(rhs)
+    back substitution. diag, rhs  # (n, n_cases)"""
+    n = diag.shape[0]
+    c_prime = np.zeros(diag.shape)
+    d_prime = np.zeros(rhs.shape)
     if n > 1:
-        c_prime[:, 0] = -link_siemens[0] / diag[:, 0]
-    d_prime[:, 0] = rhs[:, 0] / diag[:, 0]
+        c_prime[0] = -link_siemens[0] / diag[0]
+    d_prime[0] = rhs[0] / diag[0]
     for k in range(1, n):
-        denom = diag[:, k] + link_siemens[k - 1] * c_prime[:, k - 1]
+        denom = diag[k] + link_siemens[k - 1] * c_prime[k - 1]
         if k < n - 1:
-            c_prime[:, k] = -link_siemens[k] / denom
-        d_prime[:, k] = (rhs[:, k] + link_siemens[k - 1] * d_prime[:, k - 1]) / denom
-    v = np.zeros_like(rhs)
-    v[:, -1] = d_prime[:, -1]
+            c_prime[k] = -link_siemens[k] / denom
+        d_prime[k] = (rhs[k] + link_siemens[k - 1] * d_prime[k - 1]) / denom
+    v = np.zeros(rhs.shape)
+    v[-1] = d_prime[-1]
     for k in range(n - 2, -1, -1):
-        v[:, k] = d_prime[:, k] - c_prime[:, k] * v[:, k + 1]
+        v[k] = d_prime[k] - c_prime[k] * v[k + 1]
     return v
 
 
