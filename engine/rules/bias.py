@@ -147,16 +147,6 @@ def bias_min_ohm(bus: Bus) -> float:
     return max(r_ul, r_load)
 
 
-def e24_at_or_above(resistance_ohm: float) -> float:
-    """Smallest E24 resistor value not below resistance_ohm (IEC 60063)."""
-    below = e24_at_or_below(resistance_ohm)
-    if below >= resistance_ohm * (1 - 1e-9):
-        return below
-    decade = 10.0 ** math.floor(math.log10(resistance_ohm))
-    above = [m * decade for m in E24 if m * decade > resistance_ohm] or [10.0 * decade]
-    return round(above[0], 6)
-
-
 def bias_choice(bus: Bus) -> BiasChoice:
     """The bias network to fit: the largest E24 pull-up = pull-down keeping every listener >= 250 mV idle,
     within the unit-load and driver-load room (bias_min_ohm).
@@ -224,25 +214,31 @@ def bias_advice_text(bus: Bus) -> str:
             f"{choice.idle_min_v * 1e3:.0f} mV allowing for the cable{room} (lumped formula: R_B,max = "
             f"{lumped_ohm:.0f} Ohm for 200 mV). Or use receivers with failsafe thresholds on every node."
         )
-    rc_plan = bus.plan.model_copy(
-        update={
-            "terminations": [
-                t.model_copy(update={"kind": "rc", "capacitance_f": t.capacitance_f or 1e-9})
-                for t in bus.plan.terminations
-            ]
-        }
-    )
-    rc_choice = bias_choice(Bus(plan=rc_plan, cable=bus.cable, driver=bus.driver)) if bus.plan.terminations else None
-    rc_text = (
-        f" (then {rc_choice.resistance_ohm:g} Ohm each from {supply_v:g} V will do)"
-        if rc_choice is not None and rc_choice.fits
-        else ""
+    parallel = [t for t in bus.plan.terminations if t.kind == "parallel"]
+    rc_text = ""
+    if parallel:
+        rc_plan = bus.plan.model_copy(
+            update={
+                "terminations": [
+                    t.model_copy(update={"kind": "rc", "capacitance_f": t.capacitance_f or 1e-9})
+                    for t in bus.plan.terminations
+                ]
+            }
+        )
+        rc_choice = bias_choice(Bus(plan=rc_plan, cable=bus.cable, driver=bus.driver))
+        if rc_choice.fits:
+            rc_text = f" (then {rc_choice.resistance_ohm:g} Ohm each from {supply_v:g} V will do)"
+    room = (
+        "the nodes already take the whole 32 UL budget"
+        if math.isinf(choice.min_ohm)
+        else f"the 32 UL budget and the 54 Ohm driver load need at least {choice.min_ohm:.0f} Ohm"
     )
     return (
-        f"no pull-up / pull-down pair fits this bus with parallel terminators: 200 mV at every receiver needs "
-        f"at most {choice.max_ohm:.0f} Ohm each, while the 32 UL budget and the 54 Ohm driver load need at least "
-        f"{choice.min_ohm:.0f} Ohm. Use receivers with failsafe thresholds on every node, or RC terminators at "
-        f"the cable ends so the bias sees only the receivers{rc_text}, or split the bus with a repeater."
+        f"no pull-up / pull-down pair fits this bus{' with parallel terminators' if parallel else ''}: 200 mV at "
+        f"every receiver needs at most {choice.max_ohm:.0f} Ohm each, while {room}. Use receivers with failsafe "
+        "thresholds on every node"
+        + (f", or RC terminators at the cable ends so the bias sees only the receivers{rc_text}" if parallel else "")
+        + ", or split the bus with a repeater."
     )
 
 
