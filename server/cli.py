@@ -82,6 +82,7 @@ def read_plan_document(path: str, stdin: TextIO | None = None) -> Any:
                 )
             ]
         )
+    shown = "standard input" if path == "-" else path
     try:
         return json.loads(text)
     except json.JSONDecodeError as exc:
@@ -92,13 +93,13 @@ def read_plan_document(path: str, stdin: TextIO | None = None) -> Any:
                     "Plan file",
                     f"line {exc.lineno}, column {exc.colno}",
                     {"type": "JSON object"},
-                    f"{path} is not valid JSON: {exc.msg} at line {exc.lineno}, column {exc.colno}.",
+                    f"{shown} is not valid JSON: {exc.msg} at line {exc.lineno}, column {exc.colno}.",
                 )
             ]
         ) from None
     except RecursionError:
         raise PlanFileError(
-            [Problem("file", "Plan file", path, {"type": "JSON object"}, f"{path} is nested too deeply.")]
+            [Problem("file", "Plan file", path, {"type": "JSON object"}, f"{shown} is nested too deeply.")]
         ) from None
 
 
@@ -114,12 +115,31 @@ def quantity_text(value: float | None, unit: str) -> str:
     return f"{value:.3g} {unit}".strip()
 
 
+def allowed_text(allowed: dict[str, Any]) -> str:
+    """The allowed range or choices of a problem, for people: '50 .. 1e+08 bit/s', 'one of a, b'."""
+    unit = str(allowed.get("unit", ""))
+    parts = []
+    if "min" in allowed or "max" in allowed:
+        lo, hi = (_num_text(allowed.get(k)) for k in ("min", "max"))
+        parts.append(f"{lo or '-inf'} .. {hi or 'inf'} {unit}".strip())
+    if "choices" in allowed:
+        parts.append("one of " + ", ".join(str(c) for c in allowed["choices"]))
+    parts += [f"{k}: {v}" for k, v in allowed.items() if k not in {"min", "max", "unit", "choices", "min_exclusive"}]
+    return "; ".join(parts) or "see message"
+
+
+def _num_text(value: Any) -> str:
+    if value is None:
+        return ""
+    return f"{value:g}" if isinstance(value, float | int) and not isinstance(value, bool) else str(value)
+
+
 def problems_text(problems: Sequence[Problem]) -> str:
     lines = [f"The plan cannot be checked: {len(problems)} problem(s)."]
     for p in problems:
-        allowed = ", ".join(f"{k} {v}" for k, v in p.allowed.items())
         lines.append(f"  {p.field or '(plan)'}: {p.message}")
-        lines.append(f"      value: {json.dumps(p.value, ensure_ascii=False, default=str)}; allowed: {allowed}")
+        value = json.dumps(p.value, ensure_ascii=False, default=str)
+        lines.append(f"      value: {value}; allowed: {allowed_text(p.allowed)}")
     return "\n".join(lines)
 
 

@@ -126,3 +126,11 @@ def test_plan_from_standard_input(monkeypatch, capsys):
     monkeypatch.setattr(sys, "stdin", io.StringIO(json.dumps(GOOD)))
     assert main(["check", "-"]) == 0
     assert "bench pair" in capsys.readouterr().out
+
+
+def test_allowed_ranges_read_as_ranges():
+    from server.cli import allowed_text
+
+    assert allowed_text({"min": 50.0, "max": 100e6, "unit": "bit/s"}) == "50 .. 1e+08 bit/s"
+    assert allowed_text({"min": 0.0, "min_exclusive": True, "unit": "V"}) == "0 .. inf V"
+    assert allowed_text({"choices": ["rs485", "rs422"]}) == "one of rs485, rs422"
