@@ -118,8 +118,9 @@ def _fix(verdict: Verdict, name: str, offset_v: float, limit_v: float) -> str:
     if verdict is Verdict.TIGHT:
         return (
             f"Tie the grounds: run a signal-ground conductor beside the pair to '{name}' with a "
-            f"{SERIES_GROUND_OHM:g} Ohm resistor in series at each node, so the {abs(offset_v):g} V offset "
-            f"cannot grow past {abs(limit_v):g} V; or isolate the node galvanically. " + CAUTION
+            f"{SERIES_GROUND_OHM:g} Ohm resistor in series at each node, which pulls the grounds together and "
+            f"keeps the {abs(offset_v):g} V offset well inside the {abs(limit_v):g} V allowed; or isolate the node "
+            f"galvanically. " + CAUTION
         )
     return (
         f"Isolate '{name}' galvanically (isolated transceiver and isolated supply; rated isolation in kV) so its "
