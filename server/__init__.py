@@ -1,1 +1,1 @@
-"""Pairline web planner: FastAPI app, SQLite store, form handling and SVG drawings. Thin over the engine."""
+"""Pairline server side: the command line and the web planner (FastAPI app, SQLite store, forms, SVG drawings)."""
