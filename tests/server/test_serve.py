@@ -30,3 +30,24 @@ def test_a_bad_port_is_refused_with_the_allowed_range(monkeypatch):
         settings_from_env()
     with pytest.raises(ValueError, match="70000"):
         settings_from_env(port=70000)
+
+
+def test_pairline_serve_passes_its_options_to_uvicorn(monkeypatch, tmp_path, capsys):
+    import server.serve
+    from server.cli import main
+
+    calls = []
+    monkeypatch.setattr(server.serve.uvicorn, "run", lambda app, **kw: calls.append((app, kw)))
+    monkeypatch.delenv("PAIRLINE_HOST", raising=False)
+    assert main(["serve", "--port", "9123", "--db", str(tmp_path / "cli.db")]) == 0
+    ((app, options),) = calls
+    assert options["host"] == "127.0.0.1" and options["port"] == 9123
+    assert app.state.store.db_path == tmp_path / "cli.db"
+    assert "http://127.0.0.1:9123/" in capsys.readouterr().out
+
+
+def test_pairline_serve_refuses_a_bad_port(capsys):
+    from server.cli import main
+
+    assert main(["serve", "--port", "0"]) == 2
+    assert "1 to 65535" in capsys.readouterr().err
