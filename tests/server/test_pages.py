@@ -333,3 +333,20 @@ def test_a_saved_plan_the_engine_now_refuses_opens_in_the_editor_with_reasons(cl
     assert dom.find("input", name="trunk_length_m").attrs["aria-invalid"] == "true"
     assert dom.find("input", name="parent_id").attrs["value"] == plan_id
     assert_problem(client.get(f"/plans/{plan_id}.json"), field="trunk_length_m")
+
+
+def test_imperial_plans_take_feet_and_explain_limits_in_feet(client):
+    form = FIVE_NODE_FORM | {"shown_units": "imperial", "display_units": "imperial", "trunk_length_m": "1312.34"}
+    form |= {f"nodes.{i}.position_m": str(250 * (i + 1)) for i in range(5)}
+    form["terminations.1.position_m"] = "1312.34"
+    resp = client.post("/plans", data=form | {"action": "save"}, follow_redirects=False)
+    assert resp.status_code == 303
+    data = client.get(resp.headers["location"] + ".json").json()
+    # Source: 1 ft = 0.3048 m exactly: 1312.34 ft = 400.001 m; 250 ft = 76.2 m.
+    assert data["plan"]["trunk_length_m"] == pytest.approx(400.001, abs=1e-3)
+    assert data["plan"]["nodes"][0]["position_m"] == pytest.approx(76.2, rel=1e-12)
+    assert data["units"] == "imperial" and data["facts"]["trunk"].endswith("ft")
+    too_long = client.post("/plans", data=form | {"trunk_length_m": "20000", "action": "check"})
+    message = parse_html(too_long.text).by_id("e-trunk_length_m").text()
+    # Source: the plan's 4000 m limit is 13123.36 ft (4000 / 0.3048).
+    assert "20000 ft" in message and "13123 ft" in message
