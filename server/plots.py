@@ -16,6 +16,7 @@ MARGIN_L = 64.0
 MARGIN_R = 16.0
 MARGIN_T = 14.0
 MARGIN_B = 40.0
+MAX_BITS_SHOWN = 24  # a longer pattern is plotted over its first bits; margins still cover every bit
 MAX_POINTS = 1200  # a polyline longer than this is decimated to min/max pairs per pixel column
 RECEIVER_THRESHOLD_V = 0.2  # TIA-485-A / TIA-422-B receiver input sensitivity, ±200 mV
 
@@ -43,6 +44,8 @@ class WaveformPlot:
     y_ticks: tuple[AxisTick, ...]
     x_label: str
     receiver: str
+    bits_shown: int  # sampling instants inside the plotted window
+    bits_total: int
 
 
 def _time_scale(span_s: float) -> tuple[float, str]:
@@ -81,12 +84,21 @@ def decimate(x: np.ndarray, y: np.ndarray, columns: int) -> tuple[np.ndarray, np
 def waveform_plot(
     time_s: np.ndarray,  # (n_t,)
     v_diff_v: np.ndarray,  # (n_t,)
-    sample_times_s: Sequence[float],
+    sample_times_s: "Sequence[float] | np.ndarray",
     receiver: str,
+    bit_time_s: float | None = None,
+    max_bits: int = MAX_BITS_SHOWN,
 ) -> WaveformPlot:
-    """One receiver's differential voltage against time, the ±200 mV band and the sampling instants."""
-    t = np.asarray(time_s, dtype=float)
-    v = np.asarray(v_diff_v, dtype=float)
+    """One receiver's differential voltage against time, the ±200 mV band and the sampling instants.
+
+    With `bit_time_s` given, only the first `max_bits` bits are drawn, so each bit stays wide enough to read."""
+    t_all = np.asarray(time_s, dtype=float)
+    v_all = np.asarray(v_diff_v, dtype=float)
+    t_end = float(t_all[-1])
+    if bit_time_s is not None:
+        t_end = min(t_end, float(t_all[0]) + max_bits * bit_time_s)
+    keep = t_all <= t_end
+    t, v = t_all[keep], v_all[keep]
     x0, x1, y0, y1 = MARGIN_L, PLOT_W - MARGIN_R, MARGIN_T, PLOT_H - MARGIN_B
     t_lo, t_hi = float(t[0]), float(t[-1])
     v_max = max(0.5, float(np.max(np.abs(v))) * 1.1)
@@ -124,6 +136,8 @@ def waveform_plot(
         y_ticks=y_ticks,
         x_label=f"time ({unit})",
         receiver=receiver,
+        bits_shown=len(samples),
+        bits_total=len(sample_times_s),
     )
 
 

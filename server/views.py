@@ -312,7 +312,7 @@ def _waveforms_data(checked: CheckedPlan, chosen: str | None) -> dict[str, Any]:
                 "receiver": name,
                 "role": "worst" if name == worst_margin.name else "chosen",
                 "margin_v": next(m.margin_v for m in checked.margins if m.name == name),
-                "svg": waveform_plot(wf.time_s, wf.v_diff_v[k], wf.sample_times_s, name),
+                "svg": waveform_plot(wf.time_s, wf.v_diff_v[k], wf.sample_times_s, name, wf.bit_time_s),
             }
         )
     return {

@@ -40,3 +40,12 @@ def test_curve_point_inside_and_outside():
     assert inside.point_y == pytest.approx(outside.point_y) and inside.point_x < outside.point_x
     assert "500 m" in inside.point_label
     assert len(inside.curve.split()) == 9
+
+
+def test_long_patterns_are_plotted_over_their_first_bits_only():
+    bit_s = 1e-6
+    t = np.linspace(0.0, 100 * bit_s, 10_001)
+    v = np.sign(np.sin(np.pi * t / bit_s))
+    plot = waveform_plot(t, v, (np.arange(100) + 0.5) * bit_s, "rx", bit_s, max_bits=24)
+    assert plot.bits_total == 100 and plot.bits_shown == 24
+    assert plot.x_ticks[-1].label in {"20", "24"}
