@@ -215,3 +215,63 @@ def curve_plot(
         y_ticks=tuple(AxisTick(py(d), f"{d:g}") for d in _decades(l_lo, l_hi) if l_lo <= d <= l_hi),
         y_label=f"trunk length ({unit})",
     )
+
+
+@dataclass(frozen=True, slots=True)
+class EyePlot:
+    width: float
+    height: float
+    x0: float
+    x1: float
+    y0: float
+    y1: float
+    traces: tuple[str, ...]  # one polyline per bit: the signal from one bit time before to one after its sample
+    band_top: float
+    band_bottom: float
+    sample_x: float  # the sampling instant, at the centre
+    x_ticks: tuple[AxisTick, ...]
+    y_ticks: tuple[AxisTick, ...]
+    receiver: str
+
+
+EYE_POINTS = 48  # points per trace
+
+
+def eye_plot(
+    time_s: np.ndarray,  # (n_t,)
+    v_diff_v: np.ndarray,  # (n_t,)
+    sample_times_s: "Sequence[float] | np.ndarray",  # (n_bits,)
+    bit_time_s: float,
+    receiver: str,
+) -> EyePlot:
+    """Every bit overlaid on one frame two bit times wide, centred on its sampling instant (an eye diagram)."""
+    t = np.asarray(time_s, dtype=float)
+    v = np.asarray(v_diff_v, dtype=float)
+    centres = np.asarray(sample_times_s, dtype=float)
+    centres = centres[(centres - bit_time_s >= t[0]) & (centres + bit_time_s <= t[-1])]
+    frame = np.linspace(-bit_time_s, bit_time_s, EYE_POINTS)  # (n_points,)
+    values = np.interp((centres[:, None] + frame[None, :]).ravel(), t, v).reshape(centres.size, EYE_POINTS)
+    x0, x1, y0, y1 = MARGIN_L, PLOT_W / 2, MARGIN_T, PLOT_H - MARGIN_B
+    v_max = max(0.5, float(np.max(np.abs(v))) * 1.1)
+    xs = x0 + (x1 - x0) * (frame + bit_time_s) / (2 * bit_time_s)
+    ys = y0 + (y1 - y0) * (v_max - values) / (2 * v_max)  # (n_traces, n_points)
+    traces = tuple(" ".join(f"{a:.1f},{b:.1f}" for a, b in zip(xs, row, strict=True)) for row in ys)
+
+    def py(volts: float) -> float:
+        return y0 + (y1 - y0) * (v_max - volts) / (2 * v_max)
+
+    return EyePlot(
+        width=PLOT_W / 2 + MARGIN_R,
+        height=PLOT_H,
+        x0=x0,
+        x1=x1,
+        y0=y0,
+        y1=y1,
+        traces=traces,
+        band_top=py(RECEIVER_THRESHOLD_V),
+        band_bottom=py(-RECEIVER_THRESHOLD_V),
+        sample_x=(x0 + x1) / 2,
+        x_ticks=tuple(AxisTick(x0 + (x1 - x0) * k / 4, f"{(k - 2) / 2:g}") for k in range(5)),
+        y_ticks=tuple(AxisTick(py(k), f"{k:g}") for k in _linear_ticks(-v_max, v_max, 6)),
+        receiver=receiver,
+    )

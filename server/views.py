@@ -18,7 +18,7 @@ from engine.plan import BusPlan, Problem, plan_to_dict
 from engine.units import si_format
 from server.diagram import bus_drawing, node_anchor
 from server.forms import BIAS, CABLE, DRIVER, NODE, TERMINATION, TOP, FormState
-from server.plots import curve_plot, waveform_plot
+from server.plots import curve_plot, eye_plot, waveform_plot
 from server.quantities import UnitSystem, format_quantity, length_in, length_unit
 from server.results import CheckedPlan, report_to_dict
 from server.store import SampleEntry, SavedPlan
@@ -313,6 +313,7 @@ def _waveforms_data(checked: CheckedPlan, chosen: str | None) -> dict[str, Any]:
                 "role": "worst" if name == worst_margin.name else "chosen",
                 "margin_v": next(m.margin_v for m in checked.margins if m.name == name),
                 "svg": waveform_plot(wf.time_s, wf.v_diff_v[k], wf.sample_times_s, name, wf.bit_time_s),
+                "eye": eye_plot(wf.time_s, wf.v_diff_v[k], wf.sample_times_s, wf.bit_time_s, name),
             }
         )
     return {

@@ -49,3 +49,17 @@ def test_long_patterns_are_plotted_over_their_first_bits_only():
     plot = waveform_plot(t, v, (np.arange(100) + 0.5) * bit_s, "rx", bit_s, max_bits=24)
     assert plot.bits_total == 100 and plot.bits_shown == 24
     assert plot.x_ticks[-1].label in {"20", "24"}
+
+
+def test_eye_diagram_overlays_every_inner_bit_centred_on_its_sample():
+    from server.plots import eye_plot
+
+    bit_s = 1e-6
+    t = np.linspace(0.0, 10 * bit_s, 2001)
+    v = np.where((t // bit_s) % 2 == 0, 1.0, -1.0)
+    eye = eye_plot(t, v, (np.arange(10) + 0.5) * bit_s, bit_s, "rx")
+    assert len(eye.traces) == 8  # the first and last bit lack a full bit time on one side
+    centre = [float(p.split(",")[1]) for p in (trace.split()[23] for trace in eye.traces)]
+    # Source: TIA/EIA-485-A ±200 mV; each trace is at +1 V or -1 V at its sampling instant, outside the band.
+    assert all(y < eye.band_top or y > eye.band_bottom for y in centre)
+    assert eye.sample_x == pytest.approx((eye.x0 + eye.x1) / 2)
