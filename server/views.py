@@ -5,6 +5,7 @@ lists). SVG coordinates come from `server.diagram` and `server.plots`; this modu
 """
 
 import math
+from enum import Enum
 from collections.abc import Mapping
 from dataclasses import asdict, fields, is_dataclass
 from typing import Any
@@ -28,20 +29,22 @@ _SEVERITY = {"breaks": 0, "tight": 1, "holds": 2}
 
 def json_safe(value: Any) -> Any:
     """Dataclasses, numpy values and tuples to plain JSON types; NaN and infinities become None."""
-    if is_dataclass(value) and not isinstance(value, type):
-        return {f.name: json_safe(getattr(value, f.name)) for f in fields(value)}
+    if isinstance(value, Enum):
+        return value.value
+    if value is None or isinstance(value, str | bool | int):
+        return value
+    if isinstance(value, float):
+        return value if math.isfinite(value) else None
     if isinstance(value, Mapping):
         return {str(k): json_safe(v) for k, v in value.items()}
     if isinstance(value, list | tuple):
         return [json_safe(v) for v in value]
     if isinstance(value, np.ndarray):
-        return [json_safe(v) for v in value.tolist()]
+        return json_safe(value.tolist())
     if isinstance(value, np.generic):
         return json_safe(value.item())
-    if isinstance(value, float) and not math.isfinite(value):
-        return None
-    if isinstance(value, Verdict):
-        return value.value
+    if is_dataclass(value) and not isinstance(value, type):
+        return {f.name: json_safe(getattr(value, f.name)) for f in fields(value)}
     return value
 
 
@@ -290,9 +293,9 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
                 plan, node_verdicts | {plan.driver.name: node_verdicts.get(plan.driver.name, "holds")}, units
             ),
             "cautions": cautions_data(plan),
-            "report": report_to_dict(report),  # the same JSON as `pairline check --json`
         }
     )
+    data["report"] = report_to_dict(report)  # already JSON-safe: the same JSON as `pairline check --json`
     return data
 
 
