@@ -5,9 +5,9 @@ lists). SVG coordinates come from `server.diagram` and `server.plots`; this modu
 """
 
 import math
-from enum import Enum
 from collections.abc import Mapping
 from dataclasses import asdict, fields, is_dataclass
+from enum import Enum
 from typing import Any
 
 import numpy as np
