@@ -107,3 +107,20 @@ def test_rows_are_added_and_removed_in_place_with_javascript(page, base_url):
     assert page.url.endswith("/plans/new")  # no round trip
     page.locator("#node-rows tbody tr.row").last.locator("button.remove-row").click()
     assert rows.count() == before
+
+
+def test_the_form_works_without_javascript(browser, base_url):
+    context = browser.new_context(java_script_enabled=False)
+    try:
+        page = context.new_page()
+        fill_five_node_bus(page, base_url, title="No script")
+        page.click("button[value='add_node']")  # a server round trip adds the row
+        page.fill("input[name='nodes.5.name']", "gate-6")
+        page.fill("input[name='nodes.5.position_m']", "395")
+        page.check("input[name='nodes.1.remove']")
+        page.click("#check-button")
+        page.wait_for_selector("#overall-verdict")
+        names = page.locator("table.node-table th.node-name").all_inner_texts()
+        assert names == ["gate-1", "gate-3", "gate-4", "gate-5", "gate-6"]
+    finally:
+        context.close()
