@@ -94,7 +94,8 @@ def render(request: Request, template: str, data: dict[str, Any], status_code: i
     env: Environment = request.app.state.templates
     path = request.url.path
     json_url = path + ".json" if path != "/" else "/index.json"
-    html = env.get_template(template).render(data=data, request_path=path, json_url=json_url)
+    base = str(request.base_url).rstrip("/")
+    html = env.get_template(template).render(data=data, request_path=path, json_url=json_url, base_url=base)
     return HTMLResponse(html, status_code=status_code)
 
 

@@ -1,4 +1,4 @@
-// Checked-plan enhancements: a print button and an absolute share link. The page works without this file.
+// Checked-plan enhancements: a print button, select-on-focus for the share link. The page works without this file.
 (function () {
   "use strict";
   document.documentElement.classList.add("has-js");
@@ -11,8 +11,6 @@
   });
   const share = document.getElementById("share-url");
   if (share) {
-    share.value = new URL(share.value, window.location.href).href;
     share.addEventListener("focus", function () { share.select(); });
-    share.closest(".share").setAttribute("data-share", share.value);
   }
 })();
