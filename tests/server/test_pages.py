@@ -350,3 +350,13 @@ def test_imperial_plans_take_feet_and_explain_limits_in_feet(client):
     message = parse_html(too_long.text).by_id("e-trunk_length_m").text()
     # Source: the plan's 4000 m limit is 13123.36 ft (4000 / 0.3048).
     assert "20000 ft" in message and "13123 ft" in message
+
+
+def test_the_plan_twin_carries_the_same_report_as_the_command_line(client, saved_id):
+    from engine.check import check_plan, report_to_dict
+    from engine.plan import load_plan
+
+    data = client.get(f"/plans/{saved_id}.json").json()
+    expected = json.loads(json.dumps(report_to_dict(check_plan(load_plan(data["plan"])))))
+    assert data["report"] == expected
+    assert data["checked_with_engine"] == expected["engine_version"]
