@@ -22,17 +22,13 @@ from engine.bus import Bus
 from engine.findings import Finding, Verdict
 from engine.plan import input_resistance_ohm
 from engine.rules.loads import RS485_UNIT_LOAD_BUDGET, bias_unit_loads, design_load_ohm, receiver_loads_ohm
+from engine.rules.preferred import preferred_at_or_below
 from engine.rules.voltage import DcElement, fixed_load_elements, receiver_elements, solve_dc_v
 from engine.units import parallel_ohm
 
 RULE_ID = "bias.idle_level"
 IDLE_THRESHOLD_V = 0.200  # receiver sensitivity, TIA/EIA-485-A
 IDLE_TARGET_V = 0.250  # Pairline's target: threshold plus 50 mV for noise; below it the verdict is tight
-# IEC 60063 E24 series
-E24: tuple[float, ...] = (
-    *(1.0, 1.1, 1.2, 1.3, 1.5, 1.6, 1.8, 2.0, 2.2, 2.4, 2.7, 3.0),
-    *(3.3, 3.6, 3.9, 4.3, 4.7, 5.1, 5.6, 6.2, 6.8, 7.5, 8.2, 9.1),
-)
 _PROBE_OHM = 1e-3  # a near-ideal 1 V probe source for the ladder view
 SOURCE = (
     "Idle-bus biasing: TI SLLA272 (The RS-485 Design Guide) and B&B Electronics RS-422/485 application note; "
@@ -55,15 +51,6 @@ def idle_voltage_v(supply_v: float, pull_up_ohm: float, pull_down_ohm: float, r_
 def max_bias_ohm(r_eq_ohm: float, supply_v: float, v_min_v: float = IDLE_THRESHOLD_V) -> float:
     """Largest equal pull-up / pull-down that keeps the idle bus at v_min_v: R_B = (R_eq / 2)(V_S / V_min - 1)."""
     return 0.5 * r_eq_ohm * (supply_v / v_min_v - 1.0)
-
-
-def e24_at_or_below(resistance_ohm: float) -> float:
-    """Largest E24 resistor value not above resistance_ohm (IEC 60063)."""
-    if not math.isfinite(resistance_ohm) or resistance_ohm <= 0.0:
-        return resistance_ohm
-    decade = 10.0 ** math.floor(math.log10(resistance_ohm))
-    mantissa = max(m for m in E24 if m * decade <= resistance_ohm * (1 + 1e-9))
-    return round(mantissa * decade, 6)
 
 
 def idle_load_ohm(bus: Bus) -> float:
@@ -167,7 +154,7 @@ def bias_choice(bus: Bus) -> BiasChoice:
             if supply_v * t_min <= target_v:
                 continue
             r_max = max_bias_ohm(r_in, supply_v * t_min, IDLE_THRESHOLD_V)
-            r_hi = e24_at_or_below(max_bias_ohm(r_in, supply_v * t_min, target_v))
+            r_hi = preferred_at_or_below(max_bias_ohm(r_in, supply_v * t_min, target_v))
             idle_v = idle_voltage_v(supply_v * t_min, r_hi, r_hi, r_in)
             if r_hi >= r_min:
                 return BiasChoice(r_hi, position_m, idle_v, r_min, r_max, True)
@@ -175,7 +162,7 @@ def bias_choice(bus: Bus) -> BiasChoice:
                 fallback = BiasChoice(r_hi, position_m, idle_v, r_min, r_max, False)
     if fallback is not None:
         return fallback
-    r = e24_at_or_below(max_bias_ohm(idle_load_ohm(bus), supply_v, IDLE_TARGET_V))
+    r = preferred_at_or_below(max_bias_ohm(idle_load_ohm(bus), supply_v, IDLE_TARGET_V))
     return BiasChoice(r, bias_position_m(bus), 0.0, r_min, 0.0, False)
 
 

@@ -1,11 +1,8 @@
-"""Termination: where the terminators sit, their values, RC terminators, and whether the line may go without.
+"""Termination: where the terminators sit, their values, and RC (AC) terminators.
 
-Placement. RS-485 traffic runs both ways, so the trunk is terminated at its two physical cable ends (0 m
-and trunk_length_m), wherever the driver sits (TI SLLA272; B&B RS-422/485 application note). A single-driver
-RS-422 line with its driver at one end is terminated at the far end only: the driver's low output impedance
-ends its own side (National Semiconductor AN-903); with the driver mid-bus both ends are terminated.
-A terminator counts as "at the end" within the end tolerance: the smaller of 1 m and the stub limit of
-engine.rules.stubs, since the cable left beyond the terminator is an open stub.
+Placement. One terminator at each cable end that needs one (engine.rules.cable_ends: both ends for RS-485,
+the far end for RS-422 driven from one end), none elsewhere. Whether a missing or misplaced terminator
+breaks the bus depends on whether the line may stay unterminated (engine.rules.unterminated).
 
 Value. A matched end presents Z0. Receivers or a bias network lumped at the same end (within the end
 tolerance) sit in parallel with the terminator, so the resistor is raised to R_T = Z0 / (1 - Z0/R_P)
@@ -13,19 +10,6 @@ tolerance) sit in parallel with the terminator, so the resistor is raised to R_T
 coefficient of the whole end, Gamma = (R_T||R_P - Z0)/(R_T||R_P + Z0): HOLDS |Gamma| <= 0.05 (about 10 % off),
 TIGHT <= 0.12, which covers a 120 Ohm terminator on the 100..150 Ohm cables RS-485 accepts (120 +/- 30 Ohm,
 Intersil high-speed RS-485 tutorial), BREAKS beyond.
-
-May the line stay unterminated. Published criteria disagree, so each is evaluated and named; t_pd is the
-trunk's one-way delay L / (VF c0), t_r the driver's rise time, T_bit = 1 / bit rate:
-  rise_vs_round_trip  t_r >= 2 t_pd (terminate when the round trip exceeds the rise time; Intersil tutorial)
-  tsb89_rise_time     t_r >= 2 t_pd (TIA TSB-89-A guideline as given in J. Axelson, Serial Port Complete)
-  bit_40x_delay       T_bit >= 40 t_pd (J. Axelson, Serial Port Complete)
-  three_round_trips   6 t_pd <= T_bit / 2: three round trips settle before mid-bit (B&B application note)
-  field_rule          T_bit > 4 t_pd and rate < 200 kbit/s (common practice)
-The deciding criterion is three_round_trips: whether a receiver reads the right level is decided where it
-samples, at mid-bit, and after three round trips the reflections between a low-impedance driver and an
-open end have died to a few percent; it is also the one with a published worked example (2000 ft at
-9600 bit/s needs no terminator). The rise-time criteria are stricter (no visible reflection at all, which
-edge-sensitive receivers want) and are shown as opinions beside it; the simulation may confirm or override.
 
 RC (AC) terminators. R should match Z0 as above; the time constant RC should be long against the round
 trip, so the capacitor still looks like a short while reflections arrive (RC >> 2 t_pd; B&B application
@@ -35,24 +19,19 @@ reaches its bias level only about 3 RC after the drivers release, so HOLDS when 
 """
 
 import math
-from dataclasses import dataclass
 
 from engine.bus import Bus
 from engine.findings import Finding, Verdict, worst
-from engine.plan import TerminationSpec, input_resistance_ohm
-from engine.rules.stubs import max_stub_length_m
-from engine.units import SPEED_OF_LIGHT_M_PER_S, delay_s, parallel_ohm, si_format
+from engine.plan import TerminationSpec
+from engine.rules.cable_ends import end_tolerance_m, lumped_load_ohm, nearest_end_m, required_ends_m
+from engine.rules.preferred import nearest_preferred
+from engine.rules.unterminated import line_may_stay_unterminated, one_way_delay_s
+from engine.units import parallel_ohm, si_format
 
-END_TOLERANCE_CAP_M = 1.0
 GAMMA_HOLDS = 0.05
 GAMMA_TIGHT = 0.12
 RC_ROUND_TRIPS_HOLDS = 3.0
 RC_SETTLE_TIME_CONSTANTS = 3.0
-FIELD_RULE_MAX_RATE_BPS = 200e3
-DECIDING_CRITERION = "three_round_trips"
-E24: tuple[float, ...] = (1.0, 1.1, 1.2, 1.3, 1.5, 1.6, 1.8, 2.0, 2.2, 2.4, 2.7, 3.0, 3.3, 3.6, 3.9, 4.3, 4.7)
-E24 += (5.1, 5.6, 6.2, 6.8, 7.5, 8.2, 9.1)  # IEC 60063
-E6: tuple[float, ...] = (1.0, 1.5, 2.2, 3.3, 4.7, 6.8)  # IEC 60063
 
 _PLACEMENT_SOURCE = (
     "TI SLLA272 The RS-485 Design Guide and B&B Electronics RS-422/485 application note (both cable ends); "
@@ -92,234 +71,12 @@ def corrected_termination_ohm(z0_ohm: float, parallel_load_ohm: float) -> float:
     return z0_ohm / (1.0 - z0_ohm / parallel_load_ohm)
 
 
-def nearest_preferred(value: float, series: tuple[float, ...] = E24) -> float:
-    """The nearest value of an IEC 60063 preferred series (nearest on a log scale)."""
-    if not math.isfinite(value) or value <= 0.0:
-        return value
-    decade = 10.0 ** math.floor(math.log10(value))
-    candidates = [m * decade for m in series] + [10.0 * decade]
-    best = min(candidates, key=lambda c: abs(math.log(c / value)))
-    return float(f"{best:.6g}")
-
-
-def preferred_at_or_above(value: float, series: tuple[float, ...] = E6) -> float:
-    """The smallest preferred-series value at or above value (IEC 60063)."""
-    decade = 10.0 ** math.floor(math.log10(value))
-    candidates = [m * decade for m in series] + [10.0 * decade]
-    return float(f"{min(c for c in candidates if c >= value * (1 - 1e-9)):.6g}")
-
-
-def one_way_delay_s(bus: Bus) -> float:
-    """The trunk's one-way delay t_pd = L / (VF c0)."""
-    return delay_s(bus.plan.trunk_length_m, bus.cable.velocity_factor)
-
-
 # --- where terminators belong ---------------------------------------------------------------------------
-
-
-def end_tolerance_m(bus: Bus) -> float:
-    """How far from a cable end a terminator may sit and still count as at the end: min(1 m, stub limit)."""
-    return min(END_TOLERANCE_CAP_M, max_stub_length_m(bus.driver.rise_time_s, bus.cable.velocity_factor))
-
-
-def nearest_end_m(bus: Bus, position_m: float) -> float | None:
-    """The cable end (0 or trunk length) within the end tolerance of a position, nearest first; else None."""
-    length = bus.plan.trunk_length_m
-    tol = end_tolerance_m(bus)
-    end = 0.0 if position_m <= length - position_m else length
-    return end if abs(position_m - end) <= tol + 1e-12 else None
-
-
-def required_ends_m(bus: Bus) -> tuple[float, ...]:
-    """Cable ends that need a terminator: RS-485 both; RS-422 the far end, or both if the driver is mid-bus."""
-    length = bus.plan.trunk_length_m
-    if bus.plan.standard == "rs422":
-        driver_end = nearest_end_m(bus, bus.plan.driver.position_m)
-        if driver_end is not None:
-            return (length,) if driver_end == 0.0 else (0.0,)
-    return (0.0, length)
-
-
-def lumped_load_ohm(bus: Bus, position_m: float) -> float:
-    """Receivers (and the bias network) within the end tolerance of a position, in parallel: R_P."""
-    tol = end_tolerance_m(bus)
-    plan = bus.plan
-    loads = [input_resistance_ohm(n.unit_loads) for n in plan.nodes if abs(n.position_m - position_m) <= tol]
-    if plan.standard == "rs485" and abs(plan.driver.position_m - position_m) <= tol:
-        loads.append(input_resistance_ohm(bus.driver.unit_loads))
-    if plan.bias is not None and abs(plan.bias.position_m - position_m) <= tol:
-        loads.append(plan.bias.pull_up_ohm + plan.bias.pull_down_ohm)
-    return parallel_ohm(*loads)
 
 
 def recommended_termination_ohm(bus: Bus, end_m: float) -> float:
     """The exact terminator for one cable end: Z0 corrected for the loads lumped there."""
     return corrected_termination_ohm(bus.cable.z0_ohm, lumped_load_ohm(bus, end_m))
-
-
-# --- may the line stay unterminated ---------------------------------------------------------------------
-
-
-@dataclass(frozen=True, slots=True)
-class OmitCriterion:
-    """One published answer to "may this line stay unterminated?"."""
-
-    key: str
-    name: str
-    statement: str  # the inequality
-    source: str
-    value: float  # left side, in unit
-    limit: float  # right side, in unit
-    unit: str
-    holds: bool  # True: by this criterion no terminator is needed
-    max_length_m: float  # longest unterminated trunk this criterion allows at the plan's rate and rise time
-    deciding: bool
-
-
-def unterminated_criteria(bus: Bus) -> tuple[OmitCriterion, ...]:
-    """Every published unterminated-line criterion evaluated on the plan; exactly one is marked deciding."""
-    t_pd = one_way_delay_s(bus)
-    t_r = bus.driver.rise_time_s
-    rate = bus.plan.bit_rate_bps
-    t_bit = 1.0 / rate
-    v = bus.cable.velocity_factor * SPEED_OF_LIGHT_M_PER_S
-    rows = [
-        (
-            "rise_vs_round_trip",
-            "Rise time vs round trip",
-            "round trip 2·t_pd <= driver rise time t_r",
-            "Intersil tutorial High-Speed RS-485 Transceiver and Applications",
-            2 * t_pd,
-            t_r,
-            "s",
-            t_r * v / 2,
-        ),
-        (
-            "tsb89_rise_time",
-            "TSB-89-A rise-time guideline",
-            "2 × one-way delay <= driver rise time (same inequality as above)",
-            "TIA TSB-89-A, as given in J. Axelson, Serial Port Complete, 2nd ed., ch. 7",
-            2 * t_pd,
-            t_r,
-            "s",
-            t_r * v / 2,
-        ),
-        (
-            "bit_40x_delay",
-            "Bit at least 40 one-way delays",
-            "40 × t_pd <= bit time",
-            "J. Axelson, Serial Port Complete, 2nd ed., ch. 7",
-            40 * t_pd,
-            t_bit,
-            "s",
-            t_bit * v / 40,
-        ),
-        (
-            "three_round_trips",
-            "Three round trips before mid-bit",
-            "3 round trips (6·t_pd) <= half a bit",
-            "B&B Electronics RS-422/485 application note",
-            6 * t_pd,
-            t_bit / 2,
-            "s",
-            0.5 * t_bit * v / 6,
-        ),
-        (
-            "field_rule",
-            "Field rule of thumb",
-            "bit time > 4 × t_pd and bit rate < 200 kbit/s",
-            "common practice",
-            4 * t_pd,
-            t_bit if rate < FIELD_RULE_MAX_RATE_BPS else 0.0,
-            "s",
-            t_bit * v / 4 if rate < FIELD_RULE_MAX_RATE_BPS else 0.0,
-        ),
-    ]
-    return tuple(
-        OmitCriterion(
-            key,
-            name,
-            statement,
-            source,
-            value,
-            limit,
-            unit,
-            holds=value <= limit if key != "field_rule" else value < limit,
-            max_length_m=max_len,
-            deciding=key == DECIDING_CRITERION,
-        )
-        for key, name, statement, source, value, limit, unit, max_len in rows
-    )
-
-
-def line_may_stay_unterminated(bus: Bus) -> bool:
-    """The deciding criterion's answer (three round trips settle before mid-bit)."""
-    return next(c for c in unterminated_criteria(bus) if c.deciding).holds
-
-
-def check_unterminated(bus: Bus) -> list[Finding]:
-    """Rule "termination.may_omit": each published criterion with its result; three_round_trips decides."""
-    criteria = unterminated_criteria(bus)
-    deciding = next(c for c in criteria if c.deciding)
-    others_disagree = [c for c in criteria if not c.deciding and c.holds != deciding.holds]
-    lines = [
-        f"{'[deciding] ' if c.deciding else ''}{c.name} ({c.source}): {c.statement}: "
-        f"{si_format(c.value, 's')} vs {si_format(c.limit, 's')} -> "
-        f"{'no terminator needed' if c.holds else 'terminate'}; allows up to {c.max_length_m:.0f} m unterminated."
-        for c in criteria
-    ]
-    why = (
-        "Three round trips before mid-bit decides: receivers sample at mid-bit, so what matters is whether the "
-        "reflections have settled by then; the stricter rise-time criteria (no visible reflection at all) are "
-        "shown as opinions."
-    )
-    terminated = bool(bus.plan.terminations)
-    if terminated:
-        verdict = Verdict.HOLDS
-        head = "The plan terminates the line; the criteria are shown for information."
-    elif not deciding.holds:
-        verdict = Verdict.BREAKS
-        head = "The plan has no terminator, and the line needs one."
-    elif others_disagree:
-        verdict = Verdict.TIGHT
-        head = "The line may stay unterminated, but " + ", ".join(c.name for c in others_disagree) + " disagree."
-    else:
-        verdict = Verdict.HOLDS
-        head = "The line may stay unterminated; every criterion agrees."
-    fix = ""
-    if verdict is Verdict.BREAKS:
-        ends = " and ".join(f"{e:g} m" for e in required_ends_m(bus))
-        fix = (
-            f"Terminate the cable end{'s' if len(required_ends_m(bus)) > 1 else ''} at {ends} with "
-            f"{nearest_preferred(bus.cable.z0_ohm):g} Ω, or shorten the trunk to <= "
-            f"{math.floor(deciding.max_length_m):.0f} m, or lower the bit rate to <= "
-            f"{si_format(_max_unterminated_rate_bps(bus), 'bit/s')}."
-        )
-    elif verdict is Verdict.TIGHT:
-        fix = (
-            "Optional: terminate the cable ends to satisfy every criterion; check the simulated waveforms "
-            "before leaving the line unterminated."
-        )
-    return [
-        Finding(
-            rule_id="termination.may_omit",
-            title="May the line stay unterminated",
-            verdict=verdict,
-            value=deciding.value,
-            limit=deciding.limit,
-            unit="s",
-            node=None,
-            criterion=f"{deciding.name}: {deciding.statement}",
-            source=deciding.source,
-            fix=fix,
-            detail=" ".join([head, why, *lines]),
-        )
-    ]
-
-
-def _max_unterminated_rate_bps(bus: Bus) -> float:
-    """Highest rate at which three round trips still fit in half a bit: 1 / (12 t_pd)."""
-    return 1.0 / (12.0 * one_way_delay_s(bus))
 
 
 # --- placement and value --------------------------------------------------------------------------------
@@ -581,22 +338,11 @@ def placement_verdict(bus: Bus) -> Verdict:
 
 
 __all__ = [
-    "OmitCriterion",
     "check_ac_termination",
     "check_termination",
-    "check_unterminated",
     "corrected_termination_ohm",
-    "end_tolerance_m",
-    "line_may_stay_unterminated",
-    "lumped_load_ohm",
-    "nearest_end_m",
-    "nearest_preferred",
-    "one_way_delay_s",
-    "preferred_at_or_above",
     "placement_verdict",
     "rc_capacitance_window_f",
     "recommended_termination_ohm",
     "reflection_coefficient",
-    "required_ends_m",
-    "unterminated_criteria",
 ]

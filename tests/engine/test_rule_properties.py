@@ -11,9 +11,10 @@ from engine.check import check_plan, report_to_dict
 from engine.findings import Verdict
 from engine.library import CABLES, TRANSCEIVERS
 from engine.plan import load_plan
+from engine.rules.cable_ends import end_tolerance_m
 from engine.rules.loads import check_unit_loads, spare_unit_loads, unit_load_total
 from engine.rules.stubs import check_stubs
-from engine.rules.termination import end_tolerance_m, placement_verdict
+from engine.rules.termination import placement_verdict
 
 SETTINGS = settings(
     derandomize=True,

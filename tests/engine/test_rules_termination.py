@@ -5,18 +5,15 @@ import pytest
 from engine.bus import build_bus
 from engine.findings import Verdict, worst
 from engine.plan import load_plan
+from engine.rules.cable_ends import end_tolerance_m, required_ends_m
 from engine.rules.termination import (
     check_ac_termination,
     check_termination,
-    check_unterminated,
     corrected_termination_ohm,
-    end_tolerance_m,
-    line_may_stay_unterminated,
     recommended_termination_ohm,
     reflection_coefficient,
-    required_ends_m,
-    unterminated_criteria,
 )
+from engine.rules.unterminated import check_unterminated, line_may_stay_unterminated, unterminated_criteria
 from engine.units import SPEED_OF_LIGHT_M_PER_S, m_from_ft
 
 
