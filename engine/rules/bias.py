@@ -285,7 +285,7 @@ def check_failsafe_bias(bus: Bus) -> list[Finding]:
     return [
         Finding(
             RULE_ID,
-            "Idle-bus level with the bias network",
+            "Idle-bus level with the plan's bias network (lowest receiver)",
             verdict,
             v_worst,
             IDLE_THRESHOLD_V,

@@ -44,7 +44,7 @@ def end_name(bus: Bus, end_m: float) -> str:
     driver_end = nearest_end_m(bus, bus.plan.driver.position_m)
     if driver_end is None:
         return f"the {end_m:g} m end"
-    return f"the {'driver' if end_m == driver_end else 'far'} end ({end_m:g} m)"
+    return f"the driver's end ({end_m:g} m)" if end_m == driver_end else f"the far end ({end_m:g} m)"
 
 
 def lumped_load_ohm(bus: Bus, position_m: float) -> float:

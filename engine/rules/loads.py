@@ -163,8 +163,16 @@ def _unit_load_fix(bus: Bus, parts: dict[str, float], total: float) -> str:
         rated = next((ul for ul in UNIT_LOAD_CLASSES.values() if ul <= per_node), None)
         if rated is not None:
             steps.append(f"use receivers of {rated:g} UL or less on all {n_nodes} nodes")
-    if parts["bias"] > 1.0:
-        steps.append(f"raise the bias resistors (the bias network takes {parts['bias']:.1f} UL)")
+    bias = bus.plan.bias
+    if bias is not None and parts["bias"] > 1.0:
+        bias_room = (1.0 - TIGHT_SPARE_FRACTION) * RS485_UNIT_LOAD_BUDGET - parts["nodes"] - parts["driver"]
+        now = f"{min(bias.pull_up_ohm, bias.pull_down_ohm):g} Ω, {parts['bias']:.1f} UL"
+        if bias_room > 0:
+            steps.append(
+                f"raise each bias resistor to at least {math.ceil(UNIT_LOAD_OHM / bias_room):.0f} Ω (now {now})"
+            )
+        else:
+            steps.append(f"raise the bias resistors (now {now})")
     steps.append("or split the bus with a repeater, which starts a fresh 32 UL budget (B&B RS-422/485 notes)")
     return "To fit 32 UL: " + "; ".join(steps) + "."
 
@@ -277,7 +285,7 @@ def check_driver_load(bus: Bus) -> list[Finding]:
     return [
         Finding(
             rule_id="load.driver",
-            title="Total load on the driver",
+            title="Load on the driver (terminators, receivers and bias across the pair)",
             verdict=verdict,
             value=edge_ohm,
             limit=design,

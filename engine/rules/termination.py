@@ -23,7 +23,7 @@ import math
 from engine.bus import Bus
 from engine.findings import Finding, Verdict, worst
 from engine.plan import TerminationSpec
-from engine.rules.cable_ends import end_tolerance_m, lumped_load_ohm, nearest_end_m, required_ends_m
+from engine.rules.cable_ends import end_name, end_tolerance_m, lumped_load_ohm, nearest_end_m, required_ends_m
 from engine.rules.preferred import nearest_preferred
 from engine.rules.unterminated import line_may_stay_unterminated, one_way_delay_s
 from engine.units import parallel_ohm, si_format
@@ -88,6 +88,8 @@ def check_termination(bus: Bus) -> list[Finding]:
 
 
 def _placement_findings(bus: Bus) -> list[Finding]:
+    """One finding per cable end that needs a terminator, per terminator at an end that needs none (RS-422
+    driver's end), and per terminator away from the ends."""
     plan = bus.plan
     tol = end_tolerance_m(bus)
     required = required_ends_m(bus)
@@ -101,18 +103,22 @@ def _placement_findings(bus: Bus) -> list[Finding]:
             loose.append(term)
         else:
             at_end[end].append(term)
-    rule = "Terminators at both cable ends" if len(required) == 2 else "Terminator at the far cable end"
-    ends_text = " and ".join(f"{e:g} m" for e in required)
-    where = "at each of " if len(required) > 1 else "at "
-    criterion = f"One terminator {where}{ends_text} (within {tol:.3g} m of the end), none elsewhere"
-    side = "because the line is electrically long" if needs else "although the line may stay unterminated"
+    ends_text = " and ".join(end_name(bus, e) for e in required)
+    criterion = f"One terminator at {ends_text}, each within {_length(tol)} of its end; none elsewhere"
+    why = (
+        "the line needs terminators (three round trips outlast half a bit)"
+        if needs
+        else "the line may stay unterminated (three round trips settle before mid-bit), so this only costs "
+        "drive current"
+    )
     findings: list[Finding] = []
 
-    def add(verdict: Verdict, value: float, limit: float, unit: str, fix: str, detail: str) -> None:
+    def add(title: str, verdict: Verdict, value: float | None, limit: float | None, fix: str, detail: str) -> None:
+        unit = "m" if value is not None else ""
         findings.append(
             Finding(
                 "termination.placement",
-                rule,
+                title,
                 verdict,
                 value,
                 limit,
@@ -127,42 +133,88 @@ def _placement_findings(bus: Bus) -> list[Finding]:
 
     missing = [e for e in required if not at_end[e]]
     for end in required:
-        count = len(at_end[end])
-        value_text = f"{nearest_preferred(recommended_termination_ohm(bus, end)):g} Ω"
-        if count == 0:
-            verdict = Verdict.BREAKS if needs else Verdict.HOLDS
-            detail = f"No terminator at the cable end at {end:g} m" + (
-                "." if needs else "; not needed, the deciding unterminated-line criterion holds."
+        terms = at_end[end]
+        name = end_name(bus, end)
+        resistor = f"{nearest_preferred(recommended_termination_ohm(bus, end)):g} Ω"
+        if not terms:
+            if needs:
+                add(
+                    f"No terminator at {name}",
+                    Verdict.BREAKS,
+                    None,
+                    None,
+                    f"Add a {resistor} terminator at {name}.",
+                    f"Nothing terminates {name}, and {why}: each edge reflects there in full.",
+                )
+            else:
+                add(
+                    f"No terminator at {name} (none needed)",
+                    Verdict.HOLDS,
+                    None,
+                    None,
+                    "",
+                    f"{name[0].upper()}{name[1:]} is left open; {why}.",
+                )
+            continue
+        distance_m = max(abs(t.position_m - end) for t in terms)
+        if len(terms) == 1:
+            add(
+                f"Terminator at {name}: distance from the end",
+                Verdict.HOLDS,
+                distance_m,
+                tol,
+                "",
+                f"The terminator at {terms[0].position_m:g} m counts as at {name}: it is {_length(distance_m)} from "
+                f"the end, within {_length(tol)} (the shorter of 1 m and the stub limit, since the cable beyond it "
+                "is an open stub).",
             )
-            fix = f"Add a {value_text} terminator at the cable end at {end:g} m." if needs else ""
-        elif count == 1:
-            verdict, fix = Verdict.HOLDS, ""
-            detail = f"Terminator at {at_end[end][0].position_m:g} m counts as at the cable end at {end:g} m."
         else:
-            verdict = misplaced
-            detail = f"{count} terminators at the cable end at {end:g} m; one is enough ({side})."
-            fix = f"Remove {count - 1} of the terminators at the cable end at {end:g} m."
-        add(verdict, float(count), 1.0, "terminators", fix, detail)
+            add(
+                f"{len(terms)} terminators at {name}: one too many"
+                if len(terms) == 2
+                else f"{len(terms)} terminators at {name}: {len(terms) - 1} too many",
+                misplaced,
+                None,
+                None,
+                f"Keep one terminator at {name} and remove the other {len(terms) - 1}: "
+                + ", ".join(f"{t.resistance_ohm:g} Ω at {t.position_m:g} m" for t in terms[1:])
+                + ".",
+                f"{len(terms)} terminators in parallel at {name} load it below the cable's {bus.cable.z0_ohm:g} Ω; "
+                f"{why}.",
+            )
     for end, terms in at_end.items():
         if end in required or not terms:
             continue
-        detail = (
-            f"{len(terms)} terminator(s) at the driver's end ({end:g} m) of a single-driver RS-422 line: the "
-            f"driver's low output impedance already ends this side, the extra resistor only loads it ({side})."
-        )
-        add(misplaced, float(len(terms)), 0.0, "terminators", f"Remove the terminator(s) at {end:g} m.", detail)
+        for term in terms:
+            add(
+                f"Terminator at the RS-422 driver's end ({end:g} m): not wanted",
+                misplaced,
+                abs(term.position_m - end),
+                tol,
+                f"Remove the {term.resistance_ohm:g} Ω terminator at {term.position_m:g} m.",
+                "A single RS-422 driver at this end terminates it with its own low output impedance; the "
+                f"resistor only loads the driver ({why}).",
+            )
     for term in loose:
-        distance = min(term.position_m, plan.trunk_length_m - term.position_m)
+        distance_m = min(term.position_m, plan.trunk_length_m - term.position_m)
         if missing:
             target = min(missing, key=lambda e: abs(e - term.position_m))
-            fix = f"Move the terminator at {term.position_m:g} m to the cable end at {target:g} m."
+            fix = f"Move the terminator at {term.position_m:g} m to {end_name(bus, target)}."
         else:
-            fix = f"Remove the terminator at {term.position_m:g} m: both cable ends are already terminated."
-        detail = (
-            f"Terminator at {term.position_m:g} m is {distance:.3g} m from the nearest cable end (more than "
-            f"{tol:.3g} m): a mid-bus terminator loads the driver and reflects part of each edge ({side})."
+            fix = (
+                f"Remove the terminator at {term.position_m:g} m: "
+                + ("both cable ends are" if len(required) > 1 else f"{end_name(bus, required[0])} is")
+                + " already terminated."
+            )
+        add(
+            f"Terminator at {term.position_m:g} m, mid-bus: distance to the nearest end",
+            misplaced,
+            distance_m,
+            tol,
+            fix,
+            f"It sits {_length(distance_m)} from the nearest cable end (more than {_length(tol)}): a mid-bus "
+            f"terminator loads the driver and reflects part of each edge; {why}.",
         )
-        add(misplaced, distance, tol, "m", fix, detail)
     return findings
 
 
@@ -174,10 +226,12 @@ def _gamma_verdict(gamma: float) -> Verdict:
     return Verdict.BREAKS
 
 
-def _end_match(
+def end_match(
     bus: Bus, position_m: float, resistance_ohm: float, others_ohm: list[float]
 ) -> tuple[float, float, float]:
-    """(R_P, ideal R_T, Gamma of the whole end) for a terminator of resistance_ohm at a position."""
+    """(R_P, ideal R_T, Gamma of the whole end) for a terminator of resistance_ohm at a position, with others_ohm
+    (further terminators there) beside the lumped loads. Source: Gamma = (Z_L - Z0)/(Z_L + Z0), D. M. Pozar,
+    Microwave Engineering, sec. 2.3; R_T = Z0/(1 - Z0/R_P), H. Johnson, M. Graham, High-Speed Digital Design, 4.4."""
     z0 = bus.cable.z0_ohm
     r_p = parallel_ohm(lumped_load_ohm(bus, position_m), *others_ohm)
     ideal = corrected_termination_ohm(z0, r_p)
@@ -186,6 +240,7 @@ def _end_match(
 
 
 def _value_findings(bus: Bus) -> list[Finding]:
+    """One finding per terminated cable end with a parallel terminator: |Gamma| of the whole end."""
     plan = bus.plan
     z0 = bus.cable.z0_ohm
     findings = []
@@ -200,11 +255,14 @@ def _value_findings(bus: Bus) -> list[Finding]:
             continue  # RC terminators are judged by termination.rc
         rc_terms = [t.resistance_ohm for t in terms if t.kind == "rc"]
         r_t = parallel_ohm(*parallel_terms)
-        r_p, ideal, gamma = _end_match(bus, end, r_t, rc_terms)
+        r_p, ideal, gamma = end_match(bus, end, r_t, rc_terms)
         verdict = _gamma_verdict(gamma)
+        name = end_name(bus, end)
+        resistor = f"{r_t:.4g} Ω" + (" (terminators in parallel)" if len(parallel_terms) > 1 else "")
         detail = (
-            f"Z0 {z0:g} Ω; loads lumped at this end {_ohm(r_p)}; the end presents {_ohm(parallel_ohm(r_t, r_p))}, "
-            f"reflection coefficient {gamma:+.3f}. HOLDS |Γ| <= {GAMMA_HOLDS}, TIGHT <= {GAMMA_TIGHT}."
+            f"Terminator {resistor}; other loads lumped at this end {_ohm(r_p)}; together "
+            f"{_ohm(parallel_ohm(r_t, r_p))} on a {z0:g} Ω cable: reflection coefficient {gamma:+.3f}. "
+            f"The ideal terminator here is {_ohm(ideal)}. Holds to |Γ| {GAMMA_HOLDS}, tight to {GAMMA_TIGHT}."
         )
         if plan.standard == "rs485" and not 90.0 <= z0 <= 150.0:
             detail += f" The cable's {z0:g} Ω is outside the 120 ± 30 Ω RS-485 accepts."
@@ -212,21 +270,22 @@ def _value_findings(bus: Bus) -> list[Finding]:
         if verdict is not Verdict.HOLDS:
             if math.isinf(ideal):
                 fix = (
-                    f"Remove the terminator at {end:g} m: the loads there ({_ohm(r_p)}) already load the line "
+                    f"Remove the terminator at {name}: the loads there ({_ohm(r_p)}) already load the line "
                     f"below its {z0:g} Ω; move the bias network or receivers off the end."
                 )
             else:
-                fix = f"Use {nearest_preferred(ideal):g} Ω at the cable end at {end:g} m (ideal {ideal:.1f} Ω)."
+                fix = f"Use {nearest_preferred(ideal):g} Ω at {name} instead of {resistor} (ideal {ideal:.1f} Ω)."
         findings.append(
             Finding(
                 "termination.value",
-                f"Terminator value at {end:g} m",
+                f"Reflection at {name} with its {r_t:.4g} Ω terminator",
                 verdict,
-                r_t,
-                ideal,
-                "Ω",
+                abs(gamma),
+                GAMMA_TIGHT,
+                "",
                 None,
-                "End load R_T || R_P matches Z0 within |Γ| <= 0.05 (ideal R_T = Z0/(1 - Z0/R_P))",
+                f"|Γ| of the whole end (terminator || lumped loads R_P vs Z0) <= {GAMMA_HOLDS} holds, <= "
+                f"{GAMMA_TIGHT} tight; ideal R_T = Z0/(1 - Z0/R_P)",
                 _VALUE_SOURCE,
                 fix,
                 detail,
@@ -237,6 +296,11 @@ def _value_findings(bus: Bus) -> list[Finding]:
 
 def _ohm(value: float) -> str:
     return "none (open)" if math.isinf(value) else f"{value:.1f} Ω"
+
+
+def _length(length_m: float) -> str:
+    """A short distance for people: cm below 1 m."""
+    return f"{length_m * 100:.3g} cm" if 0.0 < length_m < 1.0 else f"{length_m:.3g} m"
 
 
 # --- RC terminators ---------------------------------------------------------------------------------------
@@ -257,33 +321,37 @@ def check_ac_termination(bus: Bus) -> list[Finding]:
     for term in bus.plan.terminations:
         if term.kind != "rc" or term.capacitance_f is None:
             continue
-        where = f"{term.position_m:g} m"
+        end = nearest_end_m(bus, term.position_m)
+        where = end_name(bus, end) if end is not None else f"{term.position_m:g} m"
         r = term.resistance_ohm
         tau = r * term.capacitance_f
+        part = f"RC terminator at {where} ({r:g} Ω + {si_format(term.capacitance_f, 'F')})"
         c_lo, c_hi = rc_capacitance_window_f(bus, r)
         if c_lo <= c_hi:
-            change = f"Use a capacitor from {si_format(c_lo, 'F')} to {si_format(c_hi, 'F')} at {where}"
+            change = f"Use a capacitor from {si_format(c_lo, 'F')} to {si_format(c_hi, 'F')} in the {part}"
         else:
             change = (
-                f"No capacitor suits both the round trip and the bit at {where}: use a parallel terminator "
+                f"No capacitor suits both the round trip and the bit in the {part}: use a parallel terminator "
                 "there (with a bias network sized for it)"
             )
         others = [t.resistance_ohm for t in bus.plan.terminations if t is not term and t.position_m == term.position_m]
-        r_p, ideal, gamma = _end_match(bus, term.position_m, r, others)
+        r_p, ideal, gamma = end_match(bus, term.position_m, r, others)
         v_r = _gamma_verdict(gamma)
         findings.append(
             Finding(
                 "termination.rc",
-                f"RC terminator at {where}: resistor vs Z0",
+                f"Reflection at {where} with its RC terminator's {r:g} Ω",
                 v_r,
-                r,
-                ideal,
-                "Ω",
+                abs(gamma),
+                GAMMA_TIGHT,
+                "",
                 None,
-                "R || lumped loads matches Z0 within |Γ| <= 0.05",
+                f"|Γ| of the end (R || lumped loads vs Z0, the capacitor a short during an edge) <= {GAMMA_HOLDS} "
+                f"holds, <= {GAMMA_TIGHT} tight",
                 _RC_SOURCE + "; " + _VALUE_SOURCE,
-                "" if v_r is Verdict.HOLDS else f"Use {nearest_preferred(ideal):g} Ω in the RC terminator at {where}.",
-                f"Reflection coefficient {gamma:+.3f} (loads lumped here {_ohm(r_p)}).",
+                "" if v_r is Verdict.HOLDS else f"Use {nearest_preferred(ideal):g} Ω in the {part}.",
+                f"Reflection coefficient {gamma:+.3f}; other loads lumped here {_ohm(r_p)}; ideal resistor "
+                f"{_ohm(ideal)}.",
             )
         )
         if tau >= RC_ROUND_TRIPS_HOLDS * round_trip:
@@ -295,25 +363,28 @@ def check_ac_termination(bus: Bus) -> list[Finding]:
         findings.append(
             Finding(
                 "termination.rc",
-                f"RC terminator at {where}: time constant vs round trip",
+                f"RC terminator at {where}: time constant, longer than the round trip",
                 v_t,
                 tau,
-                RC_ROUND_TRIPS_HOLDS * round_trip,
+                round_trip,
                 "s",
                 None,
-                "RC >> round-trip delay 2·t_pd: HOLDS from 3 round trips, TIGHT from 1",
+                "RC >> round-trip delay 2·t_pd: holds from 3 round trips, tight from 1, breaks below",
                 _RC_SOURCE,
                 "" if v_t is Verdict.HOLDS else change + ".",
-                f"RC {si_format(tau, 's')}; round trip {si_format(round_trip, 's')}.",
+                f"RC {si_format(tau, 's')}; round trip {si_format(round_trip, 's')} (holds from "
+                f"{si_format(RC_ROUND_TRIPS_HOLDS * round_trip, 's')}). A shorter RC lets the capacitor charge "
+                "while reflections still arrive, so the end is no longer matched.",
             )
         )
-        v_b = Verdict.HOLDS if RC_SETTLE_TIME_CONSTANTS * tau <= t_bit else Verdict.TIGHT
+        settle_s = RC_SETTLE_TIME_CONSTANTS * tau
+        v_b = Verdict.HOLDS if settle_s <= t_bit else Verdict.TIGHT
         findings.append(
             Finding(
                 "termination.rc",
-                f"RC terminator at {where}: time constant vs bit",
+                f"RC terminator at {where}: settling time 3·RC, within one bit",
                 v_b,
-                RC_SETTLE_TIME_CONSTANTS * tau,
+                settle_s,
                 t_bit,
                 "s",
                 None,
@@ -322,11 +393,11 @@ def check_ac_termination(bus: Bus) -> list[Finding]:
                 ""
                 if v_b is Verdict.HOLDS
                 else (
-                    change + f", or leave at least {si_format(3 * tau, 's')} of idle after each turnaround before "
+                    change + f", or leave at least {si_format(settle_s, 's')} of idle after each turnaround before "
                     "the next transmission."
                 ),
-                f"RC {si_format(tau, 's')}, bit {si_format(t_bit, 's')}; with RC longer than that the terminator "
-                "acts as a plain resistor while data flow (the data still pass).",
+                f"3 RC {si_format(settle_s, 's')}, one bit {si_format(t_bit, 's')}; with RC longer than that the "
+                "terminator acts as a plain resistor while data flow (the data still pass).",
             )
         )
     return findings
@@ -341,6 +412,8 @@ __all__ = [
     "check_ac_termination",
     "check_termination",
     "corrected_termination_ohm",
+    "end_match",
+    "GAMMA_HOLDS",
     "placement_verdict",
     "rc_capacitance_window_f",
     "recommended_termination_ohm",

@@ -1,17 +1,16 @@
 """May the line stay unterminated? Published criteria disagree, so each is evaluated and named.
 
-t_pd is the
-trunk's one-way delay L / (VF c0), t_r the driver's rise time, T_bit = 1 / bit rate:
-  rise_vs_round_trip  t_r >= 2 t_pd (terminate when the round trip exceeds the rise time; Intersil tutorial)
-  tsb89_rise_time     t_r >= 2 t_pd (TIA TSB-89-A guideline as given in J. Axelson, Serial Port Complete)
+t_pd is the trunk's one-way delay L / (VF c0), t_r the driver's rise time, T_bit = 1 / bit rate:
+  rise_vs_round_trip  t_r >= 2 t_pd (TIA TSB-89-A guideline as given in J. Axelson, Serial Port Complete; the
+                      Intersil tutorial says the same: terminate when the round trip exceeds the rise time)
   bit_40x_delay       T_bit >= 40 t_pd (J. Axelson, Serial Port Complete)
   three_round_trips   6 t_pd <= T_bit / 2: three round trips settle before mid-bit (B&B application note)
-  field_rule          T_bit > 4 t_pd and rate < 200 kbit/s (common practice)
+  field_rule          T_bit > 4 t_pd and rate <= 200 kbit/s (common practice; 200 kbit/s at VF 0.6 -> 225 m)
 The deciding criterion is three_round_trips: whether a receiver reads the right level is decided where it
 samples, at mid-bit, and after three round trips the reflections between a low-impedance driver and an
 open end have died to a few percent; it is also the one with a published worked example (2000 ft at
-9600 bit/s needs no terminator). The rise-time criteria are stricter (no visible reflection at all, which
-edge-sensitive receivers want) and are shown as opinions beside it; the simulation may confirm or override.
+9600 bit/s needs no terminator). The rise-time criterion is stricter (no visible reflection at all, which
+edge-sensitive receivers want) and is shown beside it; the simulation may confirm or override.
 """
 
 import math
@@ -19,9 +18,9 @@ from dataclasses import dataclass
 
 from engine.bus import Bus
 from engine.findings import Finding, Verdict
-from engine.rules.cable_ends import required_ends_m
+from engine.rules.cable_ends import end_name, required_ends_m
 from engine.rules.preferred import nearest_preferred
-from engine.units import SPEED_OF_LIGHT_M_PER_S, delay_s, si_format
+from engine.units import delay_s, propagation_velocity_m_per_s, si_format
 
 FIELD_RULE_MAX_RATE_BPS = 200e3
 DECIDING_CRITERION = "three_round_trips"
@@ -54,26 +53,17 @@ def unterminated_criteria(bus: Bus) -> tuple[OmitCriterion, ...]:
     t_r = bus.driver.rise_time_s
     rate = bus.plan.bit_rate_bps
     t_bit = 1.0 / rate
-    v = bus.cable.velocity_factor * SPEED_OF_LIGHT_M_PER_S
+    v = propagation_velocity_m_per_s(bus.cable.velocity_factor)
+    slow_enough = rate <= FIELD_RULE_MAX_RATE_BPS
     rows = [
         (
             "rise_vs_round_trip",
-            "Rise time vs round trip",
+            "Round trip within the rise time",
             "round trip 2·t_pd <= driver rise time t_r",
-            "Intersil tutorial High-Speed RS-485 Transceiver and Applications",
+            "TIA TSB-89-A, as given in J. Axelson, Serial Port Complete, 2nd ed., ch. 7; Intersil tutorial "
+            "High-Speed RS-485 Transceiver and Applications (terminate when the round trip exceeds the rise time)",
             2 * t_pd,
             t_r,
-            "s",
-            t_r * v / 2,
-        ),
-        (
-            "tsb89_rise_time",
-            "TSB-89-A rise-time guideline",
-            "2 × one-way delay <= driver rise time (same inequality as above)",
-            "TIA TSB-89-A, as given in J. Axelson, Serial Port Complete, 2nd ed., ch. 7",
-            2 * t_pd,
-            t_r,
-            "s",
             t_r * v / 2,
         ),
         (
@@ -83,7 +73,6 @@ def unterminated_criteria(bus: Bus) -> tuple[OmitCriterion, ...]:
             "J. Axelson, Serial Port Complete, 2nd ed., ch. 7",
             40 * t_pd,
             t_bit,
-            "s",
             t_bit * v / 40,
         ),
         (
@@ -93,18 +82,16 @@ def unterminated_criteria(bus: Bus) -> tuple[OmitCriterion, ...]:
             "B&B Electronics RS-422/485 application note",
             6 * t_pd,
             t_bit / 2,
-            "s",
             0.5 * t_bit * v / 6,
         ),
         (
             "field_rule",
             "Field rule of thumb",
-            "bit time > 4 × t_pd and bit rate < 200 kbit/s",
+            "bit time > 4 × t_pd and bit rate <= 200 kbit/s",
             "common practice",
             4 * t_pd,
-            t_bit if rate < FIELD_RULE_MAX_RATE_BPS else 0.0,
-            "s",
-            t_bit * v / 4 if rate < FIELD_RULE_MAX_RATE_BPS else 0.0,
+            t_bit if slow_enough else 0.0,
+            t_bit * v / 4 if slow_enough else 0.0,
         ),
     ]
     return tuple(
@@ -115,12 +102,12 @@ def unterminated_criteria(bus: Bus) -> tuple[OmitCriterion, ...]:
             source,
             value,
             limit,
-            unit,
+            "s",
             holds=value <= limit if key != "field_rule" else value < limit,
             max_length_m=max_len,
             deciding=key == DECIDING_CRITERION,
         )
-        for key, name, statement, source, value, limit, unit, max_len in rows
+        for key, name, statement, source, value, limit, max_len in rows
     )
 
 
@@ -129,53 +116,69 @@ def line_may_stay_unterminated(bus: Bus) -> bool:
     return next(c for c in unterminated_criteria(bus) if c.deciding).holds
 
 
+def _criterion_line(c: OmitCriterion) -> str:
+    answer = "no terminator needed" if c.holds else "terminate"
+    if c.max_length_m > 0.0:
+        reach = f"allows up to {c.max_length_m:.0f} m unterminated at this rate and rise time"
+    else:
+        reach = f"allows no unterminated line above {FIELD_RULE_MAX_RATE_BPS / 1e3:.0f} kbit/s"
+    return (
+        f"{'[deciding] ' if c.deciding else ''}{c.name} ({c.source}): {c.statement}: "
+        f"{si_format(c.value, 's')} vs {si_format(c.limit, 's')}, {answer}; {reach}."
+    )
+
+
 def check_unterminated(bus: Bus) -> list[Finding]:
     """Rule "termination.may_omit": each published criterion with its result; three_round_trips decides."""
     criteria = unterminated_criteria(bus)
     deciding = next(c for c in criteria if c.deciding)
     others_disagree = [c for c in criteria if not c.deciding and c.holds != deciding.holds]
-    lines = [
-        f"{'[deciding] ' if c.deciding else ''}{c.name} ({c.source}): {c.statement}: "
-        f"{si_format(c.value, 's')} vs {si_format(c.limit, 's')} -> "
-        f"{'no terminator needed' if c.holds else 'terminate'}; allows up to {c.max_length_m:.0f} m unterminated."
-        for c in criteria
-    ]
     why = (
         "Three round trips before mid-bit decides: receivers sample at mid-bit, so what matters is whether the "
-        "reflections have settled by then; the stricter rise-time criteria (no visible reflection at all) are "
-        "shown as opinions."
+        "reflections have settled by then; the stricter rise-time criterion (no visible reflection at all) is "
+        "shown beside it."
     )
-    terminated = bool(bus.plan.terminations)
-    if terminated:
+    settles = "three round trips settle before mid-bit" if deciding.holds else "three round trips outlast half a bit"
+    ends = required_ends_m(bus)
+    ends_text = " and ".join(end_name(bus, e) for e in ends)
+    resistor = f"{nearest_preferred(bus.cable.z0_ohm):g} Ω"
+    if bus.plan.terminations:
         verdict = Verdict.HOLDS
-        head = "The plan terminates the line; the criteria are shown for information."
+        title = f"Terminators {'optional' if deciding.holds else 'needed'}: {settles}"
+        head = (
+            "The plan terminates the line"
+            + (", which it needs." if not deciding.holds else "; by the deciding criterion it need not.")
+            + " Placement and values are checked under termination.placement and termination.value."
+        )
     elif not deciding.holds:
         verdict = Verdict.BREAKS
+        title = f"Unterminated line: {settles}"
         head = "The plan has no terminator, and the line needs one."
     elif others_disagree:
         verdict = Verdict.TIGHT
+        title = f"Unterminated line: {settles}, other criteria disagree"
         head = "The line may stay unterminated, but " + ", ".join(c.name for c in others_disagree) + " disagree."
     else:
         verdict = Verdict.HOLDS
+        title = f"Unterminated line: {settles}"
         head = "The line may stay unterminated; every criterion agrees."
     fix = ""
     if verdict is Verdict.BREAKS:
-        ends = " and ".join(f"{e:g} m" for e in required_ends_m(bus))
         fix = (
-            f"Terminate the cable end{'s' if len(required_ends_m(bus)) > 1 else ''} at {ends} with "
-            f"{nearest_preferred(bus.cable.z0_ohm):g} Ω, or shorten the trunk to <= "
-            f"{math.floor(deciding.max_length_m):.0f} m, or lower the bit rate to <= "
-            f"{si_format(_max_unterminated_rate_bps(bus), 'bit/s')}."
+            f"Fit a {resistor} terminator at {ends_text}, or shorten the trunk to at most "
+            f"{math.floor(deciding.max_length_m):.0f} m, or lower the bit rate to at most "
+            f"{_rate_floor_text(_max_unterminated_rate_bps(bus))}."
         )
     elif verdict is Verdict.TIGHT:
         fix = (
-            "Optional: terminate the cable ends to satisfy every criterion; check the simulated waveforms "
-            "before leaving the line unterminated."
+            f"Optional: a {resistor} terminator at {ends_text} satisfies "
+            + ", ".join(c.name for c in others_disagree)
+            + " too; otherwise check the simulated waveforms before leaving the line unterminated."
         )
     return [
         Finding(
             rule_id="termination.may_omit",
-            title="May the line stay unterminated",
+            title=title,
             verdict=verdict,
             value=deciding.value,
             limit=deciding.limit,
@@ -184,7 +187,7 @@ def check_unterminated(bus: Bus) -> list[Finding]:
             criterion=f"{deciding.name}: {deciding.statement}",
             source=deciding.source,
             fix=fix,
-            detail=" ".join([head, why, *lines]),
+            detail=" ".join([head, why, *map(_criterion_line, criteria)]),
         )
     ]
 
@@ -192,6 +195,12 @@ def check_unterminated(bus: Bus) -> list[Finding]:
 def _max_unterminated_rate_bps(bus: Bus) -> float:
     """Highest rate at which three round trips still fit in half a bit: 1 / (12 t_pd)."""
     return 1.0 / (12.0 * one_way_delay_s(bus))
+
+
+def _rate_floor_text(rate_bps: float) -> str:
+    """A rate limit shown to 3 significant digits, rounded down so that following the fix really fixes it."""
+    scale = 10.0 ** (math.floor(math.log10(rate_bps)) - 2)
+    return si_format(math.floor(rate_bps / scale + 1e-9) * scale, "bit/s")
 
 
 __all__ = [

@@ -262,7 +262,7 @@ def check_receiver_voltage(bus: Bus) -> list[Finding]:
         findings.append(
             Finding(
                 RULE_ID,
-                f"DC level at '{name}'",
+                "DC level in the weaker driven state",
                 verdict,
                 v_rx,
                 RECEIVER_THRESHOLD_V,
