@@ -24,7 +24,7 @@ from engine.plan import input_resistance_ohm
 from engine.rules.loads import RS485_UNIT_LOAD_BUDGET, bias_unit_loads, design_load_ohm, receiver_loads_ohm
 from engine.rules.preferred import preferred_at_or_below
 from engine.rules.voltage import DcElement, fixed_load_elements, receiver_elements, solve_dc_v
-from engine.units import parallel_ohm
+from engine.units import parallel_ohm, si_format
 
 RULE_ID = "bias.idle_level"
 IDLE_THRESHOLD_V = 0.200  # receiver sensitivity, TIA/EIA-485-A
@@ -189,17 +189,17 @@ def bias_advice_text(bus: Bus) -> str:
         and max(plan_bias.pull_up_ohm, plan_bias.pull_down_ohm) <= r
     ):
         return (
-            f"the plan's bias is already the strongest the room allows (each resistor >= {choice.min_ohm:.0f} Ohm "
-            f"for the 32 UL budget and the 54 Ohm driver load); for more idle margin use receivers with failsafe "
+            f"the plan's bias is already the strongest the room allows (each resistor >= {choice.min_ohm:.0f} Ω "
+            f"for the 32 UL budget and the 54 Ω driver load); for more idle margin use receivers with failsafe "
             f"thresholds on every node, or RC terminators at the cable ends so the bias sees only the receivers."
         )
     if choice.fits:
-        room = " and stays within the 32 UL budget and the 54 Ohm driver load" if choice.min_ohm > 0 else ""
+        room = " and stays within the 32 UL budget and the 54 Ω driver load" if choice.min_ohm > 0 else ""
         return (
-            f"fit a pull-up of {r:g} Ohm from the {supply_v:g} V supply to A and a pull-down of {r:g} Ohm from B "
+            f"fit a pull-up of {r:g} Ω from the {supply_v:g} V supply to A and a pull-down of {r:g} Ω from B "
             f"to ground at {choice.position_m:g} m along the trunk; that idles every receiver at >= "
             f"{choice.idle_min_v * 1e3:.0f} mV allowing for the cable{room} (lumped formula: R_B,max = "
-            f"{lumped_ohm:.0f} Ohm for 200 mV). Or use receivers with failsafe thresholds on every node."
+            f"{lumped_ohm:.0f} Ω for 200 mV). Or use receivers with failsafe thresholds on every node."
         )
     parallel = [t for t in bus.plan.terminations if t.kind == "parallel"]
     rc_text = ""
@@ -214,15 +214,15 @@ def bias_advice_text(bus: Bus) -> str:
         )
         rc_choice = bias_choice(Bus(plan=rc_plan, cable=bus.cable, driver=bus.driver))
         if rc_choice.fits:
-            rc_text = f" (then {rc_choice.resistance_ohm:g} Ohm each from {supply_v:g} V will do)"
+            rc_text = f" (then {rc_choice.resistance_ohm:g} Ω each from {supply_v:g} V will do)"
     room = (
         "the nodes already take the whole 32 UL budget"
         if math.isinf(choice.min_ohm)
-        else f"the 32 UL budget and the 54 Ohm driver load need at least {choice.min_ohm:.0f} Ohm"
+        else f"the 32 UL budget and the 54 Ω driver load need at least {choice.min_ohm:.0f} Ω"
     )
     return (
         f"no pull-up / pull-down pair fits this bus{' with parallel terminators' if parallel else ''}: 200 mV at "
-        f"every receiver needs at most {choice.max_ohm:.0f} Ohm each, while {room}. Use receivers with failsafe "
+        f"every receiver needs at most {choice.max_ohm:.0f} Ω each, while {room}. Use receivers with failsafe "
         "thresholds on every node"
         + (f", or RC terminators at the cable ends so the bias sees only the receivers{rc_text}" if parallel else "")
         + ", or split the bus with a repeater."
@@ -246,15 +246,18 @@ def check_failsafe_bias(bus: Bus) -> list[Finding]:
     )
     if bus.plan.bias is None:
         # RS-422's one driver is not tri-stated in normal use, so an unbiased line is the usual design.
-        verdict = Verdict.HOLDS if bus.plan.standard == "rs422" else Verdict.BREAKS
+        rs422 = bus.plan.standard == "rs422"
+        verdict = Verdict.HOLDS if rs422 else Verdict.BREAKS
         return [
             Finding(
                 RULE_ID,
-                "Idle-bus level (no bias network)",
+                "No bias network, none needed: the single RS-422 driver stays enabled"
+                if rs422
+                else "Idle-bus level with no bias network",
                 verdict,
-                0.0,
-                IDLE_THRESHOLD_V,
-                "V",
+                None if rs422 else 0.0,
+                None if rs422 else IDLE_THRESHOLD_V,
+                "" if rs422 else "V",
                 None,
                 criterion,
                 SOURCE,
@@ -274,10 +277,9 @@ def check_failsafe_bias(bus: Bus) -> list[Finding]:
     )
     current_a = supply_v / (b.pull_up_ohm + b.pull_down_ohm + r_eq) if math.isfinite(r_eq) else 0.0
     detail = (
-        f"Lumped formula: {v_lumped:.3f} V with R_eq {r_eq:.1f} Ohm and {b.pull_up_ohm:g} / {b.pull_down_ohm:g} Ohm "
-        f"from {supply_v:g} V ({current_a * 1e3:.2f} mA); lowest along the cable {v_worst:.3f} V at '{names[k]}'. "
-        + FAILSAFE_NOTE
-        + rs422_note
+        f"Lumped formula: {v_lumped:.3f} V with R_eq {si_format(r_eq, 'Ω')} and "
+        f"{b.pull_up_ohm:g} / {b.pull_down_ohm:g} Ω from {supply_v:g} V ({current_a * 1e3:.2f} mA); lowest along "
+        f"the cable {v_worst:.3f} V at '{names[k]}'. " + FAILSAFE_NOTE + rs422_note
     )
     fix = ""
     if verdict is not Verdict.HOLDS:

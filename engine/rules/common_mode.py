@@ -118,7 +118,7 @@ def _fix(verdict: Verdict, name: str, offset_v: float, limit_v: float) -> str:
     if verdict is Verdict.TIGHT:
         return (
             f"Tie the grounds: run a signal-ground conductor beside the pair to '{name}' with a "
-            f"{SERIES_GROUND_OHM:g} Ohm resistor in series at each node, which pulls the grounds together and "
+            f"{SERIES_GROUND_OHM:g} Ω resistor in series at each node, which pulls the grounds together and "
             f"keeps the {abs(offset_v):g} V offset well inside the {abs(limit_v):g} V allowed; or isolate the node "
             "galvanically. Fit surge protection where the cable leaves a building and have the earthing designed "
             "to your local electrical codes and licensed practice."

@@ -25,7 +25,7 @@ import math
 from engine.bus import Bus
 from engine.findings import Finding, Verdict
 from engine.plan import input_resistance_ohm
-from engine.units import parallel_ohm
+from engine.units import parallel_ohm, si_format
 
 RS485_UNIT_LOAD_BUDGET = 32.0  # TIA-485-A
 RS422_MAX_RECEIVERS = 10  # TIA/EIA-422-B
@@ -41,7 +41,7 @@ LOAD_FLOOR_FRACTION = 0.95
 UNIT_LOAD_CLASSES: dict[str, float] = {"1 UL": 1.0, "1/2 UL": 0.5, "1/4 UL": 0.25, "1/8 UL": 0.125}
 
 _UL_SOURCE = "TIA-485-A unit load and 32 UL driver capability; TI SLLA166 and SLLA272 (bias networks load the bus)"
-_422_SOURCE = "TIA/EIA-422-B: one driver, up to 10 receivers of at least 4 kOhm"
+_422_SOURCE = "TIA/EIA-422-B: one driver, up to 10 receivers of at least 4 kΩ"
 
 
 def bias_unit_loads(pull_up_ohm: float, pull_down_ohm: float) -> float:
@@ -214,9 +214,9 @@ def _check_rs422_receivers(bus: Bus) -> list[Finding]:
                     limit=RS422_MIN_INPUT_OHM,
                     unit="Ω",
                     node=node.name,
-                    criterion="Each RS-422 receiver input >= 4 kOhm (3 UL at 12 kOhm per UL)",
+                    criterion="Each RS-422 receiver input >= 4 kΩ (3 UL at 12 kΩ per UL)",
                     source=_422_SOURCE,
-                    fix=f"Use a receiver at node '{node.name}' of 3 UL or less (input >= 4 kOhm).",
+                    fix=f"Use a receiver at node '{node.name}' of 3 UL or less (input >= 4 kΩ).",
                     detail=f"{node.unit_loads:g} UL -> {r_in:.0f} Ω.",
                 )
             )
@@ -296,9 +296,9 @@ def check_driver_load(bus: Bus) -> list[Finding]:
                 f" (TIGHT to {floor:.1f} Ω)"
             ),
             source=(
-                "TIA/EIA-422-B (driver into 100 Ohm, 10 receivers of 4 kOhm)"
+                "TIA/EIA-422-B (driver into 100 Ω, 10 receivers of 4 kΩ)"
                 if standard == "rs422"
-                else "TIA-485-A (driver into 54 Ohm: two 120 Ohm terminators and 32 UL); TI SLLA272"
+                else "TIA-485-A (driver into 54 Ω: two 120 Ω terminators and 32 UL); TI SLLA272"
             ),
             fix="" if verdict is Verdict.HOLDS else _driver_load_fix(bus, design),
             detail=detail,
@@ -307,7 +307,7 @@ def check_driver_load(bus: Bus) -> list[Finding]:
 
 
 def _ohm_text(value_ohm: float) -> str:
-    return "open (no load)" if not math.isfinite(value_ohm) else f"{value_ohm:.1f} Ω"
+    return "open (no load)" if not math.isfinite(value_ohm) else si_format(value_ohm, "Ω")
 
 
 def _driver_load_fix(bus: Bus, design_ohm: float) -> str:

@@ -96,7 +96,7 @@ def check_resistor_power(bus: Bus) -> list[Finding]:
         fault_rating = rating_to_buy_w(p.fault_w / DERATING)  # a fault is rare: no derating on it
         if verdict is Verdict.BREAKS:
             fix = (
-                f"The {p.label} ({p.resistance_ohm:g} Ohm) dissipates {rating_text(p.normal_w)} in normal use, "
+                f"The {p.label} ({p.resistance_ohm:g} Ω) dissipates {rating_text(p.normal_w)} in normal use, "
                 f"more than a {USUAL_MAX_W:g} W part carries with 2x derating: check its value against the cable "
                 f"impedance (terminator) or the recommended bias resistors, or buy a "
                 f"{rating_text(p.rating_w)} power resistor."
@@ -124,7 +124,7 @@ def check_resistor_power(bus: Bus) -> list[Finding]:
                 SOURCE,
                 fix=fix,
                 detail=(
-                    f"{p.resistance_ohm:g} Ohm: {rating_text(p.normal_w)} normal -> buy {rating_text(p.rating_w)}; "
+                    f"{p.resistance_ohm:g} Ω: {rating_text(p.normal_w)} normal -> buy {rating_text(p.rating_w)}; "
                     f"fault {p.fault_v:g} V -> {rating_text(p.fault_w)}, which a {rating_text(fault_rating)} part "
                     "survives."
                 ),

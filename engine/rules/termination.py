@@ -39,7 +39,7 @@ _PLACEMENT_SOURCE = (
 )
 _VALUE_SOURCE = (
     "R_T = Z0 matches the line (TI SLLA272); R_T = Z0/(1 - Z0/R_P) for lumped loads at the end (H. Johnson, "
-    "M. Graham, High-Speed Digital Design, sec. 4.4); RS-485 accepts Z0 120 +/- 30 Ohm (Intersil high-speed "
+    "M. Graham, High-Speed Digital Design, sec. 4.4); RS-485 accepts Z0 120 +/- 30 Ω (Intersil high-speed "
     "RS-485 tutorial)"
 )
 _RC_SOURCE = "B&B Electronics RS-422/485 application note (AC termination: R = Z0, RC >> round-trip delay)"

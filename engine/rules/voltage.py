@@ -31,7 +31,7 @@ NOISE_MARGIN_V = 0.300  # Pairline's allowance for noise picked up on the pair, 
 _MIN_BRANCH_OHM = 1e-6  # stands in for a zero-resistance wire or source so the nodal matrix stays regular
 SOURCE = (
     "TIA/EIA-485-A and TIA/EIA-422-B receiver sensitivity +/-200 mV; loop resistance of 24 AWG copper "
-    "84.2 Ohm/km per conductor (ASTM B258); noise margin 300 mV: Pairline's own allowance"
+    "84.2 Ω/km per conductor (ASTM B258); noise margin 300 mV: Pairline's own allowance"
 )
 
 
@@ -284,7 +284,7 @@ def _fix(bus: Bus, name: str, v_rx: float, v_bias: float) -> str:
     parts = [
         f"Raise the level at '{name}' ({v_rx * 1e3:.0f} mV) to at least "
         f"{(RECEIVER_THRESHOLD_V + NOISE_MARGIN_V) * 1e3:.0f} mV: use a heavier-gauge pair (22 AWG has 0.63 "
-        f"times the resistance of 24 AWG; the trunk's loop is now {r_loop:.0f} Ohm), shorten the run, or split "
+        f"times the resistance of 24 AWG; the trunk's loop is now {r_loop:.0f} Ω), shorten the run, or split "
         f"it with a repeater"
     ]
     if abs(v_bias) > 0.25 * max(v_rx, 1e-3):

@@ -91,7 +91,7 @@ def test_weak_1k5_bias_falls_below_threshold_and_breaks():
     finding = check_failsafe_bias(bus)[0]
     assert finding.value == pytest.approx(0.192, abs=5e-4)
     assert finding.verdict is Verdict.BREAKS
-    assert "pull-up" in finding.fix and "Ohm" in finding.fix
+    assert "pull-up" in finding.fix and "Ω" in finding.fix
 
 
 def test_no_bias_on_rs485_breaks_and_names_failsafe_receivers():
