@@ -15,11 +15,17 @@ from engine import ENGINE_VERSION
 from engine.bus import Bus, build_bus
 from engine.findings import Finding, Verdict, worst
 from engine.plan import BusInputError, BusPlan, TerminationSpec, cross_field_problems, load_plan, plan_to_dict
-from engine.rules.bias import IDLE_TARGET_V, bias_choice, bias_supply_v, check_failsafe_bias, idle_levels_v
+from engine.rules.bias import IDLE_TARGET_V, bias_choice, check_failsafe_bias, idle_levels_v
 from engine.rules.cable_ends import nearest_end_m, required_ends_m
 from engine.rules.common_mode import check_common_mode
 from engine.rules.length_rate import check_length_vs_rate, max_bit_rate_bps
-from engine.rules.loads import check_driver_load, check_unit_loads, further_nodes_for_bus, spare_unit_loads
+from engine.rules.loads import (
+    bias_supply_v,
+    check_driver_load,
+    check_unit_loads,
+    further_nodes_for_bus,
+    spare_unit_loads,
+)
 from engine.rules.power import check_resistor_power, rating_text, rating_to_buy_w, resistor_powers
 from engine.rules.preferred import nearest_preferred, preferred_at_or_above
 from engine.rules.stubs import check_stubs, max_bit_rate_for_stubs_bps, max_stub_by_node_m

@@ -21,7 +21,14 @@ import numpy as np
 from engine.bus import Bus
 from engine.findings import Finding, Verdict
 from engine.plan import input_resistance_ohm
-from engine.rules.loads import RS485_UNIT_LOAD_BUDGET, bias_unit_loads, design_load_ohm, receiver_loads_ohm
+from engine.rules.loads import (
+    RS485_UNIT_LOAD_BUDGET,
+    bias_supply_v,
+    bias_unit_loads,
+    design_load_ohm,
+    receiver_loads_ohm,
+    unit_load_parts,
+)
 from engine.rules.preferred import preferred_at_or_below
 from engine.rules.voltage import DcElement, fixed_load_elements, receiver_elements, solve_dc_v
 from engine.units import parallel_ohm, si_format
@@ -55,16 +62,8 @@ def max_bias_ohm(r_eq_ohm: float, supply_v: float, v_min_v: float = IDLE_THRESHO
 
 def idle_load_ohm(bus: Bus) -> float:
     """R_eq of the idle bus: parallel terminators || every receiver input (incl. the RS-485 driver's own)."""
-    loads = [t.resistance_ohm for t in bus.plan.terminations if t.kind == "parallel"]
-    loads += [input_resistance_ohm(n.unit_loads) for n in bus.plan.nodes]
-    if bus.plan.standard == "rs485":
-        loads.append(input_resistance_ohm(bus.driver.unit_loads))
-    return parallel_ohm(*loads)
-
-
-def bias_supply_v(bus: Bus) -> float:
-    b = bus.plan.bias
-    return b.supply_v if b is not None and b.supply_v is not None else bus.plan.supply_v
+    terminators = [t.resistance_ohm for t in bus.plan.terminations if t.kind == "parallel"]
+    return parallel_ohm(*terminators, *receiver_loads_ohm(bus))
 
 
 def bias_position_m(bus: Bus) -> float:
@@ -125,7 +124,8 @@ def bias_min_ohm(bus: Bus) -> float:
     """
     if bus.plan.standard != "rs485":
         return 0.0
-    used_ul = sum(n.unit_loads for n in bus.plan.nodes) + bus.driver.unit_loads
+    parts = unit_load_parts(bus)
+    used_ul = parts["nodes"] + parts["driver"]
     headroom_ul = RS485_UNIT_LOAD_BUDGET - used_ul
     r_ul = bias_unit_loads(1.0, 1.0) / headroom_ul if headroom_ul > 0 else math.inf
     rest_ohm = parallel_ohm(*[t.resistance_ohm for t in bus.plan.terminations], *receiver_loads_ohm(bus))

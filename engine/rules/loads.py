@@ -231,6 +231,12 @@ def receiver_loads_ohm(bus: Bus) -> list[float]:
     return loads
 
 
+def bias_supply_v(bus: Bus) -> float:
+    """The bias network's supply: its own supply_v, else the plan's supply voltage."""
+    b = bus.plan.bias
+    return b.supply_v if b is not None and b.supply_v is not None else bus.plan.supply_v
+
+
 def bias_equivalent_ohm(bus: Bus) -> float:
     """The bias network across the pair for a differential signal: R_u + R_d (the supply is an AC ground)."""
     bias = bus.plan.bias

@@ -20,6 +20,7 @@ from dataclasses import dataclass
 
 from engine.bus import Bus
 from engine.findings import Finding, Verdict
+from engine.rules.loads import bias_supply_v
 
 RULE_ID = "power.resistor"
 RATINGS_W = (0.125, 0.25, 0.5, 1.0, 2.0, 5.0, 10.0, 25.0)
@@ -69,7 +70,7 @@ def resistor_powers(bus: Bus) -> list[ResistorPower]:
         parts.append(ResistorPower(label, t.position_m, r, normal_w, fault_w, fault_term_v, rating_to_buy_w(normal_w)))
     b = bus.plan.bias
     if b is not None:
-        supply_v = b.supply_v if b.supply_v is not None else bus.plan.supply_v
+        supply_v = bias_supply_v(bus)
         up_fault_v = supply_v - FAULT_LINE_LOW_V
         for label, r, fault_v in (
             ("bias pull-up", b.pull_up_ohm, up_fault_v),

@@ -24,6 +24,7 @@ import numpy as np
 from engine.bus import Bus
 from engine.findings import Finding, Verdict
 from engine.plan import input_resistance_ohm
+from engine.rules.loads import bias_supply_v
 
 RULE_ID = "signal.dc_level"
 RECEIVER_THRESHOLD_V = 0.200  # TIA/EIA-485-A and TIA/EIA-422-B receiver input sensitivity
@@ -140,8 +141,7 @@ def fixed_load_elements(bus: Bus) -> list[DcElement]:
     ]
     if bus.plan.bias is not None:
         b = bus.plan.bias
-        supply_v = b.supply_v if b.supply_v is not None else bus.plan.supply_v
-        loads.append(DcElement("bias network", b.position_m, 0.0, b.pull_up_ohm + b.pull_down_ohm, supply_v))
+        loads.append(DcElement("bias network", b.position_m, 0.0, b.pull_up_ohm + b.pull_down_ohm, bias_supply_v(bus)))
     return loads
 
 
