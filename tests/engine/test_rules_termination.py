@@ -287,3 +287,19 @@ def test_rc_with_no_fitting_capacitor_advises_a_parallel_terminator():
 def test_rc_terminators_do_not_get_a_value_finding_of_their_own():
     values = _by_rule(check_termination(_rc_bus(100e-9)), "termination.value")
     assert [f.title for f in values] == ["Reflection at the driver's end (0 m) with its 120 Ω terminator"]
+
+
+def test_cable_ends_are_named_from_the_driver():
+    from engine.rules.cable_ends import end_name
+
+    at_end = _bus()
+    assert end_name(at_end, 0.0) == "the driver's end (0 m)" and end_name(at_end, 1000.0) == "the far end (1000 m)"
+    mid = _bus(driver_at_m=500.0)
+    assert end_name(mid, 0.0) == "the 0 m end" and end_name(mid, 1000.0) == "the 1000 m end"
+
+
+def test_present_terminator_reports_its_distance_from_the_end():
+    bus = _bus(terms=((0.0, 120.0), (999.5, 120.0)))
+    far = [f for f in _by_rule(check_termination(bus), "termination.placement") if "far end" in f.title][0]
+    assert far.title == "Terminator at the far end (1000 m): distance from the end"
+    assert (far.value, far.limit, far.unit) == (pytest.approx(0.5), 1.0, "m")
