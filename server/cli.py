@@ -127,15 +127,24 @@ def number_text(value: float, digits: int = 3) -> str:
 
 
 def allowed_text(allowed: dict[str, Any]) -> str:
-    """The allowed range or choices of a problem, for people: '50 .. 1e+08 bit/s', 'one of a, b'."""
+    """The allowed range or choices of a problem, for people: '50 bit/s .. 100 Mbit/s', 'one of a, b'."""
     unit = str(allowed.get("unit", ""))
     parts = []
     if "min" in allowed or "max" in allowed:
-        lo, hi = (_num_text(allowed.get(k)) for k in ("min", "max"))
-        parts.append(f"{lo or '-inf'} .. {hi or 'inf'} {unit}".strip())
+        lo, hi = (allowed.get(k) for k in ("min", "max"))
+        if unit in _SI_UNITS and all(isinstance(v, int | float) or v is None for v in (lo, hi)):
+            lo_text = quantity_text(float(lo), unit) if lo is not None else "-inf"
+            hi_text = quantity_text(float(hi), unit) if hi is not None else f"inf {unit}"
+            parts.append(f"{lo_text} .. {hi_text}")
+        else:
+            parts.append(f"{_num_text(lo) or '-inf'} .. {_num_text(hi) or 'inf'} {unit}".strip())
+    if "min_length" in allowed or "max_length" in allowed:
+        lo, hi = (_num_text(allowed.get(k)) for k in ("min_length", "max_length"))
+        parts.append(f"{lo or '0'} .. {hi or 'any number of'} items")
     if "choices" in allowed:
         parts.append("one of " + ", ".join(str(c) for c in allowed["choices"]))
-    parts += [f"{k}: {v}" for k, v in allowed.items() if k not in {"min", "max", "unit", "choices", "min_exclusive"}]
+    shown = {"min", "max", "unit", "choices", "min_exclusive", "min_length", "max_length"}
+    parts += [f"{k}: {v}" for k, v in allowed.items() if k not in shown]
     return "; ".join(parts) or "see message"
 
 

@@ -131,8 +131,10 @@ def test_plan_from_standard_input(monkeypatch, capsys):
 def test_allowed_ranges_read_as_ranges():
     from server.cli import allowed_text
 
-    assert allowed_text({"min": 50.0, "max": 100e6, "unit": "bit/s"}) == "50 .. 1e+08 bit/s"
-    assert allowed_text({"min": 0.0, "min_exclusive": True, "unit": "V"}) == "0 .. inf V"
+    assert allowed_text({"min": 50.0, "max": 100e6, "unit": "bit/s"}) == "50 bit/s .. 100 Mbit/s"
+    assert allowed_text({"min": 0.0, "min_exclusive": True, "unit": "V"}) == "0 V .. inf V"
+    assert allowed_text({"min": 0.1, "max": 4000.0, "unit": "m"}) == "0.1 .. 4000 m"
+    assert allowed_text({"min_length": 1, "max_length": 512}) == "1 .. 512 items"
     assert allowed_text({"choices": ["rs485", "rs422"]}) == "one of rs485, rs422"
 
 
