@@ -196,7 +196,8 @@ def bias_advice_text(bus: Bus) -> str:
     if choice.fits:
         room = " and stays within the 32 UL budget and the 54 Ω driver load" if choice.min_ohm > 0 else ""
         return (
-            f"fit a pull-up of {r:g} Ω from the {supply_v:g} V supply to A and a pull-down of {r:g} Ω from B "
+            f"fit a pull-up of {si_format(r, 'Ω')} from the {supply_v:g} V supply to A and a pull-down of "
+            f"{si_format(r, 'Ω')} from B "
             f"to ground at {choice.position_m:g} m along the trunk; that idles every receiver at >= "
             f"{choice.idle_min_v * 1e3:.0f} mV allowing for the cable{room} (lumped formula: R_B,max = "
             f"{lumped_ohm:.0f} Ω for 200 mV). Or use receivers with failsafe thresholds on every node."
@@ -214,7 +215,7 @@ def bias_advice_text(bus: Bus) -> str:
         )
         rc_choice = bias_choice(Bus(plan=rc_plan, cable=bus.cable, driver=bus.driver))
         if rc_choice.fits:
-            rc_text = f" (then {rc_choice.resistance_ohm:g} Ω each from {supply_v:g} V will do)"
+            rc_text = f" (then {si_format(rc_choice.resistance_ohm, 'Ω')} each from {supply_v:g} V will do)"
     room = (
         "the nodes already take the whole 32 UL budget"
         if math.isinf(choice.min_ohm)

@@ -123,7 +123,8 @@ def check_length_vs_rate(bus: Bus) -> list[Finding]:
     rate_fix = (
         ""
         if rate_verdict is Verdict.HOLDS
-        else f"Lower the bit rate to at most {_rate_text(LENGTH_RATE_PRODUCT_M_BPS / max(length_m, 1e-9))}, "
+        else f"Lower the bit rate to at most {_rate_text(LENGTH_RATE_PRODUCT_M_BPS / max(length_m, 1e-9), floor=True)}"
+        ", "
         f"or shorten the longest path from {length_m:.0f} m to at most {rate_limit_m:.0f} m, {repeater}."
     )
     loss = loss_db(bus, rate, length_m)
@@ -138,7 +139,7 @@ def check_length_vs_rate(bus: Bus) -> list[Finding]:
         target_len_m = target_db / (NEPER_DB * alpha)
         steps = []
         if 0.0 < target_rate < rate:
-            steps.append(f"lower the bit rate to at most {_rate_text(target_rate)}")
+            steps.append(f"lower the bit rate to at most {_rate_text(target_rate, floor=True)}")
         steps.append(f"shorten the path to at most {target_len_m:.0f} m")
         steps.append("use a lower-loss pair (thicker gauge, e.g. 22 AWG)")
         loss_fix = (
@@ -159,7 +160,7 @@ def check_length_vs_rate(bus: Bus) -> list[Finding]:
             f"over {TIGHT_FRACTION:.0%} of it is tight",
             RATE_SOURCE,
             fix=rate_fix,
-            detail=f"Longest path {length_m:.1f} m; product {length_m * rate:.3g} m bit/s. Highest rate both "
+            detail=f"Longest path {length_m:.1f} m; length × rate is {length_m * rate / LENGTH_RATE_PRODUCT_M_BPS:.2%} of 10^8 m·bit/s. Highest rate both "
             f"length rules allow here: {_rate_text(best_bps)}.",
         ),
         Finding(
@@ -185,11 +186,17 @@ def _loss_rate_text(loss_rate_bps: float) -> str:
         return "at this length even the lowest rate loses more than 9 dB."
     if loss_rate_bps >= MAX_RATE_BPS:
         return "at this length every rate up to 100 Mbit/s stays within 9 dB."
-    return f"at this length rates up to {_rate_text(loss_rate_bps)} stay within 9 dB."
+    return f"at this length rates up to {_rate_text(loss_rate_bps, floor=True)} stay within 9 dB."
 
 
-def _rate_text(rate_bps: float) -> str:
+def _rate_text(rate_bps: float, *, floor: bool = False) -> str:
+    """A rate for people, 4 significant digits (115.2 kbit/s); floor=True rounds a limit down to 3 digits so
+    that following a fix really fixes it."""
+    digits = 3 if floor else 4
+    if floor and rate_bps > 0.0:
+        scale = 10.0 ** (math.floor(math.log10(rate_bps)) - digits + 1)
+        rate_bps = math.floor(rate_bps / scale + 1e-9) * scale
     for scale, prefix in ((1e6, "M"), (1e3, "k")):
         if rate_bps >= scale:
-            return f"{rate_bps / scale:.3g} {prefix}bit/s"
-    return f"{rate_bps:.3g} bit/s"
+            return f"{rate_bps / scale:.{digits}g} {prefix}bit/s"
+    return f"{rate_bps:.{digits}g} bit/s"

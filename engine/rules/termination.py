@@ -176,7 +176,9 @@ def _placement_findings(bus: Bus) -> list[Finding]:
                 misplaced,
                 None,
                 None,
-                f"Keep one terminator at {name} and remove the other {len(terms) - 1}: "
+                f"Keep one terminator at {name} and remove the other"
+                + (f" {len(terms) - 1}" if len(terms) > 2 else "")
+                + ": "
                 + ", ".join(f"{t.resistance_ohm:g} Ω at {t.position_m:g} m" for t in terms[1:])
                 + ".",
                 f"{len(terms)} terminators in parallel at {name} load it below the cable's {bus.cable.z0_ohm:g} Ω; "

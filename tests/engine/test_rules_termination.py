@@ -147,7 +147,7 @@ def test_two_terminators_at_one_end_are_one_too_many():
     placement = _by_rule(check_termination(bus), "termination.placement")
     extra = [f for f in placement if f.verdict is Verdict.BREAKS]
     assert [f.title for f in extra] == ["2 terminators at the driver's end (0 m): one too many"]
-    assert extra[0].fix == "Keep one terminator at the driver's end (0 m) and remove the other 1: 120 Ω at 0 m."
+    assert extra[0].fix == "Keep one terminator at the driver's end (0 m) and remove the other: 120 Ω at 0 m."
 
 
 # --- value --------------------------------------------------------------------------------------------------
