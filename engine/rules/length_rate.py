@@ -160,8 +160,8 @@ def check_length_vs_rate(bus: Bus) -> list[Finding]:
             f"over {TIGHT_FRACTION:.0%} of it is tight",
             RATE_SOURCE,
             fix=rate_fix,
-            detail=f"Longest path {length_m:.1f} m; length × rate is {length_m * rate / LENGTH_RATE_PRODUCT_M_BPS:.2%} of 10^8 m·bit/s. Highest rate both "
-            f"length rules allow here: {_rate_text(best_bps)}.",
+            detail=f"Longest path {length_m:.1f} m; length × rate is {length_m * rate / LENGTH_RATE_PRODUCT_M_BPS:.2%} "
+            f"of 10^8 m·bit/s. Highest rate both length rules allow here: {_rate_text(best_bps)}.",
         ),
         Finding(
             LOSS_RULE_ID,
