@@ -7,10 +7,14 @@ t_pd is the trunk's one-way delay L / (VF c0), t_r the driver's rise time, T_bit
   three_round_trips   6 t_pd <= T_bit / 2: three round trips settle before mid-bit (B&B application note)
   field_rule          T_bit > 4 t_pd and rate <= 200 kbit/s (common practice; 200 kbit/s at VF 0.6 -> 225 m)
 The deciding criterion is three_round_trips: whether a receiver reads the right level is decided where it
-samples, at mid-bit, and after three round trips the reflections between a low-impedance driver and an
-open end have died to a few percent; it is also the one with a published worked example (2000 ft at
-9600 bit/s needs no terminator). The rise-time criterion is stricter (no visible reflection at all, which
-edge-sensitive receivers want) and is shown beside it; the simulation may confirm or override.
+samples, at mid-bit. After n round trips between the driver (source reflection Gamma_S) and an open end
+(Gamma_L = +1) the level still differs from its final value by |Gamma_S Gamma_L|^n of the step: for the
+library's 40 Ohm drivers on a 120 Ohm line Gamma_S = -0.5, so 12.5 % after three round trips, less with the
+cable's loss and the receivers' load; with a multi-volt swing that stays well clear of the 200 mV threshold.
+(A driver of near-zero source resistance would ring for longer; the simulation shows it.) It is also the
+criterion with a published worked example (2000 ft at 9600 bit/s needs no terminator). The rise-time
+criterion is stricter (no visible reflection at all, which edge-sensitive receivers want) and is shown
+beside it; the simulation may confirm or override.
 """
 
 import math
