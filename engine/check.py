@@ -15,24 +15,29 @@ from engine import ENGINE_VERSION
 from engine.bus import Bus, build_bus
 from engine.findings import Finding, Verdict, worst
 from engine.plan import BusInputError, BusPlan, TerminationSpec, cross_field_problems, load_plan, plan_to_dict
-from engine.rules.bias import check_failsafe_bias, idle_load_ohm, idle_voltage_v, recommended_bias
+from engine.rules.bias import IDLE_TARGET_V, bias_choice, check_failsafe_bias, idle_levels_v
+from engine.rules.cable_ends import nearest_end_m, required_ends_m
 from engine.rules.common_mode import check_common_mode
 from engine.rules.length_rate import check_length_vs_rate, max_bit_rate_bps
-from engine.rules.loads import check_driver_load, check_unit_loads, further_nodes_for_bus, spare_unit_loads
-from engine.rules.power import check_resistor_power, rating_to_buy_w, resistor_powers
+from engine.rules.loads import (
+    bias_supply_v,
+    check_driver_load,
+    check_unit_loads,
+    further_nodes_for_bus,
+    spare_unit_loads,
+)
+from engine.rules.power import check_resistor_power, rating_text, rating_to_buy_w, resistor_powers
+from engine.rules.preferred import nearest_preferred, preferred_at_or_above
 from engine.rules.stubs import check_stubs, max_bit_rate_for_stubs_bps, max_stub_by_node_m
 from engine.rules.termination import (
+    GAMMA_HOLDS,
     check_ac_termination,
     check_termination,
-    check_unterminated,
-    line_may_stay_unterminated,
-    nearest_end_m,
-    nearest_preferred,
-    preferred_at_or_above,
+    end_match,
     rc_capacitance_window_f,
     recommended_termination_ohm,
-    required_ends_m,
 )
+from engine.rules.unterminated import check_unterminated, line_may_stay_unterminated
 from engine.rules.voltage import check_receiver_voltage
 from engine.units import si_format
 
@@ -69,7 +74,7 @@ class BiasAdvice:
     pull_up_ohm: float
     pull_down_ohm: float
     supply_v: float
-    idle_v: float  # idle V_AB with the advised terminators, lumped formula
+    idle_v: float  # lowest idle V_AB over the receivers with the advised terminators, cable included
     power_rating_w: float  # for each resistor
 
 
@@ -126,19 +131,25 @@ def check_plan(plan: BusPlan | dict[str, Any]) -> PlanReport:
 
 
 def advised_terminations(bus: Bus) -> tuple[TerminationSpec, ...]:
-    """Terminators Pairline advises: one per cable end that needs it, value corrected for lumped loads.
+    """Terminators Pairline advises: one per cable end that needs it.
 
-    None when the plan has no terminator and the line may stay unterminated. An end keeps the plan's RC kind
-    when the plan has one there and a capacitor suits both the round trip and the bit.
+    None when the plan has no terminator and the line may stay unterminated. Where the plan already has exactly
+    one terminator at an end and it holds (|Gamma| <= 0.05; an RC one also with a capacitor that suits both the
+    round trip and the bit), the advice keeps it, so the summary only differs from the plan where a finding asks
+    for a change. Otherwise the value is Z0 corrected for the loads lumped at that end (nearest E24), as RC when
+    the plan has an RC terminator there and a capacitor suits both the round trip and the bit.
     """
     plan = bus.plan
     if not plan.terminations and line_may_stay_unterminated(bus):
         return ()
     advised = []
     for end in required_ends_m(bus):
+        at_end = [t for t in plan.terminations if nearest_end_m(bus, t.position_m) == end]
+        if len(at_end) == 1 and _terminator_holds(bus, at_end[0]):
+            advised.append(at_end[0])
+            continue
         r = recommended_termination_ohm(bus, end)
         r = nearest_preferred(r) if math.isfinite(r) else nearest_preferred(bus.cable.z0_ohm)
-        at_end = [t for t in plan.terminations if nearest_end_m(bus, t.position_m) == end]
         rc = next((t for t in at_end if t.kind == "rc"), None)
         c_lo, c_hi = rc_capacitance_window_f(bus, r)
         if rc is not None and c_lo <= c_hi:
@@ -148,6 +159,17 @@ def advised_terminations(bus: Bus) -> tuple[TerminationSpec, ...]:
         else:
             advised.append(TerminationSpec(position_m=end, kind="parallel", resistance_ohm=r))
     return tuple(advised)
+
+
+def _terminator_holds(bus: Bus, term: TerminationSpec) -> bool:
+    """The plan's terminator matches its end (|Gamma| <= 0.05) and, if RC, its capacitor suits the window."""
+    _, _, gamma = end_match(bus, term.position_m, term.resistance_ohm, [])
+    if abs(gamma) > GAMMA_HOLDS:
+        return False
+    if term.kind == "rc":
+        c_lo, c_hi = rc_capacitance_window_f(bus, term.resistance_ohm)
+        return term.capacitance_f is not None and c_lo <= term.capacitance_f <= c_hi
+    return True
 
 
 def summarise(bus: Bus) -> PlanSummary:
@@ -173,18 +195,35 @@ def summarise(bus: Bus) -> PlanSummary:
 
 
 def _bias_advice(advised_bus: Bus) -> BiasAdvice | None:
-    """Bias sized for the advised terminators; RS-422 only when the plan has a bias network."""
+    """Bias for the advised terminators; RS-422 only when the plan has a bias network.
+
+    The plan's own network is kept when, with the advised terminators, it idles every receiver at >= 250 mV,
+    keeps the unit-load budget out of its tight band and the driver load at or above its design value; else
+    engine.rules.bias.bias_choice sizes one. idle_v is the lowest idle level over the receivers, cable included.
+    """
     plan = advised_bus.plan
     if plan.standard == "rs422" and plan.bias is None:
         return None
-    supply_v = plan.bias.supply_v if plan.bias is not None and plan.bias.supply_v is not None else plan.supply_v
-    r_b, position_m = recommended_bias(advised_bus)
-    idle_v = idle_voltage_v(supply_v, r_b, r_b, idle_load_ohm(advised_bus))
-    return BiasAdvice(position_m, r_b, r_b, supply_v, idle_v, rating_to_buy_w(supply_v**2 / r_b))
+    supply_v = bias_supply_v(advised_bus)
+    if plan.bias is not None and _plan_bias_holds(advised_bus):
+        b = plan.bias
+        idle_v = float(min(idle_levels_v(advised_bus)[1]))
+        rating_w = rating_to_buy_w(supply_v**2 / min(b.pull_up_ohm, b.pull_down_ohm))
+        return BiasAdvice(b.position_m, b.pull_up_ohm, b.pull_down_ohm, supply_v, idle_v, rating_w)
+    choice = bias_choice(advised_bus)
+    r_b = choice.resistance_ohm
+    return BiasAdvice(choice.position_m, r_b, r_b, supply_v, choice.idle_min_v, rating_to_buy_w(supply_v**2 / r_b))
 
 
-def _rating_text(power_w: float) -> str:
-    return {0.125: "1/8 W", 0.25: "1/4 W", 0.5: "1/2 W"}.get(power_w, f"{power_w:g} W")
+def _plan_bias_holds(bus: Bus) -> bool:
+    levels_v = idle_levels_v(bus)[1]
+    unit_loads = [f for f in check_unit_loads(bus) if f.node is None]
+    driver_load = check_driver_load(bus)
+    return (
+        levels_v.size > 0
+        and float(min(levels_v)) >= IDLE_TARGET_V
+        and all(f.verdict is Verdict.HOLDS for f in unit_loads + driver_load)
+    )
 
 
 def _bom(terminators: tuple[TerminatorAdvice, ...], bias: BiasAdvice | None) -> tuple[BomItem, ...]:
@@ -198,7 +237,7 @@ def _bom(terminators: tuple[TerminatorAdvice, ...], bias: BiasAdvice | None) -> 
                 "Terminator resistor (across A and B)",
                 si_format(r, "Ω"),
                 len(where),
-                _rating_text(rating),
+                rating_text(rating),
                 "at " + " and ".join(f"{p:g} m" for p in where),
             )
         )
@@ -226,8 +265,9 @@ def _bom(terminators: tuple[TerminatorAdvice, ...], bias: BiasAdvice | None) -> 
                     item,
                     si_format(r, "Ω"),
                     1,
-                    _rating_text(bias.power_rating_w),
-                    f"at {bias.position_m:g} m; idle level {bias.idle_v * 1e3:.0f} mV with the advised terminators",
+                    rating_text(bias.power_rating_w),
+                    f"at {bias.position_m:g} m; every receiver idles at >= {si_format(bias.idle_v, 'V')}"
+                    + (" with the terminators above" if terminators else ""),
                 )
             )
     return tuple(items)

@@ -282,7 +282,7 @@ def cross_field_problems(data: dict[str, Any]) -> list[Problem]:
     standard = data.get("standard", "rs485")
 
     def past_end(path: str, label: str, position_m: float | None) -> None:
-        if length is not None and position_m is not None and position_m > length:
+        if length is not None and length > 0 and position_m is not None and position_m > length:
             problems.append(
                 Problem(
                     path,

@@ -7,6 +7,7 @@ and allowed range). Subcommands hang off one argparse parser, so further command
 
 import argparse
 import json
+import math
 import sys
 from collections.abc import Callable, Sequence
 from pathlib import Path
@@ -15,6 +16,7 @@ from typing import Any, TextIO
 from engine.check import PlanReport, check_plan, report_to_dict
 from engine.findings import Finding, Verdict, worst
 from engine.plan import BusInputError, Problem, load_plan
+from engine.rules.power import rating_text
 from engine.units import si_format
 
 EXIT_OK = 0
@@ -112,19 +114,37 @@ def quantity_text(value: float | None, unit: str) -> str:
         return "n/a"
     if unit in _SI_UNITS:
         return si_format(value, "Ω" if unit == "Ohm" else unit)
-    return f"{value:.3g} {unit}".strip()
+    return f"{number_text(value)} {unit}".strip()
+
+
+def number_text(value: float, digits: int = 3) -> str:
+    """A plain number to `digits` significant digits, never in exponent form: 10416.7 -> '10400', 0.0424 -> '0.0424'."""
+    if value == 0.0 or not math.isfinite(value):
+        return f"{value:g}"
+    if abs(value) >= 10.0 ** (digits - 1):
+        return f"{round(value, digits - 1 - math.floor(math.log10(abs(value)))):.0f}"
+    return f"{value:.{digits}g}"
 
 
 def allowed_text(allowed: dict[str, Any]) -> str:
-    """The allowed range or choices of a problem, for people: '50 .. 1e+08 bit/s', 'one of a, b'."""
+    """The allowed range or choices of a problem, for people: '50 bit/s .. 100 Mbit/s', 'one of a, b'."""
     unit = str(allowed.get("unit", ""))
     parts = []
     if "min" in allowed or "max" in allowed:
-        lo, hi = (_num_text(allowed.get(k)) for k in ("min", "max"))
-        parts.append(f"{lo or '-inf'} .. {hi or 'inf'} {unit}".strip())
+        lo, hi = (allowed.get(k) for k in ("min", "max"))
+        if unit in _SI_UNITS and all(isinstance(v, int | float) or v is None for v in (lo, hi)):
+            lo_text = quantity_text(float(lo), unit) if lo is not None else "-inf"
+            hi_text = quantity_text(float(hi), unit) if hi is not None else f"inf {unit}"
+            parts.append(f"{lo_text} .. {hi_text}")
+        else:
+            parts.append(f"{_num_text(lo) or '-inf'} .. {_num_text(hi) or 'inf'} {unit}".strip())
+    if "min_length" in allowed or "max_length" in allowed:
+        lo, hi = (_num_text(allowed.get(k)) for k in ("min_length", "max_length"))
+        parts.append(f"{lo or '0'} .. {hi or 'any number of'} items")
     if "choices" in allowed:
         parts.append("one of " + ", ".join(str(c) for c in allowed["choices"]))
-    parts += [f"{k}: {v}" for k, v in allowed.items() if k not in {"min", "max", "unit", "choices", "min_exclusive"}]
+    shown = {"min", "max", "unit", "choices", "min_exclusive", "min_length", "max_length"}
+    parts += [f"{k}: {v}" for k, v in allowed.items() if k not in shown]
     return "; ".join(parts) or "see message"
 
 
@@ -155,7 +175,9 @@ def problems_envelope(problems: Sequence[Problem]) -> dict[str, Any]:
 
 
 def _finding_line(f: Finding, indent: str) -> list[str]:
-    head = f"{indent}[{_MARK[f.verdict]}] {f.title}: {quantity_text(f.value, f.unit)}"
+    head = f"{indent}[{_MARK[f.verdict]}] " + (f"node '{f.node}': " if f.node else "") + f.title
+    if f.value is not None:
+        head += f": {quantity_text(f.value, f.unit)}"
     if f.limit is not None:
         head += f" (limit {quantity_text(f.limit, f.unit)})"
     lines = [head]
@@ -165,6 +187,56 @@ def _finding_line(f: Finding, indent: str) -> list[str]:
             lines.append(f"{indent}          fix: {f.fix}")
         lines.append(f"{indent}          source: {f.source}")
     return lines
+
+
+def _terminators_changed(report: PlanReport) -> bool:
+    planned = {(t.position_m, t.kind, t.resistance_ohm, t.capacitance_f) for t in report.plan.terminations}
+    advised = {(t.position_m, t.kind, t.resistance_ohm, t.capacitance_f) for t in report.summary.terminators}
+    return planned != advised
+
+
+def _terminator_summary(report: PlanReport) -> list[str]:
+    s = report.summary
+    if not s.terminators:
+        return ["  Terminators: none needed (the line may stay unterminated)"]
+    planned = {(t.position_m, t.kind, t.resistance_ohm, t.capacitance_f) for t in report.plan.terminations}
+    parts = []
+    for t in s.terminators:
+        text = (
+            f"{quantity_text(t.resistance_ohm, 'Ω')}"
+            + (f" + {quantity_text(t.capacitance_f, 'F')}" if t.capacitance_f else "")
+            + f" at {t.position_m:g} m ({rating_text(t.power_rating_w)})"
+        )
+        same = (t.position_m, t.kind, t.resistance_ohm, t.capacitance_f) in planned
+        parts.append(text + ("" if same else ", changed from the plan"))
+    return [f"  Terminators: {'; '.join(parts)}"]
+
+
+def _bias_summary(report: PlanReport) -> list[str]:
+    b, planned = report.summary.bias, report.plan.bias
+    if b is None:
+        return []
+    as_planned = planned is not None and (planned.position_m, planned.pull_up_ohm, planned.pull_down_ohm) == (
+        b.position_m,
+        b.pull_up_ohm,
+        b.pull_down_ohm,
+    )
+    with_terms = "with the terminators above" if report.summary.terminators else "with no terminators"
+    line = (
+        f"  Failsafe bias: {quantity_text(b.pull_up_ohm, 'Ω')} pull-up / {quantity_text(b.pull_down_ohm, 'Ω')} "
+        f"pull-down at {b.position_m:g} m from {b.supply_v:g} V ({rating_text(b.power_rating_w)} each); every "
+        f"receiver idles at >= {quantity_text(b.idle_v, 'V')} {with_terms}"
+    )
+    if as_planned:
+        return [line + " (the plan's own network)."]
+    if _terminators_changed(report):
+        why = (
+            "sized for the terminators above, so it can differ from the fix under bias.idle_level, which is "
+            "sized for the plan's terminators"
+        )
+    else:
+        why = "the largest standard value that keeps every receiver at >= 250 mV"
+    return [line + f" (advised: {why})."]
 
 
 def report_text(report: PlanReport, path: str = "") -> str:
@@ -213,37 +285,20 @@ def report_text(report: PlanReport, path: str = "") -> str:
     if holding:
         shown = ", ".join(holding) if len(holding) <= 12 else ", ".join(holding[:10]) + f", ... {holding[-1]}"
         out.append(f"  {len(holding)} node(s) hold every rule: {shown}")
-    out += ["", "Summary"]
-    if s.terminators:
-        terms = "; ".join(
-            f"{quantity_text(t.resistance_ohm, 'Ω')}"
-            + (f" + {quantity_text(t.capacitance_f, 'F')}" if t.capacitance_f else "")
-            + f" at {t.position_m:g} m ({_watts(t.power_rating_w)})"
-            for t in s.terminators
-        )
-        out.append(f"  Terminators: {terms}")
-    else:
-        out.append("  Terminators: none needed")
-    if s.bias is not None:
-        b = s.bias
-        out.append(
-            f"  Failsafe bias: {quantity_text(b.pull_up_ohm, 'Ω')} pull-up / {quantity_text(b.pull_down_ohm, 'Ω')} "
-            f"pull-down at {b.position_m:g} m from {b.supply_v:g} V (idle {quantity_text(b.idle_v, 'V')}, "
-            f"{_watts(b.power_rating_w)} each)"
-        )
+    out += ["", "Summary (the bus as Pairline advises it; where the plan already holds, its own parts are kept)"]
+    out += _terminator_summary(report)
+    out += _bias_summary(report)
     out.append(f"  Highest bit rate the rules allow: {quantity_text(s.max_bit_rate_bps, 'bit/s')}")
     further = ", ".join(f"{n} of {label}" for label, n in s.further_nodes.items())
-    out.append(f"  Spare unit loads: {s.spare_unit_loads:.3g}" + (f"; room for {further}" if further else ""))
+    out.append(
+        f"  Spare unit loads in the plan: {s.spare_unit_loads:.3g}" + (f"; room for {further}" if further else "")
+    )
     if s.bom:
         out.append("  Bill of materials:")
         for item in s.bom:
             out.append(f"    {item.quantity} x {item.item}, {item.value}, {item.rating}: {item.note}")
     out += ["", SAFETY_NOTE]
     return "\n".join(out)
-
-
-def _watts(rating_w: float) -> str:
-    return {0.125: "1/8 W", 0.25: "1/4 W", 0.5: "1/2 W"}.get(rating_w, f"{rating_w:g} W")
 
 
 # --- commands ---------------------------------------------------------------------------------------------

@@ -21,18 +21,21 @@ import numpy as np
 from engine.bus import Bus
 from engine.findings import Finding, Verdict
 from engine.plan import input_resistance_ohm
-from engine.rules.loads import RS485_UNIT_LOAD_BUDGET, bias_unit_loads, design_load_ohm, receiver_loads_ohm
+from engine.rules.loads import (
+    RS485_UNIT_LOAD_BUDGET,
+    bias_supply_v,
+    bias_unit_loads,
+    design_load_ohm,
+    receiver_loads_ohm,
+    unit_load_parts,
+)
+from engine.rules.preferred import preferred_at_or_below
 from engine.rules.voltage import DcElement, fixed_load_elements, receiver_elements, solve_dc_v
-from engine.units import parallel_ohm
+from engine.units import parallel_ohm, si_format
 
 RULE_ID = "bias.idle_level"
 IDLE_THRESHOLD_V = 0.200  # receiver sensitivity, TIA/EIA-485-A
 IDLE_TARGET_V = 0.250  # Pairline's target: threshold plus 50 mV for noise; below it the verdict is tight
-# IEC 60063 E24 series
-E24: tuple[float, ...] = (
-    *(1.0, 1.1, 1.2, 1.3, 1.5, 1.6, 1.8, 2.0, 2.2, 2.4, 2.7, 3.0),
-    *(3.3, 3.6, 3.9, 4.3, 4.7, 5.1, 5.6, 6.2, 6.8, 7.5, 8.2, 9.1),
-)
 _PROBE_OHM = 1e-3  # a near-ideal 1 V probe source for the ladder view
 SOURCE = (
     "Idle-bus biasing: TI SLLA272 (The RS-485 Design Guide) and B&B Electronics RS-422/485 application note; "
@@ -57,27 +60,10 @@ def max_bias_ohm(r_eq_ohm: float, supply_v: float, v_min_v: float = IDLE_THRESHO
     return 0.5 * r_eq_ohm * (supply_v / v_min_v - 1.0)
 
 
-def e24_at_or_below(resistance_ohm: float) -> float:
-    """Largest E24 resistor value not above resistance_ohm (IEC 60063)."""
-    if not math.isfinite(resistance_ohm) or resistance_ohm <= 0.0:
-        return resistance_ohm
-    decade = 10.0 ** math.floor(math.log10(resistance_ohm))
-    mantissa = max(m for m in E24 if m * decade <= resistance_ohm * (1 + 1e-9))
-    return round(mantissa * decade, 6)
-
-
 def idle_load_ohm(bus: Bus) -> float:
     """R_eq of the idle bus: parallel terminators || every receiver input (incl. the RS-485 driver's own)."""
-    loads = [t.resistance_ohm for t in bus.plan.terminations if t.kind == "parallel"]
-    loads += [input_resistance_ohm(n.unit_loads) for n in bus.plan.nodes]
-    if bus.plan.standard == "rs485":
-        loads.append(input_resistance_ohm(bus.driver.unit_loads))
-    return parallel_ohm(*loads)
-
-
-def bias_supply_v(bus: Bus) -> float:
-    b = bus.plan.bias
-    return b.supply_v if b is not None and b.supply_v is not None else bus.plan.supply_v
+    terminators = [t.resistance_ohm for t in bus.plan.terminations if t.kind == "parallel"]
+    return parallel_ohm(*terminators, *receiver_loads_ohm(bus))
 
 
 def bias_position_m(bus: Bus) -> float:
@@ -138,7 +124,8 @@ def bias_min_ohm(bus: Bus) -> float:
     """
     if bus.plan.standard != "rs485":
         return 0.0
-    used_ul = sum(n.unit_loads for n in bus.plan.nodes) + bus.driver.unit_loads
+    parts = unit_load_parts(bus)
+    used_ul = parts["nodes"] + parts["driver"]
     headroom_ul = RS485_UNIT_LOAD_BUDGET - used_ul
     r_ul = bias_unit_loads(1.0, 1.0) / headroom_ul if headroom_ul > 0 else math.inf
     rest_ohm = parallel_ohm(*[t.resistance_ohm for t in bus.plan.terminations], *receiver_loads_ohm(bus))
@@ -167,7 +154,7 @@ def bias_choice(bus: Bus) -> BiasChoice:
             if supply_v * t_min <= target_v:
                 continue
             r_max = max_bias_ohm(r_in, supply_v * t_min, IDLE_THRESHOLD_V)
-            r_hi = e24_at_or_below(max_bias_ohm(r_in, supply_v * t_min, target_v))
+            r_hi = preferred_at_or_below(max_bias_ohm(r_in, supply_v * t_min, target_v))
             idle_v = idle_voltage_v(supply_v * t_min, r_hi, r_hi, r_in)
             if r_hi >= r_min:
                 return BiasChoice(r_hi, position_m, idle_v, r_min, r_max, True)
@@ -175,7 +162,7 @@ def bias_choice(bus: Bus) -> BiasChoice:
                 fallback = BiasChoice(r_hi, position_m, idle_v, r_min, r_max, False)
     if fallback is not None:
         return fallback
-    r = e24_at_or_below(max_bias_ohm(idle_load_ohm(bus), supply_v, IDLE_TARGET_V))
+    r = preferred_at_or_below(max_bias_ohm(idle_load_ohm(bus), supply_v, IDLE_TARGET_V))
     return BiasChoice(r, bias_position_m(bus), 0.0, r_min, 0.0, False)
 
 
@@ -202,17 +189,18 @@ def bias_advice_text(bus: Bus) -> str:
         and max(plan_bias.pull_up_ohm, plan_bias.pull_down_ohm) <= r
     ):
         return (
-            f"the plan's bias is already the strongest the room allows (each resistor >= {choice.min_ohm:.0f} Ohm "
-            f"for the 32 UL budget and the 54 Ohm driver load); for more idle margin use receivers with failsafe "
+            f"the plan's bias is already the strongest the room allows (each resistor >= {choice.min_ohm:.0f} Ω "
+            f"for the 32 UL budget and the 54 Ω driver load); for more idle margin use receivers with failsafe "
             f"thresholds on every node, or RC terminators at the cable ends so the bias sees only the receivers."
         )
     if choice.fits:
-        room = " and stays within the 32 UL budget and the 54 Ohm driver load" if choice.min_ohm > 0 else ""
+        room = " and stays within the 32 UL budget and the 54 Ω driver load" if choice.min_ohm > 0 else ""
         return (
-            f"fit a pull-up of {r:g} Ohm from the {supply_v:g} V supply to A and a pull-down of {r:g} Ohm from B "
+            f"fit a pull-up of {si_format(r, 'Ω')} from the {supply_v:g} V supply to A and a pull-down of "
+            f"{si_format(r, 'Ω')} from B "
             f"to ground at {choice.position_m:g} m along the trunk; that idles every receiver at >= "
             f"{choice.idle_min_v * 1e3:.0f} mV allowing for the cable{room} (lumped formula: R_B,max = "
-            f"{lumped_ohm:.0f} Ohm for 200 mV). Or use receivers with failsafe thresholds on every node."
+            f"{lumped_ohm:.0f} Ω for 200 mV). Or use receivers with failsafe thresholds on every node."
         )
     parallel = [t for t in bus.plan.terminations if t.kind == "parallel"]
     rc_text = ""
@@ -227,15 +215,15 @@ def bias_advice_text(bus: Bus) -> str:
         )
         rc_choice = bias_choice(Bus(plan=rc_plan, cable=bus.cable, driver=bus.driver))
         if rc_choice.fits:
-            rc_text = f" (then {rc_choice.resistance_ohm:g} Ohm each from {supply_v:g} V will do)"
+            rc_text = f" (then {si_format(rc_choice.resistance_ohm, 'Ω')} each from {supply_v:g} V will do)"
     room = (
         "the nodes already take the whole 32 UL budget"
         if math.isinf(choice.min_ohm)
-        else f"the 32 UL budget and the 54 Ohm driver load need at least {choice.min_ohm:.0f} Ohm"
+        else f"the 32 UL budget and the 54 Ω driver load need at least {choice.min_ohm:.0f} Ω"
     )
     return (
         f"no pull-up / pull-down pair fits this bus{' with parallel terminators' if parallel else ''}: 200 mV at "
-        f"every receiver needs at most {choice.max_ohm:.0f} Ohm each, while {room}. Use receivers with failsafe "
+        f"every receiver needs at most {choice.max_ohm:.0f} Ω each, while {room}. Use receivers with failsafe "
         "thresholds on every node"
         + (f", or RC terminators at the cable ends so the bias sees only the receivers{rc_text}" if parallel else "")
         + ", or split the bus with a repeater."
@@ -259,15 +247,18 @@ def check_failsafe_bias(bus: Bus) -> list[Finding]:
     )
     if bus.plan.bias is None:
         # RS-422's one driver is not tri-stated in normal use, so an unbiased line is the usual design.
-        verdict = Verdict.HOLDS if bus.plan.standard == "rs422" else Verdict.BREAKS
+        rs422 = bus.plan.standard == "rs422"
+        verdict = Verdict.HOLDS if rs422 else Verdict.BREAKS
         return [
             Finding(
                 RULE_ID,
-                "Idle-bus level (no bias network)",
+                "No bias network, none needed: the single RS-422 driver stays enabled"
+                if rs422
+                else "Idle-bus level with no bias network",
                 verdict,
-                0.0,
-                IDLE_THRESHOLD_V,
-                "V",
+                None if rs422 else 0.0,
+                None if rs422 else IDLE_THRESHOLD_V,
+                "" if rs422 else "V",
                 None,
                 criterion,
                 SOURCE,
@@ -287,10 +278,9 @@ def check_failsafe_bias(bus: Bus) -> list[Finding]:
     )
     current_a = supply_v / (b.pull_up_ohm + b.pull_down_ohm + r_eq) if math.isfinite(r_eq) else 0.0
     detail = (
-        f"Lumped formula: {v_lumped:.3f} V with R_eq {r_eq:.1f} Ohm and {b.pull_up_ohm:g} / {b.pull_down_ohm:g} Ohm "
-        f"from {supply_v:g} V ({current_a * 1e3:.2f} mA); lowest along the cable {v_worst:.3f} V at '{names[k]}'. "
-        + FAILSAFE_NOTE
-        + rs422_note
+        f"Lumped formula: {v_lumped:.3f} V with R_eq {si_format(r_eq, 'Ω')} and "
+        f"{b.pull_up_ohm:g} / {b.pull_down_ohm:g} Ω from {supply_v:g} V ({current_a * 1e3:.2f} mA); lowest along "
+        f"the cable {v_worst:.3f} V at '{names[k]}'. " + FAILSAFE_NOTE + rs422_note
     )
     fix = ""
     if verdict is not Verdict.HOLDS:
@@ -298,7 +288,7 @@ def check_failsafe_bias(bus: Bus) -> list[Finding]:
     return [
         Finding(
             RULE_ID,
-            "Idle-bus level with the bias network",
+            "Idle-bus level with the plan's bias network (lowest receiver)",
             verdict,
             v_worst,
             IDLE_THRESHOLD_V,

@@ -84,7 +84,7 @@ def check_common_mode(bus: Bus) -> list[Finding]:
         findings.append(
             Finding(
                 RULE_ID,
-                f"Common mode at '{node.name}'",
+                "Ground offset against the common-mode range",
                 verdict,
                 abs(offset_v),
                 abs(limit_v),
@@ -97,7 +97,7 @@ def check_common_mode(bus: Bus) -> list[Finding]:
                 detail=(
                     f"Ground {offset_v:+g} V relative to '{against}': the wires sit between {low_v:+.1f} and "
                     f"{high_v:+.1f} V at this receiver (allowed {v_min:+g} .. {v_max:+g} V). "
-                    + (CAUTION if offset_v != 0 and verdict is Verdict.HOLDS else "")
+                    + (CAUTION if offset_v != 0 else "")
                 ).strip(),
             )
         )
@@ -118,12 +118,14 @@ def _fix(verdict: Verdict, name: str, offset_v: float, limit_v: float) -> str:
     if verdict is Verdict.TIGHT:
         return (
             f"Tie the grounds: run a signal-ground conductor beside the pair to '{name}' with a "
-            f"{SERIES_GROUND_OHM:g} Ohm resistor in series at each node, which pulls the grounds together and "
+            f"{SERIES_GROUND_OHM:g} Ω resistor in series at each node, which pulls the grounds together and "
             f"keeps the {abs(offset_v):g} V offset well inside the {abs(limit_v):g} V allowed; or isolate the node "
-            f"galvanically. " + CAUTION
+            "galvanically. Fit surge protection where the cable leaves a building and have the earthing designed "
+            "to your local electrical codes and licensed practice."
         )
     return (
         f"Isolate '{name}' galvanically (isolated transceiver and isolated supply; rated isolation in kV) so its "
         f"{abs(offset_v):g} V ground offset no longer reaches the receiver, which allows only {abs(limit_v):g} V; "
-        f"or use extended common-mode transceivers. " + CAUTION
+        "or use extended common-mode transceivers. Fit surge protection where the cable leaves a building and "
+        "have the earthing designed to your local electrical codes and licensed practice."
     )

@@ -13,8 +13,11 @@ driver; on RS-485 also transceiver nodes) along its stub, the trunk and the rece
    with R(f) the pair's loop resistance 2 R' raised by skin effect, R_dc max(1, sqrt(f / f_onset)), and
    G(f) = 2 pi f C' tan(delta). Over 9 dB breaks (the loss rule for RS-485 on twisted pair, D. Glisic,
    EE Times 2008); over 6 dB is tight (the 6 dB loss criterion quoted for the TIA/EIA-422-B Annex A curve).
-   The closed form is the high-frequency approximation; at low rates the exact DC level at each receiver is
-   what rule "signal.dc_level" checks.
+   The closed form is the high-frequency approximation (valid where R << 2 pi f L, above about 100 kHz on
+   24 AWG). Below that it is not the line's attenuation constant Re(gamma), which falls towards 0 with f, but
+   it stays close to and above the DC insertion loss between Z0 terminations, ln(1 + R L / 2 Z0) Np against
+   R L / 2 Z0 Np (1150 m of 24 AWG: 5.1 dB against 7.0 dB), so the rule is conservative at low rates. The exact
+   DC level at each receiver is what rule "signal.dc_level" checks.
 """
 
 import math
@@ -120,7 +123,8 @@ def check_length_vs_rate(bus: Bus) -> list[Finding]:
     rate_fix = (
         ""
         if rate_verdict is Verdict.HOLDS
-        else f"Lower the bit rate to at most {_rate_text(LENGTH_RATE_PRODUCT_M_BPS / max(length_m, 1e-9))}, "
+        else f"Lower the bit rate to at most {_rate_text(LENGTH_RATE_PRODUCT_M_BPS / max(length_m, 1e-9), floor=True)}"
+        ", "
         f"or shorten the longest path from {length_m:.0f} m to at most {rate_limit_m:.0f} m, {repeater}."
     )
     loss = loss_db(bus, rate, length_m)
@@ -135,7 +139,7 @@ def check_length_vs_rate(bus: Bus) -> list[Finding]:
         target_len_m = target_db / (NEPER_DB * alpha)
         steps = []
         if 0.0 < target_rate < rate:
-            steps.append(f"lower the bit rate to at most {_rate_text(target_rate)}")
+            steps.append(f"lower the bit rate to at most {_rate_text(target_rate, floor=True)}")
         steps.append(f"shorten the path to at most {target_len_m:.0f} m")
         steps.append("use a lower-loss pair (thicker gauge, e.g. 22 AWG)")
         loss_fix = (
@@ -146,7 +150,7 @@ def check_length_vs_rate(bus: Bus) -> list[Finding]:
     return [
         Finding(
             RATE_RULE_ID,
-            "Length x bit rate rule of thumb",
+            "Longest signal path (length × bit rate <= 10^8 m·bit/s)",
             rate_verdict,
             length_m,
             rate_limit_m,
@@ -156,12 +160,12 @@ def check_length_vs_rate(bus: Bus) -> list[Finding]:
             f"over {TIGHT_FRACTION:.0%} of it is tight",
             RATE_SOURCE,
             fix=rate_fix,
-            detail=f"Longest path {length_m:.1f} m; product {length_m * rate:.3g} m bit/s. Highest rate both "
-            f"length rules allow here: {_rate_text(best_bps)}.",
+            detail=f"Longest path {length_m:.1f} m; length × rate is {length_m * rate / LENGTH_RATE_PRODUCT_M_BPS:.2%} "
+            f"of 10^8 m·bit/s. Highest rate both length rules allow here: {_rate_text(best_bps)}.",
         ),
         Finding(
             LOSS_RULE_ID,
-            "Cable loss at the bit rate",
+            "Cable loss over the longest path at f = bit rate",
             loss_verdict,
             loss,
             LOSS_LIMIT_DB,
@@ -182,11 +186,17 @@ def _loss_rate_text(loss_rate_bps: float) -> str:
         return "at this length even the lowest rate loses more than 9 dB."
     if loss_rate_bps >= MAX_RATE_BPS:
         return "at this length every rate up to 100 Mbit/s stays within 9 dB."
-    return f"at this length rates up to {_rate_text(loss_rate_bps)} stay within 9 dB."
+    return f"at this length rates up to {_rate_text(loss_rate_bps, floor=True)} stay within 9 dB."
 
 
-def _rate_text(rate_bps: float) -> str:
+def _rate_text(rate_bps: float, *, floor: bool = False) -> str:
+    """A rate for people, 4 significant digits (115.2 kbit/s); floor=True rounds a limit down to 3 digits so
+    that following a fix really fixes it."""
+    digits = 3 if floor else 4
+    if floor and rate_bps > 0.0:
+        scale = 10.0 ** (math.floor(math.log10(rate_bps)) - digits + 1)
+        rate_bps = math.floor(rate_bps / scale + 1e-9) * scale
     for scale, prefix in ((1e6, "M"), (1e3, "k")):
         if rate_bps >= scale:
-            return f"{rate_bps / scale:.3g} {prefix}bit/s"
-    return f"{rate_bps:.3g} bit/s"
+            return f"{rate_bps / scale:.{digits}g} {prefix}bit/s"
+    return f"{rate_bps:.{digits}g} bit/s"

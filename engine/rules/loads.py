@@ -25,7 +25,7 @@ import math
 from engine.bus import Bus
 from engine.findings import Finding, Verdict
 from engine.plan import input_resistance_ohm
-from engine.units import parallel_ohm
+from engine.units import parallel_ohm, si_format
 
 RS485_UNIT_LOAD_BUDGET = 32.0  # TIA-485-A
 RS422_MAX_RECEIVERS = 10  # TIA/EIA-422-B
@@ -41,7 +41,7 @@ LOAD_FLOOR_FRACTION = 0.95
 UNIT_LOAD_CLASSES: dict[str, float] = {"1 UL": 1.0, "1/2 UL": 0.5, "1/4 UL": 0.25, "1/8 UL": 0.125}
 
 _UL_SOURCE = "TIA-485-A unit load and 32 UL driver capability; TI SLLA166 and SLLA272 (bias networks load the bus)"
-_422_SOURCE = "TIA/EIA-422-B: one driver, up to 10 receivers of at least 4 kOhm"
+_422_SOURCE = "TIA/EIA-422-B: one driver, up to 10 receivers of at least 4 kΩ"
 
 
 def bias_unit_loads(pull_up_ohm: float, pull_down_ohm: float) -> float:
@@ -163,8 +163,16 @@ def _unit_load_fix(bus: Bus, parts: dict[str, float], total: float) -> str:
         rated = next((ul for ul in UNIT_LOAD_CLASSES.values() if ul <= per_node), None)
         if rated is not None:
             steps.append(f"use receivers of {rated:g} UL or less on all {n_nodes} nodes")
-    if parts["bias"] > 1.0:
-        steps.append(f"raise the bias resistors (the bias network takes {parts['bias']:.1f} UL)")
+    bias = bus.plan.bias
+    if bias is not None and parts["bias"] > 1.0:
+        bias_room = (1.0 - TIGHT_SPARE_FRACTION) * RS485_UNIT_LOAD_BUDGET - parts["nodes"] - parts["driver"]
+        now = f"{min(bias.pull_up_ohm, bias.pull_down_ohm):g} Ω, {parts['bias']:.1f} UL"
+        if bias_room > 0:
+            steps.append(
+                f"raise each bias resistor to at least {math.ceil(UNIT_LOAD_OHM / bias_room):.0f} Ω (now {now})"
+            )
+        else:
+            steps.append(f"raise the bias resistors (now {now})")
     steps.append("or split the bus with a repeater, which starts a fresh 32 UL budget (B&B RS-422/485 notes)")
     return "To fit 32 UL: " + "; ".join(steps) + "."
 
@@ -206,9 +214,9 @@ def _check_rs422_receivers(bus: Bus) -> list[Finding]:
                     limit=RS422_MIN_INPUT_OHM,
                     unit="Ω",
                     node=node.name,
-                    criterion="Each RS-422 receiver input >= 4 kOhm (3 UL at 12 kOhm per UL)",
+                    criterion="Each RS-422 receiver input >= 4 kΩ (3 UL at 12 kΩ per UL)",
                     source=_422_SOURCE,
-                    fix=f"Use a receiver at node '{node.name}' of 3 UL or less (input >= 4 kOhm).",
+                    fix=f"Use a receiver at node '{node.name}' of 3 UL or less (input >= 4 kΩ).",
                     detail=f"{node.unit_loads:g} UL -> {r_in:.0f} Ω.",
                 )
             )
@@ -221,6 +229,12 @@ def receiver_loads_ohm(bus: Bus) -> list[float]:
     if bus.plan.standard == "rs485":
         loads.append(input_resistance_ohm(bus.driver.unit_loads))
     return loads
+
+
+def bias_supply_v(bus: Bus) -> float:
+    """The bias network's supply: its own supply_v, else the plan's supply voltage."""
+    b = bus.plan.bias
+    return b.supply_v if b is not None and b.supply_v is not None else bus.plan.supply_v
 
 
 def bias_equivalent_ohm(bus: Bus) -> float:
@@ -277,7 +291,7 @@ def check_driver_load(bus: Bus) -> list[Finding]:
     return [
         Finding(
             rule_id="load.driver",
-            title="Total load on the driver",
+            title="Load on the driver (terminators, receivers and bias across the pair)",
             verdict=verdict,
             value=edge_ohm,
             limit=design,
@@ -288,9 +302,9 @@ def check_driver_load(bus: Bus) -> list[Finding]:
                 f" (TIGHT to {floor:.1f} Ω)"
             ),
             source=(
-                "TIA/EIA-422-B (driver into 100 Ohm, 10 receivers of 4 kOhm)"
+                "TIA/EIA-422-B (driver into 100 Ω, 10 receivers of 4 kΩ)"
                 if standard == "rs422"
-                else "TIA-485-A (driver into 54 Ohm: two 120 Ohm terminators and 32 UL); TI SLLA272"
+                else "TIA-485-A (driver into 54 Ω: two 120 Ω terminators and 32 UL); TI SLLA272"
             ),
             fix="" if verdict is Verdict.HOLDS else _driver_load_fix(bus, design),
             detail=detail,
@@ -299,7 +313,7 @@ def check_driver_load(bus: Bus) -> list[Finding]:
 
 
 def _ohm_text(value_ohm: float) -> str:
-    return "open (no load)" if not math.isfinite(value_ohm) else f"{value_ohm:.1f} Ω"
+    return "open (no load)" if not math.isfinite(value_ohm) else si_format(value_ohm, "Ω")
 
 
 def _driver_load_fix(bus: Bus, design_ohm: float) -> str:

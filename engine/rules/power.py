@@ -20,6 +20,7 @@ from dataclasses import dataclass
 
 from engine.bus import Bus
 from engine.findings import Finding, Verdict
+from engine.rules.loads import bias_supply_v
 
 RULE_ID = "power.resistor"
 RATINGS_W = (0.125, 0.25, 0.5, 1.0, 2.0, 5.0, 10.0, 25.0)
@@ -69,7 +70,7 @@ def resistor_powers(bus: Bus) -> list[ResistorPower]:
         parts.append(ResistorPower(label, t.position_m, r, normal_w, fault_w, fault_term_v, rating_to_buy_w(normal_w)))
     b = bus.plan.bias
     if b is not None:
-        supply_v = b.supply_v if b.supply_v is not None else bus.plan.supply_v
+        supply_v = bias_supply_v(bus)
         up_fault_v = supply_v - FAULT_LINE_LOW_V
         for label, r, fault_v in (
             ("bias pull-up", b.pull_up_ohm, up_fault_v),
@@ -96,15 +97,16 @@ def check_resistor_power(bus: Bus) -> list[Finding]:
         fault_rating = rating_to_buy_w(p.fault_w / DERATING)  # a fault is rare: no derating on it
         if verdict is Verdict.BREAKS:
             fix = (
-                f"The {p.label} ({p.resistance_ohm:g} Ohm) dissipates {_w(p.normal_w)} in normal use, more than a "
-                f"{USUAL_MAX_W:g} W part carries with 2x derating: check its value against the cable impedance "
-                f"(terminator) or the recommended bias resistors, or buy a {_w(p.rating_w)} power resistor."
+                f"The {p.label} ({p.resistance_ohm:g} Ω) dissipates {rating_text(p.normal_w)} in normal use, "
+                f"more than a {USUAL_MAX_W:g} W part carries with 2x derating: check its value against the cable "
+                f"impedance (terminator) or the recommended bias resistors, or buy a "
+                f"{rating_text(p.rating_w)} power resistor."
             )
         elif verdict is Verdict.TIGHT:
             fix = (
-                f"Buy {_w(p.rating_w)} for the {p.label}; a sustained fault with {p.fault_v:g} V across it puts "
-                f"{_w(p.fault_w)} into it, so either buy {_w(fault_rating)} or protect the bus against "
-                f"miswiring to supplies (fuse or PTC in the line, transient suppressors to ground)."
+                f"Buy {rating_text(p.rating_w)} for the {p.label}; a sustained fault with {p.fault_v:g} V across "
+                f"it puts {rating_text(p.fault_w)} into it, so either buy {rating_text(fault_rating)} or protect "
+                f"the bus against miswiring to supplies (fuse or PTC in the line, transient suppressors to ground)."
             )
         else:
             fix = ""
@@ -123,16 +125,20 @@ def check_resistor_power(bus: Bus) -> list[Finding]:
                 SOURCE,
                 fix=fix,
                 detail=(
-                    f"{p.resistance_ohm:g} Ohm: {_w(p.normal_w)} normal -> buy {_w(p.rating_w)}; fault "
-                    f"{p.fault_v:g} V -> {_w(p.fault_w)}, which a {_w(fault_rating)} part survives."
+                    f"{p.resistance_ohm:g} Ω: {rating_text(p.normal_w)} normal -> buy {rating_text(p.rating_w)}; "
+                    f"fault {p.fault_v:g} V -> {rating_text(p.fault_w)}, which a {rating_text(fault_rating)} part "
+                    "survives."
                 ),
             )
         )
     return findings
 
 
-def _w(power_w: float) -> str:
-    fractions = {0.125: "1/8 W", 0.25: "1/4 W", 0.5: "1/2 W"}
-    if power_w in fractions:
-        return fractions[power_w]
+def rating_text(power_w: float) -> str:
+    """A power for people: the usual ratings as fractions (1/8, 1/4, 1/2 W), else mW below 1 W, else W."""
+    if power_w in _FRACTIONS:
+        return _FRACTIONS[power_w]
     return f"{power_w * 1e3:.1f} mW" if power_w < 1.0 else f"{power_w:.3g} W"
+
+
+_FRACTIONS = {0.125: "1/8 W", 0.25: "1/4 W", 0.5: "1/2 W"}

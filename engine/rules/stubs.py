@@ -100,7 +100,7 @@ def check_stubs(bus: Bus) -> list[Finding]:
         findings.append(
             Finding(
                 rule_id="stub.length",
-                title="Stub length vs driver rise time",
+                title="Stub length (delay within a tenth of the rise time)",
                 verdict=verdict,
                 value=length,
                 limit=limit,

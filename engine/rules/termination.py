@@ -1,11 +1,8 @@
-"""Termination: where the terminators sit, their values, RC terminators, and whether the line may go without.
+"""Termination: where the terminators sit, their values, and RC (AC) terminators.
 
-Placement. RS-485 traffic runs both ways, so the trunk is terminated at its two physical cable ends (0 m
-and trunk_length_m), wherever the driver sits (TI SLLA272; B&B RS-422/485 application note). A single-driver
-RS-422 line with its driver at one end is terminated at the far end only: the driver's low output impedance
-ends its own side (National Semiconductor AN-903); with the driver mid-bus both ends are terminated.
-A terminator counts as "at the end" within the end tolerance: the smaller of 1 m and the stub limit of
-engine.rules.stubs, since the cable left beyond the terminator is an open stub.
+Placement. One terminator at each cable end that needs one (engine.rules.cable_ends: both ends for RS-485,
+the far end for RS-422 driven from one end), none elsewhere. Whether a missing or misplaced terminator
+breaks the bus depends on whether the line may stay unterminated (engine.rules.unterminated).
 
 Value. A matched end presents Z0. Receivers or a bias network lumped at the same end (within the end
 tolerance) sit in parallel with the terminator, so the resistor is raised to R_T = Z0 / (1 - Z0/R_P)
@@ -13,19 +10,6 @@ tolerance) sit in parallel with the terminator, so the resistor is raised to R_T
 coefficient of the whole end, Gamma = (R_T||R_P - Z0)/(R_T||R_P + Z0): HOLDS |Gamma| <= 0.05 (about 10 % off),
 TIGHT <= 0.12, which covers a 120 Ohm terminator on the 100..150 Ohm cables RS-485 accepts (120 +/- 30 Ohm,
 Intersil high-speed RS-485 tutorial), BREAKS beyond.
-
-May the line stay unterminated. Published criteria disagree, so each is evaluated and named; t_pd is the
-trunk's one-way delay L / (VF c0), t_r the driver's rise time, T_bit = 1 / bit rate:
-  rise_vs_round_trip  t_r >= 2 t_pd (terminate when the round trip exceeds the rise time; Intersil tutorial)
-  tsb89_rise_time     t_r >= 2 t_pd (TIA TSB-89-A guideline as given in J. Axelson, Serial Port Complete)
-  bit_40x_delay       T_bit >= 40 t_pd (J. Axelson, Serial Port Complete)
-  three_round_trips   6 t_pd <= T_bit / 2: three round trips settle before mid-bit (B&B application note)
-  field_rule          T_bit > 4 t_pd and rate < 200 kbit/s (common practice)
-The deciding criterion is three_round_trips: whether a receiver reads the right level is decided where it
-samples, at mid-bit, and after three round trips the reflections between a low-impedance driver and an
-open end have died to a few percent; it is also the one with a published worked example (2000 ft at
-9600 bit/s needs no terminator). The rise-time criteria are stricter (no visible reflection at all, which
-edge-sensitive receivers want) and are shown as opinions beside it; the simulation may confirm or override.
 
 RC (AC) terminators. R should match Z0 as above; the time constant RC should be long against the round
 trip, so the capacitor still looks like a short while reflections arrive (RC >> 2 t_pd; B&B application
@@ -35,24 +19,19 @@ reaches its bias level only about 3 RC after the drivers release, so HOLDS when 
 """
 
 import math
-from dataclasses import dataclass
 
 from engine.bus import Bus
 from engine.findings import Finding, Verdict, worst
-from engine.plan import TerminationSpec, input_resistance_ohm
-from engine.rules.stubs import max_stub_length_m
-from engine.units import SPEED_OF_LIGHT_M_PER_S, delay_s, parallel_ohm, si_format
+from engine.plan import TerminationSpec
+from engine.rules.cable_ends import end_name, end_tolerance_m, lumped_load_ohm, nearest_end_m, required_ends_m
+from engine.rules.preferred import nearest_preferred
+from engine.rules.unterminated import line_may_stay_unterminated, one_way_delay_s
+from engine.units import parallel_ohm, si_format
 
-END_TOLERANCE_CAP_M = 1.0
 GAMMA_HOLDS = 0.05
 GAMMA_TIGHT = 0.12
 RC_ROUND_TRIPS_HOLDS = 3.0
 RC_SETTLE_TIME_CONSTANTS = 3.0
-FIELD_RULE_MAX_RATE_BPS = 200e3
-DECIDING_CRITERION = "three_round_trips"
-E24: tuple[float, ...] = (1.0, 1.1, 1.2, 1.3, 1.5, 1.6, 1.8, 2.0, 2.2, 2.4, 2.7, 3.0, 3.3, 3.6, 3.9, 4.3, 4.7)
-E24 += (5.1, 5.6, 6.2, 6.8, 7.5, 8.2, 9.1)  # IEC 60063
-E6: tuple[float, ...] = (1.0, 1.5, 2.2, 3.3, 4.7, 6.8)  # IEC 60063
 
 _PLACEMENT_SOURCE = (
     "TI SLLA272 The RS-485 Design Guide and B&B Electronics RS-422/485 application note (both cable ends); "
@@ -60,7 +39,7 @@ _PLACEMENT_SOURCE = (
 )
 _VALUE_SOURCE = (
     "R_T = Z0 matches the line (TI SLLA272); R_T = Z0/(1 - Z0/R_P) for lumped loads at the end (H. Johnson, "
-    "M. Graham, High-Speed Digital Design, sec. 4.4); RS-485 accepts Z0 120 +/- 30 Ohm (Intersil high-speed "
+    "M. Graham, High-Speed Digital Design, sec. 4.4); RS-485 accepts Z0 120 +/- 30 Ω (Intersil high-speed "
     "RS-485 tutorial)"
 )
 _RC_SOURCE = "B&B Electronics RS-422/485 application note (AC termination: R = Z0, RC >> round-trip delay)"
@@ -92,234 +71,12 @@ def corrected_termination_ohm(z0_ohm: float, parallel_load_ohm: float) -> float:
     return z0_ohm / (1.0 - z0_ohm / parallel_load_ohm)
 
 
-def nearest_preferred(value: float, series: tuple[float, ...] = E24) -> float:
-    """The nearest value of an IEC 60063 preferred series (nearest on a log scale)."""
-    if not math.isfinite(value) or value <= 0.0:
-        return value
-    decade = 10.0 ** math.floor(math.log10(value))
-    candidates = [m * decade for m in series] + [10.0 * decade]
-    best = min(candidates, key=lambda c: abs(math.log(c / value)))
-    return float(f"{best:.6g}")
-
-
-def preferred_at_or_above(value: float, series: tuple[float, ...] = E6) -> float:
-    """The smallest preferred-series value at or above value (IEC 60063)."""
-    decade = 10.0 ** math.floor(math.log10(value))
-    candidates = [m * decade for m in series] + [10.0 * decade]
-    return float(f"{min(c for c in candidates if c >= value * (1 - 1e-9)):.6g}")
-
-
-def one_way_delay_s(bus: Bus) -> float:
-    """The trunk's one-way delay t_pd = L / (VF c0)."""
-    return delay_s(bus.plan.trunk_length_m, bus.cable.velocity_factor)
-
-
 # --- where terminators belong ---------------------------------------------------------------------------
-
-
-def end_tolerance_m(bus: Bus) -> float:
-    """How far from a cable end a terminator may sit and still count as at the end: min(1 m, stub limit)."""
-    return min(END_TOLERANCE_CAP_M, max_stub_length_m(bus.driver.rise_time_s, bus.cable.velocity_factor))
-
-
-def nearest_end_m(bus: Bus, position_m: float) -> float | None:
-    """The cable end (0 or trunk length) within the end tolerance of a position, nearest first; else None."""
-    length = bus.plan.trunk_length_m
-    tol = end_tolerance_m(bus)
-    end = 0.0 if position_m <= length - position_m else length
-    return end if abs(position_m - end) <= tol + 1e-12 else None
-
-
-def required_ends_m(bus: Bus) -> tuple[float, ...]:
-    """Cable ends that need a terminator: RS-485 both; RS-422 the far end, or both if the driver is mid-bus."""
-    length = bus.plan.trunk_length_m
-    if bus.plan.standard == "rs422":
-        driver_end = nearest_end_m(bus, bus.plan.driver.position_m)
-        if driver_end is not None:
-            return (length,) if driver_end == 0.0 else (0.0,)
-    return (0.0, length)
-
-
-def lumped_load_ohm(bus: Bus, position_m: float) -> float:
-    """Receivers (and the bias network) within the end tolerance of a position, in parallel: R_P."""
-    tol = end_tolerance_m(bus)
-    plan = bus.plan
-    loads = [input_resistance_ohm(n.unit_loads) for n in plan.nodes if abs(n.position_m - position_m) <= tol]
-    if plan.standard == "rs485" and abs(plan.driver.position_m - position_m) <= tol:
-        loads.append(input_resistance_ohm(bus.driver.unit_loads))
-    if plan.bias is not None and abs(plan.bias.position_m - position_m) <= tol:
-        loads.append(plan.bias.pull_up_ohm + plan.bias.pull_down_ohm)
-    return parallel_ohm(*loads)
 
 
 def recommended_termination_ohm(bus: Bus, end_m: float) -> float:
     """The exact terminator for one cable end: Z0 corrected for the loads lumped there."""
     return corrected_termination_ohm(bus.cable.z0_ohm, lumped_load_ohm(bus, end_m))
-
-
-# --- may the line stay unterminated ---------------------------------------------------------------------
-
-
-@dataclass(frozen=True, slots=True)
-class OmitCriterion:
-    """One published answer to "may this line stay unterminated?"."""
-
-    key: str
-    name: str
-    statement: str  # the inequality
-    source: str
-    value: float  # left side, in unit
-    limit: float  # right side, in unit
-    unit: str
-    holds: bool  # True: by this criterion no terminator is needed
-    max_length_m: float  # longest unterminated trunk this criterion allows at the plan's rate and rise time
-    deciding: bool
-
-
-def unterminated_criteria(bus: Bus) -> tuple[OmitCriterion, ...]:
-    """Every published unterminated-line criterion evaluated on the plan; exactly one is marked deciding."""
-    t_pd = one_way_delay_s(bus)
-    t_r = bus.driver.rise_time_s
-    rate = bus.plan.bit_rate_bps
-    t_bit = 1.0 / rate
-    v = bus.cable.velocity_factor * SPEED_OF_LIGHT_M_PER_S
-    rows = [
-        (
-            "rise_vs_round_trip",
-            "Rise time vs round trip",
-            "round trip 2·t_pd <= driver rise time t_r",
-            "Intersil tutorial High-Speed RS-485 Transceiver and Applications",
-            2 * t_pd,
-            t_r,
-            "s",
-            t_r * v / 2,
-        ),
-        (
-            "tsb89_rise_time",
-            "TSB-89-A rise-time guideline",
-            "2 × one-way delay <= driver rise time (same inequality as above)",
-            "TIA TSB-89-A, as given in J. Axelson, Serial Port Complete, 2nd ed., ch. 7",
-            2 * t_pd,
-            t_r,
-            "s",
-            t_r * v / 2,
-        ),
-        (
-            "bit_40x_delay",
-            "Bit at least 40 one-way delays",
-            "40 × t_pd <= bit time",
-            "J. Axelson, Serial Port Complete, 2nd ed., ch. 7",
-            40 * t_pd,
-            t_bit,
-            "s",
-            t_bit * v / 40,
-        ),
-        (
-            "three_round_trips",
-            "Three round trips before mid-bit",
-            "3 round trips (6·t_pd) <= half a bit",
-            "B&B Electronics RS-422/485 application note",
-            6 * t_pd,
-            t_bit / 2,
-            "s",
-            0.5 * t_bit * v / 6,
-        ),
-        (
-            "field_rule",
-            "Field rule of thumb",
-            "bit time > 4 × t_pd and bit rate < 200 kbit/s",
-            "common practice",
-            4 * t_pd,
-            t_bit if rate < FIELD_RULE_MAX_RATE_BPS else 0.0,
-            "s",
-            t_bit * v / 4 if rate < FIELD_RULE_MAX_RATE_BPS else 0.0,
-        ),
-    ]
-    return tuple(
-        OmitCriterion(
-            key,
-            name,
-            statement,
-            source,
-            value,
-            limit,
-            unit,
-            holds=value <= limit if key != "field_rule" else value < limit,
-            max_length_m=max_len,
-            deciding=key == DECIDING_CRITERION,
-        )
-        for key, name, statement, source, value, limit, unit, max_len in rows
-    )
-
-
-def line_may_stay_unterminated(bus: Bus) -> bool:
-    """The deciding criterion's answer (three round trips settle before mid-bit)."""
-    return next(c for c in unterminated_criteria(bus) if c.deciding).holds
-
-
-def check_unterminated(bus: Bus) -> list[Finding]:
-    """Rule "termination.may_omit": each published criterion with its result; three_round_trips decides."""
-    criteria = unterminated_criteria(bus)
-    deciding = next(c for c in criteria if c.deciding)
-    others_disagree = [c for c in criteria if not c.deciding and c.holds != deciding.holds]
-    lines = [
-        f"{'[deciding] ' if c.deciding else ''}{c.name} ({c.source}): {c.statement}: "
-        f"{si_format(c.value, 's')} vs {si_format(c.limit, 's')} -> "
-        f"{'no terminator needed' if c.holds else 'terminate'}; allows up to {c.max_length_m:.0f} m unterminated."
-        for c in criteria
-    ]
-    why = (
-        "Three round trips before mid-bit decides: receivers sample at mid-bit, so what matters is whether the "
-        "reflections have settled by then; the stricter rise-time criteria (no visible reflection at all) are "
-        "shown as opinions."
-    )
-    terminated = bool(bus.plan.terminations)
-    if terminated:
-        verdict = Verdict.HOLDS
-        head = "The plan terminates the line; the criteria are shown for information."
-    elif not deciding.holds:
-        verdict = Verdict.BREAKS
-        head = "The plan has no terminator, and the line needs one."
-    elif others_disagree:
-        verdict = Verdict.TIGHT
-        head = "The line may stay unterminated, but " + ", ".join(c.name for c in others_disagree) + " disagree."
-    else:
-        verdict = Verdict.HOLDS
-        head = "The line may stay unterminated; every criterion agrees."
-    fix = ""
-    if verdict is Verdict.BREAKS:
-        ends = " and ".join(f"{e:g} m" for e in required_ends_m(bus))
-        fix = (
-            f"Terminate the cable end{'s' if len(required_ends_m(bus)) > 1 else ''} at {ends} with "
-            f"{nearest_preferred(bus.cable.z0_ohm):g} Ω, or shorten the trunk to <= "
-            f"{math.floor(deciding.max_length_m):.0f} m, or lower the bit rate to <= "
-            f"{si_format(_max_unterminated_rate_bps(bus), 'bit/s')}."
-        )
-    elif verdict is Verdict.TIGHT:
-        fix = (
-            "Optional: terminate the cable ends to satisfy every criterion; check the simulated waveforms "
-            "before leaving the line unterminated."
-        )
-    return [
-        Finding(
-            rule_id="termination.may_omit",
-            title="May the line stay unterminated",
-            verdict=verdict,
-            value=deciding.value,
-            limit=deciding.limit,
-            unit="s",
-            node=None,
-            criterion=f"{deciding.name}: {deciding.statement}",
-            source=deciding.source,
-            fix=fix,
-            detail=" ".join([head, why, *lines]),
-        )
-    ]
-
-
-def _max_unterminated_rate_bps(bus: Bus) -> float:
-    """Highest rate at which three round trips still fit in half a bit: 1 / (12 t_pd)."""
-    return 1.0 / (12.0 * one_way_delay_s(bus))
 
 
 # --- placement and value --------------------------------------------------------------------------------
@@ -331,6 +88,8 @@ def check_termination(bus: Bus) -> list[Finding]:
 
 
 def _placement_findings(bus: Bus) -> list[Finding]:
+    """One finding per cable end that needs a terminator, per terminator at an end that needs none (RS-422
+    driver's end), and per terminator away from the ends."""
     plan = bus.plan
     tol = end_tolerance_m(bus)
     required = required_ends_m(bus)
@@ -344,18 +103,22 @@ def _placement_findings(bus: Bus) -> list[Finding]:
             loose.append(term)
         else:
             at_end[end].append(term)
-    rule = "Terminators at both cable ends" if len(required) == 2 else "Terminator at the far cable end"
-    ends_text = " and ".join(f"{e:g} m" for e in required)
-    where = "at each of " if len(required) > 1 else "at "
-    criterion = f"One terminator {where}{ends_text} (within {tol:.3g} m of the end), none elsewhere"
-    side = "because the line is electrically long" if needs else "although the line may stay unterminated"
+    ends_text = " and ".join(end_name(bus, e) for e in required)
+    criterion = f"One terminator at {ends_text}, each within {_length(tol)} of its end; none elsewhere"
+    why = (
+        "the line needs terminators (three round trips outlast half a bit)"
+        if needs
+        else "the line may stay unterminated (three round trips settle before mid-bit), so this only costs "
+        "drive current"
+    )
     findings: list[Finding] = []
 
-    def add(verdict: Verdict, value: float, limit: float, unit: str, fix: str, detail: str) -> None:
+    def add(title: str, verdict: Verdict, value: float | None, limit: float | None, fix: str, detail: str) -> None:
+        unit = "m" if value is not None else ""
         findings.append(
             Finding(
                 "termination.placement",
-                rule,
+                title,
                 verdict,
                 value,
                 limit,
@@ -370,42 +133,90 @@ def _placement_findings(bus: Bus) -> list[Finding]:
 
     missing = [e for e in required if not at_end[e]]
     for end in required:
-        count = len(at_end[end])
-        value_text = f"{nearest_preferred(recommended_termination_ohm(bus, end)):g} Ω"
-        if count == 0:
-            verdict = Verdict.BREAKS if needs else Verdict.HOLDS
-            detail = f"No terminator at the cable end at {end:g} m" + (
-                "." if needs else "; not needed, the deciding unterminated-line criterion holds."
+        terms = at_end[end]
+        name = end_name(bus, end)
+        resistor = f"{nearest_preferred(recommended_termination_ohm(bus, end)):g} Ω"
+        if not terms:
+            if needs:
+                add(
+                    f"No terminator at {name}",
+                    Verdict.BREAKS,
+                    None,
+                    None,
+                    f"Add a {resistor} terminator at {name}.",
+                    f"Nothing terminates {name}, and {why}: each edge reflects there in full.",
+                )
+            else:
+                add(
+                    f"No terminator at {name} (none needed)",
+                    Verdict.HOLDS,
+                    None,
+                    None,
+                    "",
+                    f"{name[0].upper()}{name[1:]} is left open; {why}.",
+                )
+            continue
+        distance_m = max(abs(t.position_m - end) for t in terms)
+        if len(terms) == 1:
+            add(
+                f"Terminator at {name}: distance from the end",
+                Verdict.HOLDS,
+                distance_m,
+                tol,
+                "",
+                f"The terminator at {terms[0].position_m:g} m counts as at {name}: it is {_length(distance_m)} from "
+                f"the end, within {_length(tol)} (the shorter of 1 m and the stub limit, since the cable beyond it "
+                "is an open stub).",
             )
-            fix = f"Add a {value_text} terminator at the cable end at {end:g} m." if needs else ""
-        elif count == 1:
-            verdict, fix = Verdict.HOLDS, ""
-            detail = f"Terminator at {at_end[end][0].position_m:g} m counts as at the cable end at {end:g} m."
         else:
-            verdict = misplaced
-            detail = f"{count} terminators at the cable end at {end:g} m; one is enough ({side})."
-            fix = f"Remove {count - 1} of the terminators at the cable end at {end:g} m."
-        add(verdict, float(count), 1.0, "terminators", fix, detail)
+            add(
+                f"{len(terms)} terminators at {name}: one too many"
+                if len(terms) == 2
+                else f"{len(terms)} terminators at {name}: {len(terms) - 1} too many",
+                misplaced,
+                None,
+                None,
+                f"Keep one terminator at {name} and remove the other"
+                + (f" {len(terms) - 1}" if len(terms) > 2 else "")
+                + ": "
+                + ", ".join(f"{t.resistance_ohm:g} Ω at {t.position_m:g} m" for t in terms[1:])
+                + ".",
+                f"{len(terms)} terminators in parallel at {name} load it below the cable's {bus.cable.z0_ohm:g} Ω; "
+                f"{why}.",
+            )
     for end, terms in at_end.items():
         if end in required or not terms:
             continue
-        detail = (
-            f"{len(terms)} terminator(s) at the driver's end ({end:g} m) of a single-driver RS-422 line: the "
-            f"driver's low output impedance already ends this side, the extra resistor only loads it ({side})."
-        )
-        add(misplaced, float(len(terms)), 0.0, "terminators", f"Remove the terminator(s) at {end:g} m.", detail)
+        for term in terms:
+            add(
+                f"Terminator at the RS-422 driver's end ({end:g} m): not wanted",
+                misplaced,
+                abs(term.position_m - end),
+                tol,
+                f"Remove the {term.resistance_ohm:g} Ω terminator at {term.position_m:g} m.",
+                "A single RS-422 driver at this end terminates it with its own low output impedance; the "
+                f"resistor only loads the driver ({why}).",
+            )
     for term in loose:
-        distance = min(term.position_m, plan.trunk_length_m - term.position_m)
+        distance_m = min(term.position_m, plan.trunk_length_m - term.position_m)
         if missing:
             target = min(missing, key=lambda e: abs(e - term.position_m))
-            fix = f"Move the terminator at {term.position_m:g} m to the cable end at {target:g} m."
+            fix = f"Move the terminator at {term.position_m:g} m to {end_name(bus, target)}."
         else:
-            fix = f"Remove the terminator at {term.position_m:g} m: both cable ends are already terminated."
-        detail = (
-            f"Terminator at {term.position_m:g} m is {distance:.3g} m from the nearest cable end (more than "
-            f"{tol:.3g} m): a mid-bus terminator loads the driver and reflects part of each edge ({side})."
+            fix = (
+                f"Remove the terminator at {term.position_m:g} m: "
+                + ("both cable ends are" if len(required) > 1 else f"{end_name(bus, required[0])} is")
+                + " already terminated."
+            )
+        add(
+            f"Terminator at {term.position_m:g} m, mid-bus: distance to the nearest end",
+            misplaced,
+            distance_m,
+            tol,
+            fix,
+            f"It sits {_length(distance_m)} from the nearest cable end (more than {_length(tol)}): a mid-bus "
+            f"terminator loads the driver and reflects part of each edge; {why}.",
         )
-        add(misplaced, distance, tol, "m", fix, detail)
     return findings
 
 
@@ -417,10 +228,12 @@ def _gamma_verdict(gamma: float) -> Verdict:
     return Verdict.BREAKS
 
 
-def _end_match(
+def end_match(
     bus: Bus, position_m: float, resistance_ohm: float, others_ohm: list[float]
 ) -> tuple[float, float, float]:
-    """(R_P, ideal R_T, Gamma of the whole end) for a terminator of resistance_ohm at a position."""
+    """(R_P, ideal R_T, Gamma of the whole end) for a terminator of resistance_ohm at a position, with others_ohm
+    (further terminators there) beside the lumped loads. Source: Gamma = (Z_L - Z0)/(Z_L + Z0), D. M. Pozar,
+    Microwave Engineering, sec. 2.3; R_T = Z0/(1 - Z0/R_P), H. Johnson, M. Graham, High-Speed Digital Design, 4.4."""
     z0 = bus.cable.z0_ohm
     r_p = parallel_ohm(lumped_load_ohm(bus, position_m), *others_ohm)
     ideal = corrected_termination_ohm(z0, r_p)
@@ -429,6 +242,7 @@ def _end_match(
 
 
 def _value_findings(bus: Bus) -> list[Finding]:
+    """One finding per terminated cable end with a parallel terminator: |Gamma| of the whole end."""
     plan = bus.plan
     z0 = bus.cable.z0_ohm
     findings = []
@@ -443,11 +257,14 @@ def _value_findings(bus: Bus) -> list[Finding]:
             continue  # RC terminators are judged by termination.rc
         rc_terms = [t.resistance_ohm for t in terms if t.kind == "rc"]
         r_t = parallel_ohm(*parallel_terms)
-        r_p, ideal, gamma = _end_match(bus, end, r_t, rc_terms)
+        r_p, ideal, gamma = end_match(bus, end, r_t, rc_terms)
         verdict = _gamma_verdict(gamma)
+        name = end_name(bus, end)
+        resistor = f"{r_t:.4g} Ω" + (" (terminators in parallel)" if len(parallel_terms) > 1 else "")
         detail = (
-            f"Z0 {z0:g} Ω; loads lumped at this end {_ohm(r_p)}; the end presents {_ohm(parallel_ohm(r_t, r_p))}, "
-            f"reflection coefficient {gamma:+.3f}. HOLDS |Γ| <= {GAMMA_HOLDS}, TIGHT <= {GAMMA_TIGHT}."
+            f"Terminator {resistor}; other loads lumped at this end {_ohm(r_p)}; together "
+            f"{_ohm(parallel_ohm(r_t, r_p))} on a {z0:g} Ω cable: reflection coefficient {gamma:+.3f}. "
+            f"The ideal terminator here is {_ohm(ideal)}. Holds to |Γ| {GAMMA_HOLDS}, tight to {GAMMA_TIGHT}."
         )
         if plan.standard == "rs485" and not 90.0 <= z0 <= 150.0:
             detail += f" The cable's {z0:g} Ω is outside the 120 ± 30 Ω RS-485 accepts."
@@ -455,21 +272,22 @@ def _value_findings(bus: Bus) -> list[Finding]:
         if verdict is not Verdict.HOLDS:
             if math.isinf(ideal):
                 fix = (
-                    f"Remove the terminator at {end:g} m: the loads there ({_ohm(r_p)}) already load the line "
+                    f"Remove the terminator at {name}: the loads there ({_ohm(r_p)}) already load the line "
                     f"below its {z0:g} Ω; move the bias network or receivers off the end."
                 )
             else:
-                fix = f"Use {nearest_preferred(ideal):g} Ω at the cable end at {end:g} m (ideal {ideal:.1f} Ω)."
+                fix = f"Use {nearest_preferred(ideal):g} Ω at {name} instead of {resistor} (ideal {ideal:.1f} Ω)."
         findings.append(
             Finding(
                 "termination.value",
-                f"Terminator value at {end:g} m",
+                f"Reflection at {name} with its {r_t:.4g} Ω terminator",
                 verdict,
-                r_t,
-                ideal,
-                "Ω",
+                abs(gamma),
+                GAMMA_TIGHT,
+                "",
                 None,
-                "End load R_T || R_P matches Z0 within |Γ| <= 0.05 (ideal R_T = Z0/(1 - Z0/R_P))",
+                f"|Γ| of the whole end (terminator || lumped loads R_P vs Z0) <= {GAMMA_HOLDS} holds, <= "
+                f"{GAMMA_TIGHT} tight; ideal R_T = Z0/(1 - Z0/R_P)",
                 _VALUE_SOURCE,
                 fix,
                 detail,
@@ -480,6 +298,11 @@ def _value_findings(bus: Bus) -> list[Finding]:
 
 def _ohm(value: float) -> str:
     return "none (open)" if math.isinf(value) else f"{value:.1f} Ω"
+
+
+def _length(length_m: float) -> str:
+    """A short distance for people: cm below 1 m."""
+    return f"{length_m * 100:.3g} cm" if 0.0 < length_m < 1.0 else f"{length_m:.3g} m"
 
 
 # --- RC terminators ---------------------------------------------------------------------------------------
@@ -500,33 +323,37 @@ def check_ac_termination(bus: Bus) -> list[Finding]:
     for term in bus.plan.terminations:
         if term.kind != "rc" or term.capacitance_f is None:
             continue
-        where = f"{term.position_m:g} m"
+        end = nearest_end_m(bus, term.position_m)
+        where = end_name(bus, end) if end is not None else f"{term.position_m:g} m"
         r = term.resistance_ohm
         tau = r * term.capacitance_f
+        part = f"RC terminator at {where} ({r:g} Ω + {si_format(term.capacitance_f, 'F')})"
         c_lo, c_hi = rc_capacitance_window_f(bus, r)
         if c_lo <= c_hi:
-            change = f"Use a capacitor from {si_format(c_lo, 'F')} to {si_format(c_hi, 'F')} at {where}"
+            change = f"Use a capacitor from {si_format(c_lo, 'F')} to {si_format(c_hi, 'F')} in the {part}"
         else:
             change = (
-                f"No capacitor suits both the round trip and the bit at {where}: use a parallel terminator "
+                f"No capacitor suits both the round trip and the bit in the {part}: use a parallel terminator "
                 "there (with a bias network sized for it)"
             )
         others = [t.resistance_ohm for t in bus.plan.terminations if t is not term and t.position_m == term.position_m]
-        r_p, ideal, gamma = _end_match(bus, term.position_m, r, others)
+        r_p, ideal, gamma = end_match(bus, term.position_m, r, others)
         v_r = _gamma_verdict(gamma)
         findings.append(
             Finding(
                 "termination.rc",
-                f"RC terminator at {where}: resistor vs Z0",
+                f"Reflection at {where} with its RC terminator's {r:g} Ω",
                 v_r,
-                r,
-                ideal,
-                "Ω",
+                abs(gamma),
+                GAMMA_TIGHT,
+                "",
                 None,
-                "R || lumped loads matches Z0 within |Γ| <= 0.05",
+                f"|Γ| of the end (R || lumped loads vs Z0, the capacitor a short during an edge) <= {GAMMA_HOLDS} "
+                f"holds, <= {GAMMA_TIGHT} tight",
                 _RC_SOURCE + "; " + _VALUE_SOURCE,
-                "" if v_r is Verdict.HOLDS else f"Use {nearest_preferred(ideal):g} Ω in the RC terminator at {where}.",
-                f"Reflection coefficient {gamma:+.3f} (loads lumped here {_ohm(r_p)}).",
+                "" if v_r is Verdict.HOLDS else f"Use {nearest_preferred(ideal):g} Ω in the {part}.",
+                f"Reflection coefficient {gamma:+.3f}; other loads lumped here {_ohm(r_p)}; ideal resistor "
+                f"{_ohm(ideal)}.",
             )
         )
         if tau >= RC_ROUND_TRIPS_HOLDS * round_trip:
@@ -538,25 +365,28 @@ def check_ac_termination(bus: Bus) -> list[Finding]:
         findings.append(
             Finding(
                 "termination.rc",
-                f"RC terminator at {where}: time constant vs round trip",
+                f"RC terminator at {where}: time constant, longer than the round trip",
                 v_t,
                 tau,
-                RC_ROUND_TRIPS_HOLDS * round_trip,
+                round_trip,
                 "s",
                 None,
-                "RC >> round-trip delay 2·t_pd: HOLDS from 3 round trips, TIGHT from 1",
+                "RC >> round-trip delay 2·t_pd: holds from 3 round trips, tight from 1, breaks below",
                 _RC_SOURCE,
                 "" if v_t is Verdict.HOLDS else change + ".",
-                f"RC {si_format(tau, 's')}; round trip {si_format(round_trip, 's')}.",
+                f"RC {si_format(tau, 's')}; round trip {si_format(round_trip, 's')} (holds from "
+                f"{si_format(RC_ROUND_TRIPS_HOLDS * round_trip, 's')}). A shorter RC lets the capacitor charge "
+                "while reflections still arrive, so the end is no longer matched.",
             )
         )
-        v_b = Verdict.HOLDS if RC_SETTLE_TIME_CONSTANTS * tau <= t_bit else Verdict.TIGHT
+        settle_s = RC_SETTLE_TIME_CONSTANTS * tau
+        v_b = Verdict.HOLDS if settle_s <= t_bit else Verdict.TIGHT
         findings.append(
             Finding(
                 "termination.rc",
-                f"RC terminator at {where}: time constant vs bit",
+                f"RC terminator at {where}: settling time 3·RC, within one bit",
                 v_b,
-                RC_SETTLE_TIME_CONSTANTS * tau,
+                settle_s,
                 t_bit,
                 "s",
                 None,
@@ -565,11 +395,11 @@ def check_ac_termination(bus: Bus) -> list[Finding]:
                 ""
                 if v_b is Verdict.HOLDS
                 else (
-                    change + f", or leave at least {si_format(3 * tau, 's')} of idle after each turnaround before "
+                    change + f", or leave at least {si_format(settle_s, 's')} of idle after each turnaround before "
                     "the next transmission."
                 ),
-                f"RC {si_format(tau, 's')}, bit {si_format(t_bit, 's')}; with RC longer than that the terminator "
-                "acts as a plain resistor while data flow (the data still pass).",
+                f"3 RC {si_format(settle_s, 's')}, one bit {si_format(t_bit, 's')}; with RC longer than that the "
+                "terminator acts as a plain resistor while data flow (the data still pass).",
             )
         )
     return findings
@@ -581,22 +411,13 @@ def placement_verdict(bus: Bus) -> Verdict:
 
 
 __all__ = [
-    "OmitCriterion",
     "check_ac_termination",
     "check_termination",
-    "check_unterminated",
     "corrected_termination_ohm",
-    "end_tolerance_m",
-    "line_may_stay_unterminated",
-    "lumped_load_ohm",
-    "nearest_end_m",
-    "nearest_preferred",
-    "one_way_delay_s",
-    "preferred_at_or_above",
+    "end_match",
+    "GAMMA_HOLDS",
     "placement_verdict",
     "rc_capacitance_window_f",
     "recommended_termination_ohm",
     "reflection_coefficient",
-    "required_ends_m",
-    "unterminated_criteria",
 ]

@@ -24,6 +24,7 @@ import numpy as np
 from engine.bus import Bus
 from engine.findings import Finding, Verdict
 from engine.plan import input_resistance_ohm
+from engine.rules.loads import bias_supply_v
 
 RULE_ID = "signal.dc_level"
 RECEIVER_THRESHOLD_V = 0.200  # TIA/EIA-485-A and TIA/EIA-422-B receiver input sensitivity
@@ -31,7 +32,7 @@ NOISE_MARGIN_V = 0.300  # Pairline's allowance for noise picked up on the pair, 
 _MIN_BRANCH_OHM = 1e-6  # stands in for a zero-resistance wire or source so the nodal matrix stays regular
 SOURCE = (
     "TIA/EIA-485-A and TIA/EIA-422-B receiver sensitivity +/-200 mV; loop resistance of 24 AWG copper "
-    "84.2 Ohm/km per conductor (ASTM B258); noise margin 300 mV: Pairline's own allowance"
+    "84.2 Ω/km per conductor (ASTM B258); noise margin 300 mV: Pairline's own allowance"
 )
 
 
@@ -140,8 +141,7 @@ def fixed_load_elements(bus: Bus) -> list[DcElement]:
     ]
     if bus.plan.bias is not None:
         b = bus.plan.bias
-        supply_v = b.supply_v if b.supply_v is not None else bus.plan.supply_v
-        loads.append(DcElement("bias network", b.position_m, 0.0, b.pull_up_ohm + b.pull_down_ohm, supply_v))
+        loads.append(DcElement("bias network", b.position_m, 0.0, b.pull_up_ohm + b.pull_down_ohm, bias_supply_v(bus)))
     return loads
 
 
@@ -262,7 +262,7 @@ def check_receiver_voltage(bus: Bus) -> list[Finding]:
         findings.append(
             Finding(
                 RULE_ID,
-                f"DC level at '{name}'",
+                "DC level in the weaker driven state",
                 verdict,
                 v_rx,
                 RECEIVER_THRESHOLD_V,
@@ -284,7 +284,7 @@ def _fix(bus: Bus, name: str, v_rx: float, v_bias: float) -> str:
     parts = [
         f"Raise the level at '{name}' ({v_rx * 1e3:.0f} mV) to at least "
         f"{(RECEIVER_THRESHOLD_V + NOISE_MARGIN_V) * 1e3:.0f} mV: use a heavier-gauge pair (22 AWG has 0.63 "
-        f"times the resistance of 24 AWG; the trunk's loop is now {r_loop:.0f} Ohm), shorten the run, or split "
+        f"times the resistance of 24 AWG; the trunk's loop is now {r_loop:.0f} Ω), shorten the run, or split "
         f"it with a repeater"
     ]
     if abs(v_bias) > 0.25 * max(v_rx, 1e-3):

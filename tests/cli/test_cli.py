@@ -131,6 +131,24 @@ def test_plan_from_standard_input(monkeypatch, capsys):
 def test_allowed_ranges_read_as_ranges():
     from server.cli import allowed_text
 
-    assert allowed_text({"min": 50.0, "max": 100e6, "unit": "bit/s"}) == "50 .. 1e+08 bit/s"
-    assert allowed_text({"min": 0.0, "min_exclusive": True, "unit": "V"}) == "0 .. inf V"
+    assert allowed_text({"min": 50.0, "max": 100e6, "unit": "bit/s"}) == "50 bit/s .. 100 Mbit/s"
+    assert allowed_text({"min": 0.0, "min_exclusive": True, "unit": "V"}) == "0 V .. inf V"
+    assert allowed_text({"min": 0.1, "max": 4000.0, "unit": "m"}) == "0.1 .. 4000 m"
+    assert allowed_text({"min_length": 1, "max_length": 512}) == "1 .. 512 items"
     assert allowed_text({"choices": ["rs485", "rs422"]}) == "one of rs485, rs422"
+
+
+def test_numbers_print_without_exponents():
+    from server.cli import number_text
+
+    assert number_text(10416.7) == "10400"
+    assert number_text(1151.5) == "1150"
+    assert number_text(0.0424) == "0.0424"
+    assert number_text(12.3) == "12.3"
+
+
+def test_per_node_lines_name_the_node(tmp_path, capsys):
+    doc = dict(GOOD, nodes=[{"name": "meter-1", "position_m": 10.0, "unit_loads": 0.125, "stub_length_m": 90.0}])
+    assert main(["check", _write(tmp_path, doc)]) == 1
+    out = capsys.readouterr().out
+    assert "[BREAKS] node 'meter-1': Stub length" in out

@@ -1,12 +1,13 @@
 """check_plan runs every rule family, summarises the advised bus and serialises to plain JSON."""
 
 import json
+import math
 
 import pytest
 
 from engine import ENGINE_VERSION
-from engine.check import RULES, check_plan, report_to_dict
-from engine.findings import Verdict, worst
+from engine.check import RULES, check_plan, finding_to_dict, report_to_dict
+from engine.findings import Finding, Verdict, worst
 from engine.plan import BusInputError, BusPlan, load_plan
 from engine.rules.length_rate import max_bit_rate_bps
 from engine.rules.power import rating_to_buy_w
@@ -91,13 +92,20 @@ def test_report_is_plain_json():
     assert sum(data["counts"].values()) == len(data["findings"])
 
 
-def test_infinite_limit_serialises_as_null():
+def test_end_loaded_below_z0_serialises_and_asks_to_remove_the_terminator():
     # A 50 + 50 Ohm bias at the 0 m end already loads the 120 Ohm line below Z0: no terminator value can match.
     data = report_to_dict(check_plan(_doc(bias={"position_m": 0.0, "pull_up_ohm": 50.0, "pull_down_ohm": 50.0})))
     json.dumps(data, allow_nan=False)
-    at_zero = [f for f in data["findings"] if f["rule_id"] == "termination.value" and f["title"].endswith(" 0 m")]
-    assert at_zero[0]["limit"] is None and at_zero[0]["verdict"] == "breaks"
-    assert at_zero[0]["fix"].startswith("Remove the terminator at 0 m")
+    at_zero = [f for f in data["findings"] if f["rule_id"] == "termination.value" and "(0 m)" in f["title"]]
+    assert at_zero[0]["verdict"] == "breaks"
+    assert at_zero[0]["fix"].startswith("Remove the terminator at the driver's end (0 m)")
+
+
+def test_infinite_and_nan_numbers_serialise_as_null():
+    finding = Finding("load.driver", "Load on the driver", Verdict.HOLDS, math.inf, math.nan, "Ω", None, "c", "s")
+    data = finding_to_dict(finding)
+    assert data["value"] is None and data["limit"] is None
+    json.dumps(data, allow_nan=False)
 
 
 def test_summary_advises_terminators_at_both_ends_with_ratings():

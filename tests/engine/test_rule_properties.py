@@ -2,6 +2,7 @@
 
 import copy
 import json
+import math
 
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
@@ -11,9 +12,10 @@ from engine.check import check_plan, report_to_dict
 from engine.findings import Verdict
 from engine.library import CABLES, TRANSCEIVERS
 from engine.plan import load_plan
+from engine.rules.cable_ends import end_tolerance_m, required_ends_m
 from engine.rules.loads import check_unit_loads, spare_unit_loads, unit_load_total
 from engine.rules.stubs import check_stubs
-from engine.rules.termination import end_tolerance_m, placement_verdict
+from engine.rules.termination import placement_verdict
 
 SETTINGS = settings(
     derandomize=True,
@@ -123,4 +125,8 @@ def test_any_valid_plan_checks_without_raising_and_serialises(doc):
     for f in report.findings:
         assert f.source and f.criterion
         assert f.verdict is Verdict.HOLDS or f.fix
+        assert f.node is None or f"'{f.node}'" not in f.title  # the node is shown beside the title, not in it
+        for number in (f.value, f.limit):
+            assert number is None or math.isfinite(number)
     json.dumps(report_to_dict(report), allow_nan=False)
+    assert len(report.summary.terminators) in (0, len(required_ends_m(report.bus)))

@@ -11,13 +11,13 @@ from engine.rules.bias import (
     bias_choice,
     bias_min_ohm,
     check_failsafe_bias,
-    e24_at_or_below,
     idle_levels_v,
     idle_load_ohm,
     idle_voltage_v,
     max_bias_ohm,
     recommended_bias,
 )
+from engine.rules.preferred import preferred_at_or_below
 from engine.units import parallel_ohm
 
 LOSSLESS = {"class_key": None, "z0_ohm": 120.0, "velocity_factor": 0.78, "resistance_ohm_per_m": 0.0}
@@ -91,7 +91,7 @@ def test_weak_1k5_bias_falls_below_threshold_and_breaks():
     finding = check_failsafe_bias(bus)[0]
     assert finding.value == pytest.approx(0.192, abs=5e-4)
     assert finding.verdict is Verdict.BREAKS
-    assert "pull-up" in finding.fix and "Ohm" in finding.fix
+    assert "pull-up" in finding.fix and "Ω" in finding.fix
 
 
 def test_no_bias_on_rs485_breaks_and_names_failsafe_receivers():
@@ -104,8 +104,8 @@ def test_no_bias_on_rs485_breaks_and_names_failsafe_receivers():
 
 def test_e24_value_below_the_limit():
     # Source: IEC 60063 E24 series: 680 and 750 are neighbours.
-    assert e24_at_or_below(712.0) == pytest.approx(680.0)
-    assert e24_at_or_below(750.0) == pytest.approx(750.0)
+    assert preferred_at_or_below(712.0) == pytest.approx(680.0)
+    assert preferred_at_or_below(750.0) == pytest.approx(750.0)
 
 
 def test_recommended_bias_keeps_a_long_bus_far_end_above_threshold():

@@ -59,7 +59,7 @@ def test_verdicts_and_fixes_by_offset():
     found = _findings([1.0, 6.0, -7.5])
     assert found["n0"].verdict is Verdict.HOLDS and found["n0"].fix == ""
     assert found["n1"].verdict is Verdict.TIGHT
-    assert f"{SERIES_GROUND_OHM:g} Ohm" in found["n1"].fix
+    assert f"{SERIES_GROUND_OHM:g} Ω" in found["n1"].fix
     assert found["n2"].verdict is Verdict.BREAKS
     assert found["n2"].value == pytest.approx(7.5) and found["n2"].limit == pytest.approx(7.0)
     assert "galvanically" in found["n2"].fix

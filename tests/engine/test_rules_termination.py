@@ -5,18 +5,15 @@ import pytest
 from engine.bus import build_bus
 from engine.findings import Verdict, worst
 from engine.plan import load_plan
+from engine.rules.cable_ends import end_tolerance_m, required_ends_m
 from engine.rules.termination import (
     check_ac_termination,
     check_termination,
-    check_unterminated,
     corrected_termination_ohm,
-    end_tolerance_m,
-    line_may_stay_unterminated,
     recommended_termination_ohm,
     reflection_coefficient,
-    required_ends_m,
-    unterminated_criteria,
 )
+from engine.rules.unterminated import check_unterminated, line_may_stay_unterminated, unterminated_criteria
 from engine.units import SPEED_OF_LIGHT_M_PER_S, m_from_ft
 
 
@@ -78,7 +75,9 @@ def test_plan_with_30_receivers_lumped_at_the_end_gets_109_ohm():
     # Source: H. Johnson, M. Graham, High-Speed Digital Design, sec. 4.4 worked case, 109.1 Ohm.
     assert recommended_termination_ohm(bus, 100.0) == pytest.approx(109.1, abs=0.05)
     value = [f for f in check_termination(bus) if f.rule_id == "termination.value" and "100 m" in f.title][0]
-    assert value.limit == pytest.approx(109.1, abs=0.05)
+    assert "The ideal terminator here is 109.1 Ω" in value.detail
+    # Source: D. M. Pozar, Microwave Engineering, sec. 2.3: 100 Ohm || 1200 Ohm = 92.3 Ohm on 100 Ohm -> |Gamma| 0.040.
+    assert value.value == pytest.approx(0.040, abs=0.0005)
 
 
 # --- placement ----------------------------------------------------------------------------------------------
@@ -105,7 +104,8 @@ def test_rs422_driver_end_terminator_is_extra():
     placement = _by_rule(check_termination(bus), "termination.placement")
     extra = [f for f in placement if f.verdict is not Verdict.HOLDS]
     assert len(extra) == 1 and extra[0].verdict is Verdict.BREAKS
-    assert "Remove the terminator(s) at 0 m" in extra[0].fix
+    assert extra[0].fix == "Remove the 100 Ω terminator at 0 m."
+    assert extra[0].title == "Terminator at the RS-422 driver's end (0 m): not wanted"
 
 
 def test_rs422_driver_mid_bus_terminates_both_ends():
@@ -113,7 +113,8 @@ def test_rs422_driver_mid_bus_terminates_both_ends():
     bus = _bus(terms=((1000.0, 100.0),), standard="rs422", driver_at_m=400.0, cable={"class_key": "tia422-reference"})
     assert required_ends_m(bus) == (0.0, 1000.0)
     missing = [f for f in _by_rule(check_termination(bus), "termination.placement") if f.verdict is Verdict.BREAKS]
-    assert len(missing) == 1 and "at the cable end at 0 m" in missing[0].fix
+    assert len(missing) == 1 and missing[0].fix == "Add a 100 Ω terminator at the 0 m end."
+    assert missing[0].title == "No terminator at the 0 m end" and missing[0].value is None
 
 
 def test_mid_bus_terminator_breaks_on_a_long_line_and_is_moved_to_the_free_end():
@@ -121,8 +122,9 @@ def test_mid_bus_terminator_breaks_on_a_long_line_and_is_moved_to_the_free_end()
     assert not line_may_stay_unterminated(bus)
     placement = _by_rule(check_termination(bus), "termination.placement")
     assert [f.verdict for f in placement].count(Verdict.BREAKS) == 2  # far end missing, one mid-bus
-    mid = [f for f in placement if f.unit == "m"][0]
-    assert mid.fix == "Move the terminator at 600 m to the cable end at 1000 m."
+    mid = [f for f in placement if "mid-bus" in f.title][0]
+    assert mid.fix == "Move the terminator at 600 m to the far end (1000 m)."
+    assert (mid.value, mid.limit, mid.unit) == (400.0, 1.0, "m")
 
 
 def test_terminator_within_the_end_tolerance_counts_as_at_the_end():
@@ -143,7 +145,9 @@ def test_fast_driver_shrinks_the_end_tolerance_to_its_stub_limit():
 def test_two_terminators_at_one_end_are_one_too_many():
     bus = _bus(terms=((0.0, 120.0), (0.0, 120.0), (1000.0, 120.0)))
     placement = _by_rule(check_termination(bus), "termination.placement")
-    assert any(f.verdict is Verdict.BREAKS and "Remove 1 of the terminators" in f.fix for f in placement)
+    extra = [f for f in placement if f.verdict is Verdict.BREAKS]
+    assert [f.title for f in extra] == ["2 terminators at the driver's end (0 m): one too many"]
+    assert extra[0].fix == "Keep one terminator at the driver's end (0 m) and remove the other: 120 Ω at 0 m."
 
 
 # --- value --------------------------------------------------------------------------------------------------
@@ -158,7 +162,10 @@ def test_value_verdicts_follow_the_reflection_bands():
     assert {f.verdict for f in cat5} == {Verdict.TIGHT}
     assert "Use 100 Ω" in cat5[0].fix
     halved = _by_rule(check_termination(_bus(terms=((0.0, 60.0), (1000.0, 120.0)))), "termination.value")
-    assert halved[0].verdict is Verdict.BREAKS and halved[0].value == 60.0
+    # Source: D. M. Pozar, Microwave Engineering, sec. 2.3: 60 Ohm on a 120 Ohm line -> |Gamma| 1/3 (the driver's
+    # 48 kOhm receiver beside it moves that by under 0.001).
+    assert halved[0].verdict is Verdict.BREAKS and halved[0].value == pytest.approx(1 / 3, abs=0.001)
+    assert halved[0].title == "Reflection at the driver's end (0 m) with its 60 Ω terminator"
 
 
 # --- may the line stay unterminated -----------------------------------------------------------------------
@@ -174,12 +181,20 @@ def test_forty_delays_per_bit_allows_515_m_at_9600():
     assert _criterion(bus, "bit_40x_delay").max_length_m == pytest.approx(515.0, abs=0.5)
 
 
-def test_three_round_trips_allow_482_ft_at_115200():
-    # The note's 482 ft follows from 1.5 ns/ft, i.e. VF = 0.3048 m / 1.5 ns / c0 = 0.678.
-    vf = 0.3048 / 1.5e-9 / SPEED_OF_LIGHT_M_PER_S
-    bus = _bus(terms=(), bit_rate_bps=115_200, cable={"class_key": "pair-22awg-120", "velocity_factor": vf})
-    # Source: B&B Electronics RS-422/485 application note: L_max = 0.5 T_bit v / 6 -> 482 ft at 115.2 kbit/s.
-    assert _criterion(bus, "three_round_trips").max_length_m == pytest.approx(m_from_ft(482.0), abs=m_from_ft(0.5))
+def test_three_round_trips_allow_482_ft_at_115200_only_at_1_5_ns_per_ft():
+    # The criterion (three round trips before mid-bit) is the B&B RS-422/485 application note's; its length at
+    # 115.2 kbit/s, L_max = 0.5 T_bit v / 6 = 723.4 ns x v, is arithmetic (common practice). 482 ft follows from a
+    # delay of 1.5 ns/ft (v = 0.667 ft/ns, VF 0.678): 723.4 / 1.5 = 482.3 ft. It does NOT follow from v = 0.66 ft/ns
+    # (477.4 ft), nor from VF 0.66 (0.649 ft/ns: 469.6 ft).
+    vf_1_5_ns_per_ft = m_from_ft(1.0) / 1.5e-9 / SPEED_OF_LIGHT_M_PER_S
+    bus = _bus(
+        terms=(), bit_rate_bps=115_200, cable={"class_key": "pair-22awg-120", "velocity_factor": vf_1_5_ns_per_ft}
+    )
+    # common practice: 0.5 / 115 200 s / 6 / 1.5 ns per ft = 482.3 ft.
+    assert _criterion(bus, "three_round_trips").max_length_m == pytest.approx(m_from_ft(482.3), abs=m_from_ft(0.05))
+    vf_066 = _bus(terms=(), bit_rate_bps=115_200, cable={"class_key": "pair-22awg-120"})  # VF 0.66
+    # common practice: 723.4 ns x 0.66 x 0.98357 ft/ns (c0 in ft/ns) = 469.6 ft.
+    assert _criterion(vf_066, "three_round_trips").max_length_m == pytest.approx(m_from_ft(469.6), abs=m_from_ft(0.05))
 
 
 def test_2000_ft_at_9600_needs_no_terminator():
@@ -201,28 +216,37 @@ def test_rise_time_criteria_compare_the_round_trip_with_the_edge():
     bus = _bus(terms=(), length_m=11.0)
     assert _criterion(bus, "rise_vs_round_trip").holds
     assert _criterion(bus, "rise_vs_round_trip").max_length_m == pytest.approx(11.69, abs=0.01)
-    assert not _criterion(_bus(terms=(), length_m=12.5), "tsb89_rise_time").holds
+    assert not _criterion(_bus(terms=(), length_m=12.5), "rise_vs_round_trip").holds
 
 
-def test_field_rule_needs_a_rate_below_200_kbit():
-    # common practice: bit > 4 one-way delays and under 200 kbit/s.
+def test_field_rule_needs_a_rate_up_to_200_kbit():
+    # common practice: bit > 4 one-way delays and at most 200 kbit/s.
     assert _criterion(_bus(terms=(), length_m=10.0, bit_rate_bps=100e3), "field_rule").holds
     assert not _criterion(_bus(terms=(), length_m=10.0, bit_rate_bps=250e3), "field_rule").holds
+
+
+def test_field_rule_allows_225_m_at_200_kbit_and_velocity_factor_0_6():
+    cable = {"class_key": "pair-24awg-120", "velocity_factor": 0.6}
+    bus = _bus(terms=(), length_m=100.0, bit_rate_bps=200e3, cable=cable)
+    # common practice (field rule of thumb): 200 kbit/s at velocity factor 0.6 -> 225 m.
+    assert _criterion(bus, "field_rule").max_length_m == pytest.approx(225.0, abs=0.5)
 
 
 def test_may_omit_names_every_criterion_and_the_deciding_one():
     finding = check_unterminated(_bus(terms=()))[0]
     assert finding.rule_id == "termination.may_omit"
-    for name in ("Rise time vs round trip", "TSB-89-A", "40 one-way delays", "Three round trips", "Field rule"):
+    for name in ("Round trip within the rise time", "TSB-89-A", "40 one-way delays", "Three round trips", "Field rule"):
         assert name in finding.detail
     assert "[deciding] Three round trips" in finding.detail
     assert finding.verdict is Verdict.BREAKS  # 1000 m at 115.2 kbit/s
-    assert finding.fix.startswith("Terminate the cable ends at 0 m and 1000 m with 120 Ω")
+    assert finding.title == "Unterminated line: three round trips outlast half a bit"
+    assert finding.fix.startswith("Fit a 120 Ω terminator at the driver's end (0 m) and the far end (1000 m)")
 
 
 def test_may_omit_is_informational_on_a_terminated_line():
     finding = check_unterminated(_bus())[0]
-    assert finding.verdict is Verdict.HOLDS and "for information" in finding.detail
+    assert finding.verdict is Verdict.HOLDS
+    assert finding.title == "Terminators needed: three round trips outlast half a bit"
 
 
 def test_short_unterminated_line_holds_placement():
@@ -247,7 +271,7 @@ def test_rc_time_constant_against_round_trip_and_bit():
     round_trip = 2 * 100.0 / (0.78 * SPEED_OF_LIGHT_M_PER_S)
     good = check_ac_termination(_rc_bus(100e-9))  # RC 12 us: > 3 round trips, 3 RC = 36 us < 104 us bit
     assert [f.verdict for f in good] == [Verdict.HOLDS] * 3
-    assert good[1].limit == pytest.approx(3 * round_trip, rel=1e-12)
+    assert good[1].limit == pytest.approx(round_trip, rel=1e-12)
     short = check_ac_termination(_rc_bus(4.7e-9))  # RC 564 ns < round trip
     assert short[1].verdict is Verdict.BREAKS and "Use a capacitor from" in short[1].fix
     long = check_ac_termination(_rc_bus(1e-6))  # RC 120 us > a 104 us bit
@@ -262,4 +286,20 @@ def test_rc_with_no_fitting_capacitor_advises_a_parallel_terminator():
 
 def test_rc_terminators_do_not_get_a_value_finding_of_their_own():
     values = _by_rule(check_termination(_rc_bus(100e-9)), "termination.value")
-    assert [f.title for f in values] == ["Terminator value at 0 m"]
+    assert [f.title for f in values] == ["Reflection at the driver's end (0 m) with its 120 Ω terminator"]
+
+
+def test_cable_ends_are_named_from_the_driver():
+    from engine.rules.cable_ends import end_name
+
+    at_end = _bus()
+    assert end_name(at_end, 0.0) == "the driver's end (0 m)" and end_name(at_end, 1000.0) == "the far end (1000 m)"
+    mid = _bus(driver_at_m=500.0)
+    assert end_name(mid, 0.0) == "the 0 m end" and end_name(mid, 1000.0) == "the 1000 m end"
+
+
+def test_present_terminator_reports_its_distance_from_the_end():
+    bus = _bus(terms=((0.0, 120.0), (999.5, 120.0)))
+    far = [f for f in _by_rule(check_termination(bus), "termination.placement") if "far end" in f.title][0]
+    assert far.title == "Terminator at the far end (1000 m): distance from the end"
+    assert (far.value, far.limit, far.unit) == (pytest.approx(0.5), 1.0, "m")
