@@ -21,7 +21,7 @@ from server.diagram import bus_drawing, node_anchor
 from server.forms import BIAS, CABLE, DRIVER, NODE, TERMINATION, TOP, FormState
 from server.plots import curve_plot, eye_plot, waveform_plot
 from server.quantities import UnitSystem, format_quantity, length_in, length_unit
-from server.results import CheckedPlan, report_to_dict
+from server.results import CheckedPlan, report_to_dict, worst_receiver
 from server.store import SampleEntry, SavedPlan
 
 _SEVERITY = {"breaks": 0, "tight": 1, "holds": 2}
@@ -227,7 +227,7 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
         if fd["node"]:
             per_node.setdefault(fd["node"], []).append(fd)
     node_verdicts = {name: worst([Verdict(fd["verdict"]) for fd in items]).value for name, items in per_node.items()}
-    margins = {m.name: m.margin_v for m in checked.margins}
+    metrics = {m.receiver: m for m in checked.metrics}
     summary = report.summary
     nodes = [
         {
@@ -242,8 +242,7 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
             "unit_loads": n.unit_loads,
             "role": n.role,
             "ground_offset_v": n.ground_offset_v,
-            "margin_v": margins.get(n.name),
-            "margin_text": quantity_text(margins[n.name], "V", units) if n.name in margins else "—",
+            "signal": _signal_data(metrics.get(n.name), units),
             "verdict": node_verdicts.get(n.name, "holds"),
             "findings": [
                 {"anchor": fd["anchor"], "rule_id": fd["rule_id"], "verdict": fd["verdict"]}
@@ -299,24 +298,50 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
     return data
 
 
+def _signal_data(m: Any, units: UnitSystem) -> dict[str, Any] | None:
+    """One receiver's simulated figures for the node table (None for a node that is not simulated)."""
+    if m is None:
+        return None
+    return {
+        "amplitude_v": m.amplitude_v,
+        "min_sample_v": m.min_sample_v,
+        "eye_height_v": m.eye_height_v,
+        "eye_width_ui": m.eye_width_ui,
+        "overshoot_ratio": m.overshoot_ratio,
+        "threshold_recrossings": m.threshold_recrossings,
+        "sample_errors": m.sample_errors,
+        "propagation_delay_s": m.propagation_delay_s,
+        "amplitude_text": quantity_text(m.amplitude_v, "V", units),
+        "min_sample_text": quantity_text(m.min_sample_v, "V", units),
+        "eye_text": quantity_text(m.eye_height_v, "V", units),
+        "delay_text": quantity_text(m.propagation_delay_s, "s", units),
+        "below_threshold": m.min_sample_v < m.threshold_v,
+    }
+
+
 def _waveforms_data(checked: CheckedPlan, chosen: str | None) -> dict[str, Any]:
     wf = checked.waveforms
-    if wf is None or not checked.margins:
-        return {"available": False, "note": checked.simulation_note, "receivers": []}
-    worst_margin = min(checked.margins, key=lambda m: m.margin_v)
-    names = list(wf.receiver_names)
-    chosen_name = chosen if chosen in names else None
-    shown = [worst_margin.name] + ([chosen_name] if chosen_name and chosen_name != worst_margin.name else [])
+    worst = worst_receiver(checked.metrics)
+    receivers = [m.receiver for m in checked.metrics]
+    if wf is None or worst is None:
+        return {"available": False, "note": checked.simulation_note, "receivers": receivers}
+    by_name = {m.receiver: m for m in checked.metrics}
+    chosen_name = chosen if chosen in by_name else None
     plots = []
-    for name in shown:
-        k = names.index(name)
+    for k, name in enumerate(wf.receiver_names):
+        m = by_name[name]
+        # Each receiver samples mid-bit in its own frame: the pattern's instants shifted by its delay.
+        delay = m.propagation_delay_s if math.isfinite(m.propagation_delay_s) else 0.0
+        samples = np.asarray(wf.sample_times_s, dtype=float) + delay
         plots.append(
             {
                 "receiver": name,
-                "role": "worst" if name == worst_margin.name else "chosen",
-                "margin_v": next(m.margin_v for m in checked.margins if m.name == name),
-                "svg": waveform_plot(wf.time_s, wf.v_diff_v[k], wf.sample_times_s, name, wf.bit_time_s),
-                "eye": eye_plot(wf.time_s, wf.v_diff_v[k], wf.sample_times_s, wf.bit_time_s, name),
+                "role": "worst" if name == worst.receiver else "chosen",
+                "margin_v": m.min_sample_v,
+                "eye_height_v": m.eye_height_v,
+                "delay_text": quantity_text(m.propagation_delay_s, "s", "metric"),
+                "svg": waveform_plot(wf.time_s, wf.v_diff_v[k], samples, name, wf.bit_time_s),
+                "eye": eye_plot(wf.time_s, wf.v_diff_v[k], samples, wf.bit_time_s, name),
             }
         )
     return {
@@ -324,8 +349,8 @@ def _waveforms_data(checked: CheckedPlan, chosen: str | None) -> dict[str, Any]:
         "bits": wf.bits,
         "bit_time_s": wf.bit_time_s,
         "bit_time_text": si_format(wf.bit_time_s, "s"),
-        "receivers": names,
-        "worst": worst_margin.name,
+        "receivers": receivers,
+        "worst": worst.receiver,
         "chosen": chosen_name,
         "chosen_unknown": chosen if chosen and chosen_name is None else None,
         "plots": plots,

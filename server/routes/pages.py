@@ -211,7 +211,7 @@ def plan_page(request: Request, ref: str, store: StoreDep, receiver: str | None 
         state.problems = exc.problems
         title = "This saved plan needs changes before the current engine can check it"
         return render(request, "editor.html", editor_data(state, title=title, saved_from=saved), status_code=422)
-    data = plan_data(check_and_simulate(plan), saved, receiver)
+    data = plan_data(check_and_simulate(plan, receiver), saved, receiver)
     data["children"] = store.children_of(saved.id)
     return page(request, "plan.html", data, as_json)
 

@@ -101,14 +101,49 @@ class Waveforms:
     sample_times_s: np.ndarray
 
 
-def simulate_pattern(bus, pattern=None, driver_name=None):
-    bits = pattern or "0101100111"
+@dataclass(frozen=True, slots=True)
+class Step:
+    driver_names: tuple
+
+
+def prbs_bits(n_bits=127, order=7, seed=1):
+    return ("0101100111" * 13)[:n_bits]
+
+
+def step_responses(bus, driver_names=None, *, max_time_s=None):
+    return Step(tuple(driver_names or (bus.plan.driver.name,)))
+
+
+def simulate_pattern(bus, pattern=None, driver_name=None, *, receiver_names=None, step=None):
+    bits = pattern or bus.plan.test_pattern or prbs_bits()
     bit_time = 1.0 / bus.plan.bit_rate_bps
-    t = np.linspace(0, bit_time * len(bits), 2000)
+    t = np.linspace(0, bit_time * len(bits), 40 * len(bits))
     level = np.array([1.0 if b == "1" else -1.0 for b in bits])[np.minimum((t / bit_time).astype(int), len(bits) - 1)]
-    names = tuple(n.name for n in bus.plan.nodes)
-    v = np.array([level * (1.5 - 0.01 * i) for i in range(len(names))])
+    all_names = [n.name for n in bus.plan.nodes]
+    names = tuple(receiver_names) if receiver_names is not None else tuple(all_names)
+    v = np.array([level * (1.5 - 0.01 * all_names.index(n)) for n in names])
     return Waveforms(t, names, v, bits, bit_time, (np.arange(len(bits)) + 0.5) * bit_time)
+
+
+@dataclass(frozen=True, slots=True)
+class ReceiverMetrics:
+    receiver: str
+    amplitude_v: float
+    min_sample_v: float
+    eye_height_v: float
+    eye_width_ui: float
+    overshoot_ratio: float
+    threshold_recrossings: int
+    sample_errors: int
+    propagation_delay_s: float
+    threshold_v: float = 0.2
+
+
+def receiver_metrics(bus, *, driver_name=None, pattern=None, step=None):
+    return tuple(
+        ReceiverMetrics(n.name, 1.5 - 0.01 * i, 1.5 - 0.01 * i, 3.0 - 0.02 * i, 0.9, 0.0, 0, 0, 1e-8 * i)
+        for i, n in enumerate(bus.plan.nodes)
+    )
 
 
 @dataclass(frozen=True, slots=True)
@@ -126,7 +161,16 @@ def install() -> list[str]:
     installed = []
     for name, attrs in (
         ("engine.check", {"check_plan": check_plan, "report_to_dict": report_to_dict, "PlanReport": PlanReport}),
-        ("engine.waveform", {"simulate_pattern": simulate_pattern, "Waveforms": Waveforms}),
+        (
+            "engine.waveform",
+            {
+                "simulate_pattern": simulate_pattern,
+                "Waveforms": Waveforms,
+                "prbs_bits": prbs_bits,
+                "step_responses": step_responses,
+            },
+        ),
+        ("engine.metrics", {"receiver_metrics": receiver_metrics, "ReceiverMetrics": ReceiverMetrics}),
         ("engine.sweep", {"length_rate_curve": length_rate_curve}),
     ):
         try:
