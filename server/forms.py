@@ -110,9 +110,10 @@ class FormState:
     values: dict[str, str]
     n_nodes: int
     n_terminations: int
-    units: UnitSystem
+    units: UnitSystem  # the system the inputs' bare numbers are shown in
     parent_id: str | None = None
     problems: list[Problem] = field(default_factory=list)
+    chosen_units: UnitSystem | None = None  # the system picked to keep with the plan, when it differs
 
 
 @dataclass(slots=True)
@@ -243,7 +244,7 @@ def parse_form(form: Mapping[str, str]) -> ParsedForm:
     if doc.get("test_pattern") == "":
         doc.pop("test_pattern")
     parent = form.get("parent_id") or None
-    state = FormState(values, counts["nodes"], counts["terminations"], shown, parent, list(problems))
+    state = FormState(values, counts["nodes"], counts["terminations"], shown, parent, list(problems), chosen)
     return ParsedForm(doc, state, problems, action)
 
 

@@ -167,6 +167,7 @@ def editor_data(state: FormState, *, title: str, saved_from: SavedPlan | None = 
         "page": "editor",
         "title": title,
         "units": state.units,
+        "chosen_units": state.chosen_units or state.units,
         "length_unit": length_unit(state.units),
         "values": state.values,
         "n_nodes": state.n_nodes,
