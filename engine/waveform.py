@@ -9,7 +9,8 @@ level l uses N samples spaced dt_l = dt_0 * 4^l (dt_0 = T_e / 32) over a window 
 bus at s_k = sigma_l + j 2 pi k / T_l with sigma_l T_l = ln(1e8), and inverts with one real FFT:
 x(n dt) = exp(sigma n dt) * irfft(X(s_k) W_k) / dt. The damping makes the response's own tail (which never
 decays: it settles at the DC level) vanish before it wraps around, so the first half of each window is
-accurate to about 1e-8 of the swing; W_k is a Gaussian low-pass (sigma_f = Nyquist / 5) so nothing aliases.
+accurate to about 1e-4 of the swing; W_k is a Gaussian low-pass (sigma_f = 0.4 Nyquist) so nothing aliases.
+It rounds the ramp's corners by about 1 % of the swing (a Gaussian of 0.025 T_e at level 0), nothing more.
 Level 0 covers [0, T_0/2], level l the span (T_{l-1}/2, T_l/2]: the grid is dense at the edge and widens as
 the response slows down, and levels are added until every receiver has settled within `tolerance` of its DC
 level (from the exact DC solve) or the requested horizon is covered. After that the response *is* its DC level.
@@ -18,9 +19,14 @@ incurred in the numerical inversion of the Laplace transform", Proc. 26th Midwes
 Systems (1983); see also P. Moreno, A. Ramirez, "Implementation of the numerical Laplace transform: a review",
 IEEE Trans. Power Delivery 23 (2008).
 
-A bit pattern then costs no further solve: with bit b_n in {0, 1} driven as -V / +V, the waveform is
-v(t) = v_final * (2 b_{-1} - 1) + sum_n (b_n - b_{n-1}) * 2 * step(t - n T_bit), evaluated per bit window at
-offsets that are dense near the bit start (where the edges and their early echoes are) and at mid-bit.
+A bit pattern then costs no further solve. Bits b_n in {0, 1} are driven as -V / +V, the ramp of bit n
+starting at n T_bit, the line at rest at the first bit's level before t = 0. With D(t) = step(t) - v_final
+(zero once settled):
+v(n T_bit + u) = v_final (2 b_n - 1) + sum_{m >= 0} 2 (b_{n-m} - b_{n-m-1}) D(m T_bit + u).
+That is a convolution along the bit index, done as one matrix product per receiver block, at offsets u
+within a bit chosen adaptively: start from the step response's own grid inside one bit and keep a point
+wherever linear interpolation between its neighbours would miss any receiver's waveform by more than
+0.1 % of the swing, plus mid-bit (the sampling instant) and a uniform 32 per bit.
 """
 
 from dataclasses import dataclass
@@ -29,6 +35,7 @@ import numpy as np
 
 from engine.bus import Bus
 from engine.line import propagation_constant_per_m
+from engine.plan import BusInputError, Problem
 from engine.solve import build_topology, driver_transfer, resolve_driver_names, solve_network
 from engine.units import delay_s, propagation_velocity_m_per_s
 
@@ -37,7 +44,7 @@ LEVEL_FACTOR = 4  # dt grows by this from one level to the next
 SAMPLES_PER_EDGE = 32  # dt_0 = T_e / SAMPLES_PER_EDGE
 KEEP_EVERY = 4  # stored samples: every 4th of the transform grid (T_e / 8 at the edge)
 DAMPING = float(np.log(1e8))  # sigma_l * T_l
-LOWPASS_FRACTION = 0.2  # Gaussian sigma_f as a fraction of the Nyquist frequency
+LOWPASS_FRACTION = 0.4  # Gaussian sigma_f as a fraction of the Nyquist frequency
 MAX_LEVELS = 28
 MAX_FIRST_LEVEL = 16384  # samples of level 0 at most
 MEMORY_BUDGET_COMPLEX = 4_000_000  # transfer values held at once (drivers are processed in chunks)
@@ -187,3 +194,179 @@ def _level_grid(dt_s: float, n: int) -> tuple[np.ndarray, np.ndarray]:
 def _edge_spectrum(s: np.ndarray, v_oc: float, t_edge_s: float) -> np.ndarray:
     """Laplace transform of the ramp 0 -> v_oc over t_edge_s: v_oc (1 - exp(-s T)) / (s^2 T)."""
     return -v_oc * np.expm1(-s * t_edge_s) / (s * s * t_edge_s)
+
+
+@dataclass(frozen=True, slots=True)
+class Waveforms:
+    """Differential voltage at every receiver for a bit pattern; time_s is bit-major (bit n, then offsets)."""
+
+    time_s: np.ndarray  # (n_t,) = n_bits * n_offsets, ascending
+    receiver_names: tuple[str, ...]
+    v_diff_v: np.ndarray  # (n_receivers, n_t)
+    bits: str
+    bit_time_s: float
+    sample_times_s: np.ndarray  # (n_bits,) mid-bit sampling instants
+    offsets_s: np.ndarray  # (n_offsets,) sample offsets within each bit, the same for every bit
+    driver_name: str
+
+
+PRBS_TAPS = {7: (7, 6), 9: (9, 5), 11: (11, 9), 15: (15, 14)}  # ITU-T O.150 polynomials x^a + x^b + 1
+DEFAULT_PATTERN_BITS = 127
+REFINE_TOLERANCE = 1e-3  # of the open-circuit swing: linear interpolation error allowed between offsets
+UNIFORM_OFFSETS = 32  # per bit, always present
+REFINE_BUDGET_VALUES = 1_000_000  # interpolated values held at once while choosing offsets
+
+
+def prbs_bits(n_bits: int = DEFAULT_PATTERN_BITS, order: int = 7, seed: int = 1) -> str:
+    """Pseudo-random bit sequence from a Fibonacci LFSR (x^7 + x^6 + 1 for order 7; ITU-T O.150).
+
+    seed: the nonzero initial register state. Period 2^order - 1; the same seed always gives the same bits.
+    """
+    if order not in PRBS_TAPS:
+        raise ValueError(f"PRBS order {order} not supported; choose one of {sorted(PRBS_TAPS)}")
+    a, b = PRBS_TAPS[order]
+    mask = (1 << order) - 1
+    state = seed & mask or 1
+    out = []
+    for _ in range(n_bits):
+        new = ((state >> (a - 1)) ^ (state >> (b - 1))) & 1
+        state = ((state << 1) | new) & mask
+        out.append("1" if new else "0")
+    return "".join(out)
+
+
+def simulate_pattern(
+    bus: Bus,
+    pattern: str | None = None,
+    driver_name: str | None = None,
+    *,
+    receiver_names: "tuple[str, ...] | list[str] | None" = None,
+    step: StepResponses | None = None,
+) -> Waveforms:
+    """Waveform at every receiver (or the named ones) for a bit pattern at the plan's bit rate.
+
+    pattern: "0"/"1" string; None = the plan's test_pattern, else a 127-bit PRBS-7 (seed 1).
+    driver_name: None = the primary driver. step: a StepResponses for that driver to reuse (it must reach at
+    least the pattern's duration or be settled). Method in the module docstring.
+    """
+    bits = pattern if pattern is not None else bus.plan.test_pattern or prbs_bits()
+    if len(bits) < 1 or set(bits) - {"0", "1"}:
+        raise BusInputError(
+            [
+                Problem(
+                    "test_pattern",
+                    "Bit pattern",
+                    bits[:40],
+                    {"pattern": "0s and 1s"},
+                    "The bit pattern may hold only 0 and 1 and must not be empty.",
+                )
+            ]
+        )
+    driver = resolve_driver_names(bus, None if driver_name is None else [driver_name])
+    bit_time_s = 1.0 / bus.plan.bit_rate_bps
+    duration_s = len(bits) * bit_time_s
+    if step is None or step.driver_names[:1] != driver:
+        step = step_responses(bus, driver, max_time_s=duration_s)
+    rx_index = _receiver_index(step.receiver_names, receiver_names)
+    s_t = step.time_s
+    deviation = step.v_diff_v[0][rx_index] - step.v_final_v[0][rx_index, None]  # (n_rx, n_t)
+    n_bits = len(bits)
+    horizon_s = s_t[-1] if step.settled else max(s_t[-1], duration_s)
+    n_mem = int(min(n_bits, np.floor(horizon_s / bit_time_s) + 1))
+    offsets = _offsets(s_t, deviation, bit_time_s, n_mem, step.open_circuit_v)
+    # D at m T_bit + u for every m < n_mem: (n_rx, n_mem, n_off)
+    d_mem = _sample(s_t, deviation, (np.arange(n_mem)[:, None] * bit_time_s + offsets[None, :]).ravel())
+    d_mem = d_mem.reshape(rx_index.size, n_mem, offsets.size)
+    b = np.array([1.0 if c == "1" else 0.0 for c in bits])
+    edges = 2.0 * np.diff(b, prepend=b[0])  # (n_bits,) in units of V_oc steps, first bit at rest
+    toeplitz = np.zeros((n_bits, n_mem))
+    for m in range(n_mem):
+        toeplitz[m:, m] = edges[: n_bits - m]
+    v = np.einsum("nm,rmo->rno", toeplitz, d_mem, optimize=True)
+    v += (2.0 * b - 1.0)[None, :, None] * step.v_final_v[0][rx_index, None, None]
+    time_s = (np.arange(n_bits)[:, None] * bit_time_s + offsets[None, :]).ravel()
+    return Waveforms(
+        time_s=time_s,
+        receiver_names=tuple(step.receiver_names[i] for i in rx_index),
+        v_diff_v=v.reshape(rx_index.size, -1),
+        bits=bits,
+        bit_time_s=bit_time_s,
+        sample_times_s=(np.arange(n_bits) + 0.5) * bit_time_s,
+        offsets_s=offsets,
+        driver_name=driver[0],
+    )
+
+
+def _receiver_index(all_names: tuple[str, ...], wanted: "tuple[str, ...] | list[str] | None") -> np.ndarray:
+    if wanted is None:
+        return np.arange(len(all_names))
+    unknown = [n for n in wanted if n not in all_names]
+    if unknown:
+        raise BusInputError(
+            [
+                Problem(
+                    "receiver_names",
+                    "Receivers",
+                    unknown[0],
+                    {"choices": list(all_names)},
+                    f"'{unknown[0]}' is not a node of this bus; nodes are {', '.join(all_names)}.",
+                )
+            ]
+        )
+    return np.array([all_names.index(n) for n in wanted], dtype=int)
+
+
+def _sample(time_s: np.ndarray, values: np.ndarray, at_s: np.ndarray) -> np.ndarray:
+    """Linear interpolation of every row of values (n_rows, n_t) at times at_s; past the end the last value,
+    before 0 zero (nothing has arrived)."""
+    idx = np.clip(np.searchsorted(time_s, at_s, side="right") - 1, 0, time_s.size - 2)
+    t0, t1 = time_s[idx], time_s[idx + 1]
+    w = np.clip((at_s - t0) / (t1 - t0), 0.0, 1.0)
+    out = values[:, idx] * (1.0 - w) + values[:, idx + 1] * w
+    out[:, at_s > time_s[-1]] = values[:, -1:]
+    out[:, at_s < 0.0] = 0.0
+    return out
+
+
+def _offsets(step_t: np.ndarray, deviation: np.ndarray, bit_time_s: float, n_mem: int, swing_v: float) -> np.ndarray:
+    """Offsets within a bit where the pattern waveform is evaluated (see the module docstring)."""
+    cand = np.unique(
+        np.concatenate(
+            [
+                step_t[step_t < bit_time_s],
+                np.arange(UNIFORM_OFFSETS) * (bit_time_s / UNIFORM_OFFSETS),
+                [0.5 * bit_time_s],
+            ]
+        )
+    )
+    fixed = np.isin(cand, np.arange(UNIFORM_OFFSETS) * (bit_time_s / UNIFORM_OFFSETS)) | (cand == 0.5 * bit_time_s)
+    if cand.size <= 2 * UNIFORM_OFFSETS:
+        return cand
+    keep = fixed.copy()
+    keep[[0, -1]] = True
+    keep[:: max(1, cand.size // UNIFORM_OFFSETS)] = True
+    tol = REFINE_TOLERANCE * swing_v
+    lag_t = (np.arange(n_mem)[:, None] * bit_time_s + cand[None, :]).ravel()
+    rows = max(1, REFINE_BUDGET_VALUES // lag_t.size)
+    for start in range(0, deviation.shape[0], rows):
+        # values at every candidate for every bit lag, folded into rows: (n_chunk * n_mem, n_cand)
+        block = deviation[start : start + rows]
+        vals = _sample(step_t, block, lag_t).reshape(block.shape[0] * n_mem, cand.size)
+        for _ in range(64):
+            kept = np.flatnonzero(keep)
+            left, right = kept[:-1], kept[1:]
+            gap = (right - left) > 1
+            left, right = left[gap], right[gap]
+            if left.size == 0:
+                break
+            mid = (left + right) // 2
+            w = (cand[mid] - cand[left]) / (cand[right] - cand[left])
+            err = np.abs(vals[:, mid] - (vals[:, left] * (1.0 - w) + vals[:, right] * w)).max(axis=0)
+            if not np.any(err > tol):
+                break
+            keep[mid[err > tol]] = True
+    # a kept point's neighbours on the candidate grid are kept too, so peaks are not cut between samples
+    kept = np.flatnonzero(keep)
+    keep[np.clip(kept - 1, 0, None)] = True
+    keep[np.clip(kept + 1, None, cand.size - 1)] = True
+    return cand[keep]

@@ -2,9 +2,13 @@
 
 import numpy as np
 import pytest
+import skrf
+from skrf.circuit import Circuit
+from skrf.media import DefinedGammaZ0
 
-from engine.bus import build_bus
-from engine.plan import BusInputError, load_plan
+from engine.bus import Bus, build_bus
+from engine.line import characteristic_impedance_ohm, propagation_constant_per_m
+from engine.plan import BusInputError, input_resistance_ohm, load_plan
 from engine.solve import dc_transfer, solve_bus
 from engine.units import SPEED_OF_LIGHT_M_PER_S
 
@@ -42,6 +46,25 @@ def test_matched_line_is_a_pure_delay_of_half_the_source():
     np.testing.assert_allclose(resp.transfer[0, :, 0], expected, rtol=1e-8)
 
 
+def test_open_line_input_follows_the_lossless_line_impedance_formula():
+    # Source: closed form, Z_in of an open lossless line = -j Z0 cot(beta l) (Pozar, 4th ed., eq. 2.45);
+    # the source divider then gives V_in / V_oc = Z_in / (R_s + Z_in). Receiver at the driver end, no stub.
+    bus = _bus(
+        terminations=[],
+        nodes=[
+            {"name": "near", "position_m": 0.0, "unit_loads": 1e-6, "input_capacitance_f": 0.0},
+            {"name": "far", "position_m": 100.0, "unit_loads": 1e-6, "input_capacitance_f": 0.0},
+        ],
+    )
+    f = np.array([0.3e6, 1.1e6, 2.9e6])
+    beta = 2 * np.pi * f / (0.7 * SPEED_OF_LIGHT_M_PER_S)
+    z_in = -1j * 120.0 / np.tan(beta * 100.0)
+    resp = solve_bus(bus, f)
+    np.testing.assert_allclose(resp.transfer[0, :, 0], z_in / (120.0 + z_in), rtol=1e-6)
+    # Source: closed form, open end V_L = V_in / cos(beta l) (Pozar, 4th ed., eq. 2.39 with Gamma_L = 1).
+    np.testing.assert_allclose(resp.transfer[0, :, 1], z_in / (120.0 + z_in) / np.cos(beta * 100.0), rtol=1e-6)
+
+
 def test_dc_solve_is_the_resistive_divider():
     # Source: closed form, Ohm's law: V = V_oc * R_load / (R_s + R_loop + R_load), R_loop = 2 * R' * l.
     cable = dict(LOSSLESS, resistance_ohm_per_m=0.0842)
@@ -56,3 +79,112 @@ def test_unknown_driver_name_is_a_clear_error():
     with pytest.raises(BusInputError) as err:
         solve_bus(bus, [1e6], driver_names=["far"])
     assert err.value.problems[0].field == "driver_name"
+
+
+# --- scikit-rf as an independent route -------------------------------------------------------------------
+
+
+def _tree_bus(cable: dict) -> Bus:
+    """A trunk with the driver mid-bus, stubs of several lengths, parallel, RC and bias loads."""
+    return build_bus(
+        load_plan(
+            {
+                "bit_rate_bps": 1e6,
+                "trunk_length_m": 200.0,
+                "cable": cable,
+                "driver": {"position_m": 30.0, "stub_length_m": 1.5, "transceiver": "edge-25ns"},
+                "nodes": [
+                    {"name": "west", "position_m": 0.0, "stub_length_m": 2.0},
+                    {"name": "mid", "position_m": 80.0, "stub_length_m": 5.0, "input_capacitance_f": 30e-12},
+                    {"name": "tap", "position_m": 150.0, "stub_length_m": 0.0, "unit_loads": 0.25},
+                    {"name": "east", "position_m": 200.0, "stub_length_m": 1.0, "unit_loads": 0.125},
+                ],
+                "terminations": [
+                    {"position_m": 0.0, "resistance_ohm": 120.0},
+                    {"position_m": 200.0, "kind": "rc", "resistance_ohm": 120.0, "capacitance_f": 2.2e-9},
+                ],
+                "bias": {"position_m": 0.0, "pull_up_ohm": 560.0, "pull_down_ohm": 560.0},
+            }
+        )
+    )
+
+
+def _one_port(freq: skrf.Frequency, z_ohm: np.ndarray, name: str) -> skrf.Network:
+    gamma = (z_ohm - 50.0) / (z_ohm + 50.0)
+    return skrf.Network(frequency=freq, s=gamma.reshape(-1, 1, 1), z0=50.0, name=name)
+
+
+def _skrf_transfer(bus: Bus, f: np.ndarray) -> np.ndarray:
+    """V_receiver / V_oc by scikit-rf's Circuit: the driver a port of impedance R_s, each receiver a port of
+    impedance R_in (its C_in a separate shunt); all ports matched, so V_k / V_oc = S_k0 sqrt(z_k / z_0) / 2."""
+    plan, cable = bus.plan, bus.cable
+    freq = skrf.Frequency.from_f(f, unit="hz")
+    media = DefinedGammaZ0(
+        freq,
+        z0_port=50.0,
+        z0=characteristic_impedance_ohm(cable, f),
+        gamma=propagation_constant_per_m(cable, f),
+    )
+    w = 2 * np.pi * f
+    junction_pos = sorted(
+        {0.0, plan.trunk_length_m, plan.driver.position_m}
+        | {n.position_m for n in plan.nodes}
+        | {t.position_m for t in plan.terminations}
+        | ({plan.bias.position_m} if plan.bias else set())
+    )
+    junctions: dict[float, list] = {p: [] for p in junction_pos}
+    connections: list[list] = []
+    for i, (a, b) in enumerate(zip(junction_pos[:-1], junction_pos[1:], strict=True)):
+        seg = media.line(b - a, unit="m", name=f"seg{i}")
+        junctions[a].append((seg, 0))
+        junctions[b].append((seg, 1))
+
+    def hang(position_m: float, stub_m: float, items: list, tag: str) -> None:
+        if stub_m == 0.0:
+            junctions[position_m].extend(items)
+            return
+        stub = media.line(stub_m, unit="m", name=f"stub-{tag}")
+        junctions[position_m].append((stub, 0))
+        connections.append([(stub, 1), *items])
+
+    z_src = bus.driver.source_ohm
+    drv_port = Circuit.Port(freq, "drv", z0=z_src)
+    hang(plan.driver.position_m, plan.driver.stub_length_m, [(drv_port, 0)], "drv")
+    ports = []
+    for i, node in enumerate(plan.nodes):
+        r_in = input_resistance_ohm(node.unit_loads)
+        port = Circuit.Port(freq, f"rx{i}", z0=r_in)
+        cap = _one_port(freq, 1.0 / (1j * w * node.input_capacitance_f), f"cin{i}")
+        hang(node.position_m, node.stub_length_m, [(port, 0), (cap, 0)], f"n{i}")
+        ports.append((port, r_in))
+    for i, term in enumerate(plan.terminations):
+        z = term.resistance_ohm + (1.0 / (1j * w * term.capacitance_f) if term.kind == "rc" else 0.0)
+        junctions[term.position_m].append((_one_port(freq, z + 0 * w, f"term{i}"), 0))
+    if plan.bias:
+        z_bias = (plan.bias.pull_up_ohm + plan.bias.pull_down_ohm) + 0 * w
+        junctions[plan.bias.position_m].append((_one_port(freq, z_bias + 0j, "bias"), 0))
+    connections = [items for items in junctions.values()] + connections
+    circuit = Circuit(connections)
+    s = circuit.network.s
+    index = {name: k for k, name in enumerate(circuit.port_names)}
+    out = np.empty((f.size, len(ports)), dtype=complex)
+    for k, (port, r_in) in enumerate(ports):
+        out[:, k] = s[:, index[port.name], index["drv"]] * np.sqrt(r_in / z_src) / 2.0
+    return out
+
+
+@pytest.mark.parametrize(
+    "cable",
+    [
+        pytest.param(LOSSLESS, id="lossless"),
+        # skin effect, dielectric loss and DC resistance all on
+        pytest.param({"class_key": "pair-24awg-120"}, id="lossy-24awg"),
+    ],
+)
+def test_tree_bus_matches_scikit_rf(cable):
+    # Source: scikit-rf (Circuit of DefinedGammaZ0 lines, tee-free junctions), the same gamma and Z0.
+    bus = _tree_bus(cable)
+    f = np.geomspace(1e3, 60e6, 37)
+    ours = solve_bus(bus, f).transfer[0]
+    reference = _skrf_transfer(bus, f)
+    np.testing.assert_allclose(ours, reference, rtol=1e-6, atol=1e-9)
