@@ -9,8 +9,10 @@ level l uses N samples spaced dt_l = dt_0 * 4^l (dt_0 = T_e / 32) over a window 
 bus at s_k = sigma_l + j 2 pi k / T_l with sigma_l T_l = ln(1e8), and inverts with one real FFT:
 x(n dt) = exp(sigma n dt) * irfft(X(s_k) W_k) / dt. The damping makes the response's own tail (which never
 decays: it settles at the DC level) vanish before it wraps around, so the first half of each window is
-accurate to about 1e-4 of the swing; W_k is a Gaussian low-pass (sigma_f = 0.4 Nyquist) so nothing aliases.
-It rounds the ramp's corners by about 1 % of the swing (a Gaussian of 0.025 T_e at level 0), nothing more.
+accurate to about 1e-4 of the swing; W_k is a Gaussian low-pass (sigma_f = 0.2 Nyquist; 0.4 at level 0,
+where the ramp itself is resolved) so nothing aliases. It rounds the ramp's corners by about 1 % of the swing
+(a Gaussian of 0.025 T_e at level 0), nothing more; later levels blur by 1.6 dt_l, under 0.1 % of the elapsed
+time, which a real (dispersive) cable's own edges outgrow.
 Level 0 covers [0, T_0/2], level l the span (T_{l-1}/2, T_l/2]: the grid is dense at the edge and widens as
 the response slows down, and levels are added until every receiver has settled within `tolerance` of its DC
 level (from the exact DC solve) or the requested horizon is covered. After that the response *is* its DC level.
@@ -44,7 +46,8 @@ LEVEL_FACTOR = 4  # dt grows by this from one level to the next
 SAMPLES_PER_EDGE = 32  # dt_0 = T_e / SAMPLES_PER_EDGE
 KEEP_EVERY = 4  # stored samples: every 4th of the transform grid (T_e / 8 at the edge)
 DAMPING = float(np.log(1e8))  # sigma_l * T_l
-LOWPASS_FRACTION = 0.4  # Gaussian sigma_f as a fraction of the Nyquist frequency
+LOWPASS_FRACTION = 0.2  # Gaussian sigma_f as a fraction of the Nyquist frequency
+FIRST_LOWPASS_FRACTION = 0.4  # level 0, where the ramp itself is resolved and barely reaches Nyquist
 MAX_LEVELS = 28
 MAX_FIRST_LEVEL = 16384  # samples of level 0 at most
 MEMORY_BUDGET_COMPLEX = 4_000_000  # transfer values held at once (drivers are processed in chunks)
@@ -111,7 +114,7 @@ def step_responses(
     batch = 1 + next((i for i, (dt, n, _) in enumerate(schedule) if n * dt / 2.0 >= t_min), len(schedule) - 1)
     while level < len(schedule):
         levels = schedule[level : level + batch]
-        grids = [_level_grid(dt, n) for dt, n, _ in levels]
+        grids = [_level_grid(dt, n, _lowpass_fraction(level + i)) for i, (dt, n, _) in enumerate(levels)]
         bounds = np.cumsum([0] + [g[0].size for g in grids])
         s_all = np.concatenate([g[0] for g in grids])
         x_all = _edge_spectrum(s_all, v_oc, t_edge) * np.concatenate([g[1] for g in grids])
@@ -121,7 +124,7 @@ def step_responses(
         for i, (dt, n, _) in enumerate(levels):
             rows = slice(bounds[i], bounds[i + 1])
             sigma = DAMPING / (n * dt)
-            blur_s = dt / (np.pi * LOWPASS_FRACTION)  # Gaussian time width of the low-pass
+            blur_s = dt / (np.pi * _lowpass_fraction(level + i))  # Gaussian time width of the low-pass
             gain = np.exp(sigma * kept[i] * dt - 0.5 * (sigma * blur_s) ** 2) / dt
             chunk = max(1, MEMORY_BUDGET_COMPLEX // max(1, (n // 2 + 1) * n_rx))
             for start in range(0, len(names), chunk):
@@ -137,7 +140,7 @@ def step_responses(
             tail = v[..., v.shape[-1] // 2 :]
             if t[-1] >= t_min and np.max(np.abs(tail - v_final[..., None]), initial=0.0) <= tolerance * v_oc:
                 # a flat tail only proves settling while the level still resolves the trunk's ringing
-                settled = dt / (np.pi * LOWPASS_FRACTION) <= ring_period_s / 8.0
+                settled = dt / (np.pi * _lowpass_fraction(level - 1)) <= ring_period_s / 8.0
                 stop = True
                 break
             if max_time_s is not None and t[-1] >= max_time_s:
@@ -180,14 +183,18 @@ def _level_schedule(bus: Bus, t_edge_s: float, t_min_s: float) -> list[tuple[flo
     return schedule
 
 
-def _level_grid(dt_s: float, n: int) -> tuple[np.ndarray, np.ndarray]:
+def _lowpass_fraction(level: int) -> float:
+    return FIRST_LOWPASS_FRACTION if level == 0 else LOWPASS_FRACTION
+
+
+def _level_grid(dt_s: float, n: int, lowpass_fraction: float) -> tuple[np.ndarray, np.ndarray]:
     """Laplace points, spacing and low-pass weights of one level: s_k = sigma + j 2 pi k / (n dt)."""
     window_s = n * dt_s
     k = np.arange(n // 2 + 1)
     f = k / window_s
     s = DAMPING / window_s + 2j * np.pi * f
     f_nyquist = 0.5 / dt_s
-    weight = np.exp(-0.5 * (f / (LOWPASS_FRACTION * f_nyquist)) ** 2)
+    weight = np.exp(-0.5 * (f / (lowpass_fraction * f_nyquist)) ** 2)
     return s, weight
 
 

@@ -114,7 +114,7 @@ def _one_port(freq: skrf.Frequency, z_ohm: np.ndarray, name: str) -> skrf.Networ
     return skrf.Network(frequency=freq, s=gamma.reshape(-1, 1, 1), z0=50.0, name=name)
 
 
-def _skrf_transfer(bus: Bus, f: np.ndarray) -> np.ndarray:
+def _skrf_transfer(bus: Bus, f: np.ndarray, driver_name: str | None = None) -> np.ndarray:
     """V_receiver / V_oc by scikit-rf's Circuit: the driver a port of impedance R_s, each receiver a port of
     impedance R_in (its C_in a separate shunt); all ports matched, so V_k / V_oc = S_k0 sqrt(z_k / z_0) / 2."""
     plan, cable = bus.plan, bus.cable
@@ -149,13 +149,19 @@ def _skrf_transfer(bus: Bus, f: np.ndarray) -> np.ndarray:
 
     z_src = bus.driver.source_ohm
     drv_port = Circuit.Port(freq, "drv", z0=z_src)
-    hang(plan.driver.position_m, plan.driver.stub_length_m, [(drv_port, 0)], "drv")
+    if driver_name in (None, plan.driver.name):
+        hang(plan.driver.position_m, plan.driver.stub_length_m, [(drv_port, 0)], "drv")
+    else:  # the primary driver listens: its receiver, 20 pF (the plan's default node capacitance)
+        r_drv = _one_port(freq, 1.0 / (1.0 / input_resistance_ohm(bus.driver.unit_loads) + 1j * w * 20e-12), "rd")
+        hang(plan.driver.position_m, plan.driver.stub_length_m, [(r_drv, 0)], "drv")
     ports = []
     for i, node in enumerate(plan.nodes):
         r_in = input_resistance_ohm(node.unit_loads)
         port = Circuit.Port(freq, f"rx{i}", z0=r_in)
         cap = _one_port(freq, 1.0 / (1j * w * node.input_capacitance_f), f"cin{i}")
-        hang(node.position_m, node.stub_length_m, [(port, 0), (cap, 0)], f"n{i}")
+        # the driving node's own receiver input is left out of the model while it drives
+        items = [(drv_port, 0)] if node.name == driver_name else [(port, 0), (cap, 0)]
+        hang(node.position_m, node.stub_length_m, items, f"n{i}")
         ports.append((port, r_in))
     for i, term in enumerate(plan.terminations):
         z = term.resistance_ohm + (1.0 / (1j * w * term.capacitance_f) if term.kind == "rc" else 0.0)
@@ -169,6 +175,10 @@ def _skrf_transfer(bus: Bus, f: np.ndarray) -> np.ndarray:
     index = {name: k for k, name in enumerate(circuit.port_names)}
     out = np.empty((f.size, len(ports)), dtype=complex)
     for k, (port, r_in) in enumerate(ports):
+        if plan.nodes[k].name == driver_name:
+            # the driver's own terminal: V = sqrt(z) (a + b), a = V_oc / (2 sqrt(z)), so V / V_oc = (1 + S_00) / 2
+            out[:, k] = (1.0 + s[:, index["drv"], index["drv"]]) / 2.0
+            continue
         out[:, k] = s[:, index[port.name], index["drv"]] * np.sqrt(r_in / z_src) / 2.0
     return out
 
@@ -188,3 +198,18 @@ def test_tree_bus_matches_scikit_rf(cable):
     ours = solve_bus(bus, f).transfer[0]
     reference = _skrf_transfer(bus, f)
     np.testing.assert_allclose(ours, reference, rtol=1e-6, atol=1e-9)
+
+
+def test_transceiver_driving_matches_scikit_rf_in_the_same_batch():
+    # Source: scikit-rf Circuit as above, with node "mid" driving and the primary driver listening.
+    cable = {"class_key": "pair-24awg-120"}
+    doc = _tree_bus(cable).plan.model_dump(mode="json")
+    doc["nodes"][1]["role"] = "transceiver"
+    doc["nodes"][3]["role"] = "transceiver"
+    bus = build_bus(load_plan(doc))
+    f = np.geomspace(1e3, 60e6, 23)
+    batch = solve_bus(bus, f, driver_names=["driver", "mid", "east"])
+    assert batch.driver_names == ("driver", "mid", "east")
+    for i, name in enumerate(batch.driver_names):
+        reference = _skrf_transfer(bus, f, driver_name=name)
+        np.testing.assert_allclose(batch.transfer[i], reference, rtol=1e-6, atol=1e-9, err_msg=name)
