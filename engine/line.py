@@ -143,13 +143,13 @@ def characteristic_impedance_ohm(cable: ResolvedCable, frequency_hz: ArrayLike) 
         return np.where(gamma == 0, np.inf + 0j, z / np.where(gamma == 0, 1.0, gamma))
 
 
-def _tanhc(x: np.ndarray) -> np.ndarray:
-    """tanh(x) / x, with its series near 0; Re x >= 0 assumed."""
-    small = np.abs(x) < 1e-4
-    safe = np.where(small, 1.0, x)
-    e2 = np.exp(-2.0 * safe)
-    big = (1.0 - e2) / (1.0 + e2) / safe
-    return np.where(small, 1.0 - x * x / 3.0, big)
+def _tanh_and_tanhc(x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """tanh(x) and tanh(x) / x (1 at x = 0), accurate for small |x| and finite for large Re x >= 0."""
+    em = np.expm1(-2.0 * x)  # exp(-2x) - 1, exact near 0
+    tanh = -em / (2.0 + em)
+    tanhc = np.ones_like(tanh)
+    np.divide(tanh, x, out=tanhc, where=x != 0)
+    return tanh, tanhc
 
 
 def section_terms(z_per_m: np.ndarray, y_per_m: np.ndarray, length_m: ArrayLike) -> SectionTerms:
@@ -158,16 +158,16 @@ def section_terms(z_per_m: np.ndarray, y_per_m: np.ndarray, length_m: ArrayLike)
     z_per_m, y_per_m: Z'(s), Y'(s) of shape (n_s,). Uses exp(-2 gamma l), so nothing overflows however lossy.
     """
     length = np.asarray(length_m, dtype=float)[None, :]
-    gamma = np.sqrt(z_per_m * y_per_m)[:, None]
-    x = gamma * length
-    e2 = np.exp(-2.0 * x)
-    log_sech = np.log(2.0) - x - np.log1p(e2)
-    tc = _tanhc(x)
+    x = np.sqrt(z_per_m * y_per_m)[:, None] * length
+    _, tc = _tanh_and_tanhc(x)
+    log_sech = np.log(2.0) - x - np.log1p(np.exp(-2.0 * x))
+    z_tanh = z_per_m[:, None] * length * tc
+    y_tanh = y_per_m[:, None] * length * tc
     return SectionTerms(
         sech_term=np.exp(log_sech),
         log_sech_term=log_sech,
-        z_tanh_ohm=z_per_m[:, None] * length * tc,
-        y_tanh_siemens=y_per_m[:, None] * length * tc,
+        z_tanh_ohm=z_tanh,
+        y_tanh_siemens=y_tanh,
     )
 
 
@@ -180,7 +180,7 @@ def abcd_section(cable: ResolvedCable, frequency_hz: ArrayLike, length_m: float)
     z = series_impedance_ohm_per_m(cable, s)
     y = shunt_admittance_siemens_per_m(cable, s)
     x = np.sqrt(z * y) * length_m
-    tc = _tanhc(x)
+    _, tc = _tanh_and_tanhc(x)
     cosh = np.cosh(x)
     out = np.empty((x.size, 2, 2), dtype=complex)
     out[:, 0, 0] = cosh

@@ -20,8 +20,8 @@ Method, linear in the number of junctions K for every frequency at once:
    into the rest of the trunk (input admittance of a loaded line, recursively).
 3. From the driver's junction, voltages propagate outward segment by segment:
    V_next / V_here = sech / (1 + Z0 tanh Y_next), Y_next = everything beyond (Pozar, table 4.1 ABCD).
-   The products are kept as cumulative sums of logarithms, so any driver junction is a difference of two
-   prefix sums: all drivers are evaluated in one batched pass, without re-sweeping.
+   These ratios do not depend on where the driver sits (the sweeps exclude each junction's own shunt), so
+   every driver reuses the same sweeps: a cumulative product outward from its junction, O(K) per driver.
 4. The driver's stub with its Thevenin source closes the chain:
    V_J / V_oc = sech / ((1 + Z0 tanh Y_J) + R_s (tanh/Z0 + Y_J)); the source end sits at
    V_e / V_oc = (1 + Z0 tanh Y_J) / (same denominator).
@@ -36,11 +36,9 @@ from numpy.typing import ArrayLike
 from engine.bus import Bus
 from engine.line import (
     SectionTerms,
-    input_admittance_siemens,
     section_terms,
     series_impedance_ohm_per_m,
     shunt_admittance_siemens_per_m,
-    voltage_transfer,
 )
 from engine.plan import BusInputError, NodeSpec, Problem, input_resistance_ohm
 
@@ -162,44 +160,56 @@ def resolve_driver_names(bus: Bus, driver_names: "tuple[str, ...] | list[str] | 
 
 
 def load_admittance_siemens(topo: Topology, s: np.ndarray) -> np.ndarray:
-    """Admittance of each branch's load, (n_s, n_b): G + s C, plus s C_t / (1 + s R_t C_t) for RC terminators."""
-    s_col = s[:, None]
-    y = topo.branch_conductance_siemens[None, :] + s_col * topo.branch_capacitance_f[None, :]
+    """Admittance of each branch's load, (n_b, n_s): G + s C, plus s C_t / (1 + s R_t C_t) for RC terminators."""
+    s_row = s[None, :]
+    y = topo.branch_conductance_siemens[:, None] + topo.branch_capacitance_f[:, None] * s_row
     rc = topo.branch_series_rc_f > 0
     if np.any(rc):
-        c_t = topo.branch_series_rc_f[rc]
-        y[:, rc] += s_col * c_t / (1.0 + s_col * topo.branch_series_rc_ohm[rc] * c_t)
+        c_t = topo.branch_series_rc_f[rc][:, None]
+        y[rc] += s_row * c_t / (1.0 + s_row * topo.branch_series_rc_ohm[rc][:, None] * c_t)
     return y
-
-
-def _take(terms: SectionTerms, index: np.ndarray) -> SectionTerms:
-    return SectionTerms(
-        terms.sech_term[:, index],
-        terms.log_sech_term[:, index],
-        terms.z_tanh_ohm[:, index],
-        terms.y_tanh_siemens[:, index],
-    )
 
 
 @dataclass(frozen=True, slots=True)
 class Network:
-    """The passive bus (every node a load) solved at Laplace points s: what any driver needs, (n_s, ...)."""
+    """The passive bus (every node a load) solved at Laplace points s: what any driver needs.
+
+    Junction-major layout, (n_junctions, n_s): the sweeps walk contiguous rows. Stub terms are kept per
+    distinct stub length (stub_of maps a branch to its row).
+    """
 
     topology: Topology
     source_ohm: float
-    y_load: np.ndarray  # (n_s, n_b) load admittance of each branch
-    y_branch: np.ndarray  # (n_s, n_b) admittance into each branch at its junction
-    stubs: SectionTerms  # (n_s, n_b)
-    y_shunt: np.ndarray  # (n_s, K)
-    y_left: np.ndarray  # (n_s, K) looking left into the trunk, own shunt excluded
-    y_right: np.ndarray  # (n_s, K)
-    cum_right: np.ndarray  # (n_s, K) prefix sums of log(V_{k+1} / V_k)
-    cum_left: np.ndarray  # (n_s, K) prefix sums of log(V_k / V_{k+1})
-    rx_stub: np.ndarray  # (n_s, n_receivers) V_receiver / V_junction
+    stub_of: np.ndarray  # (n_b,) row of each branch's stub in the stub tables
+    stub_sech: np.ndarray  # (n_lengths, n_s) sech(gamma l)
+    stub_z_tanh_ohm: np.ndarray  # (n_lengths, n_s) Z0 tanh(gamma l)
+    stub_y_tanh_siemens: np.ndarray  # (n_lengths, n_s) tanh(gamma l) / Z0
+    driver_y_branch: dict[str, np.ndarray]  # name -> (n_s,) admittance into the driver's branch when passive
+    y_shunt: np.ndarray  # (K, n_s)
+    y_left: np.ndarray  # (K, n_s) looking left into the trunk, own shunt excluded
+    y_right: np.ndarray  # (K, n_s)
+    ratio_right: np.ndarray  # (K - 1, n_s) V_{k+1} / V_k with the driver on the left of segment k
+    ratio_left: np.ndarray  # (K - 1, n_s) V_k / V_{k+1} with the driver on the right
+    rx_stub: np.ndarray  # (n_receivers, n_s) V_receiver / V_junction
 
 
-def solve_network(bus: Bus, s: ArrayLike, topo: Topology | None = None) -> Network:
-    """Steps 1-3 of the module docstring: branch admittances, both sweeps, outward voltage ratios."""
+def _rows(terms: SectionTerms) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """(n_s, n) section terms as contiguous (n, n_s) rows: sech, log sech, Z0 tanh, tanh / Z0."""
+    return (
+        np.ascontiguousarray(terms.sech_term.T),
+        np.ascontiguousarray(terms.log_sech_term.T),
+        np.ascontiguousarray(terms.z_tanh_ohm.T),
+        np.ascontiguousarray(terms.y_tanh_siemens.T),
+    )
+
+
+def solve_network(
+    bus: Bus, s: ArrayLike, topo: Topology | None = None, driver_names: "tuple[str, ...] | None" = None
+) -> Network:
+    """Steps 1-3 of the module docstring: branch admittances, both sweeps, outward voltage ratios.
+
+    driver_names: the drivers the network will be asked about (None: every node that may drive).
+    """
     topo = build_topology(bus) if topo is None else topo
     s_arr = np.atleast_1d(np.asarray(s, dtype=complex))
     n_s = s_arr.size
@@ -207,81 +217,102 @@ def solve_network(bus: Bus, s: ArrayLike, topo: Topology | None = None) -> Netwo
     y = shunt_admittance_siemens_per_m(bus.cable, s_arr)
     k_count = topo.junction_position_m.size
 
-    stubs = section_terms(z, y, topo.branch_stub_m)
+    # 1. branches (stubs of equal length share one computation); shunt admittance per junction
+    stub_len, stub_of = np.unique(np.round(topo.branch_stub_m, 9), return_inverse=True)
+    sech_u, _, zt_u, yt_u = _rows(section_terms(z, y, stub_len))
     y_load = load_admittance_siemens(topo, s_arr)
-    y_branch = input_admittance_siemens(stubs, y_load)  # (n_s, n_b)
+    y_branch = (yt_u[stub_of] + y_load) / (1.0 + zt_u[stub_of] * y_load)
     order = np.argsort(topo.branch_junction, kind="stable")
     bj = topo.branch_junction[order]
     starts = np.flatnonzero(np.r_[True, bj[1:] != bj[:-1]])
-    y_shunt = np.zeros((n_s, k_count), dtype=complex)
-    y_shunt[:, bj[starts]] = np.add.reduceat(y_branch[:, order], starts, axis=1)
-
-    seg = section_terms(z, y, topo.segment_length_m)  # (n_s, K-1)
-    y_left = np.zeros((n_s, k_count), dtype=complex)
-    y_right = np.zeros((n_s, k_count), dtype=complex)
-    zt, yt = seg.z_tanh_ohm, seg.y_tanh_siemens
-    for k in range(k_count - 1):
-        beyond = y_shunt[:, k] + y_left[:, k]
-        y_left[:, k + 1] = (yt[:, k] + beyond) / (1.0 + zt[:, k] * beyond)
-    for k in range(k_count - 2, -1, -1):
-        beyond = y_shunt[:, k + 1] + y_right[:, k + 1]
-        y_right[:, k] = (yt[:, k] + beyond) / (1.0 + zt[:, k] * beyond)
-
-    log_right = seg.log_sech_term - np.log(1.0 + zt * (y_shunt[:, 1:] + y_right[:, 1:]))  # log V_{k+1}/V_k
-    log_left = seg.log_sech_term - np.log(1.0 + zt * (y_shunt[:, :-1] + y_left[:, :-1]))  # log V_k/V_{k+1}
-    zero = np.zeros((n_s, 1), dtype=complex)
+    y_shunt = np.zeros((k_count, n_s), dtype=complex)
+    y_shunt[bj[starts]] = y_branch[order[starts]]
+    extra = np.setdiff1d(np.arange(order.size), starts)
+    if extra.size:
+        np.add.at(y_shunt, bj[extra], y_branch[order[extra]])
+    names = tuple(topo.driver_branch) if driver_names is None else driver_names
+    driver_y = {name: y_branch[topo.driver_branch[name]] for name in names}
     rx = topo.receiver_branch
+    rx_stub = sech_u[stub_of[rx]] / (1.0 + zt_u[stub_of[rx]] * y_load[rx])
+    del y_load, y_branch
+
+    # 2-3. sweeps along the trunk, with the voltage ratio across every segment on the way
+    seg_len, seg_of = np.unique(np.round(topo.segment_length_m, 9), return_inverse=True)
+    sech, _, zt, yt = _rows(section_terms(z, y, seg_len))
+    y_left = np.zeros((k_count, n_s), dtype=complex)
+    y_right = np.zeros((k_count, n_s), dtype=complex)
+    ratio_left = np.empty((k_count - 1, n_s), dtype=complex)
+    ratio_right = np.empty((k_count - 1, n_s), dtype=complex)
+    beyond = np.empty(n_s, dtype=complex)
+    inv = np.empty(n_s, dtype=complex)
+    for k in range(k_count - 1):
+        u = seg_of[k]
+        np.add(y_shunt[k], y_left[k], out=beyond)
+        np.multiply(zt[u], beyond, out=inv)
+        inv += 1.0
+        np.reciprocal(inv, out=inv)
+        beyond += yt[u]
+        np.multiply(beyond, inv, out=y_left[k + 1])
+        np.multiply(sech[u], inv, out=ratio_left[k])  # V_k / V_{k+1}
+    for k in range(k_count - 2, -1, -1):
+        u = seg_of[k]
+        np.add(y_shunt[k + 1], y_right[k + 1], out=beyond)
+        np.multiply(zt[u], beyond, out=inv)
+        inv += 1.0
+        np.reciprocal(inv, out=inv)
+        beyond += yt[u]
+        np.multiply(beyond, inv, out=y_right[k])
+        np.multiply(sech[u], inv, out=ratio_right[k])  # V_{k+1} / V_k
     return Network(
         topology=topo,
         source_ohm=bus.driver.source_ohm,
-        y_load=y_load,
-        y_branch=y_branch,
-        stubs=stubs,
+        stub_of=stub_of,
+        stub_sech=sech_u,
+        stub_z_tanh_ohm=zt_u,
+        stub_y_tanh_siemens=yt_u,
+        driver_y_branch=driver_y,
         y_shunt=y_shunt,
         y_left=y_left,
         y_right=y_right,
-        cum_right=np.concatenate([zero, np.cumsum(log_right, axis=1)], axis=1),
-        cum_left=np.concatenate([zero, np.cumsum(log_left, axis=1)], axis=1),
-        rx_stub=voltage_transfer(_take(stubs, rx), y_load[:, rx]),
+        ratio_right=ratio_right,
+        ratio_left=ratio_left,
+        rx_stub=rx_stub,
     )
 
 
-def driver_transfer(net: Network, driver_names: tuple[str, ...], rows: slice = slice(None)) -> np.ndarray:
-    """Step 4: V_receiver / V_open_circuit for each driver, (n_drivers, n_rows, n_receivers).
-
-    rows selects a range of the network's Laplace points, so long batches can be turned into waveforms piece
-    by piece without holding every driver x point x receiver value at once.
-    """
+def receiver_spectra(net: Network, driver_names: tuple[str, ...]) -> np.ndarray:
+    """Step 4: V_receiver / V_open_circuit for each driver, (n_drivers, n_receivers, n_s), frequency last."""
     topo = net.topology
     rx_branch = topo.receiver_branch
     rx_junction = topo.branch_junction[rx_branch]
     r_s = net.source_ohm
-    cum_right, cum_left = net.cum_right[rows], net.cum_left[rows]
-    rx_stub = net.rx_stub[rows]
-    n_s = rx_stub.shape[0]
-    out = np.empty((len(driver_names), n_s, rx_branch.size), dtype=complex)
+    out = np.empty((len(driver_names), rx_branch.size, net.y_shunt.shape[1]), dtype=complex)
     for i, name in enumerate(driver_names):
         b = topo.driver_branch[name]
         j = topo.branch_junction[b]
-        y_j = net.y_shunt[rows, j] - net.y_branch[rows, b] + net.y_left[rows, j] + net.y_right[rows, j]
-        near = 1.0 + net.stubs.z_tanh_ohm[rows, b] * y_j
-        denom = near + r_s * (net.stubs.y_tanh_siemens[rows, b] + y_j)
-        v_j = net.stubs.sech_term[rows, b] / denom
-        exponent = np.where(
-            rx_junction[None, :] >= j,
-            cum_right[:, rx_junction] - cum_right[:, [j]],
-            cum_left[:, [j]] - cum_left[:, rx_junction],
-        )
-        out[i] = v_j[:, None] * np.exp(exponent) * rx_stub
-        own = np.flatnonzero(rx_branch == b)
-        if own.size:
-            out[i][:, own] = (near / denom)[:, None]
+        u = net.stub_of[b]
+        y_j = net.y_shunt[j] - net.driver_y_branch[name] + net.y_left[j] + net.y_right[j]
+        near = 1.0 + net.stub_z_tanh_ohm[u] * y_j
+        denom = near + r_s * (net.stub_y_tanh_siemens[u] + y_j)
+        v_j = net.stub_sech[u] / denom
+        v_junction = np.empty_like(net.y_shunt)
+        v_junction[j] = v_j
+        if j + 1 < v_junction.shape[0]:
+            np.cumprod(net.ratio_right[j:], axis=0, out=v_junction[j + 1 :])
+            v_junction[j + 1 :] *= v_j
+        if j > 0:
+            np.cumprod(net.ratio_left[j - 1 :: -1], axis=0, out=v_junction[j - 1 :: -1])
+            v_junction[:j] *= v_j
+        np.multiply(v_junction[rx_junction], net.rx_stub, out=out[i])
+        own = rx_branch == b
+        if np.any(own):
+            out[i][own] = near / denom
     return out
 
 
 def transfer_at(bus: Bus, s: ArrayLike, driver_names: tuple[str, ...], topo: Topology | None = None) -> np.ndarray:
     """V_receiver / V_open_circuit at Laplace points s, (n_drivers, n_s, n_receivers). See the module docstring."""
-    return driver_transfer(solve_network(bus, s, topo), driver_names)
+    return np.swapaxes(receiver_spectra(solve_network(bus, s, topo, driver_names), driver_names), 1, 2)
 
 
 def solve_bus(

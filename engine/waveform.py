@@ -38,7 +38,7 @@ import numpy as np
 from engine.bus import Bus
 from engine.line import propagation_constant_per_m
 from engine.plan import BusInputError, Problem
-from engine.solve import build_topology, driver_transfer, resolve_driver_names, solve_network
+from engine.solve import build_topology, receiver_spectra, resolve_driver_names, solve_network
 from engine.units import delay_s, propagation_velocity_m_per_s
 
 SAMPLES_PER_LEVEL = 1024  # N, a power of two
@@ -50,7 +50,9 @@ LOWPASS_FRACTION = 0.2  # Gaussian sigma_f as a fraction of the Nyquist frequenc
 FIRST_LOWPASS_FRACTION = 0.4  # level 0, where the ramp itself is resolved and barely reaches Nyquist
 MAX_LEVELS = 28
 MAX_FIRST_LEVEL = 16384  # samples of level 0 at most
-MEMORY_BUDGET_COMPLEX = 4_000_000  # transfer values held at once (drivers are processed in chunks)
+MEMORY_BUDGET_COMPLEX = 2_000_000  # receiver spectra held at once (drivers are processed in groups)
+NETWORK_BUDGET_VALUES = 4_000_000  # junction/branch x Laplace-point values per network solve
+LATER_LEVEL_SAMPLES = 2048  # N of levels after the first once the cable has dispersed the edge
 
 
 @dataclass(frozen=True, slots=True)
@@ -100,55 +102,46 @@ def step_responses(
     v_oc = bus.driver.open_circuit_v
     t_edge = edge_duration_s(bus.driver.rise_time_s)
     n_rx = topo.receiver_branch.size
-    v_final = v_oc * driver_transfer(solve_network(bus, np.zeros(1), topo), names)[:, 0, :].real
+    v_final = v_oc * receiver_spectra(solve_network(bus, np.zeros(1), topo, names), names)[..., 0].real
     t_min = t_edge + 6.0 * longest_delay_s(bus)
     if max_time_s is not None:
         t_min = min(t_min, max_time_s)
     schedule = _level_schedule(bus, t_edge, t_min)
-
     ring_period_s = t_edge + 2.0 * delay_s(bus.plan.trunk_length_m, bus.cable.velocity_factor)
+    # Laplace points per network solve, and drivers per transform, so that working arrays stay bounded
+    points = max(64, NETWORK_BUDGET_VALUES // (5 * topo.junction_position_m.size + 3 * topo.branch_stub_m.size))
+
     times: list[np.ndarray] = []
     values: list[np.ndarray] = []
-    settled = stop = False
-    level = 0
-    batch = 1 + next((i for i, (dt, n, _) in enumerate(schedule) if n * dt / 2.0 >= t_min), len(schedule) - 1)
-    while level < len(schedule):
-        levels = schedule[level : level + batch]
-        grids = [_level_grid(dt, n, _lowpass_fraction(level + i)) for i, (dt, n, _) in enumerate(levels)]
-        bounds = np.cumsum([0] + [g[0].size for g in grids])
-        s_all = np.concatenate([g[0] for g in grids])
-        x_all = _edge_spectrum(s_all, v_oc, t_edge) * np.concatenate([g[1] for g in grids])
-        net = solve_network(bus, s_all, topo)
-        kept = [np.arange(first + (-first) % KEEP_EVERY, n // 2 + 1, KEEP_EVERY) for _, n, first in levels]
-        level_values = [np.empty((len(names), n_rx, k.size)) for k in kept]
-        for i, (dt, n, _) in enumerate(levels):
-            rows = slice(bounds[i], bounds[i + 1])
-            sigma = DAMPING / (n * dt)
-            blur_s = dt / (np.pi * _lowpass_fraction(level + i))  # Gaussian time width of the low-pass
-            gain = np.exp(sigma * kept[i] * dt - 0.5 * (sigma * blur_s) ** 2) / dt
-            chunk = max(1, MEMORY_BUDGET_COMPLEX // max(1, (n // 2 + 1) * n_rx))
-            for start in range(0, len(names), chunk):
-                h = driver_transfer(net, names[start : start + chunk], rows) * x_all[rows, None]
-                x_t = np.fft.irfft(np.swapaxes(h, 1, 2), n=n, axis=-1)[..., kept[i]]
-                level_values[i][start : start + chunk] = x_t * gain
-        for i, (dt, _, _) in enumerate(levels):
-            t = kept[i] * dt
-            v = level_values[i]
-            times.append(t)
-            values.append(v)
-            level += 1
-            tail = v[..., v.shape[-1] // 2 :]
-            if t[-1] >= t_min and np.max(np.abs(tail - v_final[..., None]), initial=0.0) <= tolerance * v_oc:
-                # a flat tail only proves settling while the level still resolves the trunk's ringing
-                settled = dt / (np.pi * _lowpass_fraction(level - 1)) <= ring_period_s / 8.0
-                stop = True
-                break
-            if max_time_s is not None and t[-1] >= max_time_s:
-                stop = True
-                break
-        if stop:
+    settled = False
+    for level, (dt, n, first) in enumerate(schedule):
+        lowpass = _lowpass_fraction(level)
+        s_level, weight = _level_grid(dt, n, lowpass)
+        x_level = _edge_spectrum(s_level, v_oc, t_edge) * weight
+        kept = np.arange(first + (-first) % KEEP_EVERY, n // 2 + 1, KEEP_EVERY)
+        sigma = DAMPING / (n * dt)
+        blur_s = dt / (np.pi * lowpass)  # Gaussian time width of the low-pass
+        gain = np.exp(sigma * kept * dt - 0.5 * (sigma * blur_s) ** 2) / dt
+        v = np.empty((len(names), n_rx, kept.size))
+        drivers_per_pass = max(1, MEMORY_BUDGET_COMPLEX // max(1, s_level.size * n_rx))
+        for d0 in range(0, len(names), drivers_per_pass):
+            group = names[d0 : d0 + drivers_per_pass]
+            spectra = np.empty((len(group), n_rx, s_level.size), dtype=complex)
+            for p0 in range(0, s_level.size, points):
+                part = slice(p0, p0 + points)
+                spectra[..., part] = receiver_spectra(solve_network(bus, s_level[part], topo, group), group)
+            spectra *= x_level
+            v[d0 : d0 + len(group)] = np.fft.irfft(spectra, n=n, axis=-1)[..., kept] * gain
+        t = kept * dt
+        times.append(t)
+        values.append(v)
+        tail = v[..., v.shape[-1] // 2 :]
+        if t[-1] >= t_min and np.max(np.abs(tail - v_final[..., None]), initial=0.0) <= tolerance * v_oc:
+            # a flat tail only proves settling while the level still resolves the trunk's ringing
+            settled = blur_s <= ring_period_s / 8.0
             break
-        batch = 2
+        if max_time_s is not None and t[-1] >= max_time_s:
+            break
     return StepResponses(
         time_s=np.concatenate(times),
         driver_names=names,
@@ -175,7 +168,9 @@ def _level_schedule(bus: Bus, t_edge_s: float, t_min_s: float) -> list[tuple[flo
         n0 *= 2
     schedule = [(dt0, n0, 0)]
     end = n0 * dt0 / 2.0
-    n = n0  # later levels keep level 0's sample count, so a sharp edge stays as sharp relative to elapsed time
+    # On a dispersive cable, edges arriving after level 0 are already several T_e wide, so a shorter N suffices;
+    # on a (nearly) lossless line they stay sharp, and later levels keep level 0's N.
+    n = n0 if t_sharp >= t_min_s else min(n0, LATER_LEVEL_SAMPLES)
     for _ in range(MAX_LEVELS - 1):
         dt = end * 2.0 * LEVEL_FACTOR / n
         schedule.append((dt, n, n // (2 * LEVEL_FACTOR) + 1))
@@ -221,7 +216,8 @@ PRBS_TAPS = {7: (7, 6), 9: (9, 5), 11: (11, 9), 15: (15, 14)}  # ITU-T O.150 pol
 DEFAULT_PATTERN_BITS = 127
 REFINE_TOLERANCE = 1e-3  # of the open-circuit swing: linear interpolation error allowed between offsets
 UNIFORM_OFFSETS = 32  # per bit, always present
-REFINE_BUDGET_VALUES = 1_000_000  # interpolated values held at once while choosing offsets
+REFINE_BUDGET_VALUES = 1_000_000  # interpolated values per block while choosing offsets
+MAX_OFFSETS = 600  # samples per bit at most
 
 
 def prbs_bits(n_bits: int = DEFAULT_PATTERN_BITS, order: int = 7, seed: int = 1) -> str:
@@ -285,11 +281,13 @@ def simulate_pattern(
     d_mem = _sample(s_t, deviation, (np.arange(n_mem)[:, None] * bit_time_s + offsets[None, :]).ravel())
     d_mem = d_mem.reshape(rx_index.size, n_mem, offsets.size)
     b = np.array([1.0 if c == "1" else 0.0 for c in bits])
-    edges = 2.0 * np.diff(b, prepend=b[0])  # (n_bits,) in units of V_oc steps, first bit at rest
+    edges = 2.0 * np.diff(b, prepend=b[0])  # (n_bits,) in units of one 0 -> V_oc step; the first bit at rest
     toeplitz = np.zeros((n_bits, n_mem))
     for m in range(n_mem):
         toeplitz[m:, m] = edges[: n_bits - m]
-    v = np.einsum("nm,rmo->rno", toeplitz, d_mem, optimize=True)
+    # the convolution along the bit index as one BLAS product: (n_bits, n_mem) @ (n_mem, n_rx * n_off)
+    flat = np.ascontiguousarray(d_mem.transpose(1, 0, 2)).reshape(n_mem, -1)
+    v = np.ascontiguousarray((toeplitz @ flat).reshape(n_bits, rx_index.size, -1).transpose(1, 0, 2))
     v += (2.0 * b - 1.0)[None, :, None] * step.v_final_v[0][rx_index, None, None]
     time_s = (np.arange(n_bits)[:, None] * bit_time_s + offsets[None, :]).ravel()
     return Waveforms(
@@ -336,29 +334,36 @@ def _sample(time_s: np.ndarray, values: np.ndarray, at_s: np.ndarray) -> np.ndar
 
 
 def _offsets(step_t: np.ndarray, deviation: np.ndarray, bit_time_s: float, n_mem: int, swing_v: float) -> np.ndarray:
-    """Offsets within a bit where the pattern waveform is evaluated (see the module docstring)."""
-    cand = np.unique(
-        np.concatenate(
-            [
-                step_t[step_t < bit_time_s],
-                np.arange(UNIFORM_OFFSETS) * (bit_time_s / UNIFORM_OFFSETS),
-                [0.5 * bit_time_s],
-            ]
-        )
-    )
-    fixed = np.isin(cand, np.arange(UNIFORM_OFFSETS) * (bit_time_s / UNIFORM_OFFSETS)) | (cand == 0.5 * bit_time_s)
+    """Offsets within a bit where the pattern waveform is evaluated (see the module docstring).
+
+    If more than MAX_OFFSETS would be needed, the tolerance is doubled until they fit: memory stays bounded
+    and the waveform keeps its largest features.
+    """
+    uniform = np.arange(UNIFORM_OFFSETS) * (bit_time_s / UNIFORM_OFFSETS)
+    cand = np.unique(np.concatenate([step_t[step_t < bit_time_s], uniform, [0.5 * bit_time_s]]))
+    fixed = np.isin(cand, uniform) | (cand == 0.5 * bit_time_s)
     if cand.size <= 2 * UNIFORM_OFFSETS:
         return cand
+    lag_t = (np.arange(n_mem)[:, None] * bit_time_s + cand[None, :]).ravel()
+    rows = max(1, REFINE_BUDGET_VALUES // lag_t.size)
+    blocks = [
+        _sample(step_t, deviation[r0 : r0 + rows], lag_t).reshape(-1, cand.size)
+        for r0 in range(0, deviation.shape[0], rows)
+    ]
+    tol = REFINE_TOLERANCE * swing_v
+    while True:
+        keep = _refine(cand, blocks, fixed, tol)
+        if np.count_nonzero(keep) <= MAX_OFFSETS:
+            return cand[keep]
+        tol *= 2.0
+
+
+def _refine(cand: np.ndarray, blocks: list[np.ndarray], fixed: np.ndarray, tol: float) -> np.ndarray:
+    """Bisect between kept candidates wherever linear interpolation misses any row by more than tol."""
     keep = fixed.copy()
     keep[[0, -1]] = True
     keep[:: max(1, cand.size // UNIFORM_OFFSETS)] = True
-    tol = REFINE_TOLERANCE * swing_v
-    lag_t = (np.arange(n_mem)[:, None] * bit_time_s + cand[None, :]).ravel()
-    rows = max(1, REFINE_BUDGET_VALUES // lag_t.size)
-    for start in range(0, deviation.shape[0], rows):
-        # values at every candidate for every bit lag, folded into rows: (n_chunk * n_mem, n_cand)
-        block = deviation[start : start + rows]
-        vals = _sample(step_t, block, lag_t).reshape(block.shape[0] * n_mem, cand.size)
+    for vals in blocks:  # (rows, n_cand): every receiver at every bit lag
         for _ in range(64):
             kept = np.flatnonzero(keep)
             left, right = kept[:-1], kept[1:]
@@ -376,4 +381,4 @@ def _offsets(step_t: np.ndarray, deviation: np.ndarray, bit_time_s: float, n_mem
     kept = np.flatnonzero(keep)
     keep[np.clip(kept - 1, 0, None)] = True
     keep[np.clip(kept + 1, None, cand.size - 1)] = True
-    return cand[keep]
+    return keep
