@@ -282,12 +282,13 @@ def simulate_pattern(
     d_mem = d_mem.reshape(rx_index.size, n_mem, offsets.size)
     b = np.array([1.0 if c == "1" else 0.0 for c in bits])
     edges = 2.0 * np.diff(b, prepend=b[0])  # (n_bits,) in units of one 0 -> V_oc step; the first bit at rest
+    # the convolution along the bit index, one small BLAS product per receiver (no large temporaries)
     toeplitz = np.zeros((n_bits, n_mem))
     for m in range(n_mem):
         toeplitz[m:, m] = edges[: n_bits - m]
-    # the convolution along the bit index as one BLAS product: (n_bits, n_mem) @ (n_mem, n_rx * n_off)
-    flat = np.ascontiguousarray(d_mem.transpose(1, 0, 2)).reshape(n_mem, -1)
-    v = np.ascontiguousarray((toeplitz @ flat).reshape(n_bits, rx_index.size, -1).transpose(1, 0, 2))
+    v = np.empty((rx_index.size, n_bits, offsets.size))
+    for r in range(rx_index.size):
+        np.matmul(toeplitz, d_mem[r], out=v[r])
     v += (2.0 * b - 1.0)[None, :, None] * step.v_final_v[0][rx_index, None, None]
     time_s = (np.arange(n_bits)[:, None] * bit_time_s + offsets[None, :]).ravel()
     return Waveforms(
