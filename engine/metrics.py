@@ -28,7 +28,15 @@ from dataclasses import dataclass
 import numpy as np
 
 from engine.bus import Bus
-from engine.waveform import StepResponses, Waveforms, edge_duration_s, simulate_pattern, step_responses
+from engine.waveform import (
+    DEFAULT_PATTERN_BITS,
+    StepResponses,
+    Waveforms,
+    default_pattern,
+    edge_duration_s,
+    simulate_pattern,
+    step_responses,
+)
 
 RECEIVER_THRESHOLD_V = 0.2  # TIA/EIA-485-A and TIA/EIA-422-B receiver input sensitivity, +/-200 mV
 RECEIVERS_PER_PASS = 32  # receivers whose pattern waveforms are held at once
@@ -93,125 +101,130 @@ def receiver_metrics(
     names = (bus.plan.driver.name,) if driver_name is None else (driver_name,)
     bits = pattern if pattern is not None else bus.plan.test_pattern
     if step is None or step.driver_names[:1] != names:
-        duration_s = len(bits or "x" * 127) / bus.plan.bit_rate_bps
-        step = step_responses(bus, names, max_time_s=duration_s)
+        n_bits = len(bits) if bits is not None else DEFAULT_PATTERN_BITS
+        step = step_responses(bus, names, max_time_s=n_bits / bus.plan.bit_rate_bps)
+    if bits is None:
+        bits = default_pattern(step, 1.0 / bus.plan.bit_rate_bps)
     delays = propagation_delay_s(step)[0]
+    amplitudes = np.abs(step.v_final_v[0])
+    edge_s = edge_duration_s(step.rise_time_s)
     out: list[ReceiverMetrics] = []
     all_rx = step.receiver_names
     for r0 in range(0, len(all_rx), RECEIVERS_PER_PASS):
-        chunk = all_rx[r0 : r0 + RECEIVERS_PER_PASS]
-        wave = simulate_pattern(bus, bits, driver_name, receiver_names=chunk, step=step)
-        for i, name in enumerate(chunk):
-            r = r0 + i
-            out.append(
-                waveform_metrics(
-                    wave,
-                    i,
-                    float(delays[r]),
-                    abs(float(step.v_final_v[0, r])),
-                    edge_duration_s(step.rise_time_s),
-                    threshold_v,
-                    name,
-                    names[0],
-                )
-            )
+        chunk = slice(r0, r0 + RECEIVERS_PER_PASS)
+        wave = simulate_pattern(bus, bits, driver_name, receiver_names=all_rx[chunk], step=step)
+        out.extend(pattern_metrics(wave, delays[chunk], amplitudes[chunk], edge_s, threshold_v))
     return tuple(out)
 
 
-def waveform_metrics(
+def pattern_metrics(
     wave: Waveforms,
-    index: int,
-    delay_s: float,
-    amplitude_v: float,
+    delay_s: np.ndarray,
+    amplitude_v: np.ndarray,
     edge_s: float,
     threshold_v: float = RECEIVER_THRESHOLD_V,
-    receiver: str = "",
-    driver: str = "",
-) -> ReceiverMetrics:
-    """Metrics of one receiver's pattern waveform (row `index` of wave.v_diff_v); conventions in the module.
+) -> list[ReceiverMetrics]:
+    """Metrics of every receiver in a Waveforms, vectorised over receivers; conventions in the module docstring.
 
-    delay_s: the receiver's propagation delay; amplitude_v: its settled level; edge_s: the driver ramp's 0-100 %
-    duration.
+    delay_s, amplitude_v: (n_receivers,) propagation delays and settled levels; edge_s: the driver ramp's
+    0-100 % duration (sets how much of a window's end belongs to the next edge).
     """
     t_bit = wave.bit_time_s
-    v_all = wave.v_diff_v[index]
-    n_off = wave.offsets_s.size
+    n_rx, n_off = wave.v_diff_v.shape[0], wave.offsets_s.size
+    n_bits = len(wave.bits)
     level = np.where(np.frombuffer(wave.bits.encode(), dtype=np.uint8) == ord("1"), 1.0, -1.0)
-    shift = delay_s if np.isfinite(delay_s) else 0.0
-    # re-bin into receiver windows: the grid repeats every bit, so window n is a contiguous run of samples
-    start = int(np.searchsorted(wave.time_s, shift, side="left"))
-    n_win = (v_all.size - start) // n_off
-    if n_win < 1:
-        start, n_win = 0, v_all.size // n_off
-    tau = wave.time_s[start : start + n_off] - shift  # local offsets in [0, T_bit)
-    v = v_all[start : start + n_win * n_off].reshape(n_win, n_off)
-    s = level[:n_win, None]
-    sv = s * v  # driven-side voltage, (n_win, n_off)
-    edge = np.r_[False, level[1:n_win] != level[: n_win - 1]]
+    shift = np.where(np.isfinite(delay_s), delay_s, 0.0)
+    # re-bin into receiver windows: the grid repeats every bit, so window n of receiver r is a contiguous run
+    start = np.searchsorted(wave.time_s, shift, side="left")
+    n_win = int(max(1, (n_bits * n_off - start.max()) // n_off))
+    start = np.minimum(start, n_bits * n_off - n_win * n_off)
+    rows = np.arange(n_rx)[:, None]
+    v = wave.v_diff_v[rows, start[:, None] + np.arange(n_win * n_off)[None, :]].reshape(n_rx, n_win, n_off)
+    tau = wave.time_s[start[:, None] + np.arange(n_off)[None, :]] - shift[:, None]  # (n_rx, n_off) local offsets
+    lv = level[:n_win]
+    edge = np.r_[False, lv[1:] != lv[:-1]]
+    amp = amplitude_v[:, None, None]
 
-    # sampling instant: mid-window, interpolated between the two neighbouring samples
-    i_mid = int(np.clip(np.searchsorted(tau, 0.5 * t_bit) - 1, 0, n_off - 2))
-    w = (0.5 * t_bit - tau[i_mid]) / (tau[i_mid + 1] - tau[i_mid])
-    v_mid = v[:, i_mid] * (1.0 - w) + v[:, i_mid + 1] * w
-    sv_mid = level[:n_win] * v_mid
+    # sampling instant: mid-window, interpolated between neighbouring samples
+    i_mid = np.clip(np.array([np.searchsorted(t, 0.5 * t_bit) for t in tau]) - 1, 0, n_off - 2)
+    t0 = np.take_along_axis(tau, i_mid[:, None], 1)
+    t1 = np.take_along_axis(tau, i_mid[:, None] + 1, 1)
+    w = ((0.5 * t_bit - t0) / (t1 - t0))[:, :, None]  # (n_rx, 1, 1)
+    v0 = np.take_along_axis(v, i_mid[:, None, None] * np.ones((1, n_win, 1), dtype=int), 2)
+    v1 = np.take_along_axis(v, i_mid[:, None, None] * np.ones((1, n_win, 1), dtype=int) + 1, 2)
+    v_mid = (v0 * (1.0 - w) + v1 * w)[..., 0]  # (n_rx, n_win)
+    sv_mid = lv[None, :] * v_mid
 
     # the window ends where the next edge arrives; the transform's low-pass lets that edge lean back by a few
     # hundredths of its ramp, so the last 10 % of a ramp-time is left to the next window
-    inside = tau < t_bit - 0.1 * edge_s
-    sv = np.where(inside[None, :], sv, np.inf)
+    inside = (tau < t_bit - 0.1 * edge_s)[:, None, :]
+    sv_raw = lv[None, :, None] * v
+    sv = np.where(inside, sv_raw, np.inf)
     valid = sv >= threshold_v
-    entered = np.maximum.accumulate(valid, axis=1)
-    drops = entered[:, 1:] & valid[:, :-1] & ~valid[:, 1:]
-    recrossings = int(np.count_nonzero(drops))
+    entered = np.maximum.accumulate(valid, axis=2)
+    recross = np.count_nonzero(entered[..., 1:] & valid[..., :-1] & ~valid[..., 1:], axis=(1, 2))
+    reached = np.maximum.accumulate(sv >= amp, axis=2) & inside
+    undershoot = np.maximum(0.0, np.where(reached, amp - sv, 0.0).max(axis=(1, 2)))
+    overshoot = np.maximum(0.0, np.where(inside, sv_raw - amp, 0.0).max(axis=(1, 2)))
 
-    reached = np.maximum.accumulate(sv >= amplitude_v, axis=1)
-    ringback = np.where(reached, amplitude_v - sv, 0.0)
-    undershoot = float(max(0.0, ringback.max(initial=0.0)))
-    overshoot = float(max(0.0, np.where(inside[None, :], sv - amplitude_v, 0.0).max(initial=0.0)))
+    # settling: in edge windows, the last invalid sample before the sampling instant
+    col = np.arange(n_off)[None, None, :]
+    bad = ~valid[:, edge, :] & (col <= i_mid[:, None, None])
+    last_bad = np.where(bad.any(axis=2), n_off - 1 - np.argmax(bad[..., ::-1], axis=2), -1).max(axis=1, initial=-1)
+    settle = np.where(last_bad < 0, 0.0, np.take_along_axis(tau, np.clip(last_bad + 1, 0, n_off - 1)[:, None], 1)[:, 0])
+    settle = np.where((sv_mid[:, edge] < threshold_v).any(axis=1), np.inf, settle)
 
-    settle = _settle_time_s(tau, valid[edge], sv_mid[edge] >= threshold_v, i_mid)
-    ones, zeros = v_mid[level[:n_win] > 0], v_mid[level[:n_win] < 0]
-    eye_height = float((ones.min() if ones.size else np.inf) - (zeros.max() if zeros.size else -np.inf))
-    if not np.isfinite(eye_height):
-        eye_height = float(2.0 * np.abs(v_mid).min())
-    eye_width = _eye_width_s(tau, v, level[:n_win], threshold_v, t_bit)
-    jitter = _crossing_spread_s(wave, v_all, level, delay_s)
-    return ReceiverMetrics(
-        receiver=receiver,
-        driver=driver,
-        amplitude_v=amplitude_v,
-        peak_v=float(np.abs(v_all).max()),
-        overshoot_v=overshoot,
-        overshoot_ratio=overshoot / amplitude_v if amplitude_v > 0 else float("inf"),
-        undershoot_v=undershoot,
-        threshold_recrossings=recrossings,
-        settle_time_s=settle,
-        settle_margin_s=0.5 * t_bit - settle,
-        min_sample_v=float(sv_mid.min()),
-        sample_errors=int(np.count_nonzero(sv_mid < threshold_v)),
-        eye_height_v=eye_height,
-        eye_width_s=eye_width,
-        eye_width_ui=eye_width / t_bit,
-        propagation_delay_s=delay_s,
-        jitter_s=jitter,
-        jitter_ui=jitter / t_bit,
-        bit_time_s=t_bit,
-        threshold_v=threshold_v,
+    ones, zeros = lv > 0, lv < 0
+    eye_height = np.where(
+        ones.any() and zeros.any(),
+        v_mid[:, ones].min(axis=1, initial=np.inf) - v_mid[:, zeros].max(axis=1, initial=-np.inf),
+        2.0 * np.abs(v_mid).min(axis=1),
     )
 
+    # jitter: the 0 V crossing of each edge window (driven-side voltage turning positive)
+    pos = sv_raw[:, edge, :] >= 0.0
+    first = np.argmax(pos, axis=2)  # (n_rx, n_edges)
+    has = pos.any(axis=2) & (first > 0)
+    k = np.clip(first, 1, n_off - 1)
+    ta = np.take_along_axis(tau[:, None, :], (k - 1)[..., None], 2)[..., 0]
+    tb = np.take_along_axis(tau[:, None, :], k[..., None], 2)[..., 0]
+    va = np.take_along_axis(sv_raw[:, edge, :], (k - 1)[..., None], 2)[..., 0]
+    vb = np.take_along_axis(sv_raw[:, edge, :], k[..., None], 2)[..., 0]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        t_cross = np.where(vb != va, ta - va * (tb - ta) / (vb - va), ta)
+    hi = np.where(has, t_cross, -np.inf).max(axis=1, initial=-np.inf)
+    lo = np.where(has, t_cross, np.inf).min(axis=1, initial=np.inf)
+    jitter = np.where(has.sum(axis=1) >= 2, hi - lo, 0.0)
 
-def _settle_time_s(tau: np.ndarray, valid: np.ndarray, valid_at_mid: np.ndarray, i_mid: int) -> float:
-    """Worst over edge windows: the time after which the signal stays valid up to the sampling instant."""
-    if valid.shape[0] == 0:
-        return 0.0
-    if not np.all(valid_at_mid):
-        return float("inf")
-    head = valid[:, : i_mid + 1]
-    invalid = ~head
-    # last invalid sample before mid, per window; the signal is valid from the next sample on
-    last_bad = np.where(invalid.any(axis=1), head.shape[1] - 1 - np.argmax(invalid[:, ::-1], axis=1), -1)
-    worst = int(last_bad.max())
-    return 0.0 if worst < 0 else float(tau[min(worst + 1, tau.size - 1)])
+    out = []
+    for r in range(n_rx):
+        width = _eye_width_s(tau[r], v[r], lv, threshold_v, t_bit)
+        a = float(amplitude_v[r])
+        out.append(
+            ReceiverMetrics(
+                receiver=wave.receiver_names[r],
+                driver=wave.driver_name,
+                amplitude_v=a,
+                peak_v=float(np.abs(wave.v_diff_v[r]).max()),
+                overshoot_v=float(overshoot[r]),
+                overshoot_ratio=float(overshoot[r]) / a if a > 0 else float("inf"),
+                undershoot_v=float(undershoot[r]),
+                threshold_recrossings=int(recross[r]),
+                settle_time_s=float(settle[r]),
+                settle_margin_s=0.5 * t_bit - float(settle[r]),
+                min_sample_v=float(sv_mid[r].min()),
+                sample_errors=int(np.count_nonzero(sv_mid[r] < threshold_v)),
+                eye_height_v=float(eye_height[r]),
+                eye_width_s=width,
+                eye_width_ui=width / t_bit,
+                propagation_delay_s=float(delay_s[r]),
+                jitter_s=float(jitter[r]),
+                jitter_ui=float(jitter[r]) / t_bit,
+                bit_time_s=t_bit,
+                threshold_v=threshold_v,
+            )
+        )
+    return out
 
 
 def _eye_width_s(tau: np.ndarray, v: np.ndarray, level: np.ndarray, threshold_v: float, t_bit: float) -> float:
@@ -243,29 +256,3 @@ def _eye_width_s(tau: np.ndarray, v: np.ndarray, level: np.ndarray, threshold_v:
         if not closed_after.size:
             t_right = 2.0 * t_bit
     return float(min(t_bit, max(0.0, t_right - t_left)))
-
-
-def _crossing_spread_s(wave: Waveforms, v_all: np.ndarray, level: np.ndarray, delay_s: float) -> float:
-    """Peak-to-peak spread, over all edges, of the first 0 V crossing in the edge's direction after the edge
-    leaves the driver and before the next bit reaches the receiver."""
-    t_bit = wave.bit_time_s
-    edges = np.flatnonzero(level[1:] != level[:-1]) + 1
-    k = np.flatnonzero(np.sign(v_all[1:]) * np.sign(v_all[:-1]) < 0)  # a crossing between samples k and k+1
-    if edges.size < 2 or k.size == 0:
-        return 0.0
-    t = wave.time_s
-    t_cross = t[k] - v_all[k] * (t[k + 1] - t[k]) / (v_all[k + 1] - v_all[k])
-    rising = v_all[k + 1] > v_all[k]
-    late = (delay_s if np.isfinite(delay_s) else 0.0) + t_bit
-    times = []
-    for want_rising in (True, False):
-        pool = t_cross[rising == want_rising]
-        n = edges[(level[edges] > 0) == want_rising]
-        if pool.size == 0 or n.size == 0:
-            continue
-        idx = np.searchsorted(pool, n * t_bit)
-        ok = idx < pool.size
-        found = pool[idx[ok]] - n[ok] * t_bit
-        times.append(found[found <= late])
-    spread = np.concatenate(times) if times else np.empty(0)
-    return float(spread.max() - spread.min()) if spread.size >= 2 else 0.0

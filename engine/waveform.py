@@ -11,7 +11,7 @@ x(n dt) = exp(sigma n dt) * irfft(X(s_k) W_k) / dt. The damping makes the respon
 decays: it settles at the DC level) vanish before it wraps around, so the first half of each window is
 accurate to about 1e-4 of the swing; W_k is a Gaussian low-pass (sigma_f = 0.2 Nyquist; 0.4 at level 0,
 where the ramp itself is resolved) so nothing aliases. It rounds the ramp's corners by about 1 % of the swing
-(a Gaussian of 0.025 T_e at level 0), nothing more; later levels blur by 1.6 dt_l, under 0.1 % of the elapsed
+(a Gaussian of 0.025 T_e at level 0), nothing more; later levels blur by 1.6 dt_l, under 1 % of the elapsed
 time, which a real (dispersive) cable's own edges outgrow.
 Level 0 covers [0, T_0/2], level l the span (T_{l-1}/2, T_l/2]: the grid is dense at the edge and widens as
 the response slows down, and levels are added until every receiver has settled within `tolerance` of its DC
@@ -28,7 +28,7 @@ v(n T_bit + u) = v_final (2 b_n - 1) + sum_{m >= 0} 2 (b_{n-m} - b_{n-m-1}) D(m 
 That is a convolution along the bit index, done as one matrix product per receiver block, at offsets u
 within a bit chosen adaptively: start from the step response's own grid inside one bit and keep a point
 wherever linear interpolation between its neighbours would miss any receiver's waveform by more than
-0.1 % of the swing, plus mid-bit (the sampling instant) and a uniform 32 per bit.
+0.2 % of the open-circuit swing, plus mid-bit (the sampling instant) and a uniform 32 per bit.
 """
 
 from dataclasses import dataclass
@@ -212,9 +212,12 @@ class Waveforms:
     driver_name: str
 
 
-PRBS_TAPS = {7: (7, 6), 9: (9, 5), 11: (11, 9), 15: (15, 14)}  # ITU-T O.150 polynomials x^a + x^b + 1
+# maximal-length feedback polynomials x^a + x^b + 1 (orders 7, 9, 11, 15 as in ITU-T O.150; the short ones
+# from the standard tables of primitive trinomials)
+PRBS_TAPS = {4: (4, 3), 5: (5, 3), 6: (6, 5), 7: (7, 6), 9: (9, 5), 11: (11, 9), 15: (15, 14)}
 DEFAULT_PATTERN_BITS = 127
-REFINE_TOLERANCE = 1e-3  # of the open-circuit swing: linear interpolation error allowed between offsets
+MIN_DEFAULT_ORDER, MAX_DEFAULT_ORDER = 5, 7
+REFINE_TOLERANCE = 2e-3  # of the open-circuit swing: linear interpolation error allowed between offsets
 UNIFORM_OFFSETS = 32  # per bit, always present
 REFINE_BUDGET_VALUES = 1_000_000  # interpolated values per block while choosing offsets
 MAX_OFFSETS = 600  # samples per bit at most
@@ -238,6 +241,30 @@ def prbs_bits(n_bits: int = DEFAULT_PATTERN_BITS, order: int = 7, seed: int = 1)
     return "".join(out)
 
 
+MEMORY_FRACTION = 0.01  # of V_oc: an edge's tail below this no longer shapes an eye or a threshold crossing
+
+
+def memory_bits(step: StepResponses, bit_time_s: float) -> int:
+    """How many bit times an edge keeps mattering: until every receiver is within 1 % of V_oc of its settled
+    level for good, in bits, plus the bit itself."""
+    deviation = np.abs(step.v_diff_v - step.v_final_v[..., None]).max(axis=(0, 1))
+    outside = np.flatnonzero(deviation > MEMORY_FRACTION * step.open_circuit_v)
+    if not step.settled and outside.size and outside[-1] == deviation.size - 1:
+        return DEFAULT_PATTERN_BITS
+    last_s = step.time_s[min(outside[-1] + 1, deviation.size - 1)] if outside.size else 0.0
+    return int(np.floor(last_s / bit_time_s) + 1)
+
+
+def default_pattern(step: StepResponses, bit_time_s: float) -> str:
+    """The shortest PRBS (order 5 to 7, seed 1) holding every run of bits the bus remembers: order = memory + 2.
+
+    A PRBS of order k contains every k-bit sequence but all-zeros, so when an edge stops mattering after
+    k - 2 bits every eye and ringing case of a long random stream appears in one period.
+    """
+    order = int(np.clip(memory_bits(step, bit_time_s) + 2, MIN_DEFAULT_ORDER, MAX_DEFAULT_ORDER))
+    return prbs_bits((1 << order) - 1, order=order)
+
+
 def simulate_pattern(
     bus: Bus,
     pattern: str | None = None,
@@ -248,11 +275,17 @@ def simulate_pattern(
 ) -> Waveforms:
     """Waveform at every receiver (or the named ones) for a bit pattern at the plan's bit rate.
 
-    pattern: "0"/"1" string; None = the plan's test_pattern, else a 127-bit PRBS-7 (seed 1).
+    pattern: "0"/"1" string; None = the plan's test_pattern, else default_pattern() (PRBS-5 to PRBS-7, seed 1).
     driver_name: None = the primary driver. step: a StepResponses for that driver to reuse (it must reach at
     least the pattern's duration or be settled). Method in the module docstring.
     """
-    bits = pattern if pattern is not None else bus.plan.test_pattern or prbs_bits()
+    driver = resolve_driver_names(bus, None if driver_name is None else [driver_name])
+    bit_time_s = 1.0 / bus.plan.bit_rate_bps
+    bits = pattern if pattern is not None else bus.plan.test_pattern
+    if bits is None:
+        if step is None or step.driver_names[:1] != driver:
+            step = step_responses(bus, driver, max_time_s=DEFAULT_PATTERN_BITS * bit_time_s)
+        bits = default_pattern(step, bit_time_s)
     if len(bits) < 1 or set(bits) - {"0", "1"}:
         raise BusInputError(
             [
@@ -265,8 +298,6 @@ def simulate_pattern(
                 )
             ]
         )
-    driver = resolve_driver_names(bus, None if driver_name is None else [driver_name])
-    bit_time_s = 1.0 / bus.plan.bit_rate_bps
     duration_s = len(bits) * bit_time_s
     if step is None or step.driver_names[:1] != driver:
         step = step_responses(bus, driver, max_time_s=duration_s)
@@ -282,13 +313,16 @@ def simulate_pattern(
     d_mem = d_mem.reshape(rx_index.size, n_mem, offsets.size)
     b = np.array([1.0 if c == "1" else 0.0 for c in bits])
     edges = 2.0 * np.diff(b, prepend=b[0])  # (n_bits,) in units of one 0 -> V_oc step; the first bit at rest
-    # the convolution along the bit index, one small BLAS product per receiver (no large temporaries)
-    toeplitz = np.zeros((n_bits, n_mem))
-    for m in range(n_mem):
-        toeplitz[m:, m] = edges[: n_bits - m]
-    v = np.empty((rx_index.size, n_bits, offsets.size))
-    for r in range(rx_index.size):
-        np.matmul(toeplitz, d_mem[r], out=v[r])
+    # the convolution along the bit index: shifted adds for a short memory, else by FFT over bits (exact to
+    # rounding); either way no BLAS threads and no temporaries beyond the output's size
+    if n_mem <= 8:
+        v = edges[None, :, None] * d_mem[:, :1, :]
+        for m in range(1, n_mem):
+            v[:, m:, :] += edges[None, : n_bits - m, None] * d_mem[:, m : m + 1, :]
+    else:
+        n_fft = 1 << int(np.ceil(np.log2(n_bits + n_mem - 1)))
+        spectrum = np.fft.rfft(d_mem, n=n_fft, axis=1) * np.fft.rfft(edges, n=n_fft)[None, :, None]
+        v = np.fft.irfft(spectrum, n=n_fft, axis=1)[:, :n_bits, :]
     v += (2.0 * b - 1.0)[None, :, None] * step.v_final_v[0][rx_index, None, None]
     time_s = (np.arange(n_bits)[:, None] * bit_time_s + offsets[None, :]).ravel()
     return Waveforms(

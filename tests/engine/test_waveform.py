@@ -135,7 +135,8 @@ def test_slow_rate_with_fast_edges_on_a_long_line_stays_small_and_settles():
         bit_rate_bps=1200.0,
     )
     wave = simulate_pattern(bus)
-    assert len(wave.bits) == 127
+    # the bus settles within one bit, so the shortest default PRBS (order 5, 2^5 - 1 bits) holds every case
+    assert wave.bits == prbs_bits(31, order=5)
     assert wave.offsets_s.size < 1500  # bounded: a few hundred samples per bit, not 833 us / 2 ns
     mid = np.searchsorted(wave.time_s, wave.sample_times_s)
     levels = np.where(np.array(list(wave.bits)) == "1", 1.0, -1.0)
@@ -165,6 +166,26 @@ def test_every_driver_in_one_batch_equals_each_alone():
         np.interp(alone.time_s, both.time_s, both.v_diff_v[1, 0]), alone.v_diff_v[0, 0], atol=1e-3
     )
     np.testing.assert_allclose(both.v_final_v, 2.0 * dc_transfer(bus, ["driver", "far"]), rtol=1e-12)
+
+
+@pytest.mark.parametrize("order", [4, 5, 6, 7, 9])
+def test_prbs_holds_every_word_of_its_order(order):
+    # Source: maximal-length sequence property (ITU-T O.150 PRBS): one period of PRBS-k holds every k-bit
+    # word except all zeros exactly once.
+    period = (1 << order) - 1
+    bits = prbs_bits(2 * period, order=order)
+    words = {bits[i : i + order] for i in range(period)}
+    assert len(words) == period
+    assert "0" * order not in words
+
+
+def test_default_pattern_grows_with_the_bus_memory():
+    # Source: maximal-length property as above: with memory m bits, PRBS-(m + 2) holds every m + 2-bit history.
+    # A 200 m unterminated line at 20 Mbit/s rings over many bits: the longest default, PRBS-7.
+    fast = _line(source_ohm=40.0, length_m=200.0, bit_rate_bps=20e6)
+    assert len(simulate_pattern(fast).bits) == 127
+    slow = _line(source_ohm=120.0, far_ohm=120.0, bit_rate_bps=9600.0)
+    assert len(simulate_pattern(slow).bits) == 31
 
 
 def test_prbs7_is_a_maximal_length_sequence():
