@@ -128,7 +128,7 @@ def propagation_constant_per_m(cable: ResolvedCable, frequency_hz: ArrayLike) ->
     Source: D. M. Pozar, Microwave Engineering, 4th ed., eq. 2.5 (general lossy line).
     """
     s = _s_from_hz(np.atleast_1d(frequency_hz))
-    return np.sqrt(series_impedance_ohm_per_m(cable, s) * shunt_admittance_siemens_per_m(cable, s))
+    return np.asarray(np.sqrt(series_impedance_ohm_per_m(cable, s) * shunt_admittance_siemens_per_m(cable, s)))
 
 
 def characteristic_impedance_ohm(cable: ResolvedCable, frequency_hz: ArrayLike) -> np.ndarray:
@@ -192,9 +192,10 @@ def abcd_section(cable: ResolvedCable, frequency_hz: ArrayLike, length_m: float)
 
 def input_admittance_siemens(terms: SectionTerms, load_admittance_siemens: np.ndarray) -> np.ndarray:
     """Admittance into a section loaded by Y_L: (C + D Y_L) / (A + B Y_L) = (tanh/Z0 + Y_L) / (1 + Z0 tanh Y_L)."""
-    return (terms.y_tanh_siemens + load_admittance_siemens) / (1.0 + terms.z_tanh_ohm * load_admittance_siemens)
+    y_l = load_admittance_siemens
+    return np.asarray((terms.y_tanh_siemens + y_l) / (1.0 + terms.z_tanh_ohm * y_l))
 
 
 def voltage_transfer(terms: SectionTerms, load_admittance_siemens: np.ndarray) -> np.ndarray:
     """V_load / V_input of a section loaded by Y_L: 1 / (A + B Y_L) = sech / (1 + Z0 tanh Y_L)."""
-    return terms.sech_term / (1.0 + terms.z_tanh_ohm * load_admittance_siemens)
+    return np.asarray(terms.sech_term / (1.0 + terms.z_tanh_ohm * load_admittance_siemens))

@@ -56,6 +56,8 @@ class BusResponse:
     driver_names: tuple[str, ...]
     receiver_names: tuple[str, ...]
     transfer: np.ndarray  # (n_drivers, n_freq, n_receivers)
+    junction_position_m: np.ndarray  # (K,) trunk positions of the junctions
+    junction_transfer: np.ndarray | None = None  # (n_drivers, n_freq, K) when asked for
 
 
 @dataclass(frozen=True, slots=True)
@@ -167,7 +169,7 @@ def load_admittance_siemens(topo: Topology, s: np.ndarray) -> np.ndarray:
     if np.any(rc):
         c_t = topo.branch_series_rc_f[rc][:, None]
         y[rc] += s_row * c_t / (1.0 + s_row * topo.branch_series_rc_ohm[rc][:, None] * c_t)
-    return y
+    return np.asarray(y)
 
 
 @dataclass(frozen=True, slots=True)
@@ -280,34 +282,45 @@ def solve_network(
     )
 
 
+def _junction_voltages(net: Network, name: str) -> tuple[np.ndarray, np.ndarray]:
+    """Step 4 for one driver: V_junction / V_oc at every junction, (K, n_s), and at the driver's own terminal."""
+    topo = net.topology
+    b = topo.driver_branch[name]
+    j = topo.branch_junction[b]
+    u = net.stub_of[b]
+    y_j = net.y_shunt[j] - net.driver_y_branch[name] + net.y_left[j] + net.y_right[j]
+    near = 1.0 + net.stub_z_tanh_ohm[u] * y_j
+    denom = near + net.source_ohm * (net.stub_y_tanh_siemens[u] + y_j)
+    v_j = net.stub_sech[u] / denom
+    v_junction = np.empty_like(net.y_shunt)
+    v_junction[j] = v_j
+    if j + 1 < v_junction.shape[0]:
+        np.cumprod(net.ratio_right[j:], axis=0, out=v_junction[j + 1 :])
+        v_junction[j + 1 :] *= v_j
+    if j > 0:
+        np.cumprod(net.ratio_left[j - 1 :: -1], axis=0, out=v_junction[j - 1 :: -1])
+        v_junction[:j] *= v_j
+    return v_junction, np.asarray(near / denom)
+
+
 def receiver_spectra(net: Network, driver_names: tuple[str, ...]) -> np.ndarray:
     """Step 4: V_receiver / V_open_circuit for each driver, (n_drivers, n_receivers, n_s), frequency last."""
     topo = net.topology
     rx_branch = topo.receiver_branch
     rx_junction = topo.branch_junction[rx_branch]
-    r_s = net.source_ohm
     out = np.empty((len(driver_names), rx_branch.size, net.y_shunt.shape[1]), dtype=complex)
     for i, name in enumerate(driver_names):
-        b = topo.driver_branch[name]
-        j = topo.branch_junction[b]
-        u = net.stub_of[b]
-        y_j = net.y_shunt[j] - net.driver_y_branch[name] + net.y_left[j] + net.y_right[j]
-        near = 1.0 + net.stub_z_tanh_ohm[u] * y_j
-        denom = near + r_s * (net.stub_y_tanh_siemens[u] + y_j)
-        v_j = net.stub_sech[u] / denom
-        v_junction = np.empty_like(net.y_shunt)
-        v_junction[j] = v_j
-        if j + 1 < v_junction.shape[0]:
-            np.cumprod(net.ratio_right[j:], axis=0, out=v_junction[j + 1 :])
-            v_junction[j + 1 :] *= v_j
-        if j > 0:
-            np.cumprod(net.ratio_left[j - 1 :: -1], axis=0, out=v_junction[j - 1 :: -1])
-            v_junction[:j] *= v_j
+        v_junction, v_terminal = _junction_voltages(net, name)
         np.multiply(v_junction[rx_junction], net.rx_stub, out=out[i])
-        own = rx_branch == b
+        own = rx_branch == topo.driver_branch[name]
         if np.any(own):
-            out[i][own] = near / denom
+            out[i][own] = v_terminal
     return out
+
+
+def junction_spectra(net: Network, driver_names: tuple[str, ...]) -> np.ndarray:
+    """V_junction / V_open_circuit at every trunk junction for each driver, (n_drivers, K, n_s)."""
+    return np.stack([_junction_voltages(net, name)[0] for name in driver_names])
 
 
 def transfer_at(bus: Bus, s: ArrayLike, driver_names: tuple[str, ...], topo: Topology | None = None) -> np.ndarray:
@@ -316,22 +329,44 @@ def transfer_at(bus: Bus, s: ArrayLike, driver_names: tuple[str, ...], topo: Top
 
 
 def solve_bus(
-    bus: Bus, frequency_hz: ArrayLike, driver_names: "tuple[str, ...] | list[str] | None" = None
+    bus: Bus,
+    frequency_hz: ArrayLike,
+    driver_names: "tuple[str, ...] | list[str] | None" = None,
+    *,
+    with_junctions: bool = False,
 ) -> BusResponse:
     """Frequency response V_receiver / V_open_circuit from each driver to every receiver (plan node order).
 
     driver_names None = the primary driver only; otherwise any of the driver's name and the RS-485
-    "transceiver" nodes (assumptions in the module docstring). Cost O(n_freq * n_junctions) plus
-    O(n_drivers * n_freq * n_receivers) for the output. f = 0 is allowed and gives the exact DC solve.
+    "transceiver" nodes (assumptions in the module docstring). with_junctions: also V / V_oc at every trunk
+    junction. Cost O(n_freq * n_junctions) for the network plus O(n_drivers * n_freq * (n_junctions +
+    n_receivers)) for the outputs. f = 0 is allowed and gives the exact DC solve.
     """
     names = resolve_driver_names(bus, driver_names)
     f = np.atleast_1d(np.asarray(frequency_hz, dtype=float))
+    bad = ~np.isfinite(f) | (f < 0)
+    if f.ndim != 1 or np.any(bad):
+        value = float(f[bad][0]) if np.any(bad) else None
+        raise BusInputError(
+            [
+                Problem(
+                    "frequency_hz",
+                    "Frequency",
+                    value,
+                    {"min": 0.0, "unit": "Hz"},
+                    f"Frequencies must be a list of finite values of 0 Hz or more; got {value}.",
+                )
+            ]
+        )
     topo = build_topology(bus)
+    net = solve_network(bus, 2j * np.pi * f, topo, names)
     return BusResponse(
         frequency_hz=f,
         driver_names=names,
         receiver_names=topo.receiver_names,
-        transfer=transfer_at(bus, 2j * np.pi * f, names, topo),
+        transfer=np.swapaxes(receiver_spectra(net, names), 1, 2),
+        junction_position_m=topo.junction_position_m,
+        junction_transfer=np.swapaxes(junction_spectra(net, names), 1, 2) if with_junctions else None,
     )
 
 

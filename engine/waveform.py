@@ -98,6 +98,18 @@ def step_responses(
     tolerance: settled when within tolerance * open_circuit_v of the DC level over the last level's span.
     """
     names = resolve_driver_names(bus, driver_names)
+    if max_time_s is not None and not (np.isfinite(max_time_s) and max_time_s > 0):
+        raise BusInputError(
+            [
+                Problem(
+                    "max_time_s",
+                    "Simulated time",
+                    max_time_s,
+                    {"min": 0.0, "min_exclusive": True, "unit": "s"},
+                    f"The simulated time must be a finite positive number of seconds; got {max_time_s}.",
+                )
+            ]
+        )
     topo = build_topology(bus)
     v_oc = bus.driver.open_circuit_v
     t_edge = edge_duration_s(bus.driver.rise_time_s)
@@ -195,7 +207,7 @@ def _level_grid(dt_s: float, n: int, lowpass_fraction: float) -> tuple[np.ndarra
 
 def _edge_spectrum(s: np.ndarray, v_oc: float, t_edge_s: float) -> np.ndarray:
     """Laplace transform of the ramp 0 -> v_oc over t_edge_s: v_oc (1 - exp(-s T)) / (s^2 T)."""
-    return -v_oc * np.expm1(-s * t_edge_s) / (s * s * t_edge_s)
+    return np.asarray(-v_oc * np.expm1(-s * t_edge_s) / (s * s * t_edge_s))
 
 
 @dataclass(frozen=True, slots=True)
@@ -365,7 +377,7 @@ def _sample(time_s: np.ndarray, values: np.ndarray, at_s: np.ndarray) -> np.ndar
     out = values[:, idx] * (1.0 - w) + values[:, idx + 1] * w
     out[:, at_s > time_s[-1]] = values[:, -1:]
     out[:, at_s < 0.0] = 0.0
-    return out
+    return np.asarray(out)
 
 
 def _offsets(step_t: np.ndarray, deviation: np.ndarray, bit_time_s: float, n_mem: int, swing_v: float) -> np.ndarray:
@@ -389,7 +401,7 @@ def _offsets(step_t: np.ndarray, deviation: np.ndarray, bit_time_s: float, n_mem
     while True:
         keep = _refine(cand, blocks, fixed, tol)
         if np.count_nonzero(keep) <= MAX_OFFSETS:
-            return cand[keep]
+            return np.asarray(cand[keep])
         tol *= 2.0
 
 

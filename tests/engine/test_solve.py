@@ -213,3 +213,66 @@ def test_transceiver_driving_matches_scikit_rf_in_the_same_batch():
     for i, name in enumerate(batch.driver_names):
         reference = _skrf_transfer(bus, f, driver_name=name)
         np.testing.assert_allclose(batch.transfer[i], reference, rtol=1e-6, atol=1e-9, err_msg=name)
+
+
+def _random_tree(seed: int) -> Bus:
+    rng = np.random.default_rng(seed)
+    length = float(np.round(rng.uniform(50.0, 600.0), 1))
+    nodes = [
+        {
+            "name": f"n{i}",
+            "position_m": float(np.round(rng.uniform(0.0, length), 1)),
+            "stub_length_m": float(np.round(rng.choice([0.0, rng.uniform(0.1, 12.0)]), 2)),
+            "unit_loads": float(rng.choice([1.0, 0.5, 0.25, 0.125])),
+            "input_capacitance_f": float(rng.uniform(5e-12, 60e-12)),
+        }
+        for i in range(7)
+    ]
+    return build_bus(
+        load_plan(
+            {
+                "bit_rate_bps": 500e3,
+                "trunk_length_m": length,
+                "cable": {"class_key": str(rng.choice(["pair-24awg-120", "cat5e-100", "pair-22awg-120"]))},
+                "driver": {
+                    "position_m": float(np.round(rng.uniform(0.0, length), 1)),
+                    "stub_length_m": float(np.round(rng.uniform(0.0, 3.0), 2)),
+                    "transceiver": "edge-10ns",
+                },
+                "nodes": nodes,
+                "terminations": [
+                    {"position_m": 0.0, "resistance_ohm": float(rng.uniform(90.0, 150.0))},
+                    {"position_m": length, "kind": "rc", "resistance_ohm": 120.0, "capacitance_f": 1e-9},
+                ],
+                "bias": {"position_m": length, "pull_up_ohm": 750.0, "pull_down_ohm": 750.0},
+            }
+        )
+    )
+
+
+@pytest.mark.parametrize("seed", [7, 8, 9])
+def test_random_trees_match_scikit_rf(seed):
+    # Source: scikit-rf Circuit as above, on seeded random trunks, stubs, loads and driver positions.
+    bus = _random_tree(seed)
+    f = np.geomspace(1e4, 40e6, 17)
+    np.testing.assert_allclose(solve_bus(bus, f).transfer[0], _skrf_transfer(bus, f), rtol=1e-6, atol=1e-9)
+
+
+def test_junction_voltages_on_a_matched_line_follow_the_travelling_wave():
+    # Source: closed form, a matched lossless line carries one forward wave: V(x) / V_oc = 1/2 exp(-j beta x)
+    # (Pozar, 4th ed., sec. 2.1).
+    bus = _bus(nodes=[{"name": "tap", "position_m": 40.0, **{"unit_loads": 1e-6, "input_capacitance_f": 0.0}}])
+    f = np.array([1e5, 3e6, 11e6])
+    resp = solve_bus(bus, f, with_junctions=True)
+    np.testing.assert_allclose(resp.junction_position_m, [0.0, 40.0, 100.0], rtol=1e-12)
+    beta = 2 * np.pi * f / (0.7 * SPEED_OF_LIGHT_M_PER_S)
+    expected = 0.5 * np.exp(-1j * beta[:, None] * resp.junction_position_m[None, :])
+    np.testing.assert_allclose(resp.junction_transfer[0], expected, rtol=1e-8)
+    np.testing.assert_allclose(resp.transfer[0, :, 0], resp.junction_transfer[0, :, 1], rtol=1e-12)
+
+
+@pytest.mark.parametrize("bad", [-1.0, float("nan"), float("inf")])
+def test_bad_frequency_is_a_clear_error(bad):
+    with pytest.raises(BusInputError) as err:
+        solve_bus(_bus(), [1e6, bad])
+    assert err.value.problems[0].field == "frequency_hz"

@@ -4,7 +4,7 @@ import numpy as np
 import pytest
 
 from engine.bus import build_bus
-from engine.plan import load_plan
+from engine.plan import BusInputError, load_plan
 from engine.solve import dc_transfer
 from engine.units import SPEED_OF_LIGHT_M_PER_S
 from engine.waveform import edge_duration_s, prbs_bits, simulate_pattern, step_responses
@@ -195,3 +195,19 @@ def test_prbs7_is_a_maximal_length_sequence():
     assert bits[:127].count("1") == 64
     assert prbs_bits(127, seed=1) == prbs_bits(127, seed=1)
     assert prbs_bits(127, seed=5) != prbs_bits(127, seed=1)
+
+
+def test_bad_inputs_are_clear_errors():
+    bus = _line(source_ohm=120.0, far_ohm=120.0)
+    with pytest.raises(BusInputError) as err:
+        step_responses(bus, max_time_s=-1.0)
+    assert err.value.problems[0].field == "max_time_s"
+    with pytest.raises(BusInputError) as err:
+        simulate_pattern(bus, "01x1")
+    assert err.value.problems[0].field == "test_pattern"
+    with pytest.raises(BusInputError) as err:
+        simulate_pattern(bus, "0101", receiver_names=["nowhere"])
+    assert err.value.problems[0].field == "receiver_names"
+    with pytest.raises(BusInputError) as err:
+        simulate_pattern(bus, "0101", driver_name="far")
+    assert err.value.problems[0].field == "driver_name"
