@@ -16,8 +16,8 @@ from pydantic.fields import FieldInfo
 from engine.library import CABLES, TRANSCEIVERS, CableClass
 from engine.units import si_format
 
-PLAN_FORMAT = "pairline-bus-plan"
-PLAN_FORMAT_VERSION = 1
+PLAN_FORMAT: Literal["pairline-bus-plan"] = "pairline-bus-plan"
+PLAN_FORMAT_VERSION: Literal[1] = 1
 MAX_NODES = 512
 MAX_TRUNK_M = 4000.0
 MAX_STUB_M = 100.0
@@ -265,6 +265,11 @@ def _num(obj: Any, key: str, default: float | None = None) -> float | None:
     return float(raw)
 
 
+def _sub(obj: dict[str, Any], key: str) -> dict[str, Any]:
+    raw = obj.get(key)
+    return raw if isinstance(raw, dict) else {}
+
+
 def _items(obj: Any, key: str) -> list[Any]:
     raw = obj.get(key) if isinstance(obj, dict) else None
     return raw if isinstance(raw, list) and len(raw) <= MAX_NODES else []
@@ -277,7 +282,7 @@ def cross_field_problems(data: dict[str, Any]) -> list[Problem]:
     standard = data.get("standard", "rs485")
 
     def past_end(path: str, label: str, position_m: float | None) -> None:
-        if length is not None and position_m is not None and position_m > length:
+        if length is not None and length > 0 and position_m is not None and position_m > length:
             problems.append(
                 Problem(
                     path,
@@ -289,7 +294,7 @@ def cross_field_problems(data: dict[str, Any]) -> list[Problem]:
                 )
             )
 
-    driver = data.get("driver") if isinstance(data.get("driver"), dict) else {}
+    driver = _sub(data, "driver")
     past_end("driver.position_m", "Driver position", _num(driver, "position_m", 0.0))
     driver_name = driver.get("name", "driver")
     names: dict[str, str] = {driver_name: "the driver"} if isinstance(driver_name, str) else {}
@@ -339,7 +344,7 @@ def cross_field_problems(data: dict[str, Any]) -> list[Problem]:
             )
     if isinstance(data.get("bias"), dict):
         past_end("bias.position_m", "Bias position", _num(data["bias"], "position_m", 0.0))
-    cable = data.get("cable") if isinstance(data.get("cable"), dict) else {}
+    cable = _sub(data, "cable")
     cable_key = cable.get("class_key", "pair-24awg-120")
     if cable_key is not None and cable_key not in CABLES:
         problems.append(

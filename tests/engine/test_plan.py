@@ -91,3 +91,8 @@ def test_unknown_field_is_refused():
 
 def test_not_an_object():
     assert _problems([1, 2])[""].message.startswith("A bus plan must be a JSON object")
+
+
+def test_negative_trunk_is_one_problem_not_a_cascade():
+    found = _problems(_with(trunk_length_m=-3.0))
+    assert set(found) == {"trunk_length_m"}

@@ -1,0 +1,376 @@
+"""Check a bus plan: every rule's findings, the overall verdict and a summary with a bill of materials.
+
+The summary is Pairline's advice for the bus as laid out: terminators where they belong with corrected
+values, the bias network sized for those terminators (engine.rules.bias), the stub limit per node, the spare
+unit loads and the highest bit rate the rules allow. Resistor ratings come from engine.rules.power (twice
+the normal-case power, rounded up to a usual rating).
+"""
+
+import math
+from collections.abc import Callable
+from dataclasses import dataclass
+from typing import Any
+
+from engine import ENGINE_VERSION
+from engine.bus import Bus, build_bus
+from engine.findings import Finding, Verdict, worst
+from engine.plan import BusInputError, BusPlan, TerminationSpec, cross_field_problems, load_plan, plan_to_dict
+from engine.rules.bias import IDLE_TARGET_V, bias_choice, check_failsafe_bias, idle_levels_v
+from engine.rules.cable_ends import nearest_end_m, required_ends_m
+from engine.rules.common_mode import check_common_mode
+from engine.rules.length_rate import check_length_vs_rate, max_bit_rate_bps
+from engine.rules.loads import (
+    bias_supply_v,
+    check_driver_load,
+    check_unit_loads,
+    further_nodes_for_bus,
+    spare_unit_loads,
+)
+from engine.rules.power import check_resistor_power, rating_text, rating_to_buy_w, resistor_powers
+from engine.rules.preferred import nearest_preferred, preferred_at_or_above
+from engine.rules.stubs import check_stubs, max_bit_rate_for_stubs_bps, max_stub_by_node_m
+from engine.rules.termination import (
+    GAMMA_HOLDS,
+    check_ac_termination,
+    check_termination,
+    end_match,
+    rc_capacitance_window_f,
+    recommended_termination_ohm,
+)
+from engine.rules.unterminated import check_unterminated, line_may_stay_unterminated
+from engine.rules.voltage import check_receiver_voltage
+from engine.units import si_format
+
+RuleCheck = Callable[[Bus], list[Finding]]
+
+RULES: tuple[RuleCheck, ...] = (
+    check_unit_loads,
+    check_driver_load,
+    check_stubs,
+    check_termination,
+    check_unterminated,
+    check_ac_termination,
+    check_receiver_voltage,
+    check_failsafe_bias,
+    check_common_mode,
+    check_length_vs_rate,
+    check_resistor_power,
+)
+CAPACITOR_RATING = "≥ 25 V"  # twice the 12 V the pair can see in a common-mode fault (TIA-485-A range)
+
+
+@dataclass(frozen=True, slots=True)
+class TerminatorAdvice:
+    position_m: float
+    kind: str  # "parallel" or "rc"
+    resistance_ohm: float
+    capacitance_f: float | None
+    power_rating_w: float
+
+
+@dataclass(frozen=True, slots=True)
+class BiasAdvice:
+    position_m: float
+    pull_up_ohm: float
+    pull_down_ohm: float
+    supply_v: float
+    idle_v: float  # lowest idle V_AB over the receivers with the advised terminators, cable included
+    power_rating_w: float  # for each resistor
+
+
+@dataclass(frozen=True, slots=True)
+class BomItem:
+    item: str
+    value: str
+    quantity: int
+    rating: str
+    note: str
+
+
+@dataclass(frozen=True, slots=True)
+class PlanSummary:
+    terminators: tuple[TerminatorAdvice, ...]
+    bias: BiasAdvice | None
+    max_stub_m: dict[str, float]
+    spare_unit_loads: float
+    further_nodes: dict[str, int]
+    max_bit_rate_bps: float
+    bom: tuple[BomItem, ...]
+
+
+@dataclass(frozen=True, slots=True)
+class PlanReport:
+    plan: BusPlan
+    bus: Bus
+    findings: tuple[Finding, ...]
+    summary: PlanSummary
+    verdict: Verdict
+    engine_version: str
+
+
+def check_plan(plan: BusPlan | dict[str, Any]) -> PlanReport:
+    """Run every rule on a plan. A dict is validated first; input that cannot be modelled raises BusInputError."""
+    if not isinstance(plan, BusPlan):
+        plan = load_plan(plan)
+    problems = cross_field_problems(plan_to_dict(plan))
+    if problems:
+        raise BusInputError(problems)
+    bus = build_bus(plan)
+    findings = tuple(f for rule in RULES for f in rule(bus))
+    return PlanReport(
+        plan=plan,
+        bus=bus,
+        findings=findings,
+        summary=summarise(bus),
+        verdict=worst([f.verdict for f in findings]),
+        engine_version=ENGINE_VERSION,
+    )
+
+
+# --- summary ----------------------------------------------------------------------------------------------
+
+
+def advised_terminations(bus: Bus) -> tuple[TerminationSpec, ...]:
+    """Terminators Pairline advises: one per cable end that needs it.
+
+    None when the plan has no terminator and the line may stay unterminated. Where the plan already has exactly
+    one terminator at an end and it holds (|Gamma| <= 0.05; an RC one also with a capacitor that suits both the
+    round trip and the bit), the advice keeps it, so the summary only differs from the plan where a finding asks
+    for a change. Otherwise the value is Z0 corrected for the loads lumped at that end (nearest E24), as RC when
+    the plan has an RC terminator there and a capacitor suits both the round trip and the bit.
+    """
+    plan = bus.plan
+    if not plan.terminations and line_may_stay_unterminated(bus):
+        return ()
+    advised = []
+    for end in required_ends_m(bus):
+        at_end = [t for t in plan.terminations if nearest_end_m(bus, t.position_m) == end]
+        if len(at_end) == 1 and _terminator_holds(bus, at_end[0]):
+            advised.append(at_end[0])
+            continue
+        r = recommended_termination_ohm(bus, end)
+        r = nearest_preferred(r) if math.isfinite(r) else nearest_preferred(bus.cable.z0_ohm)
+        rc = next((t for t in at_end if t.kind == "rc"), None)
+        c_lo, c_hi = rc_capacitance_window_f(bus, r)
+        if rc is not None and c_lo <= c_hi:
+            c = rc.capacitance_f if rc.capacitance_f is not None and c_lo <= rc.capacitance_f <= c_hi else None
+            c = c if c is not None else preferred_at_or_above(c_lo)
+            advised.append(TerminationSpec(position_m=end, kind="rc", resistance_ohm=r, capacitance_f=c))
+        else:
+            advised.append(TerminationSpec(position_m=end, kind="parallel", resistance_ohm=r))
+    return tuple(advised)
+
+
+def _terminator_holds(bus: Bus, term: TerminationSpec) -> bool:
+    """The plan's terminator matches its end (|Gamma| <= 0.05) and, if RC, its capacitor suits the window."""
+    _, _, gamma = end_match(bus, term.position_m, term.resistance_ohm, [])
+    if abs(gamma) > GAMMA_HOLDS:
+        return False
+    if term.kind == "rc":
+        c_lo, c_hi = rc_capacitance_window_f(bus, term.resistance_ohm)
+        return term.capacitance_f is not None and c_lo <= term.capacitance_f <= c_hi
+    return True
+
+
+def summarise(bus: Bus) -> PlanSummary:
+    """The advised bus: terminators, bias, limits and the bill of materials."""
+    plan = bus.plan
+    terms = advised_terminations(bus)
+    advised_bus = Bus(plan=plan.model_copy(update={"terminations": list(terms)}), cable=bus.cable, driver=bus.driver)
+    powers = [p for p in resistor_powers(advised_bus) if "terminator" in p.label]
+    terminators = tuple(
+        TerminatorAdvice(t.position_m, t.kind, t.resistance_ohm, t.capacitance_f, p.rating_w)
+        for t, p in zip(terms, powers, strict=True)
+    )
+    bias = _bias_advice(advised_bus)
+    return PlanSummary(
+        terminators=terminators,
+        bias=bias,
+        max_stub_m=max_stub_by_node_m(bus),
+        spare_unit_loads=spare_unit_loads(bus),
+        further_nodes=further_nodes_for_bus(bus),
+        max_bit_rate_bps=min(max_bit_rate_bps(bus), max_bit_rate_for_stubs_bps(bus)),
+        bom=_bom(terminators, bias),
+    )
+
+
+def _bias_advice(advised_bus: Bus) -> BiasAdvice | None:
+    """Bias for the advised terminators; RS-422 only when the plan has a bias network.
+
+    The plan's own network is kept when, with the advised terminators, it idles every receiver at >= 250 mV,
+    keeps the unit-load budget out of its tight band and the driver load at or above its design value; else
+    engine.rules.bias.bias_choice sizes one. idle_v is the lowest idle level over the receivers, cable included.
+    """
+    plan = advised_bus.plan
+    if plan.standard == "rs422" and plan.bias is None:
+        return None
+    supply_v = bias_supply_v(advised_bus)
+    if plan.bias is not None and _plan_bias_holds(advised_bus):
+        b = plan.bias
+        idle_v = float(min(idle_levels_v(advised_bus)[1]))
+        rating_w = rating_to_buy_w(supply_v**2 / min(b.pull_up_ohm, b.pull_down_ohm))
+        return BiasAdvice(b.position_m, b.pull_up_ohm, b.pull_down_ohm, supply_v, idle_v, rating_w)
+    choice = bias_choice(advised_bus)
+    r_b = choice.resistance_ohm
+    return BiasAdvice(choice.position_m, r_b, r_b, supply_v, choice.idle_min_v, rating_to_buy_w(supply_v**2 / r_b))
+
+
+def _plan_bias_holds(bus: Bus) -> bool:
+    levels_v = idle_levels_v(bus)[1]
+    unit_loads = [f for f in check_unit_loads(bus) if f.node is None]
+    driver_load = check_driver_load(bus)
+    return (
+        levels_v.size > 0
+        and float(min(levels_v)) >= IDLE_TARGET_V
+        and all(f.verdict is Verdict.HOLDS for f in unit_loads + driver_load)
+    )
+
+
+def _bom(terminators: tuple[TerminatorAdvice, ...], bias: BiasAdvice | None) -> tuple[BomItem, ...]:
+    items: list[BomItem] = []
+    groups: dict[tuple[float, float], list[float]] = {}
+    for t in terminators:
+        groups.setdefault((t.resistance_ohm, t.power_rating_w), []).append(t.position_m)
+    for (r, rating), where in groups.items():
+        items.append(
+            BomItem(
+                "Terminator resistor (across A and B)",
+                si_format(r, "Ω"),
+                len(where),
+                rating_text(rating),
+                "at " + " and ".join(f"{p:g} m" for p in where),
+            )
+        )
+    caps: dict[float, list[float]] = {}
+    for t in terminators:
+        if t.kind == "rc" and t.capacitance_f is not None:
+            caps.setdefault(t.capacitance_f, []).append(t.position_m)
+    for c, where in caps.items():
+        items.append(
+            BomItem(
+                "Terminator capacitor (in series with its resistor)",
+                si_format(c, "F"),
+                len(where),
+                CAPACITOR_RATING,
+                "at " + " and ".join(f"{p:g} m" for p in where) + "; twice the 12 V common-mode fault level",
+            )
+        )
+    if bias is not None:
+        for item, r in (
+            (f"Bias pull-up resistor ({bias.supply_v:g} V to A)", bias.pull_up_ohm),
+            ("Bias pull-down resistor (B to ground)", bias.pull_down_ohm),
+        ):
+            items.append(
+                BomItem(
+                    item,
+                    si_format(r, "Ω"),
+                    1,
+                    rating_text(bias.power_rating_w),
+                    f"at {bias.position_m:g} m; every receiver idles at >= {si_format(bias.idle_v, 'V')}"
+                    + (" with the terminators above" if terminators else ""),
+                )
+            )
+    return tuple(items)
+
+
+# --- JSON -------------------------------------------------------------------------------------------------
+
+
+def _json_float(value: float | None) -> float | None:
+    """Finite floats pass; inf and nan (an open circuit, no limit) become null."""
+    if value is None or not math.isfinite(value):
+        return None
+    return float(value)
+
+
+def finding_to_dict(finding: Finding) -> dict[str, Any]:
+    return {
+        "rule_id": finding.rule_id,
+        "title": finding.title,
+        "verdict": finding.verdict.value,
+        "value": _json_float(finding.value),
+        "limit": _json_float(finding.limit),
+        "unit": finding.unit,
+        "node": finding.node,
+        "criterion": finding.criterion,
+        "source": finding.source,
+        "fix": finding.fix,
+        "detail": finding.detail,
+    }
+
+
+def report_to_dict(report: PlanReport) -> dict[str, Any]:
+    """The report as plain JSON types: strings, finite floats or null, ints, lists and dicts."""
+    s = report.summary
+    counts = {v.value: sum(1 for f in report.findings if f.verdict is v) for v in Verdict}
+    bias = s.bias
+    return {
+        "engine_version": report.engine_version,
+        "verdict": report.verdict.value,
+        "counts": counts,
+        "plan": plan_to_dict(report.plan),
+        "resolved": {
+            "cable": {
+                "label": report.bus.cable.label,
+                "z0_ohm": report.bus.cable.z0_ohm,
+                "velocity_factor": report.bus.cable.velocity_factor,
+                "resistance_ohm_per_m": report.bus.cable.resistance_ohm_per_m,
+                "capacitance_f_per_m": report.bus.cable.capacitance_f_per_m,
+                "source": report.bus.cable.source,
+            },
+            "driver": {
+                "label": report.bus.driver.label,
+                "rise_time_s": report.bus.driver.rise_time_s,
+                "open_circuit_v": report.bus.driver.open_circuit_v,
+                "source_ohm": report.bus.driver.source_ohm,
+                "unit_loads": report.bus.driver.unit_loads,
+                "source": report.bus.driver.source,
+            },
+        },
+        "findings": [finding_to_dict(f) for f in report.findings],
+        "summary": {
+            "terminators": [
+                {
+                    "position_m": t.position_m,
+                    "kind": t.kind,
+                    "resistance_ohm": t.resistance_ohm,
+                    "capacitance_f": _json_float(t.capacitance_f),
+                    "power_rating_w": t.power_rating_w,
+                }
+                for t in s.terminators
+            ],
+            "bias": None
+            if bias is None
+            else {
+                "position_m": bias.position_m,
+                "pull_up_ohm": bias.pull_up_ohm,
+                "pull_down_ohm": bias.pull_down_ohm,
+                "supply_v": bias.supply_v,
+                "idle_v": _json_float(bias.idle_v),
+                "power_rating_w": bias.power_rating_w,
+            },
+            "max_stub_m": {name: _json_float(v) for name, v in s.max_stub_m.items()},
+            "spare_unit_loads": _json_float(s.spare_unit_loads),
+            "further_nodes": dict(s.further_nodes),
+            "max_bit_rate_bps": _json_float(s.max_bit_rate_bps),
+            "bom": [
+                {"item": b.item, "value": b.value, "quantity": b.quantity, "rating": b.rating, "note": b.note}
+                for b in s.bom
+            ],
+        },
+    }
+
+
+__all__ = [
+    "RULES",
+    "BiasAdvice",
+    "BomItem",
+    "PlanReport",
+    "PlanSummary",
+    "TerminatorAdvice",
+    "advised_terminations",
+    "check_plan",
+    "finding_to_dict",
+    "report_to_dict",
+    "summarise",
+]

@@ -1,0 +1,59 @@
+"""The trunk's two cable ends: which of them need a terminator, and what already loads them.
+
+RS-485 traffic runs both ways, so the trunk is terminated at its two physical cable ends (0 m and
+trunk_length_m), wherever the driver sits (TI SLLA272; B&B RS-422/485 application note). A single-driver
+RS-422 line with its driver at one end is terminated at the far end only: the driver's low output impedance
+ends its own side (National Semiconductor AN-903); with the driver mid-bus both ends are terminated.
+Something counts as "at the end" within the end tolerance: the smaller of 1 m and the stub limit of
+engine.rules.stubs, since the cable left beyond a terminator is an open stub.
+"""
+
+from engine.bus import Bus
+from engine.plan import input_resistance_ohm
+from engine.rules.stubs import max_stub_length_m
+from engine.units import parallel_ohm
+
+END_TOLERANCE_CAP_M = 1.0
+
+
+def end_tolerance_m(bus: Bus) -> float:
+    """How far from a cable end a terminator may sit and still count as at the end: min(1 m, stub limit)."""
+    return min(END_TOLERANCE_CAP_M, max_stub_length_m(bus.driver.rise_time_s, bus.cable.velocity_factor))
+
+
+def nearest_end_m(bus: Bus, position_m: float) -> float | None:
+    """The cable end (0 or trunk length) within the end tolerance of a position, nearest first; else None."""
+    length = bus.plan.trunk_length_m
+    end = 0.0 if position_m <= length - position_m else length
+    return end if abs(position_m - end) <= end_tolerance_m(bus) + 1e-12 else None
+
+
+def required_ends_m(bus: Bus) -> tuple[float, ...]:
+    """Cable ends that need a terminator: RS-485 both; RS-422 the far end, or both if the driver is mid-bus."""
+    length = bus.plan.trunk_length_m
+    if bus.plan.standard == "rs422":
+        driver_end = nearest_end_m(bus, bus.plan.driver.position_m)
+        if driver_end is not None:
+            return (length,) if driver_end == 0.0 else (0.0,)
+    return (0.0, length)
+
+
+def end_name(bus: Bus, end_m: float) -> str:
+    """How a practitioner names a cable end: "the driver's end (0 m)" / "the far end (600 m)", or, with the
+    driver mid-bus, "the 0 m end" / "the 600 m end"."""
+    driver_end = nearest_end_m(bus, bus.plan.driver.position_m)
+    if driver_end is None:
+        return f"the {end_m:g} m end"
+    return f"the driver's end ({end_m:g} m)" if end_m == driver_end else f"the far end ({end_m:g} m)"
+
+
+def lumped_load_ohm(bus: Bus, position_m: float) -> float:
+    """Receivers (and the bias network) within the end tolerance of a position, in parallel: R_P."""
+    tol = end_tolerance_m(bus)
+    plan = bus.plan
+    loads = [input_resistance_ohm(n.unit_loads) for n in plan.nodes if abs(n.position_m - position_m) <= tol]
+    if plan.standard == "rs485" and abs(plan.driver.position_m - position_m) <= tol:
+        loads.append(input_resistance_ohm(bus.driver.unit_loads))
+    if plan.bias is not None and abs(plan.bias.position_m - position_m) <= tol:
+        loads.append(plan.bias.pull_up_ohm + plan.bias.pull_down_ohm)
+    return parallel_ohm(*loads)

@@ -1,0 +1,423 @@
+"""Termination: where the terminators sit, their values, and RC (AC) terminators.
+
+Placement. One terminator at each cable end that needs one (engine.rules.cable_ends: both ends for RS-485,
+the far end for RS-422 driven from one end), none elsewhere. Whether a missing or misplaced terminator
+breaks the bus depends on whether the line may stay unterminated (engine.rules.unterminated).
+
+Value. A matched end presents Z0. Receivers or a bias network lumped at the same end (within the end
+tolerance) sit in parallel with the terminator, so the resistor is raised to R_T = Z0 / (1 - Z0/R_P)
+(H. Johnson, M. Graham, High-Speed Digital Design, sec. 4.4: loaded line). The verdict reads the reflection
+coefficient of the whole end, Gamma = (R_T||R_P - Z0)/(R_T||R_P + Z0): HOLDS |Gamma| <= 0.05 (about 10 % off),
+TIGHT <= 0.12, which covers a 120 Ohm terminator on the 100..150 Ohm cables RS-485 accepts (120 +/- 30 Ohm,
+Intersil high-speed RS-485 tutorial), BREAKS beyond.
+
+RC (AC) terminators. R should match Z0 as above; the time constant RC should be long against the round
+trip, so the capacitor still looks like a short while reflections arrive (RC >> 2 t_pd; B&B application
+note); HOLDS from 3 x, TIGHT from 1 x, BREAKS below. It should also be short against a bit: the idle bus
+reaches its bias level only about 3 RC after the drivers release, so HOLDS when 3 RC <= T_bit, TIGHT beyond
+(the data still pass: the terminator then acts as a plain resistor while data flow).
+"""
+
+import math
+
+from engine.bus import Bus
+from engine.findings import Finding, Verdict, worst
+from engine.plan import TerminationSpec
+from engine.rules.cable_ends import end_name, end_tolerance_m, lumped_load_ohm, nearest_end_m, required_ends_m
+from engine.rules.preferred import nearest_preferred
+from engine.rules.unterminated import line_may_stay_unterminated, one_way_delay_s
+from engine.units import parallel_ohm, si_format
+
+GAMMA_HOLDS = 0.05
+GAMMA_TIGHT = 0.12
+RC_ROUND_TRIPS_HOLDS = 3.0
+RC_SETTLE_TIME_CONSTANTS = 3.0
+
+_PLACEMENT_SOURCE = (
+    "TI SLLA272 The RS-485 Design Guide and B&B Electronics RS-422/485 application note (both cable ends); "
+    "National Semiconductor AN-903 (single-driver RS-422: far end only)"
+)
+_VALUE_SOURCE = (
+    "R_T = Z0 matches the line (TI SLLA272); R_T = Z0/(1 - Z0/R_P) for lumped loads at the end (H. Johnson, "
+    "M. Graham, High-Speed Digital Design, sec. 4.4); RS-485 accepts Z0 120 +/- 30 Ω (Intersil high-speed "
+    "RS-485 tutorial)"
+)
+_RC_SOURCE = "B&B Electronics RS-422/485 application note (AC termination: R = Z0, RC >> round-trip delay)"
+
+
+# --- closed forms ---------------------------------------------------------------------------------------
+
+
+def reflection_coefficient(load_ohm: float, z0_ohm: float) -> float:
+    """Voltage reflection at a resistive load: (Z_L - Z0)/(Z_L + Z0); an open end (inf) gives +1.
+
+    Source: D. M. Pozar, Microwave Engineering, sec. 2.3 (terminated lossless line).
+    """
+    if math.isinf(load_ohm):
+        return 1.0
+    return (load_ohm - z0_ohm) / (load_ohm + z0_ohm)
+
+
+def corrected_termination_ohm(z0_ohm: float, parallel_load_ohm: float) -> float:
+    """Terminator that, beside a lumped load R_P, presents Z0: R_T = Z0 / (1 - Z0/R_P).
+
+    R_P = inf gives Z0; R_P <= Z0 gives inf (the load alone is already at or below Z0, no resistor helps).
+    Source: H. Johnson, M. Graham, High-Speed Digital Design, sec. 4.4.
+    """
+    if math.isinf(parallel_load_ohm):
+        return z0_ohm
+    if parallel_load_ohm <= z0_ohm:
+        return math.inf
+    return z0_ohm / (1.0 - z0_ohm / parallel_load_ohm)
+
+
+# --- where terminators belong ---------------------------------------------------------------------------
+
+
+def recommended_termination_ohm(bus: Bus, end_m: float) -> float:
+    """The exact terminator for one cable end: Z0 corrected for the loads lumped there."""
+    return corrected_termination_ohm(bus.cable.z0_ohm, lumped_load_ohm(bus, end_m))
+
+
+# --- placement and value --------------------------------------------------------------------------------
+
+
+def check_termination(bus: Bus) -> list[Finding]:
+    """Rules "termination.placement" (missing / extra / mid-bus) and "termination.value" (R vs corrected Z0)."""
+    return _placement_findings(bus) + _value_findings(bus)
+
+
+def _placement_findings(bus: Bus) -> list[Finding]:
+    """One finding per cable end that needs a terminator, per terminator at an end that needs none (RS-422
+    driver's end), and per terminator away from the ends."""
+    plan = bus.plan
+    tol = end_tolerance_m(bus)
+    required = required_ends_m(bus)
+    needs = not line_may_stay_unterminated(bus)
+    misplaced = Verdict.BREAKS if needs else Verdict.TIGHT
+    at_end: dict[float, list[TerminationSpec]] = {0.0: [], plan.trunk_length_m: []}
+    loose: list[TerminationSpec] = []
+    for term in plan.terminations:
+        end = nearest_end_m(bus, term.position_m)
+        if end is None:
+            loose.append(term)
+        else:
+            at_end[end].append(term)
+    ends_text = " and ".join(end_name(bus, e) for e in required)
+    criterion = f"One terminator at {ends_text}, each within {_length(tol)} of its end; none elsewhere"
+    why = (
+        "the line needs terminators (three round trips outlast half a bit)"
+        if needs
+        else "the line may stay unterminated (three round trips settle before mid-bit), so this only costs "
+        "drive current"
+    )
+    findings: list[Finding] = []
+
+    def add(title: str, verdict: Verdict, value: float | None, limit: float | None, fix: str, detail: str) -> None:
+        unit = "m" if value is not None else ""
+        findings.append(
+            Finding(
+                "termination.placement",
+                title,
+                verdict,
+                value,
+                limit,
+                unit,
+                None,
+                criterion,
+                _PLACEMENT_SOURCE,
+                fix,
+                detail,
+            )
+        )
+
+    missing = [e for e in required if not at_end[e]]
+    for end in required:
+        terms = at_end[end]
+        name = end_name(bus, end)
+        resistor = f"{nearest_preferred(recommended_termination_ohm(bus, end)):g} Ω"
+        if not terms:
+            if needs:
+                add(
+                    f"No terminator at {name}",
+                    Verdict.BREAKS,
+                    None,
+                    None,
+                    f"Add a {resistor} terminator at {name}.",
+                    f"Nothing terminates {name}, and {why}: each edge reflects there in full.",
+                )
+            else:
+                add(
+                    f"No terminator at {name} (none needed)",
+                    Verdict.HOLDS,
+                    None,
+                    None,
+                    "",
+                    f"{name[0].upper()}{name[1:]} is left open; {why}.",
+                )
+            continue
+        distance_m = max(abs(t.position_m - end) for t in terms)
+        if len(terms) == 1:
+            add(
+                f"Terminator at {name}: distance from the end",
+                Verdict.HOLDS,
+                distance_m,
+                tol,
+                "",
+                f"The terminator at {terms[0].position_m:g} m counts as at {name}: it is {_length(distance_m)} from "
+                f"the end, within {_length(tol)} (the shorter of 1 m and the stub limit, since the cable beyond it "
+                "is an open stub).",
+            )
+        else:
+            add(
+                f"{len(terms)} terminators at {name}: one too many"
+                if len(terms) == 2
+                else f"{len(terms)} terminators at {name}: {len(terms) - 1} too many",
+                misplaced,
+                None,
+                None,
+                f"Keep one terminator at {name} and remove the other"
+                + (f" {len(terms) - 1}" if len(terms) > 2 else "")
+                + ": "
+                + ", ".join(f"{t.resistance_ohm:g} Ω at {t.position_m:g} m" for t in terms[1:])
+                + ".",
+                f"{len(terms)} terminators in parallel at {name} load it below the cable's {bus.cable.z0_ohm:g} Ω; "
+                f"{why}.",
+            )
+    for end, terms in at_end.items():
+        if end in required or not terms:
+            continue
+        for term in terms:
+            add(
+                f"Terminator at the RS-422 driver's end ({end:g} m): not wanted",
+                misplaced,
+                abs(term.position_m - end),
+                tol,
+                f"Remove the {term.resistance_ohm:g} Ω terminator at {term.position_m:g} m.",
+                "A single RS-422 driver at this end terminates it with its own low output impedance; the "
+                f"resistor only loads the driver ({why}).",
+            )
+    for term in loose:
+        distance_m = min(term.position_m, plan.trunk_length_m - term.position_m)
+        if missing:
+            target = min(missing, key=lambda e: abs(e - term.position_m))
+            fix = f"Move the terminator at {term.position_m:g} m to {end_name(bus, target)}."
+        else:
+            fix = (
+                f"Remove the terminator at {term.position_m:g} m: "
+                + ("both cable ends are" if len(required) > 1 else f"{end_name(bus, required[0])} is")
+                + " already terminated."
+            )
+        add(
+            f"Terminator at {term.position_m:g} m, mid-bus: distance to the nearest end",
+            misplaced,
+            distance_m,
+            tol,
+            fix,
+            f"It sits {_length(distance_m)} from the nearest cable end (more than {_length(tol)}): a mid-bus "
+            f"terminator loads the driver and reflects part of each edge; {why}.",
+        )
+    return findings
+
+
+def _gamma_verdict(gamma: float) -> Verdict:
+    if abs(gamma) <= GAMMA_HOLDS:
+        return Verdict.HOLDS
+    if abs(gamma) <= GAMMA_TIGHT:
+        return Verdict.TIGHT
+    return Verdict.BREAKS
+
+
+def end_match(
+    bus: Bus, position_m: float, resistance_ohm: float, others_ohm: list[float]
+) -> tuple[float, float, float]:
+    """(R_P, ideal R_T, Gamma of the whole end) for a terminator of resistance_ohm at a position, with others_ohm
+    (further terminators there) beside the lumped loads. Source: Gamma = (Z_L - Z0)/(Z_L + Z0), D. M. Pozar,
+    Microwave Engineering, sec. 2.3; R_T = Z0/(1 - Z0/R_P), H. Johnson, M. Graham, High-Speed Digital Design, 4.4."""
+    z0 = bus.cable.z0_ohm
+    r_p = parallel_ohm(lumped_load_ohm(bus, position_m), *others_ohm)
+    ideal = corrected_termination_ohm(z0, r_p)
+    gamma = reflection_coefficient(parallel_ohm(resistance_ohm, r_p), z0)
+    return r_p, ideal, gamma
+
+
+def _value_findings(bus: Bus) -> list[Finding]:
+    """One finding per terminated cable end with a parallel terminator: |Gamma| of the whole end."""
+    plan = bus.plan
+    z0 = bus.cable.z0_ohm
+    findings = []
+    ends: dict[float, list[TerminationSpec]] = {}
+    for term in plan.terminations:
+        end = nearest_end_m(bus, term.position_m)
+        if end is not None:
+            ends.setdefault(end, []).append(term)
+    for end, terms in sorted(ends.items()):
+        parallel_terms = [t.resistance_ohm for t in terms if t.kind == "parallel"]
+        if not parallel_terms:
+            continue  # RC terminators are judged by termination.rc
+        rc_terms = [t.resistance_ohm for t in terms if t.kind == "rc"]
+        r_t = parallel_ohm(*parallel_terms)
+        r_p, ideal, gamma = end_match(bus, end, r_t, rc_terms)
+        verdict = _gamma_verdict(gamma)
+        name = end_name(bus, end)
+        resistor = f"{r_t:.4g} Ω" + (" (terminators in parallel)" if len(parallel_terms) > 1 else "")
+        detail = (
+            f"Terminator {resistor}; other loads lumped at this end {_ohm(r_p)}; together "
+            f"{_ohm(parallel_ohm(r_t, r_p))} on a {z0:g} Ω cable: reflection coefficient {gamma:+.3f}. "
+            f"The ideal terminator here is {_ohm(ideal)}. Holds to |Γ| {GAMMA_HOLDS}, tight to {GAMMA_TIGHT}."
+        )
+        if plan.standard == "rs485" and not 90.0 <= z0 <= 150.0:
+            detail += f" The cable's {z0:g} Ω is outside the 120 ± 30 Ω RS-485 accepts."
+        fix = ""
+        if verdict is not Verdict.HOLDS:
+            if math.isinf(ideal):
+                fix = (
+                    f"Remove the terminator at {name}: the loads there ({_ohm(r_p)}) already load the line "
+                    f"below its {z0:g} Ω; move the bias network or receivers off the end."
+                )
+            else:
+                fix = f"Use {nearest_preferred(ideal):g} Ω at {name} instead of {resistor} (ideal {ideal:.1f} Ω)."
+        findings.append(
+            Finding(
+                "termination.value",
+                f"Reflection at {name} with its {r_t:.4g} Ω terminator",
+                verdict,
+                abs(gamma),
+                GAMMA_TIGHT,
+                "",
+                None,
+                f"|Γ| of the whole end (terminator || lumped loads R_P vs Z0) <= {GAMMA_HOLDS} holds, <= "
+                f"{GAMMA_TIGHT} tight; ideal R_T = Z0/(1 - Z0/R_P)",
+                _VALUE_SOURCE,
+                fix,
+                detail,
+            )
+        )
+    return findings
+
+
+def _ohm(value: float) -> str:
+    return "none (open)" if math.isinf(value) else f"{value:.1f} Ω"
+
+
+def _length(length_m: float) -> str:
+    """A short distance for people: cm below 1 m."""
+    return f"{length_m * 100:.3g} cm" if 0.0 < length_m < 1.0 else f"{length_m:.3g} m"
+
+
+# --- RC terminators ---------------------------------------------------------------------------------------
+
+
+def rc_capacitance_window_f(bus: Bus, resistance_ohm: float) -> tuple[float, float]:
+    """(C_min, C_max): RC >= 3 round trips and 3 RC <= one bit. Empty when C_min > C_max."""
+    round_trip = 2.0 * one_way_delay_s(bus)
+    t_bit = 1.0 / bus.plan.bit_rate_bps
+    return RC_ROUND_TRIPS_HOLDS * round_trip / resistance_ohm, t_bit / (RC_SETTLE_TIME_CONSTANTS * resistance_ohm)
+
+
+def check_ac_termination(bus: Bus) -> list[Finding]:
+    """Rule "termination.rc": per RC terminator, R vs Z0, RC vs the round trip and RC vs a bit."""
+    findings = []
+    round_trip = 2.0 * one_way_delay_s(bus)
+    t_bit = 1.0 / bus.plan.bit_rate_bps
+    for term in bus.plan.terminations:
+        if term.kind != "rc" or term.capacitance_f is None:
+            continue
+        end = nearest_end_m(bus, term.position_m)
+        where = end_name(bus, end) if end is not None else f"{term.position_m:g} m"
+        r = term.resistance_ohm
+        tau = r * term.capacitance_f
+        part = f"RC terminator at {where} ({r:g} Ω + {si_format(term.capacitance_f, 'F')})"
+        c_lo, c_hi = rc_capacitance_window_f(bus, r)
+        if c_lo <= c_hi:
+            change = f"Use a capacitor from {si_format(c_lo, 'F')} to {si_format(c_hi, 'F')} in the {part}"
+        else:
+            change = (
+                f"No capacitor suits both the round trip and the bit in the {part}: use a parallel terminator "
+                "there (with a bias network sized for it)"
+            )
+        others = [t.resistance_ohm for t in bus.plan.terminations if t is not term and t.position_m == term.position_m]
+        r_p, ideal, gamma = end_match(bus, term.position_m, r, others)
+        v_r = _gamma_verdict(gamma)
+        findings.append(
+            Finding(
+                "termination.rc",
+                f"Reflection at {where} with its RC terminator's {r:g} Ω",
+                v_r,
+                abs(gamma),
+                GAMMA_TIGHT,
+                "",
+                None,
+                f"|Γ| of the end (R || lumped loads vs Z0, the capacitor a short during an edge) <= {GAMMA_HOLDS} "
+                f"holds, <= {GAMMA_TIGHT} tight",
+                _RC_SOURCE + "; " + _VALUE_SOURCE,
+                "" if v_r is Verdict.HOLDS else f"Use {nearest_preferred(ideal):g} Ω in the {part}.",
+                f"Reflection coefficient {gamma:+.3f}; other loads lumped here {_ohm(r_p)}; ideal resistor "
+                f"{_ohm(ideal)}.",
+            )
+        )
+        if tau >= RC_ROUND_TRIPS_HOLDS * round_trip:
+            v_t = Verdict.HOLDS
+        elif tau >= round_trip:
+            v_t = Verdict.TIGHT
+        else:
+            v_t = Verdict.BREAKS
+        findings.append(
+            Finding(
+                "termination.rc",
+                f"RC terminator at {where}: time constant, longer than the round trip",
+                v_t,
+                tau,
+                round_trip,
+                "s",
+                None,
+                "RC >> round-trip delay 2·t_pd: holds from 3 round trips, tight from 1, breaks below",
+                _RC_SOURCE,
+                "" if v_t is Verdict.HOLDS else change + ".",
+                f"RC {si_format(tau, 's')}; round trip {si_format(round_trip, 's')} (holds from "
+                f"{si_format(RC_ROUND_TRIPS_HOLDS * round_trip, 's')}). A shorter RC lets the capacitor charge "
+                "while reflections still arrive, so the end is no longer matched.",
+            )
+        )
+        settle_s = RC_SETTLE_TIME_CONSTANTS * tau
+        v_b = Verdict.HOLDS if settle_s <= t_bit else Verdict.TIGHT
+        findings.append(
+            Finding(
+                "termination.rc",
+                f"RC terminator at {where}: settling time 3·RC, within one bit",
+                v_b,
+                settle_s,
+                t_bit,
+                "s",
+                None,
+                "3 RC <= one bit, so the idle bus reaches its bias level within a bit after the drivers release",
+                _RC_SOURCE,
+                ""
+                if v_b is Verdict.HOLDS
+                else (
+                    change + f", or leave at least {si_format(settle_s, 's')} of idle after each turnaround before "
+                    "the next transmission."
+                ),
+                f"3 RC {si_format(settle_s, 's')}, one bit {si_format(t_bit, 's')}; with RC longer than that the "
+                "terminator acts as a plain resistor while data flow (the data still pass).",
+            )
+        )
+    return findings
+
+
+def placement_verdict(bus: Bus) -> Verdict:
+    """Worst verdict of the placement findings (used by property tests and summaries)."""
+    return worst([f.verdict for f in _placement_findings(bus)])
+
+
+__all__ = [
+    "check_ac_termination",
+    "check_termination",
+    "corrected_termination_ohm",
+    "end_match",
+    "GAMMA_HOLDS",
+    "placement_verdict",
+    "rc_capacitance_window_f",
+    "recommended_termination_ohm",
+    "reflection_coefficient",
+]

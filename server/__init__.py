@@ -1,0 +1,1 @@
+"""Pairline server side: the command line and the web app."""

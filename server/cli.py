@@ -1,0 +1,348 @@
+"""Command line: `pairline check PLAN.json [--json]`.
+
+Exit status: 0 when no rule breaks, 1 when at least one rule breaks, 2 when the input cannot be checked
+(unreadable file, bad JSON, or a plan that fails validation; every problem is printed with its field, value
+and allowed range). Subcommands hang off one argparse parser, so further commands plug into build_parser().
+"""
+
+import argparse
+import json
+import math
+import sys
+from collections.abc import Callable, Sequence
+from pathlib import Path
+from typing import Any, TextIO
+
+from engine.check import PlanReport, check_plan, report_to_dict
+from engine.findings import Finding, Verdict, worst
+from engine.plan import BusInputError, Problem, load_plan
+from engine.rules.power import rating_text
+from engine.units import si_format
+
+EXIT_OK = 0
+EXIT_BREAKS = 1
+EXIT_INVALID = 2
+MAX_PLAN_BYTES = 5_000_000
+_SI_UNITS = {"V", "W", "Ω", "Ohm", "s", "Hz", "bit/s", "F", "A"}
+_MARK = {Verdict.HOLDS: "holds ", Verdict.TIGHT: "TIGHT ", Verdict.BREAKS: "BREAKS"}
+SAFETY_NOTE = (
+    "Pairline checks signals, not installation safety. Runs between buildings or outdoors pick up ground "
+    "offsets and surges: isolate, surge-protect and follow your local electrical codes and licensed practice."
+)
+
+
+class PlanFileError(ValueError):
+    """The plan file could not be read or parsed; carries the problems in the plan's error shape."""
+
+    def __init__(self, problems: list[Problem]):
+        self.problems = problems
+        super().__init__("; ".join(p.message for p in problems))
+
+
+# --- reading ---------------------------------------------------------------------------------------------
+
+
+def read_plan_document(path: str, stdin: TextIO | None = None) -> Any:
+    """The JSON document in a file ('-' reads standard input). Raises PlanFileError naming what went wrong."""
+    try:
+        if path == "-":
+            text = (stdin or sys.stdin).read(MAX_PLAN_BYTES + 1)
+        else:
+            file = Path(path)
+            size = file.stat().st_size
+            if size > MAX_PLAN_BYTES:
+                raise PlanFileError(
+                    [
+                        Problem(
+                            "file",
+                            "Plan file",
+                            size,
+                            {"max": MAX_PLAN_BYTES, "unit": "bytes"},
+                            f"{path} holds {size} bytes; a plan file may hold at most {MAX_PLAN_BYTES} bytes.",
+                        )
+                    ]
+                )
+            text = file.read_text(encoding="utf-8")
+    except OSError as exc:
+        reason = exc.strerror or type(exc).__name__
+        raise PlanFileError(
+            [Problem("file", "Plan file", path, {"type": "readable JSON file"}, f"Cannot read {path}: {reason}.")]
+        ) from None
+    except UnicodeDecodeError:
+        raise PlanFileError(
+            [Problem("file", "Plan file", path, {"encoding": "UTF-8"}, f"{path} is not UTF-8 text.")]
+        ) from None
+    if len(text) > MAX_PLAN_BYTES:
+        raise PlanFileError(
+            [
+                Problem(
+                    "file",
+                    "Plan file",
+                    len(text),
+                    {"max": MAX_PLAN_BYTES, "unit": "bytes"},
+                    f"The plan on standard input exceeds {MAX_PLAN_BYTES} bytes.",
+                )
+            ]
+        )
+    shown = "standard input" if path == "-" else path
+    try:
+        return json.loads(text)
+    except json.JSONDecodeError as exc:
+        raise PlanFileError(
+            [
+                Problem(
+                    "file",
+                    "Plan file",
+                    f"line {exc.lineno}, column {exc.colno}",
+                    {"type": "JSON object"},
+                    f"{shown} is not valid JSON: {exc.msg} at line {exc.lineno}, column {exc.colno}.",
+                )
+            ]
+        ) from None
+    except RecursionError:
+        raise PlanFileError(
+            [Problem("file", "Plan file", path, {"type": "JSON object"}, f"{shown} is nested too deeply.")]
+        ) from None
+
+
+# --- formatting -------------------------------------------------------------------------------------------
+
+
+def quantity_text(value: float | None, unit: str) -> str:
+    """A number with its unit for people: SI prefixes for electrical units, 3 significant digits."""
+    if value is None:
+        return "n/a"
+    if unit in _SI_UNITS:
+        return si_format(value, "Ω" if unit == "Ohm" else unit)
+    return f"{number_text(value)} {unit}".strip()
+
+
+def number_text(value: float, digits: int = 3) -> str:
+    """A plain number to `digits` significant digits, never in exponent form: 10416.7 -> '10400', 0.0424 -> '0.0424'."""
+    if value == 0.0 or not math.isfinite(value):
+        return f"{value:g}"
+    if abs(value) >= 10.0 ** (digits - 1):
+        return f"{round(value, digits - 1 - math.floor(math.log10(abs(value)))):.0f}"
+    return f"{value:.{digits}g}"
+
+
+def allowed_text(allowed: dict[str, Any]) -> str:
+    """The allowed range or choices of a problem, for people: '50 bit/s .. 100 Mbit/s', 'one of a, b'."""
+    unit = str(allowed.get("unit", ""))
+    parts = []
+    if "min" in allowed or "max" in allowed:
+        lo, hi = (allowed.get(k) for k in ("min", "max"))
+        if unit in _SI_UNITS and all(isinstance(v, int | float) or v is None for v in (lo, hi)):
+            lo_text = quantity_text(float(lo), unit) if lo is not None else "-inf"
+            hi_text = quantity_text(float(hi), unit) if hi is not None else f"inf {unit}"
+            parts.append(f"{lo_text} .. {hi_text}")
+        else:
+            parts.append(f"{_num_text(lo) or '-inf'} .. {_num_text(hi) or 'inf'} {unit}".strip())
+    if "min_length" in allowed or "max_length" in allowed:
+        lo, hi = (_num_text(allowed.get(k)) for k in ("min_length", "max_length"))
+        parts.append(f"{lo or '0'} .. {hi or 'any number of'} items")
+    if "choices" in allowed:
+        parts.append("one of " + ", ".join(str(c) for c in allowed["choices"]))
+    shown = {"min", "max", "unit", "choices", "min_exclusive", "min_length", "max_length"}
+    parts += [f"{k}: {v}" for k, v in allowed.items() if k not in shown]
+    return "; ".join(parts) or "see message"
+
+
+def _num_text(value: Any) -> str:
+    if value is None:
+        return ""
+    return f"{value:g}" if isinstance(value, float | int) and not isinstance(value, bool) else str(value)
+
+
+def problems_text(problems: Sequence[Problem]) -> str:
+    lines = [f"The plan cannot be checked: {len(problems)} problem(s)."]
+    for p in problems:
+        lines.append(f"  {p.field or '(plan)'}: {p.message}")
+        value = json.dumps(p.value, ensure_ascii=False, default=str)
+        lines.append(f"      value: {value}; allowed: {allowed_text(p.allowed)}")
+    return "\n".join(lines)
+
+
+def problems_envelope(problems: Sequence[Problem]) -> dict[str, Any]:
+    """The same error shape the JSON API uses: status 422 and every problem."""
+    return {
+        "status": 422,
+        "problems": [
+            {"field": p.field, "label": p.label, "value": p.value, "allowed": p.allowed, "message": p.message}
+            for p in problems
+        ],
+    }
+
+
+def _finding_line(f: Finding, indent: str) -> list[str]:
+    head = f"{indent}[{_MARK[f.verdict]}] " + (f"node '{f.node}': " if f.node else "") + f.title
+    if f.value is not None:
+        head += f": {quantity_text(f.value, f.unit)}"
+    if f.limit is not None:
+        head += f" (limit {quantity_text(f.limit, f.unit)})"
+    lines = [head]
+    if f.verdict is not Verdict.HOLDS:
+        lines.append(f"{indent}          criterion: {f.criterion}")
+        if f.fix:
+            lines.append(f"{indent}          fix: {f.fix}")
+        lines.append(f"{indent}          source: {f.source}")
+    return lines
+
+
+def _terminators_changed(report: PlanReport) -> bool:
+    planned = {(t.position_m, t.kind, t.resistance_ohm, t.capacitance_f) for t in report.plan.terminations}
+    advised = {(t.position_m, t.kind, t.resistance_ohm, t.capacitance_f) for t in report.summary.terminators}
+    return planned != advised
+
+
+def _terminator_summary(report: PlanReport) -> list[str]:
+    s = report.summary
+    if not s.terminators:
+        return ["  Terminators: none needed (the line may stay unterminated)"]
+    planned = {(t.position_m, t.kind, t.resistance_ohm, t.capacitance_f) for t in report.plan.terminations}
+    parts = []
+    for t in s.terminators:
+        text = (
+            f"{quantity_text(t.resistance_ohm, 'Ω')}"
+            + (f" + {quantity_text(t.capacitance_f, 'F')}" if t.capacitance_f else "")
+            + f" at {t.position_m:g} m ({rating_text(t.power_rating_w)})"
+        )
+        same = (t.position_m, t.kind, t.resistance_ohm, t.capacitance_f) in planned
+        parts.append(text + ("" if same else ", changed from the plan"))
+    return [f"  Terminators: {'; '.join(parts)}"]
+
+
+def _bias_summary(report: PlanReport) -> list[str]:
+    b, planned = report.summary.bias, report.plan.bias
+    if b is None:
+        return []
+    as_planned = planned is not None and (planned.position_m, planned.pull_up_ohm, planned.pull_down_ohm) == (
+        b.position_m,
+        b.pull_up_ohm,
+        b.pull_down_ohm,
+    )
+    with_terms = "with the terminators above" if report.summary.terminators else "with no terminators"
+    line = (
+        f"  Failsafe bias: {quantity_text(b.pull_up_ohm, 'Ω')} pull-up / {quantity_text(b.pull_down_ohm, 'Ω')} "
+        f"pull-down at {b.position_m:g} m from {b.supply_v:g} V ({rating_text(b.power_rating_w)} each); every "
+        f"receiver idles at >= {quantity_text(b.idle_v, 'V')} {with_terms}"
+    )
+    if as_planned:
+        return [line + " (the plan's own network)."]
+    if _terminators_changed(report):
+        why = (
+            "sized for the terminators above, so it can differ from the fix under bias.idle_level, which is "
+            "sized for the plan's terminators"
+        )
+    else:
+        why = "the largest standard value that keeps every receiver at >= 250 mV"
+    return [line + f" (advised: {why})."]
+
+
+def report_text(report: PlanReport, path: str = "") -> str:
+    """The readable report: the plan in one line, verdict per rule and per node, fixes, the summary."""
+    plan, bus, s = report.plan, report.bus, report.summary
+    counts = {v: sum(1 for f in report.findings if f.verdict is v) for v in Verdict}
+    out = [
+        f"Pairline check: {plan.title or '(untitled plan)'}" + (f"  [{path}]" if path else ""),
+        f"  {plan.standard.upper().replace('RS', 'RS-')}, {quantity_text(plan.bit_rate_bps, 'bit/s')}, trunk "
+        f"{plan.trunk_length_m:g} m, {len(plan.nodes)} node(s); cable: {bus.cable.label}; driver: {bus.driver.label}",
+        "",
+        f"Overall: {report.verdict.value.upper()}  ({counts[Verdict.HOLDS]} holds, {counts[Verdict.TIGHT]} tight, "
+        f"{counts[Verdict.BREAKS]} breaks)",
+        "",
+        "By rule",
+    ]
+    by_rule: dict[str, list[Finding]] = {}
+    for f in report.findings:
+        by_rule.setdefault(f.rule_id, []).append(f)
+    for rule_id, group in by_rule.items():
+        verdict = worst([f.verdict for f in group])
+        per_node = [f for f in group if f.node is not None]
+        whole = [f for f in group if f.node is None]
+        label = f"  {rule_id}: {verdict.value}"
+        if per_node:
+            label += f" ({len(per_node)} node(s), {sum(f.verdict is not Verdict.HOLDS for f in per_node)} not holding)"
+        out.append(label)
+        for f in whole:
+            out += _finding_line(f, "    ")
+        for f in per_node:
+            if f.verdict is not Verdict.HOLDS:
+                out += _finding_line(f, "    ")
+    out += ["", "By node"]
+    names = [plan.driver.name] + [n.name for n in plan.nodes]
+    holding = []
+    for name in names:
+        mine = [f for f in report.findings if f.node == name]
+        if not mine:
+            continue
+        verdict = worst([f.verdict for f in mine])
+        if verdict is Verdict.HOLDS:
+            holding.append(name)
+            continue
+        notes = ", ".join(f"{f.rule_id} {f.verdict.value}" for f in mine if f.verdict is not Verdict.HOLDS)
+        out.append(f"  {name}: {verdict.value} ({notes})")
+    if holding:
+        shown = ", ".join(holding) if len(holding) <= 12 else ", ".join(holding[:10]) + f", ... {holding[-1]}"
+        out.append(f"  {len(holding)} node(s) hold every rule: {shown}")
+    out += ["", "Summary (the bus as Pairline advises it; where the plan already holds, its own parts are kept)"]
+    out += _terminator_summary(report)
+    out += _bias_summary(report)
+    out.append(f"  Highest bit rate the rules allow: {quantity_text(s.max_bit_rate_bps, 'bit/s')}")
+    further = ", ".join(f"{n} of {label}" for label, n in s.further_nodes.items())
+    out.append(
+        f"  Spare unit loads in the plan: {s.spare_unit_loads:.3g}" + (f"; room for {further}" if further else "")
+    )
+    if s.bom:
+        out.append("  Bill of materials:")
+        for item in s.bom:
+            out.append(f"    {item.quantity} x {item.item}, {item.value}, {item.rating}: {item.note}")
+    out += ["", SAFETY_NOTE]
+    return "\n".join(out)
+
+
+# --- commands ---------------------------------------------------------------------------------------------
+
+
+def run_check(args: argparse.Namespace, out: TextIO, err: TextIO) -> int:
+    try:
+        document = read_plan_document(args.plan)
+        report = check_plan(load_plan(document))
+    except (PlanFileError, BusInputError) as exc:
+        if args.json:
+            print(json.dumps(problems_envelope(exc.problems), indent=2, ensure_ascii=False, default=str), file=out)
+        print(problems_text(exc.problems), file=err)
+        return EXIT_INVALID
+    if args.json:
+        print(json.dumps(report_to_dict(report), indent=2, ensure_ascii=False, allow_nan=False), file=out)
+    else:
+        print(report_text(report, args.plan), file=out)
+    return EXIT_BREAKS if report.verdict is Verdict.BREAKS else EXIT_OK
+
+
+Command = Callable[[argparse.Namespace, TextIO, TextIO], int]
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(prog="pairline", description="Plan and check RS-485 / RS-422 multidrop buses.")
+    commands = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
+    check = commands.add_parser(
+        "check",
+        help="check a bus plan file and print every rule's verdict",
+        description="Check a bus plan. Exit status 0: nothing breaks; 1: a rule breaks; 2: invalid input.",
+    )
+    check.add_argument("plan", metavar="PLAN.json", help="the bus plan file ('-' reads standard input)")
+    check.add_argument("--json", action="store_true", help="print the full report as JSON")
+    check.set_defaults(run=run_check)
+    return parser
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    """Entry point of the `pairline` command; returns the exit status."""
+    args = build_parser().parse_args(argv)
+    run: Command = args.run
+    return run(args, sys.stdout, sys.stderr)
+
+
+if __name__ == "__main__":
+    sys.exit(main())

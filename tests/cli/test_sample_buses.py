@@ -1,0 +1,100 @@
+"""Every sample bus loads, checks and gives the verdicts stored beside it, through check_plan and the CLI."""
+
+import json
+import re
+from pathlib import Path
+
+import pytest
+
+from engine.check import check_plan
+from engine.findings import Verdict, worst
+from engine.plan import load_plan
+from server.cli import main
+
+SAMPLES = Path(__file__).resolve().parents[2] / "sample_buses"
+PLANS = sorted(SAMPLES.glob("*.json"))
+
+
+def _expected(plan_path: Path) -> dict:
+    return json.loads((SAMPLES / "expected" / plan_path.name).read_text(encoding="utf-8"))
+
+
+def _verdict(report, key: str) -> Verdict | None:
+    rule_id, _, node = key.partition("@")
+    found = [f.verdict for f in report.findings if f.rule_id == rule_id and (not node or f.node == node)]
+    return worst(found) if found else None
+
+
+def test_there_are_the_promised_samples():
+    names = {p.stem for p in PLANS}
+    assert len(PLANS) >= 6 and "vineyard-row-probes" in names
+    assert {p.name for p in (SAMPLES / "expected").glob("*.json")} == {p.name for p in PLANS}
+
+
+@pytest.mark.parametrize("plan_path", PLANS, ids=lambda p: p.stem)
+def test_sample_is_a_described_valid_plan(plan_path: Path):
+    plan = load_plan(json.loads(plan_path.read_text(encoding="utf-8")))
+    assert plan.title and plan.notes.startswith("Invented scenario.")
+
+
+@pytest.mark.parametrize("plan_path", PLANS, ids=lambda p: p.stem)
+def test_sample_gives_its_expected_verdicts(plan_path: Path):
+    # Expected verdicts: each scenario's intent, judged by the rules' cited criteria (see each Finding.source).
+    expected = _expected(plan_path)
+    report = check_plan(json.loads(plan_path.read_text(encoding="utf-8")))
+    got = {key: _verdict(report, key) for key in expected["verdicts"]}
+    assert {k: (v.value if v else None) for k, v in got.items()} == expected["verdicts"]
+    assert report.verdict.value == expected["overall"]
+    for f in report.findings:
+        assert f.source and f.criterion
+        assert f.verdict is Verdict.HOLDS or f.fix, f"{f.rule_id}@{f.node} has no fix"
+
+
+@pytest.mark.parametrize("plan_path", PLANS, ids=lambda p: p.stem)
+def test_cli_exit_status_matches(plan_path: Path, capsys):
+    status = main(["check", str(plan_path)])
+    out = capsys.readouterr().out
+    assert status == _expected(plan_path)["exit_status"]
+    assert f"Overall: {_expected(plan_path)['overall'].upper()}" in out
+
+
+def test_store_building_offset_needs_isolation():
+    # Source: Intersil tutorial "High-Speed RS-485 Transceiver and Applications": a 2.5 V driver with 2.5 V of
+    # noise leaves 7 V of ground offset inside the TIA/EIA-485-A -7..+12 V range; the store sits 11 V off.
+    report = check_plan(json.loads((SAMPLES / "workshop-to-store-ground-offset.json").read_text(encoding="utf-8")))
+    store = next(f for f in report.findings if f.rule_id == "common_mode.range" and f.node == "store-door")
+    assert store.value == pytest.approx(11.0) and store.limit == pytest.approx(7.0, abs=1e-12)
+    assert "galvanically" in store.fix and "local electrical codes" in store.fix
+
+
+@pytest.mark.parametrize("plan_path", PLANS, ids=lambda p: p.stem)
+def test_sample_report_reads_without_exponents_or_placeholders(plan_path: Path, capsys):
+    main(["check", str(plan_path)])
+    out = capsys.readouterr().out
+    assert not re.search(r"\de[+-]\d", out)
+    for bad in ("nan", " inf", "n/a", "terminators (limit"):
+        assert bad not in out, bad
+
+
+def test_unterminated_bench_rack_names_each_open_end():
+    report = check_plan(json.loads((SAMPLES / "bench-rack-unterminated.json").read_text(encoding="utf-8")))
+    placement = [f for f in report.findings if f.rule_id == "termination.placement"]
+    assert [f.title for f in placement] == [
+        "No terminator at the driver's end (0 m) (none needed)",
+        "No terminator at the far end (12 m) (none needed)",
+    ]
+    assert all(f.value is None and f.limit is None for f in placement)
+    # The plan's 4.7 kOhm bias holds (3.36 V idle), so the summary keeps it rather than advising another value.
+    assert report.summary.bias is not None and report.summary.bias.pull_up_ohm == 4700.0
+
+
+def test_irrigation_summary_bias_matches_the_bias_fix():
+    report = check_plan(json.loads((SAMPLES / "irrigation-main-valves.json").read_text(encoding="utf-8")))
+    # The plan's terminators hold, so the summary keeps them; the advised bias is then the one the bias
+    # finding's fix names, with the same lowest idle level.
+    assert [(t.position_m, t.resistance_ohm) for t in report.summary.terminators] == [(0.0, 130.0), (1150.0, 120.0)]
+    fix = next(f.fix for f in report.findings if f.rule_id == "bias.idle_level")
+    bias = report.summary.bias
+    assert bias is not None
+    assert f"pull-up of {bias.pull_up_ohm:g} Ω" in fix and f"at {bias.position_m:g} m" in fix
+    assert f">= {bias.idle_v * 1e3:.0f} mV" in fix

@@ -1,0 +1,189 @@
+"""check_plan runs every rule family, summarises the advised bus and serialises to plain JSON."""
+
+import json
+import math
+
+import pytest
+
+from engine import ENGINE_VERSION
+from engine.check import RULES, check_plan, finding_to_dict, report_to_dict
+from engine.findings import Finding, Verdict, worst
+from engine.plan import BusInputError, BusPlan, load_plan
+from engine.rules.length_rate import max_bit_rate_bps
+from engine.rules.power import rating_to_buy_w
+from engine.rules.stubs import max_bit_rate_for_stubs_bps, max_stub_length_m
+
+RS485 = {
+    "standard": "rs485",
+    "bit_rate_bps": 115_200,
+    "trunk_length_m": 1000.0,
+    "driver": {"name": "master", "position_m": 0.0, "transceiver": "edge-100ns"},
+    "nodes": [
+        {"name": "well-1", "position_m": 250.0, "stub_length_m": 1.0},
+        {"name": "well-2", "position_m": 600.0, "stub_length_m": 3.0, "ground_offset_v": 2.0},
+        {"name": "tank", "position_m": 1000.0, "role": "transceiver"},
+    ],
+    "terminations": [
+        {"position_m": 0.0, "resistance_ohm": 120.0},
+        {"position_m": 1000.0, "kind": "rc", "resistance_ohm": 120.0, "capacitance_f": 4.7e-9},
+        {"position_m": 400.0, "resistance_ohm": 120.0},
+    ],
+    "bias": {"position_m": 0.0, "pull_up_ohm": 560.0, "pull_down_ohm": 560.0},
+}
+ALL_RULE_IDS = {
+    "load.unit_loads",
+    "load.driver",
+    "stub.length",
+    "termination.placement",
+    "termination.value",
+    "termination.may_omit",
+    "termination.rc",
+    "signal.dc_level",
+    "bias.idle_level",
+    "common_mode.range",
+    "length.rate_rule",
+    "length.loss",
+    "power.resistor",
+}
+
+
+def _doc(**changes):
+    doc = json.loads(json.dumps(RS485))
+    doc.update(changes)
+    return doc
+
+
+def test_rules_cover_all_eleven_families():
+    assert len(RULES) == 11
+    report = check_plan(RS485)
+    assert {f.rule_id for f in report.findings} == ALL_RULE_IDS
+
+
+def test_overall_verdict_is_the_worst_finding():
+    report = check_plan(RS485)
+    assert report.verdict is worst([f.verdict for f in report.findings])
+    assert report.verdict is Verdict.BREAKS  # mid-bus terminator, 3 m stub
+    assert report.engine_version == ENGINE_VERSION
+
+
+def test_every_finding_is_complete_and_gives_a_fix_when_not_holding():
+    for doc in (RS485, _doc(terminations=[], bias=None), _doc(standard="rs422", nodes=RS485["nodes"][:2])):
+        for f in check_plan(doc).findings:
+            assert f.rule_id and f.title and f.criterion and f.source and f.unit is not None
+            assert isinstance(f.verdict, Verdict)
+            if f.verdict is not Verdict.HOLDS:
+                assert f.fix.strip(), f"{f.rule_id} {f.node} has no fix"
+
+
+def test_node_findings_name_their_node():
+    report = check_plan(RS485)
+    stub_nodes = [f.node for f in report.findings if f.rule_id == "stub.length"]
+    assert stub_nodes == ["master", "well-1", "well-2", "tank"]
+    assert all(f.node is None for f in report.findings if f.rule_id.startswith(("termination.", "load.")))
+
+
+def test_report_is_plain_json():
+    data = report_to_dict(check_plan(RS485))
+    text = json.dumps(data, allow_nan=False)
+    assert json.loads(text) == data
+    assert data["verdict"] in {"holds", "tight", "breaks"}
+    assert {f["verdict"] for f in data["findings"]} <= {"holds", "tight", "breaks"}
+    assert data["plan"]["nodes"][0]["name"] == "well-1"
+    assert sum(data["counts"].values()) == len(data["findings"])
+
+
+def test_end_loaded_below_z0_serialises_and_asks_to_remove_the_terminator():
+    # A 50 + 50 Ohm bias at the 0 m end already loads the 120 Ohm line below Z0: no terminator value can match.
+    data = report_to_dict(check_plan(_doc(bias={"position_m": 0.0, "pull_up_ohm": 50.0, "pull_down_ohm": 50.0})))
+    json.dumps(data, allow_nan=False)
+    at_zero = [f for f in data["findings"] if f["rule_id"] == "termination.value" and "(0 m)" in f["title"]]
+    assert at_zero[0]["verdict"] == "breaks"
+    assert at_zero[0]["fix"].startswith("Remove the terminator at the driver's end (0 m)")
+
+
+def test_infinite_and_nan_numbers_serialise_as_null():
+    finding = Finding("load.driver", "Load on the driver", Verdict.HOLDS, math.inf, math.nan, "Ω", None, "c", "s")
+    data = finding_to_dict(finding)
+    assert data["value"] is None and data["limit"] is None
+    json.dumps(data, allow_nan=False)
+
+
+def test_summary_advises_terminators_at_both_ends_with_ratings():
+    summary = check_plan(RS485).summary
+    assert [t.position_m for t in summary.terminators] == [0.0, 1000.0]
+    # RC at 1000 m cannot suit both a 1000 m round trip and a 115.2 kbit/s bit: the advice is a plain resistor.
+    assert [t.kind for t in summary.terminators] == ["parallel", "parallel"]
+    # Source: TI SLLA272, R_T = Z0 = 120 Ohm for the 120 Ohm cable (the bias at 0 m raises it to the E24 130 Ohm).
+    assert summary.terminators[1].resistance_ohm == 120.0
+    assert summary.terminators[0].resistance_ohm == 130.0
+    for t in summary.terminators:
+        # common practice: P = V^2 / R with the 4 V open-circuit driver, bought at twice that.
+        assert t.power_rating_w == rating_to_buy_w(4.0**2 / t.resistance_ohm)
+        assert t.power_rating_w >= 0.25
+
+
+def test_summary_rs422_advice_is_the_far_end_only():
+    doc = _doc(
+        standard="rs422",
+        cable={"class_key": "tia422-reference"},
+        nodes=[{"name": "panel", "position_m": 1000.0}],
+        terminations=[],
+        bias=None,
+    )
+    summary = check_plan(doc).summary
+    # Source: National Semiconductor AN-903, single driver at one end: terminate the far end, 100 Ohm cable.
+    assert [(t.position_m, t.resistance_ohm) for t in summary.terminators] == [(1000.0, 100.0)]
+    assert summary.bias is None
+
+
+def test_summary_bias_holds_the_idle_bus_above_threshold():
+    bias = check_plan(RS485).summary.bias
+    assert bias is not None and bias.pull_up_ohm == bias.pull_down_ohm
+    # Source: TI SLLA272 / B&B note arithmetic R_B,max = (R_eq/2)(V_S/V_min - 1) = 720 Ohm for 60 Ohm, 5 V, 200 mV.
+    assert bias.pull_up_ohm <= 720.0
+    # Source: TIA-485-A receiver threshold 200 mV.
+    assert bias.idle_v >= 0.200
+    assert bias.power_rating_w == rating_to_buy_w(5.0**2 / bias.pull_up_ohm)
+
+
+def test_summary_limits_and_budget():
+    report = check_plan(RS485)
+    s = report.summary
+    assert set(s.max_stub_m) == {"master", "well-1", "well-2", "tank"}
+    # Source: TI SLLA272 stub table, 100 ns at VF 0.78 -> 2.34 m.
+    assert s.max_stub_m["well-2"] == pytest.approx(2.34, abs=0.005)
+    assert s.max_stub_m["tank"] == max_stub_length_m(100e-9, 0.78)
+    assert s.max_bit_rate_bps == min(max_bit_rate_bps(report.bus), max_bit_rate_for_stubs_bps(report.bus))
+    assert s.further_nodes["1/8 UL"] == int(s.spare_unit_loads / 0.125 + 1e-9)
+    assert set(s.further_nodes) == {"1 UL", "1/2 UL", "1/4 UL", "1/8 UL"}
+
+
+def test_bill_of_materials_lists_terminators_and_bias():
+    bom = check_plan(RS485).summary.bom
+    items = {(b.item.split(" (")[0], b.value): b for b in bom}
+    assert items[("Terminator resistor", "120 Ω")].quantity == 1
+    assert items[("Terminator resistor", "130 Ω")].quantity == 1
+    assert sum(1 for b in bom if b.item.startswith("Bias")) == 2
+    assert all(b.rating for b in bom)
+
+
+def test_short_unterminated_line_gets_no_terminator_advice():
+    doc = _doc(trunk_length_m=40.0, bit_rate_bps=9600, terminations=[], nodes=[{"name": "a", "position_m": 40.0}])
+    assert check_plan(doc).summary.terminators == ()
+
+
+def test_bad_document_raises_with_field_path():
+    with pytest.raises(BusInputError) as err:
+        check_plan(_doc(trunk_length_m=-1.0))
+    assert "trunk_length_m" in {p.field for p in err.value.problems}
+
+
+def test_plan_built_without_cross_field_checks_is_refused():
+    plan = BusPlan.model_validate(_doc(nodes=[{"name": "beyond", "position_m": 1500.0}]))
+    with pytest.raises(BusInputError) as err:
+        check_plan(plan)
+    assert err.value.problems[0].field == "nodes.0.position_m"
+
+
+def test_validated_plan_and_dict_give_the_same_report():
+    assert check_plan(load_plan(RS485)).findings == check_plan(RS485).findings

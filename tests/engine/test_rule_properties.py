@@ -1,0 +1,132 @@
+"""Properties of the rules over many generated plans (hypothesis, derandomised so every run is the same)."""
+
+import copy
+import json
+import math
+
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+
+from engine.bus import build_bus
+from engine.check import check_plan, report_to_dict
+from engine.findings import Verdict
+from engine.library import CABLES, TRANSCEIVERS
+from engine.plan import load_plan
+from engine.rules.cable_ends import end_tolerance_m, required_ends_m
+from engine.rules.loads import check_unit_loads, spare_unit_loads, unit_load_total
+from engine.rules.stubs import check_stubs
+from engine.rules.termination import placement_verdict
+
+SETTINGS = settings(
+    derandomize=True,
+    database=None,
+    max_examples=60,
+    deadline=None,
+    suppress_health_check=[HealthCheck.too_slow],
+)
+UNIT_LOADS = [0.125, 0.25, 0.5, 1.0, 2.0]
+
+
+@st.composite
+def plan_docs(draw, min_terminations=0, min_length_m=5.0, max_stub_m=20.0):
+    standard = draw(st.sampled_from(["rs485", "rs422"]))
+    length_m = draw(st.floats(min_length_m, 4000.0))
+    n_nodes = draw(st.integers(1, 12))
+    nodes = [
+        {
+            "name": f"node-{i}",
+            "position_m": draw(st.floats(0.0, 1.0)) * length_m,
+            "stub_length_m": draw(st.floats(0.0, max_stub_m)),
+            "unit_loads": draw(st.sampled_from(UNIT_LOADS)),
+            "role": "receiver" if standard == "rs422" else draw(st.sampled_from(["receiver", "transceiver"])),
+            "ground_offset_v": draw(st.floats(-10.0, 10.0)),
+        }
+        for i in range(n_nodes)
+    ]
+    terminations = []
+    for _ in range(draw(st.integers(min_terminations, 4))):
+        kind = draw(st.sampled_from(["parallel", "rc"]))
+        term = {
+            "position_m": draw(st.sampled_from([0.0, 1.0, draw(st.floats(0.0, 1.0))])) * length_m,
+            "kind": kind,
+            "resistance_ohm": draw(st.floats(50.0, 200.0)),
+        }
+        if kind == "rc":
+            term["capacitance_f"] = draw(st.floats(1e-9, 1e-6))
+        terminations.append(term)
+    bias = None
+    if draw(st.booleans()):
+        r = draw(st.floats(200.0, 50_000.0))
+        bias = {"position_m": draw(st.floats(0.0, 1.0)) * length_m, "pull_up_ohm": r, "pull_down_ohm": r}
+    return {
+        "standard": standard,
+        "bit_rate_bps": draw(st.sampled_from([1200.0, 9600.0, 115_200.0, 1e6, 10e6])),
+        "trunk_length_m": length_m,
+        "cable": {"class_key": draw(st.sampled_from(sorted(CABLES)))},
+        "driver": {
+            "position_m": draw(st.floats(0.0, 1.0)) * length_m,
+            "stub_length_m": draw(st.floats(0.0, 5.0)),
+            "transceiver": draw(st.sampled_from(sorted(TRANSCEIVERS))),
+        },
+        "nodes": nodes,
+        "terminations": terminations,
+        "bias": bias,
+    }
+
+
+def _bus(doc):
+    return build_bus(load_plan(doc))
+
+
+@SETTINGS
+@given(doc=plan_docs(), unit_loads=st.sampled_from(UNIT_LOADS), where=st.floats(0.0, 1.0))
+def test_adding_a_receiver_never_lowers_the_unit_load_total(doc, unit_loads, where):
+    before = _bus(doc)
+    more = copy.deepcopy(doc)
+    more["nodes"].append({"name": "added", "position_m": where * doc["trunk_length_m"], "unit_loads": unit_loads})
+    after = _bus(more)
+    assert unit_load_total(after) >= unit_load_total(before)
+    assert spare_unit_loads(after) <= spare_unit_loads(before)
+    worst_before = max(f.verdict.rank for f in check_unit_loads(before))
+    worst_after = max(f.verdict.rank for f in check_unit_loads(after))
+    assert worst_after >= worst_before
+
+
+@SETTINGS
+@given(doc=plan_docs(min_terminations=1), pick=st.integers(0, 3), where=st.floats(0.0, 1.0))
+def test_moving_a_terminator_to_mid_bus_never_improves_placement(doc, pick, where):
+    before = _bus(doc)
+    length = doc["trunk_length_m"]
+    tol = end_tolerance_m(before)
+    moved = copy.deepcopy(doc)
+    index = pick % len(doc["terminations"])
+    # Somewhere strictly inside the trunk, further than the end tolerance from both ends.
+    moved["terminations"][index]["position_m"] = tol + 0.01 + where * (length - 2 * tol - 0.02)
+    after = _bus(moved)
+    assert placement_verdict(after).rank >= placement_verdict(before).rank
+
+
+@SETTINGS
+@given(doc=plan_docs(), pick=st.integers(0, 11), extra_m=st.floats(0.0, 50.0))
+def test_a_longer_stub_never_improves_the_stub_verdict(doc, pick, extra_m):
+    index = pick % len(doc["nodes"])
+    longer = copy.deepcopy(doc)
+    longer["nodes"][index]["stub_length_m"] = min(100.0, doc["nodes"][index]["stub_length_m"] + extra_m)
+    name = doc["nodes"][index]["name"]
+    before = next(f for f in check_stubs(_bus(doc)) if f.node == name)
+    after = next(f for f in check_stubs(_bus(longer)) if f.node == name)
+    assert after.verdict.rank >= before.verdict.rank
+
+
+@SETTINGS
+@given(doc=plan_docs(min_length_m=0.1, max_stub_m=100.0))
+def test_any_valid_plan_checks_without_raising_and_serialises(doc):
+    report = check_plan(doc)
+    for f in report.findings:
+        assert f.source and f.criterion
+        assert f.verdict is Verdict.HOLDS or f.fix
+        assert f.node is None or f"'{f.node}'" not in f.title  # the node is shown beside the title, not in it
+        for number in (f.value, f.limit):
+            assert number is None or math.isfinite(number)
+    json.dumps(report_to_dict(report), allow_nan=False)
+    assert len(report.summary.terminators) in (0, len(required_ends_m(report.bus)))

@@ -1,0 +1,110 @@
+"""Rules "length.rate_rule" and "length.loss", and the highest bit rate they allow."""
+
+import math
+
+import pytest
+
+from engine.bus import build_bus
+from engine.findings import Verdict
+from engine.plan import load_plan
+from engine.rules.length_rate import (
+    attenuation_np_per_m,
+    check_length_vs_rate,
+    loss_db,
+    loss_limited_rate_bps,
+    max_bit_rate_bps,
+    signal_path_m,
+)
+
+
+def _bus(rate_bps=9600.0, length_m=1000.0, cable="pair-24awg-120", **changes):
+    doc = {
+        "bit_rate_bps": rate_bps,
+        "trunk_length_m": length_m,
+        "cable": {"class_key": cable},
+        "nodes": [{"name": "far", "position_m": length_m}],
+    }
+    doc.update(changes)
+    return build_bus(load_plan(doc))
+
+
+def _found(bus):
+    return {f.rule_id: f for f in check_length_vs_rate(bus)}
+
+
+def test_rule_of_thumb_limits():
+    # common practice: length (m) x rate (bit/s) <= 1e8: 100 kbit/s -> 1000 m; 10 Mbit/s -> 10 m.
+    assert _found(_bus(100e3, 500.0))["length.rate_rule"].limit == pytest.approx(1000.0, rel=1e-12)
+    assert _found(_bus(10e6, 5.0))["length.rate_rule"].limit == pytest.approx(10.0, rel=1e-12)
+
+
+def test_rule_of_thumb_verdicts_and_fix():
+    # common practice: 1e8 m bit/s; 1200 m at 115.2 kbit/s is 1.38e8 and breaks.
+    found = _found(_bus(115.2e3, 1200.0))["length.rate_rule"]
+    assert found.verdict is Verdict.BREAKS
+    assert "83.3 kbit/s" in found.fix and "repeater" in found.fix
+    assert _found(_bus(100e3, 900.0))["length.rate_rule"].verdict is Verdict.TIGHT
+    assert _found(_bus(100e3, 500.0))["length.rate_rule"].verdict is Verdict.HOLDS
+
+
+def test_cat5e_loss_model_at_16_and_100_mhz():
+    # Source: D. Glisic, "Getting the most out of your twisted pair cable", EE Times 2008:
+    # IL = 1.967 sqrt(f) + 0.023 f + 0.05 / sqrt(f) dB per 100 m (f in MHz): 8.25 dB at 16 MHz, 21.98 at 100 MHz.
+    bus = _bus(cable="cat5e-100")
+    assert loss_db(bus, 16e6, 100.0) == pytest.approx(8.25, rel=0.01)
+    assert loss_db(bus, 100e6, 100.0) == pytest.approx(21.98, rel=0.01)
+
+
+def test_cat5e_nine_db_lengths():
+    # Source: D. Glisic, EE Times 2008: RS-485 on Cat-5e works to 9 dB of loss at f = 1 / t_bit; with the model
+    # above that is about 139 m at 10 Mbit/s and 441 m at 1 Mbit/s (arithmetic). The 0.05/sqrt(f) term is
+    # left out of Pairline's closed form, hence 3 % at 1 Mbit/s.
+    bus = _bus(cable="cat5e-100")
+    assert 9.0 / (loss_db(bus, 10e6, 1.0)) == pytest.approx(139.0, rel=0.01)
+    assert 9.0 / (loss_db(bus, 1e6, 1.0)) == pytest.approx(441.0, rel=0.03)
+
+
+def test_low_frequency_attenuation_of_24_awg_is_r_over_2_z0():
+    # Source: ASTM B258 24 AWG 84.2 Ohm/km per conductor; low-loss line alpha = R / (2 Z0)
+    # (D. M. Pozar, Microwave Engineering, sec. 2.7): 168.4 Ohm/km / 240 Ohm = 0.7017 Np/km.
+    bus = _bus()
+    assert attenuation_np_per_m(bus, 1e3) * 1e3 == pytest.approx(0.7017, rel=1e-3)
+
+
+def test_loss_verdicts_against_9_and_6_db():
+    # Source: 9 dB rule (D. Glisic, EE Times 2008); 6 dB criterion quoted for TIA/EIA-422-B Annex A.
+    assert _found(_bus(1e6, 441.0, "cat5e-100"))["length.loss"].verdict is Verdict.TIGHT
+    breaks = _found(_bus(10e6, 300.0, "cat5e-100"))["length.loss"]
+    assert breaks.verdict is Verdict.BREAKS and breaks.limit == pytest.approx(9.0)
+    assert "lower the bit rate" in breaks.fix and "22 AWG" in breaks.fix
+    assert _found(_bus(9600.0, 200.0))["length.loss"].verdict is Verdict.HOLDS
+
+
+def test_max_bit_rate_is_the_tighter_rule():
+    # common practice: the rule of thumb gives 1e8 / 1000 m = 100 kbit/s; 22 AWG loses < 9 dB there.
+    bus = _bus(9600.0, 1000.0, "pair-22awg-120")
+    assert max_bit_rate_bps(bus) == pytest.approx(100e3, rel=1e-9)
+    # Source: D. Glisic, EE Times 2008 (9 dB rule): the loss-limited rate is where the loss reaches 9 dB.
+    cat5e = _bus(9600.0, 300.0, "cat5e-100")
+    rate = loss_limited_rate_bps(cat5e, 300.0)
+    assert loss_db(cat5e, rate, 300.0) == pytest.approx(9.0, rel=1e-6)
+    assert max_bit_rate_bps(cat5e) == pytest.approx(min(rate, 1e8 / 300.0), rel=1e-12)
+    # Source: ASTM B258 24 AWG: 1500 m of loop is 252.6 Ohm; R / (2 Z0) gives 9.14 dB > 9 dB at any rate.
+    assert max_bit_rate_bps(_bus(9600.0, 1500.0)) == 0.0
+
+
+def test_loss_limited_rate_is_zero_when_even_dc_is_too_lossy():
+    # Source: ASTM B258 24 AWG: 4000 m of loop is 673.6 Ohm; alpha = R/(2 Z0) gives 24.4 dB > 9 dB at any rate.
+    bus = _bus(9600.0, 4000.0)
+    assert loss_limited_rate_bps(bus, 4000.0) == 0.0
+    assert math.isfinite(max_bit_rate_bps(bus))
+
+
+def test_signal_path_from_a_mid_trunk_driver():
+    # Source: geometry: a driver at the centre reaches each end over half the trunk plus the stubs.
+    bus = _bus(
+        length_m=800.0,
+        driver={"position_m": 400.0, "stub_length_m": 1.0},
+        nodes=[{"name": "w", "position_m": 0.0, "stub_length_m": 2.0}, {"name": "e", "position_m": 800.0}],
+    )
+    assert signal_path_m(bus) == pytest.approx(403.0, abs=1e-9)
