@@ -4,10 +4,12 @@ eye opening, propagation delay and jitter, read from the pattern waveforms.
 Conventions (all differential, V_AB):
 - The receiver decides 1 at V >= +threshold and 0 at V <= -threshold; between lies the undefined band
   (+/-200 mV for TIA-485-A and TIA-422-B receivers, the default `threshold_v`).
-- Each receiver is judged in its own time frame: bit n's window starts at n T_bit + t_pd, the moment the
-  edge starts arriving there (t_pd is that receiver's propagation delay: the step response's 50 % crossing
-  minus the driver ramp's 50 % point), and a UART-style receiver samples mid-window. A window that the
-  pattern's end cuts short is left out. The "driven side" of window n is s_n = +1 for a 1 bit, -1 for a 0.
+- Each receiver is judged in its own time frame: bit n's window runs from the moment edge n starts to arrive
+  there (n T_bit + t_a, t_a the step response's 2 % crossing) to the moment edge n + 1 does, so ringing is
+  charged to the bit that caused it. A UART-style receiver samples half a bit after the 50 % crossing it
+  synchronised on (n T_bit + t_50 + T_bit / 2). propagation_delay_s is t_50 minus the driver ramp's own
+  50 % point. A window that the pattern's end cuts short is left out.
+  The "driven side" of window n is s_n = +1 for a 1 bit, -1 for a 0.
 - amplitude_v: the settled level |V| after a long run of equal bits (exact DC solve).
 - overshoot_v: how far s_n V rises above the settled level, worst over the pattern.
 - undershoot_v: ringback: after s_n V has reached the settled level inside a window, how far it then drops
@@ -15,7 +17,8 @@ Conventions (all differential, V_AB):
 - threshold_recrossings: times, over the pattern, that s_n V falls back below +threshold after having
   passed it inside the same window: each can make the receiver output a false extra bit.
 - settle_time_s: worst time from a window's start (the edge's arrival) until s_n V stays at or above the
-  threshold up to the sampling instant; inf if it is not there at the sampling instant.
+  threshold up to the sampling instant; inf if it is not there at the sampling instant. settle_margin_s is
+  the sampling instant minus that, in the same frame.
 - eye_height_v: at the sampling instant, min over 1 bits minus max over 0 bits of V (inner eye).
 - eye_width_s: the contiguous span around the sampling instant in which every 1 bit is >= +threshold and
   every 0 bit <= -threshold.
@@ -40,6 +43,7 @@ from engine.waveform import (
 
 RECEIVER_THRESHOLD_V = 0.2  # TIA/EIA-485-A and TIA/EIA-422-B receiver input sensitivity, +/-200 mV
 RECEIVERS_PER_PASS = 32  # receivers whose pattern waveforms are held at once
+ARRIVAL_FRACTION = 0.02  # of the settled level: an edge has started to arrive
 
 
 @dataclass(frozen=True, slots=True)
@@ -68,21 +72,31 @@ class ReceiverMetrics:
     threshold_v: float
 
 
-def propagation_delay_s(step: StepResponses) -> np.ndarray:
-    """Per driver and receiver, (n_drivers, n_receivers): first time the step response reaches half its settled
-    level, minus the driver ramp's own half-way time T_e / 2. Linear interpolation between samples."""
-    half = 0.5 * step.v_final_v[..., None]
-    above = np.where(step.v_final_v[..., None] >= 0, step.v_diff_v >= half, step.v_diff_v <= half)
+def crossing_time_s(step: StepResponses, fraction: float) -> np.ndarray:
+    """Per driver and receiver, (n_drivers, n_receivers): first time the step response reaches `fraction` of its
+    settled level (inf if it never does). Linear interpolation between samples."""
+    level = fraction * step.v_final_v[..., None]
+    above = np.where(step.v_final_v[..., None] >= 0, step.v_diff_v >= level, step.v_diff_v <= level)
     first = np.argmax(above, axis=-1)  # (n_d, n_rx)
     prev = np.clip(first - 1, 0, None)
     v0 = np.take_along_axis(step.v_diff_v, prev[..., None], -1)[..., 0]
     v1 = np.take_along_axis(step.v_diff_v, first[..., None], -1)[..., 0]
     t0, t1 = step.time_s[prev], step.time_s[first]
     with np.errstate(divide="ignore", invalid="ignore"):
-        frac = np.where(v1 != v0, (half[..., 0] - v0) / (v1 - v0), 0.0)
-    t_half = t0 + np.clip(frac, 0.0, 1.0) * (t1 - t0)
-    t_half = np.where(np.any(above, axis=-1), t_half, np.inf)
-    return np.asarray(t_half - 0.5 * edge_duration_s(step.rise_time_s))
+        frac = np.where(v1 != v0, (level[..., 0] - v0) / (v1 - v0), 0.0)
+    t_cross = t0 + np.clip(frac, 0.0, 1.0) * (t1 - t0)
+    return np.asarray(np.where(np.any(above, axis=-1), t_cross, np.inf))
+
+
+def propagation_delay_s(step: StepResponses) -> np.ndarray:
+    """Per driver and receiver, (n_drivers, n_receivers): the step response's 50 % crossing minus the driver
+    ramp's own 50 % point T_e / 2."""
+    return np.asarray(crossing_time_s(step, 0.5) - 0.5 * edge_duration_s(step.rise_time_s))
+
+
+def arrival_time_s(step: StepResponses) -> np.ndarray:
+    """Per driver and receiver: when an edge starts to arrive, the step response's ARRIVAL_FRACTION crossing."""
+    return crossing_time_s(step, ARRIVAL_FRACTION)
 
 
 def receiver_metrics(
@@ -106,6 +120,7 @@ def receiver_metrics(
     if bits is None:
         bits = default_pattern(step, 1.0 / bus.plan.bit_rate_bps)
     delays = propagation_delay_s(step)[0]
+    arrivals = arrival_time_s(step)[0]
     amplitudes = np.abs(step.v_final_v[0])
     edge_s = edge_duration_s(step.rise_time_s)
     out: list[ReceiverMetrics] = []
@@ -113,27 +128,28 @@ def receiver_metrics(
     for r0 in range(0, len(all_rx), RECEIVERS_PER_PASS):
         chunk = slice(r0, r0 + RECEIVERS_PER_PASS)
         wave = simulate_pattern(bus, bits, driver_name, receiver_names=all_rx[chunk], step=step)
-        out.extend(pattern_metrics(wave, delays[chunk], amplitudes[chunk], edge_s, threshold_v))
+        out.extend(pattern_metrics(wave, delays[chunk], arrivals[chunk], amplitudes[chunk], edge_s, threshold_v))
     return tuple(out)
 
 
 def pattern_metrics(
     wave: Waveforms,
     delay_s: np.ndarray,
+    arrival_s: np.ndarray,
     amplitude_v: np.ndarray,
     edge_s: float,
     threshold_v: float = RECEIVER_THRESHOLD_V,
 ) -> list[ReceiverMetrics]:
     """Metrics of every receiver in a Waveforms, vectorised over receivers; conventions in the module docstring.
 
-    delay_s, amplitude_v: (n_receivers,) propagation delays and settled levels; edge_s: the driver ramp's
-    0-100 % duration (sets how much of a window's end belongs to the next edge).
+    delay_s, arrival_s, amplitude_v: (n_receivers,) propagation delays, arrival times and settled levels from
+    the step response; edge_s: the driver ramp's 0-100 % duration.
     """
     t_bit = wave.bit_time_s
     n_rx, n_off = wave.v_diff_v.shape[0], wave.offsets_s.size
     n_bits = len(wave.bits)
     level = np.where(np.frombuffer(wave.bits.encode(), dtype=np.uint8) == ord("1"), 1.0, -1.0)
-    shift = np.where(np.isfinite(delay_s), delay_s, 0.0)
+    shift = np.where(np.isfinite(arrival_s), arrival_s, 0.0)
     # re-bin into receiver windows: the grid repeats every bit, so window n of receiver r is a contiguous run
     start = np.searchsorted(wave.time_s, shift, side="left")
     n_win = int(max(1, (n_bits * n_off - start.max()) // n_off))
@@ -145,11 +161,13 @@ def pattern_metrics(
     edge = np.r_[False, lv[1:] != lv[:-1]]
     amp = amplitude_v[:, None, None]
 
-    # sampling instant: mid-window, interpolated between neighbouring samples
-    i_mid = np.clip(np.array([np.searchsorted(t, 0.5 * t_bit) for t in tau]) - 1, 0, n_off - 2)
+    # sampling instant: half a bit after the 50 % crossing the receiver synchronised on, interpolated
+    t_half = np.where(np.isfinite(delay_s), delay_s + 0.5 * edge_s, shift)
+    t_sample = np.clip(t_half - shift + 0.5 * t_bit, tau[:, 0], tau[:, -1])  # (n_rx,) local
+    i_mid = np.clip(np.array([np.searchsorted(t, ts) for t, ts in zip(tau, t_sample, strict=True)]) - 1, 0, n_off - 2)
     t0 = np.take_along_axis(tau, i_mid[:, None], 1)
     t1 = np.take_along_axis(tau, i_mid[:, None] + 1, 1)
-    w = ((0.5 * t_bit - t0) / (t1 - t0))[:, :, None]  # (n_rx, 1, 1)
+    w = ((t_sample[:, None] - t0) / (t1 - t0))[:, :, None]  # (n_rx, 1, 1)
     v0 = np.take_along_axis(v, i_mid[:, None, None] * np.ones((1, n_win, 1), dtype=int), 2)
     v1 = np.take_along_axis(v, i_mid[:, None, None] * np.ones((1, n_win, 1), dtype=int) + 1, 2)
     v_mid = (v0 * (1.0 - w) + v1 * w)[..., 0]  # (n_rx, n_win)
@@ -198,7 +216,7 @@ def pattern_metrics(
 
     out = []
     for r in range(n_rx):
-        width = _eye_width_s(tau[r], v[r], lv, threshold_v, t_bit)
+        width = _eye_width_s(tau[r], v[r], lv, threshold_v, t_bit, float(t_sample[r]))
         a = float(amplitude_v[r])
         out.append(
             ReceiverMetrics(
@@ -211,7 +229,7 @@ def pattern_metrics(
                 undershoot_v=float(undershoot[r]),
                 threshold_recrossings=int(recross[r]),
                 settle_time_s=float(settle[r]),
-                settle_margin_s=0.5 * t_bit - float(settle[r]),
+                settle_margin_s=float(t_sample[r] - settle[r]),
                 min_sample_v=float(sv_mid[r].min()),
                 sample_errors=int(np.count_nonzero(sv_mid[r] < threshold_v)),
                 eye_height_v=float(eye_height[r]),
@@ -227,8 +245,10 @@ def pattern_metrics(
     return out
 
 
-def _eye_width_s(tau: np.ndarray, v: np.ndarray, level: np.ndarray, threshold_v: float, t_bit: float) -> float:
-    """Contiguous span around mid-window where all 1s are >= +threshold and all 0s <= -threshold.
+def _eye_width_s(
+    tau: np.ndarray, v: np.ndarray, level: np.ndarray, threshold_v: float, t_bit: float, t_sample: float
+) -> float:
+    """Contiguous span around the sampling instant where all 1s are >= +threshold and all 0s <= -threshold.
 
     The eye of bit n may reach into window n + 1 (until the next edge has crossed the band there), so the
     right side continues over the next window with bit n's level.
@@ -242,7 +262,7 @@ def _eye_width_s(tau: np.ndarray, v: np.ndarray, level: np.ndarray, threshold_v:
 
     here = open_at(v[:-1], level[:-1]) if v.shape[0] > 1 else open_at(v, level)
     after = open_at(v[1:], level[:-1]) if v.shape[0] > 1 else np.zeros(tau.size, dtype=bool)
-    mid = int(np.clip(np.searchsorted(tau, 0.5 * t_bit), 0, tau.size - 1))
+    mid = int(np.clip(np.searchsorted(tau, t_sample), 0, tau.size - 1))
     if not here[mid]:
         return 0.0
     left_closed = np.flatnonzero(~here[:mid])

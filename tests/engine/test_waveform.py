@@ -211,3 +211,20 @@ def test_bad_inputs_are_clear_errors():
     with pytest.raises(BusInputError) as err:
         simulate_pattern(bus, "0101", driver_name="far")
     assert err.value.problems[0].field == "driver_name"
+
+
+def test_lossless_ringing_that_never_decays_is_not_called_settled():
+    # Source: lattice diagram, 0-ohm driver (G_S = -1) and open end (G_L = +1): |G_S G_L| = 1, so the
+    # ringing never decays (Johnson & Graham, High-Speed Digital Design, ch. 4).
+    bus = _line(source_ohm=0.0)
+    resp = step_responses(bus, max_time_s=100e-6)
+    assert not resp.settled
+
+
+def test_slow_edge_on_a_short_line_settles():
+    # Source: common practice, a line whose delay is far below the edge (TSB-89 "electrically short") shows no
+    # ringing; the response settles on the DC divider well inside the run.
+    bus = _line(source_ohm=40.0, length_m=12.0, rise_s=2.5e-6)
+    resp = step_responses(bus)
+    assert resp.settled
+    np.testing.assert_allclose(resp.v_diff_v[0, :, -1], resp.v_final_v[0], atol=2e-3)  # volts
