@@ -5,17 +5,21 @@ ramp from 0 to open_circuit_v whose 10-90 % time is rise_time_s (0-100 % lasts T
 Laplace transform is E(s) = V (1 - exp(-s T_e)) / (s^2 T_e).
 
 Step response by a multi-resolution damped Fourier inversion (numerical inverse Laplace transform):
-level l uses N samples spaced dt_l = dt_0 * 4^l (dt_0 = T_e / 32) over a window T_l = N dt_l, evaluates the
-bus at s_k = sigma_l + j 2 pi k / T_l with sigma_l T_l = ln(1e8), and inverts with one real FFT:
+level l uses N_l samples spaced dt_l over a window T_l = N_l dt_l, evaluates the bus at
+s_k = sigma_l + j 2 pi k / T_l with sigma_l T_l = ln(1e8), and inverts with one real FFT:
 x(n dt) = exp(sigma n dt) * irfft(X(s_k) W_k) / dt. The damping makes the response's own tail (which never
 decays: it settles at the DC level) vanish before it wraps around, so the first half of each window is
 accurate to about 1e-4 of the swing; W_k is a Gaussian low-pass (sigma_f = 0.2 Nyquist; 0.4 at level 0,
 where the ramp itself is resolved) so nothing aliases. It rounds the ramp's corners by about 1 % of the swing
 (a Gaussian of 0.025 T_e at level 0), nothing more; later levels blur by 1.6 dt_l, under 1 % of the elapsed
 time, which a real (dispersive) cable's own edges outgrow.
-Level 0 covers [0, T_0/2], level l the span (T_{l-1}/2, T_l/2]: the grid is dense at the edge and widens as
-the response slows down, and levels are added until every receiver has settled within `tolerance` of its DC
-level (from the exact DC solve) or the requested horizon is covered. After that the response *is* its DC level.
+Level 0 has dt_0 = T_e / 32 and covers [0, T_0/2] for as long as the cable keeps edges sharp (until it has
+attenuated the edge's main frequency 1/T_e by 3 Np; the whole minimum horizon on a nearly lossless line);
+each later level covers (T_{l-1}/2, T_l/2] = 4x the previous end. The grid is dense at the edge and widens as
+the response slows down. Levels are added until every receiver is within `tolerance` of its DC level (from
+the exact DC solve) over the last level's second half, or the requested horizon is covered. The response is
+called settled only if that level still resolves the trunk's ringing period, or a level that did saw the
+ringing die out (coarse levels can average away an undamped oscillation but not a slow smooth tail).
 Source: the method is the numerical Laplace transform of L. M. Wedepohl, "Power system transients: errors
 incurred in the numerical inversion of the Laplace transform", Proc. 26th Midwest Symposium on Circuits and
 Systems (1983); see also P. Moreno, A. Ramirez, "Implementation of the numerical Laplace transform: a review",
@@ -41,7 +45,7 @@ from engine.plan import BusInputError, Problem
 from engine.solve import build_topology, receiver_spectra, resolve_driver_names, solve_network
 from engine.units import delay_s, propagation_velocity_m_per_s
 
-SAMPLES_PER_LEVEL = 1024  # N, a power of two
+SAMPLES_PER_LEVEL = 1024  # N of level 0 at least, a power of two
 LEVEL_FACTOR = 4  # dt grows by this from one level to the next
 SAMPLES_PER_EDGE = 32  # dt_0 = T_e / SAMPLES_PER_EDGE
 KEEP_EVERY = 4  # stored samples: every 4th of the transform grid (T_e / 8 at the edge)
@@ -185,7 +189,8 @@ def _level_schedule(bus: Bus, t_edge_s: float, t_min_s: float) -> list[tuple[flo
     """(dt, N, first index used) of every level. Level 0 resolves the edge (dt_0 = T_e / 32) and is long enough
     to keep edges sharp while the cable has not yet dispersed them: up to 3 / (alpha(1/T_e) v), the time in
     which the cable attenuates the edge's main frequency by 3 Np (capped by the minimum horizon and by
-    MAX_FIRST_LEVEL samples). Each later level spans 4x the previous end with the same N."""
+    MAX_FIRST_LEVEL samples). Each later level spans 4x the previous end, with LATER_LEVEL_SAMPLES samples once
+    the cable has dispersed the edge, else with level 0's N."""
     dt0 = t_edge_s / SAMPLES_PER_EDGE
     alpha = float(propagation_constant_per_m(bus.cable, 1.0 / t_edge_s)[0].real)
     speed = propagation_velocity_m_per_s(bus.cable.velocity_factor)
