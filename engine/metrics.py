@@ -26,7 +26,7 @@ Conventions (all differential, V_AB):
 - sample_errors: sampled bits not on their driven side beyond the threshold.
 """
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -44,6 +44,7 @@ from engine.waveform import (
 RECEIVER_THRESHOLD_V = 0.2  # TIA/EIA-485-A and TIA/EIA-422-B receiver input sensitivity, +/-200 mV
 RECEIVERS_PER_PASS = 32  # receivers whose pattern waveforms are held at once
 ARRIVAL_FRACTION = 0.02  # of the settled level: an edge has started to arrive
+DRIVERS_PER_PASS = 8  # drivers whose step responses are held at once
 
 
 @dataclass(frozen=True, slots=True)
@@ -276,3 +277,30 @@ def _eye_width_s(
         if not closed_after.size:
             t_right = 2.0 * t_bit
     return float(min(t_bit, max(0.0, t_right - t_left)))
+
+
+def driver_metrics(
+    bus: Bus,
+    driver_names: "tuple[str, ...] | list[str] | None" = None,
+    *,
+    pattern: str | None = None,
+    threshold_v: float = RECEIVER_THRESHOLD_V,
+) -> dict[str, tuple[ReceiverMetrics, ...]]:
+    """receiver_metrics for several drivers (None: every node that may drive), step responses batched over
+    DRIVERS_PER_PASS drivers at a time so memory stays bounded however many transceivers the bus has."""
+    names = tuple(bus.drivers_possible if bus.plan.standard == "rs485" else [bus.plan.driver.name])
+    names = names if driver_names is None else tuple(driver_names)
+    n_bits = len(pattern or bus.plan.test_pattern or "x" * DEFAULT_PATTERN_BITS)
+    out: dict[str, tuple[ReceiverMetrics, ...]] = {}
+    for d0 in range(0, len(names), DRIVERS_PER_PASS):
+        group = names[d0 : d0 + DRIVERS_PER_PASS]
+        steps = step_responses(bus, group, max_time_s=n_bits / bus.plan.bit_rate_bps)
+        for i, name in enumerate(group):
+            one = replace(
+                steps,
+                driver_names=(name,),
+                v_diff_v=steps.v_diff_v[i : i + 1],
+                v_final_v=steps.v_final_v[i : i + 1],
+            )
+            out[name] = receiver_metrics(bus, driver_name=name, pattern=pattern, threshold_v=threshold_v, step=one)
+    return out

@@ -4,7 +4,7 @@ import numpy as np
 import pytest
 
 from engine.bus import build_bus
-from engine.metrics import RECEIVER_THRESHOLD_V, propagation_delay_s, receiver_metrics
+from engine.metrics import RECEIVER_THRESHOLD_V, driver_metrics, propagation_delay_s, receiver_metrics
 from engine.plan import load_plan
 from engine.units import SPEED_OF_LIGHT_M_PER_S
 from engine.waveform import edge_duration_s, prbs_bits, step_responses
@@ -115,3 +115,22 @@ def test_too_fast_for_the_line_closes_the_eye():
     assert far.sample_errors > 0
     assert far.eye_height_v < 2 * RECEIVER_THRESHOLD_V
     assert np.isinf(far.settle_time_s)
+
+
+def test_every_driver_gets_metrics_equal_to_its_own_run():
+    # Source: linearity; batching drivers only stacks independent solves. Node "far" may drive (RS-485).
+    doc = _line(40.0, 120.0).plan.model_dump(mode="json")
+    doc["nodes"][1]["role"] = "transceiver"
+    bus = build_bus(load_plan(doc))
+    both = driver_metrics(bus)
+    assert tuple(both) == ("driver", "far")
+    alone = receiver_metrics(bus, driver_name="far")
+    for a, b in zip(both["far"], alone, strict=True):
+        assert a.receiver == b.receiver
+        assert a.eye_height_v == pytest.approx(b.eye_height_v, abs=1e-6)  # volts
+        assert a.overshoot_v == pytest.approx(b.overshoot_v, abs=1e-6)  # volts
+    # Source: closed form, the far node drives through its own terminal into the 120 ohm terminator, with the
+    # listening primary driver's receiver (12 kOhm / 0.25 UL, TIA-485-A unit load) across the lossless line:
+    # V = V_oc R / (40 + R), R = 120 || 48 kOhm.
+    r_load = 1.0 / (1.0 / 120.0 + 1.0 / 48_000.0)
+    assert both["far"][1].amplitude_v == pytest.approx(2.0 * r_load / (40.0 + r_load), rel=1e-6)
