@@ -276,3 +276,34 @@ def test_bad_frequency_is_a_clear_error(bad):
     with pytest.raises(BusInputError) as err:
         solve_bus(_bus(), [1e6, bad])
     assert err.value.problems[0].field == "frequency_hz"
+
+
+def test_rc_terminator_is_open_and_bias_is_its_series_pair_at_dc():
+    # Source: closed form: a capacitor blocks DC, so the RC terminator draws nothing; the bias network across
+    # the pair is pull-up + pull-down in series through the supply (TI SLLA272 failsafe biasing). With a
+    # 40 ohm driver: V = V_oc R / (40 + R), R = 12 kOhm (1 UL) || (560 + 560) ohm.
+    bus = _bus(
+        cable=dict(LOSSLESS),
+        driver={"source_ohm": 40.0, "rise_time_s": 10e-9, "open_circuit_v": 2.0},
+        nodes=[{"name": "far", "position_m": 100.0, "unit_loads": 1.0}],
+        terminations=[{"position_m": 100.0, "kind": "rc", "resistance_ohm": 120.0, "capacitance_f": 1e-9}],
+        bias={"position_m": 0.0, "pull_up_ohm": 560.0, "pull_down_ohm": 560.0},
+    )
+    r_load = 1.0 / (1.0 / 12_000.0 + 1.0 / 1120.0)
+    np.testing.assert_allclose(dc_transfer(bus)[0, 0], r_load / (40.0 + r_load), rtol=1e-12)
+
+
+@pytest.mark.parametrize("seed", [3, 4])
+def test_transfer_between_two_transceivers_is_reciprocal(seed):
+    # Source: reciprocity of linear passive networks, Z_ab = Z_ba (Pozar, Microwave Engineering, 4th ed.,
+    # sec. 4.2): when the listening terminal is loaded by the same resistance as the driving source
+    # (32 UL = 375 ohm, source 375 ohm), V_b when a drives equals V_a when b drives.
+    doc = _random_tree(seed).plan.model_dump(mode="json")
+    doc["driver"].update(source_ohm=375.0)
+    for i in (1, 4):
+        doc["nodes"][i].update(role="transceiver", unit_loads=32.0, input_capacitance_f=0.0)
+    bus = build_bus(load_plan(doc))
+    a, b = doc["nodes"][1]["name"], doc["nodes"][4]["name"]
+    f = np.geomspace(1e3, 30e6, 13)
+    resp = solve_bus(bus, f, driver_names=[a, b])
+    np.testing.assert_allclose(resp.transfer[0, :, 4], resp.transfer[1, :, 1], rtol=1e-9)
