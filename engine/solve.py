@@ -247,7 +247,9 @@ def solve_network(
     ratio_right = np.empty((k_count - 1, n_s), dtype=complex)
     beyond = np.empty(n_s, dtype=complex)
     inv = np.empty(n_s, dtype=complex)
-    for k in range(k_count - 1):
+    # only the parts the drivers need: left of the rightmost driver, right of the leftmost
+    driver_junctions = topo.branch_junction[[topo.driver_branch[name] for name in names]]
+    for k in range(int(driver_junctions.max())):
         u = seg_of[k]
         np.add(y_shunt[k], y_left[k], out=beyond)
         np.multiply(zt[u], beyond, out=inv)
@@ -256,7 +258,7 @@ def solve_network(
         beyond += yt[u]
         np.multiply(beyond, inv, out=y_left[k + 1])
         np.multiply(sech[u], inv, out=ratio_left[k])  # V_k / V_{k+1}
-    for k in range(k_count - 2, -1, -1):
+    for k in range(k_count - 2, int(driver_junctions.min()) - 1, -1):
         u = seg_of[k]
         np.add(y_shunt[k + 1], y_right[k + 1], out=beyond)
         np.multiply(zt[u], beyond, out=inv)
