@@ -1,0 +1,136 @@
+"""Receiver metrics against closed forms: matched line, lattice-diagram ringing, DC levels."""
+
+import numpy as np
+import pytest
+
+from engine.bus import build_bus
+from engine.metrics import RECEIVER_THRESHOLD_V, driver_metrics, propagation_delay_s, receiver_metrics
+from engine.plan import load_plan
+from engine.units import SPEED_OF_LIGHT_M_PER_S
+from engine.waveform import edge_duration_s, prbs_bits, step_responses
+
+VF = 0.7
+LOSSLESS = {
+    "class_key": None,
+    "z0_ohm": 120.0,
+    "velocity_factor": VF,
+    "resistance_ohm_per_m": 0.0,
+    "dielectric_loss_tangent": 0.0,
+}
+HIGH_Z = {"unit_loads": 1e-6, "input_capacitance_f": 0.0}
+T_E = edge_duration_s(10e-9)
+DELAY_S = 100.0 / (VF * SPEED_OF_LIGHT_M_PER_S)
+
+
+def _line(source_ohm, far_ohm=None, bit_rate_bps=100e3):
+    return build_bus(
+        load_plan(
+            {
+                "bit_rate_bps": bit_rate_bps,
+                "trunk_length_m": 100.0,
+                "cable": LOSSLESS,
+                "driver": {"source_ohm": source_ohm, "rise_time_s": 10e-9, "open_circuit_v": 2.0},
+                "nodes": [
+                    {"name": "near", "position_m": 0.0, **HIGH_Z},
+                    {"name": "far", "position_m": 100.0, **HIGH_Z},
+                ],
+                "terminations": [] if far_ohm is None else [{"position_m": 100.0, "resistance_ohm": far_ohm}],
+            }
+        )
+    )
+
+
+def _edges(bits: str) -> int:
+    return sum(a != b for a, b in zip(bits, bits[1:], strict=False))
+
+
+def test_receiver_threshold_is_200_mv():
+    # Source: TIA/EIA-485-A receiver input sensitivity, +/-200 mV.
+    assert pytest.approx(0.2) == RECEIVER_THRESHOLD_V
+
+
+def test_matched_line_has_a_clean_wide_open_eye():
+    # Source: closed form, source = load = Z0: V_far = V_oc / 2 = 1 V, no reflection (Johnson & Graham,
+    # High-Speed Digital Design, ch. 4); a bit swings -1 V -> +1 V, so the inner eye is 2 V high.
+    far = receiver_metrics(_line(120.0, 120.0))[1]
+    assert far.amplitude_v == pytest.approx(1.0, rel=1e-6)
+    assert far.overshoot_v == pytest.approx(0.0, abs=0.005)  # volts
+    assert far.undershoot_v == pytest.approx(0.0, abs=0.005)  # volts
+    assert far.threshold_recrossings == 0
+    assert far.sample_errors == 0
+    assert far.eye_height_v == pytest.approx(2.0, abs=1e-3)  # volts
+    assert far.jitter_s == pytest.approx(0.0, abs=T_E / 8)  # one stored sample
+    # Source: closed form, the ramp from -1 V reaches +0.2 V after 60 % of its 0-100 % time (linear edge),
+    # counted from the edge's arrival; one stored sample (T_e / 8) allowed.
+    assert far.settle_time_s == pytest.approx(0.6 * T_E, abs=T_E / 8)
+    # Source: closed form, the eye is open except while the ramp crosses the +/-200 mV band (20 % of T_e).
+    assert far.eye_width_s == pytest.approx(far.bit_time_s - 0.2 * T_E, abs=T_E / 4)
+
+
+def test_propagation_delay_is_the_line_delay():
+    # Source: definition of velocity factor, t = l / (VF c0); on a matched line the far end's 50 % point
+    # trails the driver's by exactly that.
+    step = step_responses(_line(120.0, 120.0))
+    delays = propagation_delay_s(step)[0]
+    assert delays[0] == pytest.approx(0.0, abs=T_E / 50)
+    assert delays[1] == pytest.approx(DELAY_S, abs=T_E / 50)
+
+
+def test_open_line_overshoot_and_ringback_follow_the_lattice_diagram():
+    # Source: lattice diagram (Johnson & Graham, High-Speed Digital Design, ch. 4): R_s = 40 ohm on 120 ohm,
+    # open end: far-end step plateaus 3, 1.5, 2.25 ... V, settling at 2 V. A -2 V -> +2 V bit doubles the
+    # step: peak -2 + 2 * 3 = 4 V (overshoot 2 V), then -2 + 2 * 1.5 = 1 V (ringback 1 V below 2 V),
+    # never back through +0.2 V. 10 kbit/s lets every bit settle (52 round trips to mid-bit).
+    far = receiver_metrics(_line(40.0, bit_rate_bps=10e3))[1]
+    assert far.amplitude_v == pytest.approx(2.0, rel=1e-6)
+    assert far.overshoot_v == pytest.approx(2.0, abs=0.01)  # volts
+    assert far.undershoot_v == pytest.approx(1.0, abs=0.01)  # volts
+    assert far.threshold_recrossings == 0
+    assert far.eye_height_v == pytest.approx(4.0, abs=1e-3)  # volts, settled: +/- 2 V
+
+
+def test_ringing_back_through_the_threshold_counts_false_bits():
+    # Source: lattice diagram as above with R_s = 10 ohm (G_S = -110/130), open end: far-end step plateaus
+    # 3.692, 0.568, 3.211, 0.975, 2.867, 1.266 V ...; a -2 V -> +2 V bit gives 5.38, -0.86, 4.42, -0.05, 3.73,
+    # 0.53 V: twice per edge the signal falls back below +0.2 V, each a possible false bit.
+    bits = prbs_bits() + "1"  # the last window is cut short by the line delay: no edge in it
+    far = receiver_metrics(_line(10.0, bit_rate_bps=10e3), pattern=bits)[1]
+    assert far.threshold_recrossings == 2 * _edges(bits)
+    assert far.overshoot_v == pytest.approx(2 * 3.692 - 2 - 2.0, abs=0.01)  # volts
+
+
+def test_sampled_levels_follow_the_dc_divider():
+    # Source: closed form, DC divider V_oc R_L / (R_s + R_L) = 2 * 360 / 400 = 1.8 V for a settled bit.
+    far = receiver_metrics(_line(40.0, 360.0))[1]
+    assert far.min_sample_v == pytest.approx(1.8, abs=1e-3)  # volts
+    assert far.sample_errors == 0
+    assert far.settle_margin_s > 0
+
+
+def test_too_fast_for_the_line_closes_the_eye():
+    # Source: lattice diagram, R_s = 10 ohm, R_L = 30 ohm on 120 ohm: the far end's first step is only
+    # 2 * (2 * 120 / 130) * (1 - 0.6) = 0.738 V of the 1.5 V final, so a -1.5 V -> +1.5 V bit first reaches
+    # -0.02 V, inside the undefined band: at 2 Mbit/s (500 ns bits, 476 ns line delay) bits are lost.
+    far = receiver_metrics(_line(10.0, 30.0, bit_rate_bps=2e6))[1]
+    assert far.sample_errors > 0
+    assert far.eye_height_v < 2 * RECEIVER_THRESHOLD_V
+    assert np.isinf(far.settle_time_s)
+
+
+def test_every_driver_gets_metrics_equal_to_its_own_run():
+    # Source: linearity; batching drivers only stacks independent solves. Node "far" may drive (RS-485).
+    doc = _line(40.0, 120.0).plan.model_dump(mode="json")
+    doc["nodes"][1]["role"] = "transceiver"
+    bus = build_bus(load_plan(doc))
+    both = driver_metrics(bus)
+    assert tuple(both) == ("driver", "far")
+    alone = receiver_metrics(bus, driver_name="far")
+    for a, b in zip(both["far"], alone, strict=True):
+        assert a.receiver == b.receiver
+        assert a.eye_height_v == pytest.approx(b.eye_height_v, abs=1e-6)  # volts
+        assert a.overshoot_v == pytest.approx(b.overshoot_v, abs=1e-6)  # volts
+    # Source: closed form, the far node drives through its own terminal into the 120 ohm terminator, with the
+    # listening primary driver's receiver (12 kOhm / 0.25 UL, TIA-485-A unit load) across the lossless line:
+    # V = V_oc R / (40 + R), R = 120 || 48 kOhm.
+    r_load = 1.0 / (1.0 / 120.0 + 1.0 / 48_000.0)
+    assert both["far"][1].amplitude_v == pytest.approx(2.0 * r_load / (40.0 + r_load), rel=1e-6)

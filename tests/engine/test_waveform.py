@@ -1,0 +1,230 @@
+"""Edge responses and bit-pattern waveforms: closed forms (matched line, open line, lattice diagram)."""
+
+import numpy as np
+import pytest
+
+from engine.bus import build_bus
+from engine.plan import BusInputError, load_plan
+from engine.solve import dc_transfer
+from engine.units import SPEED_OF_LIGHT_M_PER_S
+from engine.waveform import edge_duration_s, prbs_bits, simulate_pattern, step_responses
+
+VF = 0.7
+LOSSLESS = {
+    "class_key": None,
+    "z0_ohm": 120.0,
+    "velocity_factor": VF,
+    "resistance_ohm_per_m": 0.0,
+    "dielectric_loss_tangent": 0.0,
+}
+HIGH_Z = {"unit_loads": 1e-6, "input_capacitance_f": 0.0}  # a 12 GOhm probe: no load at all
+
+
+def _line(source_ohm, far_ohm=None, length_m=100.0, rise_s=10e-9, cable=LOSSLESS, bit_rate_bps=1e6, **over):
+    doc = {
+        "bit_rate_bps": bit_rate_bps,
+        "trunk_length_m": length_m,
+        "cable": cable,
+        "driver": {"source_ohm": source_ohm, "rise_time_s": rise_s, "open_circuit_v": 2.0},
+        "nodes": [
+            {"name": "near", "position_m": 0.0, **HIGH_Z},
+            {"name": "far", "position_m": length_m, **HIGH_Z},
+        ],
+        "terminations": [] if far_ohm is None else [{"position_m": length_m, "resistance_ohm": far_ohm}],
+    }
+    doc.update(over)
+    return build_bus(load_plan(doc))
+
+
+def _at(resp, receiver, t_s):
+    return np.interp(t_s, resp.time_s, resp.v_diff_v[0, receiver])
+
+
+def _delay_s(length_m=100.0):
+    return length_m / (VF * SPEED_OF_LIGHT_M_PER_S)
+
+
+def test_matched_line_shows_no_reflection():
+    # Source: closed form, source and load both equal to Z0: the far end sees V/2 once, delayed by l / v, and
+    # nothing after (Johnson & Graham, High-Speed Digital Design, ch. 4, matched termination).
+    bus = _line(source_ohm=120.0, far_ohm=120.0)
+    resp = step_responses(bus)
+    t_e = edge_duration_s(10e-9)
+    ideal = 1.0 * np.clip((resp.time_s - _delay_s()) / t_e, 0.0, 1.0)
+    away = np.abs(resp.time_s - _delay_s()) > 0.5 * t_e  # away from the arrival's ramp corners
+    away &= np.abs(resp.time_s - _delay_s() - t_e) > 0.5 * t_e
+    np.testing.assert_allclose(resp.v_diff_v[0, 1, away], ideal[away], atol=1e-3)  # volts, of a 1 V step
+    # the low-pass only rounds the ramp's corners: within 1.5 % of the step anywhere
+    np.testing.assert_allclose(resp.v_diff_v[0, 1], ideal, atol=0.015)
+    assert resp.settled
+
+
+def test_open_line_doubles_the_incident_wave_after_one_delay():
+    # Source: closed form, open end reflects +1: V_far = 2 V_oc Z0 / (Z0 + R_s) (Johnson & Graham,
+    # High-Speed Digital Design, ch. 4); before one delay nothing has arrived.
+    bus = _line(source_ohm=40.0)
+    resp = step_responses(bus)
+    incident_v = 2.0 * 120.0 / (120.0 + 40.0)
+    t_e = edge_duration_s(10e-9)
+    assert _at(resp, 1, 0.9 * _delay_s()) == pytest.approx(0.0, abs=1e-4)  # volts
+    assert _at(resp, 1, _delay_s() + 1.5 * t_e) == pytest.approx(2.0 * incident_v, abs=1e-3)  # volts
+    assert _at(resp, 0, 0.5 * _delay_s()) == pytest.approx(incident_v, abs=1e-3)  # volts
+
+
+@pytest.mark.parametrize(("source_ohm", "far_ohm"), [(40.0, 360.0), (10.0, 30.0), (300.0, None)])
+def test_lattice_levels_round_trip_by_round_trip(source_ohm, far_ohm):
+    # Source: lattice (Bergeron) diagram of a lossless line between mismatched source and load
+    # (Johnson & Graham, High-Speed Digital Design, ch. 4): incident V_oc Z0 / (Z0 + R_s), reflections
+    # G_L = (R_L - Z0) / (R_L + Z0) and G_S = (R_s - Z0) / (R_s + Z0); each round trip multiplies by G_L G_S.
+    bus = _line(source_ohm=source_ohm, far_ohm=far_ohm)
+    resp = step_responses(bus)
+    z0, v_oc, t_d = 120.0, 2.0, _delay_s()
+    g_l = 1.0 if far_ohm is None else (far_ohm - z0) / (far_ohm + z0)
+    g_s = (source_ohm - z0) / (source_ohm + z0)
+    incident = v_oc * z0 / (z0 + source_ohm)
+    t_e = edge_duration_s(10e-9)
+    far = near = 0.0
+    near = incident
+    for k in range(6):
+        wave = incident * (g_l * g_s) ** k
+        far += wave * (1.0 + g_l)
+        # plateau after the k-th arrival at the far end, before the next one
+        assert _at(resp, 1, (2 * k + 1) * t_d + 1.5 * t_e) == pytest.approx(far, abs=1e-3), k  # volts
+        # the near end moves when the reflected wave returns, one delay later
+        assert _at(resp, 0, (2 * k + 1) * t_d - 0.5 * t_e) == pytest.approx(near, abs=1e-3), k  # volts
+        near += wave * g_l * (1.0 + g_s)
+    # Source: closed form, DC divider V_oc R_L / (R_s + R_L); settled level from the exact DC solve
+    dc = v_oc if far_ohm is None else v_oc * far_ohm / (source_ohm + far_ohm)
+    np.testing.assert_allclose(resp.v_final_v[0], dc, rtol=1e-6)
+
+
+def test_long_lossy_line_settles_to_the_resistive_divider():
+    # Source: common practice DC budget: 24 AWG, 1200 m, loop 202 ohm, into 120 ohm -> 0.373 of the driver's
+    # open-circuit voltage (ideal 0-ohm driver; 84.2 ohm/km per conductor, ASTM B258).
+    bus = _line(source_ohm=0.0, far_ohm=120.0, length_m=1200.0, rise_s=100e-9, cable={"class_key": "pair-24awg-120"})
+    resp = step_responses(bus)
+    assert resp.v_final_v[0, 1] / 2.0 == pytest.approx(0.373, abs=0.001)
+    assert resp.settled
+    # the computed response ends on the DC level (the transform and the DC solve agree)
+    assert resp.v_diff_v[0, 1, -1] == pytest.approx(resp.v_final_v[0, 1], abs=2.0 * 1e-4)  # volts
+
+
+def test_pattern_is_the_superposition_of_edges():
+    # Source: linearity (superposition): bits 0,0,1,1 = rest at -V, then one 2V rising edge at 2 T_bit.
+    bus = _line(source_ohm=40.0, far_ohm=200.0)
+    step = step_responses(bus)
+    wave = simulate_pattern(bus, "0011")
+    t_bit = wave.bit_time_s
+    v_final = step.v_final_v[0]
+    for r in range(2):
+        expected = -v_final[r] + 2.0 * np.interp(wave.time_s - 2 * t_bit, step.time_s, step.v_diff_v[0, r])
+        expected[wave.time_s < 2 * t_bit] = -v_final[r]
+        np.testing.assert_allclose(wave.v_diff_v[r], expected, atol=1e-3 * 2.0)  # volts, 0.1 % of V_oc
+    np.testing.assert_allclose(wave.sample_times_s, (np.arange(4) + 0.5) * t_bit, rtol=1e-12)
+
+
+def test_slow_rate_with_fast_edges_on_a_long_line_stays_small_and_settles():
+    # Source: common practice DC budget as above (0.373 of V_oc at 1200 m of 24 AWG into 120 ohm, 0-ohm driver):
+    # at 1200 bit/s every mid-bit sample is settled to +/- that level.
+    bus = _line(
+        source_ohm=0.0,
+        far_ohm=120.0,
+        length_m=1200.0,
+        rise_s=2e-9,
+        cable={"class_key": "pair-24awg-120"},
+        bit_rate_bps=1200.0,
+    )
+    wave = simulate_pattern(bus)
+    # the bus settles within one bit, so the shortest default PRBS (order 5, 2^5 - 1 bits) holds every case
+    assert wave.bits == prbs_bits(31, order=5)
+    assert wave.offsets_s.size < 1500  # bounded: a few hundred samples per bit, not 833 us / 2 ns
+    mid = np.searchsorted(wave.time_s, wave.sample_times_s)
+    levels = np.where(np.array(list(wave.bits)) == "1", 1.0, -1.0)
+    np.testing.assert_allclose(wave.v_diff_v[1, mid], levels * 0.373 * 2.0, atol=0.002 * 2.0)  # volts
+
+
+def test_fast_rate_short_terminated_bus_samples_at_the_dc_levels():
+    # Source: closed form DC divider, line matched at both ends: +/- V_oc * R_T / (R_s + R_T) at the near end
+    # from the edge on, at the far end one line delay (47.6 ns at VF 0.7) later; 2 ns driver, 20 Mbit/s.
+    bus = _line(source_ohm=120.0, far_ohm=120.0, length_m=10.0, rise_s=2e-9, bit_rate_bps=20e6)
+    wave = simulate_pattern(bus, "0101100111010")
+    levels = np.where(np.array(list(wave.bits)) == "1", 1.0, -1.0)
+    near = np.interp(wave.sample_times_s, wave.time_s, wave.v_diff_v[0])
+    np.testing.assert_allclose(near, levels, atol=0.01)  # volts
+    far = np.interp(wave.sample_times_s[:-1] + _delay_s(10.0), wave.time_s, wave.v_diff_v[1])
+    np.testing.assert_allclose(far, levels[:-1], atol=0.01)  # volts
+
+
+def test_every_driver_in_one_batch_equals_each_alone():
+    # Source: linearity; the batch axis only stacks independent solves.
+    doc = _line(source_ohm=40.0, far_ohm=120.0).plan.model_dump(mode="json")
+    doc["nodes"][1]["role"] = "transceiver"
+    bus = build_bus(load_plan(doc))
+    both = step_responses(bus, ["driver", "far"])
+    alone = step_responses(bus, ["far"])
+    np.testing.assert_allclose(
+        np.interp(alone.time_s, both.time_s, both.v_diff_v[1, 0]), alone.v_diff_v[0, 0], atol=1e-3
+    )
+    np.testing.assert_allclose(both.v_final_v, 2.0 * dc_transfer(bus, ["driver", "far"]), rtol=1e-12)
+
+
+@pytest.mark.parametrize("order", [4, 5, 6, 7, 9])
+def test_prbs_holds_every_word_of_its_order(order):
+    # Source: maximal-length sequence property (ITU-T O.150 PRBS): one period of PRBS-k holds every k-bit
+    # word except all zeros exactly once.
+    period = (1 << order) - 1
+    bits = prbs_bits(2 * period, order=order)
+    words = {bits[i : i + order] for i in range(period)}
+    assert len(words) == period
+    assert "0" * order not in words
+
+
+def test_default_pattern_grows_with_the_bus_memory():
+    # Source: maximal-length property as above: with memory m bits, PRBS-(m + 2) holds every m + 2-bit history.
+    # A 200 m unterminated line at 20 Mbit/s rings over many bits: the longest default, PRBS-7.
+    fast = _line(source_ohm=40.0, length_m=200.0, bit_rate_bps=20e6)
+    assert len(simulate_pattern(fast).bits) == 127
+    slow = _line(source_ohm=120.0, far_ohm=120.0, bit_rate_bps=9600.0)
+    assert len(simulate_pattern(slow).bits) == 31
+
+
+def test_prbs7_is_a_maximal_length_sequence():
+    # Source: ITU-T O.150 PRBS-7 (x^7 + x^6 + 1): period 2^7 - 1 = 127 with 64 ones and 63 zeros.
+    bits = prbs_bits(254, order=7, seed=1)
+    assert bits[:127] == bits[127:]
+    assert bits[:127].count("1") == 64
+    assert prbs_bits(127, seed=1) == prbs_bits(127, seed=1)
+    assert prbs_bits(127, seed=5) != prbs_bits(127, seed=1)
+
+
+def test_bad_inputs_are_clear_errors():
+    bus = _line(source_ohm=120.0, far_ohm=120.0)
+    with pytest.raises(BusInputError) as err:
+        step_responses(bus, max_time_s=-1.0)
+    assert err.value.problems[0].field == "max_time_s"
+    with pytest.raises(BusInputError) as err:
+        simulate_pattern(bus, "01x1")
+    assert err.value.problems[0].field == "test_pattern"
+    with pytest.raises(BusInputError) as err:
+        simulate_pattern(bus, "0101", receiver_names=["nowhere"])
+    assert err.value.problems[0].field == "receiver_names"
+    with pytest.raises(BusInputError) as err:
+        simulate_pattern(bus, "0101", driver_name="far")
+    assert err.value.problems[0].field == "driver_name"
+
+
+def test_lossless_ringing_that_never_decays_is_not_called_settled():
+    # Source: lattice diagram, 0-ohm driver (G_S = -1) and open end (G_L = +1): |G_S G_L| = 1, so the
+    # ringing never decays (Johnson & Graham, High-Speed Digital Design, ch. 4).
+    bus = _line(source_ohm=0.0)
+    resp = step_responses(bus, max_time_s=100e-6)
+    assert not resp.settled
+
+
+def test_slow_edge_on_a_short_line_settles():
+    # Source: common practice, a line whose delay is far below the edge (TSB-89 "electrically short") shows no
+    # ringing; the response settles on the DC divider well inside the run.
+    bus = _line(source_ohm=40.0, length_m=12.0, rise_s=2.5e-6)
+    resp = step_responses(bus)
+    assert resp.settled
+    np.testing.assert_allclose(resp.v_diff_v[0, :, -1], resp.v_final_v[0], atol=2e-3)  # volts
