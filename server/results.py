@@ -8,13 +8,13 @@ data for `server.views`; nothing here knows about HTTP or templates.
 from dataclasses import dataclass
 
 import numpy as np
-from engine.metrics import ReceiverMetrics, receiver_metrics
 from engine.sweep import length_rate_curve
-from engine.waveform import Waveforms, prbs_bits, simulate_pattern, step_responses
 
 from engine.bus import Bus
 from engine.check import PlanReport, check_plan, report_to_dict
+from engine.metrics import ReceiverMetrics, receiver_metrics
 from engine.plan import BusPlan
+from engine.waveform import Waveforms, prbs_bits, simulate_pattern, step_responses
 
 __all__ = ["CheckedPlan", "PlanReport", "check_and_simulate", "check_only", "report_to_dict", "worst_receiver"]
 
