@@ -214,7 +214,7 @@ def curve_plot(
         point_label=f"this plan: {_rate_text(plan_rate_bps)}bit/s, {plan_len:.4g} {unit}",
         x_ticks=tuple(AxisTick(px(d), _rate_text(d).strip() or "1") for d in _decades(r_lo, r_hi) if r_lo <= d <= r_hi),
         y_ticks=tuple(AxisTick(py(d), f"{d:g}") for d in _decades(l_lo, l_hi) if l_lo <= d <= l_hi),
-        y_label=f"trunk length ({unit})",
+        y_label=f"cable path ({unit})",
     )
 
 

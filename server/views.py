@@ -255,7 +255,7 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
     counts = {v.value: sum(1 for f in report.findings if f.verdict == v) for v in Verdict}
     waveforms = _waveforms_data(checked, chosen_receiver)
     curve = curve_plot(
-        checked.curve_bit_rate_bps, checked.curve_max_length_m, plan.bit_rate_bps, plan.trunk_length_m, units
+        checked.curve_bit_rate_bps, checked.curve_max_length_m, plan.bit_rate_bps, checked.curve_plan_length_m, units
     )
     plan_id = saved.id if saved else None
     data: dict[str, Any] = json_safe(
@@ -287,6 +287,9 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
             "curve": {
                 "bit_rate_bps": checked.curve_bit_rate_bps,
                 "max_length_m": checked.curve_max_length_m,
+                "plan_length_m": checked.curve_plan_length_m,
+                "criterion": checked.curve_criterion,
+                "source": checked.curve_source,
                 "svg": curve,
             },
             "drawing": bus_drawing(

@@ -14,10 +14,6 @@ from pathlib import Path
 
 import pytest
 
-from tests.server import fake_engine
-
-fake_engine.install()  # only until engine.check / waveform / sweep land on main
-
 CHROMIUM = Path(os.environ.get("PAIRLINE_CHROMIUM", "/usr/bin/chromium"))
 CHROMIUM_ARGS = [
     "--headless",

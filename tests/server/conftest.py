@@ -2,14 +2,10 @@ import warnings
 
 import pytest
 
-from tests.server import fake_engine
-
 # Starlette's test client warns at import when it finds httpx rather than httpx2; either works for these tests.
 with warnings.catch_warnings():
     warnings.filterwarnings("ignore", message=".*httpx2.*")
     from fastapi.testclient import TestClient
-
-FAKED = fake_engine.install()
 
 
 @pytest.fixture(scope="module")
