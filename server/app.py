@@ -101,7 +101,7 @@ def render(request: Request, template: str, data: dict[str, Any], status_code: i
 
 def load_sample_buses(store: PlanStore, directory: Path = SAMPLES_DIR) -> int:
     """Load every valid `sample_buses/*.json` into the store; an invalid file is logged and skipped."""
-    count = 0
+    loaded: list[str] = []
     for position, path in enumerate(sorted(directory.glob("*.json"))):
         try:
             plan = load_plan(json.loads(path.read_text(encoding="utf-8")))
@@ -109,8 +109,9 @@ def load_sample_buses(store: PlanStore, directory: Path = SAMPLES_DIR) -> int:
             log.warning("sample bus %s skipped: %s", path.name, exc)
             continue
         store.put_sample(path.stem, plan_to_dict(plan), engine_version=ENGINE_VERSION, position=position)
-        count += 1
-    return count
+        loaded.append(path.stem)
+    store.retain_samples(loaded)
+    return len(loaded)
 
 
 def create_app(

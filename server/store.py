@@ -136,6 +136,12 @@ class PlanStore:
             )
         return plan_id
 
+    def retain_samples(self, slugs: list[str]) -> None:
+        """Forget samples whose file is gone (their saved plans stay reachable by id)."""
+        with self._connect() as db:
+            placeholders = ",".join("?" * len(slugs))
+            db.execute(f"DELETE FROM samples WHERE slug NOT IN ({placeholders})", slugs)
+
     def samples(self) -> list[SampleEntry]:
         with self._connect() as db:
             rows = db.execute("SELECT slug, plan_id, title FROM samples ORDER BY position, slug").fetchall()

@@ -42,3 +42,20 @@ def test_samples_keep_their_id_while_the_file_is_unchanged(tmp_path):
     assert changed != first
     assert [(s.slug, s.plan_id) for s in store.samples()] == [("bench", changed)]
     assert store.get_plan(first) is not None  # links to the old version still open
+
+
+def test_samples_whose_file_is_gone_leave_the_list(tmp_path):
+    from server.app import load_sample_buses
+
+    store = PlanStore(tmp_path / "plans.db")
+    folder = tmp_path / "samples"
+    folder.mkdir()
+    doc = '{"bit_rate_bps": 9600, "trunk_length_m": 10, "nodes": [{"name": "a", "position_m": 5}]}'
+    (folder / "one.json").write_text(doc)
+    (folder / "two.json").write_text(doc)
+    assert load_sample_buses(store, folder) == 2
+    kept_id = {s.slug: s.plan_id for s in store.samples()}["two"]
+    (folder / "two.json").unlink()
+    assert load_sample_buses(store, folder) == 1
+    assert [s.slug for s in store.samples()] == ["one"]
+    assert store.get_plan(kept_id) is not None
