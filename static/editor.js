@@ -104,7 +104,7 @@
     const x = function (p) { return x0 + (x1 - x0) * p / length; };
     shape("line", { x1: x0, y1: 34, x2: x1, y2: 34, class: "trunk" });
     shape("text", { x: x0, y: 80 }, "0");
-    shape("text", { x: x1, y: 80, "text-anchor": "end" }, length + " " + preview.dataset.unit);
+    shape("text", { x: x1, y: 80, "text-anchor": "end" }, Number(length.toPrecision(6)) + " " + preview.dataset.unit);
     form.querySelectorAll("input[name$='.position_m']").forEach(function (input) {
       const p = lengthValue(input.value);
       if (isNaN(p)) return;

@@ -113,7 +113,15 @@ BLANK_NODE_ROWS = 5
 @router.get("/plans/new.json")
 def new_plan_page(request: Request, units: str = "metric") -> Response:
     system = "imperial" if units == "imperial" else "metric"
-    state = form_from_plan(STARTER_PLAN | {"display_units": system})
+    starter = STARTER_PLAN | {"display_units": system}
+    if system == "imperial":  # a round 300 ft trunk rather than 328.08 ft
+        trunk_m = 300 * 0.3048
+        starter["trunk_length_m"] = trunk_m
+        starter["terminations"] = [
+            STARTER_PLAN["terminations"][0],
+            {**STARTER_PLAN["terminations"][1], "position_m": trunk_m},
+        ]
+    state = form_from_plan(starter)
     state.n_nodes = BLANK_NODE_ROWS
     data = editor_data(state, title="New bus plan")
     return page(request, "editor.html", data, request.url.path.endswith(".json"))
