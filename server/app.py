@@ -76,6 +76,17 @@ async def _too_large(scope: Scope, receive: Receive, send: Send, max_bytes: int)
             }
         ],
     }
+    path = str(scope.get("path", ""))
+    accept = dict(scope.get("headers") or []).get(b"accept", b"").decode("latin-1")
+    if "text/html" in accept and not (path.startswith("/api/") or path.endswith(".json")):
+        html = (
+            "<!doctype html><html lang='en'><head><meta charset='utf-8'><title>Too large · Pairline</title>"
+            "<link rel='stylesheet' href='/static/pairline.css'></head><body><main><section class='panel lost'>"
+            f"<h1>That is too much to send</h1><p>{body['problems'][0]['message']}</p>"
+            "<p><a class='button' href='/'>Back to the start</a></p></section></main></body></html>"
+        )
+        await HTMLResponse(html, status_code=413)(scope, receive, send)
+        return
     await JSONResponse(body, status_code=413)(scope, receive, send)
 
 

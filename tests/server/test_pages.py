@@ -261,6 +261,8 @@ def test_oversized_bodies_are_refused(client, tmp_path):
 
         streamed = c.post("/api/check", content=chunks(), headers={"content-type": "application/json"})
         assert streamed.status_code == 413
+        page = c.post("/import", data={"plan_text": "z" * 5000}, headers={"accept": "text/html"})
+        assert page.status_code == 413 and "text/html" in page.headers["content-type"]
 
 
 def test_markup_in_names_is_shown_as_text(client):
