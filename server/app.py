@@ -64,7 +64,8 @@ class BodyTooLarge(Exception):
 
 
 async def _too_large(scope: Scope, receive: Receive, send: Send, max_bytes: int) -> None:
-    body = {
+    message = f"The request is larger than {max_bytes // 1000} kB; send a smaller plan."
+    body: dict[str, Any] = {
         "status": 413,
         "problems": [
             {
@@ -72,7 +73,7 @@ async def _too_large(scope: Scope, receive: Receive, send: Send, max_bytes: int)
                 "label": "Request body",
                 "value": None,
                 "allowed": {"max_bytes": max_bytes},
-                "message": f"The request is larger than {max_bytes // 1000} kB; send a smaller plan.",
+                "message": message,
             }
         ],
     }
@@ -82,7 +83,7 @@ async def _too_large(scope: Scope, receive: Receive, send: Send, max_bytes: int)
         html = (
             "<!doctype html><html lang='en'><head><meta charset='utf-8'><title>Too large · Pairline</title>"
             "<link rel='stylesheet' href='/static/pairline.css'></head><body><main><section class='panel lost'>"
-            f"<h1>That is too much to send</h1><p>{body['problems'][0]['message']}</p>"
+            f"<h1>That is too much to send</h1><p>{message}</p>"
             "<p><a class='button' href='/'>Back to the start</a></p></section></main></body></html>"
         )
         await HTMLResponse(html, status_code=413)(scope, receive, send)
