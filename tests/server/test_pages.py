@@ -362,3 +362,11 @@ def test_the_plan_twin_carries_the_same_report_as_the_command_line(client, saved
     expected = json.loads(json.dumps(report_to_dict(check_plan(load_plan(data["plan"])))))
     assert data["report"] == expected
     assert data["checked_with_engine"] == expected["engine_version"]
+
+
+def test_root_twin_and_static_files_are_served(client):
+    assert client.get("/.json").json() == client.get("/index.json").json()
+    for asset, kind in (("pairline.css", "text/css"), ("print.css", "text/css"), ("editor.js", "javascript")):
+        resp = client.get(f"/static/{asset}")
+        assert resp.status_code == 200 and kind in resp.headers["content-type"]
+    assert client.get("/static/nothing.css").status_code == 404
