@@ -21,7 +21,7 @@ from engine.rules.length_rate import (
     loss_db,
     signal_path_m,
 )
-from engine.waveform import Waveforms, prbs_bits, simulate_pattern, step_responses
+from engine.waveform import DEFAULT_PATTERN_BITS, Waveforms, default_pattern, simulate_pattern, step_responses
 
 __all__ = ["CheckedPlan", "PlanReport", "check_and_simulate", "check_only", "report_to_dict", "worst_receiver"]
 
@@ -53,8 +53,15 @@ def check_and_simulate(plan: BusPlan, chosen_receiver: str | None = None) -> Che
     """Run every rule, simulate the plan's bit pattern from the primary driver, and sweep length against rate."""
     report = check_plan(plan)
     bus: Bus = report.bus
-    bits = plan.test_pattern or prbs_bits()
-    step = step_responses(bus, (plan.driver.name,), max_time_s=len(bits) / plan.bit_rate_bps)
+    bit_time_s = 1.0 / plan.bit_rate_bps
+    drivers = (plan.driver.name,)
+    # The same pattern the engine picks by default (so these figures match the signal findings).
+    if plan.test_pattern:
+        bits = plan.test_pattern
+        step = step_responses(bus, drivers, max_time_s=len(bits) * bit_time_s)
+    else:
+        step = step_responses(bus, drivers, max_time_s=DEFAULT_PATTERN_BITS * bit_time_s)
+        bits = default_pattern(step, bit_time_s)
     metrics = receiver_metrics(bus, pattern=bits, step=step)
     worst = worst_receiver(metrics)
     shown = [] if worst is None else [worst.receiver]
