@@ -46,3 +46,11 @@ def test_cable_loss_bounds_the_curve_at_low_rates():
     expected_m = 9.0 / (20.0 / math.log(10.0) * 0.1684 / 240.0)
     assert lengths[0] == pytest.approx(expected_m, rel=2e-3)  # at 1 kbit/s; dielectric loss adds < 0.1 %
     assert rates[0] == pytest.approx(1e3)
+
+
+def test_without_a_pattern_the_page_uses_the_engines_default_and_its_figures():
+    from engine.metrics import receiver_metrics
+
+    plan = load_plan({k: v for k, v in PLAN.items() if k != "test_pattern"})
+    checked = check_and_simulate(plan)
+    assert checked.metrics == receiver_metrics(build_bus(plan))
