@@ -130,6 +130,7 @@ def _field_meta(units: UnitSystem) -> dict[str, dict[str, dict[str, Any]]]:
                 "label": s.label,
                 "unit": s.unit_label(units),
                 "hint": s.hint,
+                "placeholder": s.placeholder,
                 "choices": [list(c) for c in s.choices],
             }
             for s in specs

@@ -370,3 +370,10 @@ def test_root_twin_and_static_files_are_served(client):
         resp = client.get(f"/static/{asset}")
         assert resp.status_code == 200 and kind in resp.headers["content-type"]
     assert client.get("/static/nothing.css").status_code == 404
+
+
+def test_blank_node_cells_show_what_blank_means(client):
+    dom = parse_html(client.get("/plans/new").text)
+    assert dom.find("input", name="nodes.0.unit_loads").attrs["placeholder"] == "1"
+    assert dom.find("input", name="nodes.0.input_capacitance_f").attrs["placeholder"] == "20 pF"
+    assert dom.find("input", name="cable.z0_ohm").attrs["placeholder"] == "120 Ω"
