@@ -17,6 +17,7 @@ from engine.findings import Verdict, worst
 from engine.library import CABLES, TRANSCEIVERS
 from engine.plan import BusPlan, Problem, plan_to_dict
 from engine.units import si_format
+from server.cautions import cautions_data
 from server.diagram import bus_drawing, node_anchor
 from server.forms import BIAS, CABLE, DRIVER, NODE, TERMINATION, TOP, FormState
 from server.plots import curve_plot, eye_plot, waveform_plot
@@ -73,52 +74,6 @@ def problem_message(problem: Problem, units: UnitSystem) -> str:
             parts.append(f"{length_in(allowed['max'], units):.5g} ft")
         return f"{problem.message} (In feet: {' '.join(parts)}.)"
     return problem.message
-
-
-SAFETY_CAUTIONS = (
-    (
-        "ground",
-        "Ground offsets",
-        "Nodes powered from different supplies or buildings rarely share one ground. The offset adds to the "
-        "common-mode voltage every receiver must tolerate (−7 V to +12 V for RS-485). Run a signal-ground "
-        "conductor with a series resistor at each node, or isolate the transceivers; never rely on earth alone.",
-    ),
-    (
-        "surge",
-        "Surges on long and outdoor runs",
-        "Cable that runs outdoors, between buildings or beside power wiring collects lightning and switching "
-        "surges. Fit surge protection where the cable enters each building, earth the shield at one point, and "
-        "choose parts tested to the surge, burst and ESD levels of the site.",
-    ),
-    (
-        "isolation",
-        "Isolation",
-        "Where the offset may exceed the common-mode range, or the sites have separate earthing systems, use "
-        "galvanically isolated transceivers and isolated supplies rather than a bare ground wire between sites.",
-    ),
-    (
-        "codes",
-        "Codes and licensed practice",
-        "This plan covers signals only. Follow local electrical codes, and have licensed electricians design and "
-        "inspect anything that connects to mains power, earthing systems or equipment in other buildings.",
-    ),
-)
-
-
-def cautions_data(plan: BusPlan) -> list[dict[str, Any]]:
-    """The standing cautions, each marked `applies` with a reason when something in this plan calls for it."""
-    offsets = [abs(n.ground_offset_v) for n in plan.nodes]
-    largest = max(offsets, default=0.0)
-    reasons = {
-        "ground": f"largest ground offset in this plan: {largest:g} V" if largest > 0 else "",
-        "surge": f"trunk length {plan.trunk_length_m:g} m" if plan.trunk_length_m >= 100 else "",
-        "isolation": f"a node sits {largest:g} V from the driver's ground" if largest >= 7 else "",
-        "codes": "always",
-    }
-    return [
-        {"key": key, "title": title, "text": text, "applies": bool(reasons[key]), "reason": reasons[key]}
-        for key, title, text in SAFETY_CAUTIONS
-    ]
 
 
 def _field_meta(units: UnitSystem) -> dict[str, dict[str, dict[str, Any]]]:
