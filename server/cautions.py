@@ -4,6 +4,12 @@ from typing import Any
 
 from engine.plan import BusPlan
 
+# The -7..+12 V common-mode range leaves about ±7 V for ground offset once the driver's 2.5 V and noise are
+# counted (Intersil, "High-Speed RS-485 Transceiver and Applications").
+OFFSET_BUDGET_V = 7.0
+# Pairline's own prompt for the surge caution; the caution itself is always shown, for any outdoor run.
+LONG_RUN_M = 100.0
+
 SAFETY_CAUTIONS = (
     (
         "ground",
@@ -40,8 +46,8 @@ def cautions_data(plan: BusPlan) -> list[dict[str, Any]]:
     largest = max(offsets, default=0.0)
     reasons = {
         "ground": f"largest ground offset in this plan: {largest:g} V" if largest > 0 else "",
-        "surge": f"trunk length {plan.trunk_length_m:g} m" if plan.trunk_length_m >= 100 else "",
-        "isolation": f"a node sits {largest:g} V from the driver's ground" if largest >= 7 else "",
+        "surge": f"trunk length {plan.trunk_length_m:g} m" if plan.trunk_length_m >= LONG_RUN_M else "",
+        "isolation": f"a node sits {largest:g} V from the driver's ground" if largest >= OFFSET_BUDGET_V else "",
         "codes": "always",
     }
     return [
