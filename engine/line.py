@@ -188,14 +188,3 @@ def abcd_section(cable: ResolvedCable, frequency_hz: ArrayLike, length_m: float)
     out[:, 0, 1] = z * length_m * tc * cosh
     out[:, 1, 0] = y * length_m * tc * cosh
     return out
-
-
-def input_admittance_siemens(terms: SectionTerms, load_admittance_siemens: np.ndarray) -> np.ndarray:
-    """Admittance into a section loaded by Y_L: (C + D Y_L) / (A + B Y_L) = (tanh/Z0 + Y_L) / (1 + Z0 tanh Y_L)."""
-    y_l = load_admittance_siemens
-    return np.asarray((terms.y_tanh_siemens + y_l) / (1.0 + terms.z_tanh_ohm * y_l))
-
-
-def voltage_transfer(terms: SectionTerms, load_admittance_siemens: np.ndarray) -> np.ndarray:
-    """V_load / V_input of a section loaded by Y_L: 1 / (A + B Y_L) = sech / (1 + Z0 tanh Y_L)."""
-    return np.asarray(terms.sech_term / (1.0 + terms.z_tanh_ohm * load_admittance_siemens))
