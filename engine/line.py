@@ -11,7 +11,7 @@ formulas serve the frequency response and the damped transform the time-domain s
   skin-effect onset). At real frequencies its real part blends smoothly from R_dc at low frequency to
   R_dc * sqrt(f / f_on) above the onset, the classical skin-effect growth of a round conductor; its imaginary
   part carries the matching internal inductance, which keeps the model causal (no signal before the
-  line delay). Source: H. Johnson, M. Graham, High-Speed Signal Propagation, sec. 2.5 (skin effect, R + jwL_int
+  line delay). Source: H. Johnson, M. Graham, High-Speed Signal Propagation (2003), ch. 2 (skin effect, R + jwL_int
   rising together as sqrt(f)).
 - Shunt admittance Y'(s) = (C / cos d) * s * (s / w_r)^(-2 d / pi), d = arctan(tan_delta), w_r = 2 pi * 1 MHz.
   At f = 1 MHz this is exactly jwC + G with G = w C tan_delta; elsewhere G / (w C) stays tan_delta and C drifts by
