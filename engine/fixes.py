@@ -31,12 +31,13 @@ from engine.metrics import (
     arrival_time_s,
     pattern_metrics,
     propagation_delay_s,
+    receiver_metrics,
 )
 from engine.plan import BusPlan, TerminationSpec
 from engine.rules.cable_ends import end_name, nearest_end_m, required_ends_m
 from engine.rules.preferred import nearest_preferred, preferred_at_or_below
 from engine.units import si_format
-from engine.waveform import default_pattern, edge_duration_s, simulate_pattern, step_responses
+from engine.waveform import DEFAULT_PATTERN_BITS, default_pattern, edge_duration_s, simulate_pattern, step_responses
 
 MAX_BISECTIONS = 5
 MAX_STUB_CANDIDATES = 2
@@ -125,14 +126,21 @@ def judge_bus(
     receivers: Sequence[str] | None = None,
     pattern: str | None = None,
 ) -> dict[str, SignalJudgement]:
-    """Simulate the bit pattern (None: the plan's, else the default PRBS) and judge each receiver (None: all)."""
+    """Simulate the bit pattern (None: the plan's, else the default PRBS) and judge each receiver (None: all).
+
+    Every receiver: engine.metrics.receiver_metrics (RECEIVERS_PER_PASS at a time). Named receivers: their
+    waveforms only, from the whole bus's edge response.
+    """
     driver = driver_name or bus.plan.driver.name
     bit_time_s = 1.0 / bus.plan.bit_rate_bps
     bits = pattern or bus.plan.test_pattern
-    step = step_responses(bus, [driver], max_time_s=(len(bits) if bits else 127) * bit_time_s)
+    step = step_responses(bus, [driver], max_time_s=(len(bits) if bits else DEFAULT_PATTERN_BITS) * bit_time_s)
     if bits is None:
         bits = default_pattern(step, bit_time_s)
-    names = list(step.receiver_names if receivers is None else receivers)
+    if receivers is None:
+        every = receiver_metrics(bus, driver_name=driver, pattern=bits, step=step)
+        return {m.receiver: judge_metrics(m) for m in every}
+    names = list(receivers)
     index = [step.receiver_names.index(n) for n in names]
     wave = simulate_pattern(bus, bits, driver, receiver_names=names, step=step)
     metrics = pattern_metrics(

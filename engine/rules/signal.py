@@ -27,6 +27,7 @@ from engine.rules.unterminated import line_may_stay_unterminated
 from engine.units import si_format
 
 MAX_STUB_CONFIRMS = 8  # flagged stubs reported one by one; the rest summarised
+MAX_WATCHED = 8  # receivers judged in a second (what-if) simulation on large buses
 _SOURCE = (
     "Simulated waveforms (reflection simulation of the whole bus); receiver threshold ±200 mV from TIA/EIA-485-A "
     "and TIA/EIA-422-B; margins: common practice"
@@ -105,8 +106,9 @@ def check_signal_integrity(bus: Bus) -> list[Finding]:
                 detail=detail,
             )
         )
-    findings += confirm_stub_rule(bus, {rx: j for rx, (j, d) in judged.items() if d == primary} or None)
-    findings.append(confirm_termination_rule(bus))
+    from_primary = {rx: j for rx, (j, d) in judged.items() if d == primary} or None
+    findings += confirm_stub_rule(bus, from_primary)
+    findings.append(confirm_termination_rule(bus, from_primary))
     return findings
 
 
@@ -195,12 +197,35 @@ def confirm_stub_rule(bus: Bus, judged: dict[str, SignalJudgement] | None = None
     return out
 
 
-def confirm_termination_rule(bus: Bus) -> Finding:
-    """Rule "signal.confirms" for "termination.may_omit": the bus simulated without terminators."""
+def _watch_list(bus: Bus, judged: dict[str, SignalJudgement] | None) -> list[str] | None:
+    """Receivers to judge in a second simulation: the worst few of the first and the two farthest from the
+    driver (ends of the line, where reflections pile up). None (all) on small buses."""
+    if judged is None or len(judged) <= MAX_WATCHED:
+        return None
+    by_severity = sorted(judged.values(), key=_severity, reverse=True)
+    watch = [j.receiver for j in by_severity[: MAX_WATCHED - 2]]
+    x0 = bus.plan.driver.position_m
+    far = sorted(bus.plan.nodes, key=lambda n: abs(n.position_m - x0) + n.stub_length_m, reverse=True)
+    for n in far:
+        if len(watch) >= MAX_WATCHED:
+            break
+        if n.name not in watch:
+            watch.append(n.name)
+    return watch
+
+
+def confirm_termination_rule(bus: Bus, judged: dict[str, SignalJudgement] | None = None) -> Finding:
+    """Rule "signal.confirms" for "termination.may_omit": the bus simulated without terminators.
+
+    judged: the primary driver's judgements of the bus as laid out; on a bus of more than MAX_WATCHED
+    receivers the second simulation judges only the worst of those and the farthest two.
+    """
     plan = bus.plan
     may_omit = line_may_stay_unterminated(bus)
-    bare_bus = bus if not plan.terminations else build_bus(plan.model_copy(update={"terminations": []}))
-    judged = judge_bus(bare_bus)
+    if not plan.terminations:
+        judged = judged if judged is not None else judge_bus(bus)
+    else:
+        judged = judge_bus(build_bus(plan.model_copy(update={"terminations": []})), receivers=_watch_list(bus, judged))
     worst_rx = max(judged.values(), key=_severity)
     sim = worst_rx.verdict
     m = worst_rx.metrics
