@@ -18,6 +18,7 @@ over the library's driver classes. Each re-simulation judges only the receivers 
 are computed from the whole bus's step response), which keeps a fix to a few tens of milliseconds.
 """
 
+import dataclasses
 import math
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
@@ -37,7 +38,14 @@ from engine.plan import BusPlan, TerminationSpec
 from engine.rules.cable_ends import end_name, nearest_end_m, required_ends_m
 from engine.rules.preferred import nearest_preferred, preferred_at_or_below
 from engine.units import si_format
-from engine.waveform import DEFAULT_PATTERN_BITS, default_pattern, edge_duration_s, simulate_pattern, step_responses
+from engine.waveform import (
+    DEFAULT_PATTERN_BITS,
+    StepResponses,
+    default_pattern,
+    edge_duration_s,
+    simulate_pattern,
+    step_responses,
+)
 
 MAX_BISECTIONS = 5
 MAX_STUB_CANDIDATES = 2
@@ -119,22 +127,37 @@ def judge_metrics(m: ReceiverMetrics) -> SignalJudgement:
     return SignalJudgement(m.receiver, verdict, tuple(breaks or tight), m)
 
 
+def pattern_duration_s(bus: Bus, pattern: str | None) -> float:
+    """How long the pattern (None: at most the default PRBS length) lasts at the plan's bit rate."""
+    return (len(pattern) if pattern else DEFAULT_PATTERN_BITS) / bus.plan.bit_rate_bps
+
+
+def one_driver(steps: StepResponses, name: str) -> StepResponses:
+    """The edge responses of one driver out of a batch computed for several."""
+    i = steps.driver_names.index(name)
+    return dataclasses.replace(
+        steps, driver_names=(name,), v_diff_v=steps.v_diff_v[i : i + 1], v_final_v=steps.v_final_v[i : i + 1]
+    )
+
+
 def judge_bus(
     bus: Bus,
     *,
     driver_name: str | None = None,
     receivers: Sequence[str] | None = None,
     pattern: str | None = None,
+    step: StepResponses | None = None,
 ) -> dict[str, SignalJudgement]:
     """Simulate the bit pattern (None: the plan's, else the default PRBS) and judge each receiver (None: all).
 
     Every receiver: engine.metrics.receiver_metrics (RECEIVERS_PER_PASS at a time). Named receivers: their
-    waveforms only, from the whole bus's edge response.
+    waveforms only, from the whole bus's edge response. step: that driver's edge responses, if already known.
     """
     driver = driver_name or bus.plan.driver.name
     bit_time_s = 1.0 / bus.plan.bit_rate_bps
     bits = pattern or bus.plan.test_pattern
-    step = step_responses(bus, [driver], max_time_s=(len(bits) if bits else DEFAULT_PATTERN_BITS) * bit_time_s)
+    if step is None or step.driver_names[:1] != (driver,):
+        step = step_responses(bus, [driver], max_time_s=pattern_duration_s(bus, bits))
     if bits is None:
         bits = default_pattern(step, bit_time_s)
     if receivers is None:

@@ -20,11 +20,12 @@ rule's own finding still beside it.
 
 from engine.bus import Bus, build_bus
 from engine.findings import Finding, Verdict, worst
-from engine.fixes import ComputedFix, SignalJudgement, compute_fixes, judge_bus
+from engine.fixes import ComputedFix, SignalJudgement, compute_fixes, judge_bus, one_driver, pattern_duration_s
 from engine.metrics import RECEIVER_THRESHOLD_V
 from engine.rules.stubs import check_stubs
 from engine.rules.unterminated import line_may_stay_unterminated
 from engine.units import si_format
+from engine.waveform import step_responses
 
 MAX_STUB_CONFIRMS = 8  # flagged stubs reported one by one; the rest summarised
 MAX_WATCHED = 8  # receivers judged in a second (what-if) simulation on large buses
@@ -42,9 +43,10 @@ _CRITERION = (
 def _worst_over_drivers(bus: Bus) -> dict[str, tuple[SignalJudgement, str]]:
     """Per receiver, its worst judgement over every node that may drive, with that driver's name."""
     drivers = bus.drivers_possible if bus.plan.standard == "rs485" else [bus.plan.driver.name]
+    steps = step_responses(bus, drivers, max_time_s=pattern_duration_s(bus, bus.plan.test_pattern))
     out: dict[str, tuple[SignalJudgement, str]] = {}
     for name in drivers:
-        judged = judge_bus(bus, driver_name=name)
+        judged = judge_bus(bus, driver_name=name, step=one_driver(steps, name))
         for rx, j in judged.items():
             old = out.get(rx)
             if old is None or _severity(j) > _severity(old[0]):
