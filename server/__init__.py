@@ -1,1 +1,1 @@
-"""Pairline server side: the command line and the web app."""
+"""Pairline server side: the command line and the web planner (FastAPI app, SQLite store, forms, SVG drawings)."""

@@ -1,4 +1,4 @@
-"""Command line: `pairline check PLAN.json [--json]`.
+"""Command line: `pairline check PLAN.json [--json]` and `pairline serve [--host] [--port] [--db]`.
 
 Exit status: 0 when no rule breaks, 1 when at least one rule breaks, 2 when the input cannot be checked
 (unreadable file, bad JSON, or a plan that fails validation; every problem is printed with its field, value
@@ -320,6 +320,20 @@ def run_check(args: argparse.Namespace, out: TextIO, err: TextIO) -> int:
     return EXIT_BREAKS if report.verdict is Verdict.BREAKS else EXIT_OK
 
 
+def run_serve(args: argparse.Namespace, out: TextIO, err: TextIO) -> int:
+    """Serve the web planner until interrupted; options override PAIRLINE_HOST, PAIRLINE_PORT, PAIRLINE_DB."""
+    from server.serve import run, settings_from_env
+
+    try:
+        settings = settings_from_env(args.host, args.port, args.db)
+    except ValueError as exc:
+        print(f"pairline serve: {exc}", file=err)
+        return EXIT_INVALID
+    print(f"Pairline planner on http://{settings.host}:{settings.port}/ (plans in {settings.db_path})", file=out)
+    run(settings.host, settings.port, settings.db_path)
+    return EXIT_OK
+
+
 Command = Callable[[argparse.Namespace, TextIO, TextIO], int]
 
 
@@ -334,6 +348,16 @@ def build_parser() -> argparse.ArgumentParser:
     check.add_argument("plan", metavar="PLAN.json", help="the bus plan file ('-' reads standard input)")
     check.add_argument("--json", action="store_true", help="print the full report as JSON")
     check.set_defaults(run=run_check)
+    serve = commands.add_parser(
+        "serve",
+        help="run the web planner (loopback only unless --host says otherwise)",
+        description="Serve the web planner. Options fall back to PAIRLINE_HOST, PAIRLINE_PORT and PAIRLINE_DB, "
+        "then to 127.0.0.1, 8485 and ./pairline.db.",
+    )
+    serve.add_argument("--host", default=None, help="interface to listen on (default 127.0.0.1)")
+    serve.add_argument("--port", type=int, default=None, help="TCP port (default 8485)")
+    serve.add_argument("--db", default=None, metavar="PATH", help="SQLite file for saved plans (default ./pairline.db)")
+    serve.set_defaults(run=run_serve)
     return parser
 
 

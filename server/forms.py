@@ -1,0 +1,273 @@
+"""The plan editor's form fields <-> the plan document.
+
+Input names are the plan's dotted paths (`trunk_length_m`, `nodes.2.stub_length_m`), so a problem's `field`
+from `engine.plan.load_plan` is also the name of the input it belongs beside. Values are typed text: a bare
+number is read in the unit shown beside the input (metres or feet by the plan's display units), and a number
+with a unit or SI prefix ("30 ft", "4.7 nF", "115.2k") is read as written.
+
+Rows of nodes and terminators may arrive with gaps in their indices (rows removed in the browser); blank and
+removed rows are dropped and the rest renumbered before validation, and the form is re-rendered with the same
+numbering, so every message lands beside the right input.
+"""
+
+import re
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+from typing import Any
+
+from engine.library import CABLES, TRANSCEIVERS
+from engine.plan import PLAN_FORMAT, PLAN_FORMAT_VERSION, Problem
+from server.quantities import Bare, QuantityError, UnitSystem, bare_unit, format_quantity, parse_quantity
+
+MAX_FORM_ROWS = 512
+
+
+@dataclass(frozen=True, slots=True)
+class FieldSpec:
+    key: str  # the plan attribute, last part of the dotted path
+    label: str
+    kind: str | None = None  # quantity kind (server.quantities.KINDS); None for text and choices
+    bare: Bare | None = None  # overrides the kind's bare unit
+    choices: tuple[tuple[str, str], ...] = ()  # (value, label) for a select
+    hint: str = ""
+    placeholder: str = ""  # what a blank input means (the plan's default)
+
+    def unit_label(self, units: UnitSystem) -> str:
+        return bare_unit(self.kind, units, self.bare).label if self.kind else ""
+
+
+def _choices(library: Mapping[str, Any], custom: str) -> tuple[tuple[str, str], ...]:
+    return (*((key, item.label) for key, item in library.items()), ("", custom))
+
+
+TOP = (
+    FieldSpec("title", "Plan title"),
+    FieldSpec("standard", "Standard", choices=(("rs485", "RS-485 (multipoint)"), ("rs422", "RS-422 (one driver)"))),
+    FieldSpec("bit_rate_bps", "Bit rate", "rate", hint="e.g. 115.2k, 1M"),
+    FieldSpec("supply_v", "Transceiver supply", "voltage"),
+    FieldSpec("trunk_length_m", "Trunk length", "length"),
+    FieldSpec("test_pattern", "Test bit pattern", hint="0s and 1s; blank for a built-in pseudo-random run"),
+    FieldSpec("notes", "Notes"),
+)
+CABLE = (
+    FieldSpec("class_key", "Cable class", choices=_choices(CABLES, "Custom cable (enter all values)")),
+    FieldSpec("z0_ohm", "Impedance Z0", "resistance"),
+    FieldSpec("velocity_factor", "Velocity factor", "plain", hint="0.3 to 1, or a percentage"),
+    FieldSpec("resistance_ohm_per_m", "Conductor resistance", "resistance_per_length", hint="per conductor"),
+    FieldSpec("capacitance_f_per_m", "Capacitance", "capacitance_per_length"),
+    FieldSpec("skin_effect_onset_hz", "Skin-effect onset", "frequency"),
+    FieldSpec("dielectric_loss_tangent", "Loss tangent", "plain"),
+)
+DRIVER = (
+    FieldSpec("name", "Driver name"),
+    FieldSpec("position_m", "Position on trunk", "length"),
+    FieldSpec("stub_length_m", "Stub length", "length"),
+    FieldSpec("transceiver", "Driver class", choices=_choices(TRANSCEIVERS, "Custom driver (enter all values)")),
+    FieldSpec("rise_time_s", "Rise time (10–90 %)", "time", hint="e.g. 100 ns, 1.2 µs"),
+    FieldSpec("open_circuit_v", "Open-circuit output", "voltage"),
+    FieldSpec("source_ohm", "Source resistance", "resistance"),
+)
+NODE = (
+    FieldSpec("name", "Name"),
+    FieldSpec("position_m", "Position", "length"),
+    FieldSpec("stub_length_m", "Stub", "length", placeholder="0"),
+    FieldSpec("unit_loads", "Unit loads", "plain", hint="1, 1/2, 1/4, 1/8", placeholder="1"),
+    FieldSpec("role", "Role", choices=(("receiver", "receiver"), ("transceiver", "transceiver"))),
+    FieldSpec("ground_offset_v", "Ground offset", "voltage", placeholder="0"),
+    FieldSpec("input_capacitance_f", "Input C", "capacitance", placeholder="20 pF"),
+)
+TERMINATION = (
+    FieldSpec("position_m", "Position", "length"),
+    FieldSpec("kind", "Kind", choices=(("parallel", "parallel R"), ("rc", "series R–C (AC)"))),
+    FieldSpec("resistance_ohm", "Resistance", "resistance"),
+    FieldSpec("capacitance_f", "Capacitance", "capacitance", bare=Bare("nF", 1e-9, True), hint="RC only"),
+)
+BIAS = (
+    FieldSpec("position_m", "Position", "length"),
+    FieldSpec("pull_up_ohm", "Pull-up (A to supply)", "resistance"),
+    FieldSpec("pull_down_ohm", "Pull-down (B to ground)", "resistance"),
+    FieldSpec("supply_v", "Bias supply", "voltage", hint="blank: the transceiver supply"),
+)
+GROUPS: dict[str, tuple[FieldSpec, ...]] = {"": TOP, "cable": CABLE, "driver": DRIVER, "bias": BIAS}
+ROWS: dict[str, tuple[FieldSpec, ...]] = {"nodes": NODE, "terminations": TERMINATION}
+# Selects always carry a value, so they do not count when deciding whether a row is blank.
+_ROW_CHOICE_KEYS = {"role", "kind"}
+
+
+def spec_for(path: str) -> FieldSpec | None:
+    """The field spec of a dotted path such as `nodes.3.stub_length_m`."""
+    parts = path.split(".")
+    if len(parts) == 3 and parts[0] in ROWS:
+        return next((f for f in ROWS[parts[0]] if f.key == parts[2]), None)
+    group, key = (parts[0], parts[1]) if len(parts) == 2 else ("", parts[0])
+    return next((f for f in GROUPS.get(group, ()) if f.key == key), None)
+
+
+@dataclass(slots=True)
+class FormState:
+    """What the editor template needs: each input's text by dotted path, row counts and the unit system."""
+
+    values: dict[str, str]
+    n_nodes: int
+    n_terminations: int
+    units: UnitSystem  # the system the inputs' bare numbers are shown in
+    parent_id: str | None = None
+    problems: list[Problem] = field(default_factory=list)
+    chosen_units: UnitSystem | None = None  # the system picked to keep with the plan, when it differs
+
+
+@dataclass(slots=True)
+class ParsedForm:
+    doc: dict[str, Any]  # the plan document, not yet validated
+    state: FormState  # the typed text, rows renumbered, for re-rendering
+    problems: list[Problem]  # text that did not parse as a quantity
+    action: str
+
+
+def _path(group: str, key: str) -> str:
+    return f"{group}.{key}" if group else key
+
+
+def form_from_plan(plan: Mapping[str, Any], units: UnitSystem | None = None, parent_id: str | None = None) -> FormState:
+    """Input text for a plan document (validated or not). Missing values give empty inputs."""
+    system: UnitSystem = units or ("imperial" if plan.get("display_units") == "imperial" else "metric")
+    values: dict[str, str] = {}
+
+    def put(prefix: str, spec: FieldSpec, source: Any) -> None:
+        raw = source.get(spec.key) if isinstance(source, Mapping) else None
+        if spec.kind and isinstance(raw, int | float) and not isinstance(raw, bool):
+            values[prefix] = format_quantity(float(raw), spec.kind, system, spec.bare)
+        elif spec.key in ("class_key", "transceiver") and isinstance(source, Mapping) and spec.key in source:
+            values[prefix] = "" if raw is None else str(raw)
+        elif spec.key in ("class_key", "transceiver"):
+            values[prefix] = "pair-24awg-120" if spec.key == "class_key" else "edge-100ns"
+        else:
+            values[prefix] = "" if raw is None else str(raw)
+
+    for group, specs in GROUPS.items():
+        source = plan if not group else plan.get(group)
+        for spec in specs:
+            put(_path(group, spec.key), spec, source if source is not None else {})
+    counts = {}
+    for group, specs in ROWS.items():
+        rows = plan.get(group)
+        rows = rows if isinstance(rows, list) else []
+        for i, row in enumerate(rows[:MAX_FORM_ROWS]):
+            for spec in specs:
+                put(f"{group}.{i}.{spec.key}", spec, row if isinstance(row, Mapping) else {})
+        counts[group] = len(rows[:MAX_FORM_ROWS])
+    values.setdefault("standard", "rs485")
+    return FormState(values, counts["nodes"], counts["terminations"], system, parent_id)
+
+
+_ROW_NAME = re.compile(r"^(nodes|terminations)\.(\d{1,6})\.(\w+)$")
+
+
+def parse_form(form: Mapping[str, str]) -> ParsedForm:
+    """Read the editor form into a plan document, collecting text that does not parse as a quantity.
+
+    `shown_units` says which unit system the bare numbers were typed in; `display_units` is the system the
+    user chose to keep with the plan (they differ right after the choice is changed)."""
+    shown: UnitSystem = "imperial" if form.get("shown_units") == "imperial" else "metric"
+    chosen: UnitSystem = "imperial" if form.get("display_units") == "imperial" else "metric"
+    action = str(form.get("action") or "check")
+    problems: list[Problem] = []
+    values: dict[str, str] = {}
+    doc: dict[str, Any] = {"format": PLAN_FORMAT, "format_version": PLAN_FORMAT_VERSION, "display_units": chosen}
+
+    def read(path: str, spec: FieldSpec, target: dict[str, Any], text: str) -> None:
+        text = text.strip() if spec.key not in ("notes",) else text
+        values[path] = text
+        if text == "":
+            if spec.key in ("class_key", "transceiver"):
+                target[spec.key] = None
+            return
+        if spec.kind is None:
+            target[spec.key] = text
+            return
+        try:
+            target[spec.key] = parse_quantity(text, spec.kind, shown, spec.bare)
+        except QuantityError as exc:
+            label = _label_for(path, spec)
+            unit = spec.unit_label(shown)
+            problems.append(
+                Problem(
+                    path,
+                    label,
+                    text,
+                    {"unit": unit, "format": "a number, optionally with a unit or SI prefix"},
+                    f"{label}: {exc}. Write a number in {unit}" + (f" ({spec.hint})." if spec.hint else ".")
+                    if unit
+                    else f"{label}: {exc}.",
+                )
+            )
+            target[spec.key] = text  # so the plan validator does not also report it missing
+
+    for group, specs in GROUPS.items():
+        target = doc if not group else {}
+        for spec in specs:
+            path = _path(group, spec.key)
+            if path in form or spec.key in ("class_key", "transceiver"):
+                read(path, spec, target, str(form.get(path, "")))
+        if group == "bias":
+            if any(values.get(f"bias.{k}") for k in ("pull_up_ohm", "pull_down_ohm")):
+                doc["bias"] = target
+            else:
+                doc["bias"] = None
+        elif group:
+            doc[group] = target
+
+    counts: dict[str, int] = {}
+    for group, specs in ROWS.items():
+        raw_rows: dict[int, dict[str, str]] = {}
+        for name, text in form.items():
+            m = _ROW_NAME.match(name)
+            if m and m.group(1) == group:
+                raw_rows.setdefault(int(m.group(2)), {})[m.group(3)] = str(text)
+        rows = []
+        for index in sorted(raw_rows)[:MAX_FORM_ROWS]:
+            raw = raw_rows[index]
+            if raw.get("remove"):
+                continue
+            if all(not raw.get(s.key, "").strip() for s in specs if s.key not in _ROW_CHOICE_KEYS):
+                continue
+            rows.append(raw)
+        items = []
+        for i, raw in enumerate(rows):
+            item: dict[str, Any] = {}
+            for spec in specs:
+                read(f"{group}.{i}.{spec.key}", spec, item, raw.get(spec.key, ""))
+            items.append(item)
+        doc[group] = items
+        counts[group] = len(items)
+
+    if doc.get("test_pattern") == "":
+        doc.pop("test_pattern")
+    parent = form.get("parent_id") or None
+    state = FormState(values, counts["nodes"], counts["terminations"], shown, parent, list(problems), chosen)
+    return ParsedForm(doc, state, problems, action)
+
+
+def _label_for(path: str, spec: FieldSpec) -> str:
+    m = _ROW_NAME.match(path)
+    if m:
+        what = "Node" if m.group(1) == "nodes" else "Terminator"
+        return f"{what} {int(m.group(2)) + 1} {spec.label.lower()}"
+    group = path.split(".")[0] if "." in path else ""
+    return f"{group.capitalize()} {spec.label.lower()}" if group else spec.label
+
+
+def merge_problems(form_problems: list[Problem], plan_problems: list[Problem]) -> list[Problem]:
+    """Form parse problems first; a plan problem on a field the form already reported is dropped."""
+    seen = {p.field for p in form_problems}
+    return [*form_problems, *(p for p in plan_problems if p.field not in seen)]
+
+
+def with_units(state: FormState, doc: Mapping[str, Any], units: UnitSystem) -> FormState:
+    """The same form shown in another unit system: parsed values re-formatted, unparsed text kept."""
+    fresh = form_from_plan(doc, units, state.parent_id)
+    for path, text in state.values.items():
+        if path not in fresh.values or (fresh.values[path] == "" and text):
+            fresh.values[path] = text
+    fresh.n_nodes, fresh.n_terminations = state.n_nodes, state.n_terminations
+    return fresh

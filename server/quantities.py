@@ -1,0 +1,185 @@
+"""Typed quantities at the edge: parse "115.2k", "4.7 nF", "30 ft", "1/8" into SI, and format SI back for inputs.
+
+Each plan field has a kind (length, time, resistance ...). A bare number is read in the field's *bare unit*
+(metres or feet for lengths, by the plan's display units; nanoseconds for rise times; picofarads for node input
+capacitance ...), which the form shows beside the input. A number with a unit or SI prefix is read as written.
+"""
+
+import math
+import re
+from dataclasses import dataclass
+from typing import Literal
+
+from engine.units import FEET_PER_M
+
+UnitSystem = Literal["metric", "imperial"]
+UNIT_SYSTEMS: tuple[UnitSystem, ...] = ("metric", "imperial")
+
+_PREFIX = {"p": 1e-12, "n": 1e-9, "u": 1e-6, "µ": 1e-6, "μ": 1e-6, "m": 1e-3, "": 1.0, "k": 1e3, "M": 1e6, "G": 1e9}
+_NUMBER = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)(?:\s*/\s*(\d+(?:\.\d*)?))?\s*(.*?)\s*$")
+
+
+@dataclass(frozen=True, slots=True)
+class Kind:
+    """A physical kind: its SI unit and the unit tokens (with their SI factor) a user may type."""
+
+    name: str
+    si_unit: str
+    tokens: dict[str, float]
+
+
+def _prefixed(symbols: tuple[str, ...], prefixes: str | tuple[str, ...]) -> dict[str, float]:
+    table: dict[str, float] = {}
+    for sym in symbols:
+        for p in prefixes:
+            table[p + sym] = _PREFIX[p]
+    return table
+
+
+_FT = 1.0 / FEET_PER_M  # metres per foot, exact
+KINDS: dict[str, Kind] = {
+    k.name: k
+    for k in (
+        Kind(
+            "length",
+            "m",
+            {"m": 1.0, "km": 1e3, "cm": 1e-2, "mm": 1e-3, "ft": _FT, "'": _FT, "kft": 1e3 * _FT, "in": _FT / 12},
+        ),
+        Kind("time", "s", _prefixed(("s",), ("p", "n", "u", "µ", "μ", "m", ""))),
+        Kind("rate", "bit/s", _prefixed(("bit/s", "bps", "b/s", "Bd", "baud", ""), ("", "k", "M"))),
+        Kind("resistance", "Ω", _prefixed(("Ω", "ohm", "ohms", "Ohm", "R", ""), ("m", "", "k", "M"))),
+        Kind("capacitance", "F", _prefixed(("F", ""), ("p", "n", "u", "µ", "μ", "m"))),
+        Kind("voltage", "V", _prefixed(("V",), ("m", "", "k"))),
+        Kind("frequency", "Hz", _prefixed(("Hz", ""), ("", "k", "M", "G"))),
+        Kind(
+            "capacitance_per_length",
+            "F/m",
+            {
+                **{f"{p}F/m": _PREFIX[p] for p in "pn"},
+                **{f"{p}F/ft": _PREFIX[p] / _FT for p in "pn"},
+                "nF/km": 1e-12,
+            },
+        ),
+        Kind(
+            "resistance_per_length",
+            "Ω/m",
+            {
+                **{f"{sym}/m": 1.0 for sym in ("Ω", "ohm")},
+                **{f"{sym}/km": 1e-3 for sym in ("Ω", "ohm")},
+                **{f"{sym}/ft": 1.0 / _FT for sym in ("Ω", "ohm")},
+                **{f"{sym}/kft": 1e-3 / _FT for sym in ("Ω", "ohm")},
+            },
+        ),
+        Kind("plain", "", {"": 1.0, "%": 0.01}),
+    )
+}
+
+
+@dataclass(frozen=True, slots=True)
+class Bare:
+    """The unit a bare number is read in: label shown beside the input and its SI factor."""
+
+    label: str
+    factor: float
+    prefixed: bool = False  # format values with an SI prefix and unit in the input (e.g. "4.7 nF")
+
+
+# Bare units per kind, per unit system. Fields may override (see forms.FIELDS).
+_BARE: dict[str, dict[UnitSystem, Bare]] = {
+    "length": {"metric": Bare("m", 1.0), "imperial": Bare("ft", _FT)},
+    "time": {"metric": Bare("ns", 1e-9, True), "imperial": Bare("ns", 1e-9, True)},
+    "rate": {"metric": Bare("bit/s", 1.0, True), "imperial": Bare("bit/s", 1.0, True)},
+    "resistance": {"metric": Bare("Ω", 1.0, True), "imperial": Bare("Ω", 1.0, True)},
+    "capacitance": {"metric": Bare("pF", 1e-12, True), "imperial": Bare("pF", 1e-12, True)},
+    "voltage": {"metric": Bare("V", 1.0), "imperial": Bare("V", 1.0)},
+    "frequency": {"metric": Bare("Hz", 1.0, True), "imperial": Bare("Hz", 1.0, True)},
+    "capacitance_per_length": {"metric": Bare("pF/m", 1e-12), "imperial": Bare("pF/ft", 1e-12 / _FT)},
+    "resistance_per_length": {"metric": Bare("Ω/km", 1e-3), "imperial": Bare("Ω/kft", 1e-3 / _FT)},
+    "plain": {"metric": Bare("", 1.0), "imperial": Bare("", 1.0)},
+}
+
+
+def bare_unit(kind: str, units: UnitSystem, override: Bare | None = None) -> Bare:
+    return override if override is not None else _BARE[kind][units]
+
+
+class QuantityError(ValueError):
+    """Text that is not a number of the expected kind; the message says what is accepted."""
+
+
+def parse_quantity(text: str, kind: str, units: UnitSystem, bare: Bare | None = None) -> float:
+    """SI value of typed text. Raises QuantityError naming the accepted units."""
+    spec = KINDS[kind]
+    unit_of_bare = bare_unit(kind, units, bare)
+    m = _NUMBER.match(text.replace(",", "").replace("\u2009", "").replace("\u00a0", ""))
+    if not m:
+        raise QuantityError(f"'{text}' is not a number")
+    number = float(m.group(1))
+    if m.group(2) is not None:
+        denominator = float(m.group(2))
+        if denominator == 0:
+            raise QuantityError(f"'{text}' divides by zero")
+        number /= denominator
+    token = m.group(3).replace(" ", "")
+    if not math.isfinite(number):
+        raise QuantityError(f"'{text}' is not a finite number")
+    if token == "":
+        return _clean(number * unit_of_bare.factor)
+    factor = spec.tokens.get(token)
+    if factor is None:
+        # Case-insensitive only where unambiguous ("KHZ", "OHM"), never between m and M.
+        matches = {f for t, f in spec.tokens.items() if t.lower() == token.lower()}
+        factor = matches.pop() if len(matches) == 1 else None
+    if factor is None:
+        shown = ", ".join(sorted({t for t in spec.tokens if t}, key=len)[:8])
+        raise QuantityError(f"unit '{token}' is not understood here; write a number, or one of: {shown}")
+    return _clean(number * factor)
+
+
+def _clean(value: float) -> float:
+    """Drop binary noise from unit scaling (4.7 * 1e-9 -> 4.7e-9), keeping 12 significant digits."""
+    return float(f"{value:.12g}")
+
+
+def _number_text(value: float, digits: int = 10) -> str:
+    """Up to 10 significant digits, trailing zeros dropped: round-trips typed values, stays readable."""
+    if value == 0:
+        return "0"
+    text = f"{value:.{digits}g}"
+    if "e" in text:
+        return text
+    return text.rstrip("0").rstrip(".") if "." in text else text
+
+
+_DISPLAY_PREFIXES = ((1e9, "G"), (1e6, "M"), (1e3, "k"), (1.0, ""), (1e-3, "m"), (1e-6, "µ"), (1e-9, "n"), (1e-12, "p"))
+
+
+def format_quantity(
+    value: float | None, kind: str, units: UnitSystem, bare: Bare | None = None, digits: int = 10
+) -> str:
+    """Text for an input from an SI value; "" for None. Prefixed kinds read "4.7 nF", others a bare number."""
+    if value is None:
+        return ""
+    unit_of_bare = bare_unit(kind, units, bare)
+    if not unit_of_bare.prefixed or value == 0:
+        return _number_text(value / unit_of_bare.factor, digits)
+    si_unit = KINDS[kind].si_unit
+    allowed = {"": (1e3, 1e6, 1e9, 1.0), "k": (1e3,), "M": (1e6,)}
+    for scale, prefix in _DISPLAY_PREFIXES:
+        if kind == "rate" and scale not in allowed[""]:
+            continue
+        if kind == "time" and scale > 1.0:
+            continue
+        if abs(value) >= scale * 0.9999999:
+            return f"{_number_text(value / scale, digits)} {prefix}{si_unit}"
+    scale, prefix = _DISPLAY_PREFIXES[-1]
+    return f"{_number_text(value / scale, digits)} {prefix}{si_unit}"
+
+
+def length_in(value_m: float, units: UnitSystem) -> float:
+    """A length in the display unit (m or ft)."""
+    return value_m * FEET_PER_M if units == "imperial" else value_m
+
+
+def length_unit(units: UnitSystem) -> str:
+    return "ft" if units == "imperial" else "m"

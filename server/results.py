@@ -1,0 +1,98 @@
+"""The one place the server calls the engine for results: rule report, receiver metrics, waveforms, curve.
+
+One edge response of the primary driver is solved per view and shared: the metrics of every receiver and the
+pattern waveforms of the one or two receivers the page draws both come from it. Everything returned is plain
+data for `server.views`; nothing here knows about HTTP or templates.
+"""
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from engine.bus import Bus
+from engine.check import PlanReport, check_plan, report_to_dict
+from engine.metrics import ReceiverMetrics, receiver_metrics
+from engine.plan import BusPlan
+from engine.rules.length_rate import (
+    LENGTH_RATE_PRODUCT_M_BPS,
+    LOSS_LIMIT_DB,
+    LOSS_SOURCE,
+    RATE_SOURCE,
+    loss_db,
+    signal_path_m,
+)
+from engine.waveform import DEFAULT_PATTERN_BITS, Waveforms, default_pattern, simulate_pattern, step_responses
+
+__all__ = ["CheckedPlan", "PlanReport", "check_and_simulate", "check_only", "report_to_dict", "worst_receiver"]
+
+
+@dataclass(frozen=True, slots=True)
+class CheckedPlan:
+    report: PlanReport
+    metrics: tuple[ReceiverMetrics, ...]  # every receiver, plan order
+    waveforms: Waveforms | None  # only the receivers drawn: the worst, then the chosen one
+    curve_bit_rate_bps: np.ndarray  # (n_points,)
+    curve_max_length_m: np.ndarray  # (n_points,)
+    curve_plan_length_m: float  # the length the curve is held against: this bus's longest signal path
+    curve_criterion: str
+    curve_source: str
+    simulation_note: str  # why waveforms are missing, when they are
+
+
+def check_only(plan: BusPlan) -> PlanReport:
+    """The rule report alone (for the bill of materials), without simulating."""
+    return check_plan(plan)
+
+
+def worst_receiver(metrics: tuple[ReceiverMetrics, ...]) -> ReceiverMetrics | None:
+    """The receiver whose smallest sampled voltage (on the driven side) is lowest; ties go to the smaller eye."""
+    return min(metrics, key=lambda m: (m.min_sample_v, m.eye_height_v), default=None)
+
+
+def check_and_simulate(plan: BusPlan, chosen_receiver: str | None = None) -> CheckedPlan:
+    """Run every rule, simulate the plan's bit pattern from the primary driver, and sweep length against rate."""
+    report = check_plan(plan)
+    bus: Bus = report.bus
+    bit_time_s = 1.0 / plan.bit_rate_bps
+    drivers = (plan.driver.name,)
+    # The same pattern the engine picks by default (so these figures match the signal findings).
+    if plan.test_pattern:
+        bits = plan.test_pattern
+        step = step_responses(bus, drivers, max_time_s=len(bits) * bit_time_s)
+    else:
+        step = step_responses(bus, drivers, max_time_s=DEFAULT_PATTERN_BITS * bit_time_s)
+        bits = default_pattern(step, bit_time_s)
+    metrics = receiver_metrics(bus, pattern=bits, step=step)
+    worst = worst_receiver(metrics)
+    shown = [] if worst is None else [worst.receiver]
+    if chosen_receiver and chosen_receiver not in shown and any(m.receiver == chosen_receiver for m in metrics):
+        shown.append(chosen_receiver)
+    waveforms = simulate_pattern(bus, bits, receiver_names=tuple(shown), step=step) if shown else None
+    rates_bps, lengths_m = length_rate_limit(bus)
+    return CheckedPlan(
+        report=report,
+        metrics=metrics,
+        waveforms=waveforms,
+        curve_bit_rate_bps=rates_bps,
+        curve_max_length_m=lengths_m,
+        curve_plan_length_m=signal_path_m(bus),
+        curve_criterion=CURVE_CRITERION,
+        curve_source=f"{RATE_SOURCE}; {LOSS_SOURCE}",
+        simulation_note="" if shown else "this bus has no receiver to simulate",
+    )
+
+
+CURVE_RATES_BPS = np.logspace(3.0, 8.0, 61)  # 1 kbit/s to 100 Mbit/s, 12 points per decade
+CURVE_CRITERION = (
+    "longest cable path allowed at each bit rate by the two length rules the report applies: "
+    "length x rate <= 1e8 m·bit/s, and cable loss at f = bit rate <= 9 dB"
+)
+
+
+def length_rate_limit(bus: Bus) -> tuple[np.ndarray, np.ndarray]:
+    """The length-versus-rate limit of this cable, from the rules behind findings "length.rate_rule" and
+    "length.loss": L_max(rate) = min(1e8 / rate, 9 dB / loss per metre at f = rate). Loss is linear in length
+    (engine.rules.length_rate.loss_db), so the loss limit divides out exactly."""
+    per_metre_db = np.array([loss_db(bus, float(f), 1.0) for f in CURVE_RATES_BPS])  # (n_points,)
+    lengths_m = np.minimum(LENGTH_RATE_PRODUCT_M_BPS / CURVE_RATES_BPS, LOSS_LIMIT_DB / per_metre_db)
+    return CURVE_RATES_BPS.copy(), lengths_m

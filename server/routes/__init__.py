@@ -1,0 +1,1 @@
+"""HTTP routes: pages (HTML with JSON twins) and the JSON API."""

@@ -1,0 +1,261 @@
+"""HTML pages, each with a JSON twin at the same path plus ".json" built from the same data dict."""
+
+import csv
+import io
+import json
+from typing import Annotated, Any
+
+from fastapi import APIRouter, Depends, Request
+from fastapi.responses import JSONResponse, RedirectResponse, Response
+
+from engine import ENGINE_VERSION
+from engine.plan import BusInputError, BusPlan, Problem, load_plan, plan_to_dict
+from server.app import render
+from server.errors import not_found
+from server.forms import FormState, form_from_plan, merge_problems, parse_form, with_units
+from server.results import check_and_simulate, check_only
+from server.store import PlanStore, SavedPlan
+from server.views import editor_data, plan_data, start_data
+
+router = APIRouter()
+MAX_FORM_FIELDS = 8000  # 512 node rows of 8 inputs, plus the rest
+
+
+def get_store(request: Request) -> PlanStore:
+    store: PlanStore = request.app.state.store
+    return store
+
+
+StoreDep = Annotated[PlanStore, Depends(get_store)]
+
+
+def page(request: Request, template: str, data: dict[str, Any], as_json: bool, status_code: int = 200) -> Response:
+    if as_json:
+        return JSONResponse(data, status_code=status_code)
+    return render(request, template, data, status_code)
+
+
+def _split(ref: str) -> tuple[str, bool]:
+    return (ref[: -len(".json")], True) if ref.endswith(".json") else (ref, False)
+
+
+# --- start ------------------------------------------------------------------------------------------------
+
+
+@router.get("/")
+@router.get("/index.json")
+@router.get("/.json")
+def start_page(request: Request, store: StoreDep) -> Response:
+    as_json = request.url.path != "/"
+    return page(request, "start.html", start_data(store.samples()), as_json)
+
+
+@router.post("/import")
+async def import_plan(request: Request, store: StoreDep) -> Response:
+    """A plan file uploaded or pasted: validated like any plan, saved, then opened (303 to its URL)."""
+    async with request.form(max_fields=20) as form:
+        upload = form.get("plan_file")
+        pasted = str(form.get("plan_text") or "")
+        text = pasted
+        if upload is not None and not isinstance(upload, str):
+            raw = await upload.read()
+            if raw:
+                text = raw.decode("utf-8", errors="replace")
+    problems: list[Problem] = []
+    try:
+        if not text.strip():
+            raise BusInputError(
+                [Problem("plan_text", "Plan", "", {"type": "JSON object"}, "Choose a plan file or paste its JSON.")]
+            )
+        try:
+            doc = json.loads(text)
+        except json.JSONDecodeError as exc:
+            raise BusInputError(
+                [
+                    Problem(
+                        "plan_text",
+                        "Plan",
+                        text[:80],
+                        {"type": "JSON object"},
+                        f"The plan is not valid JSON (line {exc.lineno}, column {exc.colno}: {exc.msg}).",
+                    )
+                ]
+            ) from exc
+        plan = load_plan(doc)
+    except BusInputError as exc:
+        problems = exc.problems
+    if problems:
+        return render(request, "start.html", start_data(store.samples(), problems, pasted), status_code=422)
+    plan_id = store.save_plan(plan_to_dict(plan), engine_version=ENGINE_VERSION)
+    return RedirectResponse(f"/plans/{plan_id}", status_code=303)
+
+
+# --- editor -----------------------------------------------------------------------------------------------
+
+STARTER_PLAN: dict[str, Any] = {
+    "title": "",
+    "standard": "rs485",
+    "bit_rate_bps": 115_200,
+    "supply_v": 5.0,
+    "trunk_length_m": 100.0,
+    "cable": {"class_key": "pair-24awg-120"},
+    "driver": {"name": "controller", "position_m": 0.0, "stub_length_m": 0.0, "transceiver": "edge-100ns"},
+    "nodes": [],
+    "terminations": [
+        {"position_m": 0.0, "kind": "parallel", "resistance_ohm": 120.0},
+        {"position_m": 100.0, "kind": "parallel", "resistance_ohm": 120.0},
+    ],
+}
+BLANK_NODE_ROWS = 5
+
+
+@router.get("/plans/new")
+@router.get("/plans/new.json")
+def new_plan_page(request: Request, units: str = "metric") -> Response:
+    system = "imperial" if units == "imperial" else "metric"
+    starter = STARTER_PLAN | {"display_units": system}
+    if system == "imperial":  # a round 300 ft trunk rather than 328.08 ft
+        trunk_m = 300 * 0.3048
+        starter["trunk_length_m"] = trunk_m
+        starter["terminations"] = [
+            STARTER_PLAN["terminations"][0],
+            {**STARTER_PLAN["terminations"][1], "position_m": trunk_m},
+        ]
+    state = form_from_plan(starter)
+    state.n_nodes = BLANK_NODE_ROWS
+    data = editor_data(state, title="New bus plan")
+    return page(request, "editor.html", data, request.url.path.endswith(".json"))
+
+
+@router.get("/plans/{ref}/edit")
+@router.get("/plans/{ref}/edit.json")
+def edit_page(request: Request, ref: str, store: StoreDep) -> Response:
+    saved = store.get_plan(ref)
+    if saved is None:
+        return not_found(request)
+    state = form_from_plan(saved.plan, parent_id=saved.id)
+    data = editor_data(state, title=f"Edit a copy of “{saved.title or 'Untitled bus'}”", saved_from=saved)
+    return page(request, "editor.html", data, request.url.path.endswith(".json"))
+
+
+@router.post("/plans")
+async def submit_plan(request: Request, store: StoreDep) -> Response:
+    """The editor's form (or a checked draft's save button). Check renders the report; save answers 303."""
+    async with request.form(max_fields=MAX_FORM_FIELDS) as form:
+        fields = {k: v for k, v in form.items() if isinstance(v, str)}
+    if "plan_json" in fields:
+        return _save_draft(fields, store)
+    parsed = parse_form(fields)
+    state = parsed.state
+    if parsed.action in ("add_node", "add_termination", "units"):
+        if parsed.action == "add_node":
+            state.n_nodes += 1
+        elif parsed.action == "add_termination":
+            state.n_terminations += 1
+        else:
+            state = with_units(state, parsed.doc, parsed.doc["display_units"])
+        state.problems = []
+        return render(request, "editor.html", editor_data(state, title=_editor_title(state)))
+    try:
+        plan: BusPlan | None = load_plan(parsed.doc)
+    except BusInputError as exc:
+        plan = None
+        state.problems = merge_problems(parsed.problems, exc.problems)
+    if plan is None or parsed.problems:
+        return render(request, "editor.html", editor_data(state, title=_editor_title(state)), status_code=422)
+    if parsed.action == "save":
+        plan_id = store.save_plan(plan_to_dict(plan), engine_version=ENGINE_VERSION, parent_id=_parent(store, state))
+        return RedirectResponse(f"/plans/{plan_id}", status_code=303)
+    data = plan_data(check_and_simulate(plan), None)
+    data["draft"] = {"plan_json": json.dumps(plan_to_dict(plan)), "parent_id": _parent(store, state)}
+    return render(request, "plan.html", data)
+
+
+def _editor_title(state: FormState) -> str:
+    return "Edit a copy" if state.parent_id else "New bus plan"
+
+
+def _parent(store: PlanStore, state: FormState) -> str | None:
+    return state.parent_id if state.parent_id and store.get_plan(state.parent_id) else None
+
+
+def _save_draft(fields: dict[str, str], store: PlanStore) -> Response:
+    try:
+        doc = json.loads(fields["plan_json"])
+    except json.JSONDecodeError as exc:
+        raise BusInputError(
+            [Problem("plan_json", "Plan", None, {"type": "JSON object"}, f"The plan is not valid JSON ({exc.msg}).")]
+        ) from exc
+    plan = load_plan(doc)
+    parent = fields.get("parent_id") or None
+    parent = parent if parent and store.get_plan(parent) else None
+    plan_id = store.save_plan(plan_to_dict(plan), engine_version=ENGINE_VERSION, parent_id=parent)
+    return RedirectResponse(f"/plans/{plan_id}", status_code=303)
+
+
+# --- saved plans ------------------------------------------------------------------------------------------
+
+
+def _saved(store: PlanStore, plan_id: str) -> tuple[SavedPlan, BusPlan] | None:
+    saved = store.get_plan(plan_id)
+    if saved is None:
+        return None
+    return saved, load_plan(saved.plan)
+
+
+@router.get("/plans/{ref}")
+def plan_page(request: Request, ref: str, store: StoreDep, receiver: str | None = None) -> Response:
+    plan_id, as_json = _split(ref)
+    saved = store.get_plan(plan_id)
+    if saved is None:
+        return not_found(request)
+    try:
+        plan = load_plan(saved.plan)
+    except BusInputError as exc:
+        # Saved under an older engine that accepted it; show it in the editor with what to change.
+        if as_json:
+            raise
+        state = form_from_plan(saved.plan, parent_id=saved.id)
+        state.problems = exc.problems
+        title = "This saved plan needs changes before the current engine can check it"
+        return render(request, "editor.html", editor_data(state, title=title, saved_from=saved), status_code=422)
+    data = plan_data(check_and_simulate(plan, receiver), saved, receiver)
+    data["children"] = store.children_of(saved.id)
+    return page(request, "plan.html", data, as_json)
+
+
+@router.get("/plans/{ref}/download")
+def download_plan(request: Request, ref: str, store: StoreDep) -> Response:
+    saved = store.get_plan(ref)
+    if saved is None:
+        return not_found(request)
+    body = json.dumps(saved.plan, indent=2, ensure_ascii=False) + "\n"
+    return Response(
+        body,
+        media_type="application/json",
+        headers={"Content-Disposition": f'attachment; filename="{_filename(saved)}.json"'},
+    )
+
+
+@router.get("/plans/{ref}/bom.csv")
+def bill_of_materials(request: Request, ref: str, store: StoreDep) -> Response:
+    found = _saved(store, ref)
+    if found is None:
+        return not_found(request)
+    saved, plan = found
+    report = check_only(plan)
+    out = io.StringIO()
+    writer = csv.writer(out)
+    writer.writerow(["item", "value", "quantity", "rating", "note"])
+    for item in report.summary.bom:
+        writer.writerow([item.item, item.value, item.quantity, item.rating, item.note])
+    return Response(
+        out.getvalue(),
+        media_type="text/csv; charset=utf-8",
+        headers={"Content-Disposition": f'attachment; filename="{_filename(saved)}-bom.csv"'},
+    )
+
+
+def _filename(saved: SavedPlan) -> str:
+    stem = "".join(c if c.isalnum() else "-" for c in saved.title.lower()).strip("-")[:40]
+    return f"{stem or 'bus-plan'}-{saved.id}"

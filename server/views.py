@@ -1,0 +1,401 @@
+"""Page data: one plain dict per page, rendered as HTML by its template or returned as its JSON twin.
+
+`*_data` functions take validated plans and engine results and return JSON-safe dicts (numbers, strings,
+lists). SVG coordinates come from `server.diagram` and `server.plots`; this module only assembles them.
+"""
+
+import math
+from collections.abc import Mapping
+from dataclasses import asdict, fields, is_dataclass
+from enum import Enum
+from typing import Any
+
+import numpy as np
+
+from engine import ENGINE_VERSION
+from engine.findings import Verdict, worst
+from engine.library import CABLES, TRANSCEIVERS
+from engine.plan import BusPlan, Problem, plan_to_dict
+from engine.units import si_format
+from server.diagram import bus_drawing, node_anchor
+from server.forms import BIAS, CABLE, DRIVER, NODE, TERMINATION, TOP, FormState
+from server.plots import curve_plot, eye_plot, waveform_plot
+from server.quantities import UnitSystem, format_quantity, length_in, length_unit
+from server.results import CheckedPlan, report_to_dict, worst_receiver
+from server.store import SampleEntry, SavedPlan
+
+_SEVERITY = {"breaks": 0, "tight": 1, "holds": 2}
+
+
+def json_safe(value: Any) -> Any:
+    """Dataclasses, numpy values and tuples to plain JSON types; NaN and infinities become None."""
+    if isinstance(value, Enum):
+        return value.value
+    if value is None or isinstance(value, str | bool | int):
+        return value
+    if isinstance(value, float):
+        return value if math.isfinite(value) else None
+    if isinstance(value, Mapping):
+        return {str(k): json_safe(v) for k, v in value.items()}
+    if isinstance(value, list | tuple):
+        return [json_safe(v) for v in value]
+    if isinstance(value, np.ndarray):
+        return json_safe(value.tolist())
+    if isinstance(value, np.generic):
+        return json_safe(value.item())
+    if is_dataclass(value) and not isinstance(value, type):
+        return {f.name: json_safe(getattr(value, f.name)) for f in fields(value)}
+    return value
+
+
+def quantity_text(value: float | None, unit: str, units: UnitSystem) -> str:
+    """A result value for reading: lengths in the plan's display unit, others with an SI prefix."""
+    if value is None:
+        return "—"
+    if not math.isfinite(value):
+        return "unlimited" if value > 0 else "—"
+    if unit == "m":
+        return f"{length_in(value, units):.4g} {length_unit(units)}"
+    if unit in ("s", "F", "Hz", "Ω", "bit/s", "W", "A") and value != 0:
+        return si_format(value, unit)
+    if unit == "V" and value != 0 and abs(value) < 1:
+        return f"{value * 1e3:.3g} mV"
+    return f"{value:.4g} {unit}".strip()
+
+
+def problem_message(problem: Problem, units: UnitSystem) -> str:
+    """The engine's message, with feet added for length fields when the plan is shown in imperial units."""
+    allowed = problem.allowed
+    if units == "imperial" and allowed.get("unit") == "m" and isinstance(problem.value, int | float):
+        parts = [f"{length_in(float(problem.value), units):.5g} ft"]
+        if "max" in allowed:
+            parts.append(f"allowed {length_in(allowed.get('min', 0.0), units):.5g} to")
+            parts.append(f"{length_in(allowed['max'], units):.5g} ft")
+        return f"{problem.message} (In feet: {' '.join(parts)}.)"
+    return problem.message
+
+
+SAFETY_CAUTIONS = (
+    (
+        "ground",
+        "Ground offsets",
+        "Nodes powered from different supplies or buildings rarely share one ground. The offset adds to the "
+        "common-mode voltage every receiver must tolerate (−7 V to +12 V for RS-485). Run a signal-ground "
+        "conductor with a series resistor at each node, or isolate the transceivers; never rely on earth alone.",
+    ),
+    (
+        "surge",
+        "Surges on long and outdoor runs",
+        "Cable that runs outdoors, between buildings or beside power wiring collects lightning and switching "
+        "surges. Fit surge protection where the cable enters each building, earth the shield at one point, and "
+        "choose parts tested to the surge, burst and ESD levels of the site.",
+    ),
+    (
+        "isolation",
+        "Isolation",
+        "Where the offset may exceed the common-mode range, or the sites have separate earthing systems, use "
+        "galvanically isolated transceivers and isolated supplies rather than a bare ground wire between sites.",
+    ),
+    (
+        "codes",
+        "Codes and licensed practice",
+        "This plan covers signals only. Follow local electrical codes, and have licensed electricians design and "
+        "inspect anything that connects to mains power, earthing systems or equipment in other buildings.",
+    ),
+)
+
+
+def cautions_data(plan: BusPlan) -> list[dict[str, Any]]:
+    """The standing cautions, each marked `applies` with a reason when something in this plan calls for it."""
+    offsets = [abs(n.ground_offset_v) for n in plan.nodes]
+    largest = max(offsets, default=0.0)
+    reasons = {
+        "ground": f"largest ground offset in this plan: {largest:g} V" if largest > 0 else "",
+        "surge": f"trunk length {plan.trunk_length_m:g} m" if plan.trunk_length_m >= 100 else "",
+        "isolation": f"a node sits {largest:g} V from the driver's ground" if largest >= 7 else "",
+        "codes": "always",
+    }
+    return [
+        {"key": key, "title": title, "text": text, "applies": bool(reasons[key]), "reason": reasons[key]}
+        for key, title, text in SAFETY_CAUTIONS
+    ]
+
+
+def _field_meta(units: UnitSystem) -> dict[str, dict[str, dict[str, Any]]]:
+    groups = {"plan": TOP, "cable": CABLE, "driver": DRIVER, "nodes": NODE, "terminations": TERMINATION}
+    groups["bias"] = BIAS
+    return {
+        name: {
+            s.key: {
+                "label": s.label,
+                "unit": s.unit_label(units),
+                "hint": s.hint,
+                "placeholder": s.placeholder,
+                "choices": [list(c) for c in s.choices],
+            }
+            for s in specs
+        }
+        for name, specs in groups.items()
+    }
+
+
+def _class_defaults(units: UnitSystem) -> dict[str, dict[str, dict[str, str]]]:
+    """Each library class's values as input text, shown as placeholders of the override inputs."""
+    cable_keys = [s for s in CABLE if s.kind]
+    driver_keys = [s for s in DRIVER if s.key in ("rise_time_s", "open_circuit_v", "source_ohm")]
+    return {
+        "cable": {
+            key: {s.key: format_quantity(getattr(c, s.key), s.kind or "plain", units, s.bare, 4) for s in cable_keys}
+            for key, c in CABLES.items()
+        },
+        "driver": {
+            key: {s.key: format_quantity(getattr(t, s.key), s.kind or "plain", units, s.bare, 4) for s in driver_keys}
+            for key, t in TRANSCEIVERS.items()
+        },
+    }
+
+
+def editor_data(state: FormState, *, title: str, saved_from: SavedPlan | None = None) -> dict[str, Any]:
+    """The plan editor: every input's text by dotted path, problems by field, and the field descriptions."""
+    by_field: dict[str, str] = {}
+    general: list[dict[str, Any]] = []
+    for p in state.problems:
+        message = problem_message(p, state.units)
+        if p.field in state.values or p.field.endswith(("class_key", "transceiver")):
+            by_field.setdefault(p.field, message)
+        general.append({"field": p.field, "label": p.label, "message": message, "on_form": p.field in state.values})
+    return {
+        "page": "editor",
+        "title": title,
+        "units": state.units,
+        "chosen_units": state.chosen_units or state.units,
+        "length_unit": length_unit(state.units),
+        "values": state.values,
+        "n_nodes": state.n_nodes,
+        "n_terminations": state.n_terminations,
+        "parent_id": state.parent_id,
+        "saved_from": saved_from.id if saved_from else None,
+        "errors": by_field,
+        "problems": general,
+        "fields": _field_meta(state.units),
+        "class_defaults": _class_defaults(state.units),
+        "cables": {k: json_safe(c) for k, c in CABLES.items()},
+        "transceivers": {k: json_safe(t) for k, t in TRANSCEIVERS.items()},
+        "engine_version": ENGINE_VERSION,
+    }
+
+
+def start_data(samples: list[SampleEntry], problems: list[Problem] | None = None, pasted: str = "") -> dict[str, Any]:
+    return {
+        "page": "start",
+        "title": "Pairline",
+        "samples": [{"slug": s.slug, "title": s.title, "url": f"/plans/{s.plan_id}"} for s in samples],
+        "problems": [{"field": p.field, "label": p.label, "message": p.message} for p in problems or []],
+        "pasted": pasted,
+        "engine_version": ENGINE_VERSION,
+    }
+
+
+def _finding_data(f: Any, index: int, units: UnitSystem, node_anchors: Mapping[str, str]) -> dict[str, Any]:
+    return {
+        "anchor": f"finding-{index + 1}-{f.rule_id}",
+        "rule_id": f.rule_id,
+        "title": f.title,
+        "verdict": f.verdict.value,
+        "value": f.value,
+        "limit": f.limit,
+        "unit": f.unit,
+        "value_text": quantity_text(f.value, f.unit, units),
+        "limit_text": quantity_text(f.limit, f.unit, units),
+        "node": f.node,
+        "node_anchor": node_anchors.get(f.node, "") if f.node else "",
+        "criterion": f.criterion,
+        "source": f.source,
+        "fix": f.fix,
+        "detail": f.detail,
+    }
+
+
+def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: str | None = None) -> dict[str, Any]:
+    """The checked plan: verdicts, findings, per-node table, drawing, waveforms, curve, summary, BOM, cautions."""
+    report = checked.report
+    plan: BusPlan = report.plan
+    units: UnitSystem = plan.display_units
+    anchors = {n.name: node_anchor(i) for i, n in enumerate(plan.nodes)} | {plan.driver.name: "driver"}
+    ordered = sorted(report.findings, key=lambda f: (_SEVERITY[f.verdict.value], f.rule_id))
+    findings = [_finding_data(f, i, units, anchors) for i, f in enumerate(ordered)]
+    per_node: dict[str, list[dict[str, Any]]] = {}
+    for fd in findings:
+        if fd["node"]:
+            per_node.setdefault(fd["node"], []).append(fd)
+    node_verdicts = {name: worst([Verdict(fd["verdict"]) for fd in items]).value for name, items in per_node.items()}
+    metrics = {m.receiver: m for m in checked.metrics}
+    summary = report.summary
+    nodes = [
+        {
+            "index": i,
+            "anchor": node_anchor(i),
+            "name": n.name,
+            "position_text": quantity_text(n.position_m, "m", units),
+            "stub_text": quantity_text(n.stub_length_m, "m", units),
+            "max_stub_text": quantity_text(summary.max_stub_m.get(n.name), "m", units)
+            if n.name in summary.max_stub_m
+            else "—",
+            "unit_loads": n.unit_loads,
+            "role": n.role,
+            "ground_offset_v": n.ground_offset_v,
+            "signal": _signal_data(metrics.get(n.name), units),
+            "verdict": node_verdicts.get(n.name, "holds"),
+            "findings": [
+                {"anchor": fd["anchor"], "rule_id": fd["rule_id"], "verdict": fd["verdict"]}
+                for fd in per_node.get(n.name, [])
+            ],
+        }
+        for i, n in enumerate(plan.nodes)
+    ]
+    counts = {v.value: sum(1 for f in report.findings if f.verdict == v) for v in Verdict}
+    waveforms = _waveforms_data(checked, chosen_receiver)
+    curve = curve_plot(
+        checked.curve_bit_rate_bps, checked.curve_max_length_m, plan.bit_rate_bps, checked.curve_plan_length_m, units
+    )
+    plan_id = saved.id if saved else None
+    data: dict[str, Any] = json_safe(
+        {
+            "page": "plan",
+            "title": plan.title or "Untitled bus",
+            "id": plan_id,
+            "url": f"/plans/{plan_id}" if plan_id else None,
+            "parent_id": saved.parent_id if saved else None,
+            "created_at": saved.created_at if saved else None,
+            "saved_with_engine": saved.engine_version if saved else None,
+            "checked_with_engine": report.engine_version,
+            "units": units,
+            "length_unit": length_unit(units),
+            "verdict": report.verdict.value,
+            "facts": {
+                "standard": "RS-485" if plan.standard == "rs485" else "RS-422",
+                "rate": quantity_text(plan.bit_rate_bps, "bit/s", units),
+                "trunk": quantity_text(plan.trunk_length_m, "m", units),
+            },
+            "counts": counts,
+            "plan": plan_to_dict(plan),
+            "cable_label": report.bus.cable.label,
+            "driver_label": report.bus.driver.label,
+            "findings": findings,
+            "nodes": nodes,
+            "summary": _summary_data(summary, units),
+            "waveforms": waveforms,
+            "curve": {
+                "bit_rate_bps": checked.curve_bit_rate_bps,
+                "max_length_m": checked.curve_max_length_m,
+                "plan_length_m": checked.curve_plan_length_m,
+                "criterion": checked.curve_criterion,
+                "source": checked.curve_source,
+                "svg": curve,
+            },
+            "drawing": bus_drawing(
+                plan, node_verdicts | {plan.driver.name: node_verdicts.get(plan.driver.name, "holds")}, units
+            ),
+            "cautions": cautions_data(plan),
+        }
+    )
+    data["report"] = report_to_dict(report)  # already JSON-safe: the same JSON as `pairline check --json`
+    return data
+
+
+def _signal_data(m: Any, units: UnitSystem) -> dict[str, Any] | None:
+    """One receiver's simulated figures for the node table (None for a node that is not simulated)."""
+    if m is None:
+        return None
+    return {
+        "amplitude_v": m.amplitude_v,
+        "min_sample_v": m.min_sample_v,
+        "eye_height_v": m.eye_height_v,
+        "eye_width_ui": m.eye_width_ui,
+        "overshoot_ratio": m.overshoot_ratio,
+        "threshold_recrossings": m.threshold_recrossings,
+        "sample_errors": m.sample_errors,
+        "propagation_delay_s": m.propagation_delay_s,
+        "amplitude_text": quantity_text(m.amplitude_v, "V", units),
+        "min_sample_text": quantity_text(m.min_sample_v, "V", units),
+        "eye_text": quantity_text(m.eye_height_v, "V", units),
+        "delay_text": quantity_text(m.propagation_delay_s, "s", units),
+        "below_threshold": m.min_sample_v < m.threshold_v,
+    }
+
+
+def _waveforms_data(checked: CheckedPlan, chosen: str | None) -> dict[str, Any]:
+    wf = checked.waveforms
+    worst = worst_receiver(checked.metrics)
+    receivers = [m.receiver for m in checked.metrics]
+    if wf is None or worst is None:
+        return {"available": False, "note": checked.simulation_note, "receivers": receivers}
+    by_name = {m.receiver: m for m in checked.metrics}
+    chosen_name = chosen if chosen in by_name else None
+    plots = []
+    for k, name in enumerate(wf.receiver_names):
+        m = by_name[name]
+        # Each receiver samples mid-bit in its own frame: the pattern's instants shifted by its delay.
+        delay = m.propagation_delay_s if math.isfinite(m.propagation_delay_s) else 0.0
+        samples = np.asarray(wf.sample_times_s, dtype=float) + delay
+        plots.append(
+            {
+                "receiver": name,
+                "role": "worst" if name == worst.receiver else "chosen",
+                "margin_v": m.min_sample_v,
+                "eye_height_v": m.eye_height_v,
+                "delay_text": quantity_text(m.propagation_delay_s, "s", "metric"),
+                "svg": waveform_plot(wf.time_s, wf.v_diff_v[k], samples, name, wf.bit_time_s),
+                "eye": eye_plot(wf.time_s, wf.v_diff_v[k], samples, wf.bit_time_s, name),
+            }
+        )
+    return {
+        "available": True,
+        "bits": wf.bits,
+        "bit_time_s": wf.bit_time_s,
+        "bit_time_text": si_format(wf.bit_time_s, "s"),
+        "receivers": receivers,
+        "worst": worst.receiver,
+        "chosen": chosen_name,
+        "chosen_unknown": chosen if chosen and chosen_name is None else None,
+        "plots": plots,
+        "note": checked.simulation_note,
+    }
+
+
+def _summary_data(summary: Any, units: UnitSystem) -> dict[str, Any]:
+    terminators = [
+        {
+            "position_text": quantity_text(t.position_m, "m", units),
+            "kind": t.kind,
+            "resistance_text": quantity_text(t.resistance_ohm, "Ω", units),
+            "capacitance_text": quantity_text(t.capacitance_f, "F", units) if t.capacitance_f else "",
+            "power_text": quantity_text(t.power_rating_w, "W", units),
+            **asdict(t),
+        }
+        for t in summary.terminators
+    ]
+    bias = None
+    if summary.bias is not None:
+        b = summary.bias
+        bias = {
+            **asdict(b),
+            "position_text": quantity_text(b.position_m, "m", units),
+            "pull_up_text": quantity_text(b.pull_up_ohm, "Ω", units),
+            "pull_down_text": quantity_text(b.pull_down_ohm, "Ω", units),
+            "idle_text": quantity_text(b.idle_v, "V", units),
+            "power_text": quantity_text(b.power_rating_w, "W", units),
+        }
+    return {
+        "terminators": terminators,
+        "bias": bias,
+        "spare_unit_loads": summary.spare_unit_loads,
+        "further_nodes": dict(summary.further_nodes),
+        "max_bit_rate_bps": summary.max_bit_rate_bps,
+        "max_bit_rate_text": quantity_text(summary.max_bit_rate_bps, "bit/s", units),
+        "bom": [asdict(item) for item in summary.bom],
+    }
+
+
+def not_found_data(path: str) -> dict[str, Any]:
+    return {"page": "not_found", "status": 404, "title": "Not found", "path": path}

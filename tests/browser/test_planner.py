@@ -1,0 +1,126 @@
+"""The planner in a real browser: type a bus, check it, break a field, save and share, markup stays text."""
+
+import re
+
+NODES = [
+    ("gate-1", "60", "0.5"),
+    ("gate-2", "140", "1"),
+    ("gate-3", "220", "0.5"),
+    ("gate-4", "300", "2"),
+    ("gate-5", "380", "1"),
+]
+
+
+def fill_five_node_bus(page, base_url, title="Orchard gates"):
+    page.goto(f"{base_url}/plans/new")
+    page.fill("input[name='title']", title)
+    page.fill("input[name='bit_rate_bps']", "19.2k")
+    page.fill("input[name='trunk_length_m']", "400")
+    page.select_option("select[name='driver.transceiver']", "slew-2500ns")
+    page.fill("input[name='terminations.1.position_m']", "400")
+    for i, (name, position, stub) in enumerate(NODES):
+        page.fill(f"input[name='nodes.{i}.name']", name)
+        page.fill(f"input[name='nodes.{i}.position_m']", position)
+        page.fill(f"input[name='nodes.{i}.stub_length_m']", stub)
+
+
+def test_type_a_five_node_bus_and_see_verdicts_and_drawing(page, base_url, artifacts):
+    fill_five_node_bus(page, base_url)
+    page.screenshot(path=str(artifacts / "editor.png"), full_page=True)
+    page.click("#check-button")
+    page.wait_for_selector("#overall-verdict")
+    assert page.get_attribute("#overall-verdict", "data-verdict") in {"holds", "tight", "breaks"}
+    marks = page.locator("svg.bus-svg a.node")
+    assert marks.count() == 5
+    for k in range(5):
+        assert re.search(r"verdict-(holds|tight|breaks)", marks.nth(k).get_attribute("class"))
+    assert page.locator(".finding").count() > 0
+    assert page.locator("table.node-table tbody tr").count() == 5
+    assert page.locator(".plot.waveform polyline.trace").count() >= 1
+    page.screenshot(path=str(artifacts / "checked-plan.png"), full_page=True)
+
+
+def test_a_broken_field_shows_its_message_in_place_and_keeps_the_rest(page, base_url, artifacts):
+    fill_five_node_bus(page, base_url)
+    page.fill("input[name='nodes.2.position_m']", "9000")
+    page.click("#check-button")
+    box = page.locator("input[name='nodes.2.position_m']")
+    box.wait_for()
+    assert box.input_value() == "9000"
+    assert box.get_attribute("aria-invalid") == "true"
+    message = page.locator("#" + re.sub(r"\.", r"\\.", box.get_attribute("aria-describedby")))
+    assert message.is_visible()
+    assert "9000" in message.inner_text()
+    # beside its input: inside the same table cell, just below it
+    assert message.evaluate(
+        "(el) => el.parentElement === document.querySelector(\"[name='nodes.2.position_m']\").parentElement"
+    )
+    assert page.locator("input[name='title']").input_value() == "Orchard gates"
+    assert page.locator("input[name='nodes.4.name']").input_value() == "gate-5"
+    assert page.locator("input[name='bit_rate_bps']").input_value() == "19.2k"
+    page.screenshot(path=str(artifacts / "editor-with-error.png"), full_page=True)
+
+
+def test_save_then_open_the_share_link_in_a_fresh_browser(page, base_url, browser):
+    fill_five_node_bus(page, base_url, title="Shared orchard gates")
+    page.click("#save-button")
+    page.wait_for_selector("#share-url")
+    share = page.locator("#share-url").input_value()
+    assert re.fullmatch(re.escape(base_url) + r"/plans/[A-Za-z0-9_-]{16}", share)
+    first_nodes = page.locator("table.node-table th.node-name").all_inner_texts()
+    fresh = browser.new_context()
+    try:
+        other = fresh.new_page()
+        other.goto(share)
+        assert other.locator("h1").inner_text() == "Shared orchard gates"
+        assert (
+            other.locator("table.node-table th.node-name").all_inner_texts() == first_nodes == [n for n, _, _ in NODES]
+        )
+        assert other.get_attribute("#overall-verdict", "data-verdict") == page.get_attribute(
+            "#overall-verdict", "data-verdict"
+        )
+    finally:
+        fresh.close()
+
+
+def test_a_node_named_with_markup_shows_as_text(page, base_url):
+    evil = "<img src=x onerror=alert(1)>"
+    dialogs = []
+    page.on("dialog", lambda d: (dialogs.append(d.message), d.dismiss()))
+    fill_five_node_bus(page, base_url)
+    page.fill("input[name='nodes.0.name']", evil)
+    page.click("#save-button")
+    page.wait_for_selector("#share-url")
+    assert page.locator("table.node-table th.node-name").first.inner_text() == evil
+    assert page.locator("img[src='x']").count() == 0
+    page.goto(page.url + "/edit")
+    assert page.locator("input[name='nodes.0.name']").input_value() == evil
+    assert dialogs == []
+
+
+def test_rows_are_added_and_removed_in_place_with_javascript(page, base_url):
+    page.goto(f"{base_url}/plans/new")
+    rows = page.locator("#node-rows tbody tr.row")
+    before = rows.count()
+    page.click("button[data-add-row='node-rows']")
+    assert rows.count() == before + 1
+    assert page.url.endswith("/plans/new")  # no round trip
+    page.locator("#node-rows tbody tr.row").last.locator("button.remove-row").click()
+    assert rows.count() == before
+
+
+def test_the_form_works_without_javascript(browser, base_url):
+    context = browser.new_context(java_script_enabled=False)
+    try:
+        page = context.new_page()
+        fill_five_node_bus(page, base_url, title="No script")
+        page.click("button[value='add_node']")  # a server round trip adds the row
+        page.fill("input[name='nodes.5.name']", "gate-6")
+        page.fill("input[name='nodes.5.position_m']", "395")
+        page.check("input[name='nodes.1.remove']")
+        page.click("#check-button")
+        page.wait_for_selector("#overall-verdict")
+        names = page.locator("table.node-table th.node-name").all_inner_texts()
+        assert names == ["gate-1", "gate-3", "gate-4", "gate-5", "gate-6"]
+    finally:
+        context.close()

@@ -1,0 +1,87 @@
+"""Bus drawing coordinates: positions to scale, stubs ordered by length, parts in non-overlapping lanes."""
+
+import pytest
+
+from engine.plan import load_plan
+from server.diagram import CHAR_PX, LEFT_PX, RIGHT_PX, WIDTH_PX, assign_lanes, bus_drawing, x_of
+
+PLAN = {
+    "bit_rate_bps": 9600,
+    "trunk_length_m": 400.0,
+    "driver": {"name": "head", "position_m": 0.0},
+    "nodes": [
+        {"name": "n1", "position_m": 100.0, "stub_length_m": 0.0},
+        {"name": "n2", "position_m": 200.0, "stub_length_m": 2.0},
+        {"name": "a-very-long-node-name-indeed", "position_m": 400.0, "stub_length_m": 8.0},
+    ],
+    "terminations": [{"position_m": 0.0, "resistance_ohm": 120.0}, {"position_m": 400.0, "resistance_ohm": 120.0}],
+    "bias": {"position_m": 0.0, "pull_up_ohm": 620.0, "pull_down_ohm": 620.0},
+}
+
+
+def test_trunk_positions_are_linear_in_metres():
+    drawing = bus_drawing(load_plan(PLAN), {}, "metric")
+    xs = [n.x for n in drawing.nodes]
+    span = WIDTH_PX - LEFT_PX - RIGHT_PX
+    # Source: linear scale by construction: x = left + span * position / length.
+    assert xs == pytest.approx([LEFT_PX + span / 4, LEFT_PX + span / 2, LEFT_PX + span], abs=1e-9)
+    assert drawing.trunk_x0 == LEFT_PX and drawing.trunk_x1 == WIDTH_PX - RIGHT_PX
+    assert x_of(0.0, 400.0) == LEFT_PX
+
+
+def test_stub_lengths_are_drawn_in_proportion():
+    drawing = bus_drawing(load_plan(PLAN), {}, "metric")
+    lengths = [n.stub_bottom_y - n.stub_top_y for n in drawing.nodes]
+    assert lengths[0] < lengths[1] < lengths[2]
+    # The drawn part beyond the fixed minimum is proportional to the stub: 2 m vs 8 m -> 1 : 4.
+    base = lengths[0]
+    assert (lengths[2] - base) / (lengths[1] - base) == pytest.approx(4.0, rel=1e-9)
+    assert "×" in drawing.caption  # 8 m stubs on a 400 m trunk need their own scale, and say so
+
+
+def test_each_node_carries_its_verdict_and_a_shortened_label():
+    drawing = bus_drawing(load_plan(PLAN), {"n2": "breaks", "n1": "tight"}, "metric")
+    assert [n.verdict for n in drawing.nodes] == ["tight", "breaks", "unchecked"]
+    long_one = drawing.nodes[2]
+    assert long_one.name == "a-very-long-node-name-indeed" and len(long_one.label) <= 16
+
+
+def test_parts_at_the_same_place_take_different_lanes():
+    drawing = bus_drawing(load_plan(PLAN), {}, "metric")
+    at_zero = [drawing.driver.stub_top_y, drawing.terminators[0].y, drawing.bias.y]
+    assert len(set(at_zero)) == 3
+    lanes = assign_lanes([(0.0, 50.0), (10.0, 50.0), (100.0, 5 * CHAR_PX)])
+    assert lanes[0] != lanes[1] and lanes[2] == 0
+
+
+def test_ruler_ticks_are_in_the_plans_display_unit():
+    metric = bus_drawing(load_plan(PLAN), {}, "metric")
+    imperial = bus_drawing(load_plan(PLAN | {"display_units": "imperial"}), {}, "imperial")
+    assert metric.ticks[-1].label == "400"
+    # Source: 400 m = 1312.34 ft (1 ft = 0.3048 m); the ruler stops at the last round tick under it.
+    assert float(imperial.ticks[-1].label) <= 1312.34 and float(imperial.ticks[-1].label) >= 1000
+
+
+def test_crowded_labels_are_thinned_but_nodes_that_do_not_hold_keep_theirs():
+    crowded = PLAN | {
+        "nodes": [{"name": f"p{k}", "position_m": 4.0 * k + 2.0} for k in range(100)],
+    }
+    verdicts = {"p51": "breaks"}
+    drawing = bus_drawing(load_plan(crowded), verdicts, "metric")
+    shown = [n for n in drawing.nodes if n.show_label]
+    assert len(drawing.nodes) == 100 and 0 < len(shown) < 100
+    assert drawing.nodes[51].show_label
+    xs = sorted(n.x for n in shown)
+    assert min(b - a for a, b in zip(xs, xs[1:], strict=False)) >= 16.0
+    assert "left out" in drawing.caption
+
+
+def test_part_labels_near_the_right_edge_run_leftwards():
+    terminations = [
+        {"position_m": 0.0, "resistance_ohm": 120.0, "kind": "rc", "capacitance_f": 4.7e-9},
+        {"position_m": 400.0, "resistance_ohm": 120.0, "kind": "rc", "capacitance_f": 4.7e-9},
+    ]
+    drawing = bus_drawing(load_plan(PLAN | {"terminations": terminations}), {}, "metric")
+    left, right = drawing.terminators
+    assert left.text_anchor == "start" and left.text_x > left.x
+    assert right.text_anchor == "end" and right.text_x < right.x

@@ -1,0 +1,112 @@
+"""Form fields <-> plan document: names are the plan's dotted paths; rows renumber; units convert."""
+
+import pytest
+
+from engine.plan import BusInputError, load_plan, plan_to_dict
+from server.forms import form_from_plan, merge_problems, parse_form, spec_for, with_units
+
+PLAN = {
+    "title": "Pump gallery",
+    "standard": "rs485",
+    "bit_rate_bps": 115_200,
+    "trunk_length_m": 300.0,
+    "display_units": "metric",
+    "nodes": [
+        {"name": "pump-1", "position_m": 100.0, "stub_length_m": 1.5, "unit_loads": 0.125},
+        {"name": "pump-2", "position_m": 300.0, "role": "transceiver", "ground_offset_v": -2.0},
+    ],
+    "terminations": [
+        {"position_m": 0.0, "resistance_ohm": 120.0},
+        {"position_m": 300.0, "kind": "rc", "resistance_ohm": 120.0, "capacitance_f": 4.7e-9},
+    ],
+    "bias": {"position_m": 0.0, "pull_up_ohm": 620.0, "pull_down_ohm": 620.0},
+}
+
+
+def _form(state, **extra):
+    fields = dict(state.values)
+    fields["shown_units"] = state.units
+    fields["display_units"] = state.units
+    fields.update(extra)
+    return fields
+
+
+@pytest.mark.parametrize("units", ["metric", "imperial"])
+def test_a_plan_survives_the_form_in_either_unit_system(units):
+    plan = load_plan(PLAN | {"display_units": units})
+    state = form_from_plan(plan_to_dict(plan))
+    assert state.units == units
+    parsed = parse_form(_form(state))
+    assert parsed.problems == []
+    again = load_plan(parsed.doc)
+    original, back = plan_to_dict(plan), plan_to_dict(again)
+    # Source: 1 ft = 0.3048 m exactly; ten significant digits in the input keep lengths within 1e-9 relative.
+    assert back["nodes"][0]["position_m"] == pytest.approx(original["nodes"][0]["position_m"], rel=1e-9)
+    assert back["terminations"][1]["capacitance_f"] == pytest.approx(4.7e-9, rel=1e-12)
+    assert back["nodes"][0]["unit_loads"] == 0.125
+    assert back["nodes"][1]["role"] == "transceiver"
+    assert back["bias"]["pull_up_ohm"] == 620.0
+    assert back["display_units"] == units
+
+
+def test_input_names_are_the_plan_paths():
+    state = form_from_plan(PLAN)
+    assert state.values["nodes.1.name"] == "pump-2"
+    assert state.values["terminations.1.capacitance_f"] == "4.7 nF"
+    assert state.values["bit_rate_bps"] == "115.2 kbit/s"
+    assert spec_for("nodes.1.stub_length_m").kind == "length"
+    assert spec_for("cable.z0_ohm").kind == "resistance"
+    assert spec_for("nodes.1.nonsense") is None
+
+
+def test_rows_with_gaps_blank_and_removed_rows_are_renumbered():
+    fields = {
+        "trunk_length_m": "100",
+        "bit_rate_bps": "9600",
+        "nodes.0.name": "a",
+        "nodes.0.position_m": "10",
+        "nodes.2.name": "",  # blank row: dropped
+        "nodes.2.role": "receiver",
+        "nodes.5.name": "gone",
+        "nodes.5.position_m": "20",
+        "nodes.5.remove": "1",
+        "nodes.9.name": "c",
+        "nodes.9.position_m": "30",
+    }
+    parsed = parse_form(fields)
+    assert [n["name"] for n in parsed.doc["nodes"]] == ["a", "c"]
+    assert parsed.state.values["nodes.1.name"] == "c"
+    assert parsed.state.n_nodes == 2
+
+
+def test_unreadable_text_is_a_problem_on_its_field_and_kept_for_the_form():
+    fields = {"trunk_length_m": "long", "bit_rate_bps": "9600", "nodes.0.name": "a", "nodes.0.position_m": "5 parsecs"}
+    parsed = parse_form(fields)
+    by_field = {p.field: p for p in parsed.problems}
+    assert set(by_field) == {"trunk_length_m", "nodes.0.position_m"}
+    assert by_field["trunk_length_m"].value == "long"
+    assert "long" in by_field["trunk_length_m"].message and "m" in by_field["trunk_length_m"].allowed["unit"]
+    assert parsed.state.values["nodes.0.position_m"] == "5 parsecs"
+    with pytest.raises(BusInputError) as err:
+        load_plan(parsed.doc)
+    merged = merge_problems(parsed.problems, err.value.problems)
+    assert [p.field for p in merged].count("trunk_length_m") == 1
+
+
+def test_bias_is_present_only_when_a_resistor_is_typed():
+    assert parse_form({"bias.position_m": "0"}).doc["bias"] is None
+    assert parse_form({"bias.pull_up_ohm": "1k", "bias.pull_down_ohm": "1k"}).doc["bias"]["pull_up_ohm"] == 1000.0
+
+
+def test_empty_class_select_means_custom_values():
+    doc = parse_form({"cable.class_key": "", "driver.transceiver": ""}).doc
+    assert doc["cable"]["class_key"] is None and doc["driver"]["transceiver"] is None
+
+
+def test_switching_units_converts_what_parsed_and_keeps_what_did_not():
+    parsed = parse_form({"trunk_length_m": "300", "nodes.0.name": "a", "nodes.0.position_m": "oops"})
+    shown = with_units(parsed.state, parsed.doc, "imperial")
+    # Source: 1 ft = 0.3048 m exactly -> 300 m = 984.2519685 ft.
+    assert float(shown.values["trunk_length_m"]) == pytest.approx(984.2519685, rel=1e-9)
+    assert shown.values["nodes.0.position_m"] == "oops"
+    assert shown.units == "imperial"

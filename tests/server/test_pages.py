@@ -1,0 +1,379 @@
+"""HTTP tests: every route, the JSON twins, the error envelope, and save -> open -> copy -> edit -> save."""
+
+import json
+import re
+
+import pytest
+
+from server.app import create_app
+from tests.server.conftest import TestClient
+from tests.server.html_dom import parse_html
+
+FIVE_NODE_FORM = {
+    "shown_units": "metric",
+    "display_units": "metric",
+    "title": "Irrigation row 7",
+    "standard": "rs485",
+    "bit_rate_bps": "19.2k",
+    "supply_v": "5",
+    "trunk_length_m": "400",
+    "cable.class_key": "pair-24awg-120",
+    "driver.name": "controller",
+    "driver.position_m": "0",
+    "driver.transceiver": "slew-2500ns",
+    **{f"nodes.{i}.name": f"valve-{i + 1}" for i in range(5)},
+    **{f"nodes.{i}.position_m": str(80 * (i + 1)) for i in range(5)},
+    **{f"nodes.{i}.stub_length_m": "1" for i in range(5)},
+    **{f"nodes.{i}.role": "receiver" for i in range(5)},
+    "terminations.0.position_m": "0",
+    "terminations.0.kind": "parallel",
+    "terminations.0.resistance_ohm": "120",
+    "terminations.1.position_m": "400",
+    "terminations.1.kind": "parallel",
+    "terminations.1.resistance_ohm": "120",
+    "bias.position_m": "0",
+    "bias.pull_up_ohm": "620",
+    "bias.pull_down_ohm": "620",
+}
+PLAN_DOC = {
+    "title": "Bench bus",
+    "bit_rate_bps": 9600,
+    "trunk_length_m": 100.0,
+    "nodes": [{"name": "left", "position_m": 50.0}, {"name": "right", "position_m": 100.0}],
+    "terminations": [{"position_m": 0.0, "resistance_ohm": 120.0}, {"position_m": 100.0, "resistance_ohm": 120.0}],
+}
+
+
+def assert_problem(resp, *, field: str) -> dict:
+    """The 422 envelope names `field` with its value, allowed range and a message; returns that problem."""
+    assert resp.status_code == 422
+    body = resp.json()
+    assert body["status"] == 422
+    found = [p for p in body["problems"] if p["field"] == field]
+    assert found, f"no problem for {field}: {body['problems']}"
+    problem = found[0]
+    assert set(problem) == {"field", "label", "value", "allowed", "message"}
+    assert problem["message"]
+    return problem
+
+
+@pytest.fixture(scope="module")
+def samples_dir(tmp_path_factory):
+    directory = tmp_path_factory.mktemp("samples")
+    (directory / "bench-bus.json").write_text(json.dumps(PLAN_DOC))
+    (directory / "broken.json").write_text("{not json")
+    return directory
+
+
+@pytest.fixture(scope="module")
+def client(tmp_path_factory, samples_dir):
+    app = create_app(tmp_path_factory.mktemp("db") / "plans.db", samples_dir=samples_dir)
+    with TestClient(app) as c:
+        yield c
+
+
+@pytest.fixture(scope="module")
+def saved_id(client):
+    resp = client.post("/plans", data=FIVE_NODE_FORM | {"action": "save"}, follow_redirects=False)
+    assert resp.status_code == 303
+    return resp.headers["location"].rsplit("/", 1)[1]
+
+
+def test_start_page_offers_new_samples_and_import(client):
+    resp = client.get("/")
+    assert resp.status_code == 200
+    dom = parse_html(resp.text)
+    links = [a.attrs["href"] for a in dom.find_all("a")]
+    assert "/plans/new" in links and "/plans/new?units=imperial" in links
+    samples = client.get("/index.json").json()["samples"]
+    assert [s["slug"] for s in samples] == ["bench-bus"]  # the broken file is skipped, not fatal
+    assert samples[0]["url"] in links
+    assert client.get(samples[0]["url"]).status_code == 200
+    assert dom.find("form", action="/import") is not None
+
+
+def test_new_plan_editor_has_inputs_named_by_plan_path(client):
+    dom = parse_html(client.get("/plans/new").text)
+    names = {e.attrs.get("name") for e in dom.find_all("input")} | {e.attrs.get("name") for e in dom.find_all("select")}
+    for name in (
+        "bit_rate_bps",
+        "trunk_length_m",
+        "cable.z0_ohm",
+        "driver.rise_time_s",
+        "nodes.0.stub_length_m",
+        "nodes.4.ground_offset_v",
+        "terminations.1.resistance_ohm",
+        "bias.pull_up_ohm",
+        "display_units",
+    ):
+        assert name in names
+    imperial = client.get("/plans/new.json?units=imperial").json()
+    assert imperial["units"] == "imperial" and imperial["fields"]["nodes"]["position_m"]["unit"] == "ft"
+
+
+def test_checking_a_form_renders_the_report_without_saving(client):
+    resp = client.post("/plans", data=FIVE_NODE_FORM | {"action": "check"})
+    assert resp.status_code == 200
+    dom = parse_html(resp.text)
+    assert dom.by_id("overall-verdict").attrs["data-verdict"] in {"holds", "tight", "breaks"}
+    assert dom.find("svg", class_="bus-svg") is not None
+    assert len(dom.find_all("a", class_=None)) > 0
+    save_form = dom.find("input", name="plan_json")
+    assert save_form is not None
+    saved = client.post("/plans", data={"plan_json": save_form.attrs["value"]}, follow_redirects=False)
+    assert saved.status_code == 303 and saved.headers["location"].startswith("/plans/")
+
+
+def test_checked_plan_page_shows_drawing_findings_nodes_waves_curve_summary_and_cautions(client, saved_id):
+    resp = client.get(f"/plans/{saved_id}")
+    assert resp.status_code == 200
+    dom = parse_html(resp.text)
+    for section in ("h-drawing", "h-findings", "h-nodes", "h-waves", "h-curve", "h-summary", "h-safety"):
+        assert dom.by_id(section) is not None, section
+    node_marks = [g for g in dom.find_all("a") if "node" in g.attrs.get("class", "").split()]
+    assert len(node_marks) == 5
+    assert all(re.search(r"verdict-(holds|tight|breaks)", g.attrs["class"]) for g in node_marks)
+    assert [dom.by_id(f"node-{i}") is not None for i in range(1, 6)] == [True] * 5
+    assert dom.find("polyline", class_="trace") is not None
+    assert dom.find("rect", class_="band") is not None
+    assert dom.find("circle", class_="plan-point inside") or dom.find("circle", class_="plan-point outside")
+    assert dom.by_id("caution-surge") is not None and "codes" in resp.text
+    assert dom.find("link", rel="stylesheet", media="print") is not None
+
+
+def test_chosen_receiver_adds_its_waveform(client, saved_id):
+    data = client.get(f"/plans/{saved_id}.json?receiver=valve-2").json()
+    roles = {p["receiver"]: p["role"] for p in data["waveforms"]["plots"]}
+    assert data["waveforms"]["worst"] in roles
+    if data["waveforms"]["worst"] != "valve-2":
+        assert roles["valve-2"] == "chosen"
+    unknown = client.get(f"/plans/{saved_id}.json?receiver=nobody").json()
+    assert unknown["waveforms"]["chosen_unknown"] == "nobody"
+
+
+@pytest.mark.parametrize("path", ["/", "/plans/new", "/plans/{id}", "/plans/{id}/edit"])
+def test_every_page_has_a_json_twin(client, saved_id, path):
+    url = path.format(id=saved_id)
+    html = client.get(url)
+    assert html.status_code == 200 and html.headers["content-type"].startswith("text/html")
+    twin_href = parse_html(html.text).find("link", rel="alternate").attrs["href"]
+    assert twin_href == (url + ".json" if url != "/" else "/index.json")
+    twin = client.get(twin_href)
+    assert twin.status_code == 200 and twin.headers["content-type"].startswith("application/json")
+    assert twin.json()["page"] in {"start", "editor", "plan"}
+
+
+def test_form_with_bad_values_comes_back_422_with_values_kept_and_messages_in_place(client):
+    bad = FIVE_NODE_FORM | {"nodes.2.position_m": "9000", "bit_rate_bps": "fast", "title": "Kept <title>"}
+    resp = client.post("/plans", data=bad | {"action": "check"})
+    assert resp.status_code == 422
+    dom = parse_html(resp.text)
+    for name, typed in (("nodes.2.position_m", "9000"), ("bit_rate_bps", "fast")):
+        box = dom.find("input", name=name)
+        assert box.attrs["value"] == typed and box.attrs.get("aria-invalid") == "true"
+        message = dom.by_id(box.attrs["aria-describedby"])
+        assert box.parent is message.parent  # the message sits beside its input
+        assert typed in message.text()
+    assert "4000" in dom.by_id("e-nodes.2.position_m").text()  # the allowed range is named
+    assert dom.find("input", name="title").attrs["value"] == "Kept <title>"
+    assert dom.find("input", name="nodes.4.name").attrs["value"] == "valve-5"
+    assert dom.find("input", name="driver.name").attrs["value"] == "controller"
+
+
+def test_json_api_checks_saves_and_reads_plans(client):
+    checked = client.post("/api/check", json=PLAN_DOC)
+    assert checked.status_code == 200 and checked.json()["id"] is None
+    saved = client.post("/api/plans", json=PLAN_DOC)
+    assert saved.status_code == 201
+    plan_id = saved.json()["id"]
+    assert saved.headers["location"] == f"/plans/{plan_id}"
+    read = client.get(f"/api/plans/{plan_id}").json()
+    assert read["plan"]["title"] == "Bench bus" and read["parent_id"] is None
+    child = client.post(f"/api/plans?parent={plan_id}", json=PLAN_DOC | {"title": "Bench bus 2"}).json()
+    assert child["parent_id"] == plan_id
+    assert client.get("/api/plans/doesnotexist0000").status_code == 404
+
+
+def test_json_api_errors_use_one_envelope(client):
+    problem = assert_problem(
+        client.post("/api/check", json=PLAN_DOC | {"trunk_length_m": 5000}), field="trunk_length_m"
+    )
+    assert problem["value"] == 5000 and problem["allowed"]["max"] == 4000.0
+    nodes = [{"name": "left", "position_m": 150.0}]
+    assert_problem(client.post("/api/plans", json=PLAN_DOC | {"nodes": nodes}), field="nodes.0.position_m")
+    assert_problem(client.post("/api/check", content=b"{nope", headers={"content-type": "application/json"}), field="")
+    assert_problem(client.post("/api/check", content=b'{"trunk_length_m": NaN}'), field="")
+    overflow = assert_problem(
+        client.post("/api/check", content=b'{"trunk_length_m": 1e999, "bit_rate_bps": 9600}'), field="trunk_length_m"
+    )
+    assert overflow["value"] is None and "finite" in overflow["message"]
+
+
+def test_save_open_copy_edit_save_keeps_the_original(client, saved_id):
+    original = client.get(f"/plans/{saved_id}.json").json()
+    edit = parse_html(client.get(f"/plans/{saved_id}/edit").text)
+    assert edit.find("input", name="parent_id").attrs["value"] == saved_id
+    fields = {e.attrs["name"]: e.attrs.get("value", "") for e in edit.find_all("input") if "name" in e.attrs}
+    fields = {k: v for k, v in fields.items() if "__i__" not in k and not k.endswith(".remove")}
+    for select in edit.find_all("select"):
+        if "__i__" in select.attrs["name"]:
+            continue
+        chosen = select.find("option", selected="") or select.find("option")
+        fields[select.attrs["name"]] = chosen.attrs["value"]
+    fields["display_units"] = "metric"
+    fields["title"] = "Irrigation row 7, valve 5 moved"
+    fields["nodes.4.position_m"] = "390"
+    resp = client.post("/plans", data=fields | {"action": "save"}, follow_redirects=False)
+    assert resp.status_code == 303
+    copy_id = resp.headers["location"].rsplit("/", 1)[1]
+    assert copy_id != saved_id
+    copy = client.get(f"/plans/{copy_id}.json").json()
+    assert copy["parent_id"] == saved_id
+    assert copy["plan"]["nodes"][4]["position_m"] == 390.0
+    assert copy["plan"]["nodes"][0] == original["plan"]["nodes"][0]
+    again = client.get(f"/plans/{saved_id}.json").json()
+    assert again["plan"] == original["plan"]  # the shared plan never changes
+    assert copy_id in again["children"]
+    page = parse_html(client.get(f"/plans/{copy_id}").text)
+    assert any(a.attrs.get("href") == f"/plans/{saved_id}" for a in page.find_all("a"))
+
+
+def test_unknown_ids_and_paths_get_the_404_page(client):
+    for path in ("/plans/AAAAAAAAAAAAAAAA", "/plans/short", "/plans/AAAAAAAAAAAAAAAA/edit", "/nowhere"):
+        resp = client.get(path)
+        assert resp.status_code == 404 and "text/html" in resp.headers["content-type"]
+        assert "Nothing here" in resp.text
+    resp = client.get("/plans/AAAAAAAAAAAAAAAA.json")
+    assert resp.status_code == 404 and resp.json()["status"] == 404
+    assert client.get("/plans/AAAAAAAAAAAAAAAA/bom.csv").status_code == 404
+    assert client.get("/plans/AAAAAAAAAAAAAAAA/download").status_code == 404
+
+
+def test_oversized_bodies_are_refused(client, tmp_path):
+    small = create_app(tmp_path / "small.db", load_samples=False, max_body_bytes=1000)
+    with TestClient(small) as c:
+        resp = c.post("/api/check", content=b"x" * 5000, headers={"content-type": "application/json"})
+        assert resp.status_code == 413 and resp.json()["status"] == 413
+
+        def chunks():
+            for _ in range(10):
+                yield b"y" * 500
+
+        streamed = c.post("/api/check", content=chunks(), headers={"content-type": "application/json"})
+        assert streamed.status_code == 413
+        page = c.post("/import", data={"plan_text": "z" * 5000}, headers={"accept": "text/html"})
+        assert page.status_code == 413 and "text/html" in page.headers["content-type"]
+
+
+def test_markup_in_names_is_shown_as_text(client):
+    evil = "<img src=x onerror=alert(1)>"
+    form = FIVE_NODE_FORM | {"nodes.0.name": evil, "title": "<script>alert(2)</script>"}
+    resp = client.post("/plans", data=form | {"action": "save"})
+    assert resp.status_code == 200
+    for text in (resp.text, client.post("/plans", data=form | {"action": "check"}).text):
+        assert "<img src=x" not in text and "<script>alert(2)" not in text
+        assert "&lt;img src=x onerror=alert(1)&gt;" in text
+    name_cell = parse_html(resp.text).find("th", class_="node-name")
+    assert name_cell.text() == evil
+
+
+def test_import_by_upload_and_paste_and_refusal_with_reasons(client):
+    body = json.dumps(PLAN_DOC)
+    uploaded = client.post(
+        "/import", files={"plan_file": ("bench.json", body, "application/json")}, follow_redirects=False
+    )
+    assert uploaded.status_code == 303
+    pasted = client.post("/import", data={"plan_text": body}, follow_redirects=False)
+    assert pasted.status_code == 303 and pasted.headers["location"] != uploaded.headers["location"]
+    broken = client.post("/import", data={"plan_text": '{"trunk_length_m": -1}'})
+    assert broken.status_code == 422
+    assert "trunk_length_m" in broken.text and "Trunk length" in broken.text
+    assert parse_html(broken.text).find("textarea", name="plan_text").text() == '{"trunk_length_m": -1}'
+    not_json = client.post("/import", data={"plan_text": "hello"})
+    assert not_json.status_code == 422 and "not valid JSON" in not_json.text
+
+
+def test_downloads_plan_json_and_bill_of_materials_csv(client, saved_id):
+    plan = client.get(f"/plans/{saved_id}/download")
+    assert plan.status_code == 200 and "attachment" in plan.headers["content-disposition"]
+    assert json.loads(plan.text)["title"] == "Irrigation row 7"
+    csv_resp = client.get(f"/plans/{saved_id}/bom.csv")
+    assert csv_resp.status_code == 200 and csv_resp.headers["content-type"].startswith("text/csv")
+    lines = csv_resp.text.strip().splitlines()
+    assert lines[0] == "item,value,quantity,rating,note" and len(lines) >= 2
+
+
+def test_editor_buttons_add_rows_and_switch_units_without_javascript(client):
+    resp = client.post("/plans", data=FIVE_NODE_FORM | {"action": "add_node"})
+    assert resp.status_code == 200
+    dom = parse_html(resp.text)
+    assert dom.find("input", name="nodes.5.name") is not None
+    assert dom.find("input", name="nodes.4.name").attrs["value"] == "valve-5"
+    resp = client.post("/plans", data=FIVE_NODE_FORM | {"action": "units", "display_units": "imperial"})
+    dom = parse_html(resp.text)
+    # Source: 1 ft = 0.3048 m exactly -> 400 m = 1312.335958 ft.
+    assert float(dom.find("input", name="trunk_length_m").attrs["value"]) == pytest.approx(1312.335958, rel=1e-9)
+    assert dom.find("input", name="shown_units").attrs["value"] == "imperial"
+
+
+def test_a_failing_bus_is_a_page_not_an_error(client):
+    form = FIVE_NODE_FORM | {"nodes.0.stub_length_m": "60", "driver.transceiver": "edge-3ns"}
+    resp = client.post("/plans", data=form | {"action": "check"})
+    assert resp.status_code == 200
+    dom = parse_html(resp.text)
+    assert dom.by_id("overall-verdict").attrs["data-verdict"] == "breaks"
+    fixes = [p.text() for p in dom.find_all("p", class_="fix")]
+    assert fixes
+
+
+def test_a_saved_plan_the_engine_now_refuses_opens_in_the_editor_with_reasons(client):
+    store = client.app.state.store
+    plan_id = store.save_plan(PLAN_DOC | {"trunk_length_m": 99_999.0}, engine_version="0.0.1")
+    resp = client.get(f"/plans/{plan_id}")
+    assert resp.status_code == 422
+    dom = parse_html(resp.text)
+    assert dom.find("input", name="trunk_length_m").attrs["aria-invalid"] == "true"
+    assert dom.find("input", name="parent_id").attrs["value"] == plan_id
+    assert_problem(client.get(f"/plans/{plan_id}.json"), field="trunk_length_m")
+
+
+def test_imperial_plans_take_feet_and_explain_limits_in_feet(client):
+    form = FIVE_NODE_FORM | {"shown_units": "imperial", "display_units": "imperial", "trunk_length_m": "1312.34"}
+    form |= {f"nodes.{i}.position_m": str(250 * (i + 1)) for i in range(5)}
+    form["terminations.1.position_m"] = "1312.34"
+    resp = client.post("/plans", data=form | {"action": "save"}, follow_redirects=False)
+    assert resp.status_code == 303
+    data = client.get(resp.headers["location"] + ".json").json()
+    # Source: 1 ft = 0.3048 m exactly: 1312.34 ft = 400.001 m; 250 ft = 76.2 m.
+    assert data["plan"]["trunk_length_m"] == pytest.approx(400.001, abs=1e-3)
+    assert data["plan"]["nodes"][0]["position_m"] == pytest.approx(76.2, rel=1e-12)
+    assert data["units"] == "imperial" and data["facts"]["trunk"].endswith("ft")
+    too_long = client.post("/plans", data=form | {"trunk_length_m": "20000", "action": "check"})
+    message = parse_html(too_long.text).by_id("e-trunk_length_m").text()
+    # Source: the plan's 4000 m limit is 13123.36 ft (4000 / 0.3048).
+    assert "20000 ft" in message and "13123 ft" in message
+
+
+def test_the_plan_twin_carries_the_same_report_as_the_command_line(client, saved_id):
+    from engine.check import check_plan, report_to_dict
+    from engine.plan import load_plan
+
+    data = client.get(f"/plans/{saved_id}.json").json()
+    expected = json.loads(json.dumps(report_to_dict(check_plan(load_plan(data["plan"])))))
+    assert data["report"] == expected
+    assert data["checked_with_engine"] == expected["engine_version"]
+
+
+def test_root_twin_and_static_files_are_served(client):
+    assert client.get("/.json").json() == client.get("/index.json").json()
+    for asset, kind in (("pairline.css", "text/css"), ("print.css", "text/css"), ("editor.js", "javascript")):
+        resp = client.get(f"/static/{asset}")
+        assert resp.status_code == 200 and kind in resp.headers["content-type"]
+    assert client.get("/static/nothing.css").status_code == 404
+
+
+def test_blank_node_cells_show_what_blank_means(client):
+    dom = parse_html(client.get("/plans/new").text)
+    assert dom.find("input", name="nodes.0.unit_loads").attrs["placeholder"] == "1"
+    assert dom.find("input", name="nodes.0.input_capacitance_f").attrs["placeholder"] == "20 pF"
+    assert dom.find("input", name="cable.z0_ohm").attrs["placeholder"] == "120 Ω"

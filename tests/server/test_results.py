@@ -1,0 +1,56 @@
+"""What the server asks of the engine for a view: metrics for every receiver, waveforms for the drawn ones,
+and the length-versus-rate limit behind the curve."""
+
+import math
+
+import pytest
+
+from engine.bus import build_bus
+from engine.plan import load_plan
+from server.results import check_and_simulate, length_rate_limit, worst_receiver
+
+PLAN = {
+    "bit_rate_bps": 19_200,
+    "trunk_length_m": 300.0,
+    "driver": {"name": "head", "transceiver": "slew-2500ns"},
+    "nodes": [{"name": f"rx-{k}", "position_m": 60.0 * (k + 1), "stub_length_m": 0.5} for k in range(5)],
+    "terminations": [{"position_m": 0.0, "resistance_ohm": 120.0}, {"position_m": 300.0, "resistance_ohm": 120.0}],
+    "test_pattern": "0101100111010001",
+}
+
+
+def test_metrics_cover_every_receiver_and_waveforms_only_the_drawn_ones():
+    checked = check_and_simulate(load_plan(PLAN), chosen_receiver="rx-0")
+    assert [m.receiver for m in checked.metrics] == [f"rx-{k}" for k in range(5)]
+    worst = worst_receiver(checked.metrics)
+    assert checked.waveforms.receiver_names[0] == worst.receiver
+    assert set(checked.waveforms.receiver_names) == {worst.receiver, "rx-0"}
+    assert checked.waveforms.bits == PLAN["test_pattern"]
+    assert all(m.min_sample_v >= worst.min_sample_v for m in checked.metrics)
+
+
+def test_rate_rule_bounds_the_curve_at_high_rates():
+    rates, lengths = length_rate_limit(build_bus(load_plan(PLAN)))
+    at = {round(r): L for r, L in zip(rates, lengths, strict=True)}
+    # Source: common practice, length (m) x rate (bit/s) <= 1e8: 1 Mbit/s -> 100 m, 10 Mbit/s -> 10 m.
+    assert at[1_000_000] == pytest.approx(100.0, rel=1e-9)
+    assert at[10_000_000] == pytest.approx(10.0, rel=1e-9)
+    assert all(a >= b for a, b in zip(lengths, lengths[1:], strict=False))  # never longer at a higher rate
+
+
+def test_cable_loss_bounds_the_curve_at_low_rates():
+    rates, lengths = length_rate_limit(build_bus(load_plan(PLAN)))
+    # Source: ASTM B258, 24 AWG copper 84.2 Ohm/km per conductor (loop 0.1684 Ohm/m); low-loss line attenuation
+    # alpha = R / (2 Z0) with Z0 = 120 Ohm (D. M. Pozar, Microwave Engineering, sec. 2.7); 9 dB limit (D. Glisic,
+    # EE Times 2008). Below the skin-effect onset: L = 9 dB / (8.686 dB/Np * 0.1684 / 240) = 1476.6 m.
+    expected_m = 9.0 / (20.0 / math.log(10.0) * 0.1684 / 240.0)
+    assert lengths[0] == pytest.approx(expected_m, rel=2e-3)  # at 1 kbit/s; dielectric loss adds < 0.1 %
+    assert rates[0] == pytest.approx(1e3)
+
+
+def test_without_a_pattern_the_page_uses_the_engines_default_and_its_figures():
+    from engine.metrics import receiver_metrics
+
+    plan = load_plan({k: v for k, v in PLAN.items() if k != "test_pattern"})
+    checked = check_and_simulate(plan)
+    assert checked.metrics == receiver_metrics(build_bus(plan))

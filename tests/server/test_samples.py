@@ -1,0 +1,35 @@
+"""Every sample bus in sample_buses/ is loaded at startup, listed on the start page and opens as a checked plan."""
+
+from pathlib import Path
+
+import pytest
+
+from server.app import SAMPLES_DIR, create_app
+from tests.server.conftest import TestClient
+
+SAMPLES = sorted(p.stem for p in Path(SAMPLES_DIR).glob("*.json"))
+
+
+@pytest.fixture(scope="module")
+def client(tmp_path_factory):
+    with TestClient(create_app(tmp_path_factory.mktemp("db") / "plans.db")) as c:
+        yield c
+
+
+@pytest.mark.parametrize("slug", SAMPLES)
+def test_sample_bus_opens_from_the_start_page(client, slug):
+    listed = {s["slug"]: s["url"] for s in client.get("/index.json").json()["samples"]}
+    assert slug in listed
+    page = client.get(listed[slug] + ".json")
+    assert page.status_code == 200
+    assert page.json()["verdict"] in {"holds", "tight", "breaks"}
+    assert client.get(listed[slug]).status_code == 200
+
+
+def test_restarting_keeps_sample_links(tmp_path):
+    db = tmp_path / "plans.db"
+    with TestClient(create_app(db)) as first:
+        before = first.get("/index.json").json()["samples"]
+    with TestClient(create_app(db)) as second:
+        after = second.get("/index.json").json()["samples"]
+    assert before == after

@@ -1,0 +1,53 @@
+"""Serve settings: arguments win over PAIRLINE_* environment variables, which win over the defaults."""
+
+from pathlib import Path
+
+import pytest
+
+from server.serve import settings_from_env
+
+
+def test_defaults_are_loopback_8485_and_a_local_database(monkeypatch):
+    for name in ("PAIRLINE_HOST", "PAIRLINE_PORT", "PAIRLINE_DB"):
+        monkeypatch.delenv(name, raising=False)
+    s = settings_from_env()
+    assert (s.host, s.port, s.db_path) == ("127.0.0.1", 8485, Path("pairline.db"))
+
+
+def test_environment_then_arguments(monkeypatch, tmp_path):
+    monkeypatch.setenv("PAIRLINE_HOST", "0.0.0.0")
+    monkeypatch.setenv("PAIRLINE_PORT", "9000")
+    monkeypatch.setenv("PAIRLINE_DB", str(tmp_path / "env.db"))
+    s = settings_from_env()
+    assert (s.host, s.port, s.db_path) == ("0.0.0.0", 9000, tmp_path / "env.db")
+    s = settings_from_env("127.0.0.1", 8600, tmp_path / "arg.db")
+    assert (s.host, s.port, s.db_path) == ("127.0.0.1", 8600, tmp_path / "arg.db")
+
+
+def test_a_bad_port_is_refused_with_the_allowed_range(monkeypatch):
+    monkeypatch.setenv("PAIRLINE_PORT", "eighty")
+    with pytest.raises(ValueError, match="1 to 65535"):
+        settings_from_env()
+    with pytest.raises(ValueError, match="70000"):
+        settings_from_env(port=70000)
+
+
+def test_pairline_serve_passes_its_options_to_uvicorn(monkeypatch, tmp_path, capsys):
+    import server.serve
+    from server.cli import main
+
+    calls = []
+    monkeypatch.setattr(server.serve.uvicorn, "run", lambda app, **kw: calls.append((app, kw)))
+    monkeypatch.delenv("PAIRLINE_HOST", raising=False)
+    assert main(["serve", "--port", "9123", "--db", str(tmp_path / "cli.db")]) == 0
+    ((app, options),) = calls
+    assert options["host"] == "127.0.0.1" and options["port"] == 9123
+    assert app.state.store.db_path == tmp_path / "cli.db"
+    assert "http://127.0.0.1:9123/" in capsys.readouterr().out
+
+
+def test_pairline_serve_refuses_a_bad_port(capsys):
+    from server.cli import main
+
+    assert main(["serve", "--port", "0"]) == 2
+    assert "1 to 65535" in capsys.readouterr().err
