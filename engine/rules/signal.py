@@ -3,7 +3,8 @@ whether the simulation confirms or overrides the rules of thumb for stubs and fo
 
 Rule "signal.integrity": one finding per receiver (plan order). The waveforms are the bit pattern of the plan
 (or the default PRBS) driven by the primary driver; on an RS-485 bus with transceiver nodes every node that
-may drive is simulated and each receiver gets its worst case, naming the driver. Verdict criteria are those
+may drive is simulated (up to 33; on larger buses a sample of 12 holding the usual worst cases, see
+drivers_to_simulate) and each receiver gets its worst case, naming the driver. Verdict criteria are those
 of engine.fixes.judge_metrics (threshold +/-200 mV, TIA-485-A / TIA-422-B receiver sensitivity).
 
 Rule "signal.confirms": the rules of thumb judge the layout without a waveform; the simulation settles it.
@@ -18,6 +19,8 @@ A confirms finding carries the simulation's verdict, so an overridden BREAKS sho
 rule's own finding still beside it.
 """
 
+import numpy as np
+
 from engine.bus import Bus, build_bus
 from engine.findings import Finding, Verdict, worst
 from engine.fixes import ComputedFix, SignalJudgement, compute_fixes, judge_bus, one_driver, pattern_duration_s
@@ -29,6 +32,8 @@ from engine.waveform import step_responses
 
 MAX_STUB_CONFIRMS = 8  # flagged stubs reported one by one; the rest summarised
 MAX_WATCHED = 8  # receivers judged in a second (what-if) simulation on large buses
+MAX_DRIVERS_ALL = 33  # every possible driver is simulated up to this many (32 transceivers + the driver)
+MAX_DRIVERS_SAMPLED = 12  # beyond, a sample of this many (drivers_to_simulate)
 _SOURCE = (
     "Simulated waveforms (reflection simulation of the whole bus); receiver threshold ±200 mV from TIA/EIA-485-A "
     "and TIA/EIA-422-B; margins: common practice"
@@ -40,9 +45,27 @@ _CRITERION = (
 )
 
 
+def drivers_to_simulate(bus: Bus) -> list[str]:
+    """Every node that may drive, up to MAX_DRIVERS_ALL; beyond that a sample of MAX_DRIVERS_SAMPLED that holds
+    the usual worst cases: the primary driver, the transceivers nearest each cable end, those on the longest
+    stubs, and the rest spread evenly along the trunk."""
+    if bus.plan.standard != "rs485":
+        return [bus.plan.driver.name]
+    drivers = bus.drivers_possible
+    if len(drivers) <= MAX_DRIVERS_ALL:
+        return drivers
+    nodes = [n for n in bus.plan.nodes if n.role == "transceiver"]
+    by_position = sorted(nodes, key=lambda n: n.position_m)
+    picked = [bus.plan.driver.name, by_position[0].name, by_position[-1].name]
+    picked += [n.name for n in sorted(nodes, key=lambda n: -n.stub_length_m)[:3]]
+    spread = np.linspace(0, len(by_position) - 1, MAX_DRIVERS_SAMPLED).round().astype(int)
+    picked += [by_position[i].name for i in spread]
+    return list(dict.fromkeys(picked))[:MAX_DRIVERS_SAMPLED]
+
+
 def _worst_over_drivers(bus: Bus) -> dict[str, tuple[SignalJudgement, str]]:
-    """Per receiver, its worst judgement over every node that may drive, with that driver's name."""
-    drivers = bus.drivers_possible if bus.plan.standard == "rs485" else [bus.plan.driver.name]
+    """Per receiver, its worst judgement over the nodes that may drive (drivers_to_simulate), with the driver."""
+    drivers = drivers_to_simulate(bus)
     steps = step_responses(bus, drivers, max_time_s=pattern_duration_s(bus, bus.plan.test_pattern))
     out: dict[str, tuple[SignalJudgement, str]] = {}
     for name in drivers:

@@ -95,3 +95,47 @@ def test_published_unterminated_example_is_confirmed():
     assert confirm.verdict is not Verdict.BREAKS
     assert "confirms the rule" in confirm.detail
     assert all(f.verdict is not Verdict.BREAKS for f in _by(findings, "signal.integrity"))
+
+
+def _transceiver_bus(n_nodes: int):
+    return build_bus(
+        load_plan(
+            {
+                "bit_rate_bps": 9600,
+                "trunk_length_m": 400.0,
+                "driver": {"transceiver": "slew-2500ns"},
+                "nodes": [
+                    {
+                        "name": f"t-{i:03d}",
+                        "position_m": 400.0 * (i + 1) / n_nodes,
+                        "role": "transceiver",
+                        "unit_loads": 0.125,
+                        "stub_length_m": 3.0 if i == 7 else 0.5,
+                    }
+                    for i in range(n_nodes)
+                ],
+                "terminations": [
+                    {"position_m": 0.0, "resistance_ohm": 120.0},
+                    {"position_m": 400.0, "resistance_ohm": 120.0},
+                ],
+            }
+        )
+    )
+
+
+def test_every_driver_is_simulated_on_a_32_node_bus():
+    from engine.rules.signal import drivers_to_simulate
+
+    bus = _transceiver_bus(32)
+    # Source: TIA/EIA-485-A allows 32 unit loads, so 32 transceivers plus the driver may each drive.
+    assert drivers_to_simulate(bus) == bus.drivers_possible and len(bus.drivers_possible) == 33
+
+
+def test_large_bus_samples_the_ends_and_the_longest_stub():
+    from engine.rules.signal import MAX_DRIVERS_SAMPLED, drivers_to_simulate
+
+    bus = _transceiver_bus(100)
+    picked = drivers_to_simulate(bus)
+    assert len(picked) == MAX_DRIVERS_SAMPLED
+    # common practice: the worst reflections come from drivers at the cable ends and on the longest stubs.
+    assert {"driver", "t-000", "t-099", "t-007"} <= set(picked)
