@@ -15,7 +15,8 @@ A fix is one parameter changed until the failing receivers stop breaking, found 
 bus: bisection over a continuous parameter (a stub length, a terminator value, the bit rate; MAX_BISECTIONS
 re-simulations each, so the value is within (1/2)^MAX_BISECTIONS of its search range), or an ordered search
 over the library's driver classes. Each re-simulation judges only the receivers that failed (their waveforms
-are computed from the whole bus's step response), which keeps a fix to a few tens of milliseconds.
+are computed from the whole bus's step response), which keeps a fix to a few tens of milliseconds; all fixes
+of one check share a budget of re-simulations (resimulation_budget).
 """
 
 import dataclasses
@@ -49,6 +50,8 @@ from engine.waveform import (
 
 MAX_BISECTIONS = 5
 MAX_STUB_CANDIDATES = 2
+MAX_RESIMULATIONS = 32
+MAX_RESIMULATIONS_LARGE = 12
 TIGHT_EXTRA_MARGIN_V = 0.2  # sampled level at least this far beyond the threshold for HOLDS (common practice)
 TIGHT_EYE_WIDTH_UI = 0.5
 TIGHT_JITTER_UI = 0.1
@@ -180,6 +183,11 @@ def judge_bus(
 # --- fixes -------------------------------------------------------------------------------------------------
 
 
+def resimulation_budget(bus: Bus) -> int:
+    """Re-simulations allowed for all fixes of one check: 32, or 12 on buses of more than 64 nodes."""
+    return MAX_RESIMULATIONS if len(bus.plan.nodes) <= 64 else MAX_RESIMULATIONS_LARGE
+
+
 class _Trial:
     """Counts re-simulations; a candidate plan passes when none of the watched receivers breaks."""
 
@@ -190,6 +198,10 @@ class _Trial:
         self.count = 0
 
     def passes(self, plan: BusPlan) -> bool:
+        """Re-simulate; once the budget is spent every further candidate counts as failing, so a fix already
+        found stays verified and the search just stops refining."""
+        if self.count >= resimulation_budget(self.bus):
+            return False
         self.count += 1
         judged = judge_bus(build_bus(plan), driver_name=self.driver_name, receivers=self.failing)
         return all(j.verdict is not Verdict.BREAKS for j in judged.values())
