@@ -11,7 +11,7 @@ formulas serve the frequency response and the damped transform the time-domain s
   skin-effect onset). At real frequencies its real part blends smoothly from R_dc at low frequency to
   R_dc * sqrt(f / f_on) above the onset, the classical skin-effect growth of a round conductor; its imaginary
   part carries the matching internal inductance, which keeps the model causal (no signal before the
-  line delay). Source: H. Johnson, M. Graham, High-Speed Signal Propagation, sec. 2.5 (skin effect, R + jwL_int
+  line delay). Source: H. Johnson, M. Graham, High-Speed Signal Propagation (2003), ch. 2 (skin effect, R + jwL_int
   rising together as sqrt(f)).
 - Shunt admittance Y'(s) = (C / cos d) * s * (s / w_r)^(-2 d / pi), d = arctan(tan_delta), w_r = 2 pi * 1 MHz.
   At f = 1 MHz this is exactly jwC + G with G = w C tan_delta; elsewhere G / (w C) stays tan_delta and C drifts by
@@ -188,14 +188,3 @@ def abcd_section(cable: ResolvedCable, frequency_hz: ArrayLike, length_m: float)
     out[:, 0, 1] = z * length_m * tc * cosh
     out[:, 1, 0] = y * length_m * tc * cosh
     return out
-
-
-def input_admittance_siemens(terms: SectionTerms, load_admittance_siemens: np.ndarray) -> np.ndarray:
-    """Admittance into a section loaded by Y_L: (C + D Y_L) / (A + B Y_L) = (tanh/Z0 + Y_L) / (1 + Z0 tanh Y_L)."""
-    y_l = load_admittance_siemens
-    return np.asarray((terms.y_tanh_siemens + y_l) / (1.0 + terms.z_tanh_ohm * y_l))
-
-
-def voltage_transfer(terms: SectionTerms, load_admittance_siemens: np.ndarray) -> np.ndarray:
-    """V_load / V_input of a section loaded by Y_L: 1 / (A + B Y_L) = sech / (1 + Z0 tanh Y_L)."""
-    return np.asarray(terms.sech_term / (1.0 + terms.z_tanh_ohm * load_admittance_siemens))

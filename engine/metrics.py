@@ -42,7 +42,7 @@ from engine.waveform import (
 )
 
 RECEIVER_THRESHOLD_V = 0.2  # TIA/EIA-485-A and TIA/EIA-422-B receiver input sensitivity, +/-200 mV
-RECEIVERS_PER_PASS = 32  # receivers whose pattern waveforms are held at once
+RECEIVERS_PER_PASS = 16  # receivers whose pattern waveforms are held at once (small blocks stay in cache)
 ARRIVAL_FRACTION = 0.02  # of the settled level: an edge has started to arrive
 DRIVERS_PER_PASS = 8  # drivers whose step responses are held at once
 

@@ -161,14 +161,16 @@ def resolve_driver_names(bus: Bus, driver_names: "tuple[str, ...] | list[str] | 
     return names
 
 
-def load_admittance_siemens(topo: Topology, s: np.ndarray) -> np.ndarray:
-    """Admittance of each branch's load, (n_b, n_s): G + s C, plus s C_t / (1 + s R_t C_t) for RC terminators."""
+def _load_admittance(
+    g_siemens: np.ndarray, c_f: np.ndarray, rc_ohm: np.ndarray, rc_f: np.ndarray, s: np.ndarray
+) -> np.ndarray:
+    """Admittance of loads, (n_loads, n_s): G + s C, plus s C_t / (1 + s R_t C_t) for RC terminators."""
     s_row = s[None, :]
-    y = topo.branch_conductance_siemens[:, None] + topo.branch_capacitance_f[:, None] * s_row
-    rc = topo.branch_series_rc_f > 0
+    y = g_siemens[:, None] + c_f[:, None] * s_row
+    rc = rc_f > 0
     if np.any(rc):
-        c_t = topo.branch_series_rc_f[rc][:, None]
-        y[rc] += s_row * c_t / (1.0 + s_row * topo.branch_series_rc_ohm[rc][:, None] * c_t)
+        c_t = rc_f[rc][:, None]
+        y[rc] += s_row * c_t / (1.0 + s_row * rc_ohm[rc][:, None] * c_t)
     return np.asarray(y)
 
 
@@ -177,15 +179,15 @@ class Network:
     """The passive bus (every node a load) solved at Laplace points s: what any driver needs.
 
     Junction-major layout, (n_junctions, n_s): the sweeps walk contiguous rows. Stub terms are kept per
-    distinct stub length (stub_of maps a branch to its row).
+    distinct kind of branch (stub_of maps a branch to its row).
     """
 
     topology: Topology
     source_ohm: float
-    stub_of: np.ndarray  # (n_b,) row of each branch's stub in the stub tables
-    stub_sech: np.ndarray  # (n_lengths, n_s) sech(gamma l)
-    stub_z_tanh_ohm: np.ndarray  # (n_lengths, n_s) Z0 tanh(gamma l)
-    stub_y_tanh_siemens: np.ndarray  # (n_lengths, n_s) tanh(gamma l) / Z0
+    stub_of: np.ndarray  # (n_b,) row of each branch's kind (stub length and load) in the stub tables
+    stub_sech: np.ndarray  # (n_kinds, n_s) sech(gamma l)
+    stub_z_tanh_ohm: np.ndarray  # (n_kinds, n_s) Z0 tanh(gamma l)
+    stub_y_tanh_siemens: np.ndarray  # (n_kinds, n_s) tanh(gamma l) / Z0
     driver_y_branch: dict[str, np.ndarray]  # name -> (n_s,) admittance into the driver's branch when passive
     y_shunt: np.ndarray  # (K, n_s)
     y_left: np.ndarray  # (K, n_s) looking left into the trunk, own shunt excluded
@@ -219,24 +221,33 @@ def solve_network(
     y = shunt_admittance_siemens_per_m(bus.cable, s_arr)
     k_count = topo.junction_position_m.size
 
-    # 1. branches (stubs of equal length share one computation); shunt admittance per junction
-    stub_len, stub_of = np.unique(np.round(topo.branch_stub_m, 9), return_inverse=True)
-    sech_u, _, zt_u, yt_u = _rows(section_terms(z, y, stub_len))
-    y_load = load_admittance_siemens(topo, s_arr)
-    y_branch = (yt_u[stub_of] + y_load) / (1.0 + zt_u[stub_of] * y_load)
+    # 1. branches: identical ones (same stub length and load, as on most real buses) share one computation;
+    # then the shunt admittance per junction
+    params = np.column_stack(
+        [
+            np.round(topo.branch_stub_m, 9),
+            topo.branch_conductance_siemens,
+            topo.branch_capacitance_f,
+            topo.branch_series_rc_ohm,
+            topo.branch_series_rc_f,
+        ]
+    )
+    kinds, kind_of = np.unique(params, axis=0, return_inverse=True)
+    kind_of = kind_of.ravel()
+    sech_k, _, zt_k, yt_k = _rows(section_terms(z, y, kinds[:, 0]))
+    y_load_k = _load_admittance(kinds[:, 1], kinds[:, 2], kinds[:, 3], kinds[:, 4], s_arr)
+    y_branch_k = (yt_k + y_load_k) / (1.0 + zt_k * y_load_k)  # (n_kinds, n_s) into each kind of branch
+    rx_stub_k = sech_k / (1.0 + zt_k * y_load_k)  # (n_kinds, n_s) V_load / V_junction
     order = np.argsort(topo.branch_junction, kind="stable")
     bj = topo.branch_junction[order]
     starts = np.flatnonzero(np.r_[True, bj[1:] != bj[:-1]])
     y_shunt = np.zeros((k_count, n_s), dtype=complex)
-    y_shunt[bj[starts]] = y_branch[order[starts]]
-    extra = np.setdiff1d(np.arange(order.size), starts)
-    if extra.size:
-        np.add.at(y_shunt, bj[extra], y_branch[order[extra]])
+    y_shunt[bj[starts]] = y_branch_k[kind_of[order[starts]]]
+    for e in np.setdiff1d(np.arange(order.size), starts):  # further branches sharing a junction
+        y_shunt[bj[e]] += y_branch_k[kind_of[order[e]]]
     names = tuple(topo.driver_branch) if driver_names is None else driver_names
-    driver_y = {name: y_branch[topo.driver_branch[name]] for name in names}
-    rx = topo.receiver_branch
-    rx_stub = sech_u[stub_of[rx]] / (1.0 + zt_u[stub_of[rx]] * y_load[rx])
-    del y_load, y_branch
+    driver_y = {name: y_branch_k[kind_of[topo.driver_branch[name]]] for name in names}
+    rx_stub = rx_stub_k[kind_of[topo.receiver_branch]]
 
     # 2-3. sweeps along the trunk, with the voltage ratio across every segment on the way
     seg_len, seg_of = np.unique(np.round(topo.segment_length_m, 9), return_inverse=True)
@@ -270,10 +281,10 @@ def solve_network(
     return Network(
         topology=topo,
         source_ohm=bus.driver.source_ohm,
-        stub_of=stub_of,
-        stub_sech=sech_u,
-        stub_z_tanh_ohm=zt_u,
-        stub_y_tanh_siemens=yt_u,
+        stub_of=kind_of,
+        stub_sech=sech_k,
+        stub_z_tanh_ohm=zt_k,
+        stub_y_tanh_siemens=yt_k,
         driver_y_branch=driver_y,
         y_shunt=y_shunt,
         y_left=y_left,

@@ -253,6 +253,7 @@ REFINE_TOLERANCE = 2e-3  # of the open-circuit swing: linear interpolation error
 UNIFORM_OFFSETS = 32  # per bit, always present
 REFINE_BUDGET_VALUES = 1_000_000  # interpolated values per block while choosing offsets
 MAX_OFFSETS = 600  # samples per bit at most
+WAVEFORM_BUDGET_VALUES = 6_000_000  # receivers x bits x offsets of one Waveforms, before offsets get sparser
 
 
 def prbs_bits(n_bits: int = DEFAULT_PATTERN_BITS, order: int = 7, seed: int = 1) -> str:
@@ -339,7 +340,8 @@ def simulate_pattern(
     n_bits = len(bits)
     horizon_s = s_t[-1] if step.settled else max(s_t[-1], duration_s)
     n_mem = int(min(n_bits, np.floor(horizon_s / bit_time_s) + 1))
-    offsets = _offsets(s_t, deviation, bit_time_s, n_mem, step.open_circuit_v)
+    cap = int(np.clip(WAVEFORM_BUDGET_VALUES // (rx_index.size * n_bits), 2 * UNIFORM_OFFSETS + 1, MAX_OFFSETS))
+    offsets = _offsets(s_t, deviation, bit_time_s, n_mem, step.open_circuit_v, cap)
     # D at m T_bit + u for every m < n_mem: (n_rx, n_mem, n_off)
     d_mem = _sample(s_t, deviation, (np.arange(n_mem)[:, None] * bit_time_s + offsets[None, :]).ravel())
     d_mem = d_mem.reshape(rx_index.size, n_mem, offsets.size)
@@ -400,10 +402,12 @@ def _sample(time_s: np.ndarray, values: np.ndarray, at_s: np.ndarray) -> np.ndar
     return np.asarray(out)
 
 
-def _offsets(step_t: np.ndarray, deviation: np.ndarray, bit_time_s: float, n_mem: int, swing_v: float) -> np.ndarray:
+def _offsets(
+    step_t: np.ndarray, deviation: np.ndarray, bit_time_s: float, n_mem: int, swing_v: float, max_offsets: int
+) -> np.ndarray:
     """Offsets within a bit where the pattern waveform is evaluated (see the module docstring).
 
-    If more than MAX_OFFSETS would be needed, the tolerance is doubled until they fit: memory stays bounded
+    If more than max_offsets would be needed, the tolerance is doubled until they fit: memory stays bounded
     and the waveform keeps its largest features.
     """
     uniform = np.arange(UNIFORM_OFFSETS) * (bit_time_s / UNIFORM_OFFSETS)
@@ -418,11 +422,12 @@ def _offsets(step_t: np.ndarray, deviation: np.ndarray, bit_time_s: float, n_mem
         for r0 in range(0, deviation.shape[0], rows)
     ]
     tol = REFINE_TOLERANCE * swing_v
-    while True:
+    while tol < 4.0 * swing_v:  # beyond that nothing but the fixed points would be kept
         keep = _refine(cand, blocks, fixed, tol)
-        if np.count_nonzero(keep) <= MAX_OFFSETS:
+        if np.count_nonzero(keep) <= max_offsets:
             return np.asarray(cand[keep])
         tol *= 2.0
+    return np.asarray(cand[fixed])
 
 
 def _refine(cand: np.ndarray, blocks: list[np.ndarray], fixed: np.ndarray, tol: float) -> np.ndarray:

@@ -7,6 +7,8 @@ part of the product. The netlist models the same differential mode as the engine
   lossless `T` elements (Z0, TD = length / (VF * c0)) when the cable has no series resistance, else LTRA
   lossy lines with constant per-metre R (loop resistance, 2 x the per-conductor value), L = Z0 / v,
   C = 1 / (Z0 * v), G = 0 -- the line the engine builds with no skin effect and no dielectric loss.
+  On buses with dozens of sections, many under a metre, T lines multiply breakpoints and LTRA slows to a
+  crawl; use the ladder there (the benchmark does).
   (`line_model="ladder"` instead cascades lossless `T` sections with the series resistance lumped between
   them, a check on LTRA itself.)
 - each receiver is R_in = 12 kOhm / UL in parallel with its input capacitance, at the end of its stub;

@@ -1,0 +1,278 @@
+"""Signal integrity from the simulated waveforms: a verdict per receiver, fixes found by re-simulating, and
+whether the simulation confirms or overrides the rules of thumb for stubs and for leaving a line unterminated.
+
+Rule "signal.integrity": one finding per receiver (plan order). The waveforms are the bit pattern of the plan
+(or the default PRBS) driven by the primary driver; on an RS-485 bus with transceiver nodes every node that
+may drive is simulated (up to 33; on larger buses a sample of 12 holding the usual worst cases, see
+drivers_to_simulate) and each receiver gets its worst case, naming the driver. Verdict criteria are those
+of engine.fixes.judge_metrics (threshold +/-200 mV, TIA-485-A / TIA-422-B receiver sensitivity).
+
+Rule "signal.confirms": the rules of thumb judge the layout without a waveform; the simulation settles it.
+- "stub.length": the stubs the rule flags (TIGHT or BREAKS) are set to zero in one more simulation; the
+  finding per flagged node compares the node's own waveform with and without those stubs (ringback,
+  re-crossings, eye). The simulation confirms the rule when removing the stubs turns a failing receiver into
+  a passing one, or when the rule passes and the simulation passes; it overrides it otherwise.
+- "termination.may_omit": the bus is simulated without its terminators (or as laid out, if it has none) and
+  the worst receiver's verdict is set against the rule's deciding criterion (three round trips settle
+  before mid-bit).
+A confirms finding carries the simulation's verdict, so an overridden BREAKS shows up as HOLDS here, with the
+rule's own finding still beside it.
+"""
+
+import numpy as np
+
+from engine.bus import Bus, build_bus
+from engine.findings import Finding, Verdict, worst
+from engine.fixes import ComputedFix, SignalJudgement, compute_fixes, judge_bus, one_driver, pattern_duration_s
+from engine.metrics import RECEIVER_THRESHOLD_V
+from engine.rules.stubs import check_stubs
+from engine.rules.unterminated import line_may_stay_unterminated
+from engine.units import si_format
+from engine.waveform import step_responses
+
+MAX_STUB_CONFIRMS = 8  # flagged stubs reported one by one; the rest summarised
+MAX_WATCHED = 8  # receivers judged in a second (what-if) simulation on large buses
+MAX_DRIVERS_ALL = 33  # every possible driver is simulated up to this many (32 transceivers + the driver)
+MAX_DRIVERS_SAMPLED = 12  # beyond, a sample of this many (drivers_to_simulate)
+_SOURCE = (
+    "Simulated waveforms (reflection simulation of the whole bus); receiver threshold ±200 mV from TIA/EIA-485-A "
+    "and TIA/EIA-422-B; margins: common practice"
+)
+_CRITERION = (
+    "BREAKS: a sampled bit not beyond ±200 mV, a fall back through the threshold after an edge, inner eye < 0.4 V, "
+    "or not settled by the sampling instant. TIGHT: under 200 mV beyond the threshold, eye open < 50 % of a bit, "
+    "jitter > 10 % of a bit, or settling in the last quarter-bit."
+)
+
+
+def drivers_to_simulate(bus: Bus) -> list[str]:
+    """Every node that may drive, up to MAX_DRIVERS_ALL; beyond that a sample of MAX_DRIVERS_SAMPLED that holds
+    the usual worst cases: the primary driver, the transceivers nearest each cable end, those on the longest
+    stubs, and the rest spread evenly along the trunk."""
+    if bus.plan.standard != "rs485":
+        return [bus.plan.driver.name]
+    drivers = bus.drivers_possible
+    if len(drivers) <= MAX_DRIVERS_ALL:
+        return drivers
+    nodes = [n for n in bus.plan.nodes if n.role == "transceiver"]
+    by_position = sorted(nodes, key=lambda n: n.position_m)
+    picked = [bus.plan.driver.name, by_position[0].name, by_position[-1].name]
+    picked += [n.name for n in sorted(nodes, key=lambda n: -n.stub_length_m)[:3]]
+    spread = np.linspace(0, len(by_position) - 1, MAX_DRIVERS_SAMPLED).round().astype(int)
+    picked += [by_position[i].name for i in spread]
+    return list(dict.fromkeys(picked))[:MAX_DRIVERS_SAMPLED]
+
+
+def _worst_over_drivers(bus: Bus) -> dict[str, tuple[SignalJudgement, str]]:
+    """Per receiver, its worst judgement over the nodes that may drive (drivers_to_simulate), with the driver."""
+    drivers = drivers_to_simulate(bus)
+    steps = step_responses(bus, drivers, max_time_s=pattern_duration_s(bus, bus.plan.test_pattern))
+    out: dict[str, tuple[SignalJudgement, str]] = {}
+    for name in drivers:
+        judged = judge_bus(bus, driver_name=name, step=one_driver(steps, name))
+        for rx, j in judged.items():
+            old = out.get(rx)
+            if old is None or _severity(j) > _severity(old[0]):
+                out[rx] = (j, name)
+    return out
+
+
+def _severity(j: SignalJudgement) -> tuple[int, float]:
+    return (j.verdict.rank, -j.metrics.eye_height_v)
+
+
+def _fix_text(fixes: list[ComputedFix], node: str) -> str:
+    own = [f for f in fixes if f.node in (None, node)]
+    if not own:
+        return ""
+    return "Re-simulated fixes (any one): " + "; ".join(f.sentence for f in own) + "."
+
+
+def check_signal_integrity(bus: Bus) -> list[Finding]:
+    """Rule "signal.integrity" (one finding per receiver) and rule "signal.confirms" (stubs, termination)."""
+    judged = _worst_over_drivers(bus)
+    primary = bus.plan.driver.name
+    failing = [rx for rx, (j, d) in judged.items() if j.verdict is Verdict.BREAKS and d == primary]
+    fixes = compute_fixes(bus, failing) if failing else []
+    findings = []
+    for node in bus.plan.nodes:
+        j, driver = judged[node.name]
+        m = j.metrics
+        driven_by = "" if driver == primary else f" (worst case: '{driver}' driving)"
+        detail = (
+            f"Driver '{driver}', {si_format(1.0 / m.bit_time_s, 'bit/s')}: settled level {m.amplitude_v:.2f} V, "
+            f"peak {m.peak_v:.2f} V, overshoot {m.overshoot_v:.2f} V, ringback {m.undershoot_v:.2f} V, "
+            f"{m.threshold_recrossings} threshold re-crossing(s), eye {m.eye_height_v:.2f} V × "
+            f"{m.eye_width_ui:.0%} of a bit, delay {si_format(m.propagation_delay_s, 's')}, "
+            f"jitter {m.jitter_ui:.0%} of a bit."
+        )
+        if j.reasons:
+            detail = "; ".join(j.reasons) + ". " + detail
+        fix = ""
+        if j.verdict is Verdict.BREAKS:
+            fix = _fix_text(fixes, node.name) if driver == primary else ""
+            if not fix:
+                fix = (
+                    f"No single change found by re-simulation for '{node.name}'{driven_by}: shorten its stub, "
+                    "terminate both cable ends with Z0 and lower the bit rate together, then re-check."
+                )
+        findings.append(
+            Finding(
+                rule_id="signal.integrity",
+                title=f"Simulated waveform at '{node.name}'{driven_by}",
+                verdict=j.verdict,
+                value=m.eye_height_v,
+                limit=2.0 * m.threshold_v,
+                unit="V",
+                node=node.name,
+                criterion=_CRITERION,
+                source=_SOURCE,
+                fix=fix,
+                detail=detail,
+            )
+        )
+    from_primary = {rx: j for rx, (j, d) in judged.items() if d == primary} or None
+    findings += confirm_stub_rule(bus, from_primary)
+    findings.append(confirm_termination_rule(bus, from_primary))
+    return findings
+
+
+def confirm_stub_rule(bus: Bus, judged: dict[str, SignalJudgement] | None = None) -> list[Finding]:
+    """Rule "signal.confirms" for "stub.length": each flagged stub's node with and without the flagged stubs."""
+    stub_findings = {f.node: f for f in check_stubs(bus) if f.node is not None}
+    flagged = [n for n, f in stub_findings.items() if f.verdict is not Verdict.HOLDS]
+    if judged is None or any(n.name not in judged for n in bus.plan.nodes if n.name in flagged):
+        judged = judge_bus(bus)
+    if not flagged:
+        worst_rx = max(judged.values(), key=_severity)
+        sim = worst_rx.verdict
+        agree = sim is not Verdict.BREAKS
+        return [
+            Finding(
+                rule_id="signal.confirms",
+                title=f"Stub rule {'confirmed' if agree else 'overridden'} by simulation",
+                verdict=sim,
+                value=worst_rx.metrics.undershoot_v,
+                limit=None,
+                unit="V",
+                node=None,
+                criterion="The stub rule passes every stub; the simulation judges every receiver.",
+                source=_SOURCE,
+                detail=(
+                    f"simulation: worst receiver '{worst_rx.receiver}' {sim.value} with ringback "
+                    f"{worst_rx.metrics.undershoot_v:.2f} V and {worst_rx.metrics.threshold_recrossings} re-crossing(s)"
+                    + (" -> confirms the stub rule's HOLDS." if agree else " -> overrides the stub rule's HOLDS.")
+                ),
+            )
+        ]
+    plan = bus.plan
+    nodes = [n.model_copy(update={"stub_length_m": 0.0}) if n.name in flagged else n for n in plan.nodes]
+    driver = plan.driver
+    if driver.name in flagged:
+        driver = driver.model_copy(update={"stub_length_m": 0.0})
+    bare = judge_bus(build_bus(plan.model_copy(update={"nodes": nodes, "driver": driver})))
+    out = []
+    receivers = [n for n in flagged if n in judged]
+    for name in receivers[:MAX_STUB_CONFIRMS]:
+        rule = stub_findings[name]
+        with_stub, without = judged[name], bare[name]
+        cause = with_stub.verdict.rank > without.verdict.rank
+        m = with_stub.metrics
+        what = (
+            f"stub at '{name}' ({rule.value:.3g} m) gives ringback {m.undershoot_v:.2f} V, "
+            f"{m.threshold_recrossings} re-crossing(s), eye {m.eye_height_v:.2f} V "
+            f"({with_stub.verdict.value}); without the flagged stubs {without.verdict.value}"
+        )
+        if rule.verdict is Verdict.BREAKS:
+            agree = with_stub.verdict is not Verdict.HOLDS and (cause or with_stub.verdict is Verdict.BREAKS)
+        else:
+            agree = with_stub.verdict is not Verdict.HOLDS or cause
+        word = "confirms" if agree else "overrides"
+        out.append(
+            Finding(
+                rule_id="signal.confirms",
+                title=f"Stub rule at '{name}' {'confirmed' if agree else 'overridden'} by simulation",
+                verdict=with_stub.verdict,
+                value=m.undershoot_v,
+                limit=None,
+                unit="V",
+                node=name,
+                criterion="Flagged stubs set to zero in a second simulation; the node's waveform compared.",
+                source=_SOURCE,
+                detail=f"simulation: {what} -> {word} the stub rule's {rule.verdict.value.upper()}.",
+            )
+        )
+    rest = receivers[MAX_STUB_CONFIRMS:] + [n for n in flagged if n not in judged]
+    if rest:
+        sim = worst([judged[n].verdict for n in rest if n in judged])
+        out.append(
+            Finding(
+                rule_id="signal.confirms",
+                title=f"Stub rule at {len(rest)} more flagged stub(s)",
+                verdict=sim,
+                value=None,
+                limit=None,
+                unit="",
+                node=None,
+                criterion="Flagged stubs set to zero in a second simulation; waveforms compared.",
+                source=_SOURCE,
+                detail=f"simulation: worst verdict {sim.value} at " + ", ".join(f"'{n}'" for n in rest[:20]) + ".",
+            )
+        )
+    return out
+
+
+def _watch_list(bus: Bus, judged: dict[str, SignalJudgement] | None) -> list[str] | None:
+    """Receivers to judge in a second simulation: the worst few of the first and the two farthest from the
+    driver (ends of the line, where reflections pile up). None (all) on small buses."""
+    if judged is None or len(judged) <= MAX_WATCHED:
+        return None
+    by_severity = sorted(judged.values(), key=_severity, reverse=True)
+    watch = [j.receiver for j in by_severity[: MAX_WATCHED - 2]]
+    x0 = bus.plan.driver.position_m
+    far = sorted(bus.plan.nodes, key=lambda n: abs(n.position_m - x0) + n.stub_length_m, reverse=True)
+    for n in far:
+        if len(watch) >= MAX_WATCHED:
+            break
+        if n.name not in watch:
+            watch.append(n.name)
+    return watch
+
+
+def confirm_termination_rule(bus: Bus, judged: dict[str, SignalJudgement] | None = None) -> Finding:
+    """Rule "signal.confirms" for "termination.may_omit": the bus simulated without terminators.
+
+    judged: the primary driver's judgements of the bus as laid out; on a bus of more than MAX_WATCHED
+    receivers the second simulation judges only the worst of those and the farthest two.
+    """
+    plan = bus.plan
+    may_omit = line_may_stay_unterminated(bus)
+    if not plan.terminations:
+        judged = judged if judged is not None else judge_bus(bus)
+    else:
+        judged = judge_bus(build_bus(plan.model_copy(update={"terminations": []})), receivers=_watch_list(bus, judged))
+    worst_rx = max(judged.values(), key=_severity)
+    sim = worst_rx.verdict
+    m = worst_rx.metrics
+    sim_ok = sim is not Verdict.BREAKS
+    agree = sim_ok == may_omit
+    rule_says = "may stay unterminated" if may_omit else "needs terminators"
+    how = "as laid out (no terminators)" if not plan.terminations else "with its terminators removed"
+    return Finding(
+        rule_id="signal.confirms",
+        title=f"Unterminated-line rule {'confirmed' if agree else 'overridden'} by simulation",
+        verdict=sim,
+        value=m.eye_height_v,
+        limit=2.0 * RECEIVER_THRESHOLD_V,
+        unit="V",
+        node=None,
+        criterion="The bus simulated without terminators; worst receiver against the rule's deciding criterion.",
+        source=_SOURCE,
+        detail=(
+            f"simulation {how}: worst receiver '{worst_rx.receiver}' {sim.value} (eye {m.eye_height_v:.2f} V, "
+            f"ringback {m.undershoot_v:.2f} V, {m.threshold_recrossings} re-crossing(s)"
+            + (f"; {'; '.join(worst_rx.reasons)}" if worst_rx.reasons else "")
+            + f") -> {'confirms' if agree else 'overrides'} the rule (three round trips before mid-bit): "
+            f"the line {rule_says}."
+        ),
+    )
