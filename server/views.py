@@ -22,7 +22,7 @@ from server.diagram import bus_drawing, node_anchor
 from server.forms import BIAS, CABLE, DRIVER, NODE, TERMINATION, TOP, FormState
 from server.plots import curve_plot, eye_plot, waveform_plot
 from server.quantities import UnitSystem, format_quantity, length_in, length_unit
-from server.results import CheckedPlan, report_to_dict, worst_receiver
+from server.results import CURVE_CRITERIA, RULE_CRITERION, RULE_SOURCE, CheckedPlan, report_to_dict, worst_receiver
 from server.store import SampleEntry, SavedPlan
 
 _SEVERITY = {"breaks": 0, "tight": 1, "holds": 2}
@@ -210,8 +210,14 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
     ]
     counts = {v.value: sum(1 for f in report.findings if f.verdict == v) for v in Verdict}
     waveforms = _waveforms_data(checked, chosen_receiver)
+    sweep = checked.curve
     curve = curve_plot(
-        checked.curve_bit_rate_bps, checked.curve_max_length_m, plan.bit_rate_bps, checked.curve_plan_length_m, units
+        sweep.bit_rate_bps,
+        sweep.max_length_m,
+        plan.bit_rate_bps,
+        sweep.plan_length_m,
+        units,
+        rule=(checked.rule_bit_rate_bps, checked.rule_max_length_m),
     )
     plan_id = saved.id if saved else None
     data: dict[str, Any] = json_safe(
@@ -241,11 +247,20 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
             "summary": _summary_data(summary, units),
             "waveforms": waveforms,
             "curve": {
-                "bit_rate_bps": checked.curve_bit_rate_bps,
-                "max_length_m": checked.curve_max_length_m,
-                "plan_length_m": checked.curve_plan_length_m,
-                "criterion": checked.curve_criterion,
-                "source": checked.curve_source,
+                "bit_rate_bps": sweep.bit_rate_bps,
+                "max_length_m": sweep.max_length_m,
+                "criterion": sweep.criterion,
+                "criterion_text": CURVE_CRITERIA.get(sweep.criterion, sweep.criterion),
+                "source": sweep.source,
+                "plan_max_length_m": sweep.plan_max_length_m,
+                "plan_max_length_text": quantity_text(sweep.plan_max_length_m, "m", units),
+                "plan_inside": sweep.plan_inside,
+                "rule": {
+                    "bit_rate_bps": checked.rule_bit_rate_bps,
+                    "max_length_m": checked.rule_max_length_m,
+                    "criterion_text": RULE_CRITERION,
+                    "source": RULE_SOURCE,
+                },
                 "svg": curve,
             },
             "drawing": bus_drawing(

@@ -390,3 +390,12 @@ def test_cautions_point_at_what_in_the_plan_calls_for_them():
     # Source: TIA/EIA-485-A common-mode range -7 V to +12 V: a 9 V offset leaves it, so isolation applies.
     assert loud["ground"]["applies"] and loud["isolation"]["applies"] and loud["surge"]["applies"]
     assert "9 V" in loud["isolation"]["reason"]
+
+
+def test_curve_section_names_its_criteria_and_marks_the_plan(client, saved_id):
+    data = client.get(f"/plans/{saved_id}.json").json()["curve"]
+    assert data["criterion"] in {"eye", "tia422"} and data["source"] and data["rule"]["source"]
+    page = parse_html(client.get(f"/plans/{saved_id}").text)
+    point = page.find("circle", class_="plan-point inside" if data["plan_inside"] else "plan-point outside")
+    assert point is not None
+    assert page.find("polyline", class_="rule-trace") is not None
