@@ -28,6 +28,7 @@ from engine.rules.loads import (
 )
 from engine.rules.power import check_resistor_power, rating_text, rating_to_buy_w, resistor_powers
 from engine.rules.preferred import nearest_preferred, preferred_at_or_above
+from engine.rules.signal import check_signal_integrity
 from engine.rules.stubs import check_stubs, max_bit_rate_for_stubs_bps, max_stub_by_node_m
 from engine.rules.termination import (
     GAMMA_HOLDS,
@@ -55,6 +56,7 @@ RULES: tuple[RuleCheck, ...] = (
     check_common_mode,
     check_length_vs_rate,
     check_resistor_power,
+    check_signal_integrity,
 )
 CAPACITOR_RATING = "≥ 25 V"  # twice the 12 V the pair can see in a common-mode fault (TIA-485-A range)
 

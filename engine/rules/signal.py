@@ -15,8 +15,9 @@ Rule "signal.confirms": the rules of thumb judge the layout without a waveform; 
 - "termination.may_omit": the bus is simulated without its terminators (or as laid out, if it has none) and
   the worst receiver's verdict is set against the rule's deciding criterion (three round trips settle
   before mid-bit).
-A confirms finding carries the simulation's verdict, so an overridden BREAKS shows up as HOLDS here, with the
-rule's own finding still beside it.
+A stub confirms finding carries the simulation's verdict for the bus as built, so an overridden BREAKS shows up
+as HOLDS here, with the rule's own finding still beside it. The termination confirms finding carries the
+simulated verdict only when the bus has no terminators; with terminators fitted its what-if is advice (HOLDS).
 """
 
 import numpy as np
@@ -25,7 +26,9 @@ from engine.bus import Bus, build_bus
 from engine.findings import Finding, Verdict, worst
 from engine.fixes import ComputedFix, SignalJudgement, compute_fixes, judge_bus, one_driver, pattern_duration_s
 from engine.metrics import RECEIVER_THRESHOLD_V
+from engine.rules.cable_ends import required_ends_m
 from engine.rules.stubs import check_stubs
+from engine.rules.termination import recommended_termination_ohm
 from engine.rules.unterminated import line_may_stay_unterminated
 from engine.units import si_format
 from engine.waveform import step_responses
@@ -71,6 +74,8 @@ def _worst_over_drivers(bus: Bus) -> dict[str, tuple[SignalJudgement, str]]:
     for name in drivers:
         judged = judge_bus(bus, driver_name=name, step=one_driver(steps, name))
         for rx, j in judged.items():
+            if rx == name:  # a node does not listen to itself: its own receiver is not judged while it drives
+                continue
             old = out.get(rx)
             if old is None or _severity(j) > _severity(old[0]):
                 out[rx] = (j, name)
@@ -109,6 +114,12 @@ def check_signal_integrity(bus: Bus) -> list[Finding]:
         if j.reasons:
             detail = "; ".join(j.reasons) + ". " + detail
         fix = ""
+        if j.verdict is Verdict.TIGHT:
+            fix = (
+                f"Margin at '{node.name}'{driven_by} is small ({'; '.join(j.reasons)}). To widen it: shorten its "
+                f"{node.stub_length_m:g} m stub, fit Z0 terminators at both cable ends, or lower the bit rate "
+                f"below {si_format(1.0 / m.bit_time_s, 'bit/s')}; then re-check."
+            )
         if j.verdict is Verdict.BREAKS:
             fix = _fix_text(fixes, node.name) if driver == primary else ""
             if not fix:
@@ -119,7 +130,7 @@ def check_signal_integrity(bus: Bus) -> list[Finding]:
         findings.append(
             Finding(
                 rule_id="signal.integrity",
-                title=f"Simulated waveform at '{node.name}'{driven_by}",
+                title=f"Simulated waveform{driven_by}",
                 verdict=j.verdict,
                 value=m.eye_height_v,
                 limit=2.0 * m.threshold_v,
@@ -158,6 +169,9 @@ def confirm_stub_rule(bus: Bus, judged: dict[str, SignalJudgement] | None = None
                 node=None,
                 criterion="The stub rule passes every stub; the simulation judges every receiver.",
                 source=_SOURCE,
+                fix=""
+                if sim is Verdict.HOLDS
+                else f"Follow the re-simulated fixes of the signal.integrity finding at '{worst_rx.receiver}'.",
                 detail=(
                     f"simulation: worst receiver '{worst_rx.receiver}' {sim.value} with ringback "
                     f"{worst_rx.metrics.undershoot_v:.2f} V and {worst_rx.metrics.threshold_recrossings} re-crossing(s)"
@@ -191,7 +205,7 @@ def confirm_stub_rule(bus: Bus, judged: dict[str, SignalJudgement] | None = None
         out.append(
             Finding(
                 rule_id="signal.confirms",
-                title=f"Stub rule at '{name}' {'confirmed' if agree else 'overridden'} by simulation",
+                title=f"Stub rule {'confirmed' if agree else 'overridden'} by simulation",
                 verdict=with_stub.verdict,
                 value=m.undershoot_v,
                 limit=None,
@@ -199,6 +213,7 @@ def confirm_stub_rule(bus: Bus, judged: dict[str, SignalJudgement] | None = None
                 node=name,
                 criterion="Flagged stubs set to zero in a second simulation; the node's waveform compared.",
                 source=_SOURCE,
+                fix="" if with_stub.verdict is Verdict.HOLDS else rule.fix,
                 detail=f"simulation: {what} -> {word} the stub rule's {rule.verdict.value.upper()}.",
             )
         )
@@ -216,6 +231,7 @@ def confirm_stub_rule(bus: Bus, judged: dict[str, SignalJudgement] | None = None
                 node=None,
                 criterion="Flagged stubs set to zero in a second simulation; waveforms compared.",
                 source=_SOURCE,
+                fix="" if sim is Verdict.HOLDS else "Shorten these stubs as their stub.length findings say.",
                 detail=f"simulation: worst verdict {sim.value} at " + ", ".join(f"'{n}'" for n in rest[:20]) + ".",
             )
         )
@@ -258,16 +274,25 @@ def confirm_termination_rule(bus: Bus, judged: dict[str, SignalJudgement] | None
     agree = sim_ok == may_omit
     rule_says = "may stay unterminated" if may_omit else "needs terminators"
     how = "as laid out (no terminators)" if not plan.terminations else "with its terminators removed"
+    # With terminators fitted the simulation above is a what-if: it tells whether they are needed, it does not
+    # judge the bus as built (rule "signal.integrity" does that). Without terminators it is the bus as built.
+    verdict = sim if not plan.terminations else Verdict.HOLDS
+    fix = ""
+    if verdict is not Verdict.HOLDS:
+        ends = " and ".join(f"{end_m:g} m" for end_m in required_ends_m(bus))
+        value = recommended_termination_ohm(bus, required_ends_m(bus)[0])
+        fix = f"Fit {value:.0f} Ω terminators at the cable ends ({ends}), or lower the bit rate, then re-check."
     return Finding(
         rule_id="signal.confirms",
         title=f"Unterminated-line rule {'confirmed' if agree else 'overridden'} by simulation",
-        verdict=sim,
+        verdict=verdict,
         value=m.eye_height_v,
         limit=2.0 * RECEIVER_THRESHOLD_V,
         unit="V",
         node=None,
         criterion="The bus simulated without terminators; worst receiver against the rule's deciding criterion.",
         source=_SOURCE,
+        fix=fix,
         detail=(
             f"simulation {how}: worst receiver '{worst_rx.receiver}' {sim.value} (eye {m.eye_height_v:.2f} V, "
             f"ringback {m.undershoot_v:.2f} V, {m.threshold_recrossings} re-crossing(s)"

@@ -44,6 +44,8 @@ ALL_RULE_IDS = {
     "length.rate_rule",
     "length.loss",
     "power.resistor",
+    "signal.integrity",
+    "signal.confirms",
 }
 
 
@@ -53,8 +55,8 @@ def _doc(**changes):
     return doc
 
 
-def test_rules_cover_all_eleven_families():
-    assert len(RULES) == 11
+def test_rules_cover_the_eleven_families_and_the_simulation():
+    assert len(RULES) == 12
     report = check_plan(RS485)
     assert {f.rule_id for f in report.findings} == ALL_RULE_IDS
 
