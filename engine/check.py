@@ -15,8 +15,8 @@ from engine import ENGINE_VERSION
 from engine.bus import Bus, build_bus
 from engine.findings import Finding, Verdict, worst
 from engine.plan import BusInputError, BusPlan, TerminationSpec, cross_field_problems, load_plan, plan_to_dict
-from engine.rules.bias import IDLE_TARGET_V, bias_choice, check_failsafe_bias, idle_levels_v
-from engine.rules.cable_ends import nearest_end_m, required_ends_m
+from engine.rules.bias import IDLE_TARGET_V, bias_advice_text, bias_choice, check_failsafe_bias, idle_levels_v
+from engine.rules.cable_ends import nearest_end_m
 from engine.rules.common_mode import check_common_mode
 from engine.rules.length_rate import check_length_vs_rate, max_bit_rate_bps
 from engine.rules.loads import (
@@ -35,10 +35,11 @@ from engine.rules.termination import (
     check_ac_termination,
     check_termination,
     end_match,
+    ends_to_terminate_m,
     rc_capacitance_window_f,
     recommended_termination_ohm,
 )
-from engine.rules.unterminated import check_unterminated, line_may_stay_unterminated
+from engine.rules.unterminated import check_unterminated
 from engine.rules.voltage import check_receiver_voltage
 from engine.units import si_format
 
@@ -93,6 +94,7 @@ class BomItem:
 class PlanSummary:
     terminators: tuple[TerminatorAdvice, ...]
     bias: BiasAdvice | None
+    bias_note: str  # why there is no bias advice when a bias network was wanted but none fits; else ""
     max_stub_m: dict[str, float]
     spare_unit_loads: float
     further_nodes: dict[str, int]
@@ -135,17 +137,16 @@ def check_plan(plan: BusPlan | dict[str, Any]) -> PlanReport:
 def advised_terminations(bus: Bus) -> tuple[TerminationSpec, ...]:
     """Terminators Pairline advises: one per cable end that needs it.
 
-    None when the plan has no terminator and the line may stay unterminated. Where the plan already has exactly
+    The ends are engine.rules.termination.ends_to_terminate_m, the same ends the placement rule asks for.
+    Where the plan already has exactly
     one terminator at an end and it holds (|Gamma| <= 0.05; an RC one also with a capacitor that suits both the
     round trip and the bit), the advice keeps it, so the summary only differs from the plan where a finding asks
     for a change. Otherwise the value is Z0 corrected for the loads lumped at that end (nearest E24), as RC when
     the plan has an RC terminator there and a capacitor suits both the round trip and the bit.
     """
     plan = bus.plan
-    if not plan.terminations and line_may_stay_unterminated(bus):
-        return ()
     advised = []
-    for end in required_ends_m(bus):
+    for end in ends_to_terminate_m(bus):
         at_end = [t for t in plan.terminations if nearest_end_m(bus, t.position_m) == end]
         if len(at_end) == 1 and _terminator_holds(bus, at_end[0]):
             advised.append(at_end[0])
@@ -185,19 +186,23 @@ def summarise(bus: Bus) -> PlanSummary:
         for t, p in zip(terms, powers, strict=True)
     )
     bias = _bias_advice(advised_bus)
+    bias_note = ""
+    if bias is None and (plan.standard == "rs485" or plan.bias is not None):
+        bias_note = "No bias network advised: " + bias_advice_text(advised_bus)
     return PlanSummary(
         terminators=terminators,
         bias=bias,
+        bias_note=bias_note,
         max_stub_m=max_stub_by_node_m(bus),
         spare_unit_loads=spare_unit_loads(bus),
         further_nodes=further_nodes_for_bus(bus),
         max_bit_rate_bps=min(max_bit_rate_bps(bus), max_bit_rate_for_stubs_bps(bus)),
-        bom=_bom(terminators, bias),
+        bom=_bom(bus, terminators, bias),
     )
 
 
 def _bias_advice(advised_bus: Bus) -> BiasAdvice | None:
-    """Bias for the advised terminators; RS-422 only when the plan has a bias network.
+    """Bias for the advised terminators; RS-422 only when the plan has a bias network; None when no pair fits.
 
     The plan's own network is kept when, with the advised terminators, it idles every receiver at >= 250 mV,
     keeps the unit-load budget out of its tight band and the driver load at or above its design value; else
@@ -213,6 +218,9 @@ def _bias_advice(advised_bus: Bus) -> BiasAdvice | None:
         rating_w = rating_to_buy_w(supply_v**2 / min(b.pull_up_ohm, b.pull_down_ohm))
         return BiasAdvice(b.position_m, b.pull_up_ohm, b.pull_down_ohm, supply_v, idle_v, rating_w)
     choice = bias_choice(advised_bus)
+    if not choice.fits:
+        # A pair that held 200 mV would break the unit-load budget or the driver load: advise none.
+        return None
     r_b = choice.resistance_ohm
     return BiasAdvice(choice.position_m, r_b, r_b, supply_v, choice.idle_min_v, rating_to_buy_w(supply_v**2 / r_b))
 
@@ -228,19 +236,34 @@ def _plan_bias_holds(bus: Bus) -> bool:
     )
 
 
-def _bom(terminators: tuple[TerminatorAdvice, ...], bias: BiasAdvice | None) -> tuple[BomItem, ...]:
+def _terminator_note(bus: Bus, t: TerminatorAdvice) -> str:
+    """What the advice changes at this terminator's end, against the plan's own parts there."""
+    at_end = [p for p in bus.plan.terminations if nearest_end_m(bus, p.position_m) == t.position_m]
+    if not at_end:
+        return "added, the plan has none there: see termination.placement"
+    if len(at_end) == 1 and at_end[0].resistance_ohm == t.resistance_ohm:
+        if t.kind == "rc" and at_end[0].capacitance_f != t.capacitance_f:
+            plan_c = si_format(at_end[0].capacitance_f or 0.0, "F")
+            return f"capacitor changed from the plan's {plan_c}: see termination.rc"
+        return "as in the plan"
+    plan_text = " + ".join(si_format(p.resistance_ohm, "Ω") for p in at_end)
+    return f"changed from the plan's {plan_text}: see termination.value"
+
+
+def _bom(bus: Bus, terminators: tuple[TerminatorAdvice, ...], bias: BiasAdvice | None) -> tuple[BomItem, ...]:
+    plan = bus.plan
     items: list[BomItem] = []
-    groups: dict[tuple[float, float], list[float]] = {}
+    groups: dict[tuple[float, float, str], list[float]] = {}
     for t in terminators:
-        groups.setdefault((t.resistance_ohm, t.power_rating_w), []).append(t.position_m)
-    for (r, rating), where in groups.items():
+        groups.setdefault((t.resistance_ohm, t.power_rating_w, _terminator_note(bus, t)), []).append(t.position_m)
+    for (r, rating, change), where in groups.items():
         items.append(
             BomItem(
                 "Terminator resistor (across A and B)",
                 si_format(r, "Ω"),
                 len(where),
                 rating_text(rating),
-                "at " + " and ".join(f"{p:g} m" for p in where),
+                "at " + " and ".join(f"{p:g} m" for p in where) + f"; {change}",
             )
         )
     caps: dict[float, list[float]] = {}
@@ -258,10 +281,23 @@ def _bom(terminators: tuple[TerminatorAdvice, ...], bias: BiasAdvice | None) -> 
             )
         )
     if bias is not None:
-        for item, r in (
-            (f"Bias pull-up resistor ({bias.supply_v:g} V to A)", bias.pull_up_ohm),
-            ("Bias pull-down resistor (B to ground)", bias.pull_down_ohm),
+        plan_bias = plan.bias
+        for item, r, plan_r in (
+            (
+                f"Bias pull-up resistor ({bias.supply_v:g} V to A)",
+                bias.pull_up_ohm,
+                plan_bias and plan_bias.pull_up_ohm,
+            ),
+            ("Bias pull-down resistor (B to ground)", bias.pull_down_ohm, plan_bias and plan_bias.pull_down_ohm),
         ):
+            if plan_bias is None:
+                change = "; added, the plan has no bias network: see bias.idle_level"
+            elif plan_r != r:
+                change = f"; changed from the plan's {si_format(plan_r or 0.0, 'Ω')}: see bias.idle_level"
+            elif plan_bias.position_m != bias.position_m:
+                change = f"; moved from the plan's {plan_bias.position_m:g} m: see bias.idle_level"
+            else:
+                change = "; as in the plan"
             items.append(
                 BomItem(
                     item,
@@ -269,7 +305,8 @@ def _bom(terminators: tuple[TerminatorAdvice, ...], bias: BiasAdvice | None) -> 
                     1,
                     rating_text(bias.power_rating_w),
                     f"at {bias.position_m:g} m; every receiver idles at >= {si_format(bias.idle_v, 'V')}"
-                    + (" with the terminators above" if terminators else ""),
+                    + (" with the terminators above" if terminators else "")
+                    + change,
                 )
             )
     return tuple(items)
@@ -298,6 +335,7 @@ def finding_to_dict(finding: Finding) -> dict[str, Any]:
         "source": finding.source,
         "fix": finding.fix,
         "detail": finding.detail,
+        "limit_kind": finding.limit_kind,
     }
 
 
@@ -351,8 +389,11 @@ def report_to_dict(report: PlanReport) -> dict[str, Any]:
                 "idle_v": _json_float(bias.idle_v),
                 "power_rating_w": bias.power_rating_w,
             },
+            "bias_note": s.bias_note,
             "max_stub_m": {name: _json_float(v) for name, v in s.max_stub_m.items()},
             "spare_unit_loads": _json_float(s.spare_unit_loads),
+            # RS-422 counts receivers, not unit loads: the receivers one driver may still feed (negative: over).
+            "spare_receivers": int(s.spare_unit_loads) if report.plan.standard == "rs422" else None,
             "further_nodes": dict(s.further_nodes),
             "max_bit_rate_bps": _json_float(s.max_bit_rate_bps),
             "bom": [

@@ -37,3 +37,9 @@ class Finding:
     source: str  # where the criterion comes from
     fix: str = ""  # a concrete sentence; empty when nothing needs doing
     detail: str = ""  # further numbers or explanation
+    # Direction of the limit: "max" the value must stay at or below it, "min" at or above it,
+    # "none" the limit is informational (no direction).
+    limit_kind: str = "max"
+
+
+LIMIT_KINDS = ("max", "min", "none")

@@ -174,12 +174,16 @@ def problems_envelope(problems: Sequence[Problem]) -> dict[str, Any]:
     }
 
 
+# How a limit reads beside its value: "max" value <= limit, "min" value >= limit, "none" for information.
+_LIMIT_SIGN = {"max": "≤ ", "min": "≥ ", "none": "for reference: "}
+
+
 def _finding_line(f: Finding, indent: str) -> list[str]:
     head = f"{indent}[{_MARK[f.verdict]}] " + (f"node '{f.node}': " if f.node else "") + f.title
     if f.value is not None:
         head += f": {quantity_text(f.value, f.unit)}"
     if f.limit is not None:
-        head += f" (limit {quantity_text(f.limit, f.unit)})"
+        head += f" ({_LIMIT_SIGN.get(f.limit_kind, 'limit ')}{quantity_text(f.limit, f.unit)})"
     lines = [head]
     if f.verdict is not Verdict.HOLDS:
         lines.append(f"{indent}          criterion: {f.criterion}")
@@ -215,7 +219,7 @@ def _terminator_summary(report: PlanReport) -> list[str]:
 def _bias_summary(report: PlanReport) -> list[str]:
     b, planned = report.summary.bias, report.plan.bias
     if b is None:
-        return []
+        return [f"  Failsafe bias: {report.summary.bias_note}"] if report.summary.bias_note else []
     as_planned = planned is not None and (planned.position_m, planned.pull_up_ohm, planned.pull_down_ohm) == (
         b.position_m,
         b.pull_up_ohm,
@@ -288,11 +292,22 @@ def report_text(report: PlanReport, path: str = "") -> str:
     out += ["", "Summary (the bus as Pairline advises it; where the plan already holds, its own parts are kept)"]
     out += _terminator_summary(report)
     out += _bias_summary(report)
-    out.append(f"  Highest bit rate the rules allow: {quantity_text(s.max_bit_rate_bps, 'bit/s')}")
-    further = ", ".join(f"{n} of {label}" for label, n in s.further_nodes.items())
-    out.append(
-        f"  Spare unit loads in the plan: {s.spare_unit_loads:.3g}" + (f"; room for {further}" if further else "")
-    )
+    if s.max_bit_rate_bps is None:
+        out.append("  Highest bit rate the rules allow: no rate: the trunk is too long for these rules")
+    else:
+        out.append(f"  Highest bit rate the rules allow: {quantity_text(s.max_bit_rate_bps, 'bit/s')}")
+    if plan.standard == "rs422":
+        spare = int(s.spare_unit_loads)
+        out.append(
+            f"  Spare receivers: {spare} (one RS-422 driver feeds at most 10)"
+            if spare >= 0
+            else f"  Spare receivers: none; {-spare} receiver(s) over the 10 one RS-422 driver feeds"
+        )
+    else:
+        further = ", ".join(f"{n} of {label}" for label, n in s.further_nodes.items())
+        out.append(
+            f"  Spare unit loads in the plan: {s.spare_unit_loads:.3g}" + (f"; room for {further}" if further else "")
+        )
     if s.bom:
         out.append("  Bill of materials:")
         for item in s.bom:

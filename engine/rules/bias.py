@@ -266,6 +266,7 @@ def check_failsafe_bias(bus: Bus) -> list[Finding]:
                 detail="With every driver off the pair idles at 0 V, inside the undefined band. "
                 + FAILSAFE_NOTE
                 + rs422_note,
+                limit_kind="none" if rs422 else "min",
             )
         ]
     b = bus.plan.bias
@@ -298,5 +299,6 @@ def check_failsafe_bias(bus: Bus) -> list[Finding]:
             SOURCE,
             fix=fix,
             detail=detail,
+            limit_kind="min",
         )
     ]

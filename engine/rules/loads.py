@@ -218,6 +218,7 @@ def _check_rs422_receivers(bus: Bus) -> list[Finding]:
                     source=_422_SOURCE,
                     fix=f"Use a receiver at node '{node.name}' of 3 UL or less (input >= 4 kΩ).",
                     detail=f"{node.unit_loads:g} UL -> {r_in:.0f} Ω.",
+                    limit_kind="min",
                 )
             )
     return findings
@@ -308,6 +309,7 @@ def check_driver_load(bus: Bus) -> list[Finding]:
             ),
             fix="" if verdict is Verdict.HOLDS else _driver_load_fix(bus, design),
             detail=detail,
+            limit_kind="min",
         )
     ]
 

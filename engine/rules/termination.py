@@ -79,6 +79,19 @@ def recommended_termination_ohm(bus: Bus, end_m: float) -> float:
     return corrected_termination_ohm(bus.cable.z0_ohm, lumped_load_ohm(bus, end_m))
 
 
+def ends_to_terminate_m(bus: Bus) -> tuple[float, ...]:
+    """Cable ends that must carry a terminator on this bus: the one answer the placement rule and the summary share.
+
+    When the line needs terminators (engine.rules.unterminated), every end of required_ends_m. When it may stay
+    unterminated, only those required ends where the plan already has a terminator (keeping one there is
+    harmless; adding one elsewhere is not needed).
+    """
+    required = required_ends_m(bus)
+    if not line_may_stay_unterminated(bus):
+        return required
+    return tuple(end for end in required if any(nearest_end_m(bus, t.position_m) == end for t in bus.plan.terminations))
+
+
 # --- placement and value --------------------------------------------------------------------------------
 
 
@@ -93,6 +106,7 @@ def _placement_findings(bus: Bus) -> list[Finding]:
     plan = bus.plan
     tol = end_tolerance_m(bus)
     required = required_ends_m(bus)
+    to_terminate = ends_to_terminate_m(bus)
     needs = not line_may_stay_unterminated(bus)
     misplaced = Verdict.BREAKS if needs else Verdict.TIGHT
     at_end: dict[float, list[TerminationSpec]] = {0.0: [], plan.trunk_length_m: []}
@@ -137,7 +151,7 @@ def _placement_findings(bus: Bus) -> list[Finding]:
         name = end_name(bus, end)
         resistor = f"{nearest_preferred(recommended_termination_ohm(bus, end)):g} Ω"
         if not terms:
-            if needs:
+            if end in to_terminate:
                 add(
                     f"No terminator at {name}",
                     Verdict.BREAKS,
@@ -377,6 +391,7 @@ def check_ac_termination(bus: Bus) -> list[Finding]:
                 f"RC {si_format(tau, 's')}; round trip {si_format(round_trip, 's')} (holds from "
                 f"{si_format(RC_ROUND_TRIPS_HOLDS * round_trip, 's')}). A shorter RC lets the capacitor charge "
                 "while reflections still arrive, so the end is no longer matched.",
+                limit_kind="min",
             )
         )
         settle_s = RC_SETTLE_TIME_CONSTANTS * tau
@@ -415,6 +430,7 @@ __all__ = [
     "check_termination",
     "corrected_termination_ohm",
     "end_match",
+    "ends_to_terminate_m",
     "GAMMA_HOLDS",
     "placement_verdict",
     "rc_capacitance_window_f",

@@ -192,6 +192,9 @@ def check_unterminated(bus: Bus) -> list[Finding]:
             source=deciding.source,
             fix=fix,
             detail=" ".join([head, why, *map(_criterion_line, criteria)]),
+            # The limit is the deciding criterion for leaving the line open; when the line needs terminators
+            # the numbers only explain why, so the limit carries no direction for the verdict.
+            limit_kind="max" if deciding.holds else "none",
         )
     ]
 

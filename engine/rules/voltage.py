@@ -235,6 +235,7 @@ def check_receiver_voltage(bus: Bus) -> list[Finding]:
                 SOURCE,
                 fix="Check the plan's cable and load values; the DC solve could not be done.",
                 detail=f"solve failed: {exc}",
+                limit_kind="min",
             )
         ]
     v_oc = bus.driver.open_circuit_v
@@ -274,6 +275,7 @@ def check_receiver_voltage(bus: Bus) -> list[Finding]:
                 SOURCE,
                 fix="" if verdict is Verdict.HOLDS else _fix(bus, name, v_rx, v_bias),
                 detail=detail + ".",
+                limit_kind="min",
             )
         )
     return findings

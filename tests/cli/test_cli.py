@@ -152,3 +152,29 @@ def test_per_node_lines_name_the_node(tmp_path, capsys):
     assert main(["check", _write(tmp_path, doc)]) == 1
     out = capsys.readouterr().out
     assert "[BREAKS] node 'meter-1': Stub length" in out
+
+
+def test_limits_print_their_direction(tmp_path, capsys):
+    # Source: TIA-485-A: the driver load is a minimum (>= 54 Ohm); a stub's length is a maximum
+    # (TI SLLA272: stub delay <= a tenth of the rise time).
+    main(["check", _write(tmp_path, GOOD)])
+    out = capsys.readouterr().out
+    driver_line = next(line for line in out.splitlines() if "Load on the driver" in line)
+    assert "(≥ 54 Ω)" in driver_line
+    assert "(limit " not in out
+
+
+def test_rs422_summary_counts_receivers_not_unit_loads(tmp_path, capsys):
+    # Source: TIA/EIA-422-B: one driver feeds at most 10 receivers; 8 receivers leave 2.
+    doc = {
+        "standard": "rs422",
+        "bit_rate_bps": 9600,
+        "trunk_length_m": 100.0,
+        "driver": {"name": "head", "position_m": 0.0, "transceiver": "slew-2500ns"},
+        "nodes": [{"name": f"rx-{i}", "position_m": 10.0 * (i + 1)} for i in range(8)],
+        "terminations": [{"position_m": 100.0, "resistance_ohm": 120.0}],
+    }
+    main(["check", _write(tmp_path, doc)])
+    out = capsys.readouterr().out
+    assert "Spare receivers: 2" in out
+    assert "Spare unit loads" not in out

@@ -8,7 +8,7 @@ import pytest
 from engine import ENGINE_VERSION
 from engine.check import RULES, check_plan, finding_to_dict, report_to_dict
 from engine.findings import Finding, Verdict, worst
-from engine.plan import BusInputError, BusPlan, load_plan
+from engine.plan import BusInputError, BusPlan, load_plan, plan_to_dict
 from engine.rules.length_rate import max_bit_rate_bps
 from engine.rules.power import rating_to_buy_w
 from engine.rules.stubs import max_bit_rate_for_stubs_bps, max_stub_length_m
@@ -189,3 +189,93 @@ def test_plan_built_without_cross_field_checks_is_refused():
 
 def test_validated_plan_and_dict_give_the_same_report():
     assert check_plan(load_plan(RS485)).findings == check_plan(RS485).findings
+
+
+def _full_bus_doc(unit_loads_each: float = 1.0) -> dict:
+    # 31 nodes + the driver's own receiver = 32 receivers over 1000 m, both ends 120 Ohm.
+    return {
+        "standard": "rs485",
+        "bit_rate_bps": 9600,
+        "trunk_length_m": 1000.0,
+        "driver": {"name": "head", "position_m": 0.0, "transceiver": "slew-2500ns"},
+        "nodes": [
+            {"name": f"n{i}", "position_m": 1000.0 * (i + 1) / 31, "unit_loads": unit_loads_each} for i in range(31)
+        ],
+        "terminations": [{"position_m": 0.0, "resistance_ohm": 120.0}, {"position_m": 1000.0, "resistance_ohm": 120.0}],
+    }
+
+
+def test_summary_advises_no_bias_when_no_pair_fits_the_unit_load_budget():
+    # Source: TIA-485-A (32 UL per driver; 54 Ohm design load) and TI SLLA272 (bias networks consume unit
+    # loads): with 32 UL already on the pair any bias pair strong enough for 200 mV over 60 Ohm breaks a budget.
+    report = check_plan(_full_bus_doc())
+    bias_finding = next(f for f in report.findings if f.rule_id == "bias.idle_level")
+    assert "no pull-up / pull-down pair fits" in bias_finding.fix
+    assert report.summary.bias is None
+    assert "failsafe thresholds" in report.summary.bias_note
+    assert not any("Bias" in item.item for item in report.summary.bom)
+    assert report_to_dict(report)["summary"]["bias_note"] == report.summary.bias_note
+
+
+def test_summary_bias_never_breaks_the_load_rules_it_is_checked_by():
+    # Source: TIA-485-A (32 UL, 54 Ohm): the advised bus, bias included, must not break the loading rules.
+    from engine.bus import Bus
+    from engine.rules.loads import check_driver_load, check_unit_loads
+
+    for ul in (1.0, 0.5, 0.25, 0.125):
+        report = check_plan(_full_bus_doc(ul))
+        b = report.summary.bias
+        if b is None:
+            continue
+        advised = plan_to_dict(report.plan)
+        advised["bias"] = {"position_m": b.position_m, "pull_up_ohm": b.pull_up_ohm, "pull_down_ohm": b.pull_down_ohm}
+        bus = Bus(plan=load_plan(advised), cable=report.bus.cable, driver=report.bus.driver)
+        for f in check_unit_loads(bus) + check_driver_load(bus):
+            assert f.verdict is not Verdict.BREAKS, (ul, f.rule_id, f.value)
+
+
+def test_summary_and_placement_agree_on_an_rs422_end_that_needs_no_terminator():
+    # Source: National Semiconductor AN-903 (RS-422 driver mid-bus: both ends are candidates); B&B RS-422/485
+    # application note (three round trips before mid-bit: the line may stay unterminated at 9600 bit/s).
+    doc = {
+        "standard": "rs422",
+        "bit_rate_bps": 9600,
+        "trunk_length_m": 400.0,
+        "driver": {"name": "head", "position_m": 200.0, "transceiver": "edge-100ns"},
+        "nodes": [{"name": "a", "position_m": 0.0}, {"name": "b", "position_m": 400.0}],
+        "terminations": [{"position_m": 400.0, "resistance_ohm": 120.0}],
+    }
+    report = check_plan(doc)
+    open_end = [f for f in report.findings if f.rule_id == "termination.placement" and "at the 0 m end" in f.title]
+    assert [f.verdict for f in open_end] == [Verdict.HOLDS]
+    assert [t.position_m for t in report.summary.terminators] == [400.0]
+
+
+def test_bom_notes_say_where_the_advice_changes_the_plan():
+    # Source: H. Johnson, M. Graham, High-Speed Digital Design, sec. 4.4: R_T = Z0/(1 - Z0/R_P); a 1.5 kOhm bias
+    # network lumped at the end (R_P = 3 kOhm) moves the ideal 120 Ohm terminator to 125 Ohm, E24 130 Ohm.
+    doc = _doc(
+        bit_rate_bps=115_200,
+        terminations=[{"position_m": 0.0, "resistance_ohm": 100.0}, {"position_m": 1000.0, "resistance_ohm": 120.0}],
+    )
+    report = check_plan(doc)
+    notes = {item.value: item.note for item in report.summary.bom if "Terminator resistor" in item.item}
+    changed = [n for n in notes.values() if "changed from the plan's 100 Ω: see termination.value" in n]
+    assert changed, notes
+
+
+def test_limit_kind_says_which_side_of_the_limit_holds():
+    # Source: TIA-485-A: the driver must drive a load of at least 54 Ohm (a minimum); receiver threshold
+    # 200 mV is a minimum level; the 32 UL budget is a maximum.
+    from engine.findings import LIMIT_KINDS
+
+    report = check_plan(RS485)
+    assert all(f.limit_kind in LIMIT_KINDS for f in report.findings)
+    kinds = {f.rule_id: f.limit_kind for f in report.findings if f.node is None}
+    assert kinds["load.driver"] == "min"
+    assert kinds["bias.idle_level"] == "min"
+    assert kinds["load.unit_loads"] == "max"
+    assert all(f.limit_kind == "min" for f in report.findings if f.rule_id == "signal.dc_level" and f.node)
+    rc_tau = [f for f in report.findings if f.rule_id == "termination.rc" and "time constant" in f.title]
+    assert rc_tau and all(f.limit_kind == "min" for f in rc_tau)
+    assert {d["limit_kind"] for d in report_to_dict(report)["findings"]} <= set(LIMIT_KINDS)
