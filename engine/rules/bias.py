@@ -25,7 +25,7 @@ from engine.rules.loads import (
     RS485_UNIT_LOAD_BUDGET,
     bias_supply_v,
     bias_unit_loads,
-    design_load_ohm,
+    driver_load_holds_ohm,
     receiver_loads_ohm,
     unit_load_parts,
 )
@@ -120,7 +120,8 @@ def bias_min_ohm(bus: Bus) -> float:
 
     Unit loads: the bias is rated like a load (engine.rules.loads.bias_unit_loads, which scales as 1 / R),
     and nodes + driver's receiver + bias must stay within 32 UL (TIA-485-A). Driver load:
-    terminators || receivers || 2 R_B must stay at or above the 54 Ohm design load (TIA-485-A).
+    terminators || receivers || 2 R_B must stay at or above the level where rule load.driver holds (the 51.7 Ohm
+    full bus the 54 Ohm test load stands for; TIA-485-A, TI SLLA628).
     """
     if bus.plan.standard != "rs485":
         return 0.0
@@ -129,7 +130,7 @@ def bias_min_ohm(bus: Bus) -> float:
     headroom_ul = RS485_UNIT_LOAD_BUDGET - used_ul
     r_ul = bias_unit_loads(1.0, 1.0) / headroom_ul if headroom_ul > 0 else math.inf
     rest_ohm = parallel_ohm(*[t.resistance_ohm for t in bus.plan.terminations], *receiver_loads_ohm(bus))
-    design_ohm = design_load_ohm("rs485")
+    design_ohm = driver_load_holds_ohm("rs485")
     r_load = 0.5 / (1.0 / design_ohm - 1.0 / rest_ohm) if rest_ohm > design_ohm else 0.0
     return max(r_ul, r_load)
 

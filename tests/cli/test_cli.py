@@ -155,12 +155,12 @@ def test_per_node_lines_name_the_node(tmp_path, capsys):
 
 
 def test_limits_print_their_direction(tmp_path, capsys):
-    # Source: TIA-485-A: the driver load is a minimum (>= 54 Ohm); a stub's length is a maximum
-    # (TI SLLA272: stub delay <= a tenth of the rise time).
+    # Source: TIA-485-A and TI SLLA628: the driver load is a minimum, the full bus 120 || 120 || 32 UL = 51.7 Ohm
+    # that the 54 Ohm test load stands for.
     main(["check", _write(tmp_path, GOOD)])
     out = capsys.readouterr().out
     driver_line = next(line for line in out.splitlines() if "Load on the driver" in line)
-    assert "(≥ 54 Ω)" in driver_line
+    assert "(≥ 51.7 Ω)" in driver_line
     assert "(limit " not in out
 
 
