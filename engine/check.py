@@ -98,7 +98,7 @@ class PlanSummary:
     max_stub_m: dict[str, float]
     spare_unit_loads: float
     further_nodes: dict[str, int]
-    max_bit_rate_bps: float
+    max_bit_rate_bps: float | None  # None: no rate fits, the trunk is too long for the length rules
     bom: tuple[BomItem, ...]
 
 
@@ -196,9 +196,15 @@ def summarise(bus: Bus) -> PlanSummary:
         max_stub_m=max_stub_by_node_m(bus),
         spare_unit_loads=spare_unit_loads(bus),
         further_nodes=further_nodes_for_bus(bus),
-        max_bit_rate_bps=min(max_bit_rate_bps(bus), max_bit_rate_for_stubs_bps(bus)),
+        max_bit_rate_bps=_max_rate_bps(bus),
         bom=_bom(bus, terminators, bias),
     )
+
+
+def _max_rate_bps(bus: Bus) -> float | None:
+    """Highest bit rate the length and stub rules allow; None when no rate makes the length fit."""
+    length_bps = max_bit_rate_bps(bus)
+    return None if length_bps is None else min(length_bps, max_bit_rate_for_stubs_bps(bus))
 
 
 def _bias_advice(advised_bus: Bus) -> BiasAdvice | None:

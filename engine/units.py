@@ -12,6 +12,21 @@ def ft_from_m(length_m: float) -> float:
     return length_m / 0.3048
 
 
+def length_text(length_m: float, display_units: str = "metric") -> str:
+    """A length for a sentence in the plan's display units: "984 m"; imperial "3230 ft (984 m)".
+
+    Below 1 m metric lengths read in cm ("45 cm"); 3 significant digits, whole numbers from 100 up.
+    """
+
+    def plain(value: float, unit: str) -> str:
+        return f"{value:.0f} {unit}" if abs(value) >= 100.0 else f"{value:.3g} {unit}"
+
+    metric = f"{length_m * 100:.3g} cm" if 0.0 < length_m < 1.0 else plain(length_m, "m")
+    if display_units == "imperial":
+        return f"{plain(ft_from_m(length_m), 'ft')} ({metric})"
+    return metric
+
+
 def s_from_ns(time_ns: float) -> float:
     return time_ns * 1e-9
 

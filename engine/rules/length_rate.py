@@ -5,19 +5,17 @@ driver; on RS-485 also transceiver nodes) along its stub, the trunk and the rece
 
 1. "length.rate_rule": length (m) x rate (bit/s) <= 1e8, the trade's rule of thumb (100 kbit/s -> 1000 m,
    10 Mbit/s -> 10 m). Over 80 % of it is tight (Pairline's own margin).
-2. "length.loss": the cable's attenuation over that length at f = bit rate, from the closed form for a
-   low-loss line
-
-       alpha = R(f) / (2 Z0) + G(f) Z0 / 2   [Np/m],   loss_dB = 20 log10(e) alpha L,
-
-   with R(f) the pair's loop resistance 2 R' raised by skin effect, R_dc max(1, sqrt(f / f_onset)), and
-   G(f) = 2 pi f C' tan(delta). Over 9 dB breaks (the loss rule for RS-485 on twisted pair, D. Glisic,
-   EE Times 2008); over 6 dB is tight (the 6 dB loss criterion quoted for the TIA/EIA-422-B Annex A curve).
-   The closed form is the high-frequency approximation (valid where R << 2 pi f L, above about 100 kHz on
-   24 AWG). Below that it is not the line's attenuation constant Re(gamma), which falls towards 0 with f, but
-   it stays close to and above the DC insertion loss between Z0 terminations, ln(1 + R L / 2 Z0) Np against
-   R L / 2 Z0 Np (1150 m of 24 AWG: 5.1 dB against 7.0 dB), so the rule is conservative at low rates. The exact
-   DC level at each receiver is what rule "signal.dc_level" checks.
+2. "length.loss": a loss limit in two regimes, split at 90 kbit/s where the TIA/EIA-422-B Annex A curve
+   turns from its flat part to its falling part (J. Axelson, Serial Port Complete, ch. 6; TIA/EIA-422-B Annex A).
+   - Below 90 kbit/s the Annex's length is flat at 1200 m (4000 ft) on its 24 AWG reference cable: at such
+     rates the line is limited by its resistance, not by its attenuation at f = rate. The path is held
+     against 1200 m scaled by the cable's conductor resistance against 24 AWG (84.2 Ohm/km per conductor,
+     ASTM B258): L_max = 1200 m x min(1, 84.2 mOhm/m / R'). Over 90 % of it is tight (Pairline's margin).
+   - From 90 kbit/s the cable's exact attenuation at f = bit rate, alpha = Re(gamma) from
+     engine.line.propagation_constant_per_m (skin effect and dielectric loss included), loss_dB = 8.686 alpha L:
+     over 9 dB breaks (the loss rule for RS-485 on twisted pair, D. Glisic, EE Times 2008); over 6 dB is
+     tight (the 6 dB loss criterion quoted for the Annex A curve).
+   The exact DC level at each receiver is what rule "signal.dc_level" checks.
 """
 
 import math
@@ -26,6 +24,8 @@ import numpy as np
 
 from engine.bus import Bus
 from engine.findings import Finding, Verdict
+from engine.line import propagation_constant_per_m
+from engine.units import length_text
 
 RATE_RULE_ID = "length.rate_rule"
 LOSS_RULE_ID = "length.loss"
@@ -34,20 +34,53 @@ TIGHT_FRACTION = 0.8  # Pairline's own margin on the rule of thumb
 LOSS_LIMIT_DB = 9.0  # D. Glisic, "Getting the most out of your twisted pair cable", EE Times, 2008
 LOSS_TIGHT_DB = 6.0  # loss criterion quoted for the TIA/EIA-422-B Annex A length-vs-rate curve
 NEPER_DB = 20.0 / math.log(10.0)  # 8.686 dB per neper
+PLATEAU_RATE_BPS = 90e3  # TIA/EIA-422-B Annex A: below it the curve is flat (J. Axelson, Serial Port Complete)
+PLATEAU_LENGTH_M = 1200.0  # TIA/EIA-422-B Annex A: 4000 ft on 24 AWG
+PLATEAU_TIGHT_FRACTION = 0.9  # Pairline's own margin on the plateau
+REFERENCE_RESISTANCE_OHM_PER_M = 0.0842  # 24 AWG copper per conductor, ASTM B258
 MIN_RATE_BPS = 50.0  # the plan's lowest bit rate
 MAX_RATE_BPS = 100e6  # the plan's highest bit rate
 RATE_SOURCE = (
     "length (m) x bit rate (bit/s) <= 1e8: common practice, a rule of thumb below the TIA/EIA-422-B Annex A curve"
 )
 LOSS_SOURCE = (
-    "Attenuation <= 9 dB at f = bit rate: D. Glisic, 'Getting the most out of your twisted pair cable', EE Times "
-    "2008; 6 dB loss criterion: TIA/EIA-422-B Annex A; alpha = R/(2 Z0) + G Z0/2: low-loss transmission-line "
-    "theory (e.g. D. M. Pozar, Microwave Engineering, sec. 2.7)"
+    "Below 90 kbit/s: the 1200 m (4000 ft) plateau of the TIA/EIA-422-B Annex A length-vs-rate curve (24 AWG, "
+    "ASTM B258 84.2 Ω/km); from 90 kbit/s: attenuation <= 9 dB at f = bit rate, D. Glisic, 'Getting the most out "
+    "of your twisted pair cable', EE Times 2008, and the 6 dB criterion of TIA/EIA-422-B Annex A; alpha = "
+    "Re(sqrt(Z' Y')), D. M. Pozar, Microwave Engineering, eq. 2.5"
 )
 
 
-def loop_resistance_ohm_per_m(bus: Bus, frequency_hz: float) -> float:
-    """Series resistance of the pair per metre of run at f: 2 R' max(1, sqrt(f / f_onset))."""
+def attenuation_np_per_m(bus: Bus, frequency_hz: float) -> float:
+    """The cable's attenuation constant alpha = Re(gamma) at f in Np/m, gamma = sqrt(Z' Y').
+
+    Source: D. M. Pozar, Microwave Engineering, 4th ed., eq. 2.5 (engine.line.propagation_constant_per_m).
+    """
+    return float(propagation_constant_per_m(bus.cable, frequency_hz).real[0])
+
+
+def plateau_length_m(bus: Bus) -> float:
+    """Longest path below 90 kbit/s: 1200 m x min(1, R'_24AWG / R'), the Annex A plateau scaled by resistance."""
+    r_ohm_per_m = bus.cable.resistance_ohm_per_m
+    if r_ohm_per_m <= REFERENCE_RESISTANCE_OHM_PER_M:
+        return PLATEAU_LENGTH_M
+    return PLATEAU_LENGTH_M * REFERENCE_RESISTANCE_OHM_PER_M / r_ohm_per_m
+
+
+def line_loss_db(bus: Bus, frequency_hz: float, length_m: float) -> float:
+    """Cable attenuation over length_m at frequency_hz in dB: 8.686 alpha L with the exact alpha = Re(gamma)."""
+    return NEPER_DB * attenuation_np_per_m(bus, frequency_hz) * length_m
+
+
+def loss_limit_length_m(bus: Bus, rate_bps: float) -> float:
+    """Longest path rule "length.loss" allows at a bit rate: the plateau below 90 kbit/s, else 9 dB / loss per m."""
+    if rate_bps < PLATEAU_RATE_BPS:
+        return plateau_length_m(bus)
+    per_m_db = line_loss_db(bus, rate_bps, 1.0)
+    return LOSS_LIMIT_DB / per_m_db if per_m_db > 0.0 else math.inf
+
+
+def _loop_resistance_ohm_per_m(bus: Bus, frequency_hz: float) -> float:
     r_dc = 2.0 * bus.cable.resistance_ohm_per_m
     onset = bus.cable.skin_effect_onset_hz
     if onset is None or frequency_hz <= onset:
@@ -55,16 +88,16 @@ def loop_resistance_ohm_per_m(bus: Bus, frequency_hz: float) -> float:
     return r_dc * math.sqrt(frequency_hz / onset)
 
 
-def attenuation_np_per_m(bus: Bus, frequency_hz: float) -> float:
-    """Low-loss attenuation constant: alpha = R(f) / (2 Z0) + G(f) Z0 / 2, G = 2 pi f C' tan(delta)."""
+def loss_db(bus: Bus, frequency_hz: float, length_m: float) -> float:
+    """Low-loss closed form 8.686 (R(f) / (2 Z0) + G Z0 / 2) L in dB, R(f) = 2 R' max(1, sqrt(f / f_onset)).
+
+    Not used by the rules any more (they use line_loss_db and the plateau); kept for the length-rate plot,
+    which should move to loss_limit_length_m. Source: D. M. Pozar, Microwave Engineering, sec. 2.7.
+    """
     z0 = bus.cable.z0_ohm
     g_siemens_per_m = 2.0 * math.pi * frequency_hz * bus.cable.capacitance_f_per_m * bus.cable.dielectric_loss_tangent
-    return loop_resistance_ohm_per_m(bus, frequency_hz) / (2.0 * z0) + g_siemens_per_m * z0 / 2.0
-
-
-def loss_db(bus: Bus, frequency_hz: float, length_m: float) -> float:
-    """Cable attenuation over length_m at frequency_hz in dB: 8.686 alpha L."""
-    return NEPER_DB * attenuation_np_per_m(bus, frequency_hz) * length_m
+    alpha = _loop_resistance_ohm_per_m(bus, frequency_hz) / (2.0 * z0) + g_siemens_per_m * z0 / 2.0
+    return NEPER_DB * alpha * length_m
 
 
 def signal_path_m(bus: Bus) -> float:
@@ -79,31 +112,37 @@ def signal_path_m(bus: Bus) -> float:
     return float(path_m.max())
 
 
-def loss_limited_rate_bps(bus: Bus, length_m: float, limit_db: float = LOSS_LIMIT_DB) -> float:
-    """Highest bit rate whose attenuation at f = rate stays within limit_db over length_m (bisection in log f).
-
-    Returns 0.0 when even the lowest rate exceeds the limit, MAX_RATE_BPS when the highest stays within it.
+def loss_limited_rate_bps(bus: Bus, length_m: float, limit_db: float = LOSS_LIMIT_DB) -> float | None:
+    """Highest bit rate the loss rule allows over length_m; None when no rate does (the path is longer than the
+    plateau). Below 90 kbit/s the plateau decides; from 90 kbit/s the attenuation at f = rate stays within limit_db
+    (bisection in log f). MAX_RATE_BPS when the highest rate stays within it.
     """
-    if loss_db(bus, MIN_RATE_BPS, length_m) > limit_db:
-        return 0.0
-    if loss_db(bus, MAX_RATE_BPS, length_m) <= limit_db:
+    if length_m > plateau_length_m(bus):
+        return None
+    if line_loss_db(bus, PLATEAU_RATE_BPS, length_m) > limit_db:
+        return PLATEAU_RATE_BPS
+    if line_loss_db(bus, MAX_RATE_BPS, length_m) <= limit_db:
         return MAX_RATE_BPS
-    lo, hi = math.log(MIN_RATE_BPS), math.log(MAX_RATE_BPS)
+    lo, hi = math.log(PLATEAU_RATE_BPS), math.log(MAX_RATE_BPS)
     for _ in range(60):
         mid = 0.5 * (lo + hi)
-        if loss_db(bus, math.exp(mid), length_m) <= limit_db:
+        if line_loss_db(bus, math.exp(mid), length_m) <= limit_db:
             lo = mid
         else:
             hi = mid
     return math.exp(lo)
 
 
-def max_bit_rate_bps(bus: Bus) -> float:
-    """Highest bit rate both rules allow on this bus: min(1e8 / length, loss-limited rate at 9 dB)."""
+def max_bit_rate_bps(bus: Bus) -> float | None:
+    """Highest bit rate both rules allow on this bus: min(1e8 / length, loss-limited rate); None when the path is
+    too long for any rate."""
     length_m = signal_path_m(bus)
     if length_m <= 0.0:
         return MAX_RATE_BPS
-    return min(LENGTH_RATE_PRODUCT_M_BPS / length_m, loss_limited_rate_bps(bus, length_m), MAX_RATE_BPS)
+    loss_rate = loss_limited_rate_bps(bus, length_m)
+    if loss_rate is None:
+        return None
+    return min(LENGTH_RATE_PRODUCT_M_BPS / length_m, loss_rate, MAX_RATE_BPS)
 
 
 def check_length_vs_rate(bus: Bus) -> list[Finding]:
@@ -118,6 +157,7 @@ def check_length_vs_rate(bus: Bus) -> list[Finding]:
         if length_m > TIGHT_FRACTION * rate_limit_m
         else Verdict.HOLDS
     )
+    units = bus.plan.display_units
     best_bps = max_bit_rate_bps(bus)
     repeater = "or split the bus with a repeater (each segment gets its own length budget)"
     rate_fix = (
@@ -125,28 +165,14 @@ def check_length_vs_rate(bus: Bus) -> list[Finding]:
         if rate_verdict is Verdict.HOLDS
         else f"Lower the bit rate to at most {_rate_text(LENGTH_RATE_PRODUCT_M_BPS / max(length_m, 1e-9), floor=True)}"
         ", "
-        f"or shorten the longest path from {length_m:.0f} m to at most {rate_limit_m:.0f} m, {repeater}."
+        f"or shorten the longest path from {length_text(length_m, units)} to at most "
+        f"{length_text(rate_limit_m, units)}, {repeater}."
     )
-    loss = loss_db(bus, rate, length_m)
-    loss_verdict = Verdict.BREAKS if loss > LOSS_LIMIT_DB else Verdict.TIGHT if loss > LOSS_TIGHT_DB else Verdict.HOLDS
     loss_rate = loss_limited_rate_bps(bus, length_m)
-    alpha = attenuation_np_per_m(bus, rate)
-    max_len_m = LOSS_LIMIT_DB / (NEPER_DB * alpha) if alpha > 0 else math.inf
-    loss_fix = ""
-    if loss_verdict is not Verdict.HOLDS:
-        target_db = LOSS_LIMIT_DB if loss_verdict is Verdict.BREAKS else LOSS_TIGHT_DB
-        target_rate = loss_limited_rate_bps(bus, length_m, target_db)
-        target_len_m = target_db / (NEPER_DB * alpha)
-        steps = []
-        if 0.0 < target_rate < rate:
-            steps.append(f"lower the bit rate to at most {_rate_text(target_rate, floor=True)}")
-        steps.append(f"shorten the path to at most {target_len_m:.0f} m")
-        steps.append("use a lower-loss pair (thicker gauge, e.g. 22 AWG)")
-        loss_fix = (
-            f"Bring the loss ({loss:.1f} dB over {length_m:.0f} m) under {target_db:g} dB: "
-            + ", ".join(steps)
-            + f", {repeater}."
-        )
+    if rate < PLATEAU_RATE_BPS:
+        loss_finding = _plateau_finding(bus, length_m, repeater)
+    else:
+        loss_finding = _attenuation_finding(bus, length_m, loss_rate, repeater)
     return [
         Finding(
             RATE_RULE_ID,
@@ -156,34 +182,106 @@ def check_length_vs_rate(bus: Bus) -> list[Finding]:
             rate_limit_m,
             "m",
             None,
-            f"longest path x bit rate <= 1e8 m bit/s, i.e. <= {rate_limit_m:.0f} m at {_rate_text(rate)}; "
-            f"over {TIGHT_FRACTION:.0%} of it is tight",
+            f"longest path x bit rate <= 1e8 m bit/s, i.e. <= {length_text(rate_limit_m, units)} at "
+            f"{_rate_text(rate)}; over {TIGHT_FRACTION:.0%} of it is tight",
             RATE_SOURCE,
             fix=rate_fix,
-            detail=f"Longest path {length_m:.1f} m; length × rate is {length_m * rate / LENGTH_RATE_PRODUCT_M_BPS:.2%} "
-            f"of 10^8 m·bit/s. Highest rate both length rules allow here: {_rate_text(best_bps)}.",
+            detail=f"Longest path {length_text(length_m, units)}; length × rate is "
+            f"{length_m * rate / LENGTH_RATE_PRODUCT_M_BPS:.2%} of 10^8 m·bit/s. Highest rate both length rules "
+            "allow here: "
+            + ("no rate: the trunk is too long for these rules." if best_bps is None else f"{_rate_text(best_bps)}."),
         ),
-        Finding(
-            LOSS_RULE_ID,
-            "Cable loss over the longest path at f = bit rate",
-            loss_verdict,
-            loss,
-            LOSS_LIMIT_DB,
-            "dB",
-            None,
-            f"attenuation at f = bit rate over the longest path <= {LOSS_LIMIT_DB:g} dB; over "
-            f"{LOSS_TIGHT_DB:g} dB is tight",
-            LOSS_SOURCE,
-            fix=loss_fix,
-            detail=f"alpha {alpha * 1e3:.3f} mNp/m at {_rate_text(rate).replace('bit/s', 'Hz')} "
-            f"({bus.cable.label}); 9 dB is reached at {max_len_m:.0f} m at this rate; " + _loss_rate_text(loss_rate),
-        ),
+        loss_finding,
     ]
 
 
-def _loss_rate_text(loss_rate_bps: float) -> str:
-    if loss_rate_bps <= 0.0:
-        return "at this length even the lowest rate loses more than 9 dB."
+def _plateau_finding(bus: Bus, length_m: float, repeater: str) -> Finding:
+    """Below 90 kbit/s: the path against the Annex A plateau, 1200 m scaled by the cable's resistance."""
+    units = bus.plan.display_units
+    limit_m = plateau_length_m(bus)
+    verdict = (
+        Verdict.BREAKS
+        if length_m > limit_m
+        else Verdict.TIGHT
+        if length_m > PLATEAU_TIGHT_FRACTION * limit_m
+        else Verdict.HOLDS
+    )
+    target_m = limit_m if verdict is Verdict.BREAKS else PLATEAU_TIGHT_FRACTION * limit_m
+    fix = ""
+    if verdict is not Verdict.HOLDS:
+        thicker = (
+            ", use a pair of lower resistance (24 AWG or thicker)"
+            if bus.cable.resistance_ohm_per_m > REFERENCE_RESISTANCE_OHM_PER_M
+            else ""
+        )
+        fix = (
+            f"Shorten the longest path from {length_text(length_m, units)} to at most "
+            f"{length_text(target_m, units)}{thicker}, {repeater}."
+        )
+    return Finding(
+        LOSS_RULE_ID,
+        "Longest path against the low-rate length limit (TIA/EIA-422-B Annex A plateau)",
+        verdict,
+        length_m,
+        limit_m,
+        "m",
+        None,
+        f"below {_rate_text(PLATEAU_RATE_BPS)} the longest path <= 1200 m x min(1, 84.2 mΩ/m / R') = "
+        f"{length_text(limit_m, units)} for this cable; over {PLATEAU_TIGHT_FRACTION:.0%} of it is tight",
+        LOSS_SOURCE,
+        fix=fix,
+        detail=f"{bus.cable.label}: {bus.cable.resistance_ohm_per_m * 1e3:.1f} mΩ/m per conductor against 84.2 "
+        f"mΩ/m for 24 AWG. At these rates the curve is flat: the loop resistance, not the attenuation at "
+        f"f = bit rate, limits the run (the DC level at each receiver is rule signal.dc_level). Over this path the "
+        f"attenuation at {_rate_text(bus.plan.bit_rate_bps).replace('bit/s', 'Hz')} is "
+        f"{line_loss_db(bus, bus.plan.bit_rate_bps, length_m):.1f} dB, for information.",
+    )
+
+
+def _attenuation_finding(bus: Bus, length_m: float, loss_rate: float | None, repeater: str) -> Finding:
+    """From 90 kbit/s: the exact attenuation at f = bit rate over the path, 9 dB breaks, 6 dB tight."""
+    units = bus.plan.display_units
+    rate = bus.plan.bit_rate_bps
+    loss = line_loss_db(bus, rate, length_m)
+    verdict = Verdict.BREAKS if loss > LOSS_LIMIT_DB else Verdict.TIGHT if loss > LOSS_TIGHT_DB else Verdict.HOLDS
+    alpha = attenuation_np_per_m(bus, rate)
+    max_len_m = LOSS_LIMIT_DB / (NEPER_DB * alpha) if alpha > 0 else math.inf
+    fix = ""
+    if verdict is not Verdict.HOLDS:
+        target_db = LOSS_LIMIT_DB if verdict is Verdict.BREAKS else LOSS_TIGHT_DB
+        target_rate = loss_limited_rate_bps(bus, length_m, target_db)
+        target_len_m = target_db / (NEPER_DB * alpha) if alpha > 0 else math.inf
+        steps = []
+        if target_rate is not None and 0.0 < target_rate < rate:
+            steps.append(f"lower the bit rate to at most {_rate_text(target_rate, floor=True)}")
+        steps.append(f"shorten the path to at most {length_text(target_len_m, units)}")
+        steps.append("use a lower-loss pair (thicker gauge, e.g. 22 AWG)")
+        fix = (
+            f"Bring the loss ({loss:.1f} dB over {length_text(length_m, units)}) under {target_db:g} dB: "
+            + ", ".join(steps)
+            + f", {repeater}."
+        )
+    return Finding(
+        LOSS_RULE_ID,
+        "Cable loss over the longest path at f = bit rate",
+        verdict,
+        loss,
+        LOSS_LIMIT_DB,
+        "dB",
+        None,
+        f"from {_rate_text(PLATEAU_RATE_BPS)}: attenuation Re(γ) at f = bit rate over the longest path <= "
+        f"{LOSS_LIMIT_DB:g} dB; over {LOSS_TIGHT_DB:g} dB is tight",
+        LOSS_SOURCE,
+        fix=fix,
+        detail=f"alpha {alpha * 1e3:.3f} mNp/m at {_rate_text(rate).replace('bit/s', 'Hz')} "
+        f"({bus.cable.label}); 9 dB is reached at {length_text(max_len_m, units)} at this rate; "
+        + _loss_rate_text(loss_rate),
+    )
+
+
+def _loss_rate_text(loss_rate_bps: float | None) -> str:
+    if loss_rate_bps is None:
+        return "no rate: the path is longer than the low-rate length limit."
     if loss_rate_bps >= MAX_RATE_BPS:
         return "at this length every rate up to 100 Mbit/s stays within 9 dB."
     return f"at this length rates up to {_rate_text(loss_rate_bps, floor=True)} stay within 9 dB."
