@@ -19,6 +19,8 @@ from engine.findings import Finding, Verdict
 RULE_ID = "common_mode.range"
 NOISE_ALLOWANCE_V = 2.5  # induced noise on the pair, as in the Intersil high-speed RS-485 tutorial's budget
 TIGHT_FRACTION = 0.75  # Pairline's own: using over 3/4 of the allowed offset is tight
+EXTENDED_COMMON_MODE_V = 25.0  # extended common-mode transceivers cover tens of volts (from memory)
+ELV_LIMIT_V = 50.0  # extra-low-voltage band, IEC 61140 / IEC 60449 (50 V a.c.); common practice as a danger line
 SERIES_GROUND_OHM = 100.0  # series resistor in the signal-ground wire at each node (TI SLLA272)
 RANGES_V: dict[str, tuple[float, float]] = {"rs485": (-7.0, 12.0), "rs422": (-7.0, 7.0)}
 SOURCE = (
@@ -97,6 +99,7 @@ def check_common_mode(bus: Bus) -> list[Finding]:
                 detail=(
                     f"Ground {offset_v:+g} V relative to '{against}': the wires sit between {low_v:+.1f} and "
                     f"{high_v:+.1f} V at this receiver (allowed {v_min:+g} .. {v_max:+g} V). "
+                    + danger_text(offset_v)
                     + (CAUTION if offset_v != 0 else "")
                 ).strip(),
             )
@@ -112,20 +115,56 @@ def _fraction_used(offset_v: float, lo_allowed_v: float, hi_allowed_v: float) ->
     return offset_v / limit_v if limit_v * offset_v > 0 else float("inf")
 
 
+def isolation_advice(offset_v: float) -> str:
+    """Isolation to name for a ground offset: a rating class, or fibre where the classes run out.
+
+    The working voltage an isolated transceiver tolerates continuously is far below its 1-minute withstand
+    rating; the classes 2.5 kVrms (basic) and 5 kVrms (reinforced) are the usual ones (from memory), and the
+    working-voltage bands used here (about 400 V and 1 kV) are Pairline's conservative reading of them.
+    """
+    offset = abs(offset_v)
+    if offset <= EXTENDED_COMMON_MODE_V:
+        return (
+            "an isolated transceiver with an isolated supply (>= 2.5 kVrms basic class), or transceivers with an "
+            "extended common-mode range that covers the offset"
+        )
+    if offset <= 400.0:
+        return "an isolated transceiver with an isolated supply rated >= 2.5 kVrms (basic class)"
+    if offset <= 1000.0:
+        return "an isolated transceiver with an isolated supply rated >= 5 kVrms (reinforced class)"
+    return (
+        "a fibre-optic link in place of the copper pair to this node: the offset is beyond what the usual "
+        "transceiver isolation classes (2.5 kVrms basic, 5 kVrms reinforced) are meant to stand continuously"
+    )
+
+
+def danger_text(offset_v: float) -> str:
+    """The danger sentence for an offset above the extra-low-voltage limit; empty below it."""
+    if abs(offset_v) <= ELV_LIMIT_V:
+        return ""
+    return (
+        f"DANGER: a {abs(offset_v):g} V difference between grounds is above the {ELV_LIMIT_V:g} V extra-low-voltage "
+        "limit: stop. It is a shock hazard or a fault (a broken or missing protective earth, a miswired supply); "
+        "have a licensed electrician find and clear it before connecting any cable. "
+    )
+
+
 def _fix(verdict: Verdict, name: str, offset_v: float, limit_v: float) -> str:
     if verdict is Verdict.HOLDS:
         return ""
+    codes = (
+        "Fit surge protection where the cable leaves a building and have the earthing designed to your local "
+        "electrical codes and licensed practice."
+    )
     if verdict is Verdict.TIGHT:
         return (
-            f"Tie the grounds: run a signal-ground conductor beside the pair to '{name}' with a "
-            f"{SERIES_GROUND_OHM:g} Ω resistor in series at each node, which pulls the grounds together and "
-            f"keeps the {abs(offset_v):g} V offset well inside the {abs(limit_v):g} V allowed; or isolate the node "
-            "galvanically. Fit surge protection where the cable leaves a building and have the earthing designed "
-            "to your local electrical codes and licensed practice."
+            f"The {abs(offset_v):g} V ground offset uses {abs(offset_v) / abs(limit_v):.0%} of the "
+            f"{abs(limit_v):g} V allowed, leaving little room for noise: tie the grounds by running a signal-ground "
+            f"conductor beside the pair to '{name}' with a {SERIES_GROUND_OHM:g} Ω resistor in series at each node, "
+            f"or isolate the node galvanically. {codes}"
         )
     return (
-        f"Isolate '{name}' galvanically (isolated transceiver and isolated supply; rated isolation in kV) so its "
-        f"{abs(offset_v):g} V ground offset no longer reaches the receiver, which allows only {abs(limit_v):g} V; "
-        "or use extended common-mode transceivers. Fit surge protection where the cable leaves a building and "
-        "have the earthing designed to your local electrical codes and licensed practice."
+        danger_text(offset_v)
+        + f"Isolate '{name}' galvanically with {isolation_advice(offset_v)}, so its {abs(offset_v):g} V ground "
+        f"offset no longer reaches the receiver, which allows only {abs(limit_v):g} V. {codes}"
     )

@@ -79,3 +79,36 @@ def test_rs422_negative_offset_breaks_early():
     # common practice: from the TIA/EIA-422-B +/-7 V range, a node 3 V below the driver's ground sees
     # 2.5 + 3 + 2.5 = 8 V > 7 V.
     assert _findings([-3.0], standard="rs422")["n0"].verdict is Verdict.BREAKS
+
+
+def test_small_breaking_offset_may_use_extended_common_mode_transceivers():
+    # Source: TIA/EIA-485-A -7..+12 V range with the Intersil tutorial's budget allows 7 V; 12 V breaks.
+    # from memory: extended common-mode transceivers cover tens of volts.
+    fix = _findings([12.0])["n0"].fix
+    assert "extended common-mode" in fix and "DANGER" not in fix
+
+
+def test_large_offsets_name_an_isolation_class_and_never_extended_common_mode():
+    # from memory: transceiver isolation classes 2.5 kVrms (basic) and 5 kVrms (reinforced).
+    fix_300 = _findings([300.0])["n0"].fix
+    assert "2.5 kVrms" in fix_300 and "extended common-mode" not in fix_300
+    fix_800 = _findings([800.0])["n0"].fix
+    assert "5 kVrms" in fix_800 and "extended common-mode" not in fix_800
+    fix_5000 = _findings([5000.0])["n0"].fix
+    assert "fibre" in fix_5000 and "extended common-mode" not in fix_5000
+
+
+def test_offsets_above_50_v_carry_a_danger_sentence():
+    # Source: IEC 61140 / IEC 60449 extra-low-voltage band (50 V a.c.); common practice as the line for a shock
+    # hazard that needs a licensed electrician.
+    found = _findings([60.0])["n0"]
+    assert found.fix.startswith("DANGER") and "licensed electrician" in found.fix
+    assert "DANGER" in found.detail
+    assert "DANGER" not in _findings([40.0])["n0"].fix
+
+
+def test_tight_offset_is_not_called_well_inside():
+    # Source: TIA/EIA-485-A range with the Intersil budget: 6 V of the 7 V allowed is over 3/4 of it (tight).
+    found = _findings([6.0])["n0"]
+    assert found.verdict is Verdict.TIGHT
+    assert "well inside" not in found.fix and "86%" in found.fix
