@@ -16,7 +16,7 @@ from engine.bus import Bus, build_bus
 from engine.findings import Finding, Verdict, worst
 from engine.plan import BusInputError, BusPlan, TerminationSpec, cross_field_problems, load_plan, plan_to_dict
 from engine.rules.bias import IDLE_TARGET_V, bias_advice_text, bias_choice, check_failsafe_bias, idle_levels_v
-from engine.rules.cable_ends import nearest_end_m
+from engine.rules.cable_ends import nearest_end_m, terminator_value_ohm
 from engine.rules.common_mode import check_common_mode
 from engine.rules.length_rate import check_length_vs_rate, max_bit_rate_bps
 from engine.rules.loads import (
@@ -27,7 +27,7 @@ from engine.rules.loads import (
     spare_unit_loads,
 )
 from engine.rules.power import check_resistor_power, rating_text, rating_to_buy_w, resistor_powers
-from engine.rules.preferred import nearest_preferred, preferred_at_or_above
+from engine.rules.preferred import preferred_at_or_above
 from engine.rules.signal import check_signal_integrity
 from engine.rules.stubs import check_stubs, max_bit_rate_for_stubs_bps, max_stub_by_node_m
 from engine.rules.termination import (
@@ -37,7 +37,6 @@ from engine.rules.termination import (
     end_match,
     ends_to_terminate_m,
     rc_capacitance_window_f,
-    recommended_termination_ohm,
 )
 from engine.rules.unterminated import check_unterminated
 from engine.rules.voltage import check_receiver_voltage
@@ -151,8 +150,7 @@ def advised_terminations(bus: Bus) -> tuple[TerminationSpec, ...]:
         if len(at_end) == 1 and _terminator_holds(bus, at_end[0]):
             advised.append(at_end[0])
             continue
-        r = recommended_termination_ohm(bus, end)
-        r = nearest_preferred(r) if math.isfinite(r) else nearest_preferred(bus.cable.z0_ohm)
+        r = terminator_value_ohm(bus, end)
         rc = next((t for t in at_end if t.kind == "rc"), None)
         c_lo, c_hi = rc_capacitance_window_f(bus, r)
         if rc is not None and c_lo <= c_hi:

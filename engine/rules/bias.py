@@ -31,7 +31,7 @@ from engine.rules.loads import (
 )
 from engine.rules.preferred import preferred_at_or_below
 from engine.rules.voltage import DcElement, fixed_load_elements, receiver_elements, solve_dc_v
-from engine.units import parallel_ohm, si_format
+from engine.units import length_text, parallel_ohm, si_format
 
 RULE_ID = "bias.idle_level"
 IDLE_THRESHOLD_V = 0.200  # receiver sensitivity, TIA/EIA-485-A
@@ -195,11 +195,19 @@ def bias_advice_text(bus: Bus) -> str:
             f"thresholds on every node, or RC terminators at the cable ends so the bias sees only the receivers."
         )
     if choice.fits:
+        units = bus.plan.display_units
         room = " and stays within the 32 UL budget and the 54 Ω driver load" if choice.min_ohm > 0 else ""
+        move = ""
+        if plan_bias is not None and plan_bias.position_m != choice.position_m:
+            move = (
+                f"move the bias network from {length_text(plan_bias.position_m, units)} to "
+                f"{length_text(choice.position_m, units)} along the trunk, from where it can hold every receiver, "
+                "and "
+            )
         return (
-            f"fit a pull-up of {si_format(r, 'Ω')} from the {supply_v:g} V supply to A and a pull-down of "
+            f"{move}fit a pull-up of {si_format(r, 'Ω')} from the {supply_v:g} V supply to A and a pull-down of "
             f"{si_format(r, 'Ω')} from B "
-            f"to ground at {choice.position_m:g} m along the trunk; that idles every receiver at >= "
+            f"to ground at {length_text(choice.position_m, units)} along the trunk; that idles every receiver at >= "
             f"{choice.idle_min_v * 1e3:.0f} mV allowing for the cable{room} (lumped formula: R_B,max = "
             f"{lumped_ohm:.0f} Ω for 200 mV). Or use receivers with failsafe thresholds on every node."
         )

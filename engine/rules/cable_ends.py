@@ -8,8 +8,11 @@ Something counts as "at the end" within the end tolerance: the smaller of 1 m an
 engine.rules.stubs, since the cable left beyond a terminator is an open stub.
 """
 
+import math
+
 from engine.bus import Bus
 from engine.plan import input_resistance_ohm
+from engine.rules.preferred import nearest_preferred
 from engine.rules.stubs import max_stub_length_m
 from engine.units import parallel_ohm
 
@@ -57,3 +60,26 @@ def lumped_load_ohm(bus: Bus, position_m: float) -> float:
     if plan.bias is not None and abs(plan.bias.position_m - position_m) <= tol:
         loads.append(plan.bias.pull_up_ohm + plan.bias.pull_down_ohm)
     return parallel_ohm(*loads)
+
+
+def corrected_termination_ohm(z0_ohm: float, parallel_load_ohm: float) -> float:
+    """Terminator that, beside a lumped load R_P, presents Z0: R_T = Z0 / (1 - Z0/R_P).
+
+    R_P = inf gives Z0; R_P <= Z0 gives inf (the load alone is already at or below Z0, no resistor helps).
+    Source: H. Johnson, M. Graham, High-Speed Digital Design, sec. 4.4.
+    """
+    if math.isinf(parallel_load_ohm):
+        return z0_ohm
+    if parallel_load_ohm <= z0_ohm:
+        return math.inf
+    return z0_ohm / (1.0 - z0_ohm / parallel_load_ohm)
+
+
+def terminator_value_ohm(bus: Bus, end_m: float) -> float:
+    """The terminator to buy for a cable end: Z0 corrected for the loads lumped there, nearest E24 (IEC 60063).
+
+    Every sentence and the summary name this one value; Z0 itself (nearest E24) where no resistor can correct
+    the end (the loads there are already at or below Z0).
+    """
+    r = corrected_termination_ohm(bus.cable.z0_ohm, lumped_load_ohm(bus, end_m))
+    return nearest_preferred(r if math.isfinite(r) else bus.cable.z0_ohm)

@@ -152,13 +152,18 @@ def check_unit_loads(bus: Bus) -> list[Finding]:
 
 
 def _unit_load_fix(bus: Bus, parts: dict[str, float], total: float) -> str:
+    from engine.rules.bias import bias_choice  # bias builds on this module; one sizing function for both texts
+
     over = total - RS485_UNIT_LOAD_BUDGET
     n_nodes = len(bus.plan.nodes)
     steps = []
     if over > 0:
-        steps.append(f"remove {over:.2f} UL")
+        head = f"To fit 32 UL, remove {over:.2f} UL"
     else:
-        steps.append("keep at least 3.2 UL spare")
+        head = (
+            f"The bus fits the 32 UL budget with {-over:.2f} UL spare, under the {TIGHT_SPARE_FRACTION:.0%} "
+            "Pairline keeps for the next nodes; to make room"
+        )
     # What receiver rating would bring the nodes inside the budget with 10 % to spare?
     room = (1.0 - TIGHT_SPARE_FRACTION) * RS485_UNIT_LOAD_BUDGET - parts["driver"] - parts["bias"]
     if room > 0 and n_nodes:
@@ -168,16 +173,18 @@ def _unit_load_fix(bus: Bus, parts: dict[str, float], total: float) -> str:
             steps.append(f"use receivers of {rated:g} UL or less on all {n_nodes} nodes")
     bias = bus.plan.bias
     if bias is not None and parts["bias"] > 1.0:
-        bias_room = (1.0 - TIGHT_SPARE_FRACTION) * RS485_UNIT_LOAD_BUDGET - parts["nodes"] - parts["driver"]
         now = f"{min(bias.pull_up_ohm, bias.pull_down_ohm):g} Ω, {parts['bias']:.1f} UL"
-        if bias_room > 0:
+        choice = bias_choice(bus)
+        if choice.fits and choice.resistance_ohm > min(bias.pull_up_ohm, bias.pull_down_ohm):
+            where = "" if choice.position_m == bias.position_m else f", moved to {choice.position_m:g} m"
             steps.append(
-                f"raise each bias resistor to at least {math.ceil(UNIT_LOAD_OHM / bias_room):.0f} Ω (now {now})"
+                f"raise each bias resistor to {choice.resistance_ohm:g} Ω (now {now}){where}, as bias.idle_level "
+                "advises"
             )
         else:
-            steps.append(f"raise the bias resistors (now {now})")
-    steps.append("or split the bus with a repeater, which starts a fresh 32 UL budget (B&B RS-422/485 notes)")
-    return "To fit 32 UL: " + "; ".join(steps) + "."
+            steps.append(f"raise the bias resistors (now {now}) and use receivers with failsafe thresholds")
+    steps.append("or split the bus with a repeater, which starts a fresh 32 UL budget")
+    return head + ": " + "; ".join(steps) + "."
 
 
 def _check_rs422_receivers(bus: Bus) -> list[Finding]:

@@ -23,7 +23,15 @@ import math
 from engine.bus import Bus
 from engine.findings import Finding, Verdict, worst
 from engine.plan import TerminationSpec
-from engine.rules.cable_ends import end_name, end_tolerance_m, lumped_load_ohm, nearest_end_m, required_ends_m
+from engine.rules.cable_ends import (
+    corrected_termination_ohm,
+    end_name,
+    end_tolerance_m,
+    lumped_load_ohm,
+    nearest_end_m,
+    required_ends_m,
+    terminator_value_ohm,
+)
 from engine.rules.preferred import nearest_preferred
 from engine.rules.unterminated import line_may_stay_unterminated, one_way_delay_s
 from engine.units import parallel_ohm, si_format
@@ -56,19 +64,6 @@ def reflection_coefficient(load_ohm: float, z0_ohm: float) -> float:
     if math.isinf(load_ohm):
         return 1.0
     return (load_ohm - z0_ohm) / (load_ohm + z0_ohm)
-
-
-def corrected_termination_ohm(z0_ohm: float, parallel_load_ohm: float) -> float:
-    """Terminator that, beside a lumped load R_P, presents Z0: R_T = Z0 / (1 - Z0/R_P).
-
-    R_P = inf gives Z0; R_P <= Z0 gives inf (the load alone is already at or below Z0, no resistor helps).
-    Source: H. Johnson, M. Graham, High-Speed Digital Design, sec. 4.4.
-    """
-    if math.isinf(parallel_load_ohm):
-        return z0_ohm
-    if parallel_load_ohm <= z0_ohm:
-        return math.inf
-    return z0_ohm / (1.0 - z0_ohm / parallel_load_ohm)
 
 
 # --- where terminators belong ---------------------------------------------------------------------------
@@ -149,7 +144,7 @@ def _placement_findings(bus: Bus) -> list[Finding]:
     for end in required:
         terms = at_end[end]
         name = end_name(bus, end)
-        resistor = f"{nearest_preferred(recommended_termination_ohm(bus, end)):g} Ω"
+        resistor = f"{terminator_value_ohm(bus, end):g} Ω"
         if not terms:
             if end in to_terminate:
                 add(

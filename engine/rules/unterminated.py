@@ -22,8 +22,7 @@ from dataclasses import dataclass
 
 from engine.bus import Bus
 from engine.findings import Finding, Verdict
-from engine.rules.cable_ends import end_name, required_ends_m
-from engine.rules.preferred import nearest_preferred
+from engine.rules.cable_ends import end_name, required_ends_m, terminator_value_ohm
 from engine.units import delay_s, propagation_velocity_m_per_s, si_format
 
 FIELD_RULE_MAX_RATE_BPS = 200e3
@@ -145,7 +144,10 @@ def check_unterminated(bus: Bus) -> list[Finding]:
     settles = "three round trips settle before mid-bit" if deciding.holds else "three round trips outlast half a bit"
     ends = required_ends_m(bus)
     ends_text = " and ".join(end_name(bus, e) for e in ends)
-    resistor = f"{nearest_preferred(bus.cable.z0_ohm):g} Ω"
+    values = {terminator_value_ohm(bus, e) for e in ends}
+    resistor = (
+        f"{values.pop():g} Ω" if len(values) == 1 else " / ".join(f"{terminator_value_ohm(bus, e):g} Ω" for e in ends)
+    )
     if bus.plan.terminations:
         verdict = Verdict.HOLDS
         title = f"Terminators {'optional' if deciding.holds else 'needed'}: {settles}"

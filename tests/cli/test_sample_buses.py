@@ -98,3 +98,28 @@ def test_irrigation_summary_bias_matches_the_bias_fix():
     assert bias is not None
     assert f"pull-up of {bias.pull_up_ohm:g} Ω" in fix and f"at {bias.position_m:g} m" in fix
     assert f">= {bias.idle_v * 1e3:.0f} mV" in fix
+
+
+def _irrigation_fixes() -> dict[str, str]:
+    report = check_plan(json.loads((SAMPLES / "irrigation-main-valves.json").read_text(encoding="utf-8")))
+    return {f.rule_id: f.fix for f in report.findings if f.node is None and f.fix}
+
+
+def test_irrigation_unit_load_fix_names_the_bias_the_bias_fix_advises():
+    # Source: TI SLLA272 (bias networks consume unit loads, 12 kOhm / R per UL): raising the bias resistors frees
+    # unit loads; both sentences come from one sizing function, so they name the same resistor and position.
+    fixes = _irrigation_fixes()
+    bias_r = re.search(r"pull-up of (\d+) Ω", fixes["bias.idle_level"]).group(1)
+    assert f"raise each bias resistor to {bias_r} Ω" in fixes["load.unit_loads"]
+    assert "move the bias network from 0 m to 575 m" in fixes["bias.idle_level"]
+    assert "moved to 575 m" in fixes["load.unit_loads"]
+    # common practice: a bus inside its budget is told what room is left, not to "fit" it.
+    assert not fixes["load.unit_loads"].startswith("To fit 32 UL")
+
+
+def test_fix_sentences_name_no_company():
+    # common practice: sources belong in the finding's source field, not in the advice.
+    for plan_path in PLANS:
+        report = check_plan(json.loads(plan_path.read_text(encoding="utf-8")))
+        for f in report.findings:
+            assert "B&B" not in f.fix, (plan_path.name, f.rule_id)
