@@ -40,7 +40,7 @@ from engine.rules.termination import (
 )
 from engine.rules.unterminated import check_unterminated
 from engine.rules.voltage import check_receiver_voltage
-from engine.units import si_format
+from engine.units import length_text, si_format
 
 RuleCheck = Callable[[Bus], list[Finding]]
 
@@ -267,7 +267,7 @@ def _bom(bus: Bus, terminators: tuple[TerminatorAdvice, ...], bias: BiasAdvice |
                 si_format(r, "Ω"),
                 len(where),
                 rating_text(rating),
-                "at " + " and ".join(f"{p:g} m" for p in where) + f"; {change}",
+                "at " + " and ".join(length_text(p, plan.display_units) for p in where) + f"; {change}",
             )
         )
     caps: dict[float, list[float]] = {}
@@ -281,7 +281,9 @@ def _bom(bus: Bus, terminators: tuple[TerminatorAdvice, ...], bias: BiasAdvice |
                 si_format(c, "F"),
                 len(where),
                 CAPACITOR_RATING,
-                "at " + " and ".join(f"{p:g} m" for p in where) + "; twice the 12 V common-mode fault level",
+                "at "
+                + " and ".join(length_text(p, plan.display_units) for p in where)
+                + "; twice the 12 V common-mode fault level",
             )
         )
     if bias is not None:
@@ -296,21 +298,21 @@ def _bom(bus: Bus, terminators: tuple[TerminatorAdvice, ...], bias: BiasAdvice |
         ):
             if plan_bias is None:
                 change = "; added, the plan has no bias network: see bias.idle_level"
-            elif plan_r != r:
-                change = f"; changed from the plan's {si_format(plan_r or 0.0, 'Ω')}: see bias.idle_level"
-            elif plan_bias.position_m != bias.position_m:
-                change = f"; moved from the plan's {plan_bias.position_m:g} m: see bias.idle_level"
             else:
-                change = "; as in the plan"
+                changes = []
+                if plan_r != r:
+                    changes.append(f"changed from the plan's {si_format(plan_r or 0.0, 'Ω')}")
+                if plan_bias.position_m != bias.position_m:
+                    changes.append(f"moved from the plan's {length_text(plan_bias.position_m, plan.display_units)}")
+                change = f"; {' and '.join(changes)}: see bias.idle_level" if changes else "; as in the plan"
             items.append(
                 BomItem(
                     item,
                     si_format(r, "Ω"),
                     1,
                     rating_text(bias.power_rating_w),
-                    f"at {bias.position_m:g} m; every receiver idles at >= {si_format(bias.idle_v, 'V')}"
-                    + (" with the terminators above" if terminators else "")
-                    + change,
+                    f"at {length_text(bias.position_m, plan.display_units)}; every receiver idles at >= "
+                    f"{si_format(bias.idle_v, 'V')}" + (" with the terminators above" if terminators else "") + change,
                 )
             )
     return tuple(items)

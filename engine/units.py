@@ -15,15 +15,23 @@ def ft_from_m(length_m: float) -> float:
 def length_text(length_m: float, display_units: str = "metric") -> str:
     """A length for a sentence in the plan's display units: "984 m"; imperial "3230 ft (984 m)".
 
-    Below 1 m metric lengths read in cm ("45 cm"); 3 significant digits, whole numbers from 100 up.
+    Below 1 m metric lengths read in cm ("45 cm"), below 1 cm in mm; below 1 ft imperial ones in inches;
+    3 significant digits, whole numbers from 100 up.
     """
 
     def plain(value: float, unit: str) -> str:
         return f"{value:.0f} {unit}" if abs(value) >= 100.0 else f"{value:.3g} {unit}"
 
-    metric = f"{length_m * 100:.3g} cm" if 0.0 < length_m < 1.0 else plain(length_m, "m")
+    if 0.0 < length_m < 0.01:
+        metric = f"{length_m * 1000:.3g} mm"
+    elif 0.0 < length_m < 1.0:
+        metric = f"{length_m * 100:.3g} cm"
+    else:
+        metric = plain(length_m, "m")
     if display_units == "imperial":
-        return f"{plain(ft_from_m(length_m), 'ft')} ({metric})"
+        feet = ft_from_m(length_m)
+        imperial = f"{feet * 12:.3g} in" if 0.0 < feet < 1.0 else plain(feet, "ft")
+        return f"{imperial} ({metric})"
     return metric
 
 

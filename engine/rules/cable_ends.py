@@ -14,7 +14,7 @@ from engine.bus import Bus
 from engine.plan import input_resistance_ohm
 from engine.rules.preferred import nearest_preferred
 from engine.rules.stubs import max_stub_length_m
-from engine.units import parallel_ohm
+from engine.units import length_text, parallel_ohm
 
 END_TOLERANCE_CAP_M = 1.0
 
@@ -46,8 +46,9 @@ def end_name(bus: Bus, end_m: float) -> str:
     driver mid-bus, "the 0 m end" / "the 600 m end"."""
     driver_end = nearest_end_m(bus, bus.plan.driver.position_m)
     if driver_end is None:
-        return f"the {end_m:g} m end"
-    return f"the driver's end ({end_m:g} m)" if end_m == driver_end else f"the far end ({end_m:g} m)"
+        return f"the {length_text(end_m, bus.plan.display_units)} end"
+    where = length_text(end_m, bus.plan.display_units)
+    return f"the driver's end ({where})" if end_m == driver_end else f"the far end ({where})"
 
 
 def lumped_load_ohm(bus: Bus, position_m: float) -> float:

@@ -28,7 +28,7 @@ import math
 from engine.bus import Bus
 from engine.findings import Finding, Verdict
 from engine.plan import input_resistance_ohm
-from engine.units import parallel_ohm, si_format
+from engine.units import length_text, parallel_ohm, si_format
 
 RS485_UNIT_LOAD_BUDGET = 32.0  # TIA-485-A
 RS422_MAX_RECEIVERS = 10  # TIA/EIA-422-B
@@ -176,7 +176,11 @@ def _unit_load_fix(bus: Bus, parts: dict[str, float], total: float) -> str:
         now = f"{min(bias.pull_up_ohm, bias.pull_down_ohm):g} Ω, {parts['bias']:.1f} UL"
         choice = bias_choice(bus)
         if choice.fits and choice.resistance_ohm > min(bias.pull_up_ohm, bias.pull_down_ohm):
-            where = "" if choice.position_m == bias.position_m else f", moved to {choice.position_m:g} m"
+            where = (
+                ""
+                if choice.position_m == bias.position_m
+                else f", moved to {length_text(choice.position_m, bus.plan.display_units)}"
+            )
             steps.append(
                 f"raise each bias resistor to {choice.resistance_ohm:g} Ω (now {now}){where}, as bias.idle_level "
                 "advises"

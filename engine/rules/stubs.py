@@ -17,7 +17,7 @@ import math
 
 from engine.bus import Bus
 from engine.findings import Finding, Verdict
-from engine.units import SPEED_OF_LIGHT_M_PER_S, si_format
+from engine.units import SPEED_OF_LIGHT_M_PER_S, length_text, si_format
 
 STUB_RISE_FRACTION = 0.1  # TI SLLA272
 TIGHT_FROM_FRACTION = 0.8  # TIGHT from 80 % of the limit
@@ -75,19 +75,21 @@ def check_stubs(bus: Bus) -> list[Finding]:
     limit = max_stub_length_m(rise, vf)
     bit_s = 1.0 / bus.plan.bit_rate_bps
     slowest_ok_s = MAX_TRANSITION_BIT_FRACTION * bit_s
+    units = bus.plan.display_units
     findings = []
     for name, length in stub_lengths_m(bus).items():
         verdict = stub_verdict(length, limit)
         detail = (
-            f"Rise time {si_format(rise, 's')}, velocity factor {vf:g}: limit {limit:.3g} m. HOLDS to "
-            f"{TIGHT_FROM_FRACTION * limit:.3g} m (80 %), TIGHT to {limit:.3g} m. Looser published variants "
-            f"(stub delay <= 1/3 of the rise time) would allow {limit * 10 / 3:.3g} m."
+            f"Rise time {si_format(rise, 's')}, velocity factor {vf:g}: limit {length_text(limit, units)}. HOLDS to "
+            f"{length_text(TIGHT_FROM_FRACTION * limit, units)} (80 %), TIGHT to {length_text(limit, units)}. "
+            f"Looser published variants (stub delay <= 1/3 of the rise time) would allow "
+            f"{length_text(limit * 10 / 3, units)}."
         )
         fix = ""
         if verdict is not Verdict.HOLDS:
             needed = rise_time_needed_s(length, vf)
             keep = TIGHT_FROM_FRACTION * limit if verdict is Verdict.TIGHT else limit
-            fix = f"Shorten the stub of node '{name}' to <= {_length_text(keep)}"
+            fix = f"Shorten the stub of node '{name}' to <= {_length_text(keep, units)}"
             if needed <= slowest_ok_s:
                 fix += f", or use a driver with >= {si_format(needed, 's')} rise time."
             else:
@@ -115,12 +117,9 @@ def check_stubs(bus: Bus) -> list[Finding]:
     return findings
 
 
-def _length_text(length_m: float) -> str:
+def _length_text(length_m: float, display_units: str = "metric") -> str:
     """A limit shown to two significant digits, rounded down so following the fix really fixes it."""
     if length_m <= 0.0:
-        return "0 m"
+        return length_text(0.0, display_units)
     scale = 10.0 ** (math.floor(math.log10(length_m)) - 1)
-    shown = math.floor(length_m / scale + 1e-9) * scale
-    if shown >= 1.0:
-        return f"{shown:.3g} m"
-    return f"{shown * 100:.3g} cm" if shown >= 0.01 else f"{shown * 1000:.3g} mm"
+    return length_text(math.floor(length_m / scale + 1e-9) * scale, display_units)

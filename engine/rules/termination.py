@@ -34,7 +34,7 @@ from engine.rules.cable_ends import (
 )
 from engine.rules.preferred import nearest_preferred
 from engine.rules.unterminated import line_may_stay_unterminated, one_way_delay_s
-from engine.units import parallel_ohm, si_format
+from engine.units import length_text, parallel_ohm, si_format
 
 GAMMA_HOLDS = 0.05
 GAMMA_TIGHT = 0.12
@@ -113,7 +113,7 @@ def _placement_findings(bus: Bus) -> list[Finding]:
         else:
             at_end[end].append(term)
     ends_text = " and ".join(end_name(bus, e) for e in required)
-    criterion = f"One terminator at {ends_text}, each within {_length(tol)} of its end; none elsewhere"
+    criterion = f"One terminator at {ends_text}, each within {_at(bus, tol)} of its end; none elsewhere"
     why = (
         "the line needs terminators (three round trips outlast half a bit)"
         if needs
@@ -173,9 +173,9 @@ def _placement_findings(bus: Bus) -> list[Finding]:
                 distance_m,
                 tol,
                 "",
-                f"The terminator at {terms[0].position_m:g} m counts as at {name}: it is {_length(distance_m)} from "
-                f"the end, within {_length(tol)} (the shorter of 1 m and the stub limit, since the cable beyond it "
-                "is an open stub).",
+                f"The terminator at {_at(bus, terms[0].position_m)} counts as at {name}: it is "
+                f"{_at(bus, distance_m)} from the end, within {_at(bus, tol)} (the shorter of 1 m and the stub "
+                "limit, since the cable beyond it is an open stub).",
             )
         else:
             add(
@@ -188,7 +188,7 @@ def _placement_findings(bus: Bus) -> list[Finding]:
                 f"Keep one terminator at {name} and remove the other"
                 + (f" {len(terms) - 1}" if len(terms) > 2 else "")
                 + ": "
-                + ", ".join(f"{t.resistance_ohm:g} Ω at {t.position_m:g} m" for t in terms[1:])
+                + ", ".join(f"{t.resistance_ohm:g} Ω at {_at(bus, t.position_m)}" for t in terms[1:])
                 + ".",
                 f"{len(terms)} terminators in parallel at {name} load it below the cable's {bus.cable.z0_ohm:g} Ω; "
                 f"{why}.",
@@ -198,11 +198,11 @@ def _placement_findings(bus: Bus) -> list[Finding]:
             continue
         for term in terms:
             add(
-                f"Terminator at the RS-422 driver's end ({end:g} m): not wanted",
+                f"Terminator at the RS-422 driver's end ({_at(bus, end)}): not wanted",
                 misplaced,
                 abs(term.position_m - end),
                 tol,
-                f"Remove the {term.resistance_ohm:g} Ω terminator at {term.position_m:g} m.",
+                f"Remove the {term.resistance_ohm:g} Ω terminator at {_at(bus, term.position_m)}.",
                 "A single RS-422 driver at this end terminates it with its own low output impedance; the "
                 f"resistor only loads the driver ({why}).",
             )
@@ -210,20 +210,20 @@ def _placement_findings(bus: Bus) -> list[Finding]:
         distance_m = min(term.position_m, plan.trunk_length_m - term.position_m)
         if missing:
             target = min(missing, key=lambda e: abs(e - term.position_m))
-            fix = f"Move the terminator at {term.position_m:g} m to {end_name(bus, target)}."
+            fix = f"Move the terminator at {_at(bus, term.position_m)} to {end_name(bus, target)}."
         else:
             fix = (
-                f"Remove the terminator at {term.position_m:g} m: "
+                f"Remove the terminator at {_at(bus, term.position_m)}: "
                 + ("both cable ends are" if len(required) > 1 else f"{end_name(bus, required[0])} is")
                 + " already terminated."
             )
         add(
-            f"Terminator at {term.position_m:g} m, mid-bus: distance to the nearest end",
+            f"Terminator at {_at(bus, term.position_m)}, mid-bus: distance to the nearest end",
             misplaced,
             distance_m,
             tol,
             fix,
-            f"It sits {_length(distance_m)} from the nearest cable end (more than {_length(tol)}): a mid-bus "
+            f"It sits {_at(bus, distance_m)} from the nearest cable end (more than {_at(bus, tol)}): a mid-bus "
             f"terminator loads the driver and reflects part of each edge; {why}.",
         )
     return findings
@@ -309,9 +309,9 @@ def _ohm(value: float) -> str:
     return "none (open)" if math.isinf(value) else f"{value:.1f} Ω"
 
 
-def _length(length_m: float) -> str:
-    """A short distance for people: cm below 1 m."""
-    return f"{length_m * 100:.3g} cm" if 0.0 < length_m < 1.0 else f"{length_m:.3g} m"
+def _at(bus: Bus, position_m: float) -> str:
+    """A position along the trunk in the plan's display units."""
+    return length_text(position_m, bus.plan.display_units)
 
 
 # --- RC terminators ---------------------------------------------------------------------------------------
@@ -333,7 +333,7 @@ def check_ac_termination(bus: Bus) -> list[Finding]:
         if term.kind != "rc" or term.capacitance_f is None:
             continue
         end = nearest_end_m(bus, term.position_m)
-        where = end_name(bus, end) if end is not None else f"{term.position_m:g} m"
+        where = end_name(bus, end) if end is not None else f"{_at(bus, term.position_m)}"
         r = term.resistance_ohm
         tau = r * term.capacitance_f
         part = f"RC terminator at {where} ({r:g} Ω + {si_format(term.capacitance_f, 'F')})"

@@ -23,7 +23,7 @@ from dataclasses import dataclass
 from engine.bus import Bus
 from engine.findings import Finding, Verdict
 from engine.rules.cable_ends import end_name, required_ends_m, terminator_value_ohm
-from engine.units import delay_s, propagation_velocity_m_per_s, si_format
+from engine.units import delay_s, length_text, propagation_velocity_m_per_s, si_format
 
 FIELD_RULE_MAX_RATE_BPS = 200e3
 DECIDING_CRITERION = "three_round_trips"
@@ -172,7 +172,8 @@ def check_unterminated(bus: Bus) -> list[Finding]:
     if verdict is Verdict.BREAKS:
         fix = (
             f"Fit a {resistor} terminator at {ends_text}, or shorten the trunk to at most "
-            f"{math.floor(deciding.max_length_m):.0f} m, or lower the bit rate to at most "
+            f"{length_text(math.floor(deciding.max_length_m), bus.plan.display_units)}, or lower the bit rate to "
+            "at most "
             f"{_rate_floor_text(_max_unterminated_rate_bps(bus))}."
         )
     elif verdict is Verdict.TIGHT:

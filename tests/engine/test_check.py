@@ -279,3 +279,29 @@ def test_limit_kind_says_which_side_of_the_limit_holds():
     rc_tau = [f for f in report.findings if f.rule_id == "termination.rc" and "time constant" in f.title]
     assert rc_tau and all(f.limit_kind == "min" for f in rc_tau)
     assert {d["limit_kind"] for d in report_to_dict(report)["findings"]} <= set(LIMIT_KINDS)
+
+
+def test_imperial_plans_read_lengths_in_feet():
+    # Source: international foot, 0.3048 m exactly (1959 agreement): 575 m = 1886 ft, 1152 m = 3778 ft.
+    from pathlib import Path
+
+    sample = Path(__file__).resolve().parents[2] / "sample_buses" / "irrigation-main-valves.json"
+    doc = json.loads(sample.read_text(encoding="utf-8"))
+    doc["display_units"] = "imperial"
+    report = check_plan(doc)
+    fixes = {f.rule_id: f.fix for f in report.findings if f.node is None and f.fix}
+    assert "1886 ft (575 m)" in fixes["bias.idle_level"]
+    assert "3778 ft (1152 m)" in fixes["length.loss"]
+    assert all(" ft (" in item.note for item in report.summary.bom)
+    bias_notes = [item.note for item in report.summary.bom if "Bias" in item.item]
+    assert bias_notes and all("changed from the plan's 390 Ω and moved" in n for n in bias_notes)
+
+
+def test_length_text_metric_and_imperial():
+    # Source: international foot, 0.3048 m exactly: 100 m = 328 ft; 0.23 m = 9.06 in.
+    from engine.units import length_text
+
+    assert length_text(100.0) == "100 m"
+    assert length_text(0.45) == "45 cm"
+    assert length_text(100.0, "imperial") == "328 ft (100 m)"
+    assert length_text(0.23, "imperial") == "9.06 in (23 cm)"
