@@ -186,7 +186,7 @@ def summarise(bus: Bus) -> PlanSummary:
     bias = _bias_advice(advised_bus)
     bias_note = ""
     if bias is None and (plan.standard == "rs485" or plan.bias is not None):
-        bias_note = "No bias network advised: " + bias_advice_text(advised_bus)
+        bias_note = "none advised: " + bias_advice_text(advised_bus)
     return PlanSummary(
         terminators=terminators,
         bias=bias,

@@ -191,12 +191,17 @@ def bias_advice_text(bus: Bus) -> str:
     ):
         return (
             f"the plan's bias is already the strongest the room allows (each resistor >= {choice.min_ohm:.0f} Ω "
-            f"for the 32 UL budget and the 54 Ω driver load); for more idle margin use receivers with failsafe "
+            "for the 32 UL budget and the driver-load limit (the 51.7 Ω full bus)); for more idle margin use "
+            "receivers with failsafe "
             f"thresholds on every node, or RC terminators at the cable ends so the bias sees only the receivers."
         )
     if choice.fits:
         units = bus.plan.display_units
-        room = " and stays within the 32 UL budget and the 54 Ω driver load" if choice.min_ohm > 0 else ""
+        room = (
+            " and stays within the 32 UL budget and the driver-load limit (the 51.7 Ω full bus)"
+            if choice.min_ohm > 0
+            else ""
+        )
         move = ""
         if plan_bias is not None and plan_bias.position_m != choice.position_m:
             move = (
@@ -228,7 +233,7 @@ def bias_advice_text(bus: Bus) -> str:
     room = (
         "the nodes already take the whole 32 UL budget"
         if math.isinf(choice.min_ohm)
-        else f"the 32 UL budget and the 54 Ω driver load need at least {choice.min_ohm:.0f} Ω"
+        else f"the 32 UL budget and the driver-load limit (the 51.7 Ω full bus) need at least {choice.min_ohm:.0f} Ω"
     )
     return (
         f"no pull-up / pull-down pair fits this bus{' with parallel terminators' if parallel else ''}: 200 mV at "
