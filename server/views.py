@@ -22,7 +22,15 @@ from server.diagram import bus_drawing, node_anchor
 from server.forms import BIAS, CABLE, DRIVER, NODE, TERMINATION, TOP, FormState
 from server.plots import curve_plot, eye_plot, waveform_plot
 from server.quantities import UnitSystem, format_quantity, length_in, length_unit
-from server.results import CURVE_CRITERIA, RULE_CRITERION, RULE_SOURCE, CheckedPlan, report_to_dict, worst_receiver
+from server.results import (
+    CURVE_CRITERIA,
+    RULE_CRITERION,
+    RULE_SOURCE,
+    SIGNAL_RULE,
+    CheckedPlan,
+    report_to_dict,
+    worst_receiver,
+)
 from server.store import SampleEntry, SavedPlan
 
 _SEVERITY = {"breaks": 0, "tight": 1, "holds": 2}
@@ -296,11 +304,12 @@ def _signal_data(m: Any, units: UnitSystem) -> dict[str, Any] | None:
 
 def _waveforms_data(checked: CheckedPlan, chosen: str | None) -> dict[str, Any]:
     wf = checked.waveforms
-    worst = worst_receiver(checked.metrics)
+    worst = worst_receiver(checked.metrics, checked.report.findings)
     receivers = [m.receiver for m in checked.metrics]
     if wf is None or worst is None:
         return {"available": False, "note": checked.simulation_note, "receivers": receivers}
     by_name = {m.receiver: m for m in checked.metrics}
+    signal = {f.node: f.verdict.value for f in checked.report.findings if f.rule_id == SIGNAL_RULE and f.node}
     chosen_name = chosen if chosen in by_name else None
     plots = []
     for k, name in enumerate(wf.receiver_names):
@@ -312,6 +321,7 @@ def _waveforms_data(checked: CheckedPlan, chosen: str | None) -> dict[str, Any]:
             {
                 "receiver": name,
                 "role": "worst" if name == worst.receiver else "chosen",
+                "verdict": signal.get(name, "holds"),
                 "margin_v": m.min_sample_v,
                 "eye_height_v": m.eye_height_v,
                 "delay_text": quantity_text(m.propagation_delay_s, "s", "metric"),
