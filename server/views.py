@@ -159,7 +159,25 @@ def start_data(samples: list[SampleEntry], problems: list[Problem] | None = None
     }
 
 
-def _finding_data(f: Any, index: int, units: UnitSystem, node_anchors: Mapping[str, str]) -> dict[str, Any]:
+LIMIT_SIGNS = {"max": "≤", "min": "≥"}
+
+
+def limit_kind_of(finding: Any) -> str:
+    """How a finding's value is held against its limit: "max" (at most), "min" (at least) or "none" (the
+    limit is only a reference). Findings from engines that do not say are upper limits."""
+    kind = getattr(finding, "limit_kind", None) or "max"
+    return kind if kind in ("max", "min", "none") else "max"
+
+
+def limit_text(limit: float | None, unit: str, kind: str, units: UnitSystem) -> str:
+    """The limit for reading, with the side the value must stay on: "≤ 1.2 m", "≥ 54 Ω"; "" for no limit."""
+    if kind == "none" or limit is None or not math.isfinite(limit):
+        return ""
+    return f"{LIMIT_SIGNS[kind]} {quantity_text(limit, unit, units)}"
+
+
+def finding_data(f: Any, index: int, units: UnitSystem, node_anchors: Mapping[str, str]) -> dict[str, Any]:
+    kind = limit_kind_of(f)
     return {
         "anchor": f"finding-{index + 1}-{f.rule_id}",
         "rule_id": f.rule_id,
@@ -169,7 +187,8 @@ def _finding_data(f: Any, index: int, units: UnitSystem, node_anchors: Mapping[s
         "limit": f.limit,
         "unit": f.unit,
         "value_text": quantity_text(f.value, f.unit, units),
-        "limit_text": quantity_text(f.limit, f.unit, units),
+        "limit_kind": kind,
+        "limit_text": limit_text(f.limit, f.unit, kind, units),
         "node": f.node,
         "node_anchor": node_anchors.get(f.node, "") if f.node else "",
         "criterion": f.criterion,
@@ -186,7 +205,7 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
     units: UnitSystem = plan.display_units
     anchors = {n.name: node_anchor(i) for i, n in enumerate(plan.nodes)} | {plan.driver.name: "driver"}
     ordered = sorted(report.findings, key=lambda f: (_SEVERITY[f.verdict.value], f.rule_id))
-    findings = [_finding_data(f, i, units, anchors) for i, f in enumerate(ordered)]
+    findings = [finding_data(f, i, units, anchors) for i, f in enumerate(ordered)]
     per_node: dict[str, list[dict[str, Any]]] = {}
     for fd in findings:
         if fd["node"]:

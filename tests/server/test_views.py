@@ -1,0 +1,76 @@
+"""Page data built from engine results: how findings' limits read, and the safety caution for large offsets."""
+
+from dataclasses import dataclass
+
+import pytest
+
+from engine.findings import Finding, Verdict
+from server.views import finding_data
+
+
+@dataclass(frozen=True)
+class _WithKind:
+    """An engine finding that states which side of its limit the value must stay on."""
+
+    rule_id: str
+    title: str
+    verdict: Verdict
+    value: float | None
+    limit: float | None
+    unit: str
+    node: str | None
+    criterion: str
+    source: str
+    fix: str = ""
+    detail: str = ""
+    limit_kind: str = "max"
+
+
+def _finding(value: float, limit: float, unit: str, kind: str | None) -> object:
+    base = {
+        "rule_id": "load.driver",
+        "title": "Load on the driver",
+        "verdict": Verdict.HOLDS,
+        "value": value,
+        "limit": limit,
+        "unit": unit,
+        "node": None,
+        "criterion": "",
+        "source": "",
+    }
+    return Finding(**base) if kind is None else _WithKind(**base, limit_kind=kind)
+
+
+@pytest.mark.parametrize(
+    ("kind", "expected"),
+    [
+        # Source: TIA/EIA-485-A, a driver is specified into a 54 Ω differential load at the least.
+        ("min", "≥ 54 Ω"),
+        ("max", "≤ 54 Ω"),
+        ("none", ""),
+    ],
+)
+def test_limit_reads_with_the_side_the_value_must_stay_on(kind, expected):
+    data = finding_data(_finding(6310.0, 54.0, "Ω", kind), 0, "metric", {})
+    assert data["limit_kind"] == kind
+    assert data["limit_text"] == expected
+    assert data["value_text"] == "6.31 kΩ"
+
+
+def test_a_finding_that_does_not_say_is_an_upper_limit():
+    # common practice: a stub limit is a longest allowed length, printed as given with its unit.
+    data = finding_data(_finding(0.5, 1.2, "m", None), 0, "metric", {})
+    assert data["limit_kind"] == "max" and data["limit_text"] == "≤ 1.2 m"
+
+
+def test_plan_page_prints_each_limit_with_its_side(client):
+    plan = {
+        "bit_rate_bps": 115_200,
+        "trunk_length_m": 100.0,
+        "nodes": [{"name": "far", "position_m": 100.0, "stub_length_m": 0.5}],
+        "terminations": [{"position_m": 0.0, "resistance_ohm": 120.0}, {"position_m": 100.0, "resistance_ohm": 120.0}],
+    }
+    data = client.post("/api/check", json=plan).json()
+    stub = next(f for f in data["findings"] if f["rule_id"] == "stub.length")
+    assert stub["limit_kind"] == "max" and stub["limit_text"].startswith("≤ ")
+    assert all(f["limit_text"][:1] in ("≤", "≥", "") for f in data["findings"])
