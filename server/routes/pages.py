@@ -19,6 +19,7 @@ from server.views import editor_data, plan_data, start_data
 
 router = APIRouter()
 MAX_FORM_FIELDS = 8000  # 512 node rows of 8 inputs, plus the rest
+UTF8_BOM = "\ufeff"  # spreadsheet programs read a CSV as UTF-8 (so "Ω" survives) only when it starts with this
 
 
 def get_store(request: Request) -> PlanStore:
@@ -250,7 +251,7 @@ def bill_of_materials(request: Request, ref: str, store: StoreDep) -> Response:
     for item in report.summary.bom:
         writer.writerow([item.item, item.value, item.quantity, item.rating, item.note])
     return Response(
-        out.getvalue(),
+        UTF8_BOM + out.getvalue(),
         media_type="text/csv; charset=utf-8",
         headers={"Content-Disposition": f'attachment; filename="{_filename(saved)}-bom.csv"'},
     )

@@ -299,8 +299,11 @@ def test_downloads_plan_json_and_bill_of_materials_csv(client, saved_id):
     assert json.loads(plan.text)["title"] == "Irrigation row 7"
     csv_resp = client.get(f"/plans/{saved_id}/bom.csv")
     assert csv_resp.status_code == 200 and csv_resp.headers["content-type"].startswith("text/csv")
-    lines = csv_resp.text.strip().splitlines()
+    # Source: Unicode Standard, sec. 23.8: the byte order mark U+FEFF encodes in UTF-8 as EF BB BF.
+    assert csv_resp.content.startswith(b"\xef\xbb\xbf")
+    lines = csv_resp.content.decode("utf-8-sig").strip().splitlines()
     assert lines[0] == "item,value,quantity,rating,note" and len(lines) >= 2
+    assert "Ω" in csv_resp.content.decode("utf-8-sig")
 
 
 def test_editor_buttons_add_rows_and_switch_units_without_javascript(client):
