@@ -20,6 +20,7 @@ from engine.units import si_format
 from server.cautions import cautions_data
 from server.diagram import bus_drawing, node_anchor
 from server.forms import BIAS, CABLE, DRIVER, NODE, TERMINATION, TOP, FormState
+from server.messages import problem_message
 from server.plots import curve_plot, eye_plot, waveform_plot
 from server.quantities import UnitSystem, format_quantity, length_in, length_unit
 from server.results import (
@@ -72,18 +73,6 @@ def quantity_text(value: float | None, unit: str, units: UnitSystem) -> str:
     return f"{value:.4g} {unit}".strip()
 
 
-def problem_message(problem: Problem, units: UnitSystem) -> str:
-    """The engine's message, with feet added for length fields when the plan is shown in imperial units."""
-    allowed = problem.allowed
-    if units == "imperial" and allowed.get("unit") == "m" and isinstance(problem.value, int | float):
-        parts = [f"{length_in(float(problem.value), units):.5g} ft"]
-        if "max" in allowed:
-            parts.append(f"allowed {length_in(allowed.get('min', 0.0), units):.5g} to")
-            parts.append(f"{length_in(allowed['max'], units):.5g} ft")
-        return f"{problem.message} (In feet: {' '.join(parts)}.)"
-    return problem.message
-
-
 def _field_meta(units: UnitSystem) -> dict[str, dict[str, dict[str, Any]]]:
     groups = {"plan": TOP, "cable": CABLE, "driver": DRIVER, "nodes": NODE, "terminations": TERMINATION}
     groups["bias"] = BIAS
@@ -126,7 +115,11 @@ def editor_data(state: FormState, *, title: str, saved_from: SavedPlan | None = 
         message = problem_message(p, state.units)
         if p.field in state.values or p.field.endswith(("class_key", "transceiver")):
             by_field.setdefault(p.field, message)
-        general.append({"field": p.field, "label": p.label, "message": message, "on_form": p.field in state.values})
+        # The list links the label; a message that starts with it goes on after the link rather than repeating it.
+        rest = message[len(p.label) :] if p.label and message.startswith(p.label) else None
+        general.append(
+            {"field": p.field, "label": p.label, "message": message, "rest": rest, "on_form": p.field in state.values}
+        )
     return {
         "page": "editor",
         "title": title,

@@ -180,6 +180,23 @@ def test_form_with_bad_values_comes_back_422_with_values_kept_and_messages_in_pl
     assert dom.find("input", name="driver.name").attrs["value"] == "controller"
 
 
+def test_form_error_for_a_non_number_names_the_range_once_and_the_node_by_name(client):
+    bad = FIVE_NODE_FORM | {"bit_rate_bps": "fast", "nodes.3.ground_offset_v": "lots"}
+    dom = parse_html(client.post("/plans", data=bad | {"action": "check"}).text)
+    rate = dom.by_id("e-bit_rate_bps").text()
+    # Source: the plan model's own bounds for bit_rate_bps (engine/plan.py), which the JSON API also reports
+    # (checked at the end of this test).
+    assert rate.startswith("Bit rate is 'fast'; write a number in bit/s")
+    assert "allowed 50 bit/s to 100 Mbit/s" in rate
+    offset = dom.by_id("e-nodes.3.ground_offset_v").text()
+    assert offset.startswith("Node 4 ('valve-4') ground offset is 'lots'; write a number in V")
+    listed = [li.text() for li in dom.by_id("problems").find_all("li")]
+    assert any(t.startswith("Bit rate is 'fast'") for t in listed)
+    assert not any("Bit rate: Bit rate" in t or t.count("Bit rate") > 1 for t in listed)
+    api = client.post("/api/check", json=PLAN_DOC | {"bit_rate_bps": "fast"}).json()["problems"][0]
+    assert api["allowed"]["min"] == 50 and api["allowed"]["max"] == 100e6
+
+
 def test_json_api_checks_saves_and_reads_plans(client):
     checked = client.post("/api/check", json=PLAN_DOC)
     assert checked.status_code == 200 and checked.json()["id"] is None
@@ -352,9 +369,15 @@ def test_imperial_plans_take_feet_and_explain_limits_in_feet(client):
     assert data["plan"]["nodes"][0]["position_m"] == pytest.approx(76.2, rel=1e-12)
     assert data["units"] == "imperial" and data["facts"]["trunk"].endswith("ft")
     too_long = client.post("/plans", data=form | {"trunk_length_m": "20000", "action": "check"})
-    message = parse_html(too_long.text).by_id("e-trunk_length_m").text()
-    # Source: the plan's 4000 m limit is 13123.36 ft (4000 / 0.3048).
-    assert "20000 ft" in message and "13123 ft" in message
+    message = parse_html(too_long.text).by_id("e-trunk_length_m").text().replace("\u202f", " ")
+    # Source: 1 ft = 0.3048 m exactly: 20000 ft = 6096 m (6100 m to 3 digits); the plan's 4000 m limit is
+    # 13123.36 ft (13 100 ft to 3 digits). What was typed leads, in feet; metres follow in brackets.
+    assert message.startswith("Trunk length is 20 000 ft (6100 m)")
+    assert "more than 0 ft, up to 13 100 ft (4000 m)" in message
+    huge = client.post("/plans", data=form | {"trunk_length_m": "1e9", "action": "check"})
+    message = parse_html(huge.text).by_id("e-trunk_length_m").text().replace("\u202f", " ")
+    # Source: 1e9 ft = 304 800 000 m exactly (1 ft = 0.3048 m).
+    assert "1 000 000 000 ft (305 000 000 m)" in message and "e+" not in message
 
 
 def test_the_plan_twin_carries_the_same_report_as_the_command_line(client, saved_id):
