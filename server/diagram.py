@@ -10,7 +10,7 @@ from collections.abc import Mapping
 from dataclasses import dataclass, replace
 
 from engine.plan import BusPlan
-from server.quantities import UnitSystem, length_in, length_unit
+from server.quantities import UnitSystem, length_in, length_text
 
 WIDTH_PX = 960.0
 LEFT_PX = 70.0
@@ -113,7 +113,7 @@ def _short(name: str) -> str:
 
 
 def _length_text(value_m: float, units: UnitSystem) -> str:
-    return f"{length_in(value_m, units):.3g} {length_unit(units)}"
+    return length_text(value_m, units)
 
 
 def node_anchor(index: int) -> str:

@@ -8,7 +8,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from server.quantities import UnitSystem, length_in, length_unit
+from server.quantities import UnitSystem, length_in, length_unit, number_text
 
 PLOT_W = 640.0
 PLOT_H = 240.0
@@ -229,7 +229,7 @@ def curve_plot(
         point_x=px(plan_rate_bps),
         point_y=py(plan_len),
         point_inside=inside,
-        point_label=f"this plan: {_rate_text(plan_rate_bps)}bit/s, {plan_len:.4g} {unit}",
+        point_label=f"this plan: {_rate_text(plan_rate_bps)}bit/s, {number_text(plan_len)} {unit}",
         x_ticks=tuple(AxisTick(px(d), _rate_text(d).strip() or "1") for d in _decades(r_lo, r_hi) if r_lo <= d <= r_hi),
         y_ticks=tuple(AxisTick(py(d), f"{d:g}") for d in _decades(l_lo, l_hi) if l_lo <= d <= l_hi),
         y_label=f"trunk length ({unit})",

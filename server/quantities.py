@@ -169,6 +169,11 @@ def format_quantity(
     if value is None:
         return ""
     unit_of_bare = bare_unit(kind, units, bare)
+    if kind == "plain" and (fraction := _fraction_text(value)):
+        return fraction
+    if not _is_power_of_ten(unit_of_bare.factor):
+        # Converted from SI (feet, per foot): the conversion's long tail is noise, not what anyone typed.
+        digits = min(digits, CONVERTED_DIGITS)
     if not unit_of_bare.prefixed or value == 0:
         return _number_text(value / unit_of_bare.factor, digits)
     si_unit = KINDS[kind].si_unit
@@ -182,6 +187,25 @@ def format_quantity(
             return f"{_number_text(value / scale, digits)} {prefix}{si_unit}"
     scale, prefix = _DISPLAY_PREFIXES[-1]
     return f"{_number_text(value / scale, digits)} {prefix}{si_unit}"
+
+
+CONVERTED_DIGITS = 6  # 100 m shows as 328.084 ft: 0.03 mm from the stored value, far below any cable tolerance
+
+
+def _is_power_of_ten(factor: float) -> bool:
+    exponent = math.log10(factor)
+    return abs(exponent - round(exponent)) < 1e-9
+
+
+def _fraction_text(value: float) -> str:
+    """ "1/3" for a value that is a small fraction with a repeating decimal (unit loads), else ""."""
+    if value <= 0 or len(_number_text(value)) <= 8:
+        return ""
+    for denominator in range(2, 17):
+        numerator = round(value * denominator)
+        if numerator and abs(numerator / denominator - value) <= 1e-9 * value:
+            return f"{numerator}/{denominator}"
+    return ""
 
 
 def length_in(value_m: float, units: UnitSystem) -> float:

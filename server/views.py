@@ -5,6 +5,7 @@ lists). SVG coordinates come from `server.diagram` and `server.plots`; this modu
 """
 
 import math
+import re
 from collections.abc import Mapping
 from dataclasses import asdict, fields, is_dataclass
 from enum import Enum
@@ -22,7 +23,7 @@ from server.diagram import bus_drawing, node_anchor
 from server.forms import BIAS, CABLE, DRIVER, NODE, TERMINATION, TOP, FormState
 from server.messages import problem_message
 from server.plots import curve_plot, eye_plot, waveform_plot
-from server.quantities import UnitSystem, format_quantity, length_in, length_unit
+from server.quantities import UnitSystem, format_quantity, length_text, length_unit, number_text
 from server.results import (
     CURVE_CRITERIA,
     RULE_CRITERION,
@@ -65,12 +66,23 @@ def quantity_text(value: float | None, unit: str, units: UnitSystem) -> str:
     if not math.isfinite(value):
         return "unlimited" if value > 0 else "—"
     if unit == "m":
-        return f"{length_in(value, units):.4g} {length_unit(units)}"
-    if unit in ("s", "F", "Hz", "Ω", "bit/s", "W", "A") and value != 0:
+        return length_text(value, units)
+    if unit in ("s", "F", "Hz", "Ω", "bit/s", "W", "A", "V") and value != 0:
         return si_format(value, unit)
-    if unit == "V" and value != 0 and abs(value) < 1:
-        return f"{value * 1e3:.3g} mV"
-    return f"{value:.4g} {unit}".strip()
+    return f"{number_text(value)} {unit}".strip()
+
+
+_METRES_IN_TEXT = re.compile(r"(?<![\w.])(\d+(?:\.\d+)?(?:[eE][-+]?\d+)?) m\b")
+
+
+def lengths_in_text(text: str, units: UnitSystem) -> str:
+    """An engine sentence with every "<number> m" restated in the display unit and the house rounding."""
+    return _METRES_IN_TEXT.sub(lambda m: length_text(float(m.group(1)), units), text)
+
+
+def bom_rows(bom: Any, units: UnitSystem) -> list[dict[str, Any]]:
+    """Bill-of-materials rows for the page and the CSV, positions in the plan's display unit."""
+    return [asdict(item) | {"note": lengths_in_text(item.note, units)} for item in bom]
 
 
 def _field_meta(units: UnitSystem) -> dict[str, dict[str, dict[str, Any]]]:
@@ -385,7 +397,7 @@ def _summary_data(summary: Any, units: UnitSystem) -> dict[str, Any]:
         "further_nodes": dict(summary.further_nodes),
         "max_bit_rate_bps": summary.max_bit_rate_bps,
         "max_bit_rate_text": quantity_text(summary.max_bit_rate_bps, "bit/s", units),
-        "bom": [asdict(item) for item in summary.bom],
+        "bom": bom_rows(summary.bom, units),
     }
 
 

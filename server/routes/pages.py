@@ -15,7 +15,7 @@ from server.errors import not_found
 from server.forms import FormState, form_from_plan, merge_problems, parse_form, with_units
 from server.results import check_and_simulate, check_only
 from server.store import PlanStore, SavedPlan
-from server.views import editor_data, plan_data, start_data
+from server.views import bom_rows, editor_data, plan_data, start_data
 
 router = APIRouter()
 MAX_FORM_FIELDS = 8000  # 512 node rows of 8 inputs, plus the rest
@@ -248,8 +248,8 @@ def bill_of_materials(request: Request, ref: str, store: StoreDep) -> Response:
     out = io.StringIO()
     writer = csv.writer(out)
     writer.writerow(["item", "value", "quantity", "rating", "note"])
-    for item in report.summary.bom:
-        writer.writerow([item.item, item.value, item.quantity, item.rating, item.note])
+    for row in bom_rows(report.summary.bom, plan.display_units):
+        writer.writerow([row["item"], row["value"], row["quantity"], row["rating"], row["note"]])
     return Response(
         UTF8_BOM + out.getvalue(),
         media_type="text/csv; charset=utf-8",

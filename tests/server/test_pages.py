@@ -331,8 +331,8 @@ def test_editor_buttons_add_rows_and_switch_units_without_javascript(client):
     assert dom.find("input", name="nodes.4.name").attrs["value"] == "valve-5"
     resp = client.post("/plans", data=FIVE_NODE_FORM | {"action": "units", "display_units": "imperial"})
     dom = parse_html(resp.text)
-    # Source: 1 ft = 0.3048 m exactly -> 400 m = 1312.335958 ft.
-    assert float(dom.find("input", name="trunk_length_m").attrs["value"]) == pytest.approx(1312.335958, rel=1e-9)
+    # Source: 1 ft = 0.3048 m exactly -> 400 m = 1312.335958 ft, shown to 6 significant digits.
+    assert dom.find("input", name="trunk_length_m").attrs["value"] == "1312.34"
     assert dom.find("input", name="shown_units").attrs["value"] == "imperial"
 
 
@@ -378,6 +378,29 @@ def test_imperial_plans_take_feet_and_explain_limits_in_feet(client):
     message = parse_html(huge.text).by_id("e-trunk_length_m").text().replace("\u202f", " ")
     # Source: 1e9 ft = 304 800 000 m exactly (1 ft = 0.3048 m).
     assert "1 000 000 000 ft (305 000 000 m)" in message and "e+" not in message
+
+
+def test_a_feet_plan_reads_in_feet_everywhere_and_edits_with_rounded_values(client):
+    doc = PLAN_DOC | {
+        "display_units": "imperial",
+        "bias": {"position_m": 0.0, "pull_up_ohm": 620, "pull_down_ohm": 620},
+    }
+    doc["nodes"] = [{"name": "left", "position_m": 50.0, "stub_length_m": 0.2338, "unit_loads": 1 / 3}]
+    plan_id = client.post("/api/plans", json=doc).json()["id"]
+    form = parse_html(client.get(f"/plans/{plan_id}/edit").text)
+    # Source: 1 ft = 0.3048 m exactly: 100 m = 328.0839895 ft, shown to 6 significant digits.
+    assert form.find("input", name="trunk_length_m").attrs["value"] == "328.084"
+    assert form.find("input", name="nodes.0.unit_loads").attrs["value"] == "1/3"
+    csv_text = client.get(f"/plans/{plan_id}/bom.csv").content.decode("utf-8-sig")
+    # Source: 1 ft = 0.3048 m exactly: the terminators at 0 m and 100 m sit at 0 ft and 328 ft (3 digits).
+    assert "at 0 ft and 328 ft" in csv_text and " m" not in csv_text.replace(" mV", "")
+    page = client.get(f"/plans/{plan_id}.json").json()
+    assert page["facts"]["trunk"] == "328 ft"
+    # Source: 0.2338 m = 0.767 ft (0.2338 / 0.3048 = 0.76706), 3 significant digits.
+    assert page["nodes"][0]["stub_text"] == "0.767 ft"
+    metric = client.get(f"/plans/{client.post('/api/plans', json=doc | {'display_units': 'metric'}).json()['id']}.json")
+    # Source: rounding to 3 significant digits, as the command line prints it.
+    assert metric.json()["nodes"][0]["stub_text"] == "0.234 m"
 
 
 def test_the_plan_twin_carries_the_same_report_as_the_command_line(client, saved_id):
