@@ -18,7 +18,7 @@ from engine.findings import Verdict, worst
 from engine.library import CABLES, TRANSCEIVERS
 from engine.plan import BusPlan, Problem, plan_to_dict
 from engine.units import si_format
-from server.cautions import cautions_data
+from server.cautions import cautions_data, danger_data
 from server.diagram import bus_drawing, node_anchor
 from server.forms import BIAS, CABLE, DRIVER, NODE, TERMINATION, TOP, FormState
 from server.messages import problem_message
@@ -299,6 +299,7 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
                 plan, node_verdicts | {plan.driver.name: node_verdicts.get(plan.driver.name, "holds")}, units
             ),
             "cautions": cautions_data(plan),
+            "danger": danger_data(plan),
         }
     )
     data["report"] = report_to_dict(report)  # already JSON-safe: the same JSON as `pairline check --json`

@@ -74,3 +74,38 @@ def test_plan_page_prints_each_limit_with_its_side(client):
     stub = next(f for f in data["findings"] if f["rule_id"] == "stub.length")
     assert stub["limit_kind"] == "max" and stub["limit_text"].startswith("≤ ")
     assert all(f["limit_text"][:1] in ("≤", "≥", "") for f in data["findings"])
+
+
+def _offset_plan(offset_v: float) -> dict:
+    return {
+        "bit_rate_bps": 9600,
+        "trunk_length_m": 200.0,
+        "nodes": [
+            {"name": "store", "position_m": 100.0},
+            {"name": "barn", "position_m": 200.0, "ground_offset_v": offset_v},
+        ],
+        "terminations": [{"position_m": 0.0, "resistance_ohm": 120.0}, {"position_m": 200.0, "resistance_ohm": 120.0}],
+    }
+
+
+@pytest.mark.parametrize("offset_v", [-75.0, 230.0])
+def test_a_ground_offset_above_50_volts_puts_a_stop_caution_above_the_findings(client, offset_v):
+    from tests.server.html_dom import parse_html
+
+    # Source: IEC 60364-4-41, conventional touch-voltage limit 50 V AC for ordinary locations (from memory).
+    data = client.post("/api/check", json=_offset_plan(offset_v)).json()
+    assert data["danger"]["limit_v"] == 50.0 and [n["name"] for n in data["danger"]["nodes"]] == ["barn"]
+    plan_id = client.post("/api/plans", json=_offset_plan(offset_v)).json()["id"]
+    html = client.get(f"/plans/{plan_id}").text
+    box = parse_html(html).by_id("danger")
+    assert box is not None and box.attrs.get("role") == "alert"
+    text = box.text()
+    assert "shock hazard" in text and "earth fault" in text and "licensed electrician" in text
+    assert "local electrical codes" in text and "'barn'" in text
+    assert html.index('id="danger"') < html.index('id="h-findings"')
+
+
+def test_no_stop_caution_at_50_volts_or_less(client):
+    # Source: IEC 60364-4-41, conventional touch-voltage limit 50 V AC (from memory): at the limit, no stop.
+    data = client.post("/api/check", json=_offset_plan(-50.0)).json()
+    assert data["danger"] is None
