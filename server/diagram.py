@@ -163,7 +163,8 @@ def bus_drawing(plan: BusPlan, node_verdicts: Mapping[str, str], units: UnitSyst
     nodes = _thin_labels(nodes)
     drv = plan.driver
     parts: list[tuple[str, float, str, str]] = [
-        ("driver", x_of(drv.position_m, length_m), f"{_short(drv.name)} (driver)", f"Driver {drv.name}"),
+        # The driver's label has a lane of its own width above the trunk: its full name fits.
+        ("driver", x_of(drv.position_m, length_m), f"{drv.name} (driver)", f"Driver {drv.name}"),
     ]
     for i, t in enumerate(plan.terminations):
         text = _ohm_text(t.resistance_ohm) + (f" + {_farad_text(t.capacitance_f)}" if t.capacitance_f else "")
@@ -211,7 +212,8 @@ def bus_drawing(plan: BusPlan, node_verdicts: Mapping[str, str], units: UnitSyst
     longest_label = max((len(n.label) for n in nodes), default=4)
     height = lowest + 18.0 + 0.65 * CHAR_PX * longest_label + 8.0
     caption = (
-        f"Trunk {_length_text(length_m, units)} drawn to scale; the driver, terminators and bias sit above it, "
+        f"Trunk {_length_text(length_m, units)} drawn to scale; the driver ({drv.name}), terminators and bias sit "
+        "above it, "
         f"nodes hang below on their stubs. " + caption_scale
     )
     if any(not n.show_label for n in nodes):

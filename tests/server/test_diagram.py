@@ -97,3 +97,11 @@ def test_part_labels_near_the_right_edge_run_leftwards():
     left, right = drawing.terminators
     assert left.text_anchor == "start" and left.text_x > left.x
     assert right.text_anchor == "end" and right.text_x < right.x
+
+
+def test_the_driver_label_carries_its_full_name():
+    plan = PLAN | {"driver": {"name": "workshop-controller", "position_m": 0.0}}
+    drawing = bus_drawing(load_plan(plan), {}, "metric")
+    assert drawing.driver.label == "workshop-controller (driver)"
+    assert "workshop-controller" in drawing.caption
+    assert drawing.driver.x + 10.0 + CHAR_PX * len(drawing.driver.label) <= WIDTH_PX
