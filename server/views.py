@@ -153,12 +153,16 @@ def editor_data(state: FormState, *, title: str, saved_from: SavedPlan | None = 
     }
 
 
-def start_data(samples: list[SampleEntry], problems: list[Problem] | None = None, pasted: str = "") -> dict[str, Any]:
+def start_data(
+    samples: list[SampleEntry], problems: list[Problem] | None = None, pasted: str = "", units: UnitSystem = "metric"
+) -> dict[str, Any]:
     return {
         "page": "start",
         "title": "Pairline",
         "samples": [{"slug": s.slug, "title": s.title, "url": f"/plans/{s.plan_id}"} for s in samples],
-        "problems": [{"field": p.field, "label": p.label, "message": p.message} for p in problems or []],
+        "problems": [
+            {"field": p.field, "label": p.label, "message": problem_message(p, units)} for p in problems or []
+        ],
         "pasted": pasted,
         "engine_version": ENGINE_VERSION,
     }

@@ -13,6 +13,7 @@ from engine.plan import BusInputError, BusPlan, Problem, load_plan, plan_to_dict
 from server.app import render
 from server.errors import not_found
 from server.forms import FormState, form_from_plan, merge_problems, parse_form, with_units
+from server.quantities import UnitSystem
 from server.results import check_and_simulate, check_only
 from server.store import PlanStore, SavedPlan
 from server.views import bom_rows, editor_data, plan_data, start_data
@@ -63,6 +64,7 @@ async def import_plan(request: Request, store: StoreDep) -> Response:
             if raw:
                 text = raw.decode("utf-8", errors="replace")
     problems: list[Problem] = []
+    units: UnitSystem = "metric"
     try:
         if not text.strip():
             raise BusInputError(
@@ -82,11 +84,12 @@ async def import_plan(request: Request, store: StoreDep) -> Response:
                     )
                 ]
             ) from exc
+        units = "imperial" if isinstance(doc, dict) and doc.get("display_units") == "imperial" else "metric"
         plan = load_plan(doc)
     except BusInputError as exc:
         problems = exc.problems
     if problems:
-        return render(request, "start.html", start_data(store.samples(), problems, pasted), status_code=422)
+        return render(request, "start.html", start_data(store.samples(), problems, pasted, units), status_code=422)
     plan_id = store.save_plan(plan_to_dict(plan), engine_version=ENGINE_VERSION)
     return RedirectResponse(f"/plans/{plan_id}", status_code=303)
 

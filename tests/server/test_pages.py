@@ -308,6 +308,10 @@ def test_import_by_upload_and_paste_and_refusal_with_reasons(client):
     assert parse_html(broken.text).find("textarea", name="plan_text").text() == '{"trunk_length_m": -1}'
     not_json = client.post("/import", data={"plan_text": "hello"})
     assert not_json.status_code == 422 and "not valid JSON" in not_json.text
+    feet = json.dumps(PLAN_DOC | {"display_units": "imperial", "trunk_length_m": 1e9})
+    text = client.post("/import", data={"plan_text": feet}).text.replace("\u202f", " ")
+    # Source: 1 ft = 0.3048 m exactly: 1e9 m = 3 280 839 895 ft (3 280 000 000 to 3 digits).
+    assert "Trunk length is 3 280 000 000 ft (1 000 000 000 m)" in text and "e+09" not in text
 
 
 def test_downloads_plan_json_and_bill_of_materials_csv(client, saved_id):
