@@ -10,7 +10,8 @@ Conventions (all differential, V_AB):
   synchronised on (n T_bit + t_50 + T_bit / 2). propagation_delay_s is t_50 minus the driver ramp's own
   50 % point. A window that the pattern's end cuts short is left out.
   The "driven side" of window n is s_n = +1 for a 1 bit, -1 for a 0.
-- amplitude_v: the settled level |V| after a long run of equal bits (exact DC solve).
+- amplitude_v: the settled level |V| after a long run of equal bits (exact DC solve), one polarity: the
+  differential signal swings between -amplitude_v and +amplitude_v, so a settled eye is 2 x amplitude_v.
 - overshoot_v: how far s_n V rises above the settled level, worst over the pattern.
 - undershoot_v: ringback: after s_n V has reached the settled level inside a window, how far it then drops
   below it (0 when the approach is monotonic).

@@ -105,10 +105,11 @@ def check_signal_integrity(bus: Bus) -> list[Finding]:
         m = j.metrics
         driven_by = "" if driver == primary else f" (worst case: '{driver}' driving)"
         detail = (
-            f"Driver '{driver}', {si_format(1.0 / m.bit_time_s, 'bit/s')}: settled level {m.amplitude_v:.2f} V, "
+            f"Driver '{driver}', {si_format(1.0 / m.bit_time_s, 'bit/s')}: settled level ±{m.amplitude_v:.2f} V, "
             f"peak {m.peak_v:.2f} V, overshoot {m.overshoot_v:.2f} V, ringback {m.undershoot_v:.2f} V, "
-            f"{m.threshold_recrossings} threshold re-crossing(s), eye {m.eye_height_v:.2f} V × "
-            f"{m.eye_width_ui:.0%} of a bit, delay {si_format(m.propagation_delay_s, 's')}, "
+            f"{m.threshold_recrossings} threshold re-crossing(s), eye {m.eye_height_v:.2f} V "
+            f"(from the 0s' -V to the 1s' +V) × {m.eye_width_ui:.0%} of a bit, "
+            f"delay {si_format(m.propagation_delay_s, 's')}, "
             f"jitter {m.jitter_ui:.0%} of a bit."
         )
         if j.reasons:
