@@ -95,11 +95,14 @@ def step_responses(
     *,
     max_time_s: float | None = None,
     tolerance: float = 1e-3,
+    receiver_names: "tuple[str, ...] | list[str] | None" = None,
 ) -> StepResponses:
-    """Step (edge) response at every receiver for each driver; see the module docstring for the method.
+    """Step (edge) response at every receiver (or the named ones) for each driver; method in the module docstring.
 
     max_time_s: stop once this span is covered even if not settled (None: go on until settled).
     tolerance: settled when within tolerance * open_circuit_v of the DC level over the last level's span.
+    receiver_names: only these receivers' spectra and transforms are computed (the whole bus is still solved);
+    None = every receiver, in plan node order.
     """
     names = resolve_driver_names(bus, driver_names)
     if max_time_s is not None and not (np.isfinite(max_time_s) and max_time_s > 0):
@@ -115,10 +118,11 @@ def step_responses(
             ]
         )
     topo = build_topology(bus)
+    rx_index = None if receiver_names is None else _receiver_index(topo.receiver_names, receiver_names)
     v_oc = bus.driver.open_circuit_v
     t_edge = edge_duration_s(bus.driver.rise_time_s)
-    n_rx = topo.receiver_branch.size
-    v_final = v_oc * receiver_spectra(solve_network(bus, np.zeros(1), topo, names), names)[..., 0].real
+    n_rx = topo.receiver_branch.size if rx_index is None else rx_index.size
+    v_final = v_oc * receiver_spectra(solve_network(bus, np.zeros(1), topo, names), names, rx_index)[..., 0].real
     t_min = t_edge + 6.0 * longest_delay_s(bus)
     if max_time_s is not None:
         t_min = min(t_min, max_time_s)
@@ -149,7 +153,7 @@ def step_responses(
             spectra = np.empty((len(group), n_rx, s_level.size), dtype=complex)
             for p0 in range(0, s_level.size, points):
                 part = slice(p0, p0 + points)
-                spectra[..., part] = receiver_spectra(solve_network(bus, s_level[part], topo, group), group)
+                spectra[..., part] = receiver_spectra(solve_network(bus, s_level[part], topo, group), group, rx_index)
             spectra *= x_level
             x_full = np.fft.irfft(spectra, n=n, axis=-1)[..., : n // 2 + 1] * gain
             v[d0 : d0 + len(group)] = x_full[..., kept]
@@ -176,7 +180,7 @@ def step_responses(
     return StepResponses(
         time_s=np.concatenate(times),
         driver_names=names,
-        receiver_names=topo.receiver_names,
+        receiver_names=topo.receiver_names if rx_index is None else tuple(topo.receiver_names[i] for i in rx_index),
         v_diff_v=np.concatenate(values, axis=-1),
         v_final_v=v_final,
         open_circuit_v=v_oc,
