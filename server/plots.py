@@ -151,6 +151,7 @@ class CurvePlot:
     y0: float
     y1: float
     curve: str  # polyline points of the length limit against bit rate
+    rule_curve: str  # a second limit drawn for comparison ("" when none)
     point_x: float
     point_y: float
     point_inside: bool  # the plan's length is at or under the curve at its bit rate
@@ -161,7 +162,11 @@ class CurvePlot:
 
 
 def _decades(lo: float, hi: float) -> list[float]:
-    return [10.0**k for k in range(math.floor(math.log10(lo)), math.ceil(math.log10(hi)) + 1)]
+    """Log-axis ticks: powers of ten, with 2 and 5 between them when fewer than three decades show."""
+    powers = [10.0**k for k in range(math.floor(math.log10(lo)), math.ceil(math.log10(hi)) + 1)]
+    if sum(1 for p in powers if lo <= p <= hi) >= 3:
+        return powers
+    return sorted(p * m for p in powers for m in (1, 2, 5))
 
 
 def _rate_text(bps: float) -> str:
@@ -177,17 +182,28 @@ def curve_plot(
     plan_rate_bps: float,
     plan_length_m: float,
     units: UnitSystem,
+    rule: "tuple[Sequence[float] | np.ndarray, Sequence[float] | np.ndarray] | None" = None,
 ) -> CurvePlot:
-    """Log-log plot of the longest trunk against bit rate, with the plan's (rate, length) marked."""
-    rates = np.asarray(bit_rate_bps, dtype=float)
-    lengths = np.array([length_in(v, units) for v in max_length_m])
+    """Log-log plot of the longest trunk against bit rate, with the plan's (rate, length) marked and, when
+    given, a second (rule-of-thumb) limit for comparison."""
+
+    def usable(r: "Sequence[float] | np.ndarray", L: "Sequence[float] | np.ndarray") -> tuple[np.ndarray, np.ndarray]:
+        rr = np.asarray(r, dtype=float)
+        ll = np.array([length_in(float(v), units) for v in L])
+        keep = (rr > 0) & (ll > 0) & np.isfinite(ll)
+        return rr[keep], ll[keep]
+
+    rates, lengths = usable(bit_rate_bps, max_length_m)
+    rule_rates, rule_lengths = usable(*rule) if rule is not None else (np.empty(0), np.empty(0))
     plan_len = length_in(plan_length_m, units)
-    ok = (rates > 0) & (lengths > 0) & np.isfinite(lengths)
-    rates, lengths = rates[ok], lengths[ok]
     r_lo = min(float(rates.min()) if rates.size else 1e3, plan_rate_bps) / 1.5
     r_hi = max(float(rates.max()) if rates.size else 1e7, plan_rate_bps) * 1.5
-    l_lo = min(float(lengths.min()) if lengths.size else 1.0, plan_len) / 1.5
-    l_hi = max(float(lengths.max()) if lengths.size else 1e3, plan_len) * 1.5
+    in_view = (rule_rates >= r_lo) & (rule_rates <= r_hi)
+    rule_rates, rule_lengths = rule_rates[in_view], rule_lengths[in_view]
+    every = np.concatenate([lengths, rule_lengths, [plan_len]])
+    l_lo = max(float(every.min()) / 1.5, 0.5)
+    l_hi = float(every.max()) * 1.5
+    rule_lengths = np.clip(rule_lengths, l_lo, l_hi)
     x0, x1, y0, y1 = MARGIN_L, PLOT_W - MARGIN_R, MARGIN_T, PLOT_H - MARGIN_B
     lx0, lx1, ly0, ly1 = math.log10(r_lo), math.log10(r_hi), math.log10(l_lo), math.log10(l_hi)
 
@@ -198,6 +214,7 @@ def curve_plot(
         return y1 - (y1 - y0) * (math.log10(length) - ly0) / (ly1 - ly0)
 
     curve = " ".join(f"{px(r):.1f},{py(L):.1f}" for r, L in zip(rates, lengths, strict=True))
+    rule_curve = " ".join(f"{px(r):.1f},{py(L):.1f}" for r, L in zip(rule_rates, rule_lengths, strict=True))
     inside = bool(rates.size) and plan_len <= float(np.interp(math.log10(plan_rate_bps), np.log10(rates), lengths))
     unit = length_unit(units)
     return CurvePlot(
@@ -208,13 +225,14 @@ def curve_plot(
         y0=y0,
         y1=y1,
         curve=curve,
+        rule_curve=rule_curve,
         point_x=px(plan_rate_bps),
         point_y=py(plan_len),
         point_inside=inside,
         point_label=f"this plan: {_rate_text(plan_rate_bps)}bit/s, {plan_len:.4g} {unit}",
         x_ticks=tuple(AxisTick(px(d), _rate_text(d).strip() or "1") for d in _decades(r_lo, r_hi) if r_lo <= d <= r_hi),
         y_ticks=tuple(AxisTick(py(d), f"{d:g}") for d in _decades(l_lo, l_hi) if l_lo <= d <= l_hi),
-        y_label=f"cable path ({unit})",
+        y_label=f"trunk length ({unit})",
     )
 
 

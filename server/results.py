@@ -19,8 +19,8 @@ from engine.rules.length_rate import (
     LOSS_SOURCE,
     RATE_SOURCE,
     loss_db,
-    signal_path_m,
 )
+from engine.sweep import LengthRateCurve, length_rate_curve
 from engine.waveform import DEFAULT_PATTERN_BITS, Waveforms, default_pattern, simulate_pattern, step_responses
 
 __all__ = ["CheckedPlan", "PlanReport", "check_and_simulate", "check_only", "report_to_dict", "worst_receiver"]
@@ -31,11 +31,9 @@ class CheckedPlan:
     report: PlanReport
     metrics: tuple[ReceiverMetrics, ...]  # every receiver, plan order
     waveforms: Waveforms | None  # only the receivers drawn: the worst, then the chosen one
-    curve_bit_rate_bps: np.ndarray  # (n_points,)
-    curve_max_length_m: np.ndarray  # (n_points,)
-    curve_plan_length_m: float  # the length the curve is held against: this bus's longest signal path
-    curve_criterion: str
-    curve_source: str
+    curve: LengthRateCurve  # simulated: the longest trunk per bit rate for this cable and driver
+    rule_bit_rate_bps: np.ndarray  # (n_points,) the report's two length rules, for comparison
+    rule_max_length_m: np.ndarray  # (n_points,)
     simulation_note: str  # why waveforms are missing, when they are
 
 
@@ -68,25 +66,27 @@ def check_and_simulate(plan: BusPlan, chosen_receiver: str | None = None) -> Che
     if chosen_receiver and chosen_receiver not in shown and any(m.receiver == chosen_receiver for m in metrics):
         shown.append(chosen_receiver)
     waveforms = simulate_pattern(bus, bits, receiver_names=tuple(shown), step=step) if shown else None
-    rates_bps, lengths_m = length_rate_limit(bus)
+    rule_rates_bps, rule_lengths_m = length_rate_limit(bus)
     return CheckedPlan(
         report=report,
         metrics=metrics,
         waveforms=waveforms,
-        curve_bit_rate_bps=rates_bps,
-        curve_max_length_m=lengths_m,
-        curve_plan_length_m=signal_path_m(bus),
-        curve_criterion=CURVE_CRITERION,
-        curve_source=f"{RATE_SOURCE}; {LOSS_SOURCE}",
+        curve=length_rate_curve(bus),
+        rule_bit_rate_bps=rule_rates_bps,
+        rule_max_length_m=rule_lengths_m,
         simulation_note="" if shown else "this bus has no receiver to simulate",
     )
 
 
 CURVE_RATES_BPS = np.logspace(3.0, 8.0, 61)  # 1 kbit/s to 100 Mbit/s, 12 points per decade
-CURVE_CRITERION = (
-    "longest cable path allowed at each bit rate by the two length rules the report applies: "
-    "length x rate <= 1e8 m·bit/s, and cable loss at f = bit rate <= 9 dB"
-)
+CURVE_CRITERIA = {
+    "eye": "Simulated: the longest trunk at each bit rate whose worst-case eye at the far receiver still opens "
+    "beyond ±200 mV (this driver and cable, every receiver's load lumped at the far end)",
+    "tia422": "Simulated: the longest trunk at each bit rate meeting the TIA/EIA-422-B Annex A rise-time and loss "
+    "criteria",
+}
+RULE_CRITERION = "Rules of thumb the report applies: length × rate ≤ 1e8 m·bit/s and cable loss at f = bit rate ≤ 9 dB"
+RULE_SOURCE = f"{RATE_SOURCE}; {LOSS_SOURCE}"
 
 
 def length_rate_limit(bus: Bus) -> tuple[np.ndarray, np.ndarray]:

@@ -17,11 +17,12 @@ from engine.findings import Verdict, worst
 from engine.library import CABLES, TRANSCEIVERS
 from engine.plan import BusPlan, Problem, plan_to_dict
 from engine.units import si_format
+from server.cautions import cautions_data
 from server.diagram import bus_drawing, node_anchor
 from server.forms import BIAS, CABLE, DRIVER, NODE, TERMINATION, TOP, FormState
 from server.plots import curve_plot, eye_plot, waveform_plot
 from server.quantities import UnitSystem, format_quantity, length_in, length_unit
-from server.results import CheckedPlan, report_to_dict, worst_receiver
+from server.results import CURVE_CRITERIA, RULE_CRITERION, RULE_SOURCE, CheckedPlan, report_to_dict, worst_receiver
 from server.store import SampleEntry, SavedPlan
 
 _SEVERITY = {"breaks": 0, "tight": 1, "holds": 2}
@@ -73,52 +74,6 @@ def problem_message(problem: Problem, units: UnitSystem) -> str:
             parts.append(f"{length_in(allowed['max'], units):.5g} ft")
         return f"{problem.message} (In feet: {' '.join(parts)}.)"
     return problem.message
-
-
-SAFETY_CAUTIONS = (
-    (
-        "ground",
-        "Ground offsets",
-        "Nodes powered from different supplies or buildings rarely share one ground. The offset adds to the "
-        "common-mode voltage every receiver must tolerate (−7 V to +12 V for RS-485). Run a signal-ground "
-        "conductor with a series resistor at each node, or isolate the transceivers; never rely on earth alone.",
-    ),
-    (
-        "surge",
-        "Surges on long and outdoor runs",
-        "Cable that runs outdoors, between buildings or beside power wiring collects lightning and switching "
-        "surges. Fit surge protection where the cable enters each building, earth the shield at one point, and "
-        "choose parts tested to the surge, burst and ESD levels of the site.",
-    ),
-    (
-        "isolation",
-        "Isolation",
-        "Where the offset may exceed the common-mode range, or the sites have separate earthing systems, use "
-        "galvanically isolated transceivers and isolated supplies rather than a bare ground wire between sites.",
-    ),
-    (
-        "codes",
-        "Codes and licensed practice",
-        "This plan covers signals only. Follow local electrical codes, and have licensed electricians design and "
-        "inspect anything that connects to mains power, earthing systems or equipment in other buildings.",
-    ),
-)
-
-
-def cautions_data(plan: BusPlan) -> list[dict[str, Any]]:
-    """The standing cautions, each marked `applies` with a reason when something in this plan calls for it."""
-    offsets = [abs(n.ground_offset_v) for n in plan.nodes]
-    largest = max(offsets, default=0.0)
-    reasons = {
-        "ground": f"largest ground offset in this plan: {largest:g} V" if largest > 0 else "",
-        "surge": f"trunk length {plan.trunk_length_m:g} m" if plan.trunk_length_m >= 100 else "",
-        "isolation": f"a node sits {largest:g} V from the driver's ground" if largest >= 7 else "",
-        "codes": "always",
-    }
-    return [
-        {"key": key, "title": title, "text": text, "applies": bool(reasons[key]), "reason": reasons[key]}
-        for key, title, text in SAFETY_CAUTIONS
-    ]
 
 
 def _field_meta(units: UnitSystem) -> dict[str, dict[str, dict[str, Any]]]:
@@ -255,8 +210,14 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
     ]
     counts = {v.value: sum(1 for f in report.findings if f.verdict == v) for v in Verdict}
     waveforms = _waveforms_data(checked, chosen_receiver)
+    sweep = checked.curve
     curve = curve_plot(
-        checked.curve_bit_rate_bps, checked.curve_max_length_m, plan.bit_rate_bps, checked.curve_plan_length_m, units
+        sweep.bit_rate_bps,
+        sweep.max_length_m,
+        plan.bit_rate_bps,
+        sweep.plan_length_m,
+        units,
+        rule=(checked.rule_bit_rate_bps, checked.rule_max_length_m),
     )
     plan_id = saved.id if saved else None
     data: dict[str, Any] = json_safe(
@@ -286,11 +247,20 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
             "summary": _summary_data(summary, units),
             "waveforms": waveforms,
             "curve": {
-                "bit_rate_bps": checked.curve_bit_rate_bps,
-                "max_length_m": checked.curve_max_length_m,
-                "plan_length_m": checked.curve_plan_length_m,
-                "criterion": checked.curve_criterion,
-                "source": checked.curve_source,
+                "bit_rate_bps": sweep.bit_rate_bps,
+                "max_length_m": sweep.max_length_m,
+                "criterion": sweep.criterion,
+                "criterion_text": CURVE_CRITERIA.get(sweep.criterion, sweep.criterion),
+                "source": sweep.source,
+                "plan_max_length_m": sweep.plan_max_length_m,
+                "plan_max_length_text": quantity_text(sweep.plan_max_length_m, "m", units),
+                "plan_inside": sweep.plan_inside,
+                "rule": {
+                    "bit_rate_bps": checked.rule_bit_rate_bps,
+                    "max_length_m": checked.rule_max_length_m,
+                    "criterion_text": RULE_CRITERION,
+                    "source": RULE_SOURCE,
+                },
                 "svg": curve,
             },
             "drawing": bus_drawing(

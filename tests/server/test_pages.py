@@ -377,3 +377,25 @@ def test_blank_node_cells_show_what_blank_means(client):
     assert dom.find("input", name="nodes.0.unit_loads").attrs["placeholder"] == "1"
     assert dom.find("input", name="nodes.0.input_capacitance_f").attrs["placeholder"] == "20 pF"
     assert dom.find("input", name="cable.z0_ohm").attrs["placeholder"] == "120 Ω"
+
+
+def test_cautions_point_at_what_in_the_plan_calls_for_them():
+    from engine.plan import load_plan
+    from server.cautions import cautions_data
+
+    quiet = {c["key"]: c for c in cautions_data(load_plan(PLAN_DOC))}
+    assert not quiet["ground"]["applies"] and quiet["codes"]["applies"]
+    nodes = [{"name": "far", "position_m": 100.0, "ground_offset_v": 9.0}]
+    loud = {c["key"]: c for c in cautions_data(load_plan(PLAN_DOC | {"nodes": nodes}))}
+    # Source: TIA/EIA-485-A common-mode range -7 V to +12 V: a 9 V offset leaves it, so isolation applies.
+    assert loud["ground"]["applies"] and loud["isolation"]["applies"] and loud["surge"]["applies"]
+    assert "9 V" in loud["isolation"]["reason"]
+
+
+def test_curve_section_names_its_criteria_and_marks_the_plan(client, saved_id):
+    data = client.get(f"/plans/{saved_id}.json").json()["curve"]
+    assert data["criterion"] in {"eye", "tia422"} and data["source"] and data["rule"]["source"]
+    page = parse_html(client.get(f"/plans/{saved_id}").text)
+    point = page.find("circle", class_="plan-point inside" if data["plan_inside"] else "plan-point outside")
+    assert point is not None
+    assert page.find("polyline", class_="rule-trace") is not None

@@ -54,3 +54,15 @@ def test_without_a_pattern_the_page_uses_the_engines_default_and_its_figures():
     plan = load_plan({k: v for k, v in PLAN.items() if k != "test_pattern"})
     checked = check_and_simulate(plan)
     assert checked.metrics == receiver_metrics(build_bus(plan))
+
+
+def test_the_curve_is_the_engines_sweep_with_the_rules_beside_it():
+    from engine.sweep import length_rate_curve
+
+    plan = load_plan(PLAN)
+    checked = check_and_simulate(plan)
+    expected = length_rate_curve(build_bus(plan))
+    assert list(checked.curve.bit_rate_bps) == list(expected.bit_rate_bps)
+    assert list(checked.curve.max_length_m) == list(expected.max_length_m)
+    assert checked.curve.plan_inside == (plan.trunk_length_m <= checked.curve.plan_max_length_m)
+    assert checked.rule_bit_rate_bps.size == checked.rule_max_length_m.size > 10
