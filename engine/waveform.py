@@ -158,11 +158,12 @@ def step_responses(
                 part = slice(p0, p0 + points)
                 spectra[..., part] = receiver_spectra(solve_network(bus, s_level[part], topo, group), group, rx_index)
             spectra *= x_level
-            x_full = np.fft.irfft(spectra, n=n, axis=-1)[..., : n // 2 + 1] * gain
-            v[d0 : d0 + len(group)] = x_full[..., kept]
-            if resolves_ringing and 4 * half_period < x_full.shape[-1]:
+            x_raw = np.fft.irfft(spectra, n=n, axis=-1)  # undamped; the gain is applied only where read
+            v[d0 : d0 + len(group)] = x_raw[..., kept] * gain[kept]
+            if resolves_ringing and 4 * half_period < span.size:
                 # oscillation left in the level's last quarter: half a trunk period's second difference
-                late = x_full[..., 3 * x_full.shape[-1] // 4 - 2 * half_period :]
+                first_late = 3 * span.size // 4 - 2 * half_period
+                late = x_raw[..., first_late : span.size] * gain[first_late:]
                 wobble = late[..., half_period:-half_period] - 0.5 * (
                     late[..., : -2 * half_period] + late[..., 2 * half_period :]
                 )
