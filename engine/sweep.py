@@ -29,7 +29,7 @@ Criteria (pick one):
   The Annex's loss limit is also quoted as 6 dB; that reading cannot reach the curve's own 1200 m on 24 AWG
   (6 dB allows a loop resistance of only one load resistance, about 600 m), so the 66 % reading is used.
 - "tia422-line": the same two criteria applied to the simulated far-end signal of the transmission line.
-  A 12-60 m line is electrically long against a 50 ns half bit (one-way delay 63-320 ns), so its capacitance
+  A 12-60 m line is electrically long against a 50 ns half bit (one-way delay 63-315 ns), so its capacitance
   is not charged as a lump: a terminated line passes the driver's edge on at Z0, and only the cable's
   frequency-dependent loss slows it. This physical curve runs about four times above the Annex's at high
   rates (about 64 m at 10 Mbit/s with a 10 ns driver) and shows how conservative the Annex's slope is.

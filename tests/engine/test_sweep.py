@@ -62,7 +62,7 @@ def test_simulated_line_is_less_strict_than_the_annex_at_high_rates():
     The Annex's slope comes from charging the cable's capacitance as a lump (engine/sweep.py docstring). A 12 m
     line already delays the edge by 63 ns, longer than the 50 ns rise allowed at 10 Mbit/s, so it is not a lump:
     its terminated far end sees the driver's edge travel at Z0, slowed only by the cable's loss. The simulated
-    curve therefore lies above the Annex's (about 64 m at 10 Mbit/s here, about four times the Annex), which
+    curve therefore lies above the Annex's (about 64 m at 10 Mbit/s here, four to five times its 12-15 m), which
     is why the Annex is called conservative at high rates.
     """
     line = length_rate_curve(_tia422_bus(), RATES, criterion="tia422-line")
