@@ -72,12 +72,19 @@ def quantity_text(value: float | None, unit: str, units: UnitSystem) -> str:
     return f"{number_text(value)} {unit}".strip()
 
 
-_METRES_IN_TEXT = re.compile(r"(?<![\w.])(\d+(?:\.\d+)?(?:[eE][-+]?\d+)?) m\b")
+# "<number> m" as a length: not inside a word or formula ("10^8 m·bit/s", "Ω/m" and "mV" stay as they are).
+_METRES_IN_TEXT = re.compile(r"(?<![\w.^/])(\d+(?:\.\d+)?(?:[eE][-+]?\d+)?) m(?![\w·/^])")
 
 
-def lengths_in_text(text: str, units: UnitSystem) -> str:
-    """An engine sentence with every "<number> m" restated in the display unit and the house rounding."""
-    return _METRES_IN_TEXT.sub(lambda m: length_text(float(m.group(1)), units), text)
+def lengths_in_text(text: str, units: UnitSystem, keep_metres: bool = False) -> str:
+    """An engine sentence with every "<number> m" restated in the display unit and the house rounding;
+    with `keep_metres`, feet are followed by the engine's metres in brackets."""
+
+    def restate(m: re.Match[str]) -> str:
+        shown = length_text(float(m.group(1)), units)
+        return f"{shown} ({m.group(0)})" if keep_metres and units == "imperial" else shown
+
+    return _METRES_IN_TEXT.sub(restate, text)
 
 
 def bom_rows(bom: Any, units: UnitSystem) -> list[dict[str, Any]]:
@@ -202,8 +209,8 @@ def finding_data(f: Any, index: int, units: UnitSystem, node_anchors: Mapping[st
         "node_anchor": node_anchors.get(f.node, "") if f.node else "",
         "criterion": f.criterion,
         "source": f.source,
-        "fix": f.fix,
-        "detail": f.detail,
+        "fix": lengths_in_text(f.fix, units, keep_metres=True) if units == "imperial" else f.fix,
+        "detail": lengths_in_text(f.detail, units, keep_metres=True) if units == "imperial" else f.detail,
     }
 
 

@@ -109,3 +109,23 @@ def test_no_stop_caution_at_50_volts_or_less(client):
     # Source: IEC 60364-4-41, conventional touch-voltage limit 50 V AC (from memory): at the limit, no stop.
     data = client.post("/api/check", json=_offset_plan(-50.0)).json()
     assert data["danger"] is None
+
+
+@pytest.mark.parametrize(
+    ("text", "expected"),
+    [
+        # Source: 1 ft = 0.3048 m exactly: 4.1 m = 13.45 ft (13.5 to 3 digits), 70 m = 229.66 ft (230).
+        (
+            "shorten the stub from 6 m to at most 4.1 m",
+            "shorten the stub from 19.7 ft (6 m) to at most 13.5 ft (4.1 m)",
+        ),
+        ("at 0 m and 70 m", "at 0 ft (0 m) and 230 ft (70 m)"),
+        # Formulas and other units stay as written.
+        ("length × rate <= 10^8 m·bit/s; 84.2 Ω/km; 200 mV", "length × rate <= 10^8 m·bit/s; 84.2 Ω/km; 200 mV"),
+    ],
+)
+def test_engine_sentences_read_in_feet_for_an_imperial_plan(text, expected):
+    from server.views import lengths_in_text
+
+    assert lengths_in_text(text, "imperial", keep_metres=True) == expected
+    assert lengths_in_text(text, "metric", keep_metres=True) == text  # already 3 digits in metres
