@@ -159,8 +159,11 @@ def judge_bus(
     driver = driver_name or bus.plan.driver.name
     bit_time_s = 1.0 / bus.plan.bit_rate_bps
     bits = pattern or bus.plan.test_pattern
-    if step is None or step.driver_names[:1] != (driver,):
-        step = step_responses(bus, [driver], max_time_s=pattern_duration_s(bus, bits))
+    watched = None if receivers is None else list(receivers)
+    wanted = set(watched) if watched is not None else {n.name for n in bus.plan.nodes}
+    if step is None or step.driver_names[:1] != (driver,) or not wanted <= set(step.receiver_names):
+        # only the watched receivers' spectra and transforms are computed
+        step = step_responses(bus, [driver], max_time_s=pattern_duration_s(bus, bits), receiver_names=watched)
     if bits is None:
         bits = default_pattern(step, bit_time_s)
     if receivers is None:

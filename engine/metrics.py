@@ -10,7 +10,8 @@ Conventions (all differential, V_AB):
   synchronised on (n T_bit + t_50 + T_bit / 2). propagation_delay_s is t_50 minus the driver ramp's own
   50 % point. A window that the pattern's end cuts short is left out.
   The "driven side" of window n is s_n = +1 for a 1 bit, -1 for a 0.
-- amplitude_v: the settled level |V| after a long run of equal bits (exact DC solve).
+- amplitude_v: the settled level |V| after a long run of equal bits (exact DC solve), one polarity: the
+  differential signal swings between -amplitude_v and +amplitude_v, so a settled eye is 2 x amplitude_v.
 - overshoot_v: how far s_n V rises above the settled level, worst over the pattern.
 - undershoot_v: ringback: after s_n V has reached the settled level inside a window, how far it then drops
   below it (0 when the approach is monotonic).
@@ -215,9 +216,10 @@ def pattern_metrics(
     lo = np.where(has, t_cross, np.inf).min(axis=1, initial=np.inf)
     jitter = np.where(has.sum(axis=1) >= 2, hi - lo, 0.0)
 
+    widths = _eye_width_s(tau, v, lv, threshold_v, t_bit, t_sample)
     out = []
     for r in range(n_rx):
-        width = _eye_width_s(tau[r], v[r], lv, threshold_v, t_bit, float(t_sample[r]))
+        width = float(widths[r])
         a = float(amplitude_v[r])
         out.append(
             ReceiverMetrics(
@@ -247,36 +249,41 @@ def pattern_metrics(
 
 
 def _eye_width_s(
-    tau: np.ndarray, v: np.ndarray, level: np.ndarray, threshold_v: float, t_bit: float, t_sample: float
-) -> float:
-    """Contiguous span around the sampling instant where all 1s are >= +threshold and all 0s <= -threshold.
+    tau: np.ndarray, v: np.ndarray, level: np.ndarray, threshold_v: float, t_bit: float, t_sample: np.ndarray
+) -> np.ndarray:
+    """Per receiver, (n_rx,): the contiguous span around the sampling instant where all 1s are >= +threshold
+    and all 0s <= -threshold. tau (n_rx, n_off) local offsets, v (n_rx, n_win, n_off), t_sample (n_rx,).
 
     The eye of bit n may reach into window n + 1 (until the next edge has crossed the band there), so the
     right side continues over the next window with bit n's level.
     """
+    n_rx, n_off = tau.shape
 
-    def open_at(rows: np.ndarray, lv: np.ndarray) -> np.ndarray:
+    def open_at(rows: np.ndarray, lv: np.ndarray) -> np.ndarray:  # rows (n_rx, n, n_off) -> (n_rx, n_off)
         ones, zeros = lv > 0, lv < 0
-        low_of_ones = rows[ones].min(axis=0) if ones.any() else np.full(tau.size, np.inf)
-        high_of_zeros = rows[zeros].max(axis=0) if zeros.any() else np.full(tau.size, -np.inf)
+        low_of_ones = rows[:, ones].min(axis=1) if ones.any() else np.full((n_rx, n_off), np.inf)
+        high_of_zeros = rows[:, zeros].max(axis=1) if zeros.any() else np.full((n_rx, n_off), -np.inf)
         return np.asarray((low_of_ones >= threshold_v) & (high_of_zeros <= -threshold_v))
 
-    here = open_at(v[:-1], level[:-1]) if v.shape[0] > 1 else open_at(v, level)
-    after = open_at(v[1:], level[:-1]) if v.shape[0] > 1 else np.zeros(tau.size, dtype=bool)
-    mid = int(np.clip(np.searchsorted(tau, t_sample), 0, tau.size - 1))
-    if not here[mid]:
-        return 0.0
-    left_closed = np.flatnonzero(~here[:mid])
-    t_left = tau[left_closed[-1] + 1] if left_closed.size else 0.0
-    right_closed = np.flatnonzero(~here[mid:])
-    if right_closed.size:
-        t_right = tau[mid + right_closed[0] - 1]
-    else:
-        closed_after = np.flatnonzero(~after)
-        t_right = t_bit + (tau[closed_after[0] - 1] if closed_after.size and closed_after[0] > 0 else 0.0)
-        if not closed_after.size:
-            t_right = 2.0 * t_bit
-    return float(min(t_bit, max(0.0, t_right - t_left)))
+    several = v.shape[1] > 1
+    here = open_at(v[:, :-1], level[:-1]) if several else open_at(v, level)
+    after = open_at(v[:, 1:], level[:-1]) if several else np.zeros((n_rx, n_off), dtype=bool)
+    rows = np.arange(n_rx)
+    col = np.arange(n_off)[None, :]
+    mid = np.clip(np.count_nonzero(tau < t_sample[:, None], axis=1), 0, n_off - 1)[:, None]
+    last_left = np.where(~here & (col < mid), col, -1).max(axis=1)
+    t_left = np.where(last_left >= 0, tau[rows, np.clip(last_left + 1, 0, n_off - 1)], 0.0)
+    first_right = np.where(~here & (col >= mid), col, n_off).min(axis=1)
+    t_right_here = tau[rows, np.clip(first_right - 1, 0, n_off - 1)]
+    first_after = np.where(~after, col, n_off).min(axis=1)
+    t_right_after = np.where(
+        first_after < n_off,
+        t_bit + np.where(first_after > 0, tau[rows, np.clip(first_after - 1, 0, n_off - 1)], 0.0),
+        2.0 * t_bit,
+    )
+    t_right = np.where(first_right < n_off, t_right_here, t_right_after)
+    width = np.minimum(t_bit, np.maximum(0.0, t_right - t_left))
+    return np.asarray(np.where(here[rows, mid[:, 0]], width, 0.0))
 
 
 def driver_metrics(

@@ -316,15 +316,20 @@ def _junction_voltages(net: Network, name: str) -> tuple[np.ndarray, np.ndarray]
     return v_junction, np.asarray(near / denom)
 
 
-def receiver_spectra(net: Network, driver_names: tuple[str, ...]) -> np.ndarray:
-    """Step 4: V_receiver / V_open_circuit for each driver, (n_drivers, n_receivers, n_s), frequency last."""
+def receiver_spectra(net: Network, driver_names: tuple[str, ...], receivers: np.ndarray | None = None) -> np.ndarray:
+    """Step 4: V_receiver / V_open_circuit for each driver, (n_drivers, n_receivers, n_s), frequency last.
+
+    receivers: indices (plan node order) of the receivers wanted; None = all.
+    """
     topo = net.topology
-    rx_branch = topo.receiver_branch
+    pick = np.arange(topo.receiver_branch.size) if receivers is None else np.asarray(receivers, dtype=int)
+    rx_branch = topo.receiver_branch[pick]
     rx_junction = topo.branch_junction[rx_branch]
+    rx_stub = net.rx_stub if receivers is None else net.rx_stub[pick]
     out = np.empty((len(driver_names), rx_branch.size, net.y_shunt.shape[1]), dtype=complex)
     for i, name in enumerate(driver_names):
         v_junction, v_terminal = _junction_voltages(net, name)
-        np.multiply(v_junction[rx_junction], net.rx_stub, out=out[i])
+        np.multiply(v_junction[rx_junction], rx_stub, out=out[i])
         own = rx_branch == topo.driver_branch[name]
         if np.any(own):
             out[i][own] = v_terminal

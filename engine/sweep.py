@@ -5,8 +5,9 @@ The swept bus is the plan reduced to its worst case: the plan's driver at 0 m on
 unit loads lumped at the far end (the worst receiver for loss and delay) with the largest node input
 capacitance, and, when the plan has terminators, terminators of the plan's mean terminator value at the
 cable ends that need them (both for RS-485, the far end for RS-422). Each trunk length of a geometric grid
-is simulated once (one edge response, engine.waveform.step_responses); every bit rate is then judged from
-that response, and the longest passing length is interpolated on a log scale between grid points.
+is simulated once (one edge response, engine.waveform.step_responses; criterion "tia422" needs only a closed
+form); every bit rate is then judged from that, and the longest passing length is interpolated on a log scale
+between grid points.
 
 Criteria (pick one):
 - "eye" (default): the worst-case eye at the far receiver is open beyond the receiver threshold. The
@@ -15,11 +16,23 @@ Criteria (pick one):
   (c the main cursor), maximised over u. It must reach the threshold, 200 mV (TIA-485-A / TIA-422-B
   receiver sensitivity). Source: B. K. Casper et al., "An accurate and efficient analysis method for
   multi-Gb/s chip-to-chip signaling schemes", Symp. VLSI Circuits 2002 (peak distortion analysis).
-- "tia422": the TIA/EIA-422-B Annex A criteria applied to the simulated far-end signal: 10-90 % rise time
-  at the load at most half a bit, and a voltage loss between generator (the driver's terminals) and load
-  of at most 66 % (the load keeps >= 34 % of the generator voltage). The Annex's loss limit is also quoted as
-  6 dB; that reading cannot reach the curve's own 1200 m on 24 AWG (6 dB allows a loop resistance of only
-  one load resistance, about 600 m), so the 66 % reading is used.
+- "tia422": the TIA/EIA-422-B Annex A criteria on the cable model the Annex's curve implies: the signal's
+  10-90 % rise time at the load at most half a bit, and a voltage loss between generator (the driver's
+  terminals) and load of at most 66 %. The rise time is the cable's whole capacitance (C' L plus the load's
+  input capacitance) charged through the source resistance in parallel with the load resistance,
+  t_cable = ln 9 (R_s || R_load) C, combined with the driver's own rise time as root-sum-square:
+  t_load = sqrt(t_driver^2 + t_cable^2). This lumped model makes t_load grow linearly with length, which is
+  the Annex curve's straight fall of slope -1 on its log-log axes (1200 m near 100 kbit/s to about 12 m at
+  10 Mbit/s); with R_s = 40 Ohm and the Annex's 100 Ohm load and 52.5 pF/m it gives 15 m at 10 Mbit/s.
+  Source: rise time of a single-pole RC, t_10-90 = ln 9 RC; cascaded rise times add as root-sum-square
+  (H. Johnson, M. Graham, High-Speed Digital Design, 1993, ch. 1 and 4).
+  The Annex's loss limit is also quoted as 6 dB; that reading cannot reach the curve's own 1200 m on 24 AWG
+  (6 dB allows a loop resistance of only one load resistance, about 600 m), so the 66 % reading is used.
+- "tia422-line": the same two criteria applied to the simulated far-end signal of the transmission line.
+  A 12-60 m line is electrically long against a 50 ns half bit (one-way delay 63-315 ns), so its capacitance
+  is not charged as a lump: a terminated line passes the driver's edge on at Z0, and only the cable's
+  frequency-dependent loss slows it. This physical curve runs about four times above the Annex's at high
+  rates (about 64 m at 10 Mbit/s with a 10 ns driver) and shows how conservative the Annex's slope is.
 """
 
 import math
@@ -34,7 +47,7 @@ from engine.rules.cable_ends import required_ends_m
 from engine.waveform import step_responses
 
 MIN_LENGTH_M = 1.0
-LENGTH_POINTS = 28  # geometric grid from MIN_LENGTH_M to MAX_TRUNK_M (about 26 % apart)
+LENGTH_POINTS = 20  # geometric grid from MIN_LENGTH_M to MAX_TRUNK_M (about 55 % apart; a plot, ~3 % in length)
 PHASES = 16  # sampling phases tried per bit
 MAX_CURSORS = 256  # bits of the edge response summed one by one; the rest bounded by the remaining drift
 TIA422_MAX_LOSS = 0.66
@@ -42,7 +55,9 @@ SWEEP_SOURCES = {
     "eye": "Simulated far-end eye (peak distortion analysis) against the ±200 mV receiver threshold of "
     "TIA/EIA-485-A and TIA/EIA-422-B",
     "tia422": "TIA/EIA-422-B Annex A criteria (rise time at the load <= half a bit; voltage loss <= 66 %) "
-    "applied to the simulated far-end signal",
+    "with the cable's capacitance charged as a lump through the source and load resistances",
+    "tia422-line": "TIA/EIA-422-B Annex A criteria (rise time at the load <= half a bit; voltage loss <= 66 %) "
+    "applied to the simulated far-end signal of the transmission line",
 }
 
 
@@ -52,7 +67,7 @@ class LengthRateCurve:
 
     bit_rate_bps: np.ndarray  # (n_rates,) ascending
     max_length_m: np.ndarray  # (n_rates,) 0 when even MIN_LENGTH_M fails; MAX_TRUNK_M when everything passes
-    criterion: str  # "eye" or "tia422"
+    criterion: str  # "eye", "tia422" or "tia422-line"
     plan_bit_rate_bps: float
     plan_length_m: float
     plan_max_length_m: float  # the curve at the plan's bit rate
@@ -112,6 +127,18 @@ def _far_end_loss(bus: Bus) -> float:
     return r_loop / (r_loop + 1.0 / g_far)
 
 
+def lumped_rise_time_s(bus: Bus) -> float:
+    """10-90 % rise time at the far load of a swept bus with the cable as one lumped capacitance (criterion
+    "tia422"): sqrt(t_driver^2 + (ln 9 (R_s || R_load) (C' L + C_in))^2), R_load the far receiver's input
+    resistance in parallel with any terminator at the far end."""
+    plan = bus.plan
+    g_far = 1.0 / input_resistance_ohm(plan.nodes[0].unit_loads)
+    g_far += sum(1.0 / t.resistance_ohm for t in plan.terminations if t.position_m == plan.trunk_length_m)
+    r_th = 1.0 / (1.0 / bus.driver.source_ohm + g_far)
+    c_total_f = bus.cable.capacitance_f_per_m * plan.trunk_length_m + plan.nodes[0].input_capacitance_f
+    return math.hypot(bus.driver.rise_time_s, math.log(9.0) * r_th * c_total_f)
+
+
 def _longest(lengths_m: np.ndarray, margin: np.ndarray) -> float:
     """Longest length whose margin is >= 0, interpolated (log length) to the first failing grid point."""
     ok = margin >= 0.0
@@ -123,6 +150,21 @@ def _longest(lengths_m: np.ndarray, margin: np.ndarray) -> float:
     a, b = margin[j - 1], margin[j]
     frac = a / (a - b) if a != b else 0.0
     return float(np.exp(np.log(lengths_m[j - 1]) + frac * (np.log(lengths_m[j]) - np.log(lengths_m[j - 1]))))
+
+
+def _margin_at(swept: Bus, criterion: str, bit_s: np.ndarray, threshold_v: float) -> np.ndarray:
+    """Per bit time, how far the swept bus passes (>= 0) or fails (< 0) the criterion."""
+    if criterion == "tia422":
+        rise_s = lumped_rise_time_s(swept)
+    else:
+        step = step_responses(swept)
+        if criterion == "eye":
+            v_final = float(step.v_final_v[0, 0])
+            return _worst_eye_half_v(step.time_s, step.v_diff_v[0, 0], v_final, bit_s) - threshold_v
+        rise_s = float(crossing_time_s(step, 0.9)[0, 0] - crossing_time_s(step, 0.1)[0, 0])
+    loss_ok = TIA422_MAX_LOSS - _far_end_loss(swept)
+    # both must hold: margin is the smaller, in relative terms
+    return np.asarray(np.minimum(0.5 * bit_s / rise_s - 1.0, loss_ok / TIA422_MAX_LOSS))
 
 
 def length_rate_curve(
@@ -140,19 +182,11 @@ def length_rate_curve(
     all_rates = np.unique(np.append(rates, plan_rate))
     bit_s = 1.0 / all_rates
     lengths = np.geomspace(MIN_LENGTH_M, MAX_TRUNK_M, LENGTH_POINTS)
-    margin = np.empty((lengths.size, all_rates.size))
+    margin = np.full((lengths.size, all_rates.size), -np.inf)
     for i, length in enumerate(lengths):
-        swept = sweep_bus(bus, float(length))
-        step = step_responses(swept)
-        v = step.v_diff_v[0, 0]
-        v_final = float(step.v_final_v[0, 0])
-        if criterion == "eye":
-            margin[i] = _worst_eye_half_v(step.time_s, v, v_final, bit_s) - threshold_v
-        else:
-            rise_s = float(crossing_time_s(step, 0.9)[0, 0] - crossing_time_s(step, 0.1)[0, 0])
-            loss_ok = TIA422_MAX_LOSS - _far_end_loss(swept)
-            # both must hold: margin is the smaller, in relative terms
-            margin[i] = np.minimum(0.5 * bit_s / rise_s - 1.0, loss_ok / TIA422_MAX_LOSS)
+        margin[i] = _margin_at(sweep_bus(bus, float(length)), criterion, bit_s, threshold_v)
+        if np.all(np.any(margin[: i + 1] < 0.0, axis=0)):
+            break  # every rate has failed at some length: _longest never looks past a rate's first failure
     max_len = np.array([_longest(lengths, margin[:, k]) for k in range(all_rates.size)])
     at_plan = float(max_len[int(np.searchsorted(all_rates, plan_rate))])
     keep = np.isin(all_rates, rates)

@@ -9,13 +9,15 @@ level l uses N_l samples spaced dt_l over a window T_l = N_l dt_l, evaluates the
 s_k = sigma_l + j 2 pi k / T_l with sigma_l T_l = ln(1e8), and inverts with one real FFT:
 x(n dt) = exp(sigma n dt) * irfft(X(s_k) W_k) / dt. The damping makes the response's own tail (which never
 decays: it settles at the DC level) vanish before it wraps around, so the first half of each window is
-accurate to about 1e-4 of the swing; W_k is a Gaussian low-pass (sigma_f = 0.2 Nyquist; 0.4 at level 0,
-where the ramp itself is resolved) so nothing aliases. It rounds the ramp's corners by about 1 % of the swing
-(a Gaussian of 0.025 T_e at level 0), nothing more; later levels blur by 1.6 dt_l, under 1 % of the elapsed
-time, which a real (dispersive) cable's own edges outgrow.
-Level 0 has dt_0 = T_e / 32 and covers [0, T_0/2] for as long as the cable keeps edges sharp (until it has
+accurate to about 1e-4 of the swing; W_k is a Gaussian low-pass (sigma_f = 0.2 Nyquist; 0.5 at level 0,
+where the ramp itself is resolved) so nothing aliases. It rounds the ramp's corners by under 2 % of the swing
+where the bare ramp is seen (the driver's own terminal; a Gaussian of 0.04 T_e at level 0), well under 1 % at
+receivers behind any cable; later levels blur by 1.6 dt_l, under 1 % of the elapsed time, which a real
+(dispersive) cable's own edges outgrow.
+Level 0 has dt_0 = T_e / 16 and covers [0, T_0/2] for as long as the cable keeps edges sharp (until it has
 attenuated the edge's main frequency 1/T_e by 3 Np; the whole minimum horizon on a nearly lossless line);
-each later level covers (T_{l-1}/2, T_l/2] = 4x the previous end. The grid is dense at the edge and widens as
+level 1 covers (T_0/2, T_1/2] = 2x the previous end with dt_1 = T_e / 8, so edges reflected late on a nearly
+lossless line are still resolved, and each later level 4x the previous end. The grid is dense at the edge and widens as
 the response slows down. Levels are added until every receiver is within `tolerance` of its DC level (from
 the exact DC solve) over the last level's second half, or the requested horizon is covered. The response is
 called settled only if that level still resolves the trunk's ringing period, or a level that did saw the
@@ -47,11 +49,12 @@ from engine.units import delay_s, propagation_velocity_m_per_s
 
 SAMPLES_PER_LEVEL = 1024  # N of level 0 at least, a power of two
 LEVEL_FACTOR = 4  # dt grows by this from one level to the next
-SAMPLES_PER_EDGE = 32  # dt_0 = T_e / SAMPLES_PER_EDGE
-KEEP_EVERY = 4  # stored samples: every 4th of the transform grid (T_e / 8 at the edge)
+FIRST_LEVEL_FACTOR = 2  # ... except from level 0 to level 1
+SAMPLES_PER_EDGE = 16  # dt_0 = T_e / SAMPLES_PER_EDGE
+KEEP_EVERY = 2  # stored samples: every 2nd of the transform grid (T_e / 8 at the edge)
 DAMPING = float(np.log(1e8))  # sigma_l * T_l
 LOWPASS_FRACTION = 0.2  # Gaussian sigma_f as a fraction of the Nyquist frequency
-FIRST_LOWPASS_FRACTION = 0.4  # level 0, where the ramp itself is resolved and barely reaches Nyquist
+FIRST_LOWPASS_FRACTION = 0.5  # level 0, where the ramp itself is resolved and barely reaches Nyquist
 MAX_LEVELS = 28
 MAX_FIRST_LEVEL = 16384  # samples of level 0 at most
 MEMORY_BUDGET_COMPLEX = 2_000_000  # receiver spectra held at once (drivers are processed in groups)
@@ -95,11 +98,14 @@ def step_responses(
     *,
     max_time_s: float | None = None,
     tolerance: float = 1e-3,
+    receiver_names: "tuple[str, ...] | list[str] | None" = None,
 ) -> StepResponses:
-    """Step (edge) response at every receiver for each driver; see the module docstring for the method.
+    """Step (edge) response at every receiver (or the named ones) for each driver; method in the module docstring.
 
     max_time_s: stop once this span is covered even if not settled (None: go on until settled).
     tolerance: settled when within tolerance * open_circuit_v of the DC level over the last level's span.
+    receiver_names: only these receivers' spectra and transforms are computed (the whole bus is still solved);
+    None = every receiver, in plan node order.
     """
     names = resolve_driver_names(bus, driver_names)
     if max_time_s is not None and not (np.isfinite(max_time_s) and max_time_s > 0):
@@ -115,10 +121,11 @@ def step_responses(
             ]
         )
     topo = build_topology(bus)
+    rx_index = None if receiver_names is None else _receiver_index(topo.receiver_names, receiver_names)
     v_oc = bus.driver.open_circuit_v
     t_edge = edge_duration_s(bus.driver.rise_time_s)
-    n_rx = topo.receiver_branch.size
-    v_final = v_oc * receiver_spectra(solve_network(bus, np.zeros(1), topo, names), names)[..., 0].real
+    n_rx = topo.receiver_branch.size if rx_index is None else rx_index.size
+    v_final = v_oc * receiver_spectra(solve_network(bus, np.zeros(1), topo, names), names, rx_index)[..., 0].real
     t_min = t_edge + 6.0 * longest_delay_s(bus)
     if max_time_s is not None:
         t_min = min(t_min, max_time_s)
@@ -149,13 +156,14 @@ def step_responses(
             spectra = np.empty((len(group), n_rx, s_level.size), dtype=complex)
             for p0 in range(0, s_level.size, points):
                 part = slice(p0, p0 + points)
-                spectra[..., part] = receiver_spectra(solve_network(bus, s_level[part], topo, group), group)
+                spectra[..., part] = receiver_spectra(solve_network(bus, s_level[part], topo, group), group, rx_index)
             spectra *= x_level
-            x_full = np.fft.irfft(spectra, n=n, axis=-1)[..., : n // 2 + 1] * gain
-            v[d0 : d0 + len(group)] = x_full[..., kept]
-            if resolves_ringing and 4 * half_period < x_full.shape[-1]:
+            x_raw = np.fft.irfft(spectra, n=n, axis=-1)  # undamped; the gain is applied only where read
+            v[d0 : d0 + len(group)] = x_raw[..., kept] * gain[kept]
+            if resolves_ringing and 4 * half_period < span.size:
                 # oscillation left in the level's last quarter: half a trunk period's second difference
-                late = x_full[..., 3 * x_full.shape[-1] // 4 - 2 * half_period :]
+                first_late = 3 * span.size // 4 - 2 * half_period
+                late = x_raw[..., first_late : span.size] * gain[first_late:]
                 wobble = late[..., half_period:-half_period] - 0.5 * (
                     late[..., : -2 * half_period] + late[..., 2 * half_period :]
                 )
@@ -176,7 +184,7 @@ def step_responses(
     return StepResponses(
         time_s=np.concatenate(times),
         driver_names=names,
-        receiver_names=topo.receiver_names,
+        receiver_names=topo.receiver_names if rx_index is None else tuple(topo.receiver_names[i] for i in rx_index),
         v_diff_v=np.concatenate(values, axis=-1),
         v_final_v=v_final,
         open_circuit_v=v_oc,
@@ -186,11 +194,11 @@ def step_responses(
 
 
 def _level_schedule(bus: Bus, t_edge_s: float, t_min_s: float) -> list[tuple[float, int, int]]:
-    """(dt, N, first index used) of every level. Level 0 resolves the edge (dt_0 = T_e / 32) and is long enough
+    """(dt, N, first index used) of every level. Level 0 resolves the edge (dt_0 = T_e / 16) and is long enough
     to keep edges sharp while the cable has not yet dispersed them: up to 3 / (alpha(1/T_e) v), the time in
     which the cable attenuates the edge's main frequency by 3 Np (capped by the minimum horizon and by
-    MAX_FIRST_LEVEL samples). Each later level spans 4x the previous end, with LATER_LEVEL_SAMPLES samples once
-    the cable has dispersed the edge, else with level 0's N."""
+    MAX_FIRST_LEVEL samples). Level 1 spans 2x the previous end, each later level 4x, with LATER_LEVEL_SAMPLES
+    samples once the cable has dispersed the edge, else with level 0's N."""
     dt0 = t_edge_s / SAMPLES_PER_EDGE
     alpha = float(propagation_constant_per_m(bus.cable, 1.0 / t_edge_s)[0].real)
     speed = propagation_velocity_m_per_s(bus.cable.velocity_factor)
@@ -203,9 +211,11 @@ def _level_schedule(bus: Bus, t_edge_s: float, t_min_s: float) -> list[tuple[flo
     # On a dispersive cable, edges arriving after level 0 are already several T_e wide, so a shorter N suffices;
     # on a (nearly) lossless line they stay sharp, and later levels keep level 0's N.
     n = n0 if t_sharp >= t_min_s else min(n0, LATER_LEVEL_SAMPLES)
-    for _ in range(MAX_LEVELS - 1):
-        dt = end * 2.0 * LEVEL_FACTOR / n
-        schedule.append((dt, n, n // (2 * LEVEL_FACTOR) + 1))
+    for level in range(1, MAX_LEVELS):
+        # level 1 only doubles dt, so it still resolves the edge (T_e / 8) where later reflections arrive sharp
+        factor = FIRST_LEVEL_FACTOR if level == 1 else LEVEL_FACTOR
+        dt = end * 2.0 * factor / n
+        schedule.append((dt, n, n // (2 * factor) + 1))
         end = n * dt / 2.0
     return schedule
 

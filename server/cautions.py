@@ -7,6 +7,9 @@ from engine.plan import BusPlan
 # The -7..+12 V common-mode range leaves about ±7 V for ground offset once the driver's 2.5 V and noise are
 # counted (Intersil, "High-Speed RS-485 Transceiver and Applications").
 OFFSET_BUDGET_V = 7.0
+# Above this a difference between grounds is no signalling matter: 50 V AC is the conventional touch-voltage
+# limit for ordinary dry locations (IEC 60364-4-41; from memory).
+DANGER_OFFSET_V = 50.0
 # Pairline's own prompt for the surge caution; the caution itself is always shown, for any outdoor run.
 LONG_RUN_M = 100.0
 
@@ -54,3 +57,22 @@ def cautions_data(plan: BusPlan) -> list[dict[str, Any]]:
         {"key": key, "title": title, "text": text, "applies": bool(reasons[key]), "reason": reasons[key]}
         for key, title, text in SAFETY_CAUTIONS
     ]
+
+
+def danger_data(plan: BusPlan) -> dict[str, Any] | None:
+    """The stop-work caution when any node's ground sits more than DANGER_OFFSET_V from the driver's; else None."""
+    over = [(n.name, n.ground_offset_v) for n in plan.nodes if abs(n.ground_offset_v) > DANGER_OFFSET_V]
+    if not over:
+        return None
+    nodes = ", ".join(f"'{name}' ({offset:+g} V)" for name, offset in over)
+    return {
+        "limit_v": DANGER_OFFSET_V,
+        "nodes": [{"name": name, "ground_offset_v": offset} for name, offset in over],
+        "title": "Danger: ground difference above 50 V",
+        "text": (
+            f"This plan puts the ground of {nodes} more than {DANGER_OFFSET_V:g} V from the driver's ground. A "
+            "difference that large is a shock hazard or the sign of an earth fault, not a signalling problem. "
+            "Stop: connect no bus cable between these points, and have a licensed electrician find and clear the "
+            "cause first. Follow local electrical codes."
+        ),
+    }

@@ -10,7 +10,7 @@ from collections.abc import Mapping
 from dataclasses import dataclass, replace
 
 from engine.plan import BusPlan
-from server.quantities import UnitSystem, length_in, length_unit
+from server.quantities import UnitSystem, length_in, length_text
 
 WIDTH_PX = 960.0
 LEFT_PX = 70.0
@@ -113,7 +113,7 @@ def _short(name: str) -> str:
 
 
 def _length_text(value_m: float, units: UnitSystem) -> str:
-    return f"{length_in(value_m, units):.3g} {length_unit(units)}"
+    return length_text(value_m, units)
 
 
 def node_anchor(index: int) -> str:
@@ -163,7 +163,8 @@ def bus_drawing(plan: BusPlan, node_verdicts: Mapping[str, str], units: UnitSyst
     nodes = _thin_labels(nodes)
     drv = plan.driver
     parts: list[tuple[str, float, str, str]] = [
-        ("driver", x_of(drv.position_m, length_m), f"{_short(drv.name)} (driver)", f"Driver {drv.name}"),
+        # The driver's label has a lane of its own width above the trunk: its full name fits.
+        ("driver", x_of(drv.position_m, length_m), f"{drv.name} (driver)", f"Driver {drv.name}"),
     ]
     for i, t in enumerate(plan.terminations):
         text = _ohm_text(t.resistance_ohm) + (f" + {_farad_text(t.capacitance_f)}" if t.capacitance_f else "")
@@ -211,7 +212,8 @@ def bus_drawing(plan: BusPlan, node_verdicts: Mapping[str, str], units: UnitSyst
     longest_label = max((len(n.label) for n in nodes), default=4)
     height = lowest + 18.0 + 0.65 * CHAR_PX * longest_label + 8.0
     caption = (
-        f"Trunk {_length_text(length_m, units)} drawn to scale; the driver, terminators and bias sit above it, "
+        f"Trunk {_length_text(length_m, units)} drawn to scale; the driver ({drv.name}), terminators and bias sit "
+        "above it, "
         f"nodes hang below on their stubs. " + caption_scale
     )
     if any(not n.show_label for n in nodes):

@@ -17,6 +17,7 @@ from typing import Any
 
 from engine.library import CABLES, TRANSCEIVERS
 from engine.plan import PLAN_FORMAT, PLAN_FORMAT_VERSION, Problem
+from server.messages import field_allowed, not_a_number_message
 from server.quantities import Bare, QuantityError, UnitSystem, bare_unit, format_quantity, parse_quantity
 
 MAX_FORM_ROWS = 512
@@ -175,7 +176,7 @@ def parse_form(form: Mapping[str, str]) -> ParsedForm:
     values: dict[str, str] = {}
     doc: dict[str, Any] = {"format": PLAN_FORMAT, "format_version": PLAN_FORMAT_VERSION, "display_units": chosen}
 
-    def read(path: str, spec: FieldSpec, target: dict[str, Any], text: str) -> None:
+    def read(path: str, spec: FieldSpec, target: dict[str, Any], text: str, row_name: str = "") -> None:
         text = text.strip() if spec.key not in ("notes",) else text
         values[path] = text
         if text == "":
@@ -188,18 +189,13 @@ def parse_form(form: Mapping[str, str]) -> ParsedForm:
         try:
             target[spec.key] = parse_quantity(text, spec.kind, shown, spec.bare)
         except QuantityError as exc:
-            label = _label_for(path, spec)
-            unit = spec.unit_label(shown)
+            label = _label_for(path, spec, row_name)
+            allowed = field_allowed(path) | {
+                "input_unit": spec.unit_label(shown),
+                "format": "a number, optionally with a unit or SI prefix",
+            }
             problems.append(
-                Problem(
-                    path,
-                    label,
-                    text,
-                    {"unit": unit, "format": "a number, optionally with a unit or SI prefix"},
-                    f"{label}: {exc}. Write a number in {unit}" + (f" ({spec.hint})." if spec.hint else ".")
-                    if unit
-                    else f"{label}: {exc}.",
-                )
+                Problem(path, label, text, allowed, not_a_number_message(label, text, path, spec, shown, exc))
             )
             target[spec.key] = text  # so the plan validator does not also report it missing
 
@@ -236,7 +232,7 @@ def parse_form(form: Mapping[str, str]) -> ParsedForm:
         for i, raw in enumerate(rows):
             item: dict[str, Any] = {}
             for spec in specs:
-                read(f"{group}.{i}.{spec.key}", spec, item, raw.get(spec.key, ""))
+                read(f"{group}.{i}.{spec.key}", spec, item, raw.get(spec.key, ""), raw.get("name", "").strip())
             items.append(item)
         doc[group] = items
         counts[group] = len(items)
@@ -248,11 +244,13 @@ def parse_form(form: Mapping[str, str]) -> ParsedForm:
     return ParsedForm(doc, state, problems, action)
 
 
-def _label_for(path: str, spec: FieldSpec) -> str:
+def _label_for(path: str, spec: FieldSpec, row_name: str = "") -> str:
+    """The label of an input in messages, as the plan validator words it: "Node 4 ('d') ground offset"."""
     m = _ROW_NAME.match(path)
     if m:
         what = "Node" if m.group(1) == "nodes" else "Terminator"
-        return f"{what} {int(m.group(2)) + 1} {spec.label.lower()}"
+        named = f" ('{row_name}')" if row_name and what == "Node" else ""
+        return f"{what} {int(m.group(2)) + 1}{named} {spec.label.lower()}"
     group = path.split(".")[0] if "." in path else ""
     return f"{group.capitalize()} {spec.label.lower()}" if group else spec.label
 

@@ -8,7 +8,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from server.quantities import UnitSystem, length_in, length_unit
+from server.quantities import UnitSystem, length_in, length_unit, number_text
 
 PLOT_W = 640.0
 PLOT_H = 240.0
@@ -18,6 +18,7 @@ MARGIN_T = 14.0
 MARGIN_B = 40.0
 MAX_BITS_SHOWN = 24  # a longer pattern is plotted over its first bits; margins still cover every bit
 MAX_POINTS = 1200  # a polyline longer than this is decimated to min/max pairs per pixel column
+Y_LABEL = "V(A−B) (V)"  # both voltage plots: the differential voltage, in volts
 RECEIVER_THRESHOLD_V = 0.2  # TIA-485-A / TIA-422-B receiver input sensitivity, ±200 mV
 
 
@@ -46,6 +47,7 @@ class WaveformPlot:
     receiver: str
     bits_shown: int  # sampling instants inside the plotted window
     bits_total: int
+    y_label: str = Y_LABEL
 
 
 def _time_scale(span_s: float) -> tuple[float, str]:
@@ -156,6 +158,9 @@ class CurvePlot:
     point_y: float
     point_inside: bool  # the plan's length is at or under the curve at its bit rate
     point_label: str
+    label_x: float  # where the label goes: inside the plot area, clear of both curves and the point
+    label_y: float  # text baseline
+    label_anchor: str  # "start" or "end"
     x_ticks: tuple[AxisTick, ...]
     y_ticks: tuple[AxisTick, ...]
     y_label: str
@@ -215,6 +220,13 @@ def curve_plot(
 
     curve = " ".join(f"{px(r):.1f},{py(L):.1f}" for r, L in zip(rates, lengths, strict=True))
     rule_curve = " ".join(f"{px(r):.1f},{py(L):.1f}" for r, L in zip(rule_rates, rule_lengths, strict=True))
+    label = f"this plan: {_rate_text(plan_rate_bps)}bit/s, {number_text(plan_len)} {length_unit(units)}"
+    lines = [
+        np.column_stack([[px(r) for r in rr], [py(L) for L in ll]])
+        for rr, ll in ((rates, lengths), (rule_rates, rule_lengths))
+        if rr.size
+    ]
+    label_x, label_y, label_anchor = place_label(label, px(plan_rate_bps), py(plan_len), (x0, x1, y0, y1), lines)
     inside = bool(rates.size) and plan_len <= float(np.interp(math.log10(plan_rate_bps), np.log10(rates), lengths))
     unit = length_unit(units)
     return CurvePlot(
@@ -229,11 +241,59 @@ def curve_plot(
         point_x=px(plan_rate_bps),
         point_y=py(plan_len),
         point_inside=inside,
-        point_label=f"this plan: {_rate_text(plan_rate_bps)}bit/s, {plan_len:.4g} {unit}",
+        point_label=label,
+        label_x=label_x,
+        label_y=label_y,
+        label_anchor=label_anchor,
         x_ticks=tuple(AxisTick(px(d), _rate_text(d).strip() or "1") for d in _decades(r_lo, r_hi) if r_lo <= d <= r_hi),
         y_ticks=tuple(AxisTick(py(d), f"{d:g}") for d in _decades(l_lo, l_hi) if l_lo <= d <= l_hi),
         y_label=f"trunk length ({unit})",
     )
+
+
+LABEL_CHAR_PX = 7.4  # bold 12 px label text, average character width
+LABEL_HEIGHT_PX = 13.0
+
+
+def _densify(line: np.ndarray, step_px: float = 4.0) -> np.ndarray:
+    """Points every `step_px` along a polyline (n, 2), so distances to it are distances to its segments."""
+    out = [line[:1]]
+    for a, b in zip(line[:-1], line[1:], strict=True):
+        n = max(1, int(np.hypot(*(b - a)) / step_px))
+        out.append(a + (b - a) * (np.arange(1, n + 1)[:, None] / n))
+    return np.vstack(out)
+
+
+def place_label(
+    text: str,
+    point_x: float,
+    point_y: float,
+    area: tuple[float, float, float, float],  # x0, x1, y0 (top), y1 (bottom)
+    lines: "Sequence[np.ndarray]",  # polylines (n, 2) in pixels the label should keep clear of
+) -> tuple[float, float, str]:
+    """A spot for a point's label: (x, baseline y, text-anchor). Candidates sit around the point; those whose box
+    stays inside the plot area win, and among them the one farthest from every line (the first on ties)."""
+    x0, x1, y0, y1 = area
+    width = LABEL_CHAR_PX * len(text)
+    points = np.vstack([_densify(np.asarray(line, dtype=float)) for line in lines if len(line)] or [np.empty((0, 2))])
+    best: tuple[float, float, float, str] | None = None
+    for dy in (-10.0, 22.0, -30.0, 42.0, -50.0, 62.0, -70.0, 82.0, 4.0):
+        for anchor in ("start", "end"):
+            x = point_x + 10.0 if anchor == "start" else point_x - 10.0
+            left = x if anchor == "start" else x - width
+            top, bottom = point_y + dy - LABEL_HEIGHT_PX + 3.0, point_y + dy + 3.0
+            fits = left >= x0 + 3.0 and left + width <= x1 - 3.0 and top >= y0 + 2.0 and bottom <= y1 - 2.0
+            if points.size:
+                gap_x = np.maximum(np.maximum(left - points[:, 0], points[:, 0] - (left + width)), 0.0)
+                gap_y = np.maximum(np.maximum(top - points[:, 1], points[:, 1] - bottom), 0.0)
+                clearance = float(np.min(np.hypot(gap_x, gap_y)))
+            else:
+                clearance = 1e9
+            score = min(clearance, 12.0) + (1000.0 if fits else 0.0)  # 12 px clear is clear enough
+            if best is None or score > best[0]:
+                best = (score, x, point_y + dy, anchor)
+    assert best is not None
+    return best[1], best[2], best[3]
 
 
 @dataclass(frozen=True, slots=True)
@@ -251,6 +311,7 @@ class EyePlot:
     x_ticks: tuple[AxisTick, ...]
     y_ticks: tuple[AxisTick, ...]
     receiver: str
+    y_label: str = Y_LABEL
 
 
 EYE_POINTS = 33  # points per trace

@@ -104,25 +104,30 @@ def bare_unit(kind: str, units: UnitSystem, override: Bare | None = None) -> Bar
 
 
 class QuantityError(ValueError):
-    """Text that is not a number of the expected kind; the message says what is accepted."""
+    """Text that is not a number of the expected kind. `reason` is what is wrong beyond "not a number"
+    (an unknown unit, a division by zero), or "" when the text simply is not a number."""
+
+    def __init__(self, message: str, reason: str = "") -> None:
+        super().__init__(message)
+        self.reason = reason
 
 
 def parse_quantity(text: str, kind: str, units: UnitSystem, bare: Bare | None = None) -> float:
     """SI value of typed text. Raises QuantityError naming the accepted units."""
     spec = KINDS[kind]
     unit_of_bare = bare_unit(kind, units, bare)
-    m = _NUMBER.match(text.replace(",", "").replace("\u2009", "").replace("\u00a0", ""))
+    m = _NUMBER.match(text.replace(",", "").replace("\u2009", "").replace("\u00a0", "").replace("\u202f", ""))
     if not m:
         raise QuantityError(f"'{text}' is not a number")
     number = float(m.group(1))
     if m.group(2) is not None:
         denominator = float(m.group(2))
         if denominator == 0:
-            raise QuantityError(f"'{text}' divides by zero")
+            raise QuantityError(f"'{text}' divides by zero", "it divides by zero")
         number /= denominator
     token = m.group(3).replace(" ", "")
     if not math.isfinite(number):
-        raise QuantityError(f"'{text}' is not a finite number")
+        raise QuantityError(f"'{text}' is not a finite number", "it is not a finite number")
     if token == "":
         return _clean(number * unit_of_bare.factor)
     factor = spec.tokens.get(token)
@@ -132,7 +137,10 @@ def parse_quantity(text: str, kind: str, units: UnitSystem, bare: Bare | None = 
         factor = matches.pop() if len(matches) == 1 else None
     if factor is None:
         shown = ", ".join(sorted({t for t in spec.tokens if t}, key=len)[:8])
-        raise QuantityError(f"unit '{token}' is not understood here; write a number, or one of: {shown}")
+        raise QuantityError(
+            f"unit '{token}' is not understood here; write a number, or one of: {shown}",
+            f"the unit '{token}' is not understood here (units it takes: {shown})",
+        )
     return _clean(number * factor)
 
 
@@ -161,6 +169,11 @@ def format_quantity(
     if value is None:
         return ""
     unit_of_bare = bare_unit(kind, units, bare)
+    if kind == "plain" and (fraction := _fraction_text(value)):
+        return fraction
+    if not _is_power_of_ten(unit_of_bare.factor):
+        # Converted from SI (feet, per foot): the conversion's long tail is noise, not what anyone typed.
+        digits = min(digits, CONVERTED_DIGITS)
     if not unit_of_bare.prefixed or value == 0:
         return _number_text(value / unit_of_bare.factor, digits)
     si_unit = KINDS[kind].si_unit
@@ -176,6 +189,25 @@ def format_quantity(
     return f"{_number_text(value / scale, digits)} {prefix}{si_unit}"
 
 
+CONVERTED_DIGITS = 6  # 100 m shows as 328.084 ft: 0.03 mm from the stored value, far below any cable tolerance
+
+
+def _is_power_of_ten(factor: float) -> bool:
+    exponent = math.log10(factor)
+    return abs(exponent - round(exponent)) < 1e-9
+
+
+def _fraction_text(value: float) -> str:
+    """ "1/3" for a value that is a small fraction with a repeating decimal (unit loads), else ""."""
+    if value <= 0 or len(_number_text(value)) <= 8:
+        return ""
+    for denominator in range(2, 17):
+        numerator = round(value * denominator)
+        if numerator and abs(numerator / denominator - value) <= 1e-9 * value:
+            return f"{numerator}/{denominator}"
+    return ""
+
+
 def length_in(value_m: float, units: UnitSystem) -> float:
     """A length in the display unit (m or ft)."""
     return value_m * FEET_PER_M if units == "imperial" else value_m
@@ -183,3 +215,26 @@ def length_in(value_m: float, units: UnitSystem) -> float:
 
 def length_unit(units: UnitSystem) -> str:
     return "ft" if units == "imperial" else "m"
+
+
+GROUP_FROM = 10_000  # numbers this large get thin spaces between groups of three digits: 13 100, 1 000 000
+
+
+def number_text(value: float, digits: int = 3) -> str:
+    """A number for reading, to `digits` significant digits and never in exponent form: 0.2338 -> '0.234',
+    1312.3 -> '1310', 1e9 -> '1 000 000 000'. The command line rounds the same way."""
+    if value == 0.0 or not math.isfinite(value):
+        return f"{value:g}"
+    if abs(value) >= 10.0 ** (digits - 1):
+        rounded = round(value, digits - 1 - math.floor(math.log10(abs(value))))
+        text = f"{rounded:,.0f}" if abs(rounded) >= GROUP_FROM else f"{rounded:.0f}"
+        return text.replace(",", "\u202f")  # narrow no-break space
+    text = f"{value:.{digits}g}"
+    if "e" in text:  # tiny values: plain decimals rather than exponents
+        text = f"{value:.{digits - 1 - math.floor(math.log10(abs(value)))}f}"
+    return text.rstrip("0").rstrip(".") if "." in text else text
+
+
+def length_text(value_m: float, units: UnitSystem, digits: int = 3) -> str:
+    """A length in the display unit, rounded for reading: '328 ft', '0.234 m'."""
+    return f"{number_text(length_in(value_m, units), digits)} {length_unit(units)}"

@@ -11,6 +11,7 @@ import numpy as np
 
 from engine.bus import Bus
 from engine.check import PlanReport, check_plan, report_to_dict
+from engine.findings import Finding, Verdict
 from engine.metrics import ReceiverMetrics, receiver_metrics
 from engine.plan import BusPlan
 from engine.rules.length_rate import (
@@ -42,9 +43,21 @@ def check_only(plan: BusPlan) -> PlanReport:
     return check_plan(plan)
 
 
-def worst_receiver(metrics: tuple[ReceiverMetrics, ...]) -> ReceiverMetrics | None:
-    """The receiver whose smallest sampled voltage (on the driven side) is lowest; ties go to the smaller eye."""
-    return min(metrics, key=lambda m: (m.min_sample_v, m.eye_height_v), default=None)
+SIGNAL_RULE = "signal.integrity"  # the finding that judges each receiver's simulated signal
+
+
+def worst_receiver(
+    metrics: tuple[ReceiverMetrics, ...], findings: "tuple[Finding, ...] | list[Finding]" = ()
+) -> ReceiverMetrics | None:
+    """The receiver whose signal-integrity finding is worst (breaks, then tight, then holds); among equal
+    verdicts the smallest sampled voltage on the driven side, then the smaller eye. A receiver without that
+    finding counts as holding."""
+    verdicts = {f.node: f.verdict for f in findings if f.rule_id == SIGNAL_RULE and f.node}
+    return min(
+        metrics,
+        key=lambda m: (-verdicts.get(m.receiver, Verdict.HOLDS).rank, m.min_sample_v, m.eye_height_v),
+        default=None,
+    )
 
 
 def check_and_simulate(plan: BusPlan, chosen_receiver: str | None = None) -> CheckedPlan:
@@ -61,7 +74,7 @@ def check_and_simulate(plan: BusPlan, chosen_receiver: str | None = None) -> Che
         step = step_responses(bus, drivers, max_time_s=DEFAULT_PATTERN_BITS * bit_time_s)
         bits = default_pattern(step, bit_time_s)
     metrics = receiver_metrics(bus, pattern=bits, step=step)
-    worst = worst_receiver(metrics)
+    worst = worst_receiver(metrics, report.findings)
     shown = [] if worst is None else [worst.receiver]
     if chosen_receiver and chosen_receiver not in shown and any(m.receiver == chosen_receiver for m in metrics):
         shown.append(chosen_receiver)

@@ -5,6 +5,7 @@ lists). SVG coordinates come from `server.diagram` and `server.plots`; this modu
 """
 
 import math
+import re
 from collections.abc import Mapping
 from dataclasses import asdict, fields, is_dataclass
 from enum import Enum
@@ -17,12 +18,21 @@ from engine.findings import Verdict, worst
 from engine.library import CABLES, TRANSCEIVERS
 from engine.plan import BusPlan, Problem, plan_to_dict
 from engine.units import si_format
-from server.cautions import cautions_data
+from server.cautions import cautions_data, danger_data
 from server.diagram import bus_drawing, node_anchor
 from server.forms import BIAS, CABLE, DRIVER, NODE, TERMINATION, TOP, FormState
+from server.messages import problem_message
 from server.plots import curve_plot, eye_plot, waveform_plot
-from server.quantities import UnitSystem, format_quantity, length_in, length_unit
-from server.results import CURVE_CRITERIA, RULE_CRITERION, RULE_SOURCE, CheckedPlan, report_to_dict, worst_receiver
+from server.quantities import UnitSystem, format_quantity, length_text, length_unit, number_text
+from server.results import (
+    CURVE_CRITERIA,
+    RULE_CRITERION,
+    RULE_SOURCE,
+    SIGNAL_RULE,
+    CheckedPlan,
+    report_to_dict,
+    worst_receiver,
+)
 from server.store import SampleEntry, SavedPlan
 
 _SEVERITY = {"breaks": 0, "tight": 1, "holds": 2}
@@ -56,24 +66,30 @@ def quantity_text(value: float | None, unit: str, units: UnitSystem) -> str:
     if not math.isfinite(value):
         return "unlimited" if value > 0 else "—"
     if unit == "m":
-        return f"{length_in(value, units):.4g} {length_unit(units)}"
-    if unit in ("s", "F", "Hz", "Ω", "bit/s", "W", "A") and value != 0:
+        return length_text(value, units)
+    if unit in ("s", "F", "Hz", "Ω", "bit/s", "W", "A", "V") and value != 0:
         return si_format(value, unit)
-    if unit == "V" and value != 0 and abs(value) < 1:
-        return f"{value * 1e3:.3g} mV"
-    return f"{value:.4g} {unit}".strip()
+    return f"{number_text(value)} {unit}".strip()
 
 
-def problem_message(problem: Problem, units: UnitSystem) -> str:
-    """The engine's message, with feet added for length fields when the plan is shown in imperial units."""
-    allowed = problem.allowed
-    if units == "imperial" and allowed.get("unit") == "m" and isinstance(problem.value, int | float):
-        parts = [f"{length_in(float(problem.value), units):.5g} ft"]
-        if "max" in allowed:
-            parts.append(f"allowed {length_in(allowed.get('min', 0.0), units):.5g} to")
-            parts.append(f"{length_in(allowed['max'], units):.5g} ft")
-        return f"{problem.message} (In feet: {' '.join(parts)}.)"
-    return problem.message
+# "<number> m" as a length: not inside a word or formula ("10^8 m·bit/s", "Ω/m" and "mV" stay as they are).
+_METRES_IN_TEXT = re.compile(r"(?<![\w.^/])(\d+(?:\.\d+)?(?:[eE][-+]?\d+)?) m(?![\w·/^])")
+
+
+def lengths_in_text(text: str, units: UnitSystem, keep_metres: bool = False) -> str:
+    """An engine sentence with every "<number> m" restated in the display unit and the house rounding;
+    with `keep_metres`, feet are followed by the engine's metres in brackets."""
+
+    def restate(m: re.Match[str]) -> str:
+        shown = length_text(float(m.group(1)), units)
+        return f"{shown} ({m.group(0)})" if keep_metres and units == "imperial" else shown
+
+    return _METRES_IN_TEXT.sub(restate, text)
+
+
+def bom_rows(bom: Any, units: UnitSystem) -> list[dict[str, Any]]:
+    """Bill-of-materials rows for the page and the CSV, positions in the plan's display unit."""
+    return [asdict(item) | {"note": lengths_in_text(item.note, units)} for item in bom]
 
 
 def _field_meta(units: UnitSystem) -> dict[str, dict[str, dict[str, Any]]]:
@@ -118,7 +134,11 @@ def editor_data(state: FormState, *, title: str, saved_from: SavedPlan | None = 
         message = problem_message(p, state.units)
         if p.field in state.values or p.field.endswith(("class_key", "transceiver")):
             by_field.setdefault(p.field, message)
-        general.append({"field": p.field, "label": p.label, "message": message, "on_form": p.field in state.values})
+        # The list links the label; a message that starts with it goes on after the link rather than repeating it.
+        rest = message[len(p.label) :] if p.label and message.startswith(p.label) else None
+        general.append(
+            {"field": p.field, "label": p.label, "message": message, "rest": rest, "on_form": p.field in state.values}
+        )
     return {
         "page": "editor",
         "title": title,
@@ -140,18 +160,40 @@ def editor_data(state: FormState, *, title: str, saved_from: SavedPlan | None = 
     }
 
 
-def start_data(samples: list[SampleEntry], problems: list[Problem] | None = None, pasted: str = "") -> dict[str, Any]:
+def start_data(
+    samples: list[SampleEntry], problems: list[Problem] | None = None, pasted: str = "", units: UnitSystem = "metric"
+) -> dict[str, Any]:
     return {
         "page": "start",
         "title": "Pairline",
         "samples": [{"slug": s.slug, "title": s.title, "url": f"/plans/{s.plan_id}"} for s in samples],
-        "problems": [{"field": p.field, "label": p.label, "message": p.message} for p in problems or []],
+        "problems": [
+            {"field": p.field, "label": p.label, "message": problem_message(p, units)} for p in problems or []
+        ],
         "pasted": pasted,
         "engine_version": ENGINE_VERSION,
     }
 
 
-def _finding_data(f: Any, index: int, units: UnitSystem, node_anchors: Mapping[str, str]) -> dict[str, Any]:
+LIMIT_SIGNS = {"max": "≤", "min": "≥"}
+
+
+def limit_kind_of(finding: Any) -> str:
+    """How a finding's value is held against its limit: "max" (at most), "min" (at least) or "none" (the
+    limit is only a reference). Findings from engines that do not say are upper limits."""
+    kind = getattr(finding, "limit_kind", None) or "max"
+    return kind if kind in ("max", "min", "none") else "max"
+
+
+def limit_text(limit: float | None, unit: str, kind: str, units: UnitSystem) -> str:
+    """The limit for reading, with the side the value must stay on: "≤ 1.2 m", "≥ 54 Ω"; "" for no limit."""
+    if kind == "none" or limit is None or not math.isfinite(limit):
+        return ""
+    return f"{LIMIT_SIGNS[kind]} {quantity_text(limit, unit, units)}"
+
+
+def finding_data(f: Any, index: int, units: UnitSystem, node_anchors: Mapping[str, str]) -> dict[str, Any]:
+    kind = limit_kind_of(f)
     return {
         "anchor": f"finding-{index + 1}-{f.rule_id}",
         "rule_id": f.rule_id,
@@ -161,13 +203,14 @@ def _finding_data(f: Any, index: int, units: UnitSystem, node_anchors: Mapping[s
         "limit": f.limit,
         "unit": f.unit,
         "value_text": quantity_text(f.value, f.unit, units),
-        "limit_text": quantity_text(f.limit, f.unit, units),
+        "limit_kind": kind,
+        "limit_text": limit_text(f.limit, f.unit, kind, units),
         "node": f.node,
         "node_anchor": node_anchors.get(f.node, "") if f.node else "",
         "criterion": f.criterion,
         "source": f.source,
-        "fix": f.fix,
-        "detail": f.detail,
+        "fix": lengths_in_text(f.fix, units, keep_metres=True) if units == "imperial" else f.fix,
+        "detail": lengths_in_text(f.detail, units, keep_metres=True) if units == "imperial" else f.detail,
     }
 
 
@@ -178,7 +221,7 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
     units: UnitSystem = plan.display_units
     anchors = {n.name: node_anchor(i) for i, n in enumerate(plan.nodes)} | {plan.driver.name: "driver"}
     ordered = sorted(report.findings, key=lambda f: (_SEVERITY[f.verdict.value], f.rule_id))
-    findings = [_finding_data(f, i, units, anchors) for i, f in enumerate(ordered)]
+    findings = [finding_data(f, i, units, anchors) for i, f in enumerate(ordered)]
     per_node: dict[str, list[dict[str, Any]]] = {}
     for fd in findings:
         if fd["node"]:
@@ -267,6 +310,7 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
                 plan, node_verdicts | {plan.driver.name: node_verdicts.get(plan.driver.name, "holds")}, units
             ),
             "cautions": cautions_data(plan),
+            "danger": danger_data(plan),
         }
     )
     data["report"] = report_to_dict(report)  # already JSON-safe: the same JSON as `pairline check --json`
@@ -296,11 +340,12 @@ def _signal_data(m: Any, units: UnitSystem) -> dict[str, Any] | None:
 
 def _waveforms_data(checked: CheckedPlan, chosen: str | None) -> dict[str, Any]:
     wf = checked.waveforms
-    worst = worst_receiver(checked.metrics)
+    worst = worst_receiver(checked.metrics, checked.report.findings)
     receivers = [m.receiver for m in checked.metrics]
     if wf is None or worst is None:
         return {"available": False, "note": checked.simulation_note, "receivers": receivers}
     by_name = {m.receiver: m for m in checked.metrics}
+    signal = {f.node: f.verdict.value for f in checked.report.findings if f.rule_id == SIGNAL_RULE and f.node}
     chosen_name = chosen if chosen in by_name else None
     plots = []
     for k, name in enumerate(wf.receiver_names):
@@ -312,8 +357,11 @@ def _waveforms_data(checked: CheckedPlan, chosen: str | None) -> dict[str, Any]:
             {
                 "receiver": name,
                 "role": "worst" if name == worst.receiver else "chosen",
+                "verdict": signal.get(name, "holds"),
                 "margin_v": m.min_sample_v,
+                "margin_text": quantity_text(m.min_sample_v, "V", "metric"),
                 "eye_height_v": m.eye_height_v,
+                "eye_text": quantity_text(m.eye_height_v, "V", "metric"),
                 "delay_text": quantity_text(m.propagation_delay_s, "s", "metric"),
                 "svg": waveform_plot(wf.time_s, wf.v_diff_v[k], samples, name, wf.bit_time_s),
                 "eye": eye_plot(wf.time_s, wf.v_diff_v[k], samples, wf.bit_time_s, name),
@@ -363,7 +411,7 @@ def _summary_data(summary: Any, units: UnitSystem) -> dict[str, Any]:
         "further_nodes": dict(summary.further_nodes),
         "max_bit_rate_bps": summary.max_bit_rate_bps,
         "max_bit_rate_text": quantity_text(summary.max_bit_rate_bps, "bit/s", units),
-        "bom": [asdict(item) for item in summary.bom],
+        "bom": bom_rows(summary.bom, units),
     }
 
 

@@ -6,6 +6,13 @@
   const form = document.getElementById("editor");
   if (!form) return;
 
+  // Three significant digits, no exponent, narrow spaces between thousands (as the server writes numbers).
+  function readable(value) {
+    const rounded = Number(value.toPrecision(3));
+    const text = Math.abs(rounded) >= 10000 ? rounded.toLocaleString("en-US", { maximumFractionDigits: 0 }) : String(rounded);
+    return text.split(",").join("\u202f");
+  }
+
   function renumber(tbody) {
     tbody.querySelectorAll("tr.row").forEach(function (row, i) {
       const cell = row.querySelector(".rownum");
@@ -104,7 +111,7 @@
     const x = function (p) { return x0 + (x1 - x0) * p / length; };
     shape("line", { x1: x0, y1: 34, x2: x1, y2: 34, class: "trunk" });
     shape("text", { x: x0, y: 80 }, "0");
-    shape("text", { x: x1, y: 80, "text-anchor": "end" }, Number(length.toPrecision(6)) + " " + preview.dataset.unit);
+    shape("text", { x: x1, y: 80, "text-anchor": "end" }, readable(length) + " " + preview.dataset.unit);
     form.querySelectorAll("input[name$='.position_m']").forEach(function (input) {
       const p = lengthValue(input.value);
       if (isNaN(p)) return;

@@ -25,7 +25,6 @@ import numpy as np
 from engine.bus import Bus, build_bus
 from engine.findings import Finding, Verdict, worst
 from engine.fixes import ComputedFix, SignalJudgement, compute_fixes, judge_bus, one_driver, pattern_duration_s
-from engine.metrics import RECEIVER_THRESHOLD_V
 from engine.rules.cable_ends import required_ends_m
 from engine.rules.stubs import check_stubs
 from engine.rules.termination import recommended_termination_ohm
@@ -86,11 +85,28 @@ def _severity(j: SignalJudgement) -> tuple[int, float]:
     return (j.verdict.rank, -j.metrics.eye_height_v)
 
 
-def _fix_text(fixes: list[ComputedFix], node: str) -> str:
-    own = [f for f in fixes if f.node in (None, node)]
-    if not own:
+def _fix_text(fixes: list[ComputedFix]) -> str:
+    """Each computed fix makes every failing receiver pass on re-simulation, wherever the change is made: a long
+    stub on one node can be what breaks its neighbours."""
+    if not fixes:
         return ""
-    return "Re-simulated fixes (any one): " + "; ".join(f.sentence for f in own) + "."
+    return "Re-simulated fixes (any one): " + "; ".join(f.sentence for f in fixes) + "."
+
+
+def headline(j: SignalJudgement) -> tuple[str, float, float, str]:
+    """The quantity that decided the verdict: (name, value, limit, unit); the limit is a minimum except for
+    false edges (a maximum of none)."""
+    m = j.metrics
+    th = m.threshold_v
+    if m.threshold_recrossings > 0:
+        return "false edges after an edge", float(m.threshold_recrossings), 0.0, "edges"
+    if m.sample_errors > 0:
+        return "lowest sampled level", m.min_sample_v, th, "V"
+    if m.eye_height_v < 2.0 * th:
+        return "inner eye height", m.eye_height_v, 2.0 * th, "V"
+    if m.settle_margin_s < 0.0:
+        return "settled before the sampling instant by", m.settle_margin_s, 0.0, "s"
+    return "lowest sampled level", m.min_sample_v, th, "V"
 
 
 def check_signal_integrity(bus: Bus) -> list[Finding]:
@@ -105,10 +121,11 @@ def check_signal_integrity(bus: Bus) -> list[Finding]:
         m = j.metrics
         driven_by = "" if driver == primary else f" (worst case: '{driver}' driving)"
         detail = (
-            f"Driver '{driver}', {si_format(1.0 / m.bit_time_s, 'bit/s')}: settled level {m.amplitude_v:.2f} V, "
+            f"Driver '{driver}', {si_format(1.0 / m.bit_time_s, 'bit/s')}: settled level ±{m.amplitude_v:.2f} V, "
             f"peak {m.peak_v:.2f} V, overshoot {m.overshoot_v:.2f} V, ringback {m.undershoot_v:.2f} V, "
-            f"{m.threshold_recrossings} threshold re-crossing(s), eye {m.eye_height_v:.2f} V × "
-            f"{m.eye_width_ui:.0%} of a bit, delay {si_format(m.propagation_delay_s, 's')}, "
+            f"{m.threshold_recrossings} threshold re-crossing(s), eye {m.eye_height_v:.2f} V "
+            f"(from the 0s' -V to the 1s' +V) × {m.eye_width_ui:.0%} of a bit, "
+            f"delay {si_format(m.propagation_delay_s, 's')}, "
             f"jitter {m.jitter_ui:.0%} of a bit."
         )
         if j.reasons:
@@ -121,20 +138,21 @@ def check_signal_integrity(bus: Bus) -> list[Finding]:
                 f"below {si_format(1.0 / m.bit_time_s, 'bit/s')}; then re-check."
             )
         if j.verdict is Verdict.BREAKS:
-            fix = _fix_text(fixes, node.name) if driver == primary else ""
+            fix = _fix_text(fixes) if driver == primary else ""
             if not fix:
                 fix = (
                     f"No single change found by re-simulation for '{node.name}'{driven_by}: shorten its stub, "
                     "terminate both cable ends with Z0 and lower the bit rate together, then re-check."
                 )
+        quantity, value, limit, unit = headline(j)
         findings.append(
             Finding(
                 rule_id="signal.integrity",
-                title=f"Simulated waveform{driven_by}",
+                title=f"Simulated waveform: {quantity}{driven_by}",
                 verdict=j.verdict,
-                value=m.eye_height_v,
-                limit=2.0 * m.threshold_v,
-                unit="V",
+                value=value,
+                limit=limit,
+                unit=unit,
                 node=node.name,
                 criterion=_CRITERION,
                 source=_SOURCE,
@@ -186,35 +204,47 @@ def confirm_stub_rule(bus: Bus, judged: dict[str, SignalJudgement] | None = None
         driver = driver.model_copy(update={"stub_length_m": 0.0})
     bare = judge_bus(build_bus(plan.model_copy(update={"nodes": nodes, "driver": driver})))
     out = []
+    # Receivers whose verdict improves once the flagged stubs are gone: the stubs' reflections harm them, wherever
+    # they sit (a long drop rings on the trunk and can break a neighbour while its own node reads cleanly).
+    harmed = [rx for rx, j in bare.items() if rx in judged and judged[rx].verdict.rank > j.verdict.rank]
+    harm_text = (
+        "without the flagged stubs "
+        + ", ".join(f"'{rx}' {judged[rx].verdict.value} -> {bare[rx].verdict.value}" for rx in harmed[:6])
+        if harmed
+        else "removing the flagged stubs changes no receiver's verdict"
+    )
+    rate = si_format(bus.plan.bit_rate_bps, "bit/s")
     receivers = [n for n in flagged if n in judged]
     for name in receivers[:MAX_STUB_CONFIRMS]:
         rule = stub_findings[name]
-        with_stub, without = judged[name], bare[name]
-        cause = with_stub.verdict.rank > without.verdict.rank
-        m = with_stub.metrics
-        what = (
-            f"stub at '{name}' ({rule.value:.3g} m) gives ringback {m.undershoot_v:.2f} V, "
-            f"{m.threshold_recrossings} re-crossing(s), eye {m.eye_height_v:.2f} V "
-            f"({with_stub.verdict.value}); without the flagged stubs {without.verdict.value}"
-        )
-        if rule.verdict is Verdict.BREAKS:
-            agree = with_stub.verdict is not Verdict.HOLDS and (cause or with_stub.verdict is Verdict.BREAKS)
+        own = judged[name]
+        m = own.metrics
+        as_built = worst([own.verdict] + [judged[rx].verdict for rx in harmed])
+        agree = bool(harmed) or own.verdict is not Verdict.HOLDS
+        if agree:
+            verdict_text = f"confirms the stub rule's {rule.verdict.value.upper()}."
         else:
-            agree = with_stub.verdict is not Verdict.HOLDS or cause
-        word = "confirms" if agree else "overrides"
+            verdict_text = (
+                f"disagrees with the stub rule's {rule.verdict.value.upper()}: every receiver passes with this stub "
+                f"at {rate}. The rule's verdict is kept, as the published design limit; the simulation says this "
+                f"layout works at this bit rate and edge, so a later rate increase needs a re-check."
+            )
         out.append(
             Finding(
                 rule_id="signal.confirms",
-                title=f"Stub rule {'confirmed' if agree else 'overridden'} by simulation",
-                verdict=with_stub.verdict,
-                value=m.undershoot_v,
-                limit=None,
-                unit="V",
+                title=f"Stub rule {'confirmed' if agree else 'not confirmed'} by simulation",
+                verdict=as_built,
+                value=float(len(harmed)),
+                limit=0.0,
+                unit="receivers harmed",
                 node=name,
-                criterion="Flagged stubs set to zero in a second simulation; the node's waveform compared.",
+                criterion="Flagged stubs set to zero in a second simulation; every receiver's verdict compared.",
                 source=_SOURCE,
-                fix="" if with_stub.verdict is Verdict.HOLDS else rule.fix,
-                detail=f"simulation: {what} -> {word} the stub rule's {rule.verdict.value.upper()}.",
+                fix="" if as_built is Verdict.HOLDS else rule.fix,
+                detail=(
+                    f"simulation: at '{name}' ({rule.value:.3g} m stub) ringback {m.undershoot_v:.2f} V, "
+                    f"{m.threshold_recrossings} re-crossing(s) ({own.verdict.value}); {harm_text} -> {verdict_text}"
+                ),
             )
         )
     rest = receivers[MAX_STUB_CONFIRMS:] + [n for n in flagged if n not in judged]
@@ -284,11 +314,11 @@ def confirm_termination_rule(bus: Bus, judged: dict[str, SignalJudgement] | None
         fix = f"Fit {value:.0f} Ω terminators at the cable ends ({ends}), or lower the bit rate, then re-check."
     return Finding(
         rule_id="signal.confirms",
-        title=f"Unterminated-line rule {'confirmed' if agree else 'overridden'} by simulation",
+        title=f"Unterminated-line rule {'confirmed' if agree else 'not confirmed'} by simulation",
         verdict=verdict,
-        value=m.eye_height_v,
-        limit=2.0 * RECEIVER_THRESHOLD_V,
-        unit="V",
+        value=headline(worst_rx)[1],
+        limit=headline(worst_rx)[2],
+        unit=headline(worst_rx)[3],
         node=None,
         criterion="The bus simulated without terminators; worst receiver against the rule's deciding criterion.",
         source=_SOURCE,
@@ -297,7 +327,8 @@ def confirm_termination_rule(bus: Bus, judged: dict[str, SignalJudgement] | None
             f"simulation {how}: worst receiver '{worst_rx.receiver}' {sim.value} (eye {m.eye_height_v:.2f} V, "
             f"ringback {m.undershoot_v:.2f} V, {m.threshold_recrossings} re-crossing(s)"
             + (f"; {'; '.join(worst_rx.reasons)}" if worst_rx.reasons else "")
-            + f") -> {'confirms' if agree else 'overrides'} the rule (three round trips before mid-bit): "
-            f"the line {rule_says}."
+            + f") -> {'confirms' if agree else 'disagrees with'} the rule (three round trips before mid-bit): "
+            f"the rule says the line {rule_says}"
+            + ("." if agree else "; the rule's verdict is kept as the published criterion.")
         ),
     )

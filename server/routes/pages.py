@@ -13,12 +13,14 @@ from engine.plan import BusInputError, BusPlan, Problem, load_plan, plan_to_dict
 from server.app import render
 from server.errors import not_found
 from server.forms import FormState, form_from_plan, merge_problems, parse_form, with_units
+from server.quantities import UnitSystem
 from server.results import check_and_simulate, check_only
 from server.store import PlanStore, SavedPlan
-from server.views import editor_data, plan_data, start_data
+from server.views import bom_rows, editor_data, plan_data, start_data
 
 router = APIRouter()
 MAX_FORM_FIELDS = 8000  # 512 node rows of 8 inputs, plus the rest
+UTF8_BOM = "\ufeff"  # spreadsheet programs read a CSV as UTF-8 (so "Ω" survives) only when it starts with this
 
 
 def get_store(request: Request) -> PlanStore:
@@ -62,6 +64,7 @@ async def import_plan(request: Request, store: StoreDep) -> Response:
             if raw:
                 text = raw.decode("utf-8", errors="replace")
     problems: list[Problem] = []
+    units: UnitSystem = "metric"
     try:
         if not text.strip():
             raise BusInputError(
@@ -81,11 +84,12 @@ async def import_plan(request: Request, store: StoreDep) -> Response:
                     )
                 ]
             ) from exc
+        units = "imperial" if isinstance(doc, dict) and doc.get("display_units") == "imperial" else "metric"
         plan = load_plan(doc)
     except BusInputError as exc:
         problems = exc.problems
     if problems:
-        return render(request, "start.html", start_data(store.samples(), problems, pasted), status_code=422)
+        return render(request, "start.html", start_data(store.samples(), problems, pasted, units), status_code=422)
     plan_id = store.save_plan(plan_to_dict(plan), engine_version=ENGINE_VERSION)
     return RedirectResponse(f"/plans/{plan_id}", status_code=303)
 
@@ -247,10 +251,10 @@ def bill_of_materials(request: Request, ref: str, store: StoreDep) -> Response:
     out = io.StringIO()
     writer = csv.writer(out)
     writer.writerow(["item", "value", "quantity", "rating", "note"])
-    for item in report.summary.bom:
-        writer.writerow([item.item, item.value, item.quantity, item.rating, item.note])
+    for row in bom_rows(report.summary.bom, plan.display_units):
+        writer.writerow([row["item"], row["value"], row["quantity"], row["rating"], row["note"]])
     return Response(
-        out.getvalue(),
+        UTF8_BOM + out.getvalue(),
         media_type="text/csv; charset=utf-8",
         headers={"Content-Disposition": f'attachment; filename="{_filename(saved)}-bom.csv"'},
     )

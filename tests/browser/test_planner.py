@@ -124,3 +124,18 @@ def test_the_form_works_without_javascript(browser, base_url):
         assert names == ["gate-1", "gate-3", "gate-4", "gate-5", "gate-6"]
     finally:
         context.close()
+
+
+def test_print_hall_sample_as_drawn_worst_receiver_and_plan_label_inside_the_plot(page, base_url, artifacts):
+    page.goto(base_url)
+    page.click("a[href^='/plans/']:has-text('Print hall')")
+    page.wait_for_selector("#overall-verdict")
+    # Source: the sample's stored verdicts (sample_buses/expected): signal.integrity breaks at press-2 only.
+    assert page.locator("h3.receiver-head").first.inner_text().startswith("Worst receiver: press-2")
+    frame = page.locator("figure.curve rect.frame").bounding_box()
+    label = page.locator("figure.curve text.point-label").bounding_box()
+    assert frame["x"] <= label["x"] and label["x"] + label["width"] <= frame["x"] + frame["width"]
+    assert frame["y"] <= label["y"] and label["y"] + label["height"] <= frame["y"] + frame["height"]
+    driver = page.locator("svg.bus-svg g.driver text.node-label").text_content()
+    assert driver == "line-encoder (driver)"
+    page.locator("figure.curve").screenshot(path=str(artifacts / "length-rate-curve.png"))

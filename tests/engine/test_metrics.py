@@ -134,3 +134,27 @@ def test_every_driver_gets_metrics_equal_to_its_own_run():
     # V = V_oc R / (40 + R), R = 120 || 48 kOhm.
     r_load = 1.0 / (1.0 / 120.0 + 1.0 / 48_000.0)
     assert both["far"][1].amplitude_v == pytest.approx(2.0 * r_load / (40.0 + r_load), rel=1e-6)
+
+
+def test_settled_level_is_one_polarity_and_the_eye_spans_both():
+    # Unterminated 12 m RS-422 line, one 1/4-UL receiver at the far end, 1200 bit/s, 100 ns driver.
+    bus = build_bus(
+        load_plan(
+            {
+                "standard": "rs422",
+                "bit_rate_bps": 1200.0,
+                "trunk_length_m": 12.0,
+                "cable": {"class_key": "tia422-reference"},
+                "driver": {"rise_time_s": 100e-9, "open_circuit_v": 4.0, "source_ohm": 40.0},
+                "nodes": [{"name": "rx", "position_m": 12.0, "unit_loads": 0.25}],
+            }
+        )
+    )
+    (rx,) = receiver_metrics(bus)
+    # Source: closed form, DC divider V_oc R_in / (R_s + R_loop + R_in) with R_in = 12 kOhm / 0.25 UL = 48 kOhm
+    # (TIA/EIA-485-A unit load) and R_loop = 2 * 12 m * 0.0842 Ohm/m (ASTM B258 24 AWG).
+    settled_v = 4.0 * 48_000.0 / (48_000.0 + 40.0 + 2.0 * 12.0 * 0.0842)
+    assert rx.amplitude_v == pytest.approx(settled_v, rel=1e-4)
+    assert rx.min_sample_v == pytest.approx(settled_v, abs=2e-3)  # volts: 1200 bit/s settles long before mid-bit
+    # Source: definition of the inner eye with 1 -> +V and 0 -> -V: a settled eye is 2 x the settled level.
+    assert rx.eye_height_v == pytest.approx(2.0 * settled_v, abs=4e-3)  # volts

@@ -169,6 +169,17 @@ def test_every_driver_in_one_batch_equals_each_alone():
     np.testing.assert_allclose(both.v_final_v, 2.0 * dc_transfer(bus, ["driver", "far"]), rtol=1e-12)
 
 
+def test_watched_receivers_alone_equal_their_rows_of_the_whole_bus():
+    # Source: linearity; a receiver's spectrum does not depend on which other receivers are transformed.
+    bus = _line(source_ohm=40.0)
+    every = step_responses(bus)
+    far = step_responses(bus, receiver_names=["far"])
+    assert far.receiver_names == ("far",)
+    np.testing.assert_array_equal(far.time_s, every.time_s)
+    np.testing.assert_allclose(far.v_diff_v[0, 0], every.v_diff_v[0, 1], atol=1e-12)  # volts
+    np.testing.assert_allclose(far.v_final_v[0, 0], every.v_final_v[0, 1], rtol=1e-12)
+
+
 @pytest.mark.parametrize("order", [4, 5, 6, 7, 9])
 def test_prbs_holds_every_word_of_its_order(order):
     # Source: maximal-length sequence property (ITU-T O.150 PRBS): one period of PRBS-k holds every k-bit

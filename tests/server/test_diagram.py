@@ -62,6 +62,18 @@ def test_ruler_ticks_are_in_the_plans_display_unit():
     assert float(imperial.ticks[-1].label) <= 1312.34 and float(imperial.ticks[-1].label) >= 1000
 
 
+def test_caption_states_the_trunk_in_plain_digits():
+    # Source: 1 ft = 0.3048 m exactly: 304.8 m = 1000 ft (never "1e+03 ft").
+    plan = PLAN | {"display_units": "imperial", "trunk_length_m": 304.8}
+    plan["nodes"] = [n | {"position_m": min(n["position_m"], 304.8)} for n in PLAN["nodes"]]
+    plan["terminations"] = [
+        {"position_m": 0.0, "resistance_ohm": 120.0},
+        {"position_m": 304.8, "resistance_ohm": 120.0},
+    ]
+    drawing = bus_drawing(load_plan(plan), {}, "imperial")
+    assert drawing.caption.startswith("Trunk 1000 ft ")
+
+
 def test_crowded_labels_are_thinned_but_nodes_that_do_not_hold_keep_theirs():
     crowded = PLAN | {
         "nodes": [{"name": f"p{k}", "position_m": 4.0 * k + 2.0} for k in range(100)],
@@ -85,3 +97,11 @@ def test_part_labels_near_the_right_edge_run_leftwards():
     left, right = drawing.terminators
     assert left.text_anchor == "start" and left.text_x > left.x
     assert right.text_anchor == "end" and right.text_x < right.x
+
+
+def test_the_driver_label_carries_its_full_name():
+    plan = PLAN | {"driver": {"name": "workshop-controller", "position_m": 0.0}}
+    drawing = bus_drawing(load_plan(plan), {}, "metric")
+    assert drawing.driver.label == "workshop-controller (driver)"
+    assert "workshop-controller" in drawing.caption
+    assert drawing.driver.x + 10.0 + CHAR_PX * len(drawing.driver.label) <= WIDTH_PX

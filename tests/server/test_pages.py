@@ -180,6 +180,23 @@ def test_form_with_bad_values_comes_back_422_with_values_kept_and_messages_in_pl
     assert dom.find("input", name="driver.name").attrs["value"] == "controller"
 
 
+def test_form_error_for_a_non_number_names_the_range_once_and_the_node_by_name(client):
+    bad = FIVE_NODE_FORM | {"bit_rate_bps": "fast", "nodes.3.ground_offset_v": "lots"}
+    dom = parse_html(client.post("/plans", data=bad | {"action": "check"}).text)
+    rate = dom.by_id("e-bit_rate_bps").text()
+    # Source: the plan model's own bounds for bit_rate_bps (engine/plan.py), which the JSON API also reports
+    # (checked at the end of this test).
+    assert rate.startswith("Bit rate is 'fast'; write a number in bit/s")
+    assert "allowed 50 bit/s to 100 Mbit/s" in rate
+    offset = dom.by_id("e-nodes.3.ground_offset_v").text()
+    assert offset.startswith("Node 4 ('valve-4') ground offset is 'lots'; write a number in V")
+    listed = [li.text() for li in dom.by_id("problems").find_all("li")]
+    assert any(t.startswith("Bit rate is 'fast'") for t in listed)
+    assert not any("Bit rate: Bit rate" in t or t.count("Bit rate") > 1 for t in listed)
+    api = client.post("/api/check", json=PLAN_DOC | {"bit_rate_bps": "fast"}).json()["problems"][0]
+    assert api["allowed"]["min"] == 50 and api["allowed"]["max"] == 100e6
+
+
 def test_json_api_checks_saves_and_reads_plans(client):
     checked = client.post("/api/check", json=PLAN_DOC)
     assert checked.status_code == 200 and checked.json()["id"] is None
@@ -291,6 +308,10 @@ def test_import_by_upload_and_paste_and_refusal_with_reasons(client):
     assert parse_html(broken.text).find("textarea", name="plan_text").text() == '{"trunk_length_m": -1}'
     not_json = client.post("/import", data={"plan_text": "hello"})
     assert not_json.status_code == 422 and "not valid JSON" in not_json.text
+    feet = json.dumps(PLAN_DOC | {"display_units": "imperial", "trunk_length_m": 1e9})
+    text = client.post("/import", data={"plan_text": feet}).text.replace("\u202f", " ")
+    # Source: 1 ft = 0.3048 m exactly: 1e9 m = 3 280 839 895 ft (3 280 000 000 to 3 digits).
+    assert "Trunk length is 3 280 000 000 ft (1 000 000 000 m)" in text and "e+09" not in text
 
 
 def test_downloads_plan_json_and_bill_of_materials_csv(client, saved_id):
@@ -299,8 +320,11 @@ def test_downloads_plan_json_and_bill_of_materials_csv(client, saved_id):
     assert json.loads(plan.text)["title"] == "Irrigation row 7"
     csv_resp = client.get(f"/plans/{saved_id}/bom.csv")
     assert csv_resp.status_code == 200 and csv_resp.headers["content-type"].startswith("text/csv")
-    lines = csv_resp.text.strip().splitlines()
+    # Source: Unicode Standard, sec. 23.8: the byte order mark U+FEFF encodes in UTF-8 as EF BB BF.
+    assert csv_resp.content.startswith(b"\xef\xbb\xbf")
+    lines = csv_resp.content.decode("utf-8-sig").strip().splitlines()
     assert lines[0] == "item,value,quantity,rating,note" and len(lines) >= 2
+    assert "Ω" in csv_resp.content.decode("utf-8-sig")
 
 
 def test_editor_buttons_add_rows_and_switch_units_without_javascript(client):
@@ -311,8 +335,8 @@ def test_editor_buttons_add_rows_and_switch_units_without_javascript(client):
     assert dom.find("input", name="nodes.4.name").attrs["value"] == "valve-5"
     resp = client.post("/plans", data=FIVE_NODE_FORM | {"action": "units", "display_units": "imperial"})
     dom = parse_html(resp.text)
-    # Source: 1 ft = 0.3048 m exactly -> 400 m = 1312.335958 ft.
-    assert float(dom.find("input", name="trunk_length_m").attrs["value"]) == pytest.approx(1312.335958, rel=1e-9)
+    # Source: 1 ft = 0.3048 m exactly -> 400 m = 1312.335958 ft, shown to 6 significant digits.
+    assert dom.find("input", name="trunk_length_m").attrs["value"] == "1312.34"
     assert dom.find("input", name="shown_units").attrs["value"] == "imperial"
 
 
@@ -349,9 +373,38 @@ def test_imperial_plans_take_feet_and_explain_limits_in_feet(client):
     assert data["plan"]["nodes"][0]["position_m"] == pytest.approx(76.2, rel=1e-12)
     assert data["units"] == "imperial" and data["facts"]["trunk"].endswith("ft")
     too_long = client.post("/plans", data=form | {"trunk_length_m": "20000", "action": "check"})
-    message = parse_html(too_long.text).by_id("e-trunk_length_m").text()
-    # Source: the plan's 4000 m limit is 13123.36 ft (4000 / 0.3048).
-    assert "20000 ft" in message and "13123 ft" in message
+    message = parse_html(too_long.text).by_id("e-trunk_length_m").text().replace("\u202f", " ")
+    # Source: 1 ft = 0.3048 m exactly: 20000 ft = 6096 m (6100 m to 3 digits); the plan's 4000 m limit is
+    # 13123.36 ft (13 100 ft to 3 digits). What was typed leads, in feet; metres follow in brackets.
+    assert message.startswith("Trunk length is 20 000 ft (6100 m)")
+    assert "more than 0 ft, up to 13 100 ft (4000 m)" in message
+    huge = client.post("/plans", data=form | {"trunk_length_m": "1e9", "action": "check"})
+    message = parse_html(huge.text).by_id("e-trunk_length_m").text().replace("\u202f", " ")
+    # Source: 1e9 ft = 304 800 000 m exactly (1 ft = 0.3048 m).
+    assert "1 000 000 000 ft (305 000 000 m)" in message and "e+" not in message
+
+
+def test_a_feet_plan_reads_in_feet_everywhere_and_edits_with_rounded_values(client):
+    doc = PLAN_DOC | {
+        "display_units": "imperial",
+        "bias": {"position_m": 0.0, "pull_up_ohm": 620, "pull_down_ohm": 620},
+    }
+    doc["nodes"] = [{"name": "left", "position_m": 50.0, "stub_length_m": 0.2338, "unit_loads": 1 / 3}]
+    plan_id = client.post("/api/plans", json=doc).json()["id"]
+    form = parse_html(client.get(f"/plans/{plan_id}/edit").text)
+    # Source: 1 ft = 0.3048 m exactly: 100 m = 328.0839895 ft, shown to 6 significant digits.
+    assert form.find("input", name="trunk_length_m").attrs["value"] == "328.084"
+    assert form.find("input", name="nodes.0.unit_loads").attrs["value"] == "1/3"
+    csv_text = client.get(f"/plans/{plan_id}/bom.csv").content.decode("utf-8-sig")
+    # Source: 1 ft = 0.3048 m exactly: the terminators at 0 m and 100 m sit at 0 ft and 328 ft (3 digits).
+    assert "at 0 ft and 328 ft" in csv_text and " m" not in csv_text.replace(" mV", "")
+    page = client.get(f"/plans/{plan_id}.json").json()
+    assert page["facts"]["trunk"] == "328 ft"
+    # Source: 0.2338 m = 0.767 ft (0.2338 / 0.3048 = 0.76706), 3 significant digits.
+    assert page["nodes"][0]["stub_text"] == "0.767 ft"
+    metric = client.get(f"/plans/{client.post('/api/plans', json=doc | {'display_units': 'metric'}).json()['id']}.json")
+    # Source: rounding to 3 significant digits, as the command line prints it.
+    assert metric.json()["nodes"][0]["stub_text"] == "0.234 m"
 
 
 def test_the_plan_twin_carries_the_same_report_as_the_command_line(client, saved_id):

@@ -66,3 +66,36 @@ def test_eye_diagram_overlays_every_inner_bit_centred_on_its_sample():
     # Source: TIA/EIA-485-A ±200 mV; each trace is at +1 V or -1 V at its sampling instant, outside the band.
     assert all(y < eye.band_top or y > eye.band_bottom for y in centre)
     assert eye.sample_x == pytest.approx((eye.x0 + eye.x1) / 2)
+
+
+def _label_box(plot):
+    from server.plots import LABEL_CHAR_PX, LABEL_HEIGHT_PX
+
+    width = LABEL_CHAR_PX * len(plot.point_label)
+    left = plot.label_x if plot.label_anchor == "start" else plot.label_x - width
+    return left, left + width, plot.label_y - LABEL_HEIGHT_PX + 3.0, plot.label_y + 3.0
+
+
+@pytest.mark.parametrize("plan_rate_bps", [5e6, 9e7, 2e3])
+def test_the_plan_label_stays_inside_the_plot_and_off_the_curve(plan_rate_bps):
+    rates = np.logspace(3, 8, 21)
+    lengths = np.minimum(1200.0, 1e8 / rates)  # common practice: length x rate <= 1e8, capped at 1200 m
+    plan_length_m = 0.7 * float(np.interp(np.log10(plan_rate_bps), np.log10(rates), lengths))  # just under it
+    plot = curve_plot(rates, lengths, plan_rate_bps, plan_length_m, "metric")
+    left, right, top, bottom = _label_box(plot)
+    assert plot.x0 <= left and right <= plot.x1 and plot.y0 <= top and bottom <= plot.y1
+    xy = np.array([[float(a) for a in p.split(",")] for p in plot.curve.split()])
+    # The curve's vertices and the midpoints of its segments stay out of the label's box.
+    probe = np.vstack([xy, (xy[1:] + xy[:-1]) / 2])
+    hit = (probe[:, 0] >= left) & (probe[:, 0] <= right) & (probe[:, 1] >= top) & (probe[:, 1] <= bottom)
+    assert not hit.any()
+    assert not (left <= plot.point_x <= right and top <= plot.point_y <= bottom)
+
+
+def test_both_voltage_plots_name_their_axis_in_volts():
+    from server.plots import eye_plot
+
+    t = np.linspace(0.0, 4e-6, 401)
+    v = np.where((t // 1e-6) % 2 == 0, 1.0, -1.0)
+    assert eye_plot(t, v, [1.5e-6, 2.5e-6], 1e-6, "rx").y_label.endswith("(V)")
+    assert waveform_plot(t, v, [1.5e-6], "rx").y_label.endswith("(V)")

@@ -2,7 +2,7 @@
 
 import pytest
 
-from server.quantities import QuantityError, format_quantity, parse_quantity
+from server.quantities import QuantityError, format_quantity, number_text, parse_quantity
 
 
 @pytest.mark.parametrize(
@@ -70,8 +70,30 @@ def test_values_format_for_inputs_and_read_back_unchanged(si, kind, units, text)
     assert parse_quantity(text, kind, units) == pytest.approx(si, rel=1e-12)
 
 
-def test_a_metric_length_shown_in_feet_round_trips_to_the_same_metres():
+def test_a_metric_length_shown_in_feet_is_rounded_and_reads_back_within_a_hair():
     shown = format_quantity(100.0, "length", "imperial")
-    # Source: 1 ft = 0.3048 m exactly, so 100 m = 328.0839895 ft.
-    assert float(shown) == pytest.approx(328.0839895, rel=1e-9)
-    assert parse_quantity(shown, "length", "imperial") == pytest.approx(100.0, rel=1e-9)
+    # Source: 1 ft = 0.3048 m exactly, so 100 m = 328.0839895 ft; shown to 6 significant digits.
+    assert shown == "328.084"
+    assert parse_quantity(shown, "length", "imperial") == pytest.approx(100.0, rel=2e-6)  # 0.03 mm in 100 m
+
+
+def test_a_repeating_unit_load_shows_as_a_fraction():
+    # Source: TIA/EIA-485-A unit loads; 1/3 UL is a common rating written as a fraction.
+    assert format_quantity(1 / 3, "plain", "metric") == "1/3"
+    assert parse_quantity("1/3", "plain", "metric") == pytest.approx(1 / 3, rel=1e-11)
+    assert format_quantity(0.125, "plain", "metric") == "0.125"
+
+
+@pytest.mark.parametrize(
+    ("value", "text"),
+    [
+        # Source: rounding to 3 significant digits, the same as the command line's number_text.
+        (0.2338, "0.234"),
+        (1312.3359, "1310"),
+        (54.0, "54"),
+        (1e9, "1\u202f000\u202f000\u202f000"),
+        (1.2e-5, "0.000012"),
+    ],
+)
+def test_numbers_for_reading_round_to_three_digits_without_exponents(value, text):
+    assert number_text(value) == text

@@ -33,3 +33,18 @@ def test_restarting_keeps_sample_links(tmp_path):
     with TestClient(create_app(db)) as second:
         after = second.get("/index.json").json()["samples"]
     assert before == after
+
+
+def test_print_hall_page_draws_the_breaking_receiver_as_worst(client):
+    import json
+
+    listed = {s["slug"]: s["url"] for s in client.get("/index.json").json()["samples"]}
+    data = client.get(listed["print-hall-fast-drop"] + ".json").json()
+    expected = json.loads((Path(SAMPLES_DIR) / "expected" / "print-hall-fast-drop.json").read_text())["verdicts"]
+    worst = data["waveforms"]["worst"]
+    # Source: the sample's stored verdicts (signal.integrity@press-2 breaks; the rest hold).
+    assert expected.get(f"signal.integrity@{worst}") == "breaks"
+    drawn = next(p for p in data["waveforms"]["plots"] if p["role"] == "worst")
+    assert drawn["receiver"] == worst and drawn["verdict"] == "breaks"
+    html = client.get(listed["print-hall-fast-drop"]).text
+    assert f"Worst receiver: {worst}" in html

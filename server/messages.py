@@ -1,0 +1,136 @@
+"""Input-error messages for people: each names the field, what was typed and the allowed range, in the units
+the form shows (feet first with metres in brackets for an imperial plan) and rounded the one house way.
+
+The allowed range of a field comes from the plan model (`engine.plan`), the single schema every input passes.
+"""
+
+import math
+import re
+from typing import TYPE_CHECKING, Any
+
+import annotated_types as at
+from pydantic import BaseModel
+
+from engine.plan import BusPlan, Problem
+from engine.units import si_format
+from server.quantities import KINDS, QuantityError, UnitSystem, bare_unit, length_text, number_text
+
+if TYPE_CHECKING:
+    from server.forms import FieldSpec
+
+_SI_UNITS = {"s", "F", "Hz", "Ω", "bit/s", "W", "A", "V"}
+
+
+def field_allowed(path: str) -> dict[str, Any]:
+    """The allowed range of a plan field by dotted path (`nodes.3.stub_length_m`): min, max, min_exclusive and
+    the SI unit, as the plan model states them; {} for a path that is not a bounded field."""
+    model: type[BaseModel] | None = BusPlan
+    info = None
+    for part in path.split("."):
+        if part.isdigit():
+            continue
+        if model is None:
+            return {}
+        info = model.model_fields.get(part)
+        if info is None:
+            return {}
+        model = _submodel(info.annotation)
+    if info is None:
+        return {}
+    allowed: dict[str, Any] = {}
+    for m in info.metadata:
+        if isinstance(m, at.Ge):
+            allowed["min"] = m.ge
+        elif isinstance(m, at.Gt):
+            allowed["min"], allowed["min_exclusive"] = m.gt, True
+        elif isinstance(m, at.Le):
+            allowed["max"] = m.le
+    extra = info.json_schema_extra
+    if isinstance(extra, dict) and "unit" in extra:
+        allowed["unit"] = extra["unit"]
+    return allowed
+
+
+def _submodel(annotation: Any) -> type[BaseModel] | None:
+    stack = [annotation]
+    while stack:
+        item = stack.pop()
+        if isinstance(item, type) and issubclass(item, BaseModel):
+            return item
+        stack.extend(getattr(item, "__args__", ()))
+    return None
+
+
+def value_text(value: float, unit: str, units: UnitSystem, spec: "FieldSpec | None" = None) -> str:
+    """One value as the form would show it: a length in feet with metres in brackets for an imperial plan,
+    a per-length value in the input's unit, an electrical value with an SI prefix."""
+    if unit == "m":
+        if units == "imperial":
+            return f"{length_text(value, 'imperial')} ({length_text(value, 'metric')})"
+        return length_text(value, "metric")
+    if spec is not None and spec.kind:
+        bare = bare_unit(spec.kind, units, spec.bare)
+        if not bare.prefixed and bare.label:
+            return f"{number_text(value / bare.factor)} {bare.label}"
+        if bare.prefixed and value != 0:
+            return si_format(value, KINDS[spec.kind].si_unit)
+    if unit in _SI_UNITS and value != 0:
+        return si_format(value, unit)
+    return f"{number_text(value)} {unit}".strip()
+
+
+def range_text(allowed: dict[str, Any], units: UnitSystem, spec: "FieldSpec | None" = None) -> str:
+    """The allowed range for reading: "50 bit/s to 100 Mbit/s", "more than 0 ft, up to 13 100 ft (4000 m)".
+    Lengths in an imperial plan give each bound in feet, then in metres."""
+    lo, hi, unit = allowed.get("min"), allowed.get("max"), str(allowed.get("unit", ""))
+    if lo is None or hi is None:
+        return ""
+    if unit == "m" and units == "imperial":
+        return _range_words(lo, hi, allowed, lambda v: value_text(v, unit, units) if v else "0 ft")
+    return _range_words(lo, hi, allowed, lambda v: value_text(v, unit, units, spec))
+
+
+def _range_words(lo: float, hi: float, allowed: dict[str, Any], fmt: Any) -> str:
+    if allowed.get("min_exclusive"):
+        return f"more than {fmt(lo)}, up to {fmt(hi)}"
+    return f"{fmt(lo)} to {fmt(hi)}"
+
+
+def not_a_number_message(label: str, text: str, path: str, spec: "FieldSpec", units: UnitSystem, exc: Exception) -> str:
+    """ "Bit rate is 'fast'; write a number in bit/s (e.g. 115.2k, 1M), allowed 50 bit/s to 100 Mbit/s."""
+    unit = spec.unit_label(units)
+    reason = exc.reason if isinstance(exc, QuantityError) else ""
+    parts = [f"{label} is '{text}'"]
+    if reason:
+        parts.append(reason)
+    write = f"write a number in {unit}" if unit else "write a number"
+    if spec.hint:
+        write += f" ({spec.hint})"
+    allowed = range_text(field_allowed(path), units, spec)
+    parts.append(write + (f", allowed {allowed}" if allowed else ""))
+    return "; ".join(parts) + "."
+
+
+_PAST_END = "past the trunk end"
+
+
+def problem_message(problem: Problem, units: UnitSystem) -> str:
+    """The engine's message, restated in the form's units and rounding when it is about a number out of range:
+    "Trunk length is 20 000 ft (6100 m); allowed more than 0 ft, up to 13 100 ft (4000 m)." Other messages
+    (missing values, names, choices) pass unchanged."""
+    value, allowed = problem.value, problem.allowed
+    numeric = isinstance(value, int | float) and not isinstance(value, bool) and math.isfinite(value)
+    if not numeric or "min" not in allowed or "max" not in allowed:
+        return problem.message
+    from server.forms import spec_for  # forms builds its own messages with this module
+
+    spec = spec_for(problem.field)
+    unit = str(allowed.get("unit", ""))
+    shown = value_text(float(value), unit, units, spec)
+    allowed_words = range_text(allowed, units, spec)
+    if _PAST_END in problem.message:
+        end = value_text(float(allowed["max"]), unit, units, spec)
+        return f"{problem.label} is at {shown}, {_PAST_END} at {end}; allowed {allowed_words}."
+    if re.match(re.escape(problem.label) + r" is ", problem.message):
+        return f"{problem.label} is {shown}; allowed {allowed_words}."
+    return problem.message

@@ -1,0 +1,131 @@
+"""Page data built from engine results: how findings' limits read, and the safety caution for large offsets."""
+
+from dataclasses import dataclass
+
+import pytest
+
+from engine.findings import Finding, Verdict
+from server.views import finding_data
+
+
+@dataclass(frozen=True)
+class _WithKind:
+    """An engine finding that states which side of its limit the value must stay on."""
+
+    rule_id: str
+    title: str
+    verdict: Verdict
+    value: float | None
+    limit: float | None
+    unit: str
+    node: str | None
+    criterion: str
+    source: str
+    fix: str = ""
+    detail: str = ""
+    limit_kind: str = "max"
+
+
+def _finding(value: float, limit: float, unit: str, kind: str | None) -> object:
+    base = {
+        "rule_id": "load.driver",
+        "title": "Load on the driver",
+        "verdict": Verdict.HOLDS,
+        "value": value,
+        "limit": limit,
+        "unit": unit,
+        "node": None,
+        "criterion": "",
+        "source": "",
+    }
+    return Finding(**base) if kind is None else _WithKind(**base, limit_kind=kind)
+
+
+@pytest.mark.parametrize(
+    ("kind", "expected"),
+    [
+        # Source: TIA/EIA-485-A, a driver is specified into a 54 Ω differential load at the least.
+        ("min", "≥ 54 Ω"),
+        ("max", "≤ 54 Ω"),
+        ("none", ""),
+    ],
+)
+def test_limit_reads_with_the_side_the_value_must_stay_on(kind, expected):
+    data = finding_data(_finding(6310.0, 54.0, "Ω", kind), 0, "metric", {})
+    assert data["limit_kind"] == kind
+    assert data["limit_text"] == expected
+    assert data["value_text"] == "6.31 kΩ"
+
+
+def test_a_finding_that_does_not_say_is_an_upper_limit():
+    # common practice: a stub limit is a longest allowed length, printed as given with its unit.
+    data = finding_data(_finding(0.5, 1.2, "m", None), 0, "metric", {})
+    assert data["limit_kind"] == "max" and data["limit_text"] == "≤ 1.2 m"
+
+
+def test_plan_page_prints_each_limit_with_its_side(client):
+    plan = {
+        "bit_rate_bps": 115_200,
+        "trunk_length_m": 100.0,
+        "nodes": [{"name": "far", "position_m": 100.0, "stub_length_m": 0.5}],
+        "terminations": [{"position_m": 0.0, "resistance_ohm": 120.0}, {"position_m": 100.0, "resistance_ohm": 120.0}],
+    }
+    data = client.post("/api/check", json=plan).json()
+    stub = next(f for f in data["findings"] if f["rule_id"] == "stub.length")
+    assert stub["limit_kind"] == "max" and stub["limit_text"].startswith("≤ ")
+    assert all(f["limit_text"][:1] in ("≤", "≥", "") for f in data["findings"])
+
+
+def _offset_plan(offset_v: float) -> dict:
+    return {
+        "bit_rate_bps": 9600,
+        "trunk_length_m": 200.0,
+        "nodes": [
+            {"name": "store", "position_m": 100.0},
+            {"name": "barn", "position_m": 200.0, "ground_offset_v": offset_v},
+        ],
+        "terminations": [{"position_m": 0.0, "resistance_ohm": 120.0}, {"position_m": 200.0, "resistance_ohm": 120.0}],
+    }
+
+
+@pytest.mark.parametrize("offset_v", [-75.0, 230.0])
+def test_a_ground_offset_above_50_volts_puts_a_stop_caution_above_the_findings(client, offset_v):
+    from tests.server.html_dom import parse_html
+
+    # Source: IEC 60364-4-41, conventional touch-voltage limit 50 V AC for ordinary locations (from memory).
+    data = client.post("/api/check", json=_offset_plan(offset_v)).json()
+    assert data["danger"]["limit_v"] == 50.0 and [n["name"] for n in data["danger"]["nodes"]] == ["barn"]
+    plan_id = client.post("/api/plans", json=_offset_plan(offset_v)).json()["id"]
+    html = client.get(f"/plans/{plan_id}").text
+    box = parse_html(html).by_id("danger")
+    assert box is not None and box.attrs.get("role") == "alert"
+    text = box.text()
+    assert "shock hazard" in text and "earth fault" in text and "licensed electrician" in text
+    assert "local electrical codes" in text and "'barn'" in text
+    assert html.index('id="danger"') < html.index('id="h-findings"')
+
+
+def test_no_stop_caution_at_50_volts_or_less(client):
+    # Source: IEC 60364-4-41, conventional touch-voltage limit 50 V AC (from memory): at the limit, no stop.
+    data = client.post("/api/check", json=_offset_plan(-50.0)).json()
+    assert data["danger"] is None
+
+
+@pytest.mark.parametrize(
+    ("text", "expected"),
+    [
+        # Source: 1 ft = 0.3048 m exactly: 4.1 m = 13.45 ft (13.5 to 3 digits), 70 m = 229.66 ft (230).
+        (
+            "shorten the stub from 6 m to at most 4.1 m",
+            "shorten the stub from 19.7 ft (6 m) to at most 13.5 ft (4.1 m)",
+        ),
+        ("at 0 m and 70 m", "at 0 ft (0 m) and 230 ft (70 m)"),
+        # Formulas and other units stay as written.
+        ("length × rate <= 10^8 m·bit/s; 84.2 Ω/km; 200 mV", "length × rate <= 10^8 m·bit/s; 84.2 Ω/km; 200 mV"),
+    ],
+)
+def test_engine_sentences_read_in_feet_for_an_imperial_plan(text, expected):
+    from server.views import lengths_in_text
+
+    assert lengths_in_text(text, "imperial", keep_metres=True) == expected
+    assert lengths_in_text(text, "metric", keep_metres=True) == text  # already 3 digits in metres
