@@ -267,7 +267,7 @@ def _bom(bus: Bus, terminators: tuple[TerminatorAdvice, ...], bias: BiasAdvice |
                 si_format(r, "Ω"),
                 len(where),
                 rating_text(rating),
-                "at " + " and ".join(length_text(p, plan.display_units) for p in where) + f"; {change}",
+                "at " + " and ".join(length_text(p) for p in where) + f"; {change}",
             )
         )
     caps: dict[float, list[float]] = {}
@@ -281,9 +281,7 @@ def _bom(bus: Bus, terminators: tuple[TerminatorAdvice, ...], bias: BiasAdvice |
                 si_format(c, "F"),
                 len(where),
                 CAPACITOR_RATING,
-                "at "
-                + " and ".join(length_text(p, plan.display_units) for p in where)
-                + "; twice the 12 V common-mode fault level",
+                "at " + " and ".join(length_text(p) for p in where) + "; twice the 12 V common-mode fault level",
             )
         )
     if bias is not None:
@@ -303,7 +301,7 @@ def _bom(bus: Bus, terminators: tuple[TerminatorAdvice, ...], bias: BiasAdvice |
                 if plan_r != r:
                     changes.append(f"changed from the plan's {si_format(plan_r or 0.0, 'Ω')}")
                 if plan_bias.position_m != bias.position_m:
-                    changes.append(f"moved from the plan's {length_text(plan_bias.position_m, plan.display_units)}")
+                    changes.append(f"moved from the plan's {length_text(plan_bias.position_m)}")
                 change = f"; {' and '.join(changes)}: see bias.idle_level" if changes else "; as in the plan"
             items.append(
                 BomItem(
@@ -311,7 +309,7 @@ def _bom(bus: Bus, terminators: tuple[TerminatorAdvice, ...], bias: BiasAdvice |
                     si_format(r, "Ω"),
                     1,
                     rating_text(bias.power_rating_w),
-                    f"at {length_text(bias.position_m, plan.display_units)}; every receiver idles at >= "
+                    f"at {length_text(bias.position_m)}; every receiver idles at >= "
                     f"{si_format(bias.idle_v, 'V')}" + (" with the terminators above" if terminators else "") + change,
                 )
             )

@@ -8,6 +8,7 @@ and allowed range). Subcommands hang off one argparse parser, so further command
 import argparse
 import json
 import math
+import re
 import sys
 from collections.abc import Callable, Sequence
 from pathlib import Path
@@ -17,7 +18,7 @@ from engine.check import PlanReport, check_plan, report_to_dict
 from engine.findings import Finding, Verdict, worst
 from engine.plan import BusInputError, Problem, load_plan
 from engine.rules.power import rating_text
-from engine.units import si_format
+from engine.units import length_text, si_format
 
 EXIT_OK = 0
 EXIT_BREAKS = 1
@@ -313,7 +314,17 @@ def report_text(report: PlanReport, path: str = "") -> str:
         for item in s.bom:
             out.append(f"    {item.quantity} x {item.item}, {item.value}, {item.rating}: {item.note}")
     out += ["", SAFETY_NOTE]
-    return "\n".join(out)
+    text = "\n".join(out)
+    return lengths_in_feet(text) if plan.display_units == "imperial" else text
+
+
+# "<number> m" as the engine writes a length; not m inside units such as mΩ/m, m·bit/s or 10^8 m.
+_METRES_IN_TEXT = re.compile(r"(?<![\w.^/])(\d+(?:\.\d+)?) m(?![\w·/^])")
+
+
+def lengths_in_feet(text: str) -> str:
+    """Every "<number> m" in a report restated for an imperial plan: feet first, the metres in brackets."""
+    return _METRES_IN_TEXT.sub(lambda m: length_text(float(m.group(1)), "imperial"), text)
 
 
 # --- commands ---------------------------------------------------------------------------------------------

@@ -196,7 +196,6 @@ def bias_advice_text(bus: Bus) -> str:
             f"thresholds on every node, or RC terminators at the cable ends so the bias sees only the receivers."
         )
     if choice.fits:
-        units = bus.plan.display_units
         room = (
             " and stays within the 32 UL budget and the driver-load limit (the 51.7 Ω full bus)"
             if choice.min_ohm > 0
@@ -205,14 +204,14 @@ def bias_advice_text(bus: Bus) -> str:
         move = ""
         if plan_bias is not None and plan_bias.position_m != choice.position_m:
             move = (
-                f"move the bias network from {length_text(plan_bias.position_m, units)} to "
-                f"{length_text(choice.position_m, units)} along the trunk, from where it can hold every receiver, "
+                f"move the bias network from {length_text(plan_bias.position_m)} to "
+                f"{length_text(choice.position_m)} along the trunk, from where it can hold every receiver, "
                 "and "
             )
         return (
             f"{move}fit a pull-up of {si_format(r, 'Ω')} from the {supply_v:g} V supply to A and a pull-down of "
             f"{si_format(r, 'Ω')} from B "
-            f"to ground at {length_text(choice.position_m, units)} along the trunk; that idles every receiver at >= "
+            f"to ground at {length_text(choice.position_m)} along the trunk; that idles every receiver at >= "
             f"{choice.idle_min_v * 1e3:.0f} mV allowing for the cable{room} (lumped formula: R_B,max = "
             f"{lumped_ohm:.0f} Ω for 200 mV). Or use receivers with failsafe thresholds on every node."
         )

@@ -46,8 +46,8 @@ def end_name(bus: Bus, end_m: float) -> str:
     driver mid-bus, "the 0 m end" / "the 600 m end"."""
     driver_end = nearest_end_m(bus, bus.plan.driver.position_m)
     if driver_end is None:
-        return f"the {length_text(end_m, bus.plan.display_units)} end"
-    where = length_text(end_m, bus.plan.display_units)
+        return f"the {length_text(end_m)} end"
+    where = length_text(end_m)
     return f"the driver's end ({where})" if end_m == driver_end else f"the far end ({where})"
 
 

@@ -157,7 +157,6 @@ def check_length_vs_rate(bus: Bus) -> list[Finding]:
         if length_m > TIGHT_FRACTION * rate_limit_m
         else Verdict.HOLDS
     )
-    units = bus.plan.display_units
     best_bps = max_bit_rate_bps(bus)
     repeater = "or split the bus with a repeater (each segment gets its own length budget)"
     rate_fix = (
@@ -165,8 +164,8 @@ def check_length_vs_rate(bus: Bus) -> list[Finding]:
         if rate_verdict is Verdict.HOLDS
         else f"Lower the bit rate to at most {_rate_text(LENGTH_RATE_PRODUCT_M_BPS / max(length_m, 1e-9), floor=True)}"
         ", "
-        f"or shorten the longest path from {length_text(length_m, units)} to at most "
-        f"{length_text(rate_limit_m, units)}, {repeater}."
+        f"or shorten the longest path from {length_text(length_m)} to at most "
+        f"{length_text(rate_limit_m)}, {repeater}."
     )
     loss_rate = loss_limited_rate_bps(bus, length_m)
     if rate < PLATEAU_RATE_BPS:
@@ -182,11 +181,11 @@ def check_length_vs_rate(bus: Bus) -> list[Finding]:
             rate_limit_m,
             "m",
             None,
-            f"longest path x bit rate <= 1e8 m bit/s, i.e. <= {length_text(rate_limit_m, units)} at "
+            f"longest path x bit rate <= 1e8 m bit/s, i.e. <= {length_text(rate_limit_m)} at "
             f"{_rate_text(rate)}; over {TIGHT_FRACTION:.0%} of it is tight",
             RATE_SOURCE,
             fix=rate_fix,
-            detail=f"Longest path {length_text(length_m, units)}; length × rate is "
+            detail=f"Longest path {length_text(length_m)}; length × rate is "
             f"{length_m * rate / LENGTH_RATE_PRODUCT_M_BPS:.2%} of 10^8 m·bit/s. Highest rate both length rules "
             "allow here: "
             + ("no rate: the trunk is too long for these rules." if best_bps is None else f"{_rate_text(best_bps)}."),
@@ -197,7 +196,6 @@ def check_length_vs_rate(bus: Bus) -> list[Finding]:
 
 def _plateau_finding(bus: Bus, length_m: float, repeater: str) -> Finding:
     """Below 90 kbit/s: the path against the Annex A plateau, 1200 m scaled by the cable's resistance."""
-    units = bus.plan.display_units
     limit_m = plateau_length_m(bus)
     verdict = (
         Verdict.BREAKS
@@ -215,8 +213,8 @@ def _plateau_finding(bus: Bus, length_m: float, repeater: str) -> Finding:
             else ""
         )
         fix = (
-            f"Shorten the longest path from {length_text(length_m, units)} to at most "
-            f"{length_text(target_m, units)}{thicker}, {repeater}."
+            f"Shorten the longest path from {length_text(length_m)} to at most "
+            f"{length_text(target_m)}{thicker}, {repeater}."
         )
     return Finding(
         LOSS_RULE_ID,
@@ -227,7 +225,7 @@ def _plateau_finding(bus: Bus, length_m: float, repeater: str) -> Finding:
         "m",
         None,
         f"below {_rate_text(PLATEAU_RATE_BPS)} the longest path <= 1200 m x min(1, 84.2 mΩ/m / R') = "
-        f"{length_text(limit_m, units)} for this cable; over {PLATEAU_TIGHT_FRACTION:.0%} of it is tight",
+        f"{length_text(limit_m)} for this cable; over {PLATEAU_TIGHT_FRACTION:.0%} of it is tight",
         LOSS_SOURCE,
         fix=fix,
         detail=f"{bus.cable.label}: {bus.cable.resistance_ohm_per_m * 1e3:.1f} mΩ/m per conductor against 84.2 "
@@ -240,7 +238,6 @@ def _plateau_finding(bus: Bus, length_m: float, repeater: str) -> Finding:
 
 def _attenuation_finding(bus: Bus, length_m: float, loss_rate: float | None, repeater: str) -> Finding:
     """From 90 kbit/s: the exact attenuation at f = bit rate over the path, 9 dB breaks, 6 dB tight."""
-    units = bus.plan.display_units
     rate = bus.plan.bit_rate_bps
     loss = line_loss_db(bus, rate, length_m)
     verdict = Verdict.BREAKS if loss > LOSS_LIMIT_DB else Verdict.TIGHT if loss > LOSS_TIGHT_DB else Verdict.HOLDS
@@ -254,10 +251,10 @@ def _attenuation_finding(bus: Bus, length_m: float, loss_rate: float | None, rep
         steps = []
         if target_rate is not None and 0.0 < target_rate < rate:
             steps.append(f"lower the bit rate to at most {_rate_text(target_rate, floor=True)}")
-        steps.append(f"shorten the path to at most {length_text(target_len_m, units)}")
+        steps.append(f"shorten the path to at most {length_text(target_len_m)}")
         steps.append("use a lower-loss pair (thicker gauge, e.g. 22 AWG)")
         fix = (
-            f"Bring the loss ({loss:.1f} dB over {length_text(length_m, units)}) under {target_db:g} dB: "
+            f"Bring the loss ({loss:.1f} dB over {length_text(length_m)}) under {target_db:g} dB: "
             + ", ".join(steps)
             + f", {repeater}."
         )
@@ -274,8 +271,7 @@ def _attenuation_finding(bus: Bus, length_m: float, loss_rate: float | None, rep
         LOSS_SOURCE,
         fix=fix,
         detail=f"alpha {alpha * 1e3:.3f} mNp/m at {_rate_text(rate).replace('bit/s', 'Hz')} "
-        f"({bus.cable.label}); 9 dB is reached at {length_text(max_len_m, units)} at this rate; "
-        + _loss_rate_text(loss_rate),
+        f"({bus.cable.label}); 9 dB is reached at {length_text(max_len_m)} at this rate; " + _loss_rate_text(loss_rate),
     )
 
 

@@ -176,11 +176,7 @@ def _unit_load_fix(bus: Bus, parts: dict[str, float], total: float) -> str:
         now = f"{min(bias.pull_up_ohm, bias.pull_down_ohm):g} Ω, {parts['bias']:.1f} UL"
         choice = bias_choice(bus)
         if choice.fits and choice.resistance_ohm > min(bias.pull_up_ohm, bias.pull_down_ohm):
-            where = (
-                ""
-                if choice.position_m == bias.position_m
-                else f", moved to {length_text(choice.position_m, bus.plan.display_units)}"
-            )
+            where = "" if choice.position_m == bias.position_m else f", moved to {length_text(choice.position_m)}"
             steps.append(
                 f"raise each bias resistor to {choice.resistance_ohm:g} Ω (now {now}){where}, as bias.idle_level "
                 "advises"

@@ -75,21 +75,20 @@ def check_stubs(bus: Bus) -> list[Finding]:
     limit = max_stub_length_m(rise, vf)
     bit_s = 1.0 / bus.plan.bit_rate_bps
     slowest_ok_s = MAX_TRANSITION_BIT_FRACTION * bit_s
-    units = bus.plan.display_units
     findings = []
     for name, length in stub_lengths_m(bus).items():
         verdict = stub_verdict(length, limit)
         detail = (
-            f"Rise time {si_format(rise, 's')}, velocity factor {vf:g}: limit {length_text(limit, units)}. HOLDS to "
-            f"{length_text(TIGHT_FROM_FRACTION * limit, units)} (80 %), TIGHT to {length_text(limit, units)}. "
+            f"Rise time {si_format(rise, 's')}, velocity factor {vf:g}: limit {length_text(limit)}. HOLDS to "
+            f"{length_text(TIGHT_FROM_FRACTION * limit)} (80 %), TIGHT to {length_text(limit)}. "
             f"Looser published variants (stub delay <= 1/3 of the rise time) would allow "
-            f"{length_text(limit * 10 / 3, units)}."
+            f"{length_text(limit * 10 / 3)}."
         )
         fix = ""
         if verdict is not Verdict.HOLDS:
             needed = rise_time_needed_s(length, vf)
             keep = TIGHT_FROM_FRACTION * limit if verdict is Verdict.TIGHT else limit
-            fix = f"Shorten the stub of node '{name}' to <= {_length_text(keep, units)}"
+            fix = f"Shorten the stub of node '{name}' to <= {_length_text(keep)}"
             if needed <= slowest_ok_s:
                 fix += f", or use a driver with >= {si_format(needed, 's')} rise time."
             else:
@@ -117,9 +116,9 @@ def check_stubs(bus: Bus) -> list[Finding]:
     return findings
 
 
-def _length_text(length_m: float, display_units: str = "metric") -> str:
+def _length_text(length_m: float) -> str:
     """A limit shown to two significant digits, rounded down so following the fix really fixes it."""
     if length_m <= 0.0:
-        return length_text(0.0, display_units)
+        return length_text(0.0)
     scale = 10.0 ** (math.floor(math.log10(length_m)) - 1)
-    return length_text(math.floor(length_m / scale + 1e-9) * scale, display_units)
+    return length_text(math.floor(length_m / scale + 1e-9) * scale)

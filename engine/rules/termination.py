@@ -311,7 +311,7 @@ def _ohm(value: float) -> str:
 
 def _at(bus: Bus, position_m: float) -> str:
     """A position along the trunk in the plan's display units."""
-    return length_text(position_m, bus.plan.display_units)
+    return length_text(position_m)
 
 
 # --- RC terminators ---------------------------------------------------------------------------------------

@@ -172,7 +172,7 @@ def check_unterminated(bus: Bus) -> list[Finding]:
     if verdict is Verdict.BREAKS:
         fix = (
             f"Fit a {resistor} terminator at {ends_text}, or shorten the trunk to at most "
-            f"{length_text(math.floor(deciding.max_length_m), bus.plan.display_units)}, or lower the bit rate to "
+            f"{length_text(math.floor(deciding.max_length_m))}, or lower the bit rate to "
             "at most "
             f"{_rate_floor_text(_max_unterminated_rate_bps(bus))}."
         )

@@ -178,3 +178,22 @@ def test_rs422_summary_counts_receivers_not_unit_loads(tmp_path, capsys):
     out = capsys.readouterr().out
     assert "Spare receivers: 2" in out
     assert "Spare unit loads" not in out
+
+
+def test_imperial_plan_reads_lengths_in_feet_with_metres_in_brackets(tmp_path, capsys):
+    # Source: international foot, 0.3048 m exactly: 575 m = 1886 ft, 1152 m = 3779.5 ft (shown 3780 ft).
+    doc = json.loads((ROOT / "sample_buses" / "irrigation-main-valves.json").read_text(encoding="utf-8"))
+    doc["display_units"] = "imperial"
+    main(["check", _write(tmp_path, doc)])
+    out = capsys.readouterr().out
+    assert "1886 ft (575 m)" in out and "3780 ft (1152 m)" in out
+    assert "mΩ/m" not in out or "ft (84.2" not in out
+    assert "ft (1886 ft" not in out
+
+
+def test_bom_bias_note_names_a_change_and_a_move(tmp_path, capsys):
+    # Source: TI SLLA272 bias sizing as bias.idle_level advises it for the irrigation sample (510 Ohm at 575 m
+    # in place of the plan's 390 Ohm at 0 m).
+    main(["check", str(ROOT / "sample_buses" / "irrigation-main-valves.json")])
+    out = capsys.readouterr().out
+    assert "changed from the plan's 390 Ω and moved from the plan's 0 m: see bias.idle_level" in out

@@ -281,22 +281,6 @@ def test_limit_kind_says_which_side_of_the_limit_holds():
     assert {d["limit_kind"] for d in report_to_dict(report)["findings"]} <= set(LIMIT_KINDS)
 
 
-def test_imperial_plans_read_lengths_in_feet():
-    # Source: international foot, 0.3048 m exactly (1959 agreement): 575 m = 1886 ft, 1152 m = 3778 ft.
-    from pathlib import Path
-
-    sample = Path(__file__).resolve().parents[2] / "sample_buses" / "irrigation-main-valves.json"
-    doc = json.loads(sample.read_text(encoding="utf-8"))
-    doc["display_units"] = "imperial"
-    report = check_plan(doc)
-    fixes = {f.rule_id: f.fix for f in report.findings if f.node is None and f.fix}
-    assert "1886 ft (575 m)" in fixes["bias.idle_level"]
-    assert "3778 ft (1152 m)" in fixes["length.loss"]
-    assert all(" ft (" in item.note for item in report.summary.bom)
-    bias_notes = [item.note for item in report.summary.bom if "Bias" in item.item]
-    assert bias_notes and all("changed from the plan's 390 Ω and moved" in n for n in bias_notes)
-
-
 def test_length_text_metric_and_imperial():
     # Source: international foot, 0.3048 m exactly: 100 m = 328 ft; 0.23 m = 9.06 in.
     from engine.units import length_text
