@@ -16,10 +16,9 @@ from engine.metrics import ReceiverMetrics, receiver_metrics
 from engine.plan import BusPlan
 from engine.rules.length_rate import (
     LENGTH_RATE_PRODUCT_M_BPS,
-    LOSS_LIMIT_DB,
     LOSS_SOURCE,
     RATE_SOURCE,
-    loss_db,
+    loss_limit_length_m,
 )
 from engine.sweep import LengthRateCurve, length_rate_curve
 from engine.waveform import DEFAULT_PATTERN_BITS, Waveforms, default_pattern, simulate_pattern, step_responses
@@ -98,14 +97,16 @@ CURVE_CRITERIA = {
     "tia422": "Simulated: the longest trunk at each bit rate meeting the TIA/EIA-422-B Annex A rise-time and loss "
     "criteria",
 }
-RULE_CRITERION = "Rules of thumb the report applies: length × rate ≤ 1e8 m·bit/s and cable loss at f = bit rate ≤ 9 dB"
+RULE_CRITERION = (
+    "Rules the report applies: length × rate ≤ 1e8 m·bit/s; below 90 kbit/s the TIA/EIA-422-B Annex A 1200 m plateau, "
+    "above it cable loss at f = bit rate ≤ 9 dB"
+)
 RULE_SOURCE = f"{RATE_SOURCE}; {LOSS_SOURCE}"
 
 
 def length_rate_limit(bus: Bus) -> tuple[np.ndarray, np.ndarray]:
     """The length-versus-rate limit of this cable, from the rules behind findings "length.rate_rule" and
-    "length.loss": L_max(rate) = min(1e8 / rate, 9 dB / loss per metre at f = rate). Loss is linear in length
-    (engine.rules.length_rate.loss_db), so the loss limit divides out exactly."""
-    per_metre_db = np.array([loss_db(bus, float(f), 1.0) for f in CURVE_RATES_BPS])  # (n_points,)
-    lengths_m = np.minimum(LENGTH_RATE_PRODUCT_M_BPS / CURVE_RATES_BPS, LOSS_LIMIT_DB / per_metre_db)
+    "length.loss": L_max(rate) = min(1e8 / rate, the loss rule's longest path at that rate)."""
+    loss_m = np.array([loss_limit_length_m(bus, float(f)) for f in CURVE_RATES_BPS])  # (n_points,)
+    lengths_m = np.minimum(LENGTH_RATE_PRODUCT_M_BPS / CURVE_RATES_BPS, loss_m)
     return CURVE_RATES_BPS.copy(), lengths_m

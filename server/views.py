@@ -410,7 +410,12 @@ def _summary_data(summary: Any, units: UnitSystem) -> dict[str, Any]:
         "spare_unit_loads": summary.spare_unit_loads,
         "further_nodes": dict(summary.further_nodes),
         "max_bit_rate_bps": summary.max_bit_rate_bps,
-        "max_bit_rate_text": quantity_text(summary.max_bit_rate_bps, "bit/s", units),
+        "max_bit_rate_text": (
+            quantity_text(summary.max_bit_rate_bps, "bit/s", units)
+            if summary.max_bit_rate_bps is not None
+            else "no rate: the trunk is too long for these rules"
+        ),
+        "bias_note": summary.bias_note,
         "bom": bom_rows(summary.bom, units),
     }
 

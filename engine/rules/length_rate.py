@@ -80,26 +80,6 @@ def loss_limit_length_m(bus: Bus, rate_bps: float) -> float:
     return LOSS_LIMIT_DB / per_m_db if per_m_db > 0.0 else math.inf
 
 
-def _loop_resistance_ohm_per_m(bus: Bus, frequency_hz: float) -> float:
-    r_dc = 2.0 * bus.cable.resistance_ohm_per_m
-    onset = bus.cable.skin_effect_onset_hz
-    if onset is None or frequency_hz <= onset:
-        return r_dc
-    return r_dc * math.sqrt(frequency_hz / onset)
-
-
-def loss_db(bus: Bus, frequency_hz: float, length_m: float) -> float:
-    """Low-loss closed form 8.686 (R(f) / (2 Z0) + G Z0 / 2) L in dB, R(f) = 2 R' max(1, sqrt(f / f_onset)).
-
-    Not used by the rules any more (they use line_loss_db and the plateau); kept for the length-rate plot,
-    which should move to loss_limit_length_m. Source: D. M. Pozar, Microwave Engineering, sec. 2.7.
-    """
-    z0 = bus.cable.z0_ohm
-    g_siemens_per_m = 2.0 * math.pi * frequency_hz * bus.cable.capacitance_f_per_m * bus.cable.dielectric_loss_tangent
-    alpha = _loop_resistance_ohm_per_m(bus, frequency_hz) / (2.0 * z0) + g_siemens_per_m * z0 / 2.0
-    return NEPER_DB * alpha * length_m
-
-
 def signal_path_m(bus: Bus) -> float:
     """Longest cable path from a node that may drive to another node that listens (stubs included)."""
     d = bus.plan.driver

@@ -25,9 +25,8 @@ import numpy as np
 from engine.bus import Bus, build_bus
 from engine.findings import Finding, Verdict, worst
 from engine.fixes import ComputedFix, SignalJudgement, compute_fixes, judge_bus, one_driver, pattern_duration_s
-from engine.rules.cable_ends import required_ends_m
+from engine.rules.cable_ends import required_ends_m, terminator_value_ohm
 from engine.rules.stubs import check_stubs
-from engine.rules.termination import recommended_termination_ohm
 from engine.rules.unterminated import line_may_stay_unterminated
 from engine.units import si_format
 from engine.waveform import step_responses
@@ -93,20 +92,20 @@ def _fix_text(fixes: list[ComputedFix]) -> str:
     return "Re-simulated fixes (any one): " + "; ".join(f.sentence for f in fixes) + "."
 
 
-def headline(j: SignalJudgement) -> tuple[str, float, float, str]:
-    """The quantity that decided the verdict: (name, value, limit, unit); the limit is a minimum except for
-    false edges (a maximum of none)."""
+def headline(j: SignalJudgement) -> tuple[str, float, float, str, str]:
+    """The quantity that decided the verdict: (name, value, limit, unit, limit_kind); the limit is a minimum
+    except for false edges (a maximum of none)."""
     m = j.metrics
     th = m.threshold_v
     if m.threshold_recrossings > 0:
-        return "false edges after an edge", float(m.threshold_recrossings), 0.0, "edges"
+        return "false edges after an edge", float(m.threshold_recrossings), 0.0, "edges", "max"
     if m.sample_errors > 0:
-        return "lowest sampled level", m.min_sample_v, th, "V"
+        return "lowest sampled level", m.min_sample_v, th, "V", "min"
     if m.eye_height_v < 2.0 * th:
-        return "inner eye height", m.eye_height_v, 2.0 * th, "V"
+        return "inner eye height", m.eye_height_v, 2.0 * th, "V", "min"
     if m.settle_margin_s < 0.0:
-        return "settled before the sampling instant by", m.settle_margin_s, 0.0, "s"
-    return "lowest sampled level", m.min_sample_v, th, "V"
+        return "settled before the sampling instant by", m.settle_margin_s, 0.0, "s", "min"
+    return "lowest sampled level", m.min_sample_v, th, "V", "min"
 
 
 def check_signal_integrity(bus: Bus) -> list[Finding]:
@@ -144,7 +143,7 @@ def check_signal_integrity(bus: Bus) -> list[Finding]:
                     f"No single change found by re-simulation for '{node.name}'{driven_by}: shorten its stub, "
                     "terminate both cable ends with Z0 and lower the bit rate together, then re-check."
                 )
-        quantity, value, limit, unit = headline(j)
+        quantity, value, limit, unit, limit_kind = headline(j)
         findings.append(
             Finding(
                 rule_id="signal.integrity",
@@ -153,6 +152,7 @@ def check_signal_integrity(bus: Bus) -> list[Finding]:
                 value=value,
                 limit=limit,
                 unit=unit,
+                limit_kind=limit_kind,
                 node=node.name,
                 criterion=_CRITERION,
                 source=_SOURCE,
@@ -184,6 +184,7 @@ def confirm_stub_rule(bus: Bus, judged: dict[str, SignalJudgement] | None = None
                 value=worst_rx.metrics.undershoot_v,
                 limit=None,
                 unit="V",
+                limit_kind="none",
                 node=None,
                 criterion="The stub rule passes every stub; the simulation judges every receiver.",
                 source=_SOURCE,
@@ -258,6 +259,7 @@ def confirm_stub_rule(bus: Bus, judged: dict[str, SignalJudgement] | None = None
                 value=None,
                 limit=None,
                 unit="",
+                limit_kind="none",
                 node=None,
                 criterion="Flagged stubs set to zero in a second simulation; waveforms compared.",
                 source=_SOURCE,
@@ -310,8 +312,8 @@ def confirm_termination_rule(bus: Bus, judged: dict[str, SignalJudgement] | None
     fix = ""
     if verdict is not Verdict.HOLDS:
         ends = " and ".join(f"{end_m:g} m" for end_m in required_ends_m(bus))
-        value = recommended_termination_ohm(bus, required_ends_m(bus)[0])
-        fix = f"Fit {value:.0f} Ω terminators at the cable ends ({ends}), or lower the bit rate, then re-check."
+        value = terminator_value_ohm(bus, required_ends_m(bus)[0])
+        fix = f"Fit {value:g} Ω terminators at the cable ends ({ends}), or lower the bit rate, then re-check."
     return Finding(
         rule_id="signal.confirms",
         title=f"Unterminated-line rule {'confirmed' if agree else 'not confirmed'} by simulation",
@@ -319,6 +321,7 @@ def confirm_termination_rule(bus: Bus, judged: dict[str, SignalJudgement] | None
         value=headline(worst_rx)[1],
         limit=headline(worst_rx)[2],
         unit=headline(worst_rx)[3],
+        limit_kind=headline(worst_rx)[4],
         node=None,
         criterion="The bus simulated without terminators; worst receiver against the rule's deciding criterion.",
         source=_SOURCE,
