@@ -8,36 +8,14 @@ from engine.metrics import RECEIVER_THRESHOLD_V, driver_metrics, propagation_del
 from engine.plan import load_plan
 from engine.units import SPEED_OF_LIGHT_M_PER_S
 from engine.waveform import edge_duration_s, prbs_bits, step_responses
+from tests.engine.lines import VF, probed_line
 
-VF = 0.7
-LOSSLESS = {
-    "class_key": None,
-    "z0_ohm": 120.0,
-    "velocity_factor": VF,
-    "resistance_ohm_per_m": 0.0,
-    "dielectric_loss_tangent": 0.0,
-}
-HIGH_Z = {"unit_loads": 1e-6, "input_capacitance_f": 0.0}
 T_E = edge_duration_s(10e-9)
 DELAY_S = 100.0 / (VF * SPEED_OF_LIGHT_M_PER_S)
 
 
 def _line(source_ohm, far_ohm=None, bit_rate_bps=100e3):
-    return build_bus(
-        load_plan(
-            {
-                "bit_rate_bps": bit_rate_bps,
-                "trunk_length_m": 100.0,
-                "cable": LOSSLESS,
-                "driver": {"source_ohm": source_ohm, "rise_time_s": 10e-9, "open_circuit_v": 2.0},
-                "nodes": [
-                    {"name": "near", "position_m": 0.0, **HIGH_Z},
-                    {"name": "far", "position_m": 100.0, **HIGH_Z},
-                ],
-                "terminations": [] if far_ohm is None else [{"position_m": 100.0, "resistance_ohm": far_ohm}],
-            }
-        )
-    )
+    return probed_line(source_ohm, far_ohm, bit_rate_bps=bit_rate_bps)
 
 
 def _edges(bits: str) -> int:
