@@ -10,8 +10,6 @@ from engine.units import SPEED_OF_LIGHT_M_PER_S
 from engine.waveform import edge_duration_s, prbs_bits, simulate_pattern, step_responses
 from tests.engine.lines import VF, probed_line
 
-_line = probed_line
-
 
 def _at(resp, receiver, t_s):
     return np.interp(t_s, resp.time_s, resp.v_diff_v[0, receiver])
@@ -24,7 +22,7 @@ def _delay_s(length_m=100.0):
 def test_matched_line_shows_no_reflection():
     # Source: closed form, source and load both equal to Z0: the far end sees V/2 once, delayed by l / v, and
     # nothing after (Johnson & Graham, High-Speed Digital Design, ch. 4, matched termination).
-    bus = _line(source_ohm=120.0, far_ohm=120.0)
+    bus = probed_line(source_ohm=120.0, far_ohm=120.0)
     resp = step_responses(bus)
     t_e = edge_duration_s(10e-9)
     ideal = 1.0 * np.clip((resp.time_s - _delay_s()) / t_e, 0.0, 1.0)
@@ -39,7 +37,7 @@ def test_matched_line_shows_no_reflection():
 def test_open_line_doubles_the_incident_wave_after_one_delay():
     # Source: closed form, open end reflects +1: V_far = 2 V_oc Z0 / (Z0 + R_s) (Johnson & Graham,
     # High-Speed Digital Design, ch. 4); before one delay nothing has arrived.
-    bus = _line(source_ohm=40.0)
+    bus = probed_line(source_ohm=40.0)
     resp = step_responses(bus)
     incident_v = 2.0 * 120.0 / (120.0 + 40.0)
     t_e = edge_duration_s(10e-9)
@@ -53,7 +51,7 @@ def test_lattice_levels_round_trip_by_round_trip(source_ohm, far_ohm):
     # Source: lattice (Bergeron) diagram of a lossless line between mismatched source and load
     # (Johnson & Graham, High-Speed Digital Design, ch. 4): incident V_oc Z0 / (Z0 + R_s), reflections
     # G_L = (R_L - Z0) / (R_L + Z0) and G_S = (R_s - Z0) / (R_s + Z0); each round trip multiplies by G_L G_S.
-    bus = _line(source_ohm=source_ohm, far_ohm=far_ohm)
+    bus = probed_line(source_ohm=source_ohm, far_ohm=far_ohm)
     resp = step_responses(bus)
     z0, v_oc, t_d = 120.0, 2.0, _delay_s()
     g_l = 1.0 if far_ohm is None else (far_ohm - z0) / (far_ohm + z0)
@@ -78,7 +76,9 @@ def test_lattice_levels_round_trip_by_round_trip(source_ohm, far_ohm):
 def test_long_lossy_line_settles_to_the_resistive_divider():
     # Source: common practice DC budget: 24 AWG, 1200 m, loop 202 ohm, into 120 ohm -> 0.373 of the driver's
     # open-circuit voltage (ideal 0-ohm driver; 84.2 ohm/km per conductor, ASTM B258).
-    bus = _line(source_ohm=0.0, far_ohm=120.0, length_m=1200.0, rise_s=100e-9, cable={"class_key": "pair-24awg-120"})
+    bus = probed_line(
+        source_ohm=0.0, far_ohm=120.0, length_m=1200.0, rise_s=100e-9, cable={"class_key": "pair-24awg-120"}
+    )
     resp = step_responses(bus)
     assert resp.v_final_v[0, 1] / 2.0 == pytest.approx(0.373, abs=0.001)
     assert resp.settled
@@ -88,7 +88,7 @@ def test_long_lossy_line_settles_to_the_resistive_divider():
 
 def test_pattern_is_the_superposition_of_edges():
     # Source: linearity (superposition): bits 0,0,1,1 = rest at -V, then one 2V rising edge at 2 T_bit.
-    bus = _line(source_ohm=40.0, far_ohm=200.0)
+    bus = probed_line(source_ohm=40.0, far_ohm=200.0)
     step = step_responses(bus)
     wave = simulate_pattern(bus, "0011")
     t_bit = wave.bit_time_s
@@ -103,7 +103,7 @@ def test_pattern_is_the_superposition_of_edges():
 def test_slow_rate_with_fast_edges_on_a_long_line_stays_small_and_settles():
     # Source: common practice DC budget as above (0.373 of V_oc at 1200 m of 24 AWG into 120 ohm, 0-ohm driver):
     # at 1200 bit/s every mid-bit sample is settled to +/- that level.
-    bus = _line(
+    bus = probed_line(
         source_ohm=0.0,
         far_ohm=120.0,
         length_m=1200.0,
@@ -124,7 +124,7 @@ def test_slow_rate_with_fast_edges_on_a_long_line_stays_small_and_settles():
 def test_fast_rate_short_terminated_bus_samples_at_the_dc_levels():
     # Source: closed form DC divider, line matched at both ends: +/- V_oc * R_T / (R_s + R_T) at the near end
     # from the edge on, at the far end one line delay (47.6 ns at VF 0.7) later; 2 ns driver, 20 Mbit/s.
-    bus = _line(source_ohm=120.0, far_ohm=120.0, length_m=10.0, rise_s=2e-9, bit_rate_bps=20e6)
+    bus = probed_line(source_ohm=120.0, far_ohm=120.0, length_m=10.0, rise_s=2e-9, bit_rate_bps=20e6)
     wave = simulate_pattern(bus, "0101100111010")
     levels = np.where(np.array(list(wave.bits)) == "1", 1.0, -1.0)
     near = np.interp(wave.sample_times_s, wave.time_s, wave.v_diff_v[0])
@@ -135,7 +135,7 @@ def test_fast_rate_short_terminated_bus_samples_at_the_dc_levels():
 
 def test_every_driver_in_one_batch_equals_each_alone():
     # Source: linearity; the batch axis only stacks independent solves.
-    doc = _line(source_ohm=40.0, far_ohm=120.0).plan.model_dump(mode="json")
+    doc = probed_line(source_ohm=40.0, far_ohm=120.0).plan.model_dump(mode="json")
     doc["nodes"][1]["role"] = "transceiver"
     bus = build_bus(load_plan(doc))
     both = step_responses(bus, ["driver", "far"])
@@ -148,7 +148,7 @@ def test_every_driver_in_one_batch_equals_each_alone():
 
 def test_watched_receivers_alone_equal_their_rows_of_the_whole_bus():
     # Source: linearity; a receiver's spectrum does not depend on which other receivers are transformed.
-    bus = _line(source_ohm=40.0)
+    bus = probed_line(source_ohm=40.0)
     every = step_responses(bus)
     far = step_responses(bus, receiver_names=["far"])
     assert far.receiver_names == ("far",)
@@ -171,9 +171,9 @@ def test_prbs_holds_every_word_of_its_order(order):
 def test_default_pattern_grows_with_the_bus_memory():
     # Source: maximal-length property as above: with memory m bits, PRBS-(m + 2) holds every m + 2-bit history.
     # A 200 m unterminated line at 20 Mbit/s rings over many bits: the longest default, PRBS-7.
-    fast = _line(source_ohm=40.0, length_m=200.0, bit_rate_bps=20e6)
+    fast = probed_line(source_ohm=40.0, length_m=200.0, bit_rate_bps=20e6)
     assert len(simulate_pattern(fast).bits) == 127
-    slow = _line(source_ohm=120.0, far_ohm=120.0, bit_rate_bps=9600.0)
+    slow = probed_line(source_ohm=120.0, far_ohm=120.0, bit_rate_bps=9600.0)
     assert len(simulate_pattern(slow).bits) == 31
 
 
@@ -187,7 +187,7 @@ def test_prbs7_is_a_maximal_length_sequence():
 
 
 def test_bad_inputs_are_clear_errors():
-    bus = _line(source_ohm=120.0, far_ohm=120.0)
+    bus = probed_line(source_ohm=120.0, far_ohm=120.0)
     with pytest.raises(BusInputError) as err:
         step_responses(bus, max_time_s=-1.0)
     assert err.value.problems[0].field == "max_time_s"
@@ -205,7 +205,7 @@ def test_bad_inputs_are_clear_errors():
 def test_lossless_ringing_that_never_decays_is_not_called_settled():
     # Source: lattice diagram, 0-ohm driver (G_S = -1) and open end (G_L = +1): |G_S G_L| = 1, so the
     # ringing never decays (Johnson & Graham, High-Speed Digital Design, ch. 4).
-    bus = _line(source_ohm=0.0)
+    bus = probed_line(source_ohm=0.0)
     resp = step_responses(bus, max_time_s=100e-6)
     assert not resp.settled
 
@@ -213,7 +213,7 @@ def test_lossless_ringing_that_never_decays_is_not_called_settled():
 def test_slow_edge_on_a_short_line_settles():
     # Source: common practice, a line whose delay is far below the edge (TSB-89 "electrically short") shows no
     # ringing; the response settles on the DC divider well inside the run.
-    bus = _line(source_ohm=40.0, length_m=12.0, rise_s=2.5e-6)
+    bus = probed_line(source_ohm=40.0, length_m=12.0, rise_s=2.5e-6)
     resp = step_responses(bus)
     assert resp.settled
     np.testing.assert_allclose(resp.v_diff_v[0, :, -1], resp.v_final_v[0], atol=2e-3)  # volts
