@@ -2,7 +2,7 @@
 
 from dataclasses import dataclass
 
-from engine.plan import BusPlan, NodeSpec, ResolvedCable, ResolvedDriver, resolve_cable, resolve_driver
+from pairline.engine.plan import BusPlan, NodeSpec, ResolvedCable, ResolvedDriver, resolve_cable, resolve_driver
 
 
 @dataclass(frozen=True, slots=True)

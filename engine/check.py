@@ -11,26 +11,26 @@ from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Any
 
-from engine import ENGINE_VERSION
-from engine.bus import Bus, build_bus
-from engine.findings import Finding, Verdict, worst
-from engine.plan import BusInputError, BusPlan, TerminationSpec, cross_field_problems, load_plan, plan_to_dict
-from engine.rules.bias import IDLE_TARGET_V, bias_advice_text, bias_choice, check_failsafe_bias, idle_levels_v
-from engine.rules.cable_ends import nearest_end_m, terminator_value_ohm
-from engine.rules.common_mode import check_common_mode
-from engine.rules.length_rate import check_length_vs_rate, max_bit_rate_bps
-from engine.rules.loads import (
+from pairline.engine import ENGINE_VERSION
+from pairline.engine.bus import Bus, build_bus
+from pairline.engine.findings import Finding, Verdict, worst
+from pairline.engine.plan import BusInputError, BusPlan, TerminationSpec, cross_field_problems, load_plan, plan_to_dict
+from pairline.engine.rules.bias import IDLE_TARGET_V, bias_advice_text, bias_choice, check_failsafe_bias, idle_levels_v
+from pairline.engine.rules.cable_ends import nearest_end_m, terminator_value_ohm
+from pairline.engine.rules.common_mode import check_common_mode
+from pairline.engine.rules.length_rate import check_length_vs_rate, max_bit_rate_bps
+from pairline.engine.rules.loads import (
     bias_supply_v,
     check_driver_load,
     check_unit_loads,
     further_nodes_for_bus,
     spare_unit_loads,
 )
-from engine.rules.power import check_resistor_power, rating_text, rating_to_buy_w, resistor_powers
-from engine.rules.preferred import preferred_at_or_above
-from engine.rules.signal import check_signal_integrity
-from engine.rules.stubs import check_stubs, max_bit_rate_for_stubs_bps, max_stub_by_node_m
-from engine.rules.termination import (
+from pairline.engine.rules.power import check_resistor_power, rating_text, rating_to_buy_w, resistor_powers
+from pairline.engine.rules.preferred import preferred_at_or_above
+from pairline.engine.rules.signal import check_signal_integrity
+from pairline.engine.rules.stubs import check_stubs, max_bit_rate_for_stubs_bps, max_stub_by_node_m
+from pairline.engine.rules.termination import (
     GAMMA_HOLDS,
     check_ac_termination,
     check_termination,
@@ -38,9 +38,9 @@ from engine.rules.termination import (
     ends_to_terminate_m,
     rc_capacitance_window_f,
 )
-from engine.rules.unterminated import check_unterminated
-from engine.rules.voltage import check_receiver_voltage
-from engine.units import length_text, si_format
+from pairline.engine.rules.unterminated import check_unterminated
+from pairline.engine.rules.voltage import check_receiver_voltage
+from pairline.engine.units import length_text, si_format
 
 RuleCheck = Callable[[Bus], list[Finding]]
 

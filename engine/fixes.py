@@ -24,10 +24,10 @@ import math
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 
-from engine.bus import Bus, build_bus
-from engine.findings import Verdict
-from engine.library import TRANSCEIVERS
-from engine.metrics import (
+from pairline.engine.bus import Bus, build_bus
+from pairline.engine.findings import Verdict
+from pairline.engine.library import TRANSCEIVERS
+from pairline.engine.metrics import (
     RECEIVER_THRESHOLD_V,
     ReceiverMetrics,
     arrival_time_s,
@@ -35,11 +35,11 @@ from engine.metrics import (
     propagation_delay_s,
     receiver_metrics,
 )
-from engine.plan import BusPlan, TerminationSpec
-from engine.rules.cable_ends import end_name, nearest_end_m, required_ends_m
-from engine.rules.preferred import nearest_preferred, preferred_at_or_below
-from engine.units import si_format
-from engine.waveform import (
+from pairline.engine.plan import BusPlan, TerminationSpec
+from pairline.engine.rules.cable_ends import end_name, nearest_end_m, required_ends_m
+from pairline.engine.rules.preferred import nearest_preferred, preferred_at_or_below
+from pairline.engine.units import si_format
+from pairline.engine.waveform import (
     DEFAULT_PATTERN_BITS,
     StepResponses,
     default_pattern,

@@ -6,7 +6,7 @@ representative of the class, not of any one product.
 
 from dataclasses import dataclass
 
-from engine.units import SPEED_OF_LIGHT_M_PER_S
+from pairline.engine.units import SPEED_OF_LIGHT_M_PER_S
 
 
 @dataclass(frozen=True, slots=True)

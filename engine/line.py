@@ -33,9 +33,8 @@ from dataclasses import dataclass
 
 import numpy as np
 from numpy.typing import ArrayLike
-
-from engine.plan import ResolvedCable
-from engine.units import SPEED_OF_LIGHT_M_PER_S
+from pairline.engine.plan import ResolvedCable
+from pairline.engine.units import SPEED_OF_LIGHT_M_PER_S
 
 REFERENCE_FREQUENCY_HZ = 1e6  # where the dielectric model meets C and tan_delta exactly
 

@@ -30,9 +30,8 @@ Conventions (all differential, V_AB):
 from dataclasses import dataclass, replace
 
 import numpy as np
-
-from engine.bus import Bus
-from engine.waveform import (
+from pairline.engine.bus import Bus
+from pairline.engine.waveform import (
     DEFAULT_PATTERN_BITS,
     StepResponses,
     Waveforms,

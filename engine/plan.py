@@ -10,11 +10,10 @@ from dataclasses import dataclass
 from typing import Annotated, Any, Literal
 
 import annotated_types as at
+from pairline.engine.library import CABLES, TRANSCEIVERS, CableClass
+from pairline.engine.units import si_format
 from pydantic import BaseModel, ConfigDict, Field, ValidationError
 from pydantic.fields import FieldInfo
-
-from engine.library import CABLES, TRANSCEIVERS, CableClass
-from engine.units import si_format
 
 PLAN_FORMAT: Literal["pairline-bus-plan"] = "pairline-bus-plan"
 PLAN_FORMAT_VERSION: Literal[1] = 1

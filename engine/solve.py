@@ -32,15 +32,14 @@ from dataclasses import dataclass
 
 import numpy as np
 from numpy.typing import ArrayLike
-
-from engine.bus import Bus
-from engine.line import (
+from pairline.engine.bus import Bus
+from pairline.engine.line import (
     SectionTerms,
     section_terms,
     series_impedance_ohm_per_m,
     shunt_admittance_siemens_per_m,
 )
-from engine.plan import BusInputError, NodeSpec, Problem, input_resistance_ohm
+from pairline.engine.plan import BusInputError, NodeSpec, Problem, input_resistance_ohm
 
 DRIVER_INPUT_CAPACITANCE_F: float = float(NodeSpec.model_fields["input_capacitance_f"].default)
 

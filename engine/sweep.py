@@ -39,12 +39,11 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-
-from engine.bus import Bus, build_bus
-from engine.metrics import RECEIVER_THRESHOLD_V, crossing_time_s
-from engine.plan import MAX_TRUNK_M, BusPlan, NodeSpec, TerminationSpec, input_resistance_ohm
-from engine.rules.cable_ends import required_ends_m
-from engine.waveform import step_responses
+from pairline.engine.bus import Bus, build_bus
+from pairline.engine.metrics import RECEIVER_THRESHOLD_V, crossing_time_s
+from pairline.engine.plan import MAX_TRUNK_M, BusPlan, NodeSpec, TerminationSpec, input_resistance_ohm
+from pairline.engine.rules.cable_ends import required_ends_m
+from pairline.engine.waveform import step_responses
 
 MIN_LENGTH_M = 1.0
 LENGTH_POINTS = 20  # geometric grid from MIN_LENGTH_M to MAX_TRUNK_M (about 55 % apart; a plot, ~3 % in length)

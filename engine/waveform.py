@@ -40,12 +40,11 @@ wherever linear interpolation between its neighbours would miss any receiver's w
 from dataclasses import dataclass
 
 import numpy as np
-
-from engine.bus import Bus
-from engine.line import propagation_constant_per_m
-from engine.plan import BusInputError, Problem
-from engine.solve import build_topology, receiver_spectra, resolve_driver_names, solve_network
-from engine.units import delay_s, propagation_velocity_m_per_s
+from pairline.engine.bus import Bus
+from pairline.engine.line import propagation_constant_per_m
+from pairline.engine.plan import BusInputError, Problem
+from pairline.engine.solve import build_topology, receiver_spectra, resolve_driver_names, solve_network
+from pairline.engine.units import delay_s, propagation_velocity_m_per_s
 
 SAMPLES_PER_LEVEL = 1024  # N of level 0 at least, a power of two
 LEVEL_FACTOR = 4  # dt grows by this from one level to the next

@@ -9,18 +9,18 @@ from fastapi import FastAPI, Request
 from fastapi.responses import HTMLResponse, JSONResponse, Response
 from fastapi.staticfiles import StaticFiles
 from jinja2 import Environment, FileSystemLoader, select_autoescape
+from pairline.engine import ENGINE_VERSION
+from pairline.engine.plan import BusInputError, load_plan, plan_to_dict
+from pairline.server.errors import input_error_response, not_found
+from pairline.server.store import PlanStore
 from starlette.exceptions import HTTPException as StarletteHTTPException
 from starlette.types import ASGIApp, Message, Receive, Scope, Send
 
-from engine import ENGINE_VERSION
-from engine.plan import BusInputError, load_plan, plan_to_dict
-from server.errors import input_error_response, not_found
-from server.store import PlanStore
+from pairline import data_dir
 
-ROOT = Path(__file__).resolve().parents[1]
-TEMPLATES_DIR = ROOT / "templates"
-STATIC_DIR = ROOT / "static"
-SAMPLES_DIR = ROOT / "sample_buses"
+TEMPLATES_DIR = data_dir("templates")
+STATIC_DIR = data_dir("static")
+SAMPLES_DIR = data_dir("sample_buses")
 MAX_BODY_BYTES = 2_000_000  # a 512-node plan is about 100 kB; anything far larger is refused
 
 log = logging.getLogger("pairline.server")
@@ -134,7 +134,7 @@ def create_app(
     max_body_bytes: int = MAX_BODY_BYTES,
 ) -> FastAPI:
     """The planner app on a SQLite file. `load_samples` puts every valid `samples_dir/*.json` into the store."""
-    from server.routes import api, pages
+    from pairline.server.routes import api, pages
 
     app = FastAPI(title="Pairline", version=ENGINE_VERSION, docs_url=None, redoc_url=None, openapi_url=None)
     app.state.store = PlanStore(Path(db_path))

@@ -2,7 +2,7 @@
 
 from typing import Any
 
-from engine.plan import BusPlan
+from pairline.engine.plan import BusPlan
 
 # The -7..+12 V common-mode range leaves about ±7 V for ground offset once the driver's 2.5 V and noise are
 # counted (Intersil, "High-Speed RS-485 Transceiver and Applications").

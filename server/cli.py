@@ -14,11 +14,11 @@ from collections.abc import Callable, Sequence
 from pathlib import Path
 from typing import Any, TextIO
 
-from engine.check import PlanReport, check_plan, report_to_dict
-from engine.findings import Finding, Verdict, worst
-from engine.plan import BusInputError, Problem, load_plan
-from engine.rules.power import rating_text
-from engine.units import length_text, si_format
+from pairline.engine.check import PlanReport, check_plan, report_to_dict
+from pairline.engine.findings import Finding, Verdict, worst
+from pairline.engine.plan import BusInputError, Problem, load_plan
+from pairline.engine.rules.power import rating_text
+from pairline.engine.units import length_text, si_format
 
 EXIT_OK = 0
 EXIT_BREAKS = 1
@@ -348,7 +348,7 @@ def run_check(args: argparse.Namespace, out: TextIO, err: TextIO) -> int:
 
 def run_serve(args: argparse.Namespace, out: TextIO, err: TextIO) -> int:
     """Serve the web planner until interrupted; options override PAIRLINE_HOST, PAIRLINE_PORT, PAIRLINE_DB."""
-    from server.serve import run, settings_from_env
+    from pairline.server.serve import run, settings_from_env
 
     try:
         settings = settings_from_env(args.host, args.port, args.db)

@@ -9,8 +9,8 @@ the drawing reads without colour too. The template only places what this module 
 from collections.abc import Mapping
 from dataclasses import dataclass, replace
 
-from engine.plan import BusPlan
-from server.quantities import UnitSystem, length_in, length_text
+from pairline.engine.plan import BusPlan
+from pairline.server.quantities import UnitSystem, length_in, length_text
 
 WIDTH_PX = 960.0
 LEFT_PX = 70.0

@@ -5,13 +5,12 @@ from typing import Any
 
 from fastapi import Request
 from fastapi.responses import JSONResponse, Response
-
-from engine.plan import BusInputError, Problem
+from pairline.engine.plan import BusInputError, Problem
 
 
 def error_envelope(problems: list[Problem]) -> dict[str, Any]:
     """The one JSON shape for bad input: status 422 and every problem with field, value and allowed range."""
-    from server.views import json_safe
+    from pairline.server.views import json_safe
 
     return {"status": 422, "problems": [json_safe(asdict(p)) for p in problems]}
 
@@ -22,8 +21,8 @@ def input_error_response(exc: BusInputError) -> JSONResponse:
 
 def not_found(request: Request) -> Response:
     """404: JSON for `.json` and `/api/` paths, otherwise the page that says where to go instead."""
-    from server.app import render
-    from server.views import not_found_data
+    from pairline.server.app import render
+    from pairline.server.views import not_found_data
 
     path = request.url.path
     if path.endswith(".json") or path.startswith("/api/"):

@@ -15,10 +15,10 @@ from collections.abc import Mapping
 from dataclasses import dataclass, field
 from typing import Any
 
-from engine.library import CABLES, TRANSCEIVERS
-from engine.plan import PLAN_FORMAT, PLAN_FORMAT_VERSION, Problem
-from server.messages import field_allowed, not_a_number_message
-from server.quantities import Bare, QuantityError, UnitSystem, bare_unit, format_quantity, parse_quantity
+from pairline.engine.library import CABLES, TRANSCEIVERS
+from pairline.engine.plan import PLAN_FORMAT, PLAN_FORMAT_VERSION, Problem
+from pairline.server.messages import field_allowed, not_a_number_message
+from pairline.server.quantities import Bare, QuantityError, UnitSystem, bare_unit, format_quantity, parse_quantity
 
 MAX_FORM_ROWS = 512
 

@@ -9,14 +9,13 @@ import re
 from typing import TYPE_CHECKING, Any
 
 import annotated_types as at
+from pairline.engine.plan import BusPlan, Problem
+from pairline.engine.units import si_format
+from pairline.server.quantities import KINDS, QuantityError, UnitSystem, bare_unit, length_text, number_text
 from pydantic import BaseModel
 
-from engine.plan import BusPlan, Problem
-from engine.units import si_format
-from server.quantities import KINDS, QuantityError, UnitSystem, bare_unit, length_text, number_text
-
 if TYPE_CHECKING:
-    from server.forms import FieldSpec
+    from pairline.server.forms import FieldSpec
 
 _SI_UNITS = {"s", "F", "Hz", "Ω", "bit/s", "W", "A", "V"}
 
@@ -122,7 +121,7 @@ def problem_message(problem: Problem, units: UnitSystem) -> str:
     numeric = isinstance(value, int | float) and not isinstance(value, bool) and math.isfinite(value)
     if not numeric or "min" not in allowed or "max" not in allowed:
         return problem.message
-    from server.forms import spec_for  # forms builds its own messages with this module
+    from pairline.server.forms import spec_for  # forms builds its own messages with this module
 
     spec = spec_for(problem.field)
     unit = str(allowed.get("unit", ""))

@@ -7,8 +7,7 @@ from collections.abc import Sequence
 from dataclasses import dataclass
 
 import numpy as np
-
-from server.quantities import UnitSystem, length_in, length_unit, number_text
+from pairline.server.quantities import UnitSystem, length_in, length_unit, number_text
 
 PLOT_W = 640.0
 PLOT_H = 240.0

@@ -10,7 +10,7 @@ import re
 from dataclasses import dataclass
 from typing import Literal
 
-from engine.units import FEET_PER_M
+from pairline.engine.units import FEET_PER_M
 
 UnitSystem = Literal["metric", "imperial"]
 UNIT_SYSTEMS: tuple[UnitSystem, ...] = ("metric", "imperial")

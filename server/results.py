@@ -8,20 +8,19 @@ data for `server.views`; nothing here knows about HTTP or templates.
 from dataclasses import dataclass
 
 import numpy as np
-
-from engine.bus import Bus
-from engine.check import PlanReport, check_plan, report_to_dict
-from engine.findings import Finding, Verdict
-from engine.metrics import ReceiverMetrics, receiver_metrics
-from engine.plan import BusPlan
-from engine.rules.length_rate import (
+from pairline.engine.bus import Bus
+from pairline.engine.check import PlanReport, check_plan, report_to_dict
+from pairline.engine.findings import Finding, Verdict
+from pairline.engine.metrics import ReceiverMetrics, receiver_metrics
+from pairline.engine.plan import BusPlan
+from pairline.engine.rules.length_rate import (
     LENGTH_RATE_PRODUCT_M_BPS,
     LOSS_SOURCE,
     RATE_SOURCE,
     loss_limit_length_m,
 )
-from engine.sweep import LengthRateCurve, length_rate_curve
-from engine.waveform import DEFAULT_PATTERN_BITS, Waveforms, default_pattern, simulate_pattern, step_responses
+from pairline.engine.sweep import LengthRateCurve, length_rate_curve
+from pairline.engine.waveform import DEFAULT_PATTERN_BITS, Waveforms, default_pattern, simulate_pattern, step_responses
 
 __all__ = ["CheckedPlan", "PlanReport", "check_and_simulate", "check_only", "report_to_dict", "worst_receiver"]
 

@@ -40,7 +40,7 @@ def settings_from_env(
 
 def run(host: str | None = None, port: int | None = None, db_path: str | Path | None = None) -> None:
     """Serve the planner until interrupted (loopback by default)."""
-    from server.app import create_app
+    from pairline.server.app import create_app
 
     settings = settings_from_env(host, port, db_path)
     app = create_app(settings.db_path)

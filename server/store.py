@@ -14,7 +14,7 @@ from datetime import UTC, datetime
 from pathlib import Path
 from typing import Any
 
-# 12 random bytes = 96 bits, written as 16 URL-safe characters; the brief asks for at least 64 bits.
+# 12 random bytes = 96 bits, written as 16 URL-safe characters; at least 64 bits keeps a link unguessable.
 ID_BYTES = 12
 ID_CHARS = 16
 

@@ -12,19 +12,18 @@ from enum import Enum
 from typing import Any
 
 import numpy as np
-
-from engine import ENGINE_VERSION
-from engine.findings import Verdict, worst
-from engine.library import CABLES, TRANSCEIVERS
-from engine.plan import BusPlan, Problem, plan_to_dict
-from engine.units import si_format
-from server.cautions import cautions_data, danger_data
-from server.diagram import bus_drawing, node_anchor
-from server.forms import BIAS, CABLE, DRIVER, NODE, TERMINATION, TOP, FormState
-from server.messages import problem_message
-from server.plots import curve_plot, eye_plot, waveform_plot
-from server.quantities import UnitSystem, format_quantity, length_text, length_unit, number_text
-from server.results import (
+from pairline.engine import ENGINE_VERSION
+from pairline.engine.findings import Verdict, worst
+from pairline.engine.library import CABLES, TRANSCEIVERS
+from pairline.engine.plan import BusPlan, Problem, plan_to_dict
+from pairline.engine.units import si_format
+from pairline.server.cautions import cautions_data, danger_data
+from pairline.server.diagram import bus_drawing, node_anchor
+from pairline.server.forms import BIAS, CABLE, DRIVER, NODE, TERMINATION, TOP, FormState
+from pairline.server.messages import problem_message
+from pairline.server.plots import curve_plot, eye_plot, waveform_plot
+from pairline.server.quantities import UnitSystem, format_quantity, length_text, length_unit, number_text
+from pairline.server.results import (
     CURVE_CRITERIA,
     RULE_CRITERION,
     RULE_SOURCE,
@@ -33,7 +32,7 @@ from server.results import (
     report_to_dict,
     worst_receiver,
 )
-from server.store import SampleEntry, SavedPlan
+from pairline.server.store import SampleEntry, SavedPlan
 
 _SEVERITY = {"breaks": 0, "tight": 1, "holds": 2}
 

@@ -26,7 +26,6 @@ from __future__ import annotations
 import os
 import platform
 import resource
-import sys
 import time
 import tracemalloc
 from collections.abc import Callable
@@ -34,19 +33,16 @@ from pathlib import Path
 from typing import Any
 
 import numpy as np
+from pairline.engine.bus import Bus, build_bus
+from pairline.engine.check import check_plan
+from pairline.engine.fixes import one_driver
+from pairline.engine.metrics import receiver_metrics
+from pairline.engine.plan import load_plan
+from pairline.engine.rules.signal import check_signal_integrity
+from pairline.engine.sweep import length_rate_curve
+from pairline.engine.waveform import simulate_pattern, step_responses
 
-ROOT = Path(__file__).resolve().parents[1]
-sys.path.insert(0, str(ROOT))
-
-from engine.bus import Bus, build_bus  # noqa: E402
-from engine.check import check_plan  # noqa: E402
-from engine.fixes import one_driver  # noqa: E402
-from engine.metrics import receiver_metrics  # noqa: E402
-from engine.plan import load_plan  # noqa: E402
-from engine.rules.signal import check_signal_integrity  # noqa: E402
-from engine.sweep import length_rate_curve  # noqa: E402
-from engine.waveform import simulate_pattern, step_responses  # noqa: E402
-from tests.engine.spice_netlist import ngspice_path, resample, step_waveforms  # noqa: E402
+from tests.engine.spice_netlist import ngspice_path, resample, step_waveforms
 
 # Constant-R cable (no skin effect or dielectric loss) so that ngspice's LTRA models the same line.
 CABLE = {"class_key": None, "z0_ohm": 120.0, "velocity_factor": 0.78, "resistance_ohm_per_m": 0.0842}

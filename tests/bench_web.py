@@ -5,19 +5,16 @@ since speed is reported, not asserted.
 """
 
 import statistics
-import sys
 import tempfile
 import time
 import warnings
 from pathlib import Path
 
-sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
-
 with warnings.catch_warnings():
     warnings.filterwarnings("ignore", message=".*httpx2.*")
     from fastapi.testclient import TestClient
 
-from server.app import create_app  # noqa: E402
+from pairline.server.app import create_app
 
 REQUESTS = 50
 TARGET_S = 0.150

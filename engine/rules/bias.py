@@ -17,11 +17,10 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-
-from engine.bus import Bus
-from engine.findings import Finding, Verdict
-from engine.plan import input_resistance_ohm
-from engine.rules.loads import (
+from pairline.engine.bus import Bus
+from pairline.engine.findings import Finding, Verdict
+from pairline.engine.plan import input_resistance_ohm
+from pairline.engine.rules.loads import (
     RS485_UNIT_LOAD_BUDGET,
     bias_supply_v,
     bias_unit_loads,
@@ -29,9 +28,9 @@ from engine.rules.loads import (
     receiver_loads_ohm,
     unit_load_parts,
 )
-from engine.rules.preferred import preferred_at_or_below
-from engine.rules.voltage import DcElement, fixed_load_elements, receiver_elements, solve_dc_v
-from engine.units import length_text, parallel_ohm, si_format
+from pairline.engine.rules.preferred import preferred_at_or_below
+from pairline.engine.rules.voltage import DcElement, fixed_load_elements, receiver_elements, solve_dc_v
+from pairline.engine.units import length_text, parallel_ohm, si_format
 
 RULE_ID = "bias.idle_level"
 IDLE_THRESHOLD_V = 0.200  # receiver sensitivity, TIA/EIA-485-A

@@ -10,11 +10,11 @@ engine.rules.stubs, since the cable left beyond a terminator is an open stub.
 
 import math
 
-from engine.bus import Bus
-from engine.plan import input_resistance_ohm
-from engine.rules.preferred import nearest_preferred
-from engine.rules.stubs import max_stub_length_m
-from engine.units import length_text, parallel_ohm
+from pairline.engine.bus import Bus
+from pairline.engine.plan import input_resistance_ohm
+from pairline.engine.rules.preferred import nearest_preferred
+from pairline.engine.rules.stubs import max_stub_length_m
+from pairline.engine.units import length_text, parallel_ohm
 
 END_TOLERANCE_CAP_M = 1.0
 

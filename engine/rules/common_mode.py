@@ -13,8 +13,8 @@ a ground offset of up to 7 V either way. On RS-485 any transceiver node may driv
 against every node that can drive it (the offset that matters is the difference of their grounds).
 """
 
-from engine.bus import Bus
-from engine.findings import Finding, Verdict
+from pairline.engine.bus import Bus
+from pairline.engine.findings import Finding, Verdict
 
 RULE_ID = "common_mode.range"
 NOISE_ALLOWANCE_V = 2.5  # induced noise on the pair, as in the Intersil high-speed RS-485 tutorial's budget

@@ -21,11 +21,10 @@ driver; on RS-485 also transceiver nodes) along its stub, the trunk and the rece
 import math
 
 import numpy as np
-
-from engine.bus import Bus
-from engine.findings import Finding, Verdict
-from engine.line import propagation_constant_per_m
-from engine.units import length_text
+from pairline.engine.bus import Bus
+from pairline.engine.findings import Finding, Verdict
+from pairline.engine.line import propagation_constant_per_m
+from pairline.engine.units import length_text
 
 RATE_RULE_ID = "length.rate_rule"
 LOSS_RULE_ID = "length.loss"

@@ -25,10 +25,10 @@ by arithmetic (51.7 Ohm / 80 Ohm), is TIGHT down to 95 % of it (resistor toleran
 
 import math
 
-from engine.bus import Bus
-from engine.findings import Finding, Verdict
-from engine.plan import input_resistance_ohm
-from engine.units import length_text, parallel_ohm, si_format
+from pairline.engine.bus import Bus
+from pairline.engine.findings import Finding, Verdict
+from pairline.engine.plan import input_resistance_ohm
+from pairline.engine.units import length_text, parallel_ohm, si_format
 
 RS485_UNIT_LOAD_BUDGET = 32.0  # TIA-485-A
 RS422_MAX_RECEIVERS = 10  # TIA/EIA-422-B
@@ -152,7 +152,7 @@ def check_unit_loads(bus: Bus) -> list[Finding]:
 
 
 def _unit_load_fix(bus: Bus, parts: dict[str, float], total: float) -> str:
-    from engine.rules.bias import bias_choice  # bias builds on this module; one sizing function for both texts
+    from pairline.engine.rules.bias import bias_choice  # bias builds on this module; one sizing function for both texts
 
     over = total - RS485_UNIT_LOAD_BUDGET
     n_nodes = len(bus.plan.nodes)

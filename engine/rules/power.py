@@ -18,9 +18,9 @@ case with that derating, and is tight when a sustained fault would put more than
 import math
 from dataclasses import dataclass
 
-from engine.bus import Bus
-from engine.findings import Finding, Verdict
-from engine.rules.loads import bias_supply_v
+from pairline.engine.bus import Bus
+from pairline.engine.findings import Finding, Verdict
+from pairline.engine.rules.loads import bias_supply_v
 
 RULE_ID = "power.resistor"
 RATINGS_W = (0.125, 0.25, 0.5, 1.0, 2.0, 5.0, 10.0, 25.0)

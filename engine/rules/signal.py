@@ -21,15 +21,14 @@ simulated verdict only when the bus has no terminators; with terminators fitted 
 """
 
 import numpy as np
-
-from engine.bus import Bus, build_bus
-from engine.findings import Finding, Verdict, worst
-from engine.fixes import ComputedFix, SignalJudgement, compute_fixes, judge_bus, one_driver, pattern_duration_s
-from engine.rules.cable_ends import required_ends_m, terminator_value_ohm
-from engine.rules.stubs import check_stubs
-from engine.rules.unterminated import line_may_stay_unterminated
-from engine.units import si_format
-from engine.waveform import step_responses
+from pairline.engine.bus import Bus, build_bus
+from pairline.engine.findings import Finding, Verdict, worst
+from pairline.engine.fixes import ComputedFix, SignalJudgement, compute_fixes, judge_bus, one_driver, pattern_duration_s
+from pairline.engine.rules.cable_ends import required_ends_m, terminator_value_ohm
+from pairline.engine.rules.stubs import check_stubs
+from pairline.engine.rules.unterminated import line_may_stay_unterminated
+from pairline.engine.units import si_format
+from pairline.engine.waveform import step_responses
 
 MAX_STUB_CONFIRMS = 8  # flagged stubs reported one by one; the rest summarised
 MAX_WATCHED = 8  # receivers judged in a second (what-if) simulation on large buses

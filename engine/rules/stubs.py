@@ -15,9 +15,9 @@ within 30 % of a bit (TI SLLA628 compliance paragraph), which bounds the rise ti
 
 import math
 
-from engine.bus import Bus
-from engine.findings import Finding, Verdict
-from engine.units import SPEED_OF_LIGHT_M_PER_S, length_text, si_format
+from pairline.engine.bus import Bus
+from pairline.engine.findings import Finding, Verdict
+from pairline.engine.units import SPEED_OF_LIGHT_M_PER_S, length_text, si_format
 
 STUB_RISE_FRACTION = 0.1  # TI SLLA272
 TIGHT_FROM_FRACTION = 0.8  # TIGHT from 80 % of the limit

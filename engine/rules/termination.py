@@ -20,10 +20,10 @@ reaches its bias level only about 3 RC after the drivers release, so HOLDS when 
 
 import math
 
-from engine.bus import Bus
-from engine.findings import Finding, Verdict, worst
-from engine.plan import TerminationSpec
-from engine.rules.cable_ends import (
+from pairline.engine.bus import Bus
+from pairline.engine.findings import Finding, Verdict, worst
+from pairline.engine.plan import TerminationSpec
+from pairline.engine.rules.cable_ends import (
     corrected_termination_ohm,
     end_name,
     end_tolerance_m,
@@ -32,9 +32,9 @@ from engine.rules.cable_ends import (
     required_ends_m,
     terminator_value_ohm,
 )
-from engine.rules.preferred import nearest_preferred
-from engine.rules.unterminated import line_may_stay_unterminated, one_way_delay_s
-from engine.units import length_text, parallel_ohm, si_format
+from pairline.engine.rules.preferred import nearest_preferred
+from pairline.engine.rules.unterminated import line_may_stay_unterminated, one_way_delay_s
+from pairline.engine.units import length_text, parallel_ohm, si_format
 
 GAMMA_HOLDS = 0.05
 GAMMA_TIGHT = 0.12

@@ -20,10 +20,10 @@ beside it; the simulation may confirm or override.
 import math
 from dataclasses import dataclass
 
-from engine.bus import Bus
-from engine.findings import Finding, Verdict
-from engine.rules.cable_ends import end_name, required_ends_m, terminator_value_ohm
-from engine.units import delay_s, length_text, propagation_velocity_m_per_s, si_format
+from pairline.engine.bus import Bus
+from pairline.engine.findings import Finding, Verdict
+from pairline.engine.rules.cable_ends import end_name, required_ends_m, terminator_value_ohm
+from pairline.engine.units import delay_s, length_text, propagation_velocity_m_per_s, si_format
 
 FIELD_RULE_MAX_RATE_BPS = 200e3
 DECIDING_CRITERION = "three_round_trips"

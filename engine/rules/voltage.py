@@ -20,11 +20,10 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-
-from engine.bus import Bus
-from engine.findings import Finding, Verdict
-from engine.plan import input_resistance_ohm
-from engine.rules.loads import bias_supply_v
+from pairline.engine.bus import Bus
+from pairline.engine.findings import Finding, Verdict
+from pairline.engine.plan import input_resistance_ohm
+from pairline.engine.rules.loads import bias_supply_v
 
 RULE_ID = "signal.dc_level"
 RECEIVER_THRESHOLD_V = 0.200  # TIA/EIA-485-A and TIA/EIA-422-B receiver input sensitivity

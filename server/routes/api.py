@@ -5,12 +5,11 @@ from typing import Any
 
 from fastapi import APIRouter, Request
 from fastapi.responses import JSONResponse, Response
-
-from engine import ENGINE_VERSION
-from engine.plan import BusInputError, Problem, load_plan, plan_to_dict
-from server.results import check_and_simulate
-from server.store import PlanStore
-from server.views import plan_data
+from pairline.engine import ENGINE_VERSION
+from pairline.engine.plan import BusInputError, Problem, load_plan, plan_to_dict
+from pairline.server.results import check_and_simulate
+from pairline.server.store import PlanStore
+from pairline.server.views import plan_data
 
 router = APIRouter(prefix="/api")
 

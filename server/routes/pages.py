@@ -7,16 +7,15 @@ from typing import Annotated, Any
 
 from fastapi import APIRouter, Depends, Request
 from fastapi.responses import JSONResponse, RedirectResponse, Response
-
-from engine import ENGINE_VERSION
-from engine.plan import BusInputError, BusPlan, Problem, load_plan, plan_to_dict
-from server.app import render
-from server.errors import not_found
-from server.forms import FormState, form_from_plan, merge_problems, parse_form, with_units
-from server.quantities import UnitSystem
-from server.results import check_and_simulate, check_only
-from server.store import PlanStore, SavedPlan
-from server.views import bom_rows, editor_data, plan_data, start_data
+from pairline.engine import ENGINE_VERSION
+from pairline.engine.plan import BusInputError, BusPlan, Problem, load_plan, plan_to_dict
+from pairline.server.app import render
+from pairline.server.errors import not_found
+from pairline.server.forms import FormState, form_from_plan, merge_problems, parse_form, with_units
+from pairline.server.quantities import UnitSystem
+from pairline.server.results import check_and_simulate, check_only
+from pairline.server.store import PlanStore, SavedPlan
+from pairline.server.views import bom_rows, editor_data, plan_data, start_data
 
 router = APIRouter()
 MAX_FORM_FIELDS = 8000  # 512 node rows of 8 inputs, plus the rest

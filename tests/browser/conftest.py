@@ -63,8 +63,7 @@ def _free_port() -> int:
 def base_url(tmp_path_factory: pytest.TempPathFactory) -> Iterator[str]:
     """A real uvicorn server on a free loopback port, in a thread, on a temporary database."""
     import uvicorn
-
-    from server.app import create_app
+    from pairline.server.app import create_app
 
     app = create_app(tmp_path_factory.mktemp("browser-db") / "plans.db")
     port = _free_port()

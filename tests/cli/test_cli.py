@@ -6,8 +6,7 @@ import sys
 from pathlib import Path
 
 import pytest
-
-from server.cli import main
+from pairline.server.cli import main
 
 ROOT = Path(__file__).resolve().parents[2]
 
@@ -109,7 +108,7 @@ def test_usage_errors_exit_2(capsys):
 
 def test_module_runs_as_a_program(tmp_path):
     done = subprocess.run(
-        [sys.executable, "-m", "server.cli", "check", _write(tmp_path, GOOD), "--json"],
+        [sys.executable, "-m", "pairline.server.cli", "check", _write(tmp_path, GOOD), "--json"],
         cwd=ROOT,
         capture_output=True,
         text=True,
@@ -129,7 +128,7 @@ def test_plan_from_standard_input(monkeypatch, capsys):
 
 
 def test_allowed_ranges_read_as_ranges():
-    from server.cli import allowed_text
+    from pairline.server.cli import allowed_text
 
     assert allowed_text({"min": 50.0, "max": 100e6, "unit": "bit/s"}) == "50 bit/s .. 100 Mbit/s"
     assert allowed_text({"min": 0.0, "min_exclusive": True, "unit": "V"}) == "0 V .. inf V"
@@ -139,7 +138,7 @@ def test_allowed_ranges_read_as_ranges():
 
 
 def test_numbers_print_without_exponents():
-    from server.cli import number_text
+    from pairline.server.cli import number_text
 
     assert number_text(10416.7) == "10400"
     assert number_text(1151.5) == "1150"

@@ -5,11 +5,10 @@ import re
 from pathlib import Path
 
 import pytest
-
-from engine.check import check_plan
-from engine.findings import Verdict, worst
-from engine.plan import load_plan
-from server.cli import main
+from pairline.engine.check import check_plan
+from pairline.engine.findings import Verdict, worst
+from pairline.engine.plan import load_plan
+from pairline.server.cli import main
 
 SAMPLES = Path(__file__).resolve().parents[2] / "sample_buses"
 PLANS = sorted(SAMPLES.glob("*.json"))

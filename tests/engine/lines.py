@@ -1,7 +1,7 @@
 """Shared test buses: a lossless 120 Ohm line probed at both ends by receivers that load nothing."""
 
-from engine.bus import Bus, build_bus
-from engine.plan import load_plan
+from pairline.engine.bus import Bus, build_bus
+from pairline.engine.plan import load_plan
 
 VF = 0.7
 LOSSLESS = {

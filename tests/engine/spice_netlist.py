@@ -34,10 +34,9 @@ from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
-
-from engine.bus import Bus
-from engine.plan import NodeSpec, input_resistance_ohm
-from engine.units import SPEED_OF_LIGHT_M_PER_S
+from pairline.engine.bus import Bus
+from pairline.engine.plan import NodeSpec, input_resistance_ohm
+from pairline.engine.units import SPEED_OF_LIGHT_M_PER_S
 
 NGSPICE = "ngspice"
 PRIMARY_DRIVER_INPUT_CAPACITANCE_F = float(NodeSpec.model_fields["input_capacitance_f"].default)

@@ -2,9 +2,8 @@
 
 import numpy as np
 import pytest
-
-from engine.line import propagation_constant_per_m, rlgc_per_m
-from engine.plan import CableSpec, resolve_cable
+from pairline.engine.line import propagation_constant_per_m, rlgc_per_m
+from pairline.engine.plan import CableSpec, resolve_cable
 
 NEPER_DB = 20.0 / np.log(10.0)
 CAT5E = resolve_cable(CableSpec(class_key="cat5e-100"))

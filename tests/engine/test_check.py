@@ -4,14 +4,13 @@ import json
 import math
 
 import pytest
-
-from engine import ENGINE_VERSION
-from engine.check import RULES, check_plan, finding_to_dict, report_to_dict
-from engine.findings import Finding, Verdict, worst
-from engine.plan import BusInputError, BusPlan, load_plan, plan_to_dict
-from engine.rules.length_rate import max_bit_rate_bps
-from engine.rules.power import rating_to_buy_w
-from engine.rules.stubs import max_bit_rate_for_stubs_bps, max_stub_length_m
+from pairline.engine import ENGINE_VERSION
+from pairline.engine.check import RULES, check_plan, finding_to_dict, report_to_dict
+from pairline.engine.findings import Finding, Verdict, worst
+from pairline.engine.plan import BusInputError, BusPlan, load_plan, plan_to_dict
+from pairline.engine.rules.length_rate import max_bit_rate_bps
+from pairline.engine.rules.power import rating_to_buy_w
+from pairline.engine.rules.stubs import max_bit_rate_for_stubs_bps, max_stub_length_m
 
 RS485 = {
     "standard": "rs485",
@@ -219,8 +218,8 @@ def test_summary_advises_no_bias_when_no_pair_fits_the_unit_load_budget():
 
 def test_summary_bias_never_breaks_the_load_rules_it_is_checked_by():
     # Source: TIA-485-A (32 UL, 54 Ohm): the advised bus, bias included, must not break the loading rules.
-    from engine.bus import Bus
-    from engine.rules.loads import check_driver_load, check_unit_loads
+    from pairline.engine.bus import Bus
+    from pairline.engine.rules.loads import check_driver_load, check_unit_loads
 
     for ul in (1.0, 0.5, 0.25, 0.125):
         report = check_plan(_full_bus_doc(ul))
@@ -267,7 +266,7 @@ def test_bom_notes_say_where_the_advice_changes_the_plan():
 def test_limit_kind_says_which_side_of_the_limit_holds():
     # Source: TIA-485-A: the driver must drive a load of at least 54 Ohm (a minimum); receiver threshold
     # 200 mV is a minimum level; the 32 UL budget is a maximum.
-    from engine.findings import LIMIT_KINDS
+    from pairline.engine.findings import LIMIT_KINDS
 
     report = check_plan(RS485)
     assert all(f.limit_kind in LIMIT_KINDS for f in report.findings)
@@ -283,7 +282,7 @@ def test_limit_kind_says_which_side_of_the_limit_holds():
 
 def test_length_text_metric_and_imperial():
     # Source: international foot, 0.3048 m exactly: 100 m = 328 ft; 0.23 m = 9.06 in.
-    from engine.units import length_text
+    from pairline.engine.units import length_text
 
     assert length_text(100.0) == "100 m"
     assert length_text(0.45) == "45 cm"

@@ -6,18 +6,23 @@ from pathlib import Path
 import pytest
 
 ENGINE = Path(__file__).resolve().parents[2] / "engine"
-FORBIDDEN = {"fastapi", "starlette", "jinja2", "uvicorn", "sqlite3", "server", "httpx", "multipart"}
+FORBIDDEN = {"fastapi", "starlette", "jinja2", "uvicorn", "sqlite3", "psycopg", "httpx", "multipart"}
+FORBIDDEN_PACKAGES = ("pairline.server",)
 ENGINE_FILES = sorted(ENGINE.rglob("*.py"))
 
 
-def _imported_roots(path: Path) -> set[str]:
-    roots: set[str] = set()
+def _imported_modules(path: Path) -> set[str]:
+    modules: set[str] = set()
     for node in ast.walk(ast.parse(path.read_text(), filename=str(path))):
         if isinstance(node, ast.Import):
-            roots.update(alias.name.split(".")[0] for alias in node.names)
+            modules.update(alias.name for alias in node.names)
         elif isinstance(node, ast.ImportFrom) and node.module and node.level == 0:
-            roots.add(node.module.split(".")[0])
-    return roots
+            modules.add(node.module)
+    return modules
+
+
+def _imported_roots(path: Path) -> set[str]:
+    return {module.split(".")[0] for module in _imported_modules(path)}
 
 
 def test_engine_has_modules():
@@ -27,6 +32,7 @@ def test_engine_has_modules():
 @pytest.mark.parametrize("path", ENGINE_FILES, ids=lambda p: str(p.relative_to(ENGINE)))
 def test_engine_module_imports_no_web_or_database(path: Path):
     assert _imported_roots(path).isdisjoint(FORBIDDEN)
+    assert not [m for m in _imported_modules(path) if m.startswith(FORBIDDEN_PACKAGES)]
 
 
 @pytest.mark.parametrize("path", ENGINE_FILES, ids=lambda p: str(p.relative_to(ENGINE)))

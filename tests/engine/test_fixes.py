@@ -4,13 +4,12 @@ on the right side of the published rule of thumb it refines."""
 import dataclasses
 
 import pytest
-
-from engine.bus import build_bus
-from engine.findings import Verdict
-from engine.fixes import compute_fixes, judge_bus, judge_metrics
-from engine.metrics import ReceiverMetrics
-from engine.plan import load_plan
-from engine.units import SPEED_OF_LIGHT_M_PER_S
+from pairline.engine.bus import build_bus
+from pairline.engine.findings import Verdict
+from pairline.engine.fixes import compute_fixes, judge_bus, judge_metrics
+from pairline.engine.metrics import ReceiverMetrics
+from pairline.engine.plan import load_plan
+from pairline.engine.units import SPEED_OF_LIGHT_M_PER_S
 
 CLEAN = ReceiverMetrics(
     receiver="rx",

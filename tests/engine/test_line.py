@@ -2,9 +2,8 @@
 
 import numpy as np
 import pytest
-
-from engine.library import CABLES
-from engine.line import (
+from pairline.engine.library import CABLES
+from pairline.engine.line import (
     REFERENCE_FREQUENCY_HZ,
     abcd_section,
     characteristic_impedance_ohm,
@@ -14,8 +13,8 @@ from engine.line import (
     series_impedance_ohm_per_m,
     shunt_admittance_siemens_per_m,
 )
-from engine.plan import CableSpec, resolve_cable
-from engine.units import SPEED_OF_LIGHT_M_PER_S
+from pairline.engine.plan import CableSpec, resolve_cable
+from pairline.engine.units import SPEED_OF_LIGHT_M_PER_S
 
 LOSSLESS = resolve_cable(
     CableSpec(class_key=None, z0_ohm=120.0, velocity_factor=0.66, resistance_ohm_per_m=0.0, dielectric_loss_tangent=0.0)

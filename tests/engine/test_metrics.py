@@ -2,12 +2,12 @@
 
 import numpy as np
 import pytest
+from pairline.engine.bus import build_bus
+from pairline.engine.metrics import RECEIVER_THRESHOLD_V, driver_metrics, propagation_delay_s, receiver_metrics
+from pairline.engine.plan import load_plan
+from pairline.engine.units import SPEED_OF_LIGHT_M_PER_S
+from pairline.engine.waveform import edge_duration_s, prbs_bits, step_responses
 
-from engine.bus import build_bus
-from engine.metrics import RECEIVER_THRESHOLD_V, driver_metrics, propagation_delay_s, receiver_metrics
-from engine.plan import load_plan
-from engine.units import SPEED_OF_LIGHT_M_PER_S
-from engine.waveform import edge_duration_s, prbs_bits, step_responses
 from tests.engine.lines import VF, probed_line
 
 T_E = edge_duration_s(10e-9)

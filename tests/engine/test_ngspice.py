@@ -12,10 +12,10 @@ import os
 
 import numpy as np
 import pytest
+from pairline.engine.bus import Bus, build_bus
+from pairline.engine.plan import load_plan
+from pairline.engine.waveform import simulate_pattern, step_responses
 
-from engine.bus import Bus, build_bus
-from engine.plan import load_plan
-from engine.waveform import simulate_pattern, step_responses
 from tests.engine.spice_netlist import (
     bus_netlist,
     dc_levels,

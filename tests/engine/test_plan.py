@@ -3,9 +3,8 @@
 import copy
 
 import pytest
-
-from engine.bus import build_bus
-from engine.plan import BusInputError, load_plan, plan_to_dict
+from pairline.engine.bus import build_bus
+from pairline.engine.plan import BusInputError, load_plan, plan_to_dict
 
 GOOD = {
     "standard": "rs485",

@@ -6,16 +6,15 @@ import math
 
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
-
-from engine.bus import build_bus
-from engine.check import check_plan, report_to_dict
-from engine.findings import Verdict
-from engine.library import CABLES, TRANSCEIVERS
-from engine.plan import load_plan
-from engine.rules.cable_ends import end_tolerance_m
-from engine.rules.loads import check_unit_loads, spare_unit_loads, unit_load_total
-from engine.rules.stubs import check_stubs
-from engine.rules.termination import ends_to_terminate_m, placement_verdict
+from pairline.engine.bus import build_bus
+from pairline.engine.check import check_plan, report_to_dict
+from pairline.engine.findings import Verdict
+from pairline.engine.library import CABLES, TRANSCEIVERS
+from pairline.engine.plan import load_plan
+from pairline.engine.rules.cable_ends import end_tolerance_m
+from pairline.engine.rules.loads import check_unit_loads, spare_unit_loads, unit_load_total
+from pairline.engine.rules.stubs import check_stubs
+from pairline.engine.rules.termination import ends_to_terminate_m, placement_verdict
 
 SETTINGS = settings(
     derandomize=True,

@@ -2,12 +2,11 @@
 rule "signal.confirms" (the simulation set against the stub and unterminated-line rules of thumb)."""
 
 import pytest
-
-from engine.bus import build_bus
-from engine.findings import Verdict
-from engine.plan import load_plan
-from engine.rules.signal import check_signal_integrity
-from engine.units import m_from_ft
+from pairline.engine.bus import build_bus
+from pairline.engine.findings import Verdict
+from pairline.engine.plan import load_plan
+from pairline.engine.rules.signal import check_signal_integrity
+from pairline.engine.units import m_from_ft
 
 
 def _by(findings, rule_id):
@@ -126,7 +125,7 @@ def _transceiver_bus(n_nodes: int):
 
 
 def test_every_driver_is_simulated_on_a_32_node_bus():
-    from engine.rules.signal import drivers_to_simulate
+    from pairline.engine.rules.signal import drivers_to_simulate
 
     bus = _transceiver_bus(32)
     # Source: TIA/EIA-485-A allows 32 unit loads, so 32 transceivers plus the driver may each drive.
@@ -134,7 +133,7 @@ def test_every_driver_is_simulated_on_a_32_node_bus():
 
 
 def test_large_bus_samples_the_ends_and_the_longest_stub():
-    from engine.rules.signal import MAX_DRIVERS_SAMPLED, drivers_to_simulate
+    from pairline.engine.rules.signal import MAX_DRIVERS_SAMPLED, drivers_to_simulate
 
     bus = _transceiver_bus(100)
     picked = drivers_to_simulate(bus)

@@ -3,11 +3,10 @@
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
-
-from engine.bus import build_bus
-from engine.findings import Verdict
-from engine.plan import load_plan
-from engine.rules.bias import (
+from pairline.engine.bus import build_bus
+from pairline.engine.findings import Verdict
+from pairline.engine.plan import load_plan
+from pairline.engine.rules.bias import (
     bias_choice,
     bias_min_ohm,
     check_failsafe_bias,
@@ -17,8 +16,8 @@ from engine.rules.bias import (
     max_bias_ohm,
     recommended_bias,
 )
-from engine.rules.preferred import preferred_at_or_below
-from engine.units import parallel_ohm
+from pairline.engine.rules.preferred import preferred_at_or_below
+from pairline.engine.units import parallel_ohm
 
 LOSSLESS = {"class_key": None, "z0_ohm": 120.0, "velocity_factor": 0.78, "resistance_ohm_per_m": 0.0}
 ENDS = [{"position_m": 0.0, "resistance_ohm": 120.0}, {"position_m": 100.0, "resistance_ohm": 120.0}]

@@ -1,11 +1,10 @@
 """Rule "common_mode.range": ground offset + driver common mode + noise vs the standard's range."""
 
 import pytest
-
-from engine.bus import build_bus
-from engine.findings import Verdict
-from engine.plan import load_plan
-from engine.rules.common_mode import (
+from pairline.engine.bus import build_bus
+from pairline.engine.findings import Verdict
+from pairline.engine.plan import load_plan
+from pairline.engine.rules.common_mode import (
     NOISE_ALLOWANCE_V,
     RANGES_V,
     SERIES_GROUND_OHM,

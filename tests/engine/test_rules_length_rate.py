@@ -1,11 +1,10 @@
 """Rules "length.rate_rule" and "length.loss", and the highest bit rate they allow."""
 
 import pytest
-
-from engine.bus import build_bus
-from engine.findings import Verdict
-from engine.plan import load_plan
-from engine.rules.length_rate import (
+from pairline.engine.bus import build_bus
+from pairline.engine.findings import Verdict
+from pairline.engine.plan import load_plan
+from pairline.engine.rules.length_rate import (
     attenuation_np_per_m,
     check_length_vs_rate,
     line_loss_db,

@@ -1,11 +1,10 @@
 """Unit-load budget and total driver load, against published limits and their arithmetic."""
 
 import pytest
-
-from engine.bus import build_bus
-from engine.findings import Verdict
-from engine.plan import load_plan
-from engine.rules.loads import (
+from pairline.engine.bus import build_bus
+from pairline.engine.findings import Verdict
+from pairline.engine.plan import load_plan
+from pairline.engine.rules.loads import (
     bias_unit_loads,
     check_driver_load,
     check_unit_loads,
@@ -14,7 +13,7 @@ from engine.rules.loads import (
     max_nodes,
     unit_load_total,
 )
-from engine.units import parallel_ohm
+from pairline.engine.units import parallel_ohm
 
 
 def _bus(n_nodes=2, unit_loads=1.0, standard="rs485", terminations=(0.0, 300.0), term_ohm=120.0, **extra):

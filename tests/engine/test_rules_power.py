@@ -5,15 +5,14 @@ import math
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
-
-from engine.bus import build_bus
-from engine.findings import Verdict
-from engine.plan import load_plan
-from engine.rules.bias import check_failsafe_bias, recommended_bias_ohm
-from engine.rules.common_mode import check_common_mode
-from engine.rules.length_rate import check_length_vs_rate, max_bit_rate_bps
-from engine.rules.power import check_resistor_power, rating_to_buy_w, resistor_powers
-from engine.rules.voltage import check_receiver_voltage
+from pairline.engine.bus import build_bus
+from pairline.engine.findings import Verdict
+from pairline.engine.plan import load_plan
+from pairline.engine.rules.bias import check_failsafe_bias, recommended_bias_ohm
+from pairline.engine.rules.common_mode import check_common_mode
+from pairline.engine.rules.length_rate import check_length_vs_rate, max_bit_rate_bps
+from pairline.engine.rules.power import check_resistor_power, rating_to_buy_w, resistor_powers
+from pairline.engine.rules.voltage import check_receiver_voltage
 
 
 def _bus(open_circuit_v=4.0, terminations=None, **changes):

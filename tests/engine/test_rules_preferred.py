@@ -1,8 +1,7 @@
 """Preferred resistor and capacitor values (IEC 60063 E24 and E6)."""
 
 import pytest
-
-from engine.rules.preferred import E6, E24, nearest_preferred, preferred_at_or_above, preferred_at_or_below
+from pairline.engine.rules.preferred import E6, E24, nearest_preferred, preferred_at_or_above, preferred_at_or_below
 
 
 def test_series_have_their_published_lengths():

@@ -1,11 +1,10 @@
 """Stub length vs driver rise time: the 1/10 rule's published table and the per-node findings."""
 
 import pytest
-
-from engine.bus import build_bus
-from engine.findings import Verdict
-from engine.plan import load_plan
-from engine.rules.stubs import (
+from pairline.engine.bus import build_bus
+from pairline.engine.findings import Verdict
+from pairline.engine.plan import load_plan
+from pairline.engine.rules.stubs import (
     check_stubs,
     max_bit_rate_for_stubs_bps,
     max_stub_length_m,

@@ -1,20 +1,19 @@
 """Termination placement and value, the unterminated-line criteria and RC terminators."""
 
 import pytest
-
-from engine.bus import build_bus
-from engine.findings import Verdict, worst
-from engine.plan import load_plan
-from engine.rules.cable_ends import end_tolerance_m, required_ends_m
-from engine.rules.termination import (
+from pairline.engine.bus import build_bus
+from pairline.engine.findings import Verdict, worst
+from pairline.engine.plan import load_plan
+from pairline.engine.rules.cable_ends import end_tolerance_m, required_ends_m
+from pairline.engine.rules.termination import (
     check_ac_termination,
     check_termination,
     corrected_termination_ohm,
     recommended_termination_ohm,
     reflection_coefficient,
 )
-from engine.rules.unterminated import check_unterminated, line_may_stay_unterminated, unterminated_criteria
-from engine.units import SPEED_OF_LIGHT_M_PER_S, m_from_ft
+from pairline.engine.rules.unterminated import check_unterminated, line_may_stay_unterminated, unterminated_criteria
+from pairline.engine.units import SPEED_OF_LIGHT_M_PER_S, m_from_ft
 
 
 def _bus(
@@ -290,7 +289,7 @@ def test_rc_terminators_do_not_get_a_value_finding_of_their_own():
 
 
 def test_cable_ends_are_named_from_the_driver():
-    from engine.rules.cable_ends import end_name
+    from pairline.engine.rules.cable_ends import end_name
 
     at_end = _bus()
     assert end_name(at_end, 0.0) == "the driver's end (0 m)" and end_name(at_end, 1000.0) == "the far end (1000 m)"

@@ -2,11 +2,10 @@
 
 import numpy as np
 import pytest
-
-from engine.bus import build_bus
-from engine.findings import Verdict
-from engine.plan import load_plan
-from engine.rules.voltage import (
+from pairline.engine.bus import build_bus
+from pairline.engine.findings import Verdict
+from pairline.engine.plan import load_plan
+from pairline.engine.rules.voltage import (
     RECEIVER_THRESHOLD_V,
     DcElement,
     check_receiver_voltage,

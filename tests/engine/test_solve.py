@@ -3,14 +3,13 @@
 import numpy as np
 import pytest
 import skrf
+from pairline.engine.bus import Bus, build_bus
+from pairline.engine.line import characteristic_impedance_ohm, propagation_constant_per_m
+from pairline.engine.plan import BusInputError, input_resistance_ohm, load_plan
+from pairline.engine.solve import dc_transfer, solve_bus
+from pairline.engine.units import SPEED_OF_LIGHT_M_PER_S
 from skrf.circuit import Circuit
 from skrf.media import DefinedGammaZ0
-
-from engine.bus import Bus, build_bus
-from engine.line import characteristic_impedance_ohm, propagation_constant_per_m
-from engine.plan import BusInputError, input_resistance_ohm, load_plan
-from engine.solve import dc_transfer, solve_bus
-from engine.units import SPEED_OF_LIGHT_M_PER_S
 
 LOSSLESS = {
     "class_key": None,

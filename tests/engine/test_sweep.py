@@ -2,10 +2,9 @@
 
 import numpy as np
 import pytest
-
-from engine.bus import build_bus
-from engine.plan import NodeSpec, load_plan
-from engine.sweep import length_rate_curve
+from pairline.engine.bus import build_bus
+from pairline.engine.plan import NodeSpec, load_plan
+from pairline.engine.sweep import length_rate_curve
 
 
 def _tia422_bus(**driver):

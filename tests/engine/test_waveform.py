@@ -2,12 +2,12 @@
 
 import numpy as np
 import pytest
+from pairline.engine.bus import build_bus
+from pairline.engine.plan import BusInputError, load_plan
+from pairline.engine.solve import dc_transfer
+from pairline.engine.units import SPEED_OF_LIGHT_M_PER_S
+from pairline.engine.waveform import edge_duration_s, prbs_bits, simulate_pattern, step_responses
 
-from engine.bus import build_bus
-from engine.plan import BusInputError, load_plan
-from engine.solve import dc_transfer
-from engine.units import SPEED_OF_LIGHT_M_PER_S
-from engine.waveform import edge_duration_s, prbs_bits, simulate_pattern, step_responses
 from tests.engine.lines import VF, probed_line
 
 

@@ -10,7 +10,7 @@ with warnings.catch_warnings():
 
 @pytest.fixture(scope="module")
 def client(tmp_path_factory: pytest.TempPathFactory) -> TestClient:
-    from server.app import create_app
+    from pairline.server.app import create_app
 
     app = create_app(tmp_path_factory.mktemp("db") / "plans.db")
     with TestClient(app) as c:

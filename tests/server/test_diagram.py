@@ -1,9 +1,8 @@
 """Bus drawing coordinates: positions to scale, stubs ordered by length, parts in non-overlapping lanes."""
 
 import pytest
-
-from engine.plan import load_plan
-from server.diagram import CHAR_PX, LEFT_PX, RIGHT_PX, WIDTH_PX, assign_lanes, bus_drawing, x_of
+from pairline.engine.plan import load_plan
+from pairline.server.diagram import CHAR_PX, LEFT_PX, RIGHT_PX, WIDTH_PX, assign_lanes, bus_drawing, x_of
 
 PLAN = {
     "bit_rate_bps": 9600,

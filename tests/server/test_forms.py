@@ -1,9 +1,8 @@
 """Form fields <-> plan document: names are the plan's dotted paths; rows renumber; units convert."""
 
 import pytest
-
-from engine.plan import BusInputError, load_plan, plan_to_dict
-from server.forms import form_from_plan, merge_problems, parse_form, spec_for, with_units
+from pairline.engine.plan import BusInputError, load_plan, plan_to_dict
+from pairline.server.forms import form_from_plan, merge_problems, parse_form, spec_for, with_units
 
 PLAN = {
     "title": "Pump gallery",

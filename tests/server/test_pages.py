@@ -4,8 +4,8 @@ import json
 import re
 
 import pytest
+from pairline.server.app import create_app
 
-from server.app import create_app
 from tests.server.conftest import TestClient
 from tests.server.html_dom import parse_html
 
@@ -408,8 +408,8 @@ def test_a_feet_plan_reads_in_feet_everywhere_and_edits_with_rounded_values(clie
 
 
 def test_the_plan_twin_carries_the_same_report_as_the_command_line(client, saved_id):
-    from engine.check import check_plan, report_to_dict
-    from engine.plan import load_plan
+    from pairline.engine.check import check_plan, report_to_dict
+    from pairline.engine.plan import load_plan
 
     data = client.get(f"/plans/{saved_id}.json").json()
     expected = json.loads(json.dumps(report_to_dict(check_plan(load_plan(data["plan"])))))
@@ -433,8 +433,8 @@ def test_blank_node_cells_show_what_blank_means(client):
 
 
 def test_cautions_point_at_what_in_the_plan_calls_for_them():
-    from engine.plan import load_plan
-    from server.cautions import cautions_data
+    from pairline.engine.plan import load_plan
+    from pairline.server.cautions import cautions_data
 
     quiet = {c["key"]: c for c in cautions_data(load_plan(PLAN_DOC))}
     assert not quiet["ground"]["applies"] and quiet["codes"]["applies"]

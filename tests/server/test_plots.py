@@ -2,8 +2,7 @@
 
 import numpy as np
 import pytest
-
-from server.plots import curve_plot, decimate, waveform_plot
+from pairline.server.plots import curve_plot, decimate, waveform_plot
 
 
 def test_waveform_band_and_samples_sit_where_the_voltages_are():
@@ -55,7 +54,7 @@ def test_long_patterns_are_plotted_over_their_first_bits_only():
 
 
 def test_eye_diagram_overlays_every_inner_bit_centred_on_its_sample():
-    from server.plots import eye_plot
+    from pairline.server.plots import eye_plot
 
     bit_s = 1e-6
     t = np.linspace(0.0, 10 * bit_s, 2001)
@@ -69,7 +68,7 @@ def test_eye_diagram_overlays_every_inner_bit_centred_on_its_sample():
 
 
 def _label_box(plot):
-    from server.plots import LABEL_CHAR_PX, LABEL_HEIGHT_PX
+    from pairline.server.plots import LABEL_CHAR_PX, LABEL_HEIGHT_PX
 
     width = LABEL_CHAR_PX * len(plot.point_label)
     left = plot.label_x if plot.label_anchor == "start" else plot.label_x - width
@@ -93,7 +92,7 @@ def test_the_plan_label_stays_inside_the_plot_and_off_the_curve(plan_rate_bps):
 
 
 def test_both_voltage_plots_name_their_axis_in_volts():
-    from server.plots import eye_plot
+    from pairline.server.plots import eye_plot
 
     t = np.linspace(0.0, 4e-6, 401)
     v = np.where((t // 1e-6) % 2 == 0, 1.0, -1.0)

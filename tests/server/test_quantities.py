@@ -1,8 +1,7 @@
 """Typed quantities: SI prefixes, units and unit systems at the form's edge."""
 
 import pytest
-
-from server.quantities import QuantityError, format_quantity, number_text, parse_quantity
+from pairline.server.quantities import QuantityError, format_quantity, number_text, parse_quantity
 
 
 @pytest.mark.parametrize(

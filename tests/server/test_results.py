@@ -2,10 +2,9 @@
 and the length-versus-rate limit behind the curve."""
 
 import pytest
-
-from engine.bus import build_bus
-from engine.plan import load_plan
-from server.results import check_and_simulate, length_rate_limit, worst_receiver
+from pairline.engine.bus import build_bus
+from pairline.engine.plan import load_plan
+from pairline.server.results import check_and_simulate, length_rate_limit, worst_receiver
 
 PLAN = {
     "bit_rate_bps": 19_200,
@@ -65,7 +64,7 @@ def test_cable_loss_bounds_the_curve_at_low_rates():
 
 
 def test_without_a_pattern_the_page_uses_the_engines_default_and_its_figures():
-    from engine.metrics import receiver_metrics
+    from pairline.engine.metrics import receiver_metrics
 
     plan = load_plan({k: v for k, v in PLAN.items() if k != "test_pattern"})
     checked = check_and_simulate(plan)
@@ -73,7 +72,7 @@ def test_without_a_pattern_the_page_uses_the_engines_default_and_its_figures():
 
 
 def test_the_curve_is_the_engines_sweep_with_the_rules_beside_it():
-    from engine.sweep import length_rate_curve
+    from pairline.engine.sweep import length_rate_curve
 
     plan = load_plan(PLAN)
     checked = check_and_simulate(plan)

@@ -3,8 +3,8 @@
 from pathlib import Path
 
 import pytest
+from pairline.server.app import SAMPLES_DIR, create_app
 
-from server.app import SAMPLES_DIR, create_app
 from tests.server.conftest import TestClient
 
 SAMPLES = sorted(p.stem for p in Path(SAMPLES_DIR).glob("*.json"))

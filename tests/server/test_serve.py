@@ -3,8 +3,7 @@
 from pathlib import Path
 
 import pytest
-
-from server.serve import settings_from_env
+from pairline.server.serve import settings_from_env
 
 
 def test_defaults_are_loopback_8485_and_a_local_database(monkeypatch):
@@ -33,11 +32,11 @@ def test_a_bad_port_is_refused_with_the_allowed_range(monkeypatch):
 
 
 def test_pairline_serve_passes_its_options_to_uvicorn(monkeypatch, tmp_path, capsys):
-    import server.serve
-    from server.cli import main
+    import pairline.server.serve
+    from pairline.server.cli import main
 
     calls = []
-    monkeypatch.setattr(server.serve.uvicorn, "run", lambda app, **kw: calls.append((app, kw)))
+    monkeypatch.setattr(pairline.server.serve.uvicorn, "run", lambda app, **kw: calls.append((app, kw)))
     monkeypatch.delenv("PAIRLINE_HOST", raising=False)
     assert main(["serve", "--port", "9123", "--db", str(tmp_path / "cli.db")]) == 0
     ((app, options),) = calls
@@ -47,7 +46,7 @@ def test_pairline_serve_passes_its_options_to_uvicorn(monkeypatch, tmp_path, cap
 
 
 def test_pairline_serve_refuses_a_bad_port(capsys):
-    from server.cli import main
+    from pairline.server.cli import main
 
     assert main(["serve", "--port", "0"]) == 2
     assert "1 to 65535" in capsys.readouterr().err

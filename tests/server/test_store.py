@@ -2,7 +2,7 @@
 
 import math
 
-from server.store import ID_BYTES, PlanStore, looks_like_plan_id
+from pairline.server.store import ID_BYTES, PlanStore, looks_like_plan_id
 
 PLAN = {"title": "Bench", "trunk_length_m": 50.0, "nodes": [{"name": "a", "position_m": 10.0}]}
 
@@ -45,7 +45,7 @@ def test_samples_keep_their_id_while_the_file_is_unchanged(tmp_path):
 
 
 def test_samples_whose_file_is_gone_leave_the_list(tmp_path):
-    from server.app import load_sample_buses
+    from pairline.server.app import load_sample_buses
 
     store = PlanStore(tmp_path / "plans.db")
     folder = tmp_path / "samples"

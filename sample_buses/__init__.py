@@ -1,0 +1,1 @@
+"""Invented example buses and their expected verdicts, shipped as package data."""

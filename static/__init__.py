@@ -1,0 +1,1 @@
+"""Stylesheet and scripts served under /static, shipped as package data."""

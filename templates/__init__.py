@@ -1,0 +1,1 @@
+"""Jinja2 page templates, shipped as package data."""
