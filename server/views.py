@@ -4,6 +4,7 @@
 lists). SVG coordinates come from `server.diagram` and `server.plots`; this module only assembles them.
 """
 
+import json
 import math
 import re
 from collections.abc import Mapping
@@ -88,7 +89,10 @@ def lengths_in_text(text: str, units: UnitSystem, keep_metres: bool = False) -> 
 
 def bom_rows(bom: Any, units: UnitSystem) -> list[dict[str, Any]]:
     """Bill-of-materials rows for the page and the CSV, positions in the plan's display unit."""
-    return [asdict(item) | {"note": lengths_in_text(item.note, units)} for item in bom]
+    return [
+        asdict(item) | {"value": lengths_in_text(item.value, units), "note": lengths_in_text(item.note, units)}
+        for item in bom
+    ]
 
 
 def _field_meta(units: UnitSystem) -> dict[str, dict[str, dict[str, Any]]]:
@@ -287,6 +291,8 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
             "findings": findings,
             "nodes": nodes,
             "summary": _summary_data(summary, units),
+            "capacity": {"text": report.capacity.text, "classes": report.capacity.classes},
+            "advice": advice_data(report, units, plan_id),
             "waveforms": waveforms,
             "curve": {
                 "bit_rate_bps": sweep.bit_rate_bps,
@@ -401,22 +407,72 @@ def _summary_data(summary: Any, units: UnitSystem) -> dict[str, Any]:
             "pull_up_text": quantity_text(b.pull_up_ohm, "Ω", units),
             "pull_down_text": quantity_text(b.pull_down_ohm, "Ω", units),
             "idle_text": quantity_text(b.idle_v, "V", units),
+            "idle_corner_text": quantity_text(b.idle_corner_v, "V", units),
             "power_text": quantity_text(b.power_rating_w, "W", units),
         }
+    rate = quantity_text(summary.max_bit_rate_bps, "bit/s", units)
     return {
         "terminators": terminators,
         "bias": bias,
         "spare_unit_loads": summary.spare_unit_loads,
         "further_nodes": dict(summary.further_nodes),
+        "capacity_text": summary.capacity.text,
         "max_bit_rate_bps": summary.max_bit_rate_bps,
-        "max_bit_rate_text": (
-            quantity_text(summary.max_bit_rate_bps, "bit/s", units)
-            if summary.max_bit_rate_bps is not None
-            else "no rate: the trunk is too long for these rules"
-        ),
+        "max_bit_rate_text": rate,
+        "max_path_m": summary.max_path_m,
+        "max_path_text": quantity_text(summary.max_path_m, "m", units),
+        "rate_note": lengths_in_text(summary.rate_note, units, keep_metres=True)
+        if units == "imperial"
+        else summary.rate_note,
         "bias_note": summary.bias_note,
         "bom": bom_rows(summary.bom, units),
     }
+
+
+def _text(text: str, units: UnitSystem) -> str:
+    return lengths_in_text(text, units, keep_metres=True) if units == "imperial" else text
+
+
+def advice_data(report: Any, units: UnitSystem, plan_id: str | None) -> dict[str, Any]:
+    """The advised plan's verdict, its change list and what cannot be met, and where the editor opens it."""
+    advice = report.advice
+    return {
+        "verdict": advice.verdict.value,
+        "counts": {v.value: sum(1 for f in advice.findings if f.verdict is v) for v in Verdict},
+        "changes": [
+            {
+                "part": c.part,
+                "where": _text(c.where, units),
+                "text": _text(c.text[:1].upper() + c.text[1:], units),
+                "from": _text(c.before_text, units),
+                "to": _text(c.after_text, units),
+                "why": c.why,
+                "rule_ids": list(c.rule_ids),
+            }
+            for c in advice.changes
+        ],
+        "unmet": [
+            {
+                "rule_id": u.rule_id,
+                "nodes": list(u.nodes),
+                "why": _text(u.why, units),
+                "remedies": [_text(r, units) for r in u.remedies],
+            }
+            for u in advice.unmet
+        ],
+        "plan": plan_to_dict(advice.plan),
+        # Saved plans open their advice by link; a draft posts its plan back (it has no id yet).
+        "open_url": f"/plans/{plan_id}/advised" if plan_id else None,
+        "draft_json": None if plan_id else json.dumps(plan_to_dict(report.plan)),
+    }
+
+
+def advised_editor_data(report: Any, state: FormState, *, saved_from: SavedPlan | None = None) -> dict[str, Any]:
+    """The editor opened on the advised plan as a new, unsaved draft, with the changes that made it listed."""
+    title = "Advised plan: a new draft, not saved yet"
+    data = editor_data(state, title=title, saved_from=saved_from)
+    data["advice"] = advice_data(report, state.units, None) | {"from_title": report.plan.title or "Untitled bus"}
+    return data
 
 
 def not_found_data(path: str) -> dict[str, Any]:

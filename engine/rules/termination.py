@@ -5,17 +5,20 @@ the far end for RS-422 driven from one end), none elsewhere. Whether a missing o
 breaks the bus depends on whether the line may stay unterminated (engine.rules.unterminated).
 
 Value. A matched end presents Z0. Receivers or a bias network lumped at the same end (within the end
-tolerance) sit in parallel with the terminator, so the resistor is raised to R_T = Z0 / (1 - Z0/R_P)
-(H. Johnson, M. Graham, High-Speed Digital Design, sec. 4.4: loaded line). The verdict reads the reflection
-coefficient of the whole end, Gamma = (R_T||R_P - Z0)/(R_T||R_P + Z0): HOLDS |Gamma| <= 0.05 (about 10 % off),
-TIGHT <= 0.12, which covers a 120 Ohm terminator on the 100..150 Ohm cables RS-485 accepts (120 +/- 30 Ohm,
-Intersil high-speed RS-485 tutorial), BREAKS beyond.
+tolerance) sit in parallel with the terminator, so the resistor is raised until R_T || R_P = Z0, i.e.
+R_T = Z0 / (1 - Z0/R_P) (parallel resistances; for a bias network at the end this is the matched bias end
+R_T2 = 2 R_B Z0 / (2 R_B - Z0) of J. Axelson, Serial Port Complete, ch. 7). The verdict reads the reflection
+coefficient of the whole end, Gamma = (R_T||R_P - Z0)/(R_T||R_P + Z0), against |Gamma| <= 1/7 (0.143): the
+reflection of a 120 Ohm terminator on the lowest cable impedance RS-485 accepts, 90 Ohm (120 +/- 30 Ohm,
+Intersil high-speed RS-485 tutorial). It is TIGHT when the worst corner of the terminator's 5 % and the cable's
+Z0 tolerance (engine.rules.margins) goes beyond that.
 
 RC (AC) terminators. R should match Z0 as above; the time constant RC should be long against the round
 trip, so the capacitor still looks like a short while reflections arrive (RC >> 2 t_pd; B&B application
-note); HOLDS from 3 x, TIGHT from 1 x, BREAKS below. It should also be short against a bit: the idle bus
-reaches its bias level only about 3 RC after the drivers release, so HOLDS when 3 RC <= T_bit, TIGHT beyond
-(the data still pass: the terminator then acts as a plain resistor while data flow).
+note; read as RC >= 3 round trips, common practice); BREAKS below, TIGHT when the capacitor 20 % and the
+resistor 5 % low would fall below. It should also be short against a bit: the idle bus reaches its bias level
+only about 3 RC after the drivers release, so TIGHT when 3 RC at the high corner exceeds T_bit (the data still
+pass: the terminator then acts as a plain resistor while data flow).
 """
 
 import math
@@ -32,12 +35,12 @@ from pairline.engine.rules.cable_ends import (
     required_ends_m,
     terminator_value_ohm,
 )
+from pairline.engine.rules.margins import CAPACITOR_TOLERANCE, RESISTOR_TOLERANCE, band_verdict, z0_tolerance
 from pairline.engine.rules.preferred import nearest_preferred
 from pairline.engine.rules.unterminated import line_may_stay_unterminated, one_way_delay_s
 from pairline.engine.units import length_text, parallel_ohm, si_format
 
-GAMMA_HOLDS = 0.05
-GAMMA_TIGHT = 0.12
+GAMMA_LIMIT = 30.0 / 210.0  # (120 - 90) / (120 + 90): a 120 Ohm terminator on a 90 Ohm cable
 RC_ROUND_TRIPS_HOLDS = 3.0
 RC_SETTLE_TIME_CONSTANTS = 3.0
 
@@ -46,9 +49,9 @@ _PLACEMENT_SOURCE = (
     "National Semiconductor AN-903 (single-driver RS-422: far end only)"
 )
 _VALUE_SOURCE = (
-    "R_T = Z0 matches the line (TI SLLA272); R_T = Z0/(1 - Z0/R_P) for lumped loads at the end (H. Johnson, "
-    "M. Graham, High-Speed Digital Design, sec. 4.4); RS-485 accepts Z0 120 +/- 30 Ω (Intersil high-speed "
-    "RS-485 tutorial)"
+    "R_T = Z0 matches the line (TI SLLA272); R_T || R_P = Z0 for lumped loads at the end (parallel resistances; "
+    "matched bias end: J. Axelson, Serial Port Complete, ch. 7); |Γ| <= 1/7 from the 120 +/- 30 Ω cables RS-485 "
+    "accepts (Intersil high-speed RS-485 tutorial); tight band from engine.rules.margins"
 )
 _RC_SOURCE = "B&B Electronics RS-422/485 application note (AC termination: R = Z0, RC >> round-trip delay)"
 
@@ -229,12 +232,21 @@ def _placement_findings(bus: Bus) -> list[Finding]:
     return findings
 
 
-def _gamma_verdict(gamma: float) -> Verdict:
-    if abs(gamma) <= GAMMA_HOLDS:
-        return Verdict.HOLDS
-    if abs(gamma) <= GAMMA_TIGHT:
-        return Verdict.TIGHT
-    return Verdict.BREAKS
+def corner_gamma(bus: Bus, resistance_ohm: float, lumped_ohm: float) -> float:
+    """Largest |Gamma| of an end over the corners of the terminator's 5 % and the cable's Z0 tolerance."""
+    z0 = bus.cable.z0_ohm
+    tol_z0 = z0_tolerance(bus)
+    return max(
+        abs(reflection_coefficient(parallel_ohm(resistance_ohm * (1 + r), lumped_ohm), z0 * (1 + z)))
+        for r in (-RESISTOR_TOLERANCE, RESISTOR_TOLERANCE)
+        for z in (-tol_z0, tol_z0)
+    )
+
+
+def gamma_verdict(bus: Bus, resistance_ohm: float, lumped_ohm: float) -> Verdict:
+    """BREAKS beyond |Gamma| 1/7 nominal, TIGHT beyond it at the worst corner, else HOLDS."""
+    gamma = reflection_coefficient(parallel_ohm(resistance_ohm, lumped_ohm), bus.cable.z0_ohm)
+    return band_verdict(abs(gamma) <= GAMMA_LIMIT, corner_gamma(bus, resistance_ohm, lumped_ohm) <= GAMMA_LIMIT)
 
 
 def end_match(
@@ -242,7 +254,7 @@ def end_match(
 ) -> tuple[float, float, float]:
     """(R_P, ideal R_T, Gamma of the whole end) for a terminator of resistance_ohm at a position, with others_ohm
     (further terminators there) beside the lumped loads. Source: Gamma = (Z_L - Z0)/(Z_L + Z0), D. M. Pozar,
-    Microwave Engineering, sec. 2.3; R_T = Z0/(1 - Z0/R_P), H. Johnson, M. Graham, High-Speed Digital Design, 4.4."""
+    Microwave Engineering, sec. 2.3; R_T || R_P = Z0 solved for R_T (parallel resistances)."""
     z0 = bus.cable.z0_ohm
     r_p = parallel_ohm(lumped_load_ohm(bus, position_m), *others_ohm)
     ideal = corrected_termination_ohm(z0, r_p)
@@ -267,13 +279,15 @@ def _value_findings(bus: Bus) -> list[Finding]:
         rc_terms = [t.resistance_ohm for t in terms if t.kind == "rc"]
         r_t = parallel_ohm(*parallel_terms)
         r_p, ideal, gamma = end_match(bus, end, r_t, rc_terms)
-        verdict = _gamma_verdict(gamma)
+        verdict = gamma_verdict(bus, r_t, r_p)
+        corner = corner_gamma(bus, r_t, r_p)
         name = end_name(bus, end)
         resistor = f"{r_t:.4g} Ω" + (" (terminators in parallel)" if len(parallel_terms) > 1 else "")
         detail = (
             f"Terminator {resistor}; other loads lumped at this end {_ohm(r_p)}; together "
             f"{_ohm(parallel_ohm(r_t, r_p))} on a {z0:g} Ω cable: reflection coefficient {gamma:+.3f}. "
-            f"The ideal terminator here is {_ohm(ideal)}. Holds to |Γ| {GAMMA_HOLDS}, tight to {GAMMA_TIGHT}."
+            f"The ideal terminator here is {_ohm(ideal)}. With the terminator 5 % off and the cable's Z0 "
+            f"{z0_tolerance(bus):.0%} off, |Γ| reaches {corner:.3f}; the limit is {GAMMA_LIMIT:.3f}."
         )
         if plan.standard == "rs485" and not 90.0 <= z0 <= 150.0:
             detail += f" The cable's {z0:g} Ω is outside the 120 ± 30 Ω RS-485 accepts."
@@ -292,11 +306,12 @@ def _value_findings(bus: Bus) -> list[Finding]:
                 f"Reflection at {name} with its {r_t:.4g} Ω terminator",
                 verdict,
                 abs(gamma),
-                GAMMA_TIGHT,
+                GAMMA_LIMIT,
                 "",
                 None,
-                f"|Γ| of the whole end (terminator || lumped loads R_P vs Z0) <= {GAMMA_HOLDS} holds, <= "
-                f"{GAMMA_TIGHT} tight; ideal R_T = Z0/(1 - Z0/R_P)",
+                f"|Γ| of the whole end (terminator || lumped loads R_P vs Z0) <= 1/7 ({GAMMA_LIMIT:.3f}); tight "
+                "when the terminator 5 % off and the cable's Z0 at its tolerance exceed it; "
+                "ideal R_T = Z0/(1 - Z0/R_P)",
                 _VALUE_SOURCE,
                 fix,
                 detail,
@@ -318,10 +333,20 @@ def _at(bus: Bus, position_m: float) -> str:
 
 
 def rc_capacitance_window_f(bus: Bus, resistance_ohm: float) -> tuple[float, float]:
-    """(C_min, C_max): RC >= 3 round trips and 3 RC <= one bit. Empty when C_min > C_max."""
+    """(C_min, C_max) of a capacitor whose whole tolerance band holds: RC >= 3 round trips with C 20 % and R 5 %
+    low, and 3 RC <= one bit with C 20 % and R 5 % high. Empty when C_min > C_max."""
     round_trip = 2.0 * one_way_delay_s(bus)
     t_bit = 1.0 / bus.plan.bit_rate_bps
-    return RC_ROUND_TRIPS_HOLDS * round_trip / resistance_ohm, t_bit / (RC_SETTLE_TIME_CONSTANTS * resistance_ohm)
+    low, high = _rc_factors()
+    return (
+        RC_ROUND_TRIPS_HOLDS * round_trip / (resistance_ohm * low),
+        t_bit / (RC_SETTLE_TIME_CONSTANTS * resistance_ohm * high),
+    )
+
+
+def _rc_factors() -> tuple[float, float]:
+    """The time constant's low and high corners against nominal: (0.8 x 0.95, 1.2 x 1.05)."""
+    return (1 - CAPACITOR_TOLERANCE) * (1 - RESISTOR_TOLERANCE), (1 + CAPACITOR_TOLERANCE) * (1 + RESISTOR_TOLERANCE)
 
 
 def check_ac_termination(bus: Bus) -> list[Finding]:
@@ -347,30 +372,26 @@ def check_ac_termination(bus: Bus) -> list[Finding]:
             )
         others = [t.resistance_ohm for t in bus.plan.terminations if t is not term and t.position_m == term.position_m]
         r_p, ideal, gamma = end_match(bus, term.position_m, r, others)
-        v_r = _gamma_verdict(gamma)
+        v_r = gamma_verdict(bus, r, r_p)
         findings.append(
             Finding(
                 "termination.rc",
                 f"Reflection at {where} with its RC terminator's {r:g} Ω",
                 v_r,
                 abs(gamma),
-                GAMMA_TIGHT,
+                GAMMA_LIMIT,
                 "",
                 None,
-                f"|Γ| of the end (R || lumped loads vs Z0, the capacitor a short during an edge) <= {GAMMA_HOLDS} "
-                f"holds, <= {GAMMA_TIGHT} tight",
+                f"|Γ| of the end (R || lumped loads vs Z0, the capacitor a short during an edge) <= 1/7 "
+                f"({GAMMA_LIMIT:.3f}); tight when the resistor 5 % off and the cable's Z0 at its tolerance exceed it",
                 _RC_SOURCE + "; " + _VALUE_SOURCE,
                 "" if v_r is Verdict.HOLDS else f"Use {nearest_preferred(ideal):g} Ω in the {part}.",
                 f"Reflection coefficient {gamma:+.3f}; other loads lumped here {_ohm(r_p)}; ideal resistor "
                 f"{_ohm(ideal)}.",
             )
         )
-        if tau >= RC_ROUND_TRIPS_HOLDS * round_trip:
-            v_t = Verdict.HOLDS
-        elif tau >= round_trip:
-            v_t = Verdict.TIGHT
-        else:
-            v_t = Verdict.BREAKS
+        low, high = _rc_factors()
+        v_t = band_verdict(tau >= RC_ROUND_TRIPS_HOLDS * round_trip, tau * low >= RC_ROUND_TRIPS_HOLDS * round_trip)
         findings.append(
             Finding(
                 "termination.rc",
@@ -380,17 +401,19 @@ def check_ac_termination(bus: Bus) -> list[Finding]:
                 round_trip,
                 "s",
                 None,
-                "RC >> round-trip delay 2·t_pd: holds from 3 round trips, tight from 1, breaks below",
+                "RC >> round-trip delay 2·t_pd, read as RC >= 3 round trips; tight when the capacitor 20 % and the "
+                "resistor 5 % low fall below",
                 _RC_SOURCE,
                 "" if v_t is Verdict.HOLDS else change + ".",
-                f"RC {si_format(tau, 's')}; round trip {si_format(round_trip, 's')} (holds from "
-                f"{si_format(RC_ROUND_TRIPS_HOLDS * round_trip, 's')}). A shorter RC lets the capacitor charge "
-                "while reflections still arrive, so the end is no longer matched.",
+                f"RC {si_format(tau, 's')} ({si_format(tau * low, 's')} at the low corner); round trip "
+                f"{si_format(round_trip, 's')}, limit {si_format(RC_ROUND_TRIPS_HOLDS * round_trip, 's')}. "
+                "A shorter RC lets the capacitor charge while reflections still arrive, so the end is no longer "
+                "matched.",
                 limit_kind="min",
             )
         )
         settle_s = RC_SETTLE_TIME_CONSTANTS * tau
-        v_b = Verdict.HOLDS if settle_s <= t_bit else Verdict.TIGHT
+        v_b = Verdict.HOLDS if settle_s * high <= t_bit else Verdict.TIGHT
         findings.append(
             Finding(
                 "termination.rc",
@@ -400,7 +423,9 @@ def check_ac_termination(bus: Bus) -> list[Finding]:
                 t_bit,
                 "s",
                 None,
-                "3 RC <= one bit, so the idle bus reaches its bias level within a bit after the drivers release",
+                "3 RC <= one bit, so the idle bus reaches its bias level within a bit after the drivers release; "
+                "tight (never a break: the data still pass) when 3 RC at the high corner (C 20 %, R 5 % high) "
+                "exceeds it",
                 _RC_SOURCE,
                 ""
                 if v_b is Verdict.HOLDS
@@ -426,7 +451,9 @@ __all__ = [
     "corrected_termination_ohm",
     "end_match",
     "ends_to_terminate_m",
-    "GAMMA_HOLDS",
+    "GAMMA_LIMIT",
+    "corner_gamma",
+    "gamma_verdict",
     "placement_verdict",
     "rc_capacitance_window_f",
     "recommended_termination_ohm",

@@ -3,16 +3,10 @@
 import numpy as np
 import pytest
 from pairline.engine.bus import build_bus
+from pairline.engine.dc import DcElement, loop_resistance_ohm, solve_dc_v
 from pairline.engine.findings import Verdict
 from pairline.engine.plan import load_plan
-from pairline.engine.rules.voltage import (
-    RECEIVER_THRESHOLD_V,
-    DcElement,
-    check_receiver_voltage,
-    driven_levels,
-    loop_resistance_ohm,
-    solve_dc_v,
-)
+from pairline.engine.rules.voltage import RECEIVER_THRESHOLD_V, check_receiver_voltage, driven_levels
 
 TINY_UL = 1e-6  # a receiver that draws nothing, to compare with load-free hand formulas
 
