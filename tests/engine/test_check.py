@@ -270,8 +270,8 @@ def test_summary_and_placement_agree_on_an_rs422_end_that_needs_no_terminator():
 
 
 def test_bom_notes_say_where_the_advice_changes_the_plan():
-    # Source: H. Johnson, M. Graham, High-Speed Digital Design, sec. 4.4: R_T = Z0/(1 - Z0/R_P); a 1.5 kOhm bias
-    # network lumped at the end (R_P = 3 kOhm) moves the ideal 120 Ohm terminator to 125 Ohm, E24 130 Ohm.
+    # common practice: a 100 Ohm terminator on a 120 Ohm pair reflects (100 - 120)/(100 + 120) = -0.09 nominal and
+    # -0.16 with 5 % parts and 10 % cable tolerance, beyond the 1/7 limit; the advice changes it and says so.
     doc = _doc(
         bit_rate_bps=115_200,
         terminations=[{"position_m": 0.0, "resistance_ohm": 100.0}, {"position_m": 1000.0, "resistance_ohm": 120.0}],

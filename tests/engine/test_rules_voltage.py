@@ -63,6 +63,28 @@ def test_receiver_threshold_is_200_mv():
     assert pytest.approx(0.200, abs=1e-12) == RECEIVER_THRESHOLD_V
 
 
+@pytest.mark.parametrize(
+    ("open_circuit_v", "level_v", "verdict"),
+    [
+        # common practice (divider): V_oc x 120 / (120 + 202.08) over 1200 m of 24 AWG loop (2 x 84.2 Ohm/km,
+        # ASTM B258): 0.5 V -> 0.186 V, under the 200 mV threshold of TIA/EIA-485-A: breaks.
+        (0.5, 0.1863, Verdict.BREAKS),
+        # 0.6 V -> 0.224 V nominal; at the corner (0.57 V, 114 Ohm, loop 1.23 x 202.08 Ohm) 0.179 V: tight.
+        (0.6, 0.2236, Verdict.TIGHT),
+        # 0.8 V -> 0.298 V nominal; 0.239 V at the corner: holds.
+        (0.8, 0.2981, Verdict.HOLDS),
+    ],
+)
+def test_the_200_mv_threshold_decides_the_dc_level_verdict(open_circuit_v, level_v, verdict):
+    bus = _bus(
+        driver={"transceiver": None, "rise_time_s": 1e-6, "open_circuit_v": open_circuit_v, "source_ohm": 0.0},
+        cable={"class_key": None, "z0_ohm": 120.0, "velocity_factor": 0.78, "resistance_ohm_per_m": 0.0842},
+    )
+    finding = check_receiver_voltage(bus)[0]
+    assert finding.value == pytest.approx(level_v, abs=2e-4)  # V, hand value to 4 digits
+    assert finding.verdict is verdict
+
+
 def test_one_finding_per_receiver_and_a_weak_far_end_breaks():
     # Source: TIA/EIA-485-A threshold 200 mV; 0.2 V drive through 202 Ohm into 120 Ohm gives 0.0746 V (divider).
     bus = _bus(
