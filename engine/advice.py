@@ -126,6 +126,11 @@ def _unmet(advised: RuleRun) -> tuple[Unmet, ...]:
                 "The nodes and the driver's own receiver load the pair this much before any bias or terminator choice."
             )
             remedies = [r for r in (_lighter_receivers(advised.bus), _REPEATER) if r]
+        elif rule_id in ("signal.integrity", "signal.confirms"):
+            why = (
+                "The simulated waveform still breaks with the advised terminators and bias: the cause is a stub, "
+                "the bit rate or the driver's edge, which they do not change."
+            )
         else:
             why = f"With the advised terminators and bias, {rule_id} still breaks."
         out.append(Unmet(rule_id, nodes, why, tuple(remedies)))

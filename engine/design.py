@@ -17,6 +17,7 @@ Every node is one device class today; sizing goes through the listeners of engin
 receiver classes (bias sized for the receivers that need it) and several bias networks slot in there.
 """
 
+import math
 from collections.abc import Sequence
 from dataclasses import dataclass
 
@@ -127,10 +128,12 @@ def _holds_at_end(bus: Bus, term: TerminationSpec) -> bool:
     return True
 
 
-def _terminator_changes(bus: Bus, kind: str) -> list[PlanChange] | None:
+def _terminator_changes(bus: Bus, kind: str, original: Bus) -> list[PlanChange] | None:
     """Terminator changes for one design kind, on a bus that already carries the design's bias network.
 
-    kind "plan": keep each end's terminator that holds, else a corrected one of the plan's kind where it fits;
+    kind "plan": keep each end's terminator that holds, unless the design changes what is lumped at that end (a
+    bias moved to or from it: the terminator was sized for what was there), else a corrected one of the plan's
+    kind where it fits;
     "parallel" / "rc": every end that needs one gets that kind; "none": no terminators (only where the line may
     stay unterminated). None when the kind cannot be built (no RC capacitor suits the bus)."""
     plan = bus.plan
@@ -154,7 +157,8 @@ def _terminator_changes(bus: Bus, kind: str) -> list[PlanChange] | None:
                 )
                 changes.append(_removal(present, where, reason))
             continue
-        if kind == "plan" and len(present) == 1 and _holds_at_end(bus, present[0]):
+        same_loads = math.isclose(lumped_load_ohm(bus, end), lumped_load_ohm(original, end), rel_tol=1e-9)
+        if kind == "plan" and len(present) == 1 and same_loads and _holds_at_end(bus, present[0]):
             continue
         r = terminator_value_ohm(bus, end)
         want_rc = kind == "rc" or (kind == "plan" and any(t.kind == "rc" for t in present))
@@ -281,7 +285,7 @@ class Design:
 def _design(bus: Bus, kind: str, bias: BiasSpec | None, order: int) -> Design | None:
     plan = bus.plan
     biased = with_plan(bus, plan.model_copy(update={"bias": bias}))
-    terminators = _terminator_changes(biased, kind)
+    terminators = _terminator_changes(biased, kind, bus)
     if terminators is None:
         return None
     bias_change = _bias_change(plan, bias, bias_supply_v(biased))
@@ -308,7 +312,7 @@ def _sized_bias(bus: Bus, kind: str, position_m: float, tier: int) -> BiasSpec |
     bias: BiasSpec | None = None
     for _ in range(_SIZING_ROUNDS):
         biased = with_plan(bus, plan.model_copy(update={"bias": bias}))
-        terminators = _terminator_changes(biased, kind)
+        terminators = _terminator_changes(biased, kind, bus)
         if terminators is None:
             return None
         unbiased = with_plan(bus, apply_changes(plan, terminators).model_copy(update={"bias": None}))

@@ -17,6 +17,7 @@ from pairline.engine import ENGINE_VERSION
 from pairline.engine.findings import Verdict, worst
 from pairline.engine.library import CABLES, TRANSCEIVERS
 from pairline.engine.plan import BusPlan, Problem, plan_to_dict
+from pairline.engine.rules.power import rating_text
 from pairline.engine.units import si_format
 from pairline.server.cautions import cautions_data, danger_data
 from pairline.server.diagram import bus_drawing, node_anchor
@@ -393,7 +394,7 @@ def _summary_data(summary: Any, units: UnitSystem) -> dict[str, Any]:
             "kind": t.kind,
             "resistance_text": quantity_text(t.resistance_ohm, "Ω", units),
             "capacitance_text": quantity_text(t.capacitance_f, "F", units) if t.capacitance_f else "",
-            "power_text": quantity_text(t.power_rating_w, "W", units),
+            "power_text": rating_text(t.power_rating_w),
             **asdict(t),
         }
         for t in summary.terminators
@@ -408,7 +409,7 @@ def _summary_data(summary: Any, units: UnitSystem) -> dict[str, Any]:
             "pull_down_text": quantity_text(b.pull_down_ohm, "Ω", units),
             "idle_text": quantity_text(b.idle_v, "V", units),
             "idle_corner_text": quantity_text(b.idle_corner_v, "V", units),
-            "power_text": quantity_text(b.power_rating_w, "W", units),
+            "power_text": rating_text(b.power_rating_w),
         }
     rate = quantity_text(summary.max_bit_rate_bps, "bit/s", units)
     return {
@@ -446,7 +447,7 @@ def advice_data(report: Any, units: UnitSystem, plan_id: str | None) -> dict[str
                 "text": _text(c.text[:1].upper() + c.text[1:], units),
                 "from": _text(c.before_text, units),
                 "to": _text(c.after_text, units),
-                "why": c.why,
+                "why": c.why[:1].upper() + c.why[1:],
                 "rule_ids": list(c.rule_ids),
             }
             for c in advice.changes

@@ -84,8 +84,8 @@ def check_stubs(bus: Bus) -> list[Finding]:
         )
         fix = ""
         if verdict is not Verdict.HOLDS:
-            needed = rise_time_needed_s(length, vf)
-            keep = limit / long_run_factor() if verdict is Verdict.TIGHT else limit
+            needed = rise_time_needed_s(length * long_run_factor(), vf)  # holds as built, 10 % longer
+            keep = limit / long_run_factor()  # so the stub holds as built, 10 % longer included
             fix = f"Shorten the stub of node '{name}' to <= {_length_text(keep)}"
             if needed <= slowest_ok_s:
                 fix += f", or use a driver with >= {si_format(needed, 's')} rise time."

@@ -3,6 +3,7 @@ choice of terminators and bias."""
 
 import json
 import math
+import re
 
 import pytest
 from pairline.engine.bus import build_bus
@@ -13,10 +14,12 @@ from pairline.engine.findings import Verdict
 from pairline.engine.plan import NodeSpec, load_plan
 from pairline.engine.rules.bias import check_failsafe_bias
 from pairline.engine.rules.cable_ends import corrected_termination_ohm, lumped_load_ohm, nearest_end_m
+from pairline.engine.rules.length_rate import check_length_vs_rate
 from pairline.engine.rules.loads import check_driver_load, check_unit_loads, unit_load_total
 from pairline.engine.rules.power import resistor_powers
 from pairline.engine.rules.preferred import nearest_preferred
 from pairline.engine.rules.signal import termination_step
+from pairline.engine.rules.stubs import check_stubs
 from pairline.engine.units import parallel_ohm
 from pairline.server.cli import report_text
 
@@ -66,12 +69,13 @@ def test_building_the_advice_never_breaks_the_terminator_it_sized():
 
 
 def test_a_terminator_sized_for_a_bias_that_moves_away_is_resized():
-    # The plan's 150 Ohm at 0 m suited a 390 Ohm bias beside it (150 || 780 = 126 Ohm, common practice); when the
-    # advice moves the bias mid-trunk, nothing is lumped at 0 m any more and the terminator returns to Z0.
+    # The plan's 130 Ohm at 0 m suited a 390 Ohm bias beside it (130 || 780 = 111 Ohm, common practice); when the
+    # advice moves the bias mid-trunk, nothing is lumped at 0 m any more and the terminator returns to Z0, even
+    # though 130 Ohm alone would still reflect only 0.04: it was sized for a bias that is no longer there.
     doc = _doc(
         trunk_length_m=1000.0,
         nodes=[{"name": f"kiln-{i}", "position_m": 100.0 * i, "unit_loads": 0.25} for i in range(1, 11)],
-        terminations=[{"position_m": 0.0, "resistance_ohm": 150.0}, {"position_m": 1000.0, "resistance_ohm": 120.0}],
+        terminations=[{"position_m": 0.0, "resistance_ohm": 130.0}, {"position_m": 1000.0, "resistance_ohm": 120.0}],
         bias={"position_m": 0.0, "pull_up_ohm": 390.0, "pull_down_ohm": 390.0},
         bit_rate_bps=19_200,
     )
@@ -270,3 +274,33 @@ def test_the_stub_confirmation_repeats_a_fix_that_exists():
     signal = {f.node: f.fix for f in report.findings if f.rule_id == "signal.integrity"}
     assert "re-simulated fixes of the signal.integrity finding" not in confirm.fix
     assert any(fix and fix in confirm.fix for fix in signal.values()) or "fit" in confirm.fix
+
+
+def _metres(text: str) -> float:
+    """The first length of a fix sentence, in metres ("23 cm" -> 0.23)."""
+    value, unit = re.search(r"<= ([\d.]+) (cm|mm|m)\b", text).groups()
+    return float(value) * {"m": 1.0, "cm": 0.01, "mm": 0.001}[unit]
+
+
+@pytest.mark.parametrize("stub_m", [0.22, 0.3, 2.0])
+def test_a_stub_fix_followed_makes_the_stub_hold(stub_m):
+    # Source: TI SLLA272: 0.1 x 10 ns x 0.78 c0 = 0.234 m; the fix names a length that, built, holds (10 % longer
+    # as built included: common practice).
+    doc = _doc(driver={"name": "kiln-master", "position_m": 0.0, "transceiver": "edge-10ns"}, bit_rate_bps=1e6)
+    doc["nodes"][3]["stub_length_m"] = stub_m
+    finding = next(f for f in check_stubs(build_bus(load_plan(doc))) if f.node == "kiln-4")
+    assert finding.verdict is not Verdict.HOLDS
+    doc["nodes"][3]["stub_length_m"] = _metres(finding.fix)
+    assert next(f for f in check_stubs(build_bus(load_plan(doc))) if f.node == "kiln-4").verdict is Verdict.HOLDS
+
+
+@pytest.mark.parametrize("length_m", [980.0, 1300.0])
+def test_a_rate_fix_followed_makes_the_rate_rule_hold(length_m):
+    # common practice: length x rate <= 1e8 m bit/s; the fix's rate, rounded down, holds with the path 10 % longer.
+    doc = _doc(trunk_length_m=length_m, bit_rate_bps=100e3, nodes=[{"name": "far", "position_m": length_m}])
+    finding = next(f for f in check_length_vs_rate(build_bus(load_plan(doc))) if f.rule_id == "length.rate_rule")
+    assert finding.verdict is not Verdict.HOLDS
+    rate = float(re.search(r"at most ([\d.]+) kbit/s", finding.fix).group(1)) * 1e3
+    doc["bit_rate_bps"] = rate
+    after = next(f for f in check_length_vs_rate(build_bus(load_plan(doc))) if f.rule_id == "length.rate_rule")
+    assert after.verdict is Verdict.HOLDS
