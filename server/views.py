@@ -125,18 +125,30 @@ def _class_defaults(units: UnitSystem) -> dict[str, dict[str, dict[str, str]]]:
     }
 
 
+TABLES = {"nodes": "node-rows", "terminations": "termination-rows"}  # whole-table problems link to the table
+
+
 def editor_data(state: FormState, *, title: str, saved_from: SavedPlan | None = None) -> dict[str, Any]:
     """The plan editor: every input's text by dotted path, problems by field, and the field descriptions."""
     by_field: dict[str, str] = {}
     general: list[dict[str, Any]] = []
     for p in state.problems:
         message = problem_message(p, state.units)
-        if p.field in state.values or p.field.endswith(("class_key", "transceiver")):
+        # A problem with a whole table ("nodes") sits beside that table; its id is the table's.
+        on_form = p.field in state.values or p.field.endswith(("class_key", "transceiver")) or p.field in TABLES
+        if on_form:
             by_field.setdefault(p.field, message)
         # The list links the label; a message that starts with it goes on after the link rather than repeating it.
         rest = message[len(p.label) :] if p.label and message.startswith(p.label) else None
         general.append(
-            {"field": p.field, "label": p.label, "message": message, "rest": rest, "on_form": p.field in state.values}
+            {
+                "field": p.field,
+                "target": TABLES.get(p.field, f"f-{p.field}"),
+                "label": p.label,
+                "message": message,
+                "rest": rest,
+                "on_form": on_form,
+            }
         )
     return {
         "page": "editor",
@@ -152,6 +164,9 @@ def editor_data(state: FormState, *, title: str, saved_from: SavedPlan | None = 
         "errors": by_field,
         "problems": general,
         "fields": _field_meta(state.units),
+        "node_columns": [s.key for s in NODE],
+        "termination_columns": [s.key for s in TERMINATION],
+        "node_table": state.values.get("node_table", ""),
         "class_defaults": _class_defaults(state.units),
         "cables": {k: json_safe(c) for k, c in CABLES.items()},
         "transceivers": {k: json_safe(t) for k, t in TRANSCEIVERS.items()},
