@@ -13,15 +13,16 @@ numbering, so every message lands beside the right input.
 import json
 import re
 from collections.abc import Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 from pairline.engine.library import CABLES, TRANSCEIVERS
-from pairline.engine.plan import PLAN_FORMAT, PLAN_FORMAT_VERSION, Problem
+from pairline.engine.plan import PLAN_FORMAT, PLAN_FORMAT_VERSION, BusInputError, BusPlan, Problem, load_plan
 from pairline.server.messages import field_allowed, not_a_number_message, range_text
 from pairline.server.quantities import Bare, QuantityError, UnitSystem, bare_unit, format_quantity, parse_quantity
 
 MAX_FORM_ROWS = 512
+MAX_FORM_FIELDS = 8000  # 512 node rows of 8 inputs, plus the rest
 
 
 @dataclass(frozen=True, slots=True)
@@ -345,3 +346,22 @@ def fields_from_draft(text: str) -> dict[str, str]:
     if not isinstance(doc, dict):
         return {}
     return {str(k): v for k, v in list(doc.items())[:8000] if isinstance(v, str)}
+
+
+def plan_from_body(body: Any) -> BusPlan:
+    """A plan from a JSON body: a plan document, or {"form": {...}} holding the editor's typed fields (what the
+    editor's live verdict sends). Typed text is read as the form reads it; problems name the inputs."""
+    if not (isinstance(body, dict) and set(body) == {"form"} and isinstance(body["form"], dict)):
+        return load_plan(body)
+    from pairline.server.messages import problem_message
+
+    fields = {str(k): str(v) for k, v in list(body["form"].items())[:MAX_FORM_FIELDS]}
+    parsed = parse_form(fields)
+    try:
+        plan = load_plan(parsed.doc)
+    except BusInputError as exc:
+        problems = merge_problems(parsed.problems, exc.problems)
+        raise BusInputError([replace(p, message=problem_message(p, parsed.state.units)) for p in problems]) from exc
+    if parsed.problems:
+        raise BusInputError(parsed.problems)
+    return plan

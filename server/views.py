@@ -290,6 +290,9 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
             "units": units,
             "length_unit": length_unit(units),
             "verdict": report.verdict.value,
+            "verdict_text": VERDICT_HEADLINE[report.verdict.value],
+            "counts_text": counts_text(counts),
+            "capacity": capacity_data(report),
             "facts": {
                 "standard": "RS-485" if plan.standard == "rs485" else "RS-422",
                 "rate": quantity_text(plan.bit_rate_bps, "bit/s", units),
@@ -432,6 +435,85 @@ def _summary_data(summary: Any, units: UnitSystem) -> dict[str, Any]:
         "bias_note": summary.bias_note,
         "bom": bom_rows(summary.bom, units),
     }
+
+
+VERDICT_TEXT = {"holds": "holds", "tight": "close to the limit", "breaks": "breaks"}
+VERDICT_HEADLINE = {"holds": "Holds", "tight": "Close to the limit", "breaks": "Breaks"}
+
+
+def counted(n: int, one: str, many: str) -> str:
+    """ "1 check" / "2 checks": the count with the word that agrees with it."""
+    return f"{n} {one if n == 1 else many}"
+
+
+def counts_text(counts: Mapping[str, int]) -> str:
+    """ "2 checks break · 1 close to the limit · 61 hold"; parts with no findings are left out."""
+    parts = []
+    if counts.get("breaks"):
+        parts.append(counted(counts["breaks"], "check breaks", "checks break"))
+    if counts.get("tight"):
+        parts.append(f"{counts['tight']} close to the limit")
+    if counts.get("holds"):
+        parts.append(
+            counted(counts["holds"], "holds", "hold")
+            if parts
+            else counted(counts["holds"], "check holds", "checks hold")
+        )
+    return " · ".join(parts)
+
+
+def capacity_data(report: Any) -> dict[str, Any]:
+    """The load on the pair and how many more receivers fit, as figures and as text."""
+    plan, summary = report.plan, report.summary
+    load = next((f for f in report.findings if f.rule_id == "load.unit_loads" and f.node is None), None)
+    total = load.value if load is not None else None
+    further = {str(k): int(v) for k, v in dict(summary.further_nodes).items()}
+    if plan.standard == "rs422":
+        spare = max(0, int(summary.spare_unit_loads))
+        load_text = f"{counted(len(plan.nodes), 'receiver', 'receivers')} of 10"
+        more_text = counted(spare, "more receiver", "more receivers") if spare else "none: the driver feeds 10 at most"
+    else:
+        load_text = f"{number_text(total)} UL of 32 UL" if total is not None else "—"
+        if summary.spare_unit_loads <= 0 or not any(further.values()):
+            more_text = "none: the 32 UL budget is used up"
+        else:
+            more_text = " · ".join(f"{n} more at {cls}" for cls, n in further.items())
+    return {
+        "unit_loads": total,
+        "unit_loads_text": load_text,
+        "spare_unit_loads": summary.spare_unit_loads,
+        "further_nodes": further,
+        "more_text": more_text,
+    }
+
+
+def check_data(report: Any) -> dict[str, Any]:
+    """A checked plan without simulated pictures (the JSON API's check and the editor's live verdict)."""
+    plan: BusPlan = report.plan
+    units: UnitSystem = plan.display_units
+    anchors = {n.name: node_anchor(i) for i, n in enumerate(plan.nodes)} | {plan.driver.name: "driver"}
+    ordered = sorted(report.findings, key=lambda f: (_SEVERITY[f.verdict.value], f.rule_id))
+    counts = {v.value: sum(1 for f in report.findings if f.verdict == v) for v in Verdict}
+    data: dict[str, Any] = json_safe(
+        {
+            "page": "check",
+            "title": plan.title or "Untitled bus",
+            "units": units,
+            "verdict": report.verdict.value,
+            "verdict_text": VERDICT_HEADLINE[report.verdict.value],
+            "counts": counts,
+            "counts_text": counts_text(counts),
+            "capacity": capacity_data(report),
+            # Those that do not hold, ready to read; every finding is in the report below.
+            "problems": [
+                finding_data(f, i, units, anchors) for i, f in enumerate(ordered) if f.verdict != Verdict.HOLDS
+            ],
+            "summary": _summary_data(report.summary, units),
+            "danger": danger_data(plan),
+        }
+    )
+    data["report"] = report_to_dict(report)
+    return data
 
 
 def not_found_data(path: str) -> dict[str, Any]:

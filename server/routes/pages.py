@@ -12,6 +12,7 @@ from pairline.engine.plan import BusInputError, BusPlan, Problem, load_plan, pla
 from pairline.server.app import render
 from pairline.server.errors import not_found
 from pairline.server.forms import (
+    MAX_FORM_FIELDS,
     FormState,
     draft_fields,
     fields_from_draft,
@@ -28,7 +29,6 @@ from pairline.server.store import PlanStore, SavedPlan
 from pairline.server.views import bom_rows, editor_data, plan_data, start_data
 
 router = APIRouter()
-MAX_FORM_FIELDS = 8000  # 512 node rows of 8 inputs, plus the rest
 UTF8_BOM = "\ufeff"  # spreadsheet programs read a CSV as UTF-8 (so "Ω" survives) only when it starts with this
 
 

@@ -69,7 +69,8 @@ def test_plan_page_prints_each_limit_with_its_side(client):
         "nodes": [{"name": "far", "position_m": 100.0, "stub_length_m": 0.5}],
         "terminations": [{"position_m": 0.0, "resistance_ohm": 120.0}, {"position_m": 100.0, "resistance_ohm": 120.0}],
     }
-    data = client.post("/api/check", json=plan).json()
+    plan_id = client.post("/api/plans", json=plan).json()["id"]
+    data = client.get(f"/plans/{plan_id}.json").json()
     stub = next(f for f in data["findings"] if f["rule_id"] == "stub.length")
     assert stub["limit_kind"] == "max" and stub["limit_text"].startswith("≤ ")
     assert all(f["limit_text"][:1] in ("≤", "≥", "") for f in data["findings"])
