@@ -17,7 +17,7 @@ MARGIN_T = 14.0
 MARGIN_B = 40.0
 MAX_BITS_SHOWN = 24  # a longer pattern is plotted over its first bits; margins still cover every bit
 MAX_POINTS = 1200  # a polyline longer than this is decimated to min/max pairs per pixel column
-Y_LABEL = "V(A−B) (V)"  # both voltage plots: the differential voltage, in volts
+Y_LABEL = "differential voltage A−B (V)"  # both voltage plots
 RECEIVER_THRESHOLD_V = 0.2  # TIA-485-A / TIA-422-B receiver input sensitivity, ±200 mV
 
 

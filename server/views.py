@@ -20,7 +20,7 @@ from pairline.engine.units import si_format
 from pairline.server.cautions import cautions_data, danger_data
 from pairline.server.diagram import bus_drawing, node_anchor
 from pairline.server.forms import BIAS, CABLE, DRIVER, NODE, TERMINATION, TOP, FormState
-from pairline.server.messages import problem_message
+from pairline.server.messages import problem_message, value_text
 from pairline.server.plots import curve_plot, eye_plot, waveform_plot
 from pairline.server.quantities import UnitSystem, format_quantity, length_text, length_unit, number_text
 from pairline.server.results import (
@@ -221,11 +221,20 @@ def finding_data(f: Any, index: int, units: UnitSystem, node_anchors: Mapping[st
         "limit_text": limit_text(f.limit, f.unit, kind, units),
         "node": f.node,
         "node_anchor": node_anchors.get(f.node, "") if f.node else "",
-        "criterion": f.criterion,
+        "limit_note": TIGHT_NOTE if f.verdict == Verdict.TIGHT else "",
+        "criterion": in_plan_units(f.criterion, units),
         "source": f.source,
-        "fix": lengths_in_text(f.fix, units, keep_metres=True) if units == "imperial" else f.fix,
-        "detail": lengths_in_text(f.detail, units, keep_metres=True) if units == "imperial" else f.detail,
+        "fix": in_plan_units(f.fix, units),
+        "detail": in_plan_units(f.detail, units),
     }
+
+
+TIGHT_NOTE = "close to the limit: inside what the rule allows, with little to spare"
+
+
+def in_plan_units(text: str, units: UnitSystem) -> str:
+    """An engine sentence for an imperial plan: each length in feet, the engine's metres kept in brackets."""
+    return lengths_in_text(text, units, keep_metres=True) if units == "imperial" else text
 
 
 def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: str | None = None) -> dict[str, Any]:
@@ -241,6 +250,9 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
         if fd["node"]:
             per_node.setdefault(fd["node"], []).append(fd)
     node_verdicts = {name: worst([Verdict(fd["verdict"]) for fd in items]).value for name, items in per_node.items()}
+    node_rules = {
+        name: deciding_rules(items, node_verdicts[name]) for name, items in per_node.items()
+    }  # the rules that set each node's verdict
     metrics = {m.receiver: m for m in checked.metrics}
     summary = report.summary
     nodes = [
@@ -258,6 +270,7 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
             "ground_offset_v": n.ground_offset_v,
             "signal": _signal_data(metrics.get(n.name), units),
             "verdict": node_verdicts.get(n.name, "holds"),
+            "decided_by": node_rules.get(n.name, []),
             "findings": [
                 {"anchor": fd["anchor"], "rule_id": fd["rule_id"], "verdict": fd["verdict"]}
                 for fd in per_node.get(n.name, [])
@@ -266,7 +279,16 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
         for i, n in enumerate(plan.nodes)
     ]
     counts = {v.value: sum(1 for f in report.findings if f.verdict == v) for v in Verdict}
-    waveforms = _waveforms_data(checked, chosen_receiver)
+    holding: dict[str, dict[str, Any]] = {}
+    for fd in findings:
+        if fd["verdict"] == "holds":
+            row = holding.setdefault(
+                fd["rule_id"], {"rule_id": fd["rule_id"], "title": fd["title"], "bus": 0, "nodes": 0}
+            )
+            row["nodes" if fd["node"] else "bus"] += 1
+    waveforms = _waveforms_data(checked, chosen_receiver, findings, node_verdicts, node_rules)
+    length_findings = [fd for fd in findings if fd["rule_id"] in LENGTH_RULES and not fd["node"]]
+    curve_verdict = worst([Verdict(fd["verdict"]) for fd in length_findings]).value
     sweep = checked.curve
     curve = curve_plot(
         sweep.bit_rate_bps,
@@ -285,6 +307,7 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
             "url": f"/plans/{plan_id}" if plan_id else None,
             "parent_id": saved.parent_id if saved else None,
             "created_at": saved.created_at if saved else None,
+            "created_text": date_text(saved.created_at) if saved else None,
             "saved_with_engine": saved.engine_version if saved else None,
             "checked_with_engine": report.engine_version,
             "units": units,
@@ -303,6 +326,10 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
             "cable_label": report.bus.cable.label,
             "driver_label": report.bus.driver.label,
             "findings": findings,
+            "holding_rules": [
+                row | {"where": _where_text(row["bus"], row["nodes"])}
+                for row in sorted(holding.values(), key=lambda r: r["rule_id"])
+            ],
             "nodes": nodes,
             "summary": _summary_data(summary, units),
             "waveforms": waveforms,
@@ -315,18 +342,25 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
                 "plan_max_length_m": sweep.plan_max_length_m,
                 "plan_max_length_text": quantity_text(sweep.plan_max_length_m, "m", units),
                 "plan_inside": sweep.plan_inside,
+                "plan_verdict": curve_verdict,
+                "plan_decided_by": deciding_rules(length_findings, curve_verdict),
+                "sweep_end_text": value_text(max(sweep.max_length_m), "m", units) if len(sweep.max_length_m) else "",
                 "rule": {
                     "bit_rate_bps": checked.rule_bit_rate_bps,
                     "max_length_m": checked.rule_max_length_m,
-                    "criterion_text": RULE_CRITERION,
+                    "criterion_text": in_plan_units(RULE_CRITERION, units),
                     "source": RULE_SOURCE,
                 },
                 "svg": curve,
             },
             "drawing": bus_drawing(
-                plan, node_verdicts | {plan.driver.name: node_verdicts.get(plan.driver.name, "holds")}, units
+                plan,
+                node_verdicts | {plan.driver.name: node_verdicts.get(plan.driver.name, "holds")},
+                units,
+                {name: ", ".join(rules) for name, rules in node_rules.items()},
             ),
             "cautions": cautions_data(plan),
+            "verdict_words": VERDICT_TEXT,
             "danger": danger_data(plan),
         }
     )
@@ -355,14 +389,62 @@ def _signal_data(m: Any, units: UnitSystem) -> dict[str, Any] | None:
     }
 
 
-def _waveforms_data(checked: CheckedPlan, chosen: str | None) -> dict[str, Any]:
+def _where_text(bus: int, nodes: int) -> str:
+    """Where a rule holds: "the bus", "12 nodes", "the bus and 3 nodes"."""
+    parts = (["the bus"] if bus else []) + ([counted(nodes, "node", "nodes")] if nodes else [])
+    return " and ".join(parts)
+
+
+LENGTH_RULES = ("length.rate_rule", "length.loss")  # the rules the length-against-rate picture stands for
+
+
+def deciding_rules(findings: "list[dict[str, Any]]", verdict: str) -> list[str]:
+    """The rule ids whose findings carry `verdict` (the worst), each once, in report order; [] when all hold."""
+    if verdict == "holds":
+        return []
+    return list(dict.fromkeys(fd["rule_id"] for fd in findings if fd["verdict"] == verdict))
+
+
+MONTHS = ("January February March April May June July August September October November December").split()
+
+
+def date_text(iso: str) -> str:
+    """ "2025-12-02T08:06:31+00:00" -> "2 December 2025, 08:06 UTC"; text that is not such a time stays as is."""
+    m = re.match(r"^(\d{4})-(\d{2})-(\d{2})[T ](\d{2}):(\d{2})", iso or "")
+    if not m:
+        return iso
+    year, month, day, hour, minute = m.groups()
+    return f"{int(day)} {MONTHS[int(month) - 1]} {year}, {hour}:{minute} UTC"
+
+
+def lineage_data(parent: SavedPlan | None, children: list[SavedPlan]) -> dict[str, Any]:
+    """The plan this one was copied from and its later copies, each by title, date and link."""
+
+    def entry(p: SavedPlan) -> dict[str, Any]:
+        return {
+            "id": p.id,
+            "url": f"/plans/{p.id}",
+            "title": p.title or "Untitled bus",
+            "date": date_text(p.created_at),
+        }
+
+    return {"parent": entry(parent) if parent else None, "children": [entry(c) for c in children]}
+
+
+def _waveforms_data(
+    checked: CheckedPlan,
+    chosen: str | None,
+    findings: "list[dict[str, Any]]",
+    node_verdicts: Mapping[str, str],
+    node_rules: Mapping[str, list[str]],
+) -> dict[str, Any]:
     wf = checked.waveforms
     worst = worst_receiver(checked.metrics, checked.report.findings)
     receivers = [m.receiver for m in checked.metrics]
     if wf is None or worst is None:
         return {"available": False, "note": checked.simulation_note, "receivers": receivers}
     by_name = {m.receiver: m for m in checked.metrics}
-    signal = {f.node: f.verdict.value for f in checked.report.findings if f.rule_id == SIGNAL_RULE and f.node}
+    signal = {fd["node"]: fd for fd in findings if fd["rule_id"] == SIGNAL_RULE and fd["node"]}
     chosen_name = chosen if chosen in by_name else None
     plots = []
     for k, name in enumerate(wf.receiver_names):
@@ -374,7 +456,9 @@ def _waveforms_data(checked: CheckedPlan, chosen: str | None) -> dict[str, Any]:
             {
                 "receiver": name,
                 "role": "worst" if name == worst.receiver else "chosen",
-                "verdict": signal.get(name, "holds"),
+                "verdict": node_verdicts.get(name, "holds"),
+                "decided_by": node_rules.get(name, []),
+                "signal": _signal_finding(signal.get(name)),
                 "margin_v": m.min_sample_v,
                 "margin_text": quantity_text(m.min_sample_v, "V", "metric"),
                 "eye_height_v": m.eye_height_v,
@@ -395,6 +479,18 @@ def _waveforms_data(checked: CheckedPlan, chosen: str | None) -> dict[str, Any]:
         "chosen_unknown": chosen if chosen and chosen_name is None else None,
         "plots": plots,
         "note": checked.simulation_note,
+    }
+
+
+def _signal_finding(fd: "dict[str, Any] | None") -> dict[str, Any]:
+    """What the signal-integrity rule said of one receiver, for its waveform's caption."""
+    if fd is None:
+        return {"verdict": "holds", "text": "no signal finding for this receiver", "anchor": ""}
+    numbers = ", ".join(t for t in (fd["value_text"], f"limit {fd['limit_text']}" if fd["limit_text"] else "") if t)
+    return {
+        "verdict": fd["verdict"],
+        "text": f"{fd['title']} ({numbers})" if numbers else fd["title"],
+        "anchor": fd["anchor"],
     }
 
 
@@ -432,7 +528,7 @@ def _summary_data(summary: Any, units: UnitSystem) -> dict[str, Any]:
             if summary.max_bit_rate_bps is not None
             else "no rate: the trunk is too long for these rules"
         ),
-        "bias_note": summary.bias_note,
+        "bias_note": in_plan_units(summary.bias_note, units),
         "bom": bom_rows(summary.bom, units),
     }
 

@@ -26,7 +26,7 @@ from pairline.server.node_table import read_node_table, with_pasted_rows
 from pairline.server.quantities import UnitSystem
 from pairline.server.results import check_and_simulate, check_only
 from pairline.server.store import PlanStore, SavedPlan
-from pairline.server.views import bom_rows, editor_data, plan_data, start_data
+from pairline.server.views import bom_rows, editor_data, lineage_data, plan_data, start_data
 
 router = APIRouter()
 UTF8_BOM = "\ufeff"  # spreadsheet programs read a CSV as UTF-8 (so "Ω" survives) only when it starts with this
@@ -227,7 +227,10 @@ def plan_page(request: Request, ref: str, store: StoreDep, receiver: str | None 
         title = "This saved plan needs changes before the current engine can check it"
         return render(request, "editor.html", editor_data(state, title=title, saved_from=saved), status_code=422)
     data = plan_data(check_and_simulate(plan, receiver), saved, receiver)
-    data["children"] = store.children_of(saved.id)
+    children = store.children_of(saved.id)
+    data["children"] = children
+    parent = store.get_plan(saved.parent_id) if saved.parent_id else None
+    data["lineage"] = lineage_data(parent, [c for c in map(store.get_plan, children) if c is not None])
     return page(request, "plan.html", data, as_json)
 
 
