@@ -71,8 +71,11 @@ def quantity_text(value: float | None, unit: str, units: UnitSystem) -> str:
     return f"{number_text(value)} {unit}".strip()
 
 
-# "<number> m" as a length: not inside a word or formula ("10^8 m·bit/s", "Ω/m" and "mV" stay as they are).
-_METRES_IN_TEXT = re.compile(r"(?<![\w.^/])(\d+(?:\.\d+)?(?:[eE][-+]?\d+)?) m(?![\w·/^])")
+# "<number> m" as a length: not inside a word or formula ("10^8 m·bit/s", "Ω/m" and "mV" stay as they are),
+# nor already in brackets after feet ("4000 ft (1200 m)").
+_METRES_IN_TEXT = re.compile(r"(?<![\w.^/])(?<!ft \()(\d+(?:\.\d+)?(?:[eE][-+]?\d+)?) m(?![\w·/^])")
+# A source that states metres with feet in brackets ("1200 m (4000 ft)"), read feet first in an imperial plan.
+_METRES_THEN_FEET = re.compile(r"(?<![\w.])(\d+(?:\.\d+)?) m \((\d[\d,.\u202f]*) ft\)")
 
 
 def lengths_in_text(text: str, units: UnitSystem, keep_metres: bool = False) -> str:
@@ -83,6 +86,8 @@ def lengths_in_text(text: str, units: UnitSystem, keep_metres: bool = False) -> 
         shown = length_text(float(m.group(1)), units)
         return f"{shown} ({m.group(0)})" if keep_metres and units == "imperial" else shown
 
+    if units == "imperial":
+        text = _METRES_THEN_FEET.sub(lambda m: f"{m.group(2)} ft ({m.group(1)} m)", text)
     return _METRES_IN_TEXT.sub(restate, text)
 
 
@@ -211,7 +216,7 @@ def finding_data(f: Any, index: int, units: UnitSystem, node_anchors: Mapping[st
     return {
         "anchor": f"finding-{index + 1}-{f.rule_id}",
         "rule_id": f.rule_id,
-        "title": f.title,
+        "title": in_plan_units(f.title, units),
         "verdict": f.verdict.value,
         "value": f.value,
         "limit": f.limit,
@@ -223,7 +228,7 @@ def finding_data(f: Any, index: int, units: UnitSystem, node_anchors: Mapping[st
         "node_anchor": node_anchors.get(f.node, "") if f.node else "",
         "limit_note": TIGHT_NOTE if f.verdict == Verdict.TIGHT else "",
         "criterion": in_plan_units(f.criterion, units),
-        "source": f.source,
+        "source": in_plan_units(f.source, units),
         "fix": in_plan_units(f.fix, units),
         "detail": in_plan_units(f.detail, units),
     }
@@ -279,6 +284,7 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
         for i, n in enumerate(plan.nodes)
     ]
     counts = {v.value: sum(1 for f in report.findings if f.verdict == v) for v in Verdict}
+    problem_groups = group_problems(findings)
     holding: dict[str, dict[str, Any]] = {}
     for fd in findings:
         if fd["verdict"] == "holds":
@@ -326,6 +332,7 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
             "cable_label": report.bus.cable.label,
             "driver_label": report.bus.driver.label,
             "findings": findings,
+            "problem_groups": problem_groups,
             "holding_rules": [
                 row | {"where": _where_text(row["bus"], row["nodes"])}
                 for row in sorted(holding.values(), key=lambda r: r["rule_id"])
@@ -337,8 +344,8 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
                 "bit_rate_bps": sweep.bit_rate_bps,
                 "max_length_m": sweep.max_length_m,
                 "criterion": sweep.criterion,
-                "criterion_text": CURVE_CRITERIA.get(sweep.criterion, sweep.criterion),
-                "source": sweep.source,
+                "criterion_text": in_plan_units(CURVE_CRITERIA.get(sweep.criterion, sweep.criterion), units),
+                "source": in_plan_units(sweep.source, units),
                 "plan_max_length_m": sweep.plan_max_length_m,
                 "plan_max_length_text": quantity_text(sweep.plan_max_length_m, "m", units),
                 "plan_inside": sweep.plan_inside,
@@ -349,7 +356,7 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
                     "bit_rate_bps": checked.rule_bit_rate_bps,
                     "max_length_m": checked.rule_max_length_m,
                     "criterion_text": in_plan_units(RULE_CRITERION, units),
-                    "source": RULE_SOURCE,
+                    "source": in_plan_units(RULE_SOURCE, units),
                 },
                 "svg": curve,
             },
@@ -387,6 +394,38 @@ def _signal_data(m: Any, units: UnitSystem) -> dict[str, Any] | None:
         "delay_text": quantity_text(m.propagation_delay_s, "s", units),
         "below_threshold": m.min_sample_v < m.threshold_v,
     }
+
+
+def group_problems(findings: "list[dict[str, Any]]") -> list[dict[str, Any]]:
+    """The findings that do not hold, in report order, as the page lists them: a finding about the bus on its
+    own; a rule's findings at two or more nodes together, one row per node under the rule's criterion."""
+    problems = [fd for fd in findings if fd["verdict"] != "holds"]
+    per_rule: dict[str, list[dict[str, Any]]] = {}
+    for fd in problems:
+        if fd["node"]:
+            per_rule.setdefault(fd["rule_id"], []).append(fd)
+    groups: list[dict[str, Any]] = []
+    placed: set[str] = set()
+    for fd in problems:
+        rows = per_rule.get(fd["rule_id"], []) if fd["node"] else []
+        if len(rows) < 2:
+            groups.append({"kind": "single", "finding": fd})
+        elif fd["rule_id"] not in placed:
+            placed.add(fd["rule_id"])
+            verdict = worst([Verdict(r["verdict"]) for r in rows]).value
+            groups.append(
+                {
+                    "kind": "nodes",
+                    "rule_id": fd["rule_id"],
+                    "verdict": verdict,
+                    "title": fd["title"],
+                    "where": counted(len(rows), "node", "nodes"),
+                    "criterion": fd["criterion"],
+                    "source": fd["source"],
+                    "rows": rows,
+                }
+            )
+    return groups
 
 
 def _where_text(bus: int, nodes: int) -> str:
