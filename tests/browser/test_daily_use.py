@@ -119,3 +119,24 @@ def test_live_verdict_follows_typing_within_a_second(page, base_url):
     assert time.monotonic() - start < 1.0
     assert "stub.length at probe-1" in page.locator("#live-text").inner_text()
     assert pill.text_content() == "Breaks"
+
+
+def test_back_after_check_keeps_typed_values_without_javascript(browser, base_url):
+    context = browser.new_context(java_script_enabled=False)
+    try:
+        page = context.new_page()
+        page.goto(f"{base_url}/plans/new")
+        page.fill("input[name='title']", "No script draft")
+        page.fill("input[name='nodes.0.name']", "door-1")
+        page.fill("input[name='nodes.0.position_m']", "50")
+        page.fill("input[name='nodes.1.name']", "door-2")
+        page.fill("input[name='nodes.1.position_m']", "12,5")
+        names = ("title", "nodes.0.name", "nodes.0.position_m", "nodes.1.name", "nodes.1.position_m")
+        before = {n: page.input_value(f"[name='{n}']") for n in names}
+        page.click("#check-button")
+        page.wait_for_selector("#overall-verdict")
+        page.go_back()
+        page.wait_for_selector("#node-rows")
+        assert {n: page.input_value(f"[name='{n}']") for n in names} == before
+    finally:
+        context.close()
