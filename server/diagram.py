@@ -166,7 +166,7 @@ def bus_drawing(
             f"left is {bar_text} of stub."
         )
         bar_px = bar_m / length_in(1.0, units) * stub_px_per_m
-        stub_bar = ScaleBar(x=LEFT_PX - 40.0, y_top=0.0, y_bottom=bar_px, label=bar_text)
+        stub_bar = ScaleBar(x=LEFT_PX - 14.0, y_top=0.0, y_bottom=bar_px, label=bar_text)
 
     ticks: list[Tick] = []
     span = length_in(length_m, units)
@@ -302,6 +302,13 @@ def _place_labels(nodes: list[NodeMark], name_y: float) -> list[NodeMark]:
     out: first those of nodes that hold, so a node that does not hold keeps its name wherever it can."""
     rank = {"breaks": 0, "tight": 1}
     keep = set(range(len(nodes)))
+    # More names than the line holds: keep every k-th along the trunk (and every node that does not hold), so
+    # the names left are spread over the whole bus rather than bunched where the crowding is least.
+    room = int((WIDTH_PX - LEFT_PX - RIGHT_PX) / LABEL_GAP_PX)
+    if len(nodes) > room:
+        along = sorted(range(len(nodes)), key=lambda i: nodes[i].x)
+        step = math.ceil(len(nodes) / room)
+        keep = {i for k, i in enumerate(along) if k % step == 0 or nodes[i].verdict in rank}
     while True:
         starts = _spread([nodes[i].x for i in sorted(keep, key=lambda i: nodes[i].x)])
         order = sorted(keep, key=lambda i: nodes[i].x)
