@@ -110,6 +110,9 @@ def test_crowded_labels_are_thinned_but_nodes_that_do_not_hold_keep_theirs():
     starts = sorted(n.label_x for n in shown)
     assert min(b - a for a, b in zip(starts, starts[1:], strict=False)) >= 19.0 - 1e-9
     assert "left out" in drawing.caption
+    # The names kept spread over the whole trunk: the first node keeps its name, and names reach both ends.
+    assert drawing.nodes[0].show_label
+    assert starts[0] < drawing.trunk_x0 + 50.0 and starts[-1] > drawing.trunk_x1 - 50.0
 
 
 def test_part_labels_near_the_right_edge_run_leftwards():
