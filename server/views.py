@@ -5,7 +5,6 @@ lists). SVG coordinates come from `server.diagram` and `server.plots`; this modu
 """
 
 import math
-import re
 from collections.abc import Mapping
 from dataclasses import asdict, fields, is_dataclass
 from enum import Enum
@@ -19,10 +18,17 @@ from pairline.engine.plan import BusPlan, Problem, plan_to_dict
 from pairline.engine.units import si_format
 from pairline.server.cautions import cautions_data, danger_data
 from pairline.server.diagram import bus_drawing, node_anchor
+from pairline.server.findings_view import (
+    capacity_data,
+    deciding_rules,
+    finding_data,
+    group_problems,
+    holding_rules,
+)
 from pairline.server.forms import BIAS, CABLE, DRIVER, NODE, TERMINATION, TOP, FormState
 from pairline.server.messages import problem_message, value_text
 from pairline.server.plots import curve_plot, eye_plot, waveform_plot
-from pairline.server.quantities import UnitSystem, format_quantity, length_text, length_unit, number_text
+from pairline.server.quantities import UnitSystem, format_quantity, length_unit
 from pairline.server.results import (
     CURVE_CRITERIA,
     RULE_CRITERION,
@@ -33,6 +39,15 @@ from pairline.server.results import (
     worst_receiver,
 )
 from pairline.server.store import SampleEntry, SavedPlan
+from pairline.server.wording import (
+    VERDICT_HEADLINE,
+    VERDICT_TEXT,
+    counts_text,
+    date_text,
+    in_plan_units,
+    lengths_in_text,
+    quantity_text,
+)
 
 _SEVERITY = {"breaks": 0, "tight": 1, "holds": 2}
 
@@ -56,39 +71,6 @@ def json_safe(value: Any) -> Any:
     if is_dataclass(value) and not isinstance(value, type):
         return {f.name: json_safe(getattr(value, f.name)) for f in fields(value)}
     return value
-
-
-def quantity_text(value: float | None, unit: str, units: UnitSystem) -> str:
-    """A result value for reading: lengths in the plan's display unit, others with an SI prefix."""
-    if value is None:
-        return "—"
-    if not math.isfinite(value):
-        return "unlimited" if value > 0 else "—"
-    if unit == "m":
-        return length_text(value, units)
-    if unit in ("s", "F", "Hz", "Ω", "bit/s", "W", "A", "V") and value != 0:
-        return si_format(value, unit)
-    return f"{number_text(value)} {unit}".strip()
-
-
-# "<number> m" as a length: not inside a word or formula ("10^8 m·bit/s", "Ω/m" and "mV" stay as they are),
-# nor already in brackets after feet ("4000 ft (1200 m)").
-_METRES_IN_TEXT = re.compile(r"(?<![\w.^/])(?<!ft \()(\d+(?:\.\d+)?(?:[eE][-+]?\d+)?) m(?![\w·/^])")
-# A source that states metres with feet in brackets ("1200 m (4000 ft)"), read feet first in an imperial plan.
-_METRES_THEN_FEET = re.compile(r"(?<![\w.])(\d+(?:\.\d+)?) m \((\d[\d,.\u202f]*) ft\)")
-
-
-def lengths_in_text(text: str, units: UnitSystem, keep_metres: bool = False) -> str:
-    """An engine sentence with every "<number> m" restated in the display unit and the house rounding;
-    with `keep_metres`, feet are followed by the engine's metres in brackets."""
-
-    def restate(m: re.Match[str]) -> str:
-        shown = length_text(float(m.group(1)), units)
-        return f"{shown} ({m.group(0)})" if keep_metres and units == "imperial" else shown
-
-    if units == "imperial":
-        text = _METRES_THEN_FEET.sub(lambda m: f"{m.group(2)} ft ({m.group(1)} m)", text)
-    return _METRES_IN_TEXT.sub(restate, text)
 
 
 def bom_rows(bom: Any, units: UnitSystem) -> list[dict[str, Any]]:
@@ -194,54 +176,6 @@ def start_data(
     }
 
 
-LIMIT_SIGNS = {"max": "≤", "min": "≥"}
-
-
-def limit_kind_of(finding: Any) -> str:
-    """How a finding's value is held against its limit: "max" (at most), "min" (at least) or "none" (the
-    limit is only a reference). Findings from engines that do not say are upper limits."""
-    kind = getattr(finding, "limit_kind", None) or "max"
-    return kind if kind in ("max", "min", "none") else "max"
-
-
-def limit_text(limit: float | None, unit: str, kind: str, units: UnitSystem) -> str:
-    """The limit for reading, with the side the value must stay on: "≤ 1.2 m", "≥ 54 Ω"; "" for no limit."""
-    if kind == "none" or limit is None or not math.isfinite(limit):
-        return ""
-    return f"{LIMIT_SIGNS[kind]} {quantity_text(limit, unit, units)}"
-
-
-def finding_data(f: Any, index: int, units: UnitSystem, node_anchors: Mapping[str, str]) -> dict[str, Any]:
-    kind = limit_kind_of(f)
-    return {
-        "anchor": f"finding-{index + 1}-{f.rule_id}",
-        "rule_id": f.rule_id,
-        "title": in_plan_units(f.title, units),
-        "verdict": f.verdict.value,
-        "value": f.value,
-        "limit": f.limit,
-        "unit": f.unit,
-        "value_text": quantity_text(f.value, f.unit, units),
-        "limit_kind": kind,
-        "limit_text": limit_text(f.limit, f.unit, kind, units),
-        "node": f.node,
-        "node_anchor": node_anchors.get(f.node, "") if f.node else "",
-        "limit_note": TIGHT_NOTE if f.verdict == Verdict.TIGHT else "",
-        "criterion": in_plan_units(f.criterion, units),
-        "source": in_plan_units(f.source, units),
-        "fix": in_plan_units(f.fix, units),
-        "detail": in_plan_units(f.detail, units),
-    }
-
-
-TIGHT_NOTE = "close to the limit: inside what the rule allows, with little to spare"
-
-
-def in_plan_units(text: str, units: UnitSystem) -> str:
-    """An engine sentence for an imperial plan: each length in feet, the engine's metres kept in brackets."""
-    return lengths_in_text(text, units, keep_metres=True) if units == "imperial" else text
-
-
 def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: str | None = None) -> dict[str, Any]:
     """The checked plan: verdicts, findings, per-node table, drawing, waveforms, curve, summary, BOM, cautions."""
     report = checked.report
@@ -285,13 +219,6 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
     ]
     counts = {v.value: sum(1 for f in report.findings if f.verdict == v) for v in Verdict}
     problem_groups = group_problems(findings)
-    holding: dict[str, dict[str, Any]] = {}
-    for fd in findings:
-        if fd["verdict"] == "holds":
-            row = holding.setdefault(
-                fd["rule_id"], {"rule_id": fd["rule_id"], "title": fd["title"], "bus": 0, "nodes": 0}
-            )
-            row["nodes" if fd["node"] else "bus"] += 1
     waveforms = _waveforms_data(checked, chosen_receiver, findings, node_verdicts, node_rules)
     length_findings = [fd for fd in findings if fd["rule_id"] in LENGTH_RULES and not fd["node"]]
     curve_verdict = worst([Verdict(fd["verdict"]) for fd in length_findings]).value
@@ -333,10 +260,7 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
             "driver_label": report.bus.driver.label,
             "findings": findings,
             "problem_groups": problem_groups,
-            "holding_rules": [
-                row | {"where": _where_text(row["bus"], row["nodes"])}
-                for row in sorted(holding.values(), key=lambda r: r["rule_id"])
-            ],
+            "holding_rules": holding_rules(findings),
             "nodes": nodes,
             "summary": _summary_data(summary, units),
             "waveforms": waveforms,
@@ -396,64 +320,7 @@ def _signal_data(m: Any, units: UnitSystem) -> dict[str, Any] | None:
     }
 
 
-def group_problems(findings: "list[dict[str, Any]]") -> list[dict[str, Any]]:
-    """The findings that do not hold, in report order, as the page lists them: a finding about the bus on its
-    own; a rule's findings at two or more nodes together, one row per node under the rule's criterion."""
-    problems = [fd for fd in findings if fd["verdict"] != "holds"]
-    per_rule: dict[str, list[dict[str, Any]]] = {}
-    for fd in problems:
-        if fd["node"]:
-            per_rule.setdefault(fd["rule_id"], []).append(fd)
-    groups: list[dict[str, Any]] = []
-    placed: set[str] = set()
-    for fd in problems:
-        rows = per_rule.get(fd["rule_id"], []) if fd["node"] else []
-        if len(rows) < 2:
-            groups.append({"kind": "single", "finding": fd})
-        elif fd["rule_id"] not in placed:
-            placed.add(fd["rule_id"])
-            verdict = worst([Verdict(r["verdict"]) for r in rows]).value
-            groups.append(
-                {
-                    "kind": "nodes",
-                    "rule_id": fd["rule_id"],
-                    "verdict": verdict,
-                    "title": fd["title"],
-                    "where": counted(len(rows), "node", "nodes"),
-                    "criterion": fd["criterion"],
-                    "source": fd["source"],
-                    "rows": rows,
-                }
-            )
-    return groups
-
-
-def _where_text(bus: int, nodes: int) -> str:
-    """Where a rule holds: "the bus", "12 nodes", "the bus and 3 nodes"."""
-    parts = (["the bus"] if bus else []) + ([counted(nodes, "node", "nodes")] if nodes else [])
-    return " and ".join(parts)
-
-
 LENGTH_RULES = ("length.rate_rule", "length.loss")  # the rules the length-against-rate picture stands for
-
-
-def deciding_rules(findings: "list[dict[str, Any]]", verdict: str) -> list[str]:
-    """The rule ids whose findings carry `verdict` (the worst), each once, in report order; [] when all hold."""
-    if verdict == "holds":
-        return []
-    return list(dict.fromkeys(fd["rule_id"] for fd in findings if fd["verdict"] == verdict))
-
-
-MONTHS = ("January February March April May June July August September October November December").split()
-
-
-def date_text(iso: str) -> str:
-    """ "2025-12-02T08:06:31+00:00" -> "2 December 2025, 08:06 UTC"; text that is not such a time stays as is."""
-    m = re.match(r"^(\d{4})-(\d{2})-(\d{2})[T ](\d{2}):(\d{2})", iso or "")
-    if not m:
-        return iso
-    year, month, day, hour, minute = m.groups()
-    return f"{int(day)} {MONTHS[int(month) - 1]} {year}, {hour}:{minute} UTC"
 
 
 def lineage_data(parent: SavedPlan | None, children: list[SavedPlan]) -> dict[str, Any]:
@@ -569,56 +436,6 @@ def _summary_data(summary: Any, units: UnitSystem) -> dict[str, Any]:
         ),
         "bias_note": in_plan_units(summary.bias_note, units),
         "bom": bom_rows(summary.bom, units),
-    }
-
-
-VERDICT_TEXT = {"holds": "holds", "tight": "close to the limit", "breaks": "breaks"}
-VERDICT_HEADLINE = {"holds": "Holds", "tight": "Close to the limit", "breaks": "Breaks"}
-
-
-def counted(n: int, one: str, many: str) -> str:
-    """ "1 check" / "2 checks": the count with the word that agrees with it."""
-    return f"{n} {one if n == 1 else many}"
-
-
-def counts_text(counts: Mapping[str, int]) -> str:
-    """ "2 checks break · 1 close to the limit · 61 hold"; parts with no findings are left out."""
-    parts = []
-    if counts.get("breaks"):
-        parts.append(counted(counts["breaks"], "check breaks", "checks break"))
-    if counts.get("tight"):
-        parts.append(f"{counts['tight']} close to the limit")
-    if counts.get("holds"):
-        parts.append(
-            counted(counts["holds"], "holds", "hold")
-            if parts
-            else counted(counts["holds"], "check holds", "checks hold")
-        )
-    return " · ".join(parts)
-
-
-def capacity_data(report: Any) -> dict[str, Any]:
-    """The load on the pair and how many more receivers fit, as figures and as text."""
-    plan, summary = report.plan, report.summary
-    load = next((f for f in report.findings if f.rule_id == "load.unit_loads" and f.node is None), None)
-    total = load.value if load is not None else None
-    further = {str(k): int(v) for k, v in dict(summary.further_nodes).items()}
-    if plan.standard == "rs422":
-        spare = max(0, int(summary.spare_unit_loads))
-        load_text = f"{counted(len(plan.nodes), 'receiver', 'receivers')} of 10"
-        more_text = counted(spare, "more receiver", "more receivers") if spare else "none: the driver feeds 10 at most"
-    else:
-        load_text = f"{number_text(total)} UL of 32 UL" if total is not None else "—"
-        if summary.spare_unit_loads <= 0 or not any(further.values()):
-            more_text = "none: the 32 UL budget is used up"
-        else:
-            more_text = " · ".join(f"{n} more at {cls}" for cls, n in further.items())
-    return {
-        "unit_loads": total,
-        "unit_loads_text": load_text,
-        "spare_unit_loads": summary.spare_unit_loads,
-        "further_nodes": further,
-        "more_text": more_text,
     }
 
 

@@ -4,7 +4,7 @@ from dataclasses import dataclass
 
 import pytest
 from pairline.engine.findings import Finding, Verdict
-from pairline.server.views import finding_data
+from pairline.server.findings_view import finding_data
 
 
 @dataclass(frozen=True)
@@ -125,7 +125,7 @@ def test_no_stop_caution_at_50_volts_or_less(client):
     ],
 )
 def test_engine_sentences_read_in_feet_for_an_imperial_plan(text, expected):
-    from pairline.server.views import lengths_in_text
+    from pairline.server.wording import lengths_in_text
 
     assert lengths_in_text(text, "imperial", keep_metres=True) == expected
     assert lengths_in_text(text, "metric", keep_metres=True) == text  # already 3 digits in metres
