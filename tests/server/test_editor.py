@@ -1,5 +1,7 @@
 """The editor in daily use: drafts come back, node tables paste in, decimal commas, blank and cleared inputs."""
 
+import re
+
 import pytest
 from pairline.engine.library import TRANSCEIVERS
 from pairline.server.node_table import read_node_table
@@ -172,3 +174,28 @@ def test_a_csv_file_pastes_like_text(client):
     resp = client.post("/plans", data=fields, files={"node_table_file": ("probes.csv", body, "text/csv")})
     assert resp.status_code == 200
     assert _inputs(parse_html(resp.text))["nodes.19.name"] == "probe-20"
+
+
+def test_a_saved_plan_names_its_parent_and_copies_by_title_and_a_readable_date(client):
+    from tests.server.test_pages import PLAN_DOC
+
+    parent = client.post("/api/plans", json=PLAN_DOC | {"title": "Boiler room"}).json()["id"]
+    child = client.post(f"/api/plans?parent={parent}", json=PLAN_DOC | {"title": "Boiler room, pump moved"}).json()
+    parent_page = parse_html(client.get(f"/plans/{parent}").text)
+    links = {a.attrs.get("href"): a.text() for a in parent_page.find_all("a")}
+    assert links[child["url"]] == "“Boiler room, pump moved”"
+    child_page = parse_html(client.get(child["url"]).text)
+    assert {a.attrs.get("href"): a.text() for a in child_page.find_all("a")}[f"/plans/{parent}"] == "“Boiler room”"
+    saved = child_page.find("time")
+    # common practice: a date people read, "2 December 2026, 08:06 UTC", not an ISO 8601 timestamp.
+    assert re.fullmatch(r"\d{1,2} [A-Z][a-z]+ \d{4}, \d{2}:\d{2} UTC", saved.text())
+    assert "T" in saved.attrs["datetime"]  # the machine-readable time stays in the attribute
+
+
+def test_counts_of_findings_agree_with_their_nouns():
+    from pairline.server.wording import counts_text
+
+    # common practice: English agreement, one check breaks, two checks break.
+    assert counts_text({"breaks": 1, "tight": 0, "holds": 1}) == "1 check breaks · 1 holds"
+    assert counts_text({"breaks": 2, "tight": 1, "holds": 61}) == "2 checks break · 1 close to the limit · 61 hold"
+    assert counts_text({"breaks": 0, "tight": 0, "holds": 5}) == "5 checks hold"
