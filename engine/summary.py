@@ -211,7 +211,15 @@ def _transceiver_items(bus: Bus) -> list[BomItem]:
     """The driver's part, then the nodes' parts counted per class (role and unit-load rating)."""
     plan = bus.plan
     standard = "TIA-485-A" if plan.standard == "rs485" else "TIA/EIA-422-B"
-    items = [BomItem("Driver transceiver", bus.driver.label, 1, standard, f"'{plan.driver.name}'")]
+    items = [
+        BomItem(
+            f"Driver transceiver: {bus.driver.label}",
+            f"{bus.driver.unit_loads:.3g} UL",
+            1,
+            standard,
+            f"'{plan.driver.name}'",
+        )
+    ]
     classes: dict[tuple[str, float], list[str]] = {}
     for n in plan.nodes:
         classes.setdefault((n.role, n.unit_loads), []).append(n.name)

@@ -179,7 +179,7 @@ def test_bill_of_materials_lists_terminators_bias_cable_and_transceivers():
         (b.item.split(" (")[0], b.value): b.quantity for b in bom if "ransceiver" in b.item or b.item == "Receiver"
     }
     assert counts == {
-        ("Driver transceiver", "Edge 100 ns (1 Mbit/s class)"): 1,
+        ("Driver transceiver: Edge 100 ns", "0.25 UL"): 1,
         ("Receiver", "1 UL"): 2,
         ("Transceiver", "1 UL"): 1,
     }
