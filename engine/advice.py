@@ -14,6 +14,7 @@ from pairline.engine.design import COVERED_RULES, PlanChange, apply_changes, bes
 from pairline.engine.findings import Finding, Verdict, worst
 from pairline.engine.plan import BusPlan
 from pairline.engine.rules.bias import bias_min_ohm, size_bias
+from pairline.engine.rules.loads import RS485_UNIT_LOAD_BUDGET, bias_unit_loads
 from pairline.engine.ruleset import RuleRun, run_design_rules, run_rules
 from pairline.engine.units import length_text
 
@@ -40,6 +41,7 @@ class Advice:
     changes: tuple[PlanChange, ...]
     run: RuleRun  # the advised plan's check: findings and simulation
     unmet: tuple[Unmet, ...]
+    simulated: bool = True  # False: the quick form, its signal findings are the plan's (see advise)
 
     @property
     def findings(self) -> tuple[Finding, ...]:
@@ -86,13 +88,30 @@ def _with_rules(bus: Bus, base: Sequence[Finding], changes: Sequence[PlanChange]
     return tuple(out)
 
 
-def advise(run: RuleRun) -> Advice:
-    """The advised plan for a checked bus: the best design, its change list and its own full check."""
+def advise(run: RuleRun, *, simulate: bool = True) -> Advice:
+    """The advised plan for a checked bus: the best design, its change list and its own full check.
+
+    simulate=False is the quick form for a verdict while typing: the advised plan's design rules are run, the
+    rest of its findings (stubs, ground offsets, length, the simulated signal) are the plan's own, and remedies
+    that need a further search are left out. The plan, the changes and what they mean for the load rules (and so
+    the spare capacity) are the same as in the full form."""
     bus = run.bus
     design = best_design(bus)
     changes = _with_rules(bus, run.findings, design.changes)
-    advised_run = run if not changes else run_rules(with_plan(bus, design.plan))
-    return Advice(plan=design.plan, changes=changes, run=advised_run, unmet=_unmet(advised_run))
+    if not changes:
+        advised_run = run
+    elif simulate:
+        advised_run = run_rules(with_plan(bus, design.plan))
+    else:
+        kept = [f for f in run.findings if f.rule_id not in {d.rule_id for d in design.findings}]
+        advised_run = RuleRun(with_plan(bus, design.plan), (*design.findings, *kept), run.simulation)
+    return Advice(
+        plan=design.plan,
+        changes=changes,
+        run=advised_run,
+        unmet=_unmet(advised_run, search=simulate),
+        simulated=simulate or not changes,
+    )
 
 
 _NOT_COVERED = {
@@ -106,7 +125,7 @@ _REPEATER = "split the bus with a repeater (each segment has its own budget, ter
 _FAILSAFE = "use receivers with failsafe thresholds on every node (they read an idle terminated bus without bias)"
 
 
-def _unmet(advised: RuleRun) -> tuple[Unmet, ...]:
+def _unmet(advised: RuleRun, *, search: bool = True) -> tuple[Unmet, ...]:
     """Every rule the advised plan still breaks, why, and what can meet it."""
     by_rule: dict[str, list[Finding]] = {}
     for f in advised.findings:
@@ -120,12 +139,14 @@ def _unmet(advised: RuleRun) -> tuple[Unmet, ...]:
         if rule_id in _NOT_COVERED:
             why = _NOT_COVERED[rule_id]
         elif rule_id == "bias.idle_level":
-            why, remedies = _bias_unmet(advised.bus)
+            why, remedies = _bias_unmet(advised.bus, search=search)
         elif rule_id in ("load.unit_loads", "load.driver"):
             why = (
                 "The nodes and the driver's own receiver load the pair this much before any bias or terminator choice."
             )
-            remedies = [r for r in (_lighter_receivers(advised.bus), _REPEATER) if r]
+            bias = advised.bus.plan.bias
+            held = bias_unit_loads(bias.pull_up_ohm, bias.pull_down_ohm) if bias is not None else 0.0
+            remedies = [r for r in (_lighter_receivers(advised.bus, held) if search else "", _REPEATER) if r]
         elif rule_id in ("signal.integrity", "signal.confirms"):
             why = (
                 "The simulated waveform still breaks with the advised terminators and bias: the cause is a stub, "
@@ -137,7 +158,7 @@ def _unmet(advised: RuleRun) -> tuple[Unmet, ...]:
     return tuple(out)
 
 
-def _bias_unmet(bus: Bus) -> tuple[str, list[str]]:
+def _bias_unmet(bus: Bus, *, search: bool = True) -> tuple[str, list[str]]:
     """Why no bias network fits the advised terminators, with the numbers, and what can replace it."""
     unbiased = with_plan(bus, bus.plan.model_copy(update={"bias": None}))
     r_min = bias_min_ohm(unbiased)
@@ -158,26 +179,27 @@ def _bias_unmet(bus: Bus) -> tuple[str, list[str]]:
         f"with the advised terminators that takes {reach}, while {room}."
     )
     remedies = [_FAILSAFE]
-    lighter = _lighter_receivers(bus)
+    held = bias_unit_loads(best.nominal_max_ohm, best.nominal_max_ohm) if best.nominal_max_ohm else 0.0
+    lighter = _lighter_receivers(bus, held) if search else ""
     if lighter:
         remedies.append(lighter)
     remedies.append(_REPEATER)
     return why, remedies
 
 
-def _lighter_receivers(bus: Bus) -> str:
+def _lighter_receivers(bus: Bus, bias_unit_loads: float = 0.0) -> str:
     """Receivers of fewer unit loads, if some rating makes the advice meet every rule it covers (re-checked by
-    advising the edited plan); empty when none does."""
+    advising the edited plan); empty when none does. The first rating tried is the heaviest that leaves room, by
+    arithmetic, for the driver's receiver and a bias of bias_unit_loads; lighter ones follow if it fails."""
     plan = bus.plan
     if plan.standard != "rs485" or not plan.nodes:
         return ""
     heaviest = max(n.unit_loads for n in plan.nodes)
-    for rating in (0.5, 0.25, 0.125):
-        if rating >= heaviest:
-            continue
+    room_each = (RS485_UNIT_LOAD_BUDGET - bus.driver.unit_loads - bias_unit_loads) / len(plan.nodes)
+    ratings = [r for r in (0.5, 0.25, 0.125) if r < heaviest and (r <= room_each or r == 0.125)]
+    for rating in ratings:
         nodes = [n.model_copy(update={"unit_loads": min(n.unit_loads, rating)}) for n in plan.nodes]
-        edited = with_plan(bus, plan.model_copy(update={"nodes": nodes}))
-        design = best_design(edited)
+        design = best_design(with_plan(bus, plan.model_copy(update={"nodes": nodes})))
         if design.breaks == 0:
             steps = " and ".join(c.text for c in design.changes)
             return f"use receivers of {rating:g} UL on every node" + (f", then {steps}" if steps else "")

@@ -36,9 +36,10 @@ class PlanReport:
     engine_version: str
 
 
-def check_plan(plan: BusPlan | dict[str, Any]) -> PlanReport:
+def check_plan(plan: BusPlan | dict[str, Any], *, simulate_advice: bool = True) -> PlanReport:
     """Run every rule on a plan, advise, and summarise. A dict is validated first; input that cannot be modelled
-    raises BusInputError."""
+    raises BusInputError. simulate_advice=False is the quick form for a verdict while typing (engine.advice.advise):
+    the same findings, advised plan, change list and spare capacity, without simulating the advised plan."""
     if not isinstance(plan, BusPlan):
         plan = load_plan(plan)
     problems = cross_field_problems(plan_to_dict(plan))
@@ -46,7 +47,7 @@ def check_plan(plan: BusPlan | dict[str, Any]) -> PlanReport:
         raise BusInputError(problems)
     bus = build_bus(plan)
     run = run_rules(bus)
-    advice = advise(run)
+    advice = advise(run, simulate=simulate_advice)
     capacity = receiver_capacity(advice.run.bus, advice.findings)
     findings = verified_findings(run, advice)
     return PlanReport(
@@ -125,6 +126,7 @@ def advice_to_dict(advice: Advice) -> dict[str, Any]:
         "plan": plan_to_dict(advice.plan),
         "changes": [change_to_dict(c) for c in advice.changes],
         "verdict": advice.verdict.value,
+        "simulated": advice.simulated,
         "counts": {v.value: sum(1 for f in findings if f.verdict is v) for v in Verdict},
         "unmet": [
             {"rule_id": u.rule_id, "nodes": list(u.nodes), "why": u.why, "remedies": list(u.remedies), "text": u.text}

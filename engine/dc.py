@@ -98,10 +98,32 @@ def solve_dc_cases_v(
     diag += 1e-15  # a tiny leak to the return conductor keeps a bus with every load open solvable
     diag[:-1] += link_siemens[:, None]
     diag[1:] += link_siemens[:, None]
-    v_trunk = _thomas_v(link_siemens, diag, rhs).T  # (n_cases, n)
+    v_trunk = _chain_solve_v(link_siemens, diag, rhs).T  # (n_cases, n)
     v_tap = v_trunk[:, at]  # (n_cases, n_elements)
     current_a = (v_tap - sources_v) * branch_siemens  # into each element from the trunk
     return np.asarray(v_tap - current_a * stub_ohm, dtype=float)
+
+
+_DENSE_ENTRIES = 4_000_000  # up to this many matrix entries one LAPACK call beats the Python-level sweep
+
+
+def _chain_solve_v(link_siemens: np.ndarray, diag: np.ndarray, rhs: np.ndarray) -> np.ndarray:
+    """Solve the chain's tridiagonal system for every case. diag, rhs  # (n, n_cases)
+
+    Small chains go to LAPACK as dense matrices (one matrix for every case when the cases share it, else a
+    batch); long chains with many differing cases use the Thomas sweep, O(n) per case."""
+    n, n_cases = diag.shape
+    shared = bool(np.all(diag == diag[:, :1]))
+    if n * n * (1 if shared else n_cases) > _DENSE_ENTRIES:
+        return _thomas_v(link_siemens, diag, rhs)
+    off = np.zeros((n, n))
+    idx = np.arange(n - 1)
+    off[idx, idx + 1] = -link_siemens
+    off[idx + 1, idx] = -link_siemens
+    if shared:
+        return np.asarray(np.linalg.solve(off + np.diag(diag[:, 0]), rhs), dtype=float)
+    matrices = off[None, :, :] + diag.T[:, :, None] * np.eye(n)[None, :, :]  # (n_cases, n, n)
+    return np.asarray(np.linalg.solve(matrices, rhs.T[:, :, None])[:, :, 0].T, dtype=float)
 
 
 def _thomas_v(link_siemens: np.ndarray, diag: np.ndarray, rhs: np.ndarray) -> np.ndarray:

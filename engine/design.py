@@ -25,7 +25,7 @@ from pairline.engine.bus import Bus
 from pairline.engine.dc import bias_supply_v
 from pairline.engine.findings import Finding, Verdict
 from pairline.engine.plan import BiasSpec, BusPlan, TerminationSpec
-from pairline.engine.rules.bias import BiasSizing, bias_text, size_bias
+from pairline.engine.rules.bias import BiasSizing, bias_min_ohm, bias_text, size_bias
 from pairline.engine.rules.cable_ends import (
     end_name,
     lumped_load_ohm,
@@ -317,8 +317,8 @@ def _sized_bias(bus: Bus, kind: str, position_m: float, tier: int) -> BiasSpec |
             return None
         unbiased = with_plan(bus, apply_changes(plan, terminators).model_copy(update={"bias": None}))
         r = _bias_value_ohm(size_bias(unbiased, position_m, supply if supply is not None else plan.supply_v), tier)
-        if r <= 0.0:
-            return None
+        if r <= 0.0 or (tier > 0 and r < bias_min_ohm(unbiased)):
+            return None  # the nominal tiers only serve when they fit the room; below it the load rules break
         new = BiasSpec(position_m=position_m, pull_up_ohm=r, pull_down_ohm=r, supply_v=supply)
         if new == bias:
             break
@@ -339,9 +339,14 @@ def best_design(bus: Bus) -> Design:
     kinds = ["plan", "parallel", "rc"] + (["none"] if line_may_stay_unterminated(bus) else [])
     has_rc = any(t.kind == "rc" for t in plan.terminations)
     best: Design | None = None
+    seen: set[tuple[str, BiasSpec | None]] = set()
 
-    def consider(d: Design | None) -> None:
+    def consider(kind: str, bias: BiasSpec | None, order: int) -> None:
         nonlocal best
+        if (kind, bias) in seen:
+            return
+        seen.add((kind, bias))
+        d = _design(bus, kind, bias, order)
         if d is not None and (best is None or d.key() < best.key()):
             best = d
 
@@ -351,16 +356,16 @@ def best_design(bus: Bus) -> Design:
         if kind == "parallel" and not has_rc:
             continue  # the "plan" kind already built parallel terminators
         if plan.bias is not None or not wants_bias:
-            consider(_design(bus, kind, plan.bias, 0))
+            consider(kind, plan.bias, 0)
         if not wants_bias:
             continue
-        consider(_design(bus, kind, None, 99))
+        consider(kind, None, 99)
         for tier in range(3):
             if tier and best is not None and best.breaks == 0:
                 break
             for order, position in enumerate(bias_positions(plan), start=1):
                 bias = _sized_bias(bus, kind, position, tier)
                 if bias is not None:
-                    consider(_design(bus, kind, bias, order))
+                    consider(kind, bias, order)
     assert best is not None  # the "plan" kind always builds
     return best

@@ -4,6 +4,7 @@ The rules that depend on the terminators and the bias network (DESIGN_RULES) are
 solves; the advice re-runs them on every design it weighs. The simulation runs once per plan checked.
 """
 
+import functools
 from collections.abc import Callable
 from dataclasses import dataclass
 
@@ -36,6 +37,7 @@ RULES: tuple[RuleCheck, ...] = (
     check_resistor_power,
     check_signal_integrity,
 )
+# Weighed for their verdicts only, so the bias rule skips its fix sentence here.
 DESIGN_RULES: tuple[RuleCheck, ...] = (
     check_unit_loads,
     check_driver_load,
@@ -43,7 +45,7 @@ DESIGN_RULES: tuple[RuleCheck, ...] = (
     check_unterminated,
     check_ac_termination,
     check_receiver_voltage,
-    check_failsafe_bias,
+    functools.partial(check_failsafe_bias, with_fix=False),
     check_resistor_power,
 )
 SIGNAL_RULE_IDS = frozenset({"signal.integrity", "signal.confirms"})
@@ -67,5 +69,5 @@ def run_rules(bus: Bus) -> RuleRun:
 
 
 def run_design_rules(bus: Bus) -> tuple[Finding, ...]:
-    """The rules a change of terminators or bias can move (no simulation)."""
+    """The rules a change of terminators or bias can move (no simulation), for their verdicts and values."""
     return tuple(f for rule in DESIGN_RULES for f in rule(bus))

@@ -22,7 +22,15 @@ from pairline.engine.rules.length_rate import (
 from pairline.engine.sweep import LengthRateCurve, length_rate_curve
 from pairline.engine.waveform import Waveforms, simulate_pattern
 
-__all__ = ["CheckedPlan", "PlanReport", "check_and_simulate", "check_only", "report_to_dict", "worst_receiver"]
+__all__ = [
+    "CheckedPlan",
+    "PlanReport",
+    "check_and_simulate",
+    "check_only",
+    "quick_check",
+    "report_to_dict",
+    "worst_receiver",
+]
 
 
 @dataclass(frozen=True, slots=True)
@@ -39,6 +47,11 @@ class CheckedPlan:
 def check_only(plan: BusPlan) -> PlanReport:
     """The report alone (for the bill of materials and the advised plan), without drawing waveforms or the curve."""
     return check_plan(plan)
+
+
+def quick_check(plan: BusPlan) -> PlanReport:
+    """The report for a verdict while typing: the advised plan is not simulated again (engine.check.check_plan)."""
+    return check_plan(plan, simulate_advice=False)
 
 
 SIGNAL_RULE = "signal.integrity"  # the finding that judges each receiver's simulated signal

@@ -181,8 +181,10 @@ def _capital(text: str) -> str:
     return text[:1].upper() + text[1:]
 
 
-def check_failsafe_bias(bus: Bus) -> list[Finding]:
-    """Idle-bus level with the plan's bias (or none) vs the 200 mV receiver threshold; one whole-bus finding."""
+def check_failsafe_bias(bus: Bus, *, with_fix: bool = True) -> list[Finding]:
+    """Idle-bus level with the plan's bias (or none) vs the 200 mV receiver threshold; one whole-bus finding.
+    with_fix=False leaves the fix sentence out (its sizing is the costly part), for callers that only weigh
+    verdicts."""
     r_eq = idle_load_ohm(bus)
     supply_v = bias_supply_v(bus)
     criterion = (
@@ -213,7 +215,7 @@ def check_failsafe_bias(bus: Bus) -> list[Finding]:
                 None,
                 criterion,
                 SOURCE,
-                fix="" if verdict is Verdict.HOLDS else f"Add failsafe bias: {_standalone_fix(bus)}.",
+                fix="" if verdict is Verdict.HOLDS or not with_fix else f"Add failsafe bias: {_standalone_fix(bus)}.",
                 detail="With every driver off the pair idles at 0 V, inside the undefined band. "
                 + FAILSAFE_NOTE
                 + rs422_note,
@@ -247,7 +249,7 @@ def check_failsafe_bias(bus: Bus) -> list[Finding]:
             None,
             criterion,
             SOURCE,
-            fix="" if verdict is Verdict.HOLDS else f"Change the bias: {_standalone_fix(bus)}.",
+            fix="" if verdict is Verdict.HOLDS or not with_fix else f"Change the bias: {_standalone_fix(bus)}.",
             detail=detail,
             limit_kind="min",
             figures=(("corner_v", v_corner),),
