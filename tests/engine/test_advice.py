@@ -304,3 +304,14 @@ def test_a_rate_fix_followed_makes_the_rate_rule_hold(length_m):
     doc["bit_rate_bps"] = rate
     after = next(f for f in check_length_vs_rate(build_bus(load_plan(doc))) if f.rule_id == "length.rate_rule")
     assert after.verdict is Verdict.HOLDS
+
+
+def test_the_quick_check_gives_the_same_advice_and_capacity():
+    # The live verdict's quick form leaves out only the advised plan's second simulation: the advised plan, its
+    # changes, the verified fixes and the one capacity answer are those of the full check.
+    doc = _doc(bias={"position_m": 0.0, "pull_up_ohm": 130.0, "pull_down_ohm": 130.0})
+    full, quick = check_plan(doc), check_plan(doc, simulate_advice=False)
+    assert quick.advice.plan == full.advice.plan and quick.advice.changes == full.advice.changes
+    assert quick.capacity == full.capacity
+    assert [f.fix for f in quick.findings] == [f.fix for f in full.findings]
+    assert full.advice.simulated and not quick.advice.simulated

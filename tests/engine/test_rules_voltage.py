@@ -3,7 +3,7 @@
 import numpy as np
 import pytest
 from pairline.engine.bus import build_bus
-from pairline.engine.dc import DcElement, loop_resistance_ohm, solve_dc_v
+from pairline.engine.dc import DcElement, loop_resistance_ohm, solve_dc_cases_v, solve_dc_v
 from pairline.engine.findings import Verdict
 from pairline.engine.plan import load_plan
 from pairline.engine.rules.voltage import RECEIVER_THRESHOLD_V, check_receiver_voltage, driven_levels
@@ -198,3 +198,28 @@ def test_a_far_transceiver_talking_sets_the_weakest_level():
     east = next(f for f in check_receiver_voltage(bus) if f.node == "east")
     assert east.value == pytest.approx(expected_v, rel=1e-6)
     assert "'west' talks" in east.detail
+
+
+def test_a_long_chain_swept_in_o_n_agrees_with_a_dense_nodal_solve():
+    # Source: an independent second route: Kirchhoff's current law as a full nodal matrix, solved by numpy's LU
+    # solve, for a ladder long enough (1500 taps, three cases that differ) that the engine sweeps the chain.
+    rng = np.random.default_rng(7)
+    n_taps, r_per_m, length_m = 1500, 0.0842, 749.5
+    elements = [DcElement(f"t{k}", 0.5 * k, 0.0, float(rng.uniform(100.0, 20_000.0))) for k in range(n_taps)]
+    resistance = np.tile([e.resistance_ohm for e in elements], (3, 1))
+    resistance[:, 0] = 40.0
+    resistance[1, 700] = 120.0  # a terminator in one case only: each case has its own matrix
+    resistance[2, 1499] = 120.0
+    sources = np.zeros((3, n_taps))
+    sources[:, 0] = [4.0, 4.0, 2.5]
+    got = solve_dc_cases_v(elements, resistance, sources, length_m, r_per_m)
+    link = 1.0 / (2.0 * r_per_m * 0.5)
+    for case in range(3):
+        g = np.diag(1.0 / resistance[case]) + np.diag(np.full(n_taps, 2.0 * link))
+        g[0, 0] -= link  # the chain's ends have one neighbour each
+        g[-1, -1] -= link
+        idx = np.arange(n_taps - 1)
+        g[idx, idx + 1] = -link
+        g[idx + 1, idx] = -link
+        want = np.linalg.solve(g, sources[case] / resistance[case])
+        np.testing.assert_allclose(got[case], want, rtol=1e-9, atol=1e-12)  # V
