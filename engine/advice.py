@@ -5,6 +5,7 @@ receivers, lighter receivers, a repeater, a shorter stub, a lower bit rate); a r
 re-checked (the edited plan advised again) before it is offered.
 """
 
+import dataclasses
 from collections.abc import Sequence
 from dataclasses import dataclass
 
@@ -55,7 +56,7 @@ class Advice:
 # --- advising ----------------------------------------------------------------------------------------------------
 
 
-def _badness(findings: Sequence[Finding]) -> dict[str, int]:
+def badness_by_rule(findings: Sequence[Finding]) -> dict[str, int]:
     """Per rule, the sum of its findings' verdict ranks: lower is better."""
     out: dict[str, int] = {}
     for f in findings:
@@ -65,26 +66,12 @@ def _badness(findings: Sequence[Finding]) -> dict[str, int]:
 
 def _with_rules(bus: Bus, base: Sequence[Finding], changes: Sequence[PlanChange]) -> tuple[PlanChange, ...]:
     """Each change with the rules it moves for the better when made alone on the plan (re-checked)."""
-    before = _badness([f for f in base if f.rule_id in COVERED_RULES])
+    before = badness_by_rule([f for f in base if f.rule_id in COVERED_RULES])
     out = []
     for change in changes:
-        after = _badness(run_design_rules(with_plan(bus, apply_changes(bus.plan, [change]))))
+        after = badness_by_rule(run_design_rules(with_plan(bus, apply_changes(bus.plan, [change]))))
         improved = tuple(r for r in {**before, **after} if after.get(r, 0) < before.get(r, 0))
-        out.append(
-            PlanChange(
-                change.part,
-                change.where,
-                change.removed,
-                change.added,
-                change.bias_before,
-                change.bias_after,
-                change.before_text,
-                change.after_text,
-                change.text,
-                change.why,
-                improved,
-            )
-        )
+        out.append(dataclasses.replace(change, rule_ids=improved))
     return tuple(out)
 
 

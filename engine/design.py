@@ -34,7 +34,8 @@ from pairline.engine.rules.cable_ends import (
     terminator_value_ohm,
 )
 from pairline.engine.rules.preferred import E24, E96, preferred_at_or_above, preferred_at_or_below
-from pairline.engine.rules.termination import ends_to_terminate_m, gamma_verdict, rc_capacitance_window_f
+from pairline.engine.rules.rc_termination import rc_capacitance_window_f
+from pairline.engine.rules.termination import ends_to_terminate_m, gamma_verdict
 from pairline.engine.rules.unterminated import line_may_stay_unterminated
 from pairline.engine.ruleset import run_design_rules
 from pairline.engine.units import length_text, si_format
@@ -148,11 +149,10 @@ def _terminator_changes(bus: Bus, kind: str, original: Bus) -> list[PlanChange] 
         where = end_name(bus, end)
         if end not in ends:
             if present:
+                unwanted = kind != "none" and end not in required_ends_m(bus)
                 reason = (
-                    "the line may stay unterminated"
-                    if kind == "none"
-                    else "the driver's low output impedance ends the line there"
-                    if end not in required_ends_m(bus)
+                    "the driver's low output impedance ends the line there"
+                    if unwanted
                     else "the line may stay unterminated"
                 )
                 changes.append(_removal(present, where, reason))

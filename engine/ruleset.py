@@ -15,9 +15,10 @@ from pairline.engine.rules.common_mode import check_common_mode
 from pairline.engine.rules.length_rate import check_length_vs_rate
 from pairline.engine.rules.loads import check_driver_load, check_unit_loads
 from pairline.engine.rules.power import check_resistor_power
+from pairline.engine.rules.rc_termination import check_ac_termination
 from pairline.engine.rules.signal import Simulation, check_signal_integrity, simulate_bus
 from pairline.engine.rules.stubs import check_stubs
-from pairline.engine.rules.termination import check_ac_termination, check_termination
+from pairline.engine.rules.termination import check_termination
 from pairline.engine.rules.unterminated import check_unterminated
 from pairline.engine.rules.voltage import check_receiver_voltage
 

@@ -14,18 +14,10 @@ statement of why and what can.
 import dataclasses
 from collections.abc import Sequence
 
-from pairline.engine.advice import Advice
+from pairline.engine.advice import Advice, badness_by_rule
 from pairline.engine.design import COVERED_RULES, PlanChange, apply_changes, with_plan
 from pairline.engine.findings import Finding, Verdict
 from pairline.engine.ruleset import SIGNAL_RULE_IDS, RuleRun, run_design_rules
-
-
-def _badness_by_rule(findings: Sequence[Finding]) -> dict[str, int]:
-    """Per rule, the sum of its findings' verdict ranks: lower is better."""
-    out: dict[str, int] = {}
-    for f in findings:
-        out[f.rule_id] = out.get(f.rule_id, 0) + f.verdict.rank
-    return out
 
 
 def _badness(findings: Sequence[Finding], like: Finding) -> int:
@@ -66,7 +58,7 @@ class _Checker:
         self.changes = advice.changes
         self.cache: dict[frozenset[int], tuple[Finding, ...]] = {}
         self.original = _by_rule(self.state(frozenset()) if advice.changes else ())
-        self.advised = _badness_by_rule(self.state(frozenset(range(len(self.changes))))) if advice.changes else {}
+        self.advised = badness_by_rule(self.state(frozenset(range(len(self.changes))))) if advice.changes else {}
 
     def state(self, chosen: frozenset[int]) -> tuple[Finding, ...]:
         if chosen not in self.cache:
@@ -77,7 +69,7 @@ class _Checker:
     def regressions(self, chosen: frozenset[int]) -> set[str]:
         """Rules the chosen changes move and leave worse than the advised plan has them."""
         state = self.state(chosen)
-        now = _badness_by_rule(state)
+        now = badness_by_rule(state)
         moved = _by_rule(state)
         return {r for r, b in now.items() if b > self.advised.get(r, 0) and moved[r] != self.original.get(r)}
 

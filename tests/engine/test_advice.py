@@ -43,6 +43,15 @@ def _breaks(findings, rule_id):
     return [f for f in findings if f.rule_id == rule_id and f.verdict is Verdict.BREAKS]
 
 
+def _load_rules_hold(bus):
+    """Neither the unit-load budget, the driver load nor the idle level breaks."""
+    return not (
+        _breaks(check_unit_loads(bus), "load.unit_loads")
+        or _breaks(check_driver_load(bus), "load.driver")
+        or _breaks(check_failsafe_bias(bus), "bias.idle_level")
+    )
+
+
 def test_building_the_advice_never_breaks_the_terminator_it_sized():
     # A 130 / 130 Ohm bias loads the 0 m end with 260 Ohm: 120 Ohm there reflects (120 || 260 - 120) / (...) =
     # -0.19 (common practice). The advice may change bias and terminator, but only together: every terminator of
@@ -128,12 +137,7 @@ def test_one_answer_to_how_many_more_receivers():
         return build_bus(report.advice.plan.model_copy(update={"nodes": nodes}))
 
     def fits(count):
-        bus = with_more(count)
-        return not (
-            _breaks(check_unit_loads(bus), "load.unit_loads")
-            or _breaks(check_driver_load(bus), "load.driver")
-            or _breaks(check_failsafe_bias(bus), "bias.idle_level")
-        )
+        return _load_rules_hold(with_more(count))
 
     assert fits(one_ul.count) and not fits(one_ul.count + 1)
     assert unit_load_total(advised) + one_ul.count <= 32.0 + 1e-9
@@ -155,11 +159,7 @@ def test_a_bias_that_fits_mid_trunk_is_found_not_declared_impossible():
     for position in (0.0, 75.0, 150.0, 225.0, 300.0):
         for r in (560.0, 576.0, 590.0, 604.0, 619.0, 620.0, 634.0, 649.0, 665.0, 680.0):
             bus = build_bus(load_plan(_doc(bias={"position_m": position, "pull_up_ohm": r, "pull_down_ohm": r})))
-            if not (
-                _breaks(check_unit_loads(bus), "load.unit_loads")
-                or _breaks(check_driver_load(bus), "load.driver")
-                or _breaks(check_failsafe_bias(bus), "bias.idle_level")
-            ):
+            if _load_rules_hold(bus):
                 found.append((position, r))
     assert found, "the scenario must have a fitting pair"
     assert "bias.idle_level" not in unmet and report.advice.plan.bias is not None

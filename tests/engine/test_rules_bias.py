@@ -127,27 +127,25 @@ def test_sized_bias_keeps_a_long_bus_far_end_above_threshold_at_the_worst_corner
     assert check_failsafe_bias(looser)[0].verdict is not Verdict.HOLDS
 
 
-def test_242_mv_with_5_percent_parts_and_a_low_supply_still_holds():
-    # common practice (worst-case arithmetic): 560 Ohm each from 5 V over 120 || 120 || 13 x 12 kOhm (56.3 Ohm)
-    # idles at 5 x 56.3 / (1120 + 56.3) = 0.239 V; with 4.75 V (5 V - 5 %), 588 Ohm (+5 %) and terminators at
-    # 114 Ohm (-5 %): 4.75 x 53.6 / (1176 + 53.6) = 0.207 V, still above the 200 mV threshold (TIA/EIA-485-A).
+@pytest.mark.parametrize(
+    ("r_b", "nominal_v", "corner_v", "verdict"),
+    [
+        # common practice (worst-case arithmetic): 560 Ohm each from 5 V over 120 || 120 || 13 x 12 kOhm
+        # (56.3 Ohm) idles at 5 x 56.3 / (1120 + 56.3) = 0.239 V; with 4.75 V (5 V - 5 %), 588 Ohm (+5 %) and
+        # terminators at 114 Ohm (-5 %): 4.75 x 53.6 / (1176 + 53.6) = 0.207 V, still above the 200 mV threshold
+        # (TIA/EIA-485-A): holds.
+        (560.0, 0.239, 0.207, Verdict.HOLDS),
+        # 620 Ohm: 5 x 56.3 / 1296.3 = 0.217 V nominal, 4.75 x 53.6 / (1302 + 53.6) = 0.188 V at the corner: tight.
+        (620.0, 0.217, 0.188, Verdict.TIGHT),
+    ],
+)
+def test_the_tight_band_is_the_worst_corner_of_parts_and_supply(r_b, nominal_v, corner_v, verdict):
     nodes = [{"name": f"n{i}", "position_m": 8.0 * i, "unit_loads": 1.0} for i in range(1, 13)]
-    bus = _bus(cable=LOSSLESS, nodes=nodes, bias={"position_m": 0.0, "pull_up_ohm": 560.0, "pull_down_ohm": 560.0})
+    bus = _bus(cable=LOSSLESS, nodes=nodes, bias={"position_m": 0.0, "pull_up_ohm": r_b, "pull_down_ohm": r_b})
     finding = check_failsafe_bias(bus)[0]
-    assert finding.value == pytest.approx(0.239, abs=1e-3)  # V
-    assert finding.figure("corner_v") == pytest.approx(0.207, abs=1e-3)  # V
-    assert finding.verdict is Verdict.HOLDS
-
-
-def test_a_level_that_only_the_worst_corner_takes_below_200_mv_is_tight():
-    # common practice (arithmetic): 620 Ohm each from 5 V over the same 56.3 Ohm gives 5 x 56.3 / 1296.3 =
-    # 0.217 V nominal; at the corner 4.75 x 53.6 / (1302 + 53.6) = 0.188 V, below 200 mV.
-    nodes = [{"name": f"n{i}", "position_m": 8.0 * i, "unit_loads": 1.0} for i in range(1, 13)]
-    bus = _bus(cable=LOSSLESS, nodes=nodes, bias={"position_m": 0.0, "pull_up_ohm": 620.0, "pull_down_ohm": 620.0})
-    finding = check_failsafe_bias(bus)[0]
-    assert finding.value == pytest.approx(0.217, abs=1e-3)  # V
-    assert finding.figure("corner_v") == pytest.approx(0.188, abs=1e-3)  # V
-    assert finding.verdict is Verdict.TIGHT
+    assert finding.value == pytest.approx(nominal_v, abs=1e-3)  # V
+    assert finding.figure("corner_v") == pytest.approx(corner_v, abs=1e-3)  # V
+    assert finding.verdict is verdict
 
 
 @settings(max_examples=40, deadline=None)

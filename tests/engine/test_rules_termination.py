@@ -5,8 +5,8 @@ from pairline.engine.bus import build_bus
 from pairline.engine.findings import Verdict, worst
 from pairline.engine.plan import load_plan
 from pairline.engine.rules.cable_ends import end_tolerance_m, required_ends_m
+from pairline.engine.rules.rc_termination import check_ac_termination
 from pairline.engine.rules.termination import (
-    check_ac_termination,
     check_termination,
     corrected_termination_ohm,
     recommended_termination_ohm,
