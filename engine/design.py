@@ -217,7 +217,9 @@ def _replacement(present: list[TerminationSpec], new: TerminationSpec, where: st
         )
     else:
         text = f"change the terminator at {where} from {_term_text(present[0])} to {after}"
-        why = "so the end matches the cable with what else is lumped there (R_T || R_P = Z0), capacitor in its window"
+        why = "so the end matches the cable with what else is lumped there (R_T || R_P = Z0)" + (
+            ", its capacitor inside the window the round trip and the bit leave" if new.kind == "rc" else ""
+        )
     before = " and ".join(_term_text(t) for t in present) or "none"
     return PlanChange("terminator", where, tuple(present), (new,), None, None, before, after, text, why)
 

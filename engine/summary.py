@@ -16,6 +16,7 @@ from pairline.engine.capacity import Capacity
 from pairline.engine.dc import bias_supply_v
 from pairline.engine.design import PlanChange
 from pairline.engine.findings import Finding
+from pairline.engine.plan import BusPlan, TerminationSpec
 from pairline.engine.rules.margins import LENGTH_ALLOWANCE, long_run_factor
 from pairline.engine.rules.power import rating_text
 from pairline.engine.units import length_text, si_format
@@ -74,6 +75,11 @@ class PlanSummary:
         return self.capacity.further_nodes
 
 
+def _by_position(plan: BusPlan) -> list[TerminationSpec]:
+    """The plan's terminators along the trunk, as a reader looks for them."""
+    return sorted(plan.terminations, key=lambda t: t.position_m)
+
+
 def _power(findings: tuple[Finding, ...], prefix: str) -> float:
     """The rating the power rule gives a family of parts (every part of one family is rated alike)."""
     return next(
@@ -87,7 +93,7 @@ def summarise(original: Bus, advice: Advice, capacity: Capacity) -> PlanSummary:
     plan = advice.plan
     term_w = _power(findings, "terminator")
     terminators = tuple(
-        TerminatorAdvice(t.position_m, t.kind, t.resistance_ohm, t.capacitance_f, term_w) for t in plan.terminations
+        TerminatorAdvice(t.position_m, t.kind, t.resistance_ohm, t.capacitance_f, term_w) for t in _by_position(plan)
     )
     bias = None
     bias_note = ""
@@ -148,7 +154,7 @@ def bill_of_materials(original: Bus, advice: Advice, summary: PlanSummary) -> tu
     plan = advice.plan
     items: list[BomItem] = []
     groups: dict[tuple[float, str], list[float]] = {}
-    for spec, t in zip(plan.terminations, summary.terminators, strict=True):
+    for spec, t in zip(_by_position(plan), summary.terminators, strict=True):
         groups.setdefault((t.resistance_ohm, _change_note(advice.changes, "terminator", spec)), []).append(t.position_m)
     rating = rating_text(summary.terminators[0].power_rating_w) if summary.terminators else ""
     for (r, note), where in groups.items():
