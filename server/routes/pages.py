@@ -3,19 +3,24 @@
 import csv
 import io
 import json
+import unicodedata
 from typing import Annotated, Any
+from urllib.parse import quote
 
 from fastapi import APIRouter, Depends, Request
 from fastapi.responses import JSONResponse, RedirectResponse, Response
-from pairline.engine import ENGINE_VERSION
 from pairline.engine.plan import BusInputError, BusPlan, Problem, load_plan, plan_to_dict
-from pairline.server.app import render
+from pairline.server.checking import Checker, CheckRefused, saved_key
 from pairline.server.errors import not_found
 from pairline.server.forms import FormState, form_from_plan, merge_problems, parse_form, with_units
+from pairline.server.json_input import JsonInputError, load_json
+from pairline.server.openapi import FORM_BODY, IMPORT_BODY
 from pairline.server.quantities import UnitSystem
-from pairline.server.results import check_and_simulate, check_only
+from pairline.server.rendering import render, render_bytes
+from pairline.server.saving import save_checked_plan
 from pairline.server.store import PlanStore, SavedPlan
-from pairline.server.views import bom_rows, editor_data, plan_data, start_data
+from pairline.server.views import editor_data, start_data
+from starlette.concurrency import run_in_threadpool
 
 router = APIRouter()
 MAX_FORM_FIELDS = 8000  # 512 node rows of 8 inputs, plus the rest
@@ -28,6 +33,14 @@ def get_store(request: Request) -> PlanStore:
 
 
 StoreDep = Annotated[PlanStore, Depends(get_store)]
+
+
+def get_checker(request: Request) -> Checker:
+    checker: Checker = request.app.state.checker
+    return checker
+
+
+CheckerDep = Annotated[Checker, Depends(get_checker)]
 
 
 def page(request: Request, template: str, data: dict[str, Any], as_json: bool, status_code: int = 200) -> Response:
@@ -51,7 +64,7 @@ def start_page(request: Request, store: StoreDep) -> Response:
     return page(request, "start.html", start_data(store.samples()), as_json)
 
 
-@router.post("/import")
+@router.post("/import", openapi_extra=IMPORT_BODY)
 async def import_plan(request: Request, store: StoreDep) -> Response:
     """A plan file uploaded or pasted: validated like any plan, saved, then opened (303 to its URL)."""
     async with request.form(max_fields=20) as form:
@@ -70,26 +83,18 @@ async def import_plan(request: Request, store: StoreDep) -> Response:
                 [Problem("plan_text", "Plan", "", {"type": "JSON object"}, "Choose a plan file or paste its JSON.")]
             )
         try:
-            doc = json.loads(text)
-        except json.JSONDecodeError as exc:
+            doc = load_json(text, request.app.state.settings.max_json_depth)
+        except JsonInputError as exc:
             raise BusInputError(
-                [
-                    Problem(
-                        "plan_text",
-                        "Plan",
-                        text[:80],
-                        {"type": "JSON object"},
-                        f"The plan is not valid JSON (line {exc.lineno}, column {exc.colno}: {exc.msg}).",
-                    )
-                ]
-            ) from exc
+                [Problem("plan_text", "Plan", text[:80], {"type": "JSON object"}, f"The plan cannot be read: {exc}.")]
+            ) from None
         units = "imperial" if isinstance(doc, dict) and doc.get("display_units") == "imperial" else "metric"
         plan = load_plan(doc)
+        plan_id, _ = await run_in_threadpool(save_checked_plan, request, plan, None)
     except BusInputError as exc:
         problems = exc.problems
     if problems:
         return render(request, "start.html", start_data(store.samples(), problems, pasted, units), status_code=422)
-    plan_id = store.save_plan(plan_to_dict(plan), engine_version=ENGINE_VERSION)
     return RedirectResponse(f"/plans/{plan_id}", status_code=303)
 
 
@@ -141,13 +146,13 @@ def edit_page(request: Request, ref: str, store: StoreDep) -> Response:
     return page(request, "editor.html", data, request.url.path.endswith(".json"))
 
 
-@router.post("/plans")
-async def submit_plan(request: Request, store: StoreDep) -> Response:
+@router.post("/plans", openapi_extra=FORM_BODY)
+async def submit_plan(request: Request, store: StoreDep, checker: CheckerDep) -> Response:
     """The editor's form (or a checked draft's save button). Check renders the report; save answers 303."""
     async with request.form(max_fields=MAX_FORM_FIELDS) as form:
         fields = {k: v for k, v in form.items() if isinstance(v, str)}
     if "plan_json" in fields:
-        return _save_draft(fields, store)
+        return await _save_draft(request, fields)
     parsed = parse_form(fields)
     state = parsed.state
     if parsed.action in ("add_node", "add_termination", "units"):
@@ -166,11 +171,16 @@ async def submit_plan(request: Request, store: StoreDep) -> Response:
         state.problems = merge_problems(parsed.problems, exc.problems)
     if plan is None or parsed.problems:
         return render(request, "editor.html", editor_data(state, title=_editor_title(state)), status_code=422)
-    if parsed.action == "save":
-        plan_id = store.save_plan(plan_to_dict(plan), engine_version=ENGINE_VERSION, parent_id=_parent(store, state))
-        return RedirectResponse(f"/plans/{plan_id}", status_code=303)
-    data = plan_data(check_and_simulate(plan), None)
-    data["draft"] = {"plan_json": json.dumps(plan_to_dict(plan)), "parent_id": _parent(store, state)}
+    try:
+        if parsed.action == "save":
+            plan_id, _ = await run_in_threadpool(save_checked_plan, request, plan, state.parent_id)
+            return RedirectResponse(f"/plans/{plan_id}", status_code=303)
+        data = json.loads(await run_in_threadpool(checker.draft_data, plan))
+    except CheckRefused as exc:
+        state.problems = exc.problems
+        return render(request, "editor.html", editor_data(state, title=_editor_title(state)), status_code=422)
+    parent = await run_in_threadpool(_parent, store, state.parent_id)
+    data["draft"] = {"plan_json": json.dumps(plan_to_dict(plan)), "parent_id": parent}
     return render(request, "plan.html", data)
 
 
@@ -178,52 +188,62 @@ def _editor_title(state: FormState) -> str:
     return "Edit a copy" if state.parent_id else "New bus plan"
 
 
-def _parent(store: PlanStore, state: FormState) -> str | None:
-    return state.parent_id if state.parent_id and store.get_plan(state.parent_id) else None
+def _parent(store: PlanStore, parent_id: str | None) -> str | None:
+    return parent_id if parent_id and store.get_plan(parent_id) else None
 
 
-def _save_draft(fields: dict[str, str], store: PlanStore) -> Response:
+async def _save_draft(request: Request, fields: dict[str, str]) -> Response:
     try:
-        doc = json.loads(fields["plan_json"])
-    except json.JSONDecodeError as exc:
+        doc = load_json(fields["plan_json"], request.app.state.settings.max_json_depth)
+    except JsonInputError as exc:
         raise BusInputError(
-            [Problem("plan_json", "Plan", None, {"type": "JSON object"}, f"The plan is not valid JSON ({exc.msg}).")]
-        ) from exc
+            [Problem("plan_json", "Plan", None, {"type": "JSON object"}, f"The plan cannot be read: {exc}.")]
+        ) from None
     plan = load_plan(doc)
-    parent = fields.get("parent_id") or None
-    parent = parent if parent and store.get_plan(parent) else None
-    plan_id = store.save_plan(plan_to_dict(plan), engine_version=ENGINE_VERSION, parent_id=parent)
+    plan_id, _ = await run_in_threadpool(save_checked_plan, request, plan, fields.get("parent_id") or None)
     return RedirectResponse(f"/plans/{plan_id}", status_code=303)
 
 
 # --- saved plans ------------------------------------------------------------------------------------------
 
 
-def _saved(store: PlanStore, plan_id: str) -> tuple[SavedPlan, BusPlan] | None:
-    saved = store.get_plan(plan_id)
-    if saved is None:
-        return None
-    return saved, load_plan(saved.plan)
+def _receiver_names(saved: SavedPlan) -> set[str]:
+    nodes = saved.plan.get("nodes")
+    return {n["name"] for n in nodes if isinstance(n, dict) and isinstance(n.get("name"), str)} if nodes else set()
 
 
 @router.get("/plans/{ref}")
-def plan_page(request: Request, ref: str, store: StoreDep, receiver: str | None = None) -> Response:
+def plan_page(
+    request: Request, ref: str, store: StoreDep, checker: CheckerDep, receiver: str | None = None
+) -> Response:
+    """A saved plan, checked: rendered from the results cache when it holds this plan, view and format."""
     plan_id, as_json = _split(ref)
+    media_type = "application/json" if as_json else "text/html; charset=utf-8"
+    page_key = ("json:" if as_json else "html:") + saved_key(plan_id, receiver)
+    cached = checker.cache.get(page_key)
+    if cached is not None:
+        return Response(cached, media_type=media_type)
     saved = store.get_plan(plan_id)
     if saved is None:
         return not_found(request)
     try:
         plan = load_plan(saved.plan)
+        known = receiver if receiver in _receiver_names(saved) else None
+        data_json = checker.saved_data(saved, plan, known)
     except BusInputError as exc:
-        # Saved under an older engine that accepted it; show it in the editor with what to change.
+        # Saved under an older engine or looser limits that accepted it; show it in the editor with what to change.
         if as_json:
             raise
         state = form_from_plan(saved.plan, parent_id=saved.id)
         state.problems = exc.problems
-        title = "This saved plan needs changes before the current engine can check it"
+        title = "This saved plan needs changes before it can be checked here"
         return render(request, "editor.html", editor_data(state, title=title, saved_from=saved), status_code=422)
-    data = plan_data(check_and_simulate(plan, receiver), saved, receiver)
-    data["children"] = store.children_of(saved.id)
+    if receiver == known:  # the view every request with these options gets: keep its bytes
+        body = data_json if as_json else render_bytes(request, "plan.html", json.loads(data_json))
+        checker.cache.put(page_key, body)
+        return Response(body, media_type=media_type)
+    data = json.loads(data_json)
+    data["waveforms"]["chosen_unknown"] = receiver
     return page(request, "plan.html", data, as_json)
 
 
@@ -234,31 +254,41 @@ def download_plan(request: Request, ref: str, store: StoreDep) -> Response:
         return not_found(request)
     body = json.dumps(saved.plan, indent=2, ensure_ascii=False) + "\n"
     return Response(
-        body,
+        body.encode("utf-8"),
         media_type="application/json",
-        headers={"Content-Disposition": f'attachment; filename="{_filename(saved)}.json"'},
+        headers={"Content-Disposition": attachment(saved, ".json")},
     )
 
 
 @router.get("/plans/{ref}/bom.csv")
-def bill_of_materials(request: Request, ref: str, store: StoreDep) -> Response:
-    found = _saved(store, ref)
-    if found is None:
+def bill_of_materials(request: Request, ref: str, store: StoreDep, checker: CheckerDep) -> Response:
+    saved = store.get_plan(ref)
+    if saved is None:
         return not_found(request)
-    saved, plan = found
-    report = check_only(plan)
+    data = json.loads(checker.saved_data(saved, load_plan(saved.plan), None))
     out = io.StringIO()
     writer = csv.writer(out)
     writer.writerow(["item", "value", "quantity", "rating", "note"])
-    for row in bom_rows(report.summary.bom, plan.display_units):
+    for row in data["summary"]["bom"]:
         writer.writerow([row["item"], row["value"], row["quantity"], row["rating"], row["note"]])
     return Response(
-        UTF8_BOM + out.getvalue(),
+        (UTF8_BOM + out.getvalue()).encode("utf-8"),
         media_type="text/csv; charset=utf-8",
-        headers={"Content-Disposition": f'attachment; filename="{_filename(saved)}-bom.csv"'},
+        headers={"Content-Disposition": attachment(saved, "-bom.csv")},
     )
 
 
-def _filename(saved: SavedPlan) -> str:
-    stem = "".join(c if c.isalnum() else "-" for c in saved.title.lower()).strip("-")[:40]
-    return f"{stem or 'bus-plan'}-{saved.id}"
+def attachment(saved: SavedPlan, suffix: str) -> str:
+    """Content-Disposition for a download named after the plan's title: an ASCII `filename` for old clients and
+    the title as written in `filename*` (RFC 6266 with RFC 5987 encoding), so "120 Ω bus" survives."""
+
+    def stem(text: str) -> str:
+        slug = "".join(c if c.isalnum() else "-" for c in text.lower())
+        return "-".join(part for part in slug.split("-") if part)[:40].strip("-")
+
+    title = saved.title
+    plain = stem(unicodedata.normalize("NFKD", title).encode("ascii", "ignore").decode("ascii"))
+    written = stem(title)
+    ascii_name = f"{plain or 'bus-plan'}-{saved.id}{suffix}"
+    utf8_name = quote(f"{written or 'bus-plan'}-{saved.id}{suffix}", safe="")
+    return f"attachment; filename=\"{ascii_name}\"; filename*=UTF-8''{utf8_name}"

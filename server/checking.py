@@ -1,0 +1,127 @@
+"""Checked-plan data for pages: from the results cache, else from a check worker, each check bounded.
+
+A saved plan never changes, so its checked data is cached by plan id, engine version and view options for as
+long as the cache keeps it; an unsaved plan (a draft from the editor or `POST /api/check`) is cached by the
+hash of its content for `draft_cache_ttl_s`. Values are the page data as JSON bytes, exactly the bytes the
+`.json` twin answers with, so a cache hit returns identical bytes. One check runs per key at a time: a second
+request for the same plan waits for the first rather than simulating it again.
+
+A plan whose estimated check time is over the limit is refused before simulating (server.cost); one that runs
+past the limit or out of memory is refused the same way, and for a saved plan that refusal is cached too, so
+a shared link to it does not cost a worker a full time limit on every view.
+"""
+
+import hashlib
+import json
+import threading
+from collections.abc import Callable, Iterator
+from contextlib import contextmanager
+from dataclasses import asdict
+from typing import Any
+
+from pairline.engine import ENGINE_VERSION
+from pairline.engine.plan import BusInputError, BusPlan, Problem, plan_to_dict
+from pairline.server.cache import ResultCache
+from pairline.server.cost import cost_problems, over_limit_problems
+from pairline.server.jobs import checked_plan_data
+from pairline.server.settings import Settings
+from pairline.server.store import SavedPlan, canonical_json
+from pairline.server.workers import CheckOverLimit, CheckPool
+
+REFUSAL_TTL_S = 3600.0  # a saved plan's over-limit refusal is retried after this (settings may have changed)
+_CHECKED = b"checked\n"
+_REFUSED = b"refused\n"
+
+
+class CheckRefused(BusInputError):
+    """The plan is too costly to check within the limits; its problems say what makes it costly (a 422)."""
+
+
+def page_json(data: dict[str, Any]) -> bytes:
+    """Page data as the JSON twin sends it (the same separators and escaping as JSONResponse)."""
+    return json.dumps(data, ensure_ascii=False, allow_nan=False, indent=None, separators=(",", ":")).encode("utf-8")
+
+
+def saved_key(plan_id: str, receiver: str | None) -> str:
+    return f"saved:{plan_id}:{ENGINE_VERSION}:{receiver or ''}"
+
+
+def draft_key(plan: BusPlan) -> str:
+    digest = hashlib.sha256(canonical_json(plan_to_dict(plan)).encode("utf-8")).hexdigest()
+    return f"draft:{digest}:{ENGINE_VERSION}"
+
+
+class Checker:
+    """Page data for saved plans and drafts, through the cache and the worker pool."""
+
+    def __init__(self, pool: CheckPool, cache: ResultCache, settings: Settings):
+        self.pool = pool
+        self.cache = cache
+        self.settings = settings
+        self._guard = threading.Lock()
+        self._running: dict[str, threading.Lock] = {}
+
+    def saved_data(self, saved: SavedPlan, plan: BusPlan, receiver: str | None) -> bytes:
+        """JSON bytes of a saved plan's page data; `receiver` must be one of its receivers or None."""
+        return self._data(saved_key(saved.id, receiver), None, REFUSAL_TTL_S, plan, saved, receiver)
+
+    def draft_data(self, plan: BusPlan) -> bytes:
+        """JSON bytes of an unsaved plan's page data (no id, no URL)."""
+        ttl = self.settings.draft_cache_ttl_s
+        return self._data(draft_key(plan), ttl, ttl, plan, None, None)
+
+    def _data(
+        self,
+        key: str,
+        ttl_s: float | None,
+        refusal_ttl_s: float,
+        plan: BusPlan,
+        saved: SavedPlan | None,
+        receiver: str | None,
+    ) -> bytes:
+        found = self.cache.get(key)
+        if found is None:
+            with self._one_at_a_time(key):
+                found = self.cache.get(key)
+                if found is None:
+                    found = self._check(plan, saved, receiver)
+                    self.cache.put(key, found, ttl_s if found.startswith(_CHECKED) else refusal_ttl_s)
+        if found.startswith(_REFUSED):
+            problems = [Problem(**p) for p in json.loads(found[len(_REFUSED) :])]
+            raise CheckRefused(problems)
+        return found[len(_CHECKED) :]
+
+    def _check(self, plan: BusPlan, saved: SavedPlan | None, receiver: str | None) -> bytes:
+        """The cache entry for a plan: its page data, or the refusal of a check that went over a limit.
+        A plan estimated over the limit raises CheckRefused at once (cheap to tell again, so not cached)."""
+        limits = self.settings
+        problems = cost_problems(plan, limits.check_time_limit_s)
+        if problems:
+            raise CheckRefused(problems)
+        try:
+            data = self.pool.run(checked_plan_data, plan_to_dict(plan), saved, receiver)
+        except CheckOverLimit as exc:
+            problems = over_limit_problems(plan, exc.limit, exc.time_limit_s, exc.memory_limit_mb)
+            return _REFUSED + json.dumps([asdict(p) for p in problems], ensure_ascii=False).encode("utf-8")
+        return _CHECKED + page_json(data)
+
+    @contextmanager
+    def _one_at_a_time(self, key: str) -> Iterator[None]:
+        with self._guard:
+            lock = self._running.setdefault(key, threading.Lock())
+        try:
+            with lock:
+                yield
+        finally:
+            with self._guard:
+                if self._running.get(key) is lock and not lock.locked():
+                    del self._running[key]
+
+
+def cached_bytes(cache: ResultCache, key: str, ttl_s: float | None, make: Callable[[], bytes]) -> bytes:
+    """The bytes under key, made and stored when absent."""
+    found = cache.get(key)
+    if found is None:
+        found = make()
+        cache.put(key, found, ttl_s)
+    return found
