@@ -190,9 +190,8 @@ def over_the_network() -> None:
 
 
 def main() -> int:
-    print(
-        f"machine: {platform.processor() or platform.machine()}, {os.cpu_count()} cores, Python {sys.version.split()[0]}"
-    )
+    cpu = platform.processor() or platform.machine()
+    print(f"machine: {cpu}, {os.cpu_count()} cores, Python {sys.version.split()[0]}")
     in_process()
     over_the_network()
     return 0
