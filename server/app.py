@@ -2,6 +2,7 @@
 
 import json
 import logging
+import threading
 from collections.abc import AsyncIterator
 from contextlib import asynccontextmanager
 from pathlib import Path
@@ -63,6 +64,8 @@ def create_app(
 
     @asynccontextmanager
     async def lifespan(app: FastAPI) -> AsyncIterator[None]:
+        # workers start in the background, so the first check need not wait for them and startup does not either
+        threading.Thread(target=pool.warm, name="pairline-warm", daemon=True).start()
         yield
         pool.close()
 

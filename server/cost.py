@@ -144,6 +144,12 @@ def _largest(fits: Callable[[int], bool], high: int) -> int | None:
     return low
 
 
+def _most_that_fits(work: CheckWork, limit_s: float, count: str, least: int) -> int | None:
+    """The largest value from `least` below its present one of a count of `work` that fits the limit alone."""
+    found = _largest(lambda n: _fits(work, limit_s, **{count: n + least}), getattr(work, count) - least)
+    return None if found is None else found + least
+
+
 def _changes(plan: BusPlan, work: CheckWork, limit_s: float) -> list[Problem]:
     """One problem per plan feature that, changed alone, brings the estimate within the limit."""
     out: list[Problem] = []
@@ -162,18 +168,17 @@ def _changes(plan: BusPlan, work: CheckWork, limit_s: float) -> list[Problem]:
                     f"most {most} of them transceivers (the rest receivers) to check this plan.",
                 )
             )
-    if work.pattern_bits > 2:
-        bits = _largest(lambda n: _fits(work, limit_s, pattern_bits=n + 2), work.pattern_bits - 2)
-        if bits is not None:
-            out.append(
-                Problem(
-                    "test_pattern",
-                    "Bit pattern",
-                    work.pattern_bits,
-                    {"min_length": 2, "max_length": bits + 2},
-                    f"The bit pattern has {work.pattern_bits} bits; at most {bits + 2} fit the time limit.",
-                )
+    bits = _most_that_fits(work, limit_s, "pattern_bits", 2)
+    if bits is not None:
+        out.append(
+            Problem(
+                "test_pattern",
+                "Bit pattern",
+                work.pattern_bits,
+                {"min_length": 2, "max_length": bits},
+                f"The bit pattern has {work.pattern_bits} bits; at most {bits} fit the time limit.",
             )
+        )
     slowest = SLOWEST_RISE_S
     if work.rise_time_s < slowest and _fits(work, limit_s, edge_s=slowest / 0.8, rise_time_s=slowest):
         low, high = work.rise_time_s, slowest  # bisection in log space: the slowest edge that still fails
@@ -191,16 +196,15 @@ def _changes(plan: BusPlan, work: CheckWork, limit_s: float) -> list[Problem]:
                 f"whole bit; a driver with edges of {si_format(high, 's')} or slower fits the time limit.",
             )
         )
-    if work.receivers > 1:
-        most = _largest(lambda n: _fits(work, limit_s, receivers=n + 1), work.receivers - 1)
-        if most is not None:
-            out.append(
-                Problem(
-                    "nodes",
-                    "Nodes",
-                    work.receivers,
-                    {"min_length": 1, "max_length": most + 1},
-                    f"The bus has {work.receivers} nodes; at most {most + 1} fit the time limit as they are.",
-                )
+    nodes = _most_that_fits(work, limit_s, "receivers", 1)
+    if nodes is not None:
+        out.append(
+            Problem(
+                "nodes",
+                "Nodes",
+                work.receivers,
+                {"min_length": 1, "max_length": nodes},
+                f"The bus has {work.receivers} nodes; at most {nodes} fit the time limit as they are.",
             )
+        )
     return out

@@ -40,8 +40,8 @@ def _on_start(send: Send, change: Callable[[Message], None]) -> Send:
     return wrapped
 
 
-class SecurityHeaders:
-    """Adds SECURITY_HEADERS to every HTTP response, unless the response set one itself."""
+class _HttpMiddleware:
+    """Passes anything but HTTP (lifespan) straight through; subclasses handle HTTP requests."""
 
     def __init__(self, app: ASGIApp):
         self.app = app
@@ -50,7 +50,16 @@ class SecurityHeaders:
         if scope["type"] != "http":
             await self.app(scope, receive, send)
             return
+        await self.handle(scope, receive, send)
 
+    async def handle(self, scope: Scope, receive: Receive, send: Send) -> None:
+        raise NotImplementedError
+
+
+class SecurityHeaders(_HttpMiddleware):
+    """Adds SECURITY_HEADERS to every HTTP response, unless the response set one itself."""
+
+    async def handle(self, scope: Scope, receive: Receive, send: Send) -> None:
         def add(message: Message) -> None:
             headers = list(message.get("headers", []))
             present = {name.lower() for name, _ in headers}
@@ -60,15 +69,12 @@ class SecurityHeaders:
         await self.app(scope, receive, _on_start(send, add))
 
 
-class HeadAsGet:
+class HeadAsGet(_HttpMiddleware):
     """HEAD is answered for every GET route: the request runs as GET and the body is dropped (headers kept,
     Content-Length included). A 405 then lists HEAD beside GET."""
 
-    def __init__(self, app: ASGIApp):
-        self.app = app
-
-    async def __call__(self, scope: Scope, receive: Receive, send: Send) -> None:
-        if scope["type"] != "http" or scope["method"] != "HEAD":
+    async def handle(self, scope: Scope, receive: Receive, send: Send) -> None:
+        if scope["method"] != "HEAD":
             await self.app(scope, receive, send)
             return
 
@@ -82,18 +88,12 @@ class HeadAsGet:
         await self.app(dict(scope, method="GET"), receive, headers_only)
 
 
-class ErrorGuard:
+class ErrorGuard(_HttpMiddleware):
     """The last resort: an exception that escaped every handler is logged with its traceback and a request id,
     and answered with the error envelope (status 500), so the connection stays open for the next request.
     Nothing typed by a user should ever get here."""
 
-    def __init__(self, app: ASGIApp):
-        self.app = app
-
-    async def __call__(self, scope: Scope, receive: Receive, send: Send) -> None:
-        if scope["type"] != "http":
-            await self.app(scope, receive, send)
-            return
+    async def handle(self, scope: Scope, receive: Receive, send: Send) -> None:
         started = False
 
         async def tracking(message: Message) -> None:
@@ -147,17 +147,14 @@ async def send_error(
     await send({"type": "http.response.body", "body": payload})
 
 
-class BodyLimit:
+class BodyLimit(_HttpMiddleware):
     """Refuse request bodies over `max_bytes` with 413, by Content-Length or by counting a streamed body."""
 
     def __init__(self, app: ASGIApp, max_bytes: int):
-        self.app = app
+        super().__init__(app)
         self.max_bytes = max_bytes
 
-    async def __call__(self, scope: Scope, receive: Receive, send: Send) -> None:
-        if scope["type"] != "http":
-            await self.app(scope, receive, send)
-            return
+    async def handle(self, scope: Scope, receive: Receive, send: Send) -> None:
         headers = dict(scope.get("headers") or [])
         declared = headers.get(b"content-length")
         if declared is not None and (not declared.isdigit() or int(declared) > self.max_bytes):

@@ -22,7 +22,7 @@ from pairline.engine.rules.length_rate import (
 from pairline.engine.sweep import LengthRateCurve, length_rate_curve
 from pairline.engine.waveform import DEFAULT_PATTERN_BITS, Waveforms, default_pattern, simulate_pattern, step_responses
 
-__all__ = ["CheckedPlan", "PlanReport", "check_and_simulate", "check_only", "report_to_dict", "worst_receiver"]
+__all__ = ["CheckedPlan", "PlanReport", "check_and_simulate", "report_to_dict", "worst_receiver"]
 
 
 @dataclass(frozen=True, slots=True)
@@ -34,11 +34,6 @@ class CheckedPlan:
     rule_bit_rate_bps: np.ndarray  # (n_points,) the report's two length rules, for comparison
     rule_max_length_m: np.ndarray  # (n_points,)
     simulation_note: str  # why waveforms are missing, when they are
-
-
-def check_only(plan: BusPlan) -> PlanReport:
-    """The rule report alone (for the bill of materials), without simulating."""
-    return check_plan(plan)
 
 
 SIGNAL_RULE = "signal.integrity"  # the finding that judges each receiver's simulated signal

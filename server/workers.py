@@ -7,6 +7,7 @@ whole time limit without getting a worker.
 
 A worker enforces the limits itself: RLIMIT_AS caps its address space at what it held when it started plus
 the memory limit (numpy then raises MemoryError), and an interval timer interrupts the job at the time limit.
+Workers run at a lower CPU priority than the server, so pages that need no check are served first.
 A worker that does not answer within the limit plus a grace period (stuck inside one long numpy call) is
 killed and replaced; so is one that ran out of memory. Workers fork from a server process that has already
 imported the engine, so a replacement starts in milliseconds.
@@ -29,6 +30,7 @@ from pairline.engine.plan import BusInputError, Problem
 
 T = TypeVar("T")
 GRACE_S = 2.0  # beyond the time limit before a worker that does not answer is killed
+NICENESS = 10  # workers yield the CPU to the server process, so pages that need no check stay quick
 JOB_MODULES = ["pairline.server.jobs"]  # imported once in the fork server, so every worker starts warm
 # one BLAS thread per worker: the pool, not numpy, decides how many cores checks use
 SINGLE_THREAD_ENV = {"OPENBLAS_NUM_THREADS": "1", "OMP_NUM_THREADS": "1", "MKL_NUM_THREADS": "1"}
@@ -80,6 +82,7 @@ def _worker_main(conn: Connection, time_limit_s: float, memory_limit_bytes: int)
     or ("error", traceback text)."""
     limit = _address_space_bytes() + memory_limit_bytes
     resource.setrlimit(resource.RLIMIT_AS, (limit, limit))
+    os.nice(NICENESS)
     signal.signal(signal.SIGALRM, _time_up)
     signal.signal(signal.SIGINT, signal.SIG_IGN)  # Ctrl-C stops the server, which then closes the pool
     while True:
@@ -203,11 +206,27 @@ class CheckPool:
 
     def _give_back(self, worker: _Worker, keep: bool) -> None:
         with self._lock:
-            if keep and not self._closed and worker.process.is_alive():
+            if keep and not self._closed and worker.process.is_alive() and len(self._idle) < self.workers:
                 self._idle.append(worker)
                 return
             self._all.discard(worker)
         worker.stop()
+
+    def warm(self) -> None:
+        """Start the fork server and every worker ahead of the first check (a server calls this at startup)."""
+        with self._lock:
+            missing = self.workers - len(self._all)
+        for _ in range(max(0, missing)):
+            worker = _Worker(self._ctx, self.time_limit_s, self.memory_limit_mb * 1024 * 1024)
+            with self._lock:
+                if self._closed or len(self._all) >= self.workers:
+                    extra = True
+                else:
+                    extra = False
+                    self._all.add(worker)
+                    self._idle.append(worker)
+            if extra:
+                worker.stop()
 
     def close(self) -> None:
         """Stop every worker; later jobs are refused."""

@@ -10,7 +10,7 @@ from pairline.engine.plan import load_plan
 from pairline.server.app import create_app
 from pairline.server.cost import check_work, cost_problems, estimated_check_s
 from pairline.server.settings import Settings
-from pairline.server.workers import CheckOverLimit, CheckPool
+from pairline.server.workers import CheckOverLimit, CheckPool, PoolBusy
 
 from tests.server.conftest import TestClient
 from tests.server.html_dom import parse_html
@@ -213,3 +213,25 @@ def test_one_check_per_plan_at_a_time(client, monkeypatch):
     for t in threads:
         t.join()
     assert len(calls) == 1
+
+
+def test_a_full_queue_refuses_at_once_and_the_server_answers_503_with_retry_after(client, monkeypatch):
+    pool = CheckPool(workers=1, time_limit_s=5.0, memory_limit_mb=256, queue_limit=0)
+    try:
+        busy = threading.Thread(target=pool.run, args=(time.sleep, 1.0))
+        busy.start()
+        time.sleep(0.3)
+        with pytest.raises(PoolBusy):
+            pool.run(sum, [1])
+        busy.join()
+        assert pool.run(sum, [1, 2]) == 3  # room again
+    finally:
+        pool.close()
+
+    def full(*args):
+        raise PoolBusy(30.0)
+
+    monkeypatch.setattr(client.app.state.pool, "run", full)
+    resp = client.post("/api/check", json=PLAN_DOC | {"title": "Queue full"})
+    assert resp.status_code == 503 and resp.headers["retry-after"] == "30"
+    assert resp.json()["status"] == 503 and resp.json()["problems"][0]["allowed"] == {"retry_after_s": 30}
