@@ -69,7 +69,9 @@ def test_cheap_pages_answer_within_a_second_while_every_worker_checks_a_costly_p
             t.join()
     # generous bounds: the point is seconds of simulation on every worker against pages that need none
     assert all(status == 200 for status, _, _ in cheap)
-    assert max(elapsed for _, _, elapsed in cheap) < 1.0, [(p, round(c[2], 2)) for p, c in zip(paths, cheap)]
+    assert max(elapsed for _, _, elapsed in cheap) < 1.0, [
+        (p, round(c[2], 2)) for p, c in zip(paths, cheap, strict=True)
+    ]
     assert refused[0] == 422 and refused[2] < 1.0  # refused from its estimate, before simulating
     assert all(status in (200, 422) for status, _, _ in heavy)
     assert min(elapsed for _, _, elapsed in heavy) > 2.0
