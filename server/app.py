@@ -76,6 +76,7 @@ def create_app(
         redoc_url=None,
         openapi_url="/openapi.json",
         lifespan=lifespan,
+        redirect_slashes=False,  # its redirects are absolute URLs built from the Host header
     )
     app.state.settings = settings
     app.state.store = PlanStore(Path(db_path))

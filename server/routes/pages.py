@@ -11,7 +11,7 @@ from fastapi import APIRouter, Depends, Request
 from fastapi.responses import JSONResponse, RedirectResponse, Response
 from pairline.engine.plan import BusInputError, BusPlan, Problem, load_plan, plan_to_dict
 from pairline.server.checking import Checker, CheckRefused, saved_key
-from pairline.server.errors import not_found
+from pairline.server.errors import RequestRefused, not_found
 from pairline.server.forms import FormState, form_from_plan, merge_problems, parse_form, with_units
 from pairline.server.json_input import JsonInputError, load_json
 from pairline.server.openapi import FORM_BODY, IMPORT_BODY
@@ -179,6 +179,11 @@ async def submit_plan(request: Request, store: StoreDep, checker: CheckerDep) ->
     except CheckRefused as exc:
         state.problems = exc.problems
         return render(request, "editor.html", editor_data(state, title=_editor_title(state)), status_code=422)
+    except RequestRefused as exc:  # over the save quota: the form comes back as typed, the reason on top
+        state.problems = [exc.problem]
+        refused = render(request, "editor.html", editor_data(state, title=_editor_title(state)), exc.status)
+        refused.headers["Retry-After"] = str(round(exc.retry_after_s or 0))
+        return refused
     parent = await run_in_threadpool(_parent, store, state.parent_id)
     data["draft"] = {"plan_json": json.dumps(plan_to_dict(plan)), "parent_id": parent}
     return render(request, "plan.html", data)
@@ -218,6 +223,7 @@ def plan_page(
 ) -> Response:
     """A saved plan, checked: rendered from the results cache when it holds this plan, view and format."""
     plan_id, as_json = _split(ref)
+    receiver = receiver or None
     media_type = "application/json" if as_json else "text/html; charset=utf-8"
     page_key = ("json:" if as_json else "html:") + saved_key(plan_id, receiver)
     cached = checker.cache.get(page_key)

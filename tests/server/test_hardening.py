@@ -86,6 +86,9 @@ def test_links_come_from_the_public_base_url_never_the_host_header(client, saved
     assert parse_html(resp.text).by_id("share-url").attrs["value"] == f"https://plans.example.org/plans/{saved_id}"
     saved = client.post("/api/plans", json=PLAN_DOC, headers={"host": "evil.example.net"})
     assert "evil" not in saved.headers["location"] and "evil" not in saved.text
+    for path in ("/plans/new/", "/static", "/api/check/", f"/plans/{saved_id}/"):
+        moved = client.get(path, headers={"host": "evil.example.net"}, follow_redirects=False)
+        assert "evil" not in moved.headers.get("location", "") and "evil" not in moved.text
 
 
 def test_without_a_public_base_url_links_are_relative(tmp_path):
@@ -150,6 +153,9 @@ def test_saves_over_the_quota_get_429_with_retry_after(tmp_path):
         assert 1 <= int(refused.headers["retry-after"]) <= 60
         form = c.post("/plans", data=FIVE_NODE_FORM | {"action": "save"}, headers={"accept": "text/html"})
         assert form.status_code == 429 and "Retry-After" in form.headers and "save limit" in form.text
+        assert parse_html(form.text).find("input", name="title").attrs["value"] == FIVE_NODE_FORM["title"]
+        draft = c.post("/plans", data={"plan_json": json.dumps(PLAN_DOC)}, headers={"accept": "text/html"})
+        assert draft.status_code == 429 and "save limit" in draft.text
         # an invalid plan is refused for its values and does not count; checking does not count either
         assert c.post("/api/check", json=PLAN_DOC).status_code == 200
 
