@@ -3,15 +3,17 @@
 The signal check simulates the bit pattern from every node that may drive (RS-485; a sample of them on
 large buses) at every receiver. For each driver it interpolates every receiver's edge response at the edge's
 own time step over the bits an edge is remembered for, then builds the pattern waveform at up to a few hundred
-points per bit; the edge response itself costs one network solve per Laplace point. So the unavoidable work is
+points per bit (32 evenly spread, and some of the edge response's points where the waveform bends); the edge
+response itself costs one network solve per Laplace point. So the unavoidable work is
 
     work = (drivers + 1) x [receivers x (memory_bits x edge_points + pattern_bits x points_per_bit)
                             + laplace_points x (receivers + terminators)]
 
 (the + 1 is the page's own simulation from the primary driver). Fixes found by re-simulating come on top,
-so `SECONDS_PER_UNIT`, the smallest ratio of measured check time to this work over a spread of plans on a
-2-core machine (tests/bench_cost.py), makes the estimate a lower bound there: a plan estimated over the
-limit would not have finished within it. The time limit in the workers stays the final guard.
+so `SECONDS_PER_UNIT` (and the fraction of edge points kept) are set so that the estimate stays below the
+measured check time of every plan in a spread of 28 on a 2-core machine, from 8 to 512 nodes, 0 to 32
+transceivers, 0.5 ns to 2 µs edges and 50 bit/s to 10 Mbit/s (tests/bench_cost.py measures it again): a plan
+estimated over the limit would not have finished within it. The time limit in the workers stays the final guard.
 """
 
 import dataclasses
@@ -29,6 +31,7 @@ EDGE_POINTS_PER_EDGE = 8  # edge response points per 0-100 % edge time
 FIRST_LEVEL_EDGES = 512  # edge times the finest time step covers at most
 POINTS_PER_BIT_MAX = 600
 POINTS_PER_BIT_MIN = 32
+KEPT_FRACTION = 0.1  # of the edge response's points within a bit, those a pattern waveform keeps (where it bends)
 WAVEFORM_VALUES = 6_000_000  # receivers x bits x points of one pattern simulation, before points thin out
 SETTLING_DELAYS = 6  # an edge is remembered for about six trunk delays
 SLOWEST_RISE_S = 20e-6  # the plan model's largest rise time
@@ -81,7 +84,9 @@ def estimated_check_s(work: CheckWork) -> float:
     memory_bits = min(bits, work.settle_s / work.bit_time_s + 1.0)
     edge_points = min(work.bit_time_s, work.settle_s, FIRST_LEVEL_EDGES * work.edge_s) / step_s + POINTS_PER_BIT_MIN
     per_bit = min(
-        POINTS_PER_BIT_MAX, max(2 * POINTS_PER_BIT_MIN + 1, WAVEFORM_VALUES / (work.receivers * bits)), edge_points
+        POINTS_PER_BIT_MAX,
+        max(2 * POINTS_PER_BIT_MIN + 1, WAVEFORM_VALUES / (work.receivers * bits)),
+        POINTS_PER_BIT_MIN + KEPT_FRACTION * edge_points,
     )
     horizon_s = min(work.settle_s, bits * work.bit_time_s)
     first_level_s = min(FIRST_LEVEL_EDGES * work.edge_s, max(32 * work.edge_s, horizon_s))
