@@ -235,3 +235,14 @@ def test_a_full_queue_refuses_at_once_and_the_server_answers_503_with_retry_afte
     resp = client.post("/api/check", json=PLAN_DOC | {"title": "Queue full"})
     assert resp.status_code == 503 and resp.headers["retry-after"] == "30"
     assert resp.json()["status"] == 503 and resp.json()["problems"][0]["allowed"] == {"retry_after_s": 30}
+
+
+def test_a_refusal_for_time_or_memory_names_the_limit_and_the_size():
+    from pairline.server.cost import over_limit_problems
+
+    plan = load_plan(PLAN_DOC)
+    slow = over_limit_problems(plan, "time", 30.0, 1024)[0]
+    big = over_limit_problems(plan, "memory", 30.0, 1024)[0]
+    assert "took longer than 30 s" in slow.message and "1024 MB" in big.message
+    for problem in (slow, big):
+        assert "2 receiver(s)" in problem.message and "9.6 kbit/s" in problem.message
