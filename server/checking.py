@@ -23,7 +23,7 @@ from pairline.engine import ENGINE_VERSION
 from pairline.engine.plan import BusInputError, BusPlan, Problem, plan_to_dict
 from pairline.server.cache import ResultCache
 from pairline.server.cost import cost_problems, over_limit_problems
-from pairline.server.jobs import checked_plan_data
+from pairline.server.jobs import checked_plan_data, checked_report_data
 from pairline.server.settings import Settings
 from pairline.server.store import SavedPlan, canonical_json
 from pairline.server.workers import CheckOverLimit, CheckPool
@@ -46,9 +46,9 @@ def saved_key(plan_id: str, receiver: str | None) -> str:
     return f"saved:{plan_id}:{ENGINE_VERSION}:{receiver or ''}"
 
 
-def draft_key(plan: BusPlan) -> str:
+def draft_key(plan: BusPlan, view: str) -> str:
     digest = hashlib.sha256(canonical_json(plan_to_dict(plan)).encode("utf-8")).hexdigest()
-    return f"draft:{digest}:{ENGINE_VERSION}"
+    return f"draft-{view}:{digest}:{ENGINE_VERSION}"
 
 
 class Checker:
@@ -61,14 +61,24 @@ class Checker:
         self._guard = threading.Lock()
         self._running: dict[str, threading.Lock] = {}
 
-    def saved_data(self, saved: SavedPlan, plan: BusPlan, receiver: str | None) -> bytes:
-        """JSON bytes of a saved plan's page data; `receiver` must be one of its receivers or None."""
-        return self._data(saved_key(saved.id, receiver), None, REFUSAL_TTL_S, plan, saved, receiver)
+    def saved_data(
+        self, saved: SavedPlan, plan: BusPlan, receiver: str | None, extra: dict[str, Any] | None = None
+    ) -> bytes:
+        """JSON bytes of a saved plan's page data; `receiver` must be one of its receivers or None. `extra` joins
+        the data when it is checked (facts about the saved row that never change, such as its parent)."""
+        job = (checked_plan_data, (plan_to_dict(plan), saved, receiver))
+        return self._data(saved_key(saved.id, receiver), None, REFUSAL_TTL_S, plan, job, extra or {})
 
     def draft_data(self, plan: BusPlan) -> bytes:
         """JSON bytes of an unsaved plan's page data (no id, no URL)."""
         ttl = self.settings.draft_cache_ttl_s
-        return self._data(draft_key(plan), ttl, ttl, plan, None, None)
+        job = (checked_plan_data, (plan_to_dict(plan), None, None))
+        return self._data(draft_key(plan, "page"), ttl, ttl, plan, job, {})
+
+    def draft_report(self, plan: BusPlan) -> bytes:
+        """JSON bytes of an unsaved plan's verdict, findings and summary, without simulated pictures."""
+        ttl = self.settings.draft_cache_ttl_s
+        return self._data(draft_key(plan, "report"), ttl, ttl, plan, (checked_report_data, (plan_to_dict(plan),)), {})
 
     def _data(
         self,
@@ -76,34 +86,36 @@ class Checker:
         ttl_s: float | None,
         refusal_ttl_s: float,
         plan: BusPlan,
-        saved: SavedPlan | None,
-        receiver: str | None,
+        job: tuple[Callable[..., dict[str, Any]], tuple[Any, ...]],
+        extra: dict[str, Any],
     ) -> bytes:
         found = self.cache.get(key)
         if found is None:
             with self._one_at_a_time(key):
                 found = self.cache.get(key)
                 if found is None:
-                    found = self._check(plan, saved, receiver)
+                    found = self._check(plan, job, extra)
                     self.cache.put(key, found, ttl_s if found.startswith(_CHECKED) else refusal_ttl_s)
         if found.startswith(_REFUSED):
             problems = [Problem(**p) for p in json.loads(found[len(_REFUSED) :])]
             raise CheckRefused(problems)
         return found[len(_CHECKED) :]
 
-    def _check(self, plan: BusPlan, saved: SavedPlan | None, receiver: str | None) -> bytes:
-        """The cache entry for a plan: its page data, or the refusal of a check that went over a limit.
+    def _check(
+        self, plan: BusPlan, job: tuple[Callable[..., dict[str, Any]], tuple[Any, ...]], extra: dict[str, Any]
+    ) -> bytes:
+        """The cache entry for a plan: the job's data, or the refusal of a check that went over a limit.
         A plan estimated over the limit raises CheckRefused at once (cheap to tell again, so not cached)."""
-        limits = self.settings
-        problems = cost_problems(plan, limits.check_time_limit_s)
+        problems = cost_problems(plan, self.settings.check_time_limit_s)
         if problems:
             raise CheckRefused(problems)
+        function, args = job
         try:
-            data = self.pool.run(checked_plan_data, plan_to_dict(plan), saved, receiver)
+            data = self.pool.run(function, *args)
         except CheckOverLimit as exc:
             problems = over_limit_problems(plan, exc.limit, exc.time_limit_s, exc.memory_limit_mb)
             return _REFUSED + json.dumps([asdict(p) for p in problems], ensure_ascii=False).encode("utf-8")
-        return _CHECKED + page_json(data)
+        return _CHECKED + page_json(data | extra)
 
     @contextmanager
     def _one_at_a_time(self, key: str) -> Iterator[None]:
@@ -116,12 +128,3 @@ class Checker:
             with self._guard:
                 if self._running.get(key) is lock and not lock.locked():
                     del self._running[key]
-
-
-def cached_bytes(cache: ResultCache, key: str, ttl_s: float | None, make: Callable[[], bytes]) -> bytes:
-    """The bytes under key, made and stored when absent."""
-    found = cache.get(key)
-    if found is None:
-        found = make()
-        cache.put(key, found, ttl_s)
-    return found

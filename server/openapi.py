@@ -57,6 +57,28 @@ PLAN_BODY: dict[str, Any] = {
     },
     "responses": REFUSALS,
 }
+CHECK_BODY: dict[str, Any] = {
+    "requestBody": {
+        "required": True,
+        "content": {
+            "application/json": {
+                "schema": {
+                    "oneOf": [
+                        {"$ref": "#/components/schemas/BusPlan"},
+                        {
+                            "type": "object",
+                            "description": "the editor's typed fields, as its live verdict sends them",
+                            "required": ["form"],
+                            "additionalProperties": False,
+                            "properties": {"form": {"type": "object", "additionalProperties": {"type": "string"}}},
+                        },
+                    ]
+                }
+            }
+        },
+    },
+    "responses": REFUSALS,
+}
 SAVE_BODY: dict[str, Any] = PLAN_BODY | {
     "responses": REFUSALS | {"429": _envelope("Too many saves from this address; see Retry-After.")}
 }

@@ -4,12 +4,16 @@ Bodies must be sent as application/json (so no page elsewhere can make a visitor
 a CORS preflight), are refused past the nesting cap before parsing, and validate through the one plan model.
 """
 
+from collections.abc import Callable
+from typing import Any
+
 from fastapi import APIRouter, Request
 from fastapi.responses import JSONResponse, Response
 from pairline.engine.plan import BusInputError, BusPlan, Problem, load_plan
 from pairline.server.errors import RequestRefused
+from pairline.server.forms import plan_from_body
 from pairline.server.json_input import JsonInputError, load_json
-from pairline.server.openapi import PLAN_BODY, SAVE_BODY
+from pairline.server.openapi import CHECK_BODY, SAVE_BODY
 from pairline.server.saving import save_checked_plan
 from pairline.server.store import PlanStore
 from starlette.concurrency import run_in_threadpool
@@ -18,8 +22,8 @@ router = APIRouter(prefix="/api")
 JSON_TYPES = ("application/json",)
 
 
-async def plan_body(request: Request) -> BusPlan:
-    """The request's JSON body validated as a bus plan. Raises RequestRefused (415) or BusInputError (422)."""
+async def plan_body(request: Request, read: Callable[[Any], BusPlan] = load_plan) -> BusPlan:
+    """The request's JSON body, read as a bus plan by `read`. Raises RequestRefused (415) or BusInputError (422)."""
     media_type = request.headers.get("content-type", "").split(";")[0].strip().lower()
     if media_type not in JSON_TYPES:
         raise RequestRefused(
@@ -46,14 +50,16 @@ async def plan_body(request: Request) -> BusPlan:
                 )
             ]
         ) from None
-    return load_plan(doc)
+    return read(doc)
 
 
-@router.post("/check", openapi_extra=PLAN_BODY)
+@router.post("/check", openapi_extra=CHECK_BODY)
 async def check(request: Request) -> Response:
-    """Check a plan without saving it: the same data as a saved plan's page twin, without id or URL."""
-    plan = await plan_body(request)
-    body = await run_in_threadpool(request.app.state.checker.draft_data, plan)
+    """Check a plan without saving it: verdict, findings, summary and the engine report (no simulated
+    pictures; a saved plan's page twin has them). The body is a plan, or {"form": {...}} with the editor's
+    typed fields, as its live verdict sends."""
+    plan = await plan_body(request, plan_from_body)
+    body = await run_in_threadpool(request.app.state.checker.draft_report, plan)
     return Response(body, media_type="application/json")
 
 

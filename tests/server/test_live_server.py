@@ -53,17 +53,14 @@ def test_cheap_pages_answer_within_a_second_while_every_worker_checks_a_costly_p
         saved = json.loads(body)["url"]
         paths = ("/", "/index.json", saved, saved + ".json", "/plans/new")
         assert all(request(host, port, "GET", path)[0] == 200 for path in paths)  # checked once, now cached
+        # two saved plans whose first view is a full check of several seconds, one for each worker
+        slow = [json.loads(request(host, port, "POST", "/api/plans", slow_plan(t))[1])["url"] for t in ("a", "b")]
         heavy = []
-        threads = [
-            threading.Thread(target=lambda t=t: heavy.append(request(host, port, "POST", "/api/check", slow_plan(t))))
-            for t in ("first", "second")
-        ]
+        threads = [threading.Thread(target=lambda u=u: heavy.append(request(host, port, "GET", u))) for u in slow]
         for t in threads:
             t.start()
         time.sleep(1.0)  # both workers are simulating now
-        cheap = [
-            request(host, port, "GET", path) for path in ("/", "/index.json", saved, saved + ".json", "/plans/new")
-        ]
+        cheap = [request(host, port, "GET", path) for path in paths]
         refused = request(host, port, "POST", "/api/check", costliest_plan())
         for t in threads:
             t.join()
