@@ -30,7 +30,7 @@ from pairline.engine.plan import BusInputError, Problem
 
 T = TypeVar("T")
 GRACE_S = 2.0  # beyond the time limit before a worker that does not answer is killed
-NICENESS = 10  # workers yield the CPU to the server process, so pages that need no check stay quick
+NICENESS = 5  # workers give way to the server process (a third of its CPU weight), so pages without a check stay quick
 JOB_MODULES = ["pairline.server.jobs"]  # imported once in the fork server, so every worker starts warm
 # one BLAS thread per worker: the pool, not numpy, decides how many cores checks use
 SINGLE_THREAD_ENV = {"OPENBLAS_NUM_THREADS": "1", "OMP_NUM_THREADS": "1", "MKL_NUM_THREADS": "1"}

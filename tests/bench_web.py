@@ -10,6 +10,8 @@ always, since speed is reported, not asserted.
    - cached views of the saved page. Target >= 100 requests/s on 2 cores;
    - uncached views (PAIRLINE_CACHE_MB=0: every view is a full check). Target: no worse than before checks
      moved to workers (11.9 requests/s at 8 users, measured on the same kind of machine).
+   On a machine other work also loads, requests/s follow that load; so each run also reports the CPU time the
+   server and its workers spent per request (from /proc), which does not.
 """
 
 import asyncio
@@ -124,6 +126,31 @@ def _save(port: int) -> str:
         return str(json.loads(resp.read())["url"])
 
 
+def _tree_cpu_s(root: int) -> float:
+    """CPU seconds (user + system) used so far by a process and all its descendants, from /proc."""
+    parents: dict[int, int] = {}
+    used: dict[int, float] = {}
+    tick = os.sysconf("SC_CLK_TCK")
+    for entry in Path("/proc").iterdir():
+        if not entry.name.isdigit():
+            continue
+        try:
+            fields = (entry / "stat").read_text().rsplit(")", 1)[1].split()
+        except OSError:
+            continue
+        parents[int(entry.name)] = int(fields[1])
+        used[int(entry.name)] = (int(fields[11]) + int(fields[12])) / tick
+
+    def descends(pid: int) -> bool:
+        while pid > 1:
+            if pid == root:
+                return True
+            pid = parents.get(pid, 0)
+        return False
+
+    return sum(seconds for pid, seconds in used.items() if descends(pid))
+
+
 def _wrk(url: str) -> tuple[float, float]:
     """(requests/s, median latency in s) from wrk with one thread and CLIENTS connections."""
     out = subprocess.run(
@@ -161,10 +188,14 @@ def _python_load(port: int, path: str) -> tuple[float, float]:
     return len(times) / DURATION_S, statistics.median(times)
 
 
-def load(port: int, path: str) -> tuple[float, float, str]:
+def load(port: int, path: str, server_pid: int) -> tuple[float, float, float, str]:
+    """(requests/s, median latency s, server CPU s per request, client name)."""
+    before = _tree_cpu_s(server_pid)
     if shutil.which("wrk"):
-        return (*_wrk(f"http://127.0.0.1:{port}{path}"), "wrk")
-    return (*_python_load(port, path), "asyncio client")
+        rate, median, client = (*_wrk(f"http://127.0.0.1:{port}{path}"), "wrk")
+    else:
+        rate, median, client = (*_python_load(port, path), "asyncio client")
+    return rate, median, (_tree_cpu_s(server_pid) - before) / max(1.0, rate * DURATION_S), client
 
 
 def over_the_network() -> None:
@@ -178,14 +209,15 @@ def over_the_network() -> None:
             try:
                 path = _save(port)
                 urllib.request.urlopen(f"http://127.0.0.1:{port}{path}", timeout=60).read()  # warm the workers
-                rate, median, client = load(port, path)
+                rate, median, cpu_s, client = load(port, path, server.pid)
             finally:
                 server.terminate()
                 server.wait(timeout=30)
         goal = TARGET_CACHED_RPS if not env else BEFORE_UNCACHED_RPS
         print(
             f"{label}: {rate:.1f} requests/s, median {median * 1e3:.1f} ms at {CLIENTS} clients for {DURATION_S} s "
-            f"({client}); target {target}: {'met' if rate >= goal else 'NOT met'}"
+            f"({client}); server CPU {cpu_s * 1e3:.1f} ms per request; target {target}: "
+            f"{'met' if rate >= goal else 'NOT met'}"
         )
 
 
