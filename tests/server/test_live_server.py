@@ -14,24 +14,16 @@ from pairline.engine.plan import load_plan, plan_to_dict
 from pairline.server.app import create_app
 from pairline.server.settings import Settings
 
+from tests.bench_cost import invented_plan
 from tests.server.live import free_port, live_server
 from tests.server.test_checks_bounded import costliest_plan
 from tests.server.test_pages import PLAN_DOC
 
 
 def slow_plan(title: str) -> dict:
-    """An invented 32-node bus, 4 km long, 8 of its nodes transceivers: accepted by the estimate, several
-    seconds of simulation."""
-    return {
-        "title": title,
-        "bit_rate_bps": 115_200,
-        "trunk_length_m": 4000.0,
-        "nodes": [
-            {"name": f"n{k}", "position_m": 125.0 * (k + 1), "role": "transceiver" if k < 8 else "receiver"}
-            for k in range(32)
-        ],
-        "terminations": [{"position_m": 0.0, "resistance_ohm": 120.0}, {"position_m": 4000.0, "resistance_ohm": 120.0}],
-    }
+    """An invented 32-node bus, 4 km long, 16 of its nodes transceivers, some on 100 m stubs: accepted by the
+    estimate, several seconds of simulation."""
+    return invented_plan(32, 16, 100e-9, 115_200.0, 0, 2) | {"title": title}
 
 
 def request(host: str, port: int, method: str, path: str, body: dict | None = None) -> tuple[int, bytes, float]:
