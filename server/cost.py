@@ -10,10 +10,11 @@ response itself costs one network solve per Laplace point. So the unavoidable wo
                             + laplace_points x (receivers + terminators)]
 
 (the + 1 is the page's own simulation from the primary driver). Fixes found by re-simulating come on top,
-so `SECONDS_PER_UNIT` (and the fraction of edge points kept) are set so that the estimate stays below the
-measured check time of every plan in a spread of 28 on a 2-core machine, from 8 to 512 nodes, 0 to 32
-transceivers, 0.5 ns to 2 µs edges and 50 bit/s to 10 Mbit/s (tests/bench_cost.py measures it again): a plan
-estimated over the limit would not have finished within it. The time limit in the workers stays the final guard.
+so `SECONDS_PER_UNIT` (with the fraction of edge points a waveform keeps) is set at 80 % of the smallest ratio of
+measured check time to this work over the spread of plans in tests/bench_cost.py (8 to 512 nodes, 0 to 32
+transceivers, 0.5 ns to 500 ns edges, 50 bit/s to 2 Mbit/s) on a 2-core machine: there the estimate stays below
+every measured check, so a plan estimated over the limit would not have finished within it. An engine that gets
+faster calls for running that script again. The time limit in the workers stays the final guard.
 """
 
 import dataclasses
@@ -25,13 +26,13 @@ from pairline.engine.plan import BusPlan, Problem, resolve_cable, resolve_driver
 from pairline.engine.rules.signal import MAX_DRIVERS_ALL, MAX_DRIVERS_SAMPLED
 from pairline.engine.units import delay_s, si_format
 
-SECONDS_PER_UNIT = 1.0e-7  # measured lower bound, see the module docstring
+SECONDS_PER_UNIT = 6.0e-8  # measured lower bound, see the module docstring
 DEFAULT_PATTERN_BITS = 127  # the longest built-in pseudo-random pattern (PRBS-7)
 EDGE_POINTS_PER_EDGE = 8  # edge response points per 0-100 % edge time
 FIRST_LEVEL_EDGES = 512  # edge times the finest time step covers at most
 POINTS_PER_BIT_MAX = 600
 POINTS_PER_BIT_MIN = 32
-KEPT_FRACTION = 0.1  # of the edge response's points within a bit, those a pattern waveform keeps (where it bends)
+KEPT_FRACTION = 0.05  # of the edge response's points within a bit, those a pattern waveform keeps (where it bends)
 WAVEFORM_VALUES = 6_000_000  # receivers x bits x points of one pattern simulation, before points thin out
 SETTLING_DELAYS = 6  # an edge is remembered for about six trunk delays
 SLOWEST_RISE_S = 20e-6  # the plan model's largest rise time
