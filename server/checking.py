@@ -2,9 +2,10 @@
 
 A saved plan never changes, so its checked data is cached by plan id, engine version and view options for as
 long as the cache keeps it; an unsaved plan (a draft from the editor or `POST /api/check`) is cached by the
-hash of its content for `draft_cache_ttl_s`. Values are the page data as JSON bytes, exactly the bytes the
-`.json` twin answers with, so a cache hit returns identical bytes. One check runs per key at a time: a second
-request for the same plan waits for the first rather than simulating it again.
+hash of its content for `draft_cache_ttl_s`. Values are bytes: the page data as JSON, exactly the bytes the
+`.json` twin answers with, and a saved plan's page as HTML, rendered by the worker that checked it; so a cache
+hit returns identical bytes and costs the server nothing but the copy. One check runs per key at a time: a
+second request for the same plan waits for the first rather than simulating it again.
 
 A plan whose estimated check time is over the limit is refused before simulating (server.cost); one that runs
 past the limit or out of memory is refused the same way, and for a saved plan that refusal is cached too, so
@@ -23,7 +24,8 @@ from pairline.engine import ENGINE_VERSION
 from pairline.engine.plan import BusInputError, BusPlan, Problem, plan_to_dict
 from pairline.server.cache import ResultCache
 from pairline.server.cost import cost_problems, over_limit_problems
-from pairline.server.jobs import checked_plan_data, checked_report_data
+from pairline.server.jobs import Page, checked_plan_page, checked_report, templates
+from pairline.server.rendering import PageAt, render_page
 from pairline.server.settings import Settings
 from pairline.server.store import SavedPlan, canonical_json
 from pairline.server.workers import CheckOverLimit, CheckPool
@@ -31,19 +33,19 @@ from pairline.server.workers import CheckOverLimit, CheckPool
 REFUSAL_TTL_S = 3600.0  # a saved plan's over-limit refusal is retried after this (settings may have changed)
 _CHECKED = b"checked\n"
 _REFUSED = b"refused\n"
+Job = tuple[Callable[..., Page], tuple[Any, ...]]
 
 
 class CheckRefused(BusInputError):
     """The plan is too costly to check within the limits; its problems say what makes it costly (a 422)."""
 
 
-def page_json(data: dict[str, Any]) -> bytes:
-    """Page data as the JSON twin sends it (the same separators and escaping as JSONResponse)."""
-    return json.dumps(data, ensure_ascii=False, allow_nan=False, indent=None, separators=(",", ":")).encode("utf-8")
-
-
 def saved_key(plan_id: str, receiver: str | None) -> str:
     return f"saved:{plan_id}:{ENGINE_VERSION}:{receiver or ''}"
+
+
+def html_key(key: str) -> str:
+    return "html:" + key
 
 
 def draft_key(plan: BusPlan, view: str) -> str:
@@ -61,61 +63,76 @@ class Checker:
         self._guard = threading.Lock()
         self._running: dict[str, threading.Lock] = {}
 
-    def saved_data(
-        self, saved: SavedPlan, plan: BusPlan, receiver: str | None, extra: dict[str, Any] | None = None
+    def cached_json(self, plan_id: str, receiver: str | None) -> bytes | None:
+        """A saved plan's JSON twin when the cache holds it (a refusal is not returned here)."""
+        found = self.cache.get(saved_key(plan_id, receiver))
+        return found[len(_CHECKED) :] if found is not None and found.startswith(_CHECKED) else None
+
+    def cached_html(self, plan_id: str, receiver: str | None) -> bytes | None:
+        return self.cache.get(html_key(saved_key(plan_id, receiver)))
+
+    def saved_json(self, saved: SavedPlan, plan: BusPlan, receiver: str | None, extra: dict[str, Any]) -> bytes:
+        """A saved plan's JSON twin; `receiver` must be one of its receivers or None. `extra` joins the data when
+        it is checked (facts about the saved row that never change, such as its parent)."""
+        job = (checked_plan_page, (plan_to_dict(plan), saved, receiver, extra, None))
+        return self._data(saved_key(saved.id, receiver), None, REFUSAL_TTL_S, plan, job)[0]
+
+    def saved_html(
+        self, saved: SavedPlan, plan: BusPlan, receiver: str | None, extra: dict[str, Any], at: PageAt
     ) -> bytes:
-        """JSON bytes of a saved plan's page data; `receiver` must be one of its receivers or None. `extra` joins
-        the data when it is checked (facts about the saved row that never change, such as its parent)."""
-        job = (checked_plan_data, (plan_to_dict(plan), saved, receiver))
-        return self._data(saved_key(saved.id, receiver), None, REFUSAL_TTL_S, plan, job, extra or {})
+        """A saved plan's page: rendered by the worker that checks it, or from the checked data in the cache."""
+        key = saved_key(saved.id, receiver)
+        found = self.cache.get(html_key(key))
+        if found is None:
+            job = (checked_plan_page, (plan_to_dict(plan), saved, receiver, extra, at))
+            body, found = self._data(key, None, REFUSAL_TTL_S, plan, job)
+            if found is None:  # checked earlier, for its JSON twin
+                found = render_page(templates(), "plan.html", json.loads(body), at)
+                self.cache.put(html_key(key), found)
+        return found
 
     def draft_data(self, plan: BusPlan) -> bytes:
         """JSON bytes of an unsaved plan's page data (no id, no URL)."""
         ttl = self.settings.draft_cache_ttl_s
-        job = (checked_plan_data, (plan_to_dict(plan), None, None))
-        return self._data(draft_key(plan, "page"), ttl, ttl, plan, job, {})
+        job = (checked_plan_page, (plan_to_dict(plan), None, None, {}, None))
+        return self._data(draft_key(plan, "page"), ttl, ttl, plan, job)[0]
 
     def draft_report(self, plan: BusPlan) -> bytes:
         """JSON bytes of an unsaved plan's verdict, findings and summary, without simulated pictures."""
         ttl = self.settings.draft_cache_ttl_s
-        return self._data(draft_key(plan, "report"), ttl, ttl, plan, (checked_report_data, (plan_to_dict(plan),)), {})
+        return self._data(draft_key(plan, "report"), ttl, ttl, plan, (checked_report, (plan_to_dict(plan),)))[0]
 
-    def _data(
-        self,
-        key: str,
-        ttl_s: float | None,
-        refusal_ttl_s: float,
-        plan: BusPlan,
-        job: tuple[Callable[..., dict[str, Any]], tuple[Any, ...]],
-        extra: dict[str, Any],
-    ) -> bytes:
-        found = self.cache.get(key)
+    def _data(self, key: str, ttl_s: float | None, refusal_ttl_s: float, plan: BusPlan, job: Job) -> Page:
+        """The JSON under key, checked by job when absent (one check per key at a time), and the HTML that check
+        rendered (None when the JSON came from the cache). Raises CheckRefused."""
+        found, html = self.cache.get(key), None
         if found is None:
             with self._one_at_a_time(key):
                 found = self.cache.get(key)
                 if found is None:
-                    found = self._check(plan, job, extra)
+                    found, html = self._check(plan, job)
                     self.cache.put(key, found, ttl_s if found.startswith(_CHECKED) else refusal_ttl_s)
+                    if html is not None:
+                        self.cache.put(html_key(key), html, ttl_s)
         if found.startswith(_REFUSED):
             problems = [Problem(**p) for p in json.loads(found[len(_REFUSED) :])]
             raise CheckRefused(problems)
-        return found[len(_CHECKED) :]
+        return found[len(_CHECKED) :], html
 
-    def _check(
-        self, plan: BusPlan, job: tuple[Callable[..., dict[str, Any]], tuple[Any, ...]], extra: dict[str, Any]
-    ) -> bytes:
-        """The cache entry for a plan: the job's data, or the refusal of a check that went over a limit.
-        A plan estimated over the limit raises CheckRefused at once (cheap to tell again, so not cached)."""
+    def _check(self, plan: BusPlan, job: Job) -> Page:
+        """The cache entry for a plan (the job's JSON, or the refusal of a check that went over a limit) and the
+        job's HTML. A plan estimated over the limit raises CheckRefused at once (cheap to tell again, so not
+        cached)."""
         problems = cost_problems(plan, self.settings.check_time_limit_s)
         if problems:
             raise CheckRefused(problems)
         function, args = job
         try:
-            data = self.pool.run(function, *args)
+            body, html = self.pool.run(function, *args)
         except CheckOverLimit as exc:
             problems = over_limit_problems(plan, exc.limit, exc.time_limit_s, exc.memory_limit_mb)
-            return _REFUSED + json.dumps([asdict(p) for p in problems], ensure_ascii=False).encode("utf-8")
-        return _CHECKED + page_json(data | extra)
+            return _REFUSED + json.dumps([asdict(p) for p in problems], ensure_ascii=False).encode("utf-8"), None
+        return _CHECKED + body, html
 
     @contextmanager
     def _one_at_a_time(self, key: str) -> Iterator[None]:

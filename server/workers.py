@@ -7,7 +7,6 @@ whole time limit without getting a worker.
 
 A worker enforces the limits itself: RLIMIT_AS caps its address space at what it held when it started plus
 the memory limit (numpy then raises MemoryError), and an interval timer interrupts the job at the time limit.
-Workers run at a lower CPU priority than the server, so pages that need no check are served first.
 A worker that does not answer within the limit plus a grace period (stuck inside one long numpy call) is
 killed and replaced; so is one that ran out of memory. Workers fork from a server process that has already
 imported the engine, so a replacement starts in milliseconds.
@@ -30,7 +29,6 @@ from pairline.engine.plan import BusInputError, Problem
 
 T = TypeVar("T")
 GRACE_S = 2.0  # beyond the time limit before a worker that does not answer is killed
-NICENESS = 5  # workers give way to the server process (a third of its CPU weight), so pages without a check stay quick
 JOB_MODULES = ["pairline.server.jobs"]  # imported once in the fork server, so every worker starts warm
 # one BLAS thread per worker: the pool, not numpy, decides how many cores checks use
 SINGLE_THREAD_ENV = {"OPENBLAS_NUM_THREADS": "1", "OMP_NUM_THREADS": "1", "MKL_NUM_THREADS": "1"}
@@ -82,7 +80,6 @@ def _worker_main(conn: Connection, time_limit_s: float, memory_limit_bytes: int)
     or ("error", traceback text)."""
     limit = _address_space_bytes() + memory_limit_bytes
     resource.setrlimit(resource.RLIMIT_AS, (limit, limit))
-    os.nice(NICENESS)
     signal.signal(signal.SIGALRM, _time_up)
     signal.signal(signal.SIGINT, signal.SIG_IGN)  # Ctrl-C stops the server, which then closes the pool
     while True:

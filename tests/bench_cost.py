@@ -1,7 +1,7 @@
 """Benchmark (a script, not a test): the check-cost estimate against measured check times.
 
 Run: python tests/bench_cost.py [--quick]   (from the repository root). Each invented plan is checked as a page
-view is (server.jobs.checked_plan_data) in a fresh process, timed, and set beside server.cost's estimate. The
+view is (server.jobs.checked_plan_page) in a fresh process, timed, and set beside server.cost's estimate. The
 estimate is meant as a lower bound on this kind of machine: the smallest measured/estimated ratio should stay
 at or above 1. --quick times the first six plans only. Exits 0 always; the figures are the report.
 """
@@ -19,10 +19,10 @@ from pairline.server.cost import check_work, estimated_check_s
 TIMEOUT_S = 300
 CHILD = """
 import json, sys, time
-from pairline.server.jobs import checked_plan_data
+from pairline.server.jobs import checked_plan_page
 doc = json.loads(sys.stdin.read())
 start = time.perf_counter()
-checked_plan_data(doc, None, None)
+checked_plan_page(doc, None, None, {}, None)
 print(time.perf_counter() - start)
 """
 # (nodes, transceivers, rise time s, bit rate bit/s, pattern bits (0: built-in), terminators)

@@ -10,7 +10,7 @@ from urllib.parse import quote
 from fastapi import APIRouter, Depends, Request
 from fastapi.responses import JSONResponse, RedirectResponse, Response
 from pairline.engine.plan import BusInputError, BusPlan, Problem, load_plan, plan_to_dict
-from pairline.server.checking import Checker, CheckRefused, saved_key
+from pairline.server.checking import Checker, CheckRefused
 from pairline.server.errors import RequestRefused, not_found
 from pairline.server.forms import (
     MAX_FORM_FIELDS,
@@ -27,7 +27,7 @@ from pairline.server.json_input import JsonInputError, load_json
 from pairline.server.node_table import read_node_table, with_pasted_rows
 from pairline.server.openapi import FORM_BODY, IMPORT_BODY
 from pairline.server.quantities import UnitSystem
-from pairline.server.rendering import render, render_bytes
+from pairline.server.rendering import page_at, render
 from pairline.server.saving import save_checked_plan
 from pairline.server.store import PlanStore, SavedPlan
 from pairline.server.views import editor_data, lineage_data, start_data
@@ -224,12 +224,11 @@ def _receiver_names(saved: SavedPlan) -> set[str]:
 def plan_page(
     request: Request, ref: str, store: StoreDep, checker: CheckerDep, receiver: str | None = None
 ) -> Response:
-    """A saved plan, checked: rendered from the results cache when it holds this plan, view and format."""
+    """A saved plan, checked: straight from the results cache when it holds this plan, view and format."""
     plan_id, as_json = _split(ref)
     receiver = receiver or None
     media_type = "application/json" if as_json else "text/html; charset=utf-8"
-    page_key = ("json:" if as_json else "html:") + saved_key(plan_id, receiver)
-    cached = checker.cache.get(page_key)
+    cached = checker.cached_json(plan_id, receiver) if as_json else checker.cached_html(plan_id, receiver)
     if cached is not None:
         return Response(cached, media_type=media_type)
     saved = store.get_plan(plan_id)
@@ -239,7 +238,14 @@ def plan_page(
         plan = load_plan(saved.plan)
         known = receiver if receiver in _receiver_names(saved) else None
         parent = store.get_plan(saved.parent_id) if saved.parent_id else None
-        data_json = checker.saved_data(saved, plan, known, {"lineage": lineage_data(parent)})
+        extra = {"lineage": lineage_data(parent)}
+        if receiver == known:  # the view every request with these options gets, cached as bytes
+            if as_json:
+                body = checker.saved_json(saved, plan, known, extra)
+            else:
+                body = checker.saved_html(saved, plan, known, extra, page_at(request))
+            return Response(body, media_type=media_type)
+        data = json.loads(checker.saved_json(saved, plan, None, extra))
     except BusInputError as exc:
         # Saved under an older engine or looser limits that accepted it; show it in the editor with what to change.
         if as_json:
@@ -248,11 +254,6 @@ def plan_page(
         state.problems = exc.problems
         title = "This saved plan needs changes before it can be checked here"
         return render(request, "editor.html", editor_data(state, title=title, saved_from=saved), status_code=422)
-    if receiver == known:  # the view every request with these options gets: keep its bytes
-        body = data_json if as_json else render_bytes(request, "plan.html", json.loads(data_json))
-        checker.cache.put(page_key, body)
-        return Response(body, media_type=media_type)
-    data = json.loads(data_json)
     data["waveforms"]["chosen_unknown"] = receiver
     return page(request, "plan.html", data, as_json)
 
@@ -275,7 +276,8 @@ def bill_of_materials(request: Request, ref: str, store: StoreDep, checker: Chec
     saved = store.get_plan(ref)
     if saved is None:
         return not_found(request)
-    data = json.loads(checker.saved_data(saved, load_plan(saved.plan), None))
+    parent = store.get_plan(saved.parent_id) if saved.parent_id else None
+    data = json.loads(checker.saved_json(saved, load_plan(saved.plan), None, {"lineage": lineage_data(parent)}))
     out = io.StringIO()
     writer = csv.writer(out)
     writer.writerow(["item", "value", "quantity", "rating", "note"])
