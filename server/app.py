@@ -1,7 +1,8 @@
 """The app factory. Nothing touches disk or settings at import time: every test builds its own app."""
 
-import json
 import logging
+from collections.abc import AsyncIterator
+from contextlib import asynccontextmanager
 from pathlib import Path
 from typing import Any
 
@@ -10,9 +11,10 @@ from fastapi.responses import HTMLResponse, JSONResponse, Response
 from fastapi.staticfiles import StaticFiles
 from jinja2 import Environment, FileSystemLoader, select_autoescape
 from pairline.engine import ENGINE_VERSION
-from pairline.engine.plan import BusInputError, load_plan, plan_to_dict
+from pairline.engine.plan import BusInputError
 from pairline.server.errors import input_error_response, not_found
-from pairline.server.store import PlanStore
+from pairline.server.samples import SAMPLES_DIR, seed_samples
+from pairline.server.store import PlanStore, open_store
 from starlette.exceptions import HTTPException as StarletteHTTPException
 from starlette.types import ASGIApp, Message, Receive, Scope, Send
 
@@ -20,7 +22,6 @@ from pairline import data_dir
 
 TEMPLATES_DIR = data_dir("templates")
 STATIC_DIR = data_dir("static")
-SAMPLES_DIR = data_dir("sample_buses")
 MAX_BODY_BYTES = 2_000_000  # a 512-node plan is about 100 kB; anything far larger is refused
 
 log = logging.getLogger("pairline.server")
@@ -111,36 +112,37 @@ def render(request: Request, template: str, data: dict[str, Any], status_code: i
     return HTMLResponse(html, status_code=status_code)
 
 
-def load_sample_buses(store: PlanStore, directory: Path = SAMPLES_DIR) -> int:
-    """Load every valid `sample_buses/*.json` into the store; an invalid file is logged and skipped."""
-    loaded: list[str] = []
-    for position, path in enumerate(sorted(directory.glob("*.json"))):
-        try:
-            plan = load_plan(json.loads(path.read_text(encoding="utf-8")))
-        except (OSError, ValueError) as exc:  # BusInputError and JSONDecodeError are ValueErrors
-            log.warning("sample bus %s skipped: %s", path.name, exc)
-            continue
-        store.put_sample(path.stem, plan_to_dict(plan), engine_version=ENGINE_VERSION, position=position)
-        loaded.append(path.stem)
-    store.retain_samples(loaded)
-    return len(loaded)
-
-
 def create_app(
-    db_path: Path,
+    db: PlanStore | Path | str,
     *,
     load_samples: bool = True,
     samples_dir: Path = SAMPLES_DIR,
     max_body_bytes: int = MAX_BODY_BYTES,
 ) -> FastAPI:
-    """The planner app on a SQLite file. `load_samples` puts every valid `samples_dir/*.json` into the store."""
+    """The planner app on a store: an open PlanStore, a SQLite file path or a postgresql:// URL.
+
+    `load_samples` seeds every valid `samples_dir/*.json` into the store. Several workers sharing one database
+    seed once beforehand (`pairline seed`) and start with `load_samples=False`. A store opened here from a path
+    or URL is closed when the app shuts down.
+    """
     from pairline.server.routes import api, pages
 
-    app = FastAPI(title="Pairline", version=ENGINE_VERSION, docs_url=None, redoc_url=None, openapi_url=None)
-    app.state.store = PlanStore(Path(db_path))
+    owned = not isinstance(db, PlanStore)
+    store = open_store(db) if not isinstance(db, PlanStore) else db
+
+    @asynccontextmanager
+    async def lifespan(app: FastAPI) -> AsyncIterator[None]:
+        yield
+        if owned:
+            store.close()
+
+    app = FastAPI(
+        title="Pairline", version=ENGINE_VERSION, docs_url=None, redoc_url=None, openapi_url=None, lifespan=lifespan
+    )
+    app.state.store = store
     app.state.templates = make_templates()
     if load_samples:
-        load_sample_buses(app.state.store, samples_dir)
+        seed_samples(store, samples_dir)
     app.mount("/static", StaticFiles(directory=STATIC_DIR), name="static")
     app.include_router(api.router)
     app.include_router(pages.router)
