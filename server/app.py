@@ -112,6 +112,12 @@ def render(request: Request, template: str, data: dict[str, Any], status_code: i
     return HTMLResponse(html, status_code=status_code)
 
 
+def client_address(request: Request) -> str | None:
+    """The address a request came from, recorded with each save (behind a proxy, uvicorn's --proxy-headers and
+    --forwarded-allow-ips make it the client's, not the proxy's)."""
+    return request.client.host if request.client else None
+
+
 def create_app(
     db: PlanStore | Path | str,
     *,

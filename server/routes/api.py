@@ -7,6 +7,7 @@ from fastapi import APIRouter, Request
 from fastapi.responses import JSONResponse, Response
 from pairline.engine import ENGINE_VERSION
 from pairline.engine.plan import BusInputError, Problem, load_plan, plan_to_dict
+from pairline.server.app import client_address
 from pairline.server.results import check_and_simulate
 from pairline.server.store import PlanStore
 from pairline.server.views import plan_data
@@ -49,7 +50,9 @@ async def save(request: Request, parent: str | None = None) -> Response:
     store: PlanStore = request.app.state.store
     plan = load_plan(await _json_body(request))
     parent_id = parent if parent and store.get_plan(parent) else None
-    plan_id = store.save_plan(plan_to_dict(plan), engine_version=ENGINE_VERSION, parent_id=parent_id)
+    plan_id = store.save_plan(
+        plan_to_dict(plan), engine_version=ENGINE_VERSION, parent_id=parent_id, client=client_address(request)
+    )
     body = {"id": plan_id, "url": f"/plans/{plan_id}", "json_url": f"/plans/{plan_id}.json", "parent_id": parent_id}
     return JSONResponse(body, status_code=201, headers={"Location": f"/plans/{plan_id}"})
 

@@ -9,7 +9,7 @@ from fastapi import APIRouter, Depends, Request
 from fastapi.responses import JSONResponse, RedirectResponse, Response
 from pairline.engine import ENGINE_VERSION
 from pairline.engine.plan import BusInputError, BusPlan, Problem, load_plan, plan_to_dict
-from pairline.server.app import render
+from pairline.server.app import client_address, render
 from pairline.server.errors import not_found
 from pairline.server.forms import FormState, form_from_plan, merge_problems, parse_form, with_units
 from pairline.server.quantities import UnitSystem
@@ -89,7 +89,7 @@ async def import_plan(request: Request, store: StoreDep) -> Response:
         problems = exc.problems
     if problems:
         return render(request, "start.html", start_data(store.samples(), problems, pasted, units), status_code=422)
-    plan_id = store.save_plan(plan_to_dict(plan), engine_version=ENGINE_VERSION)
+    plan_id = store.save_plan(plan_to_dict(plan), engine_version=ENGINE_VERSION, client=client_address(request))
     return RedirectResponse(f"/plans/{plan_id}", status_code=303)
 
 
@@ -147,7 +147,7 @@ async def submit_plan(request: Request, store: StoreDep) -> Response:
     async with request.form(max_fields=MAX_FORM_FIELDS) as form:
         fields = {k: v for k, v in form.items() if isinstance(v, str)}
     if "plan_json" in fields:
-        return _save_draft(fields, store)
+        return _save_draft(request, fields, store)
     parsed = parse_form(fields)
     state = parsed.state
     if parsed.action in ("add_node", "add_termination", "units"):
@@ -167,7 +167,12 @@ async def submit_plan(request: Request, store: StoreDep) -> Response:
     if plan is None or parsed.problems:
         return render(request, "editor.html", editor_data(state, title=_editor_title(state)), status_code=422)
     if parsed.action == "save":
-        plan_id = store.save_plan(plan_to_dict(plan), engine_version=ENGINE_VERSION, parent_id=_parent(store, state))
+        plan_id = store.save_plan(
+            plan_to_dict(plan),
+            engine_version=ENGINE_VERSION,
+            parent_id=_parent(store, state),
+            client=client_address(request),
+        )
         return RedirectResponse(f"/plans/{plan_id}", status_code=303)
     data = plan_data(check_and_simulate(plan), None)
     data["draft"] = {"plan_json": json.dumps(plan_to_dict(plan)), "parent_id": _parent(store, state)}
@@ -182,7 +187,7 @@ def _parent(store: PlanStore, state: FormState) -> str | None:
     return state.parent_id if state.parent_id and store.get_plan(state.parent_id) else None
 
 
-def _save_draft(fields: dict[str, str], store: PlanStore) -> Response:
+def _save_draft(request: Request, fields: dict[str, str], store: PlanStore) -> Response:
     try:
         doc = json.loads(fields["plan_json"])
     except json.JSONDecodeError as exc:
@@ -192,7 +197,9 @@ def _save_draft(fields: dict[str, str], store: PlanStore) -> Response:
     plan = load_plan(doc)
     parent = fields.get("parent_id") or None
     parent = parent if parent and store.get_plan(parent) else None
-    plan_id = store.save_plan(plan_to_dict(plan), engine_version=ENGINE_VERSION, parent_id=parent)
+    plan_id = store.save_plan(
+        plan_to_dict(plan), engine_version=ENGINE_VERSION, parent_id=parent, client=client_address(request)
+    )
     return RedirectResponse(f"/plans/{plan_id}", status_code=303)
 
 
