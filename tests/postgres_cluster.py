@@ -2,7 +2,8 @@
 
 Made with the server programs of Debian's postgresql package (initdb, pg_ctl). PostgreSQL refuses to run as root,
 so under root (as in CI) the server runs as the unprivileged `postgres` user that the package creates. It listens on
-no TCP port, so clusters of parallel test runs never collide; fsync is off, as nothing here must survive a crash.
+no TCP port, so clusters of parallel test runs never collide. For tests fsync is off, as nothing there must
+survive a crash.
 """
 
 import os
@@ -58,7 +59,10 @@ def skip_or_fail_without_postgres() -> None:
 
 
 class Cluster:
-    def __init__(self) -> None:
+    """`durable=False` (for tests) turns fsync off; benchmarks keep PostgreSQL's durable defaults."""
+
+    def __init__(self, durable: bool = False) -> None:
+        self.durable = durable
         folder = pg_bin()
         assert folder is not None
         self.bin = folder
@@ -82,7 +86,9 @@ class Cluster:
         self._run(
             "initdb", "-D", str(self.data), "-U", SERVER_USER, "-A", "trust", "-E", "UTF8", "--locale=C", "--no-sync"
         )
-        options = f"-k {self.root} -c listen_addresses= -c fsync=off -c max_connections=200"
+        options = f"-k {self.root} -c listen_addresses= -c max_connections=200"
+        if not self.durable:
+            options += " -c fsync=off"
         self._run("pg_ctl", "-D", str(self.data), "-l", str(self.root / "server.log"), "-o", options, "-w", "start")
 
     def stop(self) -> None:
