@@ -1,11 +1,14 @@
-"""Versioned schema changes, one list per database, applied in order and recorded in `schema_migrations`.
+"""Versioned schema changes, applied in order and recorded in `schema_migrations`.
 
 A database remembers the newest version applied; opening a store applies the newer ones in one transaction, under
 a lock, so several processes starting together migrate once. Never edit a released migration: add the next one.
-The two lists keep the same version numbers for the same change, so the two databases always have one shape.
+Both databases step through the same list; the few words in which their SQL differs are filled in per database.
 """
 
 from dataclasses import dataclass
+from typing import Literal
+
+Dialect = Literal["sqlite", "postgresql"]
 
 
 @dataclass(frozen=True, slots=True)
@@ -20,16 +23,15 @@ MIGRATION_TABLE = (
     " version INTEGER PRIMARY KEY, name TEXT NOT NULL, applied_at TEXT NOT NULL)"
 )
 
-SQLITE = (
-    # IF NOT EXISTS adopts files written before migrations were recorded: they hold exactly these two tables.
+_MIGRATIONS = (
     Migration(
         1,
         "plans and samples",
         (
-            "CREATE TABLE IF NOT EXISTS plans ("
+            "CREATE TABLE {adopt}plans ("
             " id TEXT PRIMARY KEY, plan_json TEXT NOT NULL, title TEXT NOT NULL, parent_id TEXT,"
-            " engine_version TEXT NOT NULL, created_at TEXT NOT NULL)",
-            "CREATE TABLE IF NOT EXISTS samples ("
+            " engine_version TEXT NOT NULL, created_at {timestamp} NOT NULL{row_order})",
+            "CREATE TABLE {adopt}samples ("
             " slug TEXT PRIMARY KEY, plan_id TEXT NOT NULL REFERENCES plans(id), title TEXT NOT NULL,"
             " position INTEGER NOT NULL)",
         ),
@@ -41,7 +43,7 @@ SQLITE = (
         (
             "ALTER TABLE plans ADD COLUMN client TEXT",
             "ALTER TABLE plans ADD COLUMN plan_bytes INTEGER NOT NULL DEFAULT 0",
-            "UPDATE plans SET plan_bytes = length(CAST(plan_json AS BLOB))",
+            "UPDATE plans SET plan_bytes = {utf8_bytes_of_plan_json}",
             "CREATE INDEX plans_client_time ON plans (client, created_at)",
         ),
     ),
@@ -49,44 +51,38 @@ SQLITE = (
         4,
         "shared results cache",
         (
-            "CREATE TABLE results_cache (key TEXT PRIMARY KEY, value BLOB NOT NULL, expires_at REAL)",
+            "CREATE TABLE results_cache (key TEXT PRIMARY KEY, value {bytes} NOT NULL, expires_at {float})",
             "CREATE INDEX results_cache_expiry ON results_cache (expires_at)",
         ),
     ),
 )
 
-POSTGRESQL = (
-    # `rowid` orders plans saved within the same microsecond; SQLite gives every table a column of that name.
-    Migration(
-        1,
-        "plans and samples",
-        (
-            "CREATE TABLE plans ("
-            " id TEXT PRIMARY KEY, plan_json TEXT NOT NULL, title TEXT NOT NULL, parent_id TEXT,"
-            " engine_version TEXT NOT NULL, created_at TIMESTAMPTZ NOT NULL,"
-            " rowid BIGINT GENERATED ALWAYS AS IDENTITY)",
-            "CREATE TABLE samples ("
-            " slug TEXT PRIMARY KEY, plan_id TEXT NOT NULL REFERENCES plans(id), title TEXT NOT NULL,"
-            " position INTEGER NOT NULL)",
-        ),
-    ),
-    Migration(2, "plans by parent", ("CREATE INDEX plans_parent ON plans (parent_id)",)),
-    Migration(
-        3,
-        "client and size of each save",
-        (
-            "ALTER TABLE plans ADD COLUMN client TEXT",
-            "ALTER TABLE plans ADD COLUMN plan_bytes INTEGER NOT NULL DEFAULT 0",
-            "UPDATE plans SET plan_bytes = octet_length(plan_json)",
-            "CREATE INDEX plans_client_time ON plans (client, created_at)",
-        ),
-    ),
-    Migration(
-        4,
-        "shared results cache",
-        (
-            "CREATE TABLE results_cache (key TEXT PRIMARY KEY, value BYTEA NOT NULL, expires_at DOUBLE PRECISION)",
-            "CREATE INDEX results_cache_expiry ON results_cache (expires_at)",
-        ),
-    ),
-)
+_WORDS: dict[Dialect, dict[str, str]] = {
+    "sqlite": {
+        # Files written before migrations were recorded hold exactly version 1's tables: adopt them.
+        "adopt": "IF NOT EXISTS ",
+        "timestamp": "TEXT",  # ISO 8601 of fixed width, so text order is time order
+        "row_order": "",  # SQLite gives every table a rowid already
+        "utf8_bytes_of_plan_json": "length(CAST(plan_json AS BLOB))",
+        "bytes": "BLOB",
+        "float": "REAL",
+    },
+    "postgresql": {
+        "adopt": "",
+        "timestamp": "TIMESTAMPTZ",
+        # Named like SQLite's own, so one ORDER BY created_at, rowid serves both.
+        "row_order": ", rowid BIGINT GENERATED ALWAYS AS IDENTITY",
+        "utf8_bytes_of_plan_json": "octet_length(plan_json)",
+        "bytes": "BYTEA",
+        "float": "DOUBLE PRECISION",
+    },
+}
+
+
+def migrations_for(dialect: Dialect) -> tuple[Migration, ...]:
+    """Every migration, its SQL written for `dialect`."""
+    words = _WORDS[dialect]
+    return tuple(
+        Migration(m.version, m.name, tuple(statement.format(**words) for statement in m.statements))
+        for m in _MIGRATIONS
+    )

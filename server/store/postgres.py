@@ -13,7 +13,7 @@ from typing import Any
 from urllib.parse import urlsplit, urlunsplit
 
 from pairline.server.store.base import StoreError
-from pairline.server.store.migrations import POSTGRESQL
+from pairline.server.store.migrations import migrations_for
 from pairline.server.store.sql import Clock, Rows, SqlStore, Transaction
 
 MIGRATION_LOCK = 0x7061_6972_6C69  # any fixed 64-bit key, the same in every Pairline process
@@ -40,7 +40,7 @@ class _Transaction:
 
 
 class PostgresStore(SqlStore):
-    migrations = POSTGRESQL
+    migrations = migrations_for("postgresql")
 
     def __init__(
         self, url: str, *, clock: Clock = time.time, max_connections: int = 4, connect_timeout_s: float = 10.0

@@ -11,12 +11,12 @@ from contextlib import closing, contextmanager
 from datetime import datetime
 from pathlib import Path
 
-from pairline.server.store.migrations import SQLITE
+from pairline.server.store.migrations import migrations_for
 from pairline.server.store.sql import Clock, SqlStore
 
 
 class SqliteStore(SqlStore):
-    migrations = SQLITE
+    migrations = migrations_for("sqlite")
 
     def __init__(self, db_path: Path, *, clock: Clock = time.time, timeout_s: float = 10.0):
         super().__init__(clock)
