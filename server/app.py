@@ -134,7 +134,7 @@ def create_app(
     from pairline.server.routes import api, pages
 
     owned = not isinstance(db, PlanStore)
-    store = open_store(db) if not isinstance(db, PlanStore) else db
+    store = db if isinstance(db, PlanStore) else open_store(db)
 
     @asynccontextmanager
     async def lifespan(app: FastAPI) -> AsyncIterator[None]:

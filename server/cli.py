@@ -369,11 +369,12 @@ def run_samples(args: argparse.Namespace, out: TextIO, err: TextIO) -> int:
 def run_serve(args: argparse.Namespace, out: TextIO, err: TextIO) -> int:
     """Serve the web planner until interrupted; options override PAIRLINE_HOST, PAIRLINE_PORT, PAIRLINE_DB."""
     from pairline.server.serve import run, settings_from_env
-    from pairline.server.store import StoreError
+    from pairline.server.store import StoreError, target_for_people
 
     try:
         settings = settings_from_env(args.host, args.port, args.db)
-        print(f"Pairline planner on http://{settings.host}:{settings.port}/", file=out)
+        where = target_for_people(settings.db)
+        print(f"Pairline planner on http://{settings.host}:{settings.port}/ (plans in {where})", file=out)
         run(settings)
     except (ValueError, StoreError) as exc:
         print(f"pairline serve: {exc}", file=err)

@@ -20,6 +20,7 @@ from pairline.server.store.base import (
     canonical_json,
     looks_like_plan_id,
     new_plan_id,
+    target_for_people,
 )
 from pairline.server.store.sqlite import SqliteStore
 
@@ -40,6 +41,7 @@ __all__ = [
     "looks_like_plan_id",
     "new_plan_id",
     "open_store",
+    "target_for_people",
 ]
 
 

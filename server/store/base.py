@@ -12,6 +12,7 @@ from abc import ABC, abstractmethod
 from dataclasses import dataclass
 from datetime import datetime
 from typing import Any
+from urllib.parse import urlsplit, urlunsplit
 
 # 12 random bytes = 96 bits, written as 16 URL-safe characters; at least 64 bits keeps a link unguessable.
 ID_BYTES = 12
@@ -54,6 +55,15 @@ def looks_like_plan_id(text: str) -> bool:
 
 def canonical_json(plan: dict[str, Any]) -> str:
     return json.dumps(plan, sort_keys=True, ensure_ascii=False, separators=(",", ":"))
+
+
+def target_for_people(target: str) -> str:
+    """A store target fit to print or log: a database URL's password replaced by ***."""
+    parts = urlsplit(target)
+    if "://" not in target or parts.password is None:
+        return target
+    user, host = parts.netloc.rsplit("@", 1)
+    return urlunsplit(parts._replace(netloc=f"{user.split(':', 1)[0]}:***@{host}"))
 
 
 class StoreError(RuntimeError):

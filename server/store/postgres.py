@@ -10,22 +10,12 @@ from collections.abc import Iterator, Sequence
 from contextlib import contextmanager
 from datetime import datetime
 from typing import Any
-from urllib.parse import urlsplit, urlunsplit
 
-from pairline.server.store.base import StoreError
+from pairline.server.store.base import StoreError, target_for_people
 from pairline.server.store.migrations import migrations_for
 from pairline.server.store.sql import Clock, Rows, SqlStore, Transaction
 
 MIGRATION_LOCK = 0x7061_6972_6C69  # any fixed 64-bit key, the same in every Pairline process
-
-
-def url_without_password(url: str) -> str:
-    parts = urlsplit(url)
-    if parts.password is None:
-        return url
-    netloc = parts.netloc.rsplit("@", 1)
-    user = netloc[0].split(":", 1)[0]
-    return urlunsplit(parts._replace(netloc=f"{user}:***@{netloc[1]}"))
 
 
 class _Transaction:
@@ -47,7 +37,7 @@ class PostgresStore(SqlStore):
     ):
         try:
             import psycopg
-            from psycopg_pool import ConnectionPool
+            from psycopg_pool import ConnectionPool, PoolTimeout
         except ImportError as exc:
             raise StoreError(
                 "A postgresql:// database needs psycopg 3 and psycopg-pool: "
@@ -62,16 +52,19 @@ class PostgresStore(SqlStore):
         self._pool = ConnectionPool(
             url, min_size=1, max_size=max_connections, kwargs={"autocommit": True}, open=False, name="pairline"
         )
-        self._pool.open(wait=True, timeout=connect_timeout_s)
         try:
+            self._pool.open(wait=True, timeout=connect_timeout_s)
             self.migrate()
+        except PoolTimeout as exc:
+            self._pool.close()
+            raise StoreError(f"Cannot open connections to the database at {self.target}: {exc}") from exc
         except BaseException:
             self._pool.close()
             raise
 
     @property
     def target(self) -> str:
-        return url_without_password(self.url)
+        return target_for_people(self.url)
 
     @contextmanager
     def _transaction(self, *, write: bool) -> Iterator[_Transaction]:
