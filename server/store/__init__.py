@@ -7,6 +7,8 @@
 `open_store(target)` picks by the target and brings the schema up to date (see migrations.py).
 """
 
+import time
+from collections.abc import Callable
 from pathlib import Path
 
 from pairline.server.store.base import (
@@ -61,11 +63,14 @@ def check_store_target(target: str | Path) -> None:
         )
 
 
-def open_store(target: str | Path) -> PlanStore:
-    """The store at `target` (a SQLite file path or a postgresql:// URL), its schema brought up to date."""
+def open_store(target: str | Path, *, clock: Callable[[], float] = time.time) -> PlanStore:
+    """The store at `target` (a SQLite file path or a postgresql:// URL), its schema brought up to date.
+
+    `clock` gives the time in seconds since the Unix epoch, for save times and cache expiry.
+    """
     check_store_target(target)
     if is_database_url(target):
         from pairline.server.store.postgres import PostgresStore
 
-        return PostgresStore(str(target))
-    return SqliteStore(Path(target))
+        return PostgresStore(str(target), clock=clock)
+    return SqliteStore(Path(target), clock=clock)

@@ -48,9 +48,7 @@ def open_test_store(request: pytest.FixtureRequest, tmp_path) -> Iterator[OpenSt
     opened: list[PlanStore] = []
 
     def open_one(clock: FakeClock | None = None) -> PlanStore:
-        store = open_store(target)
-        if clock is not None:
-            store._clock = clock  # type: ignore[attr-defined]
+        store = open_store(target, clock=clock) if clock else open_store(target)
         opened.append(store)
         return store
 
