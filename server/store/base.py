@@ -38,10 +38,11 @@ class SampleEntry:
 
 @dataclass(frozen=True, slots=True)
 class SaveCount:
-    """How much one client saved in a time window: the number of plans and their stored size."""
+    """How much one client saved in a time window: the number of plans, their stored size, the first save."""
 
     saves: int
     plan_bytes: int  # UTF-8 bytes of the stored plan documents
+    first_at: datetime | None = None  # the earliest save in the window; None when there is none
 
 
 def new_plan_id() -> str:
@@ -101,7 +102,8 @@ class PlanStore(ABC):
 
     @abstractmethod
     def saves_since(self, client: str, since: datetime) -> SaveCount:
-        """How many plans `client` saved at or after `since` (timezone-aware), and their bytes."""
+        """How many plans `client` saved at or after `since` (timezone-aware), their bytes and the first one's
+        time."""
 
     @abstractmethod
     def put_sample(self, slug: str, plan: dict[str, Any], *, engine_version: str, position: int) -> str:

@@ -149,11 +149,12 @@ class SqlStore(PlanStore):
 
     def saves_since(self, client: str, since: datetime) -> SaveCount:
         with self._transaction(write=False) as tx:
-            saves, size = tx.execute(
-                "SELECT COUNT(*), COALESCE(SUM(plan_bytes), 0) FROM plans WHERE client = ? AND created_at >= ?",
+            saves, size, first = tx.execute(
+                "SELECT COUNT(*), COALESCE(SUM(plan_bytes), 0), MIN(created_at) FROM plans"
+                " WHERE client = ? AND created_at >= ?",
                 (client, self._time_param(since)),
             ).fetchone()
-        return SaveCount(int(saves), int(size))
+        return SaveCount(int(saves), int(size), None if first is None else self._time_value(first))
 
     # --- samples ------------------------------------------------------------------------------------------
 

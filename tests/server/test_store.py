@@ -6,7 +6,6 @@ import json
 import math
 import sqlite3
 import threading
-from collections.abc import Callable, Iterator
 from datetime import UTC, datetime
 
 import pytest
@@ -22,39 +21,10 @@ from pairline.server.store import (
 )
 from pairline.server.store.migrations import migrations_for
 
+from tests.conftest import T0, FakeClock
+
 PLAN = {"title": "Bench", "trunk_length_m": 50.0, "nodes": [{"name": "a", "position_m": 10.0}]}
 NEWEST = migrations_for("sqlite")[-1].version
-T0 = 1_800_000_000.0  # seconds since the epoch: 2027-01-15 08:00 UTC
-
-
-class FakeClock:
-    def __init__(self) -> None:
-        self.now_s = T0
-
-    def __call__(self) -> float:
-        return self.now_s
-
-
-OpenStore = Callable[..., PlanStore]
-
-
-@pytest.fixture(params=["sqlite", "postgresql"])
-def open_test_store(request: pytest.FixtureRequest, tmp_path) -> Iterator[OpenStore]:
-    """Opens stores on one fresh database of the parametrised kind; every store opened is closed afterwards."""
-    if request.param == "sqlite":
-        target = str(tmp_path / "plans.db")
-    else:
-        target = request.getfixturevalue("postgres_url")
-    opened: list[PlanStore] = []
-
-    def open_one(clock: FakeClock | None = None) -> PlanStore:
-        store = open_store(target, clock=clock) if clock else open_store(target)
-        opened.append(store)
-        return store
-
-    yield open_one
-    for store in opened:
-        store.close()
 
 
 def raw(store: PlanStore, sql: str, params: tuple = ()) -> list[tuple]:
@@ -157,10 +127,11 @@ def test_saves_are_counted_per_client_since_a_time_with_their_bytes(open_test_st
     assert small_bytes == 14
     since_start = datetime.fromtimestamp(T0, UTC)
     since_minute = datetime.fromtimestamp(T0 + 30.0, UTC)
-    assert store.saves_since("203.0.113.5", since_start) == SaveCount(3, 2 * small_bytes + plan_bytes)
-    assert store.saves_since("203.0.113.5", since_minute) == SaveCount(2, small_bytes + plan_bytes)
-    assert store.saves_since("2001:db8::1", since_start) == SaveCount(1, plan_bytes)
-    assert store.saves_since("192.0.2.1", since_start) == SaveCount(0, 0)
+    minute_later = datetime.fromtimestamp(T0 + 60.0, UTC)
+    assert store.saves_since("203.0.113.5", since_start) == SaveCount(3, 2 * small_bytes + plan_bytes, since_start)
+    assert store.saves_since("203.0.113.5", since_minute) == SaveCount(2, small_bytes + plan_bytes, minute_later)
+    assert store.saves_since("2001:db8::1", since_start) == SaveCount(1, plan_bytes, minute_later)
+    assert store.saves_since("192.0.2.1", since_start) == SaveCount(0, 0, None)
 
 
 def test_cache_values_replace_and_expire(open_test_store):
