@@ -9,12 +9,12 @@ import dataclasses
 from collections.abc import Sequence
 from dataclasses import dataclass
 
-from pairline.engine.bus import Bus
+from pairline.engine.bus import Bus, with_plan
 from pairline.engine.dc import bias_supply_v
-from pairline.engine.design import COVERED_RULES, PlanChange, apply_changes, best_design, bias_positions, with_plan
+from pairline.engine.design import COVERED_RULES, PlanChange, apply_changes, best_design, bias_positions
 from pairline.engine.findings import Finding, Verdict, worst
-from pairline.engine.plan import BusPlan
-from pairline.engine.rules.bias import bias_min_ohm, size_bias
+from pairline.engine.plan import BusPlan, DeviceSpec, NodeSpec
+from pairline.engine.rules.bias import bias_min_ohm, failsafe_step, listener_needs, size_bias, without_bias
 from pairline.engine.rules.loads import RS485_UNIT_LOAD_BUDGET, bias_unit_loads
 from pairline.engine.ruleset import RuleRun, run_design_rules, run_rules
 from pairline.engine.units import length_text
@@ -83,22 +83,38 @@ def advise(run: RuleRun, *, simulate: bool = True) -> Advice:
     that need a further search are left out. The plan, the changes and what they mean for the load rules (and so
     the spare capacity) are the same as in the full form."""
     bus = run.bus
+    skip: set[str] = set()
     design = best_design(bus)
-    changes = _with_rules(bus, run.findings, design.changes)
-    if not changes:
-        advised_run = run
-    elif simulate:
-        advised_run = run_rules(with_plan(bus, design.plan))
-    else:
-        kept = [f for f in run.findings if f.rule_id not in {d.rule_id for d in design.findings}]
-        advised_run = RuleRun(with_plan(bus, design.plan), (*design.findings, *kept), run.simulation)
+    while True:
+        plan = design.plan if design is not None else bus.plan
+        changes = _with_rules(bus, run.findings, design.changes) if design is not None else ()
+        if not changes:
+            advised_run = run
+            break
+        if not simulate:
+            assert design is not None
+            kept = [f for f in run.findings if f.rule_id not in {d.rule_id for d in design.findings}]
+            advised_run = RuleRun(with_plan(bus, plan), (*design.findings, *kept), run.simulation)
+            break
+        advised_run = run_rules(with_plan(bus, plan))
+        if covered_breaks(advised_run.findings) <= covered_breaks(run.findings):
+            break
+        # The simulation broke what the design rules could not see: try the next kind of terminators, and give
+        # no advice rather than advice that leaves more broken.
+        skip.add(design.kind)
+        design = best_design(bus, frozenset(skip))
     return Advice(
-        plan=design.plan,
+        plan=plan,
         changes=changes,
         run=advised_run,
-        unmet=_unmet(advised_run, search=simulate),
+        unmet=_unmet(advised_run, search=simulate, held_back=bool(skip) and not changes),
         simulated=simulate or not changes,
     )
+
+
+def covered_breaks(findings: Sequence[Finding]) -> int:
+    """How many findings of the rules a change of terminators or bias can move break."""
+    return sum(f.verdict is Verdict.BREAKS for f in findings if f.rule_id in COVERED_RULES)
 
 
 _NOT_COVERED = {
@@ -109,11 +125,17 @@ _NOT_COVERED = {
     "length.loss": "Terminators and bias do not change the cable's loss over the path.",
 }
 _REPEATER = "split the bus with a repeater (each segment has its own budget, terminators and bias)"
-_FAILSAFE = "use receivers with failsafe thresholds on every node (they read an idle terminated bus without bias)"
 
 
-def _unmet(advised: RuleRun, *, search: bool = True) -> tuple[Unmet, ...]:
-    """Every rule the advised plan still breaks, why, and what can meet it."""
+_HELD_BACK = (
+    "The terminators and bias that would meet it leave the simulated signal broken at more receivers (a long stub "
+    "or the line's length rings without them), so the plan's own are kept."
+)
+
+
+def _unmet(advised: RuleRun, *, search: bool = True, held_back: bool = False) -> tuple[Unmet, ...]:
+    """Every rule the advised plan still breaks, why, and what can meet it. held_back: every design was worse once
+    simulated, so the advised plan is the plan itself."""
     by_rule: dict[str, list[Finding]] = {}
     for f in advised.findings:
         if f.verdict is Verdict.BREAKS:
@@ -125,14 +147,16 @@ def _unmet(advised: RuleRun, *, search: bool = True) -> tuple[Unmet, ...]:
         remedies = list(dict.fromkeys(own))[:4]
         if rule_id in _NOT_COVERED:
             why = _NOT_COVERED[rule_id]
+        elif held_back and rule_id in COVERED_RULES:
+            why = _HELD_BACK
+            remedies = [*remedies[:3], _REPEATER] if remedies else [_REPEATER]
         elif rule_id == "bias.idle_level":
             why, remedies = _bias_unmet(advised.bus, search=search)
         elif rule_id in ("load.unit_loads", "load.driver"):
             why = (
                 "The nodes and the driver's own receiver load the pair this much before any bias or terminator choice."
             )
-            bias = advised.bus.plan.bias
-            held = bias_unit_loads(bias.pull_up_ohm, bias.pull_down_ohm) if bias is not None else 0.0
+            held = sum(bias_unit_loads(b.pull_up_ohm, b.pull_down_ohm) for b in advised.bus.plan.bias)
             remedies = [r for r in (_lighter_receivers(advised.bus, held) if search else "", _REPEATER) if r]
         elif rule_id in ("signal.integrity", "signal.confirms"):
             why = (
@@ -147,7 +171,7 @@ def _unmet(advised: RuleRun, *, search: bool = True) -> tuple[Unmet, ...]:
 
 def _bias_unmet(bus: Bus, *, search: bool = True) -> tuple[str, list[str]]:
     """Why no bias network fits the advised terminators, with the numbers, and what can replace it."""
-    unbiased = with_plan(bus, bus.plan.model_copy(update={"bias": None}))
+    unbiased = without_bias(bus)
     r_min = bias_min_ohm(unbiased)
     sizings = [size_bias(unbiased, p, bias_supply_v(bus)) for p in bias_positions(bus.plan)]
     best = max(sizings, key=lambda s: s.nominal_max_ohm)
@@ -162,10 +186,12 @@ def _bias_unmet(bus: Bus, *, search: bool = True) -> tuple[str, list[str]]:
         else "more than the bias supply can give through any resistor"
     )
     why = (
-        "No pull-up / pull-down pair idles every receiver at 200 mV within the bus's room, not even 1 % parts: "
-        f"with the advised terminators that takes {reach}, while {room}."
+        "No pull-up / pull-down pair idles every receiver that needs bias at its threshold within the bus's room, "
+        f"not even 1 % parts: with the advised terminators that takes {reach}, while {room}."
     )
-    remedies = [_FAILSAFE]
+    needs = listener_needs(unbiased)
+    needing = [n for n in needs if not n.covered]
+    remedies = [failsafe_step(needing, len(needs)) + " (they read an idle terminated bus without bias)"]
     held = bias_unit_loads(best.nominal_max_ohm, best.nominal_max_ohm) if best.nominal_max_ohm else 0.0
     lighter = _lighter_receivers(bus, held) if search else ""
     if lighter:
@@ -181,13 +207,22 @@ def _lighter_receivers(bus: Bus, bias_unit_loads: float = 0.0) -> str:
     plan = bus.plan
     if plan.standard != "rs485" or not plan.nodes:
         return ""
-    heaviest = max(n.unit_loads for n in plan.nodes)
-    room_each = (RS485_UNIT_LOAD_BUDGET - bus.driver.unit_loads - bias_unit_loads) / len(plan.nodes)
+    heaviest = max(bus.devices[n.name].unit_loads for n in plan.nodes)
+    room_each = (RS485_UNIT_LOAD_BUDGET - bus.driver_device.unit_loads - bias_unit_loads) / len(plan.nodes)
     ratings = [r for r in (0.5, 0.25, 0.125) if r < heaviest and (r <= room_each or r == 0.125)]
     for rating in ratings:
-        nodes = [n.model_copy(update={"unit_loads": min(n.unit_loads, rating)}) for n in plan.nodes]
+        nodes = [_rated(bus, n, rating) for n in plan.nodes]
         design = best_design(with_plan(bus, plan.model_copy(update={"nodes": nodes})))
-        if design.breaks == 0:
+        if design is not None and design.breaks == 0:
             steps = " and ".join(c.text for c in design.changes)
             return f"use receivers of {rating:g} UL on every node" + (f", then {steps}" if steps else "")
     return ""
+
+
+def _rated(bus: Bus, node: NodeSpec, rating: float) -> NodeSpec:
+    """The node with a device of at most `rating` unit loads, otherwise as it was."""
+    ul = bus.devices[node.name].unit_loads
+    if ul <= rating:
+        return node
+    spec = node.device or DeviceSpec(class_key=bus.plan.default_device)
+    return node.model_copy(update={"device": spec.model_copy(update={"unit_loads": rating})})

@@ -1,15 +1,21 @@
-"""The validated plan with its cable and driver resolved: the one input every rule and the solver take."""
+"""The validated plan with its cable and every node's device resolved: the one input every rule and the solver
+take."""
 
+import dataclasses
+import math
+from collections.abc import Mapping
 from dataclasses import dataclass
 
-from pairline.engine.plan import BusPlan, NodeSpec, ResolvedCable, ResolvedDriver, resolve_cable, resolve_driver
+from pairline.engine.devices import ResolvedDevice, ResolvedDriver, driver_of, resolve_devices
+from pairline.engine.plan import BusPlan, NodeSpec, ResolvedCable, resolve_cable
 
 
 @dataclass(frozen=True, slots=True)
 class Bus:
     plan: BusPlan
     cable: ResolvedCable
-    driver: ResolvedDriver
+    driver: ResolvedDriver  # the talker this view is driven by: the primary driver unless talker_bus chose another
+    devices: Mapping[str, ResolvedDevice]  # every node's device by name, the primary driver's included
 
     @property
     def nodes(self) -> list[NodeSpec]:
@@ -17,9 +23,61 @@ class Bus:
 
     @property
     def drivers_possible(self) -> list[str]:
-        """Names of every node that may drive: the primary driver, then RS-485 transceiver nodes."""
-        return [self.plan.driver.name] + [n.name for n in self.plan.nodes if n.role == "transceiver"]
+        """Names of every node that may drive: the primary driver, then the RS-485 nodes that may drive."""
+        return self.plan.talkers()
+
+    def device(self, name: str) -> ResolvedDevice:
+        return self.devices[name]
+
+    @property
+    def driver_device(self) -> ResolvedDevice:
+        """The primary driver's device (its receiver listens on RS-485 while the bus idles)."""
+        return self.devices[self.plan.driver.name]
+
+    @property
+    def fastest_rise_time_s(self) -> float:
+        """The fastest edge of any node that may drive: what stubs and the electrical length are held against."""
+        return min(self._rises(), default=self.driver.rise_time_s)
+
+    @property
+    def slowest_rise_time_s(self) -> float:
+        """The slowest edge of any node that may drive: what the bit-fraction budget is held against."""
+        return max(self._rises(), default=self.driver.rise_time_s)
+
+    def _rises(self) -> list[float]:
+        rises = [self.devices[name].rise_time_s for name in self.drivers_possible]
+        return [r for r in rises if math.isfinite(r)]
 
 
 def build_bus(plan: BusPlan) -> Bus:
-    return Bus(plan=plan, cable=resolve_cable(plan.cable), driver=resolve_driver(plan.driver))
+    devices = resolve_devices(plan)
+    return Bus(plan=plan, cable=resolve_cable(plan.cable), driver=driver_of(devices[plan.driver.name]), devices=devices)
+
+
+def with_plan(bus: Bus, plan: BusPlan) -> Bus:
+    """The bus with another plan (terminators, bias, nodes changed): devices re-resolved only when the nodes, the
+    driver or the default class changed, and the cable kept."""
+    same = (
+        plan.nodes is bus.plan.nodes
+        and plan.driver == bus.plan.driver
+        and plan.default_device == bus.plan.default_device
+    )
+    if same:
+        return dataclasses.replace(bus, plan=plan)
+    devices = resolve_devices(plan)
+    return Bus(plan=plan, cable=bus.cable, driver=driver_of(devices[plan.driver.name]), devices=devices)
+
+
+def talker_bus(bus: Bus, name: str) -> Bus:
+    """The bus as driven by one node that may drive: its device's output, edge and common mode."""
+    return dataclasses.replace(bus, driver=driver_of(bus.devices[name]))
+
+
+def talker_groups(bus: Bus, names: "list[str] | tuple[str, ...]") -> list[tuple[Bus, tuple[str, ...]]]:
+    """The talkers grouped by their driver's figures, each group with the bus as that group drives it: talkers
+    of one class share a simulation."""
+    groups: dict[tuple[float, float, float], list[str]] = {}
+    for name in names:
+        d = bus.devices[name]
+        groups.setdefault((d.rise_time_s, d.open_circuit_v, d.source_ohm), []).append(name)
+    return [(talker_bus(bus, members[0]), tuple(members)) for members in groups.values()]

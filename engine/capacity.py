@@ -7,19 +7,21 @@ put where they hurt the idle level most: at the trunk end farthest from the bias
 upper bound, floor(spare UL / UL per receiver) (TI SLLA166); the other two rules are checked there and N is
 bisected down when one of them breaks. RS-422 counts receivers: at most 10 per driver (TIA/EIA-422-B).
 
-The classes are the unit-load ratings of the library today; with per-node device classes each class brings its
-own rating (and, for failsafe receivers, no bias to hold), and the same search answers for it.
+The classes are the unit-load ratings (1, 1/2, 1/4, 1/8 UL), each a receiver like the plan's default device
+class: an idle-bus failsafe class asks nothing of the bias, so only the receivers already on the bus that need
+bias keep the idle level in the search; a plain class needs 200 mV at the far point itself.
 """
 
 from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
-from pairline.engine.bus import Bus
+from pairline.engine.bus import Bus, with_plan
 from pairline.engine.dc import idle_levels_v
+from pairline.engine.devices import ResolvedDevice, covers, resolve_device
 from pairline.engine.findings import Finding, Verdict
-from pairline.engine.plan import NodeSpec
-from pairline.engine.rules.bias import IDLE_THRESHOLD_V
+from pairline.engine.plan import DeviceSpec, NodeSpec
+from pairline.engine.rules.bias import listener_needs
 from pairline.engine.rules.loads import (
     RS422_MAX_RECEIVERS,
     RS485_UNIT_LOAD_BUDGET,
@@ -40,7 +42,14 @@ def _within_driver_load(bus: Bus) -> bool:
 
 
 def _idle_holds(bus: Bus) -> bool:
-    return float(np.min(idle_levels_v(bus)[1])) >= IDLE_THRESHOLD_V
+    needs = listener_needs(bus)
+    covered = np.array([n.covered for n in needs])
+    if covered.all():
+        return True
+    if not bus.plan.bias:
+        return False
+    thresholds = np.array([n.device.threshold_high_v for n in needs])
+    return bool(np.all(covered | (idle_levels_v(bus)[1] >= thresholds)))
 
 
 # What each load rule BREAKS on (its nominal limit), as engine.rules.loads and engine.rules.bias judge it.
@@ -78,26 +87,31 @@ class Capacity:
         return {c.label: c.count for c in self.classes}
 
 
+def _default_device(bus: Bus) -> ResolvedDevice:
+    return resolve_device(None, bus.plan.default_device)
+
+
 def _far_point_m(bus: Bus) -> float:
     """The trunk end farthest from the bias network (from the driver when there is none)."""
     plan = bus.plan
-    source = plan.bias.position_m if plan.bias is not None else plan.driver.position_m
+    source = plan.bias[0].position_m if plan.bias else plan.driver.position_m
     return 0.0 if source > 0.5 * plan.trunk_length_m else plan.trunk_length_m
 
 
 def _with_more(bus: Bus, count: int, unit_loads: float) -> Bus:
     """The bus with `count` receivers of `unit_loads` lumped at its far point (one node standing for them all)."""
+    device = DeviceSpec.model_construct(
+        class_key=bus.plan.default_device, unit_loads=count * unit_loads, input_capacitance_f=0.0
+    )
     more = NodeSpec.model_construct(
         name="(further receivers)",
         position_m=_far_point_m(bus),
         stub_length_m=0.0,
-        role="receiver",
-        unit_loads=count * unit_loads,
-        input_capacitance_f=0.0,
+        device=device,
+        may_drive=False,
         ground_offset_v=0.0,
     )
-    plan = bus.plan.model_copy(update={"nodes": [*bus.plan.nodes, more]})
-    return Bus(plan=plan, cable=bus.cable, driver=bus.driver)
+    return with_plan(bus, bus.plan.model_copy(update={"nodes": [*bus.plan.nodes, more]}))
 
 
 def _first_limit(bus: Bus, count: int, unit_loads: float, rules: list[str]) -> str | None:
@@ -117,9 +131,11 @@ def receiver_capacity(bus: Bus, findings: tuple[Finding, ...]) -> Capacity:
         return Capacity(one, float(RS422_MAX_RECEIVERS - len(plan.nodes)), _text(one))
     spare_ul = RS485_UNIT_LOAD_BUDGET - unit_load_total(bus)
     broken = {f.rule_id for f in findings if f.verdict is Verdict.BREAKS}
-    rules = [r for r in _LIMITS if r not in broken and (r != "bias.idle_level" or plan.bias is not None)]
+    rules = [r for r in _LIMITS if r not in broken]
+    failsafe = " failsafe" if covers(_default_device(bus), "idle") else ""
     classes = []
     for label, ul in UNIT_LOAD_CLASSES.items():
+        label += failsafe
         count = max_nodes(ul, spare_ul) if "load.unit_loads" not in broken else 0
         limit = _first_limit(bus, count, ul, rules)
         limited_by = "load.unit_loads"

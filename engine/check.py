@@ -15,6 +15,7 @@ from pairline.engine.advice import Advice, advise
 from pairline.engine.bus import Bus, build_bus
 from pairline.engine.capacity import Capacity, receiver_capacity
 from pairline.engine.design import PlanChange
+from pairline.engine.devices import FAILSAFE_STATES, UNIT_LOAD_TEXT, ResolvedDevice, covers
 from pairline.engine.findings import Finding, Verdict, worst
 from pairline.engine.plan import BusInputError, BusPlan, cross_field_problems, load_plan, plan_to_dict
 from pairline.engine.rules.signal import Simulation
@@ -103,8 +104,6 @@ def change_to_dict(change: PlanChange) -> dict[str, Any]:
         "rule_ids": list(change.rule_ids),
         "removed": [t.model_dump(mode="json") for t in change.removed],
         "added": [t.model_dump(mode="json") for t in change.added],
-        "bias_before": change.bias_before.model_dump(mode="json") if change.bias_before else None,
-        "bias_after": change.bias_after.model_dump(mode="json") if change.bias_after else None,
     }
 
 
@@ -117,6 +116,39 @@ def capacity_to_dict(capacity: Capacity) -> dict[str, Any]:
             for c in capacity.classes
         ],
     }
+
+
+def devices_to_list(bus: Bus) -> list[dict[str, Any]]:
+    """Every distinct device on the bus with every value filled in, and the nodes that carry it."""
+    by_device: dict[ResolvedDevice, list[str]] = {}
+    for name, device in bus.devices.items():
+        by_device.setdefault(device, []).append(name)
+    return [
+        {
+            "key": d.key or None,
+            "label": d.label,
+            "unit_loads": d.unit_loads,
+            "budget_input_ohm": d.budget_input_ohm,
+            "differential_input_ohm": d.differential_input_ohm,
+            "common_mode_input_ohm": d.common_mode_input_ohm,
+            "failsafe": d.failsafe,
+            "threshold_low_v": d.threshold_low_v,
+            "threshold_high_v": d.threshold_high_v,
+            "covers": {state: covers(d, state) for state in FAILSAFE_STATES},
+            "open_circuit_v": d.open_circuit_v,
+            "source_ohm": d.source_ohm,
+            "rise_time_s": _json_float(d.rise_time_s),
+            "input_capacitance_f": d.input_capacitance_f,
+            "common_mode_min_v": d.common_mode_min_v,
+            "common_mode_max_v": d.common_mode_max_v,
+            "isolated": d.isolated,
+            "isolation_rating_vrms": d.isolation_rating_vrms,
+            "isolation_grade": d.isolation_grade,
+            "source": d.source,
+            "nodes": names,
+        }
+        for d, names in by_device.items()
+    ]
 
 
 def advice_to_dict(advice: Advice) -> dict[str, Any]:
@@ -140,7 +172,6 @@ def report_to_dict(report: PlanReport) -> dict[str, Any]:
     """The report as plain JSON types: strings, finite floats or null, ints, lists and dicts."""
     s = report.summary
     counts = {v.value: sum(1 for f in report.findings if f.verdict is v) for v in Verdict}
-    bias = s.bias
     return {
         "engine_version": report.engine_version,
         "verdict": report.verdict.value,
@@ -164,6 +195,8 @@ def report_to_dict(report: PlanReport) -> dict[str, Any]:
                 "unit_loads": report.bus.driver.unit_loads,
                 "source": report.bus.driver.source,
             },
+            "devices": devices_to_list(report.bus),
+            "unit_load": UNIT_LOAD_TEXT,
         },
         "findings": [finding_to_dict(f) for f in report.findings],
         "summary": {
@@ -177,17 +210,18 @@ def report_to_dict(report: PlanReport) -> dict[str, Any]:
                 }
                 for t in s.terminators
             ],
-            "bias": None
-            if bias is None
-            else {
-                "position_m": bias.position_m,
-                "pull_up_ohm": bias.pull_up_ohm,
-                "pull_down_ohm": bias.pull_down_ohm,
-                "supply_v": bias.supply_v,
-                "idle_v": _json_float(bias.idle_v),
-                "idle_corner_v": _json_float(bias.idle_corner_v),
-                "power_rating_w": bias.power_rating_w,
-            },
+            "bias": [
+                {
+                    "position_m": b.position_m,
+                    "pull_up_ohm": b.pull_up_ohm,
+                    "pull_down_ohm": b.pull_down_ohm,
+                    "supply_v": b.supply_v,
+                    "idle_v": _json_float(b.idle_v),
+                    "idle_corner_v": _json_float(b.idle_corner_v),
+                    "power_rating_w": b.power_rating_w,
+                }
+                for b in s.bias
+            ],
             "bias_note": s.bias_note,
             "max_stub_m": {name: _json_float(v) for name, v in s.max_stub_m.items()},
             "spare_unit_loads": _json_float(s.spare_unit_loads),

@@ -3,8 +3,9 @@
 Model (differential mode, DC). The pair is one conductor path whose series resistance is the loop of both
 wires, 2 * R' per metre. Every element hangs from a point of the trunk, at the end of its stub when it has one:
 the driver is a Thevenin source (open-circuit voltage behind its source resistance), a receiver is its input
-resistance (12 kOhm per unit load), a parallel terminator is its resistance (an RC terminator is open at DC)
-and the failsafe bias network is a Thevenin source of its supply voltage behind pull-up + pull-down. Node
+resistance as the load budget counts it (12 kOhm per unit load of its device; engine.devices), a parallel
+terminator is its resistance (an RC terminator is open at DC) and each failsafe bias network is a Thevenin
+source of its own supply voltage behind pull-up + pull-down. Node
 voltages come from one nodal solve G v = i over the trunk points and stub ends (a DC ladder).
 
 The rules on top of it (engine.rules.loads, engine.rules.voltage, engine.rules.bias) all import this module
@@ -16,7 +17,8 @@ from dataclasses import dataclass
 
 import numpy as np
 from pairline.engine.bus import Bus
-from pairline.engine.plan import input_resistance_ohm
+from pairline.engine.devices import ResolvedDevice
+from pairline.engine.plan import BiasSpec
 
 _MIN_BRANCH_OHM = 1e-6  # stands in for a zero-resistance wire or source so the nodal matrix stays regular
 _PROBE_OHM = 1e-3  # a near-ideal 1 V probe source for the view from a bias point
@@ -39,17 +41,33 @@ def loop_resistance_ohm(length_m: float, resistance_ohm_per_m: float) -> float:
 
 
 def receiver_loads_ohm(bus: Bus) -> list[float]:
-    """Input resistance of every receiver on the pair: nodes and, on RS-485, the driver's own receiver."""
-    loads = [input_resistance_ohm(n.unit_loads) for n in bus.plan.nodes]
+    """Input resistance of every receiver on the pair (budget view): nodes and, on RS-485, the driver's own."""
+    return [e.resistance_ohm for e in listener_elements(bus)]
+
+
+def listener_devices(bus: Bus) -> list[ResolvedDevice]:
+    """The device of every listener, in listener_elements order."""
+    names = [n.name for n in bus.plan.nodes]
     if bus.plan.standard == "rs485":
-        loads.append(input_resistance_ohm(bus.driver.unit_loads))
-    return loads
+        names.append(bus.plan.driver.name)
+    return [bus.devices[name] for name in names]
+
+
+def network_supply_v(bus: Bus, bias: BiasSpec) -> float:
+    """A bias network's supply: its own supply_v, else the plan's supply voltage."""
+    return bias.supply_v if bias.supply_v is not None else bus.plan.supply_v
 
 
 def bias_supply_v(bus: Bus) -> float:
-    """The bias network's supply: its own supply_v, else the plan's supply voltage."""
-    b = bus.plan.bias
-    return b.supply_v if b is not None and b.supply_v is not None else bus.plan.supply_v
+    """The supply of the plan's first bias network (the plan's supply voltage when it has none)."""
+    return network_supply_v(bus, bus.plan.bias[0]) if bus.plan.bias else bus.plan.supply_v
+
+
+def bias_name(bus: Bus, index: int) -> str:
+    """ "the bias network" on a plan with one, "bias network 2 (at 600 m)" on a plan with several."""
+    if len(bus.plan.bias) == 1:
+        return "the bias network"
+    return f"bias network {index + 1} (at {bus.plan.bias[index].position_m:g} m)"
 
 
 def solve_dc_v(
@@ -148,9 +166,9 @@ def _thomas_v(link_siemens: np.ndarray, diag: np.ndarray, rhs: np.ndarray) -> np
 
 
 def receiver_elements(bus: Bus) -> list[DcElement]:
-    """Every plan node as a receiver load (a transceiver node that is not driving listens like a receiver)."""
+    """Every plan node as a receiver load (a node that may drive listens like a receiver while it does not)."""
     return [
-        DcElement(n.name, n.position_m, n.stub_length_m, input_resistance_ohm(n.unit_loads)) for n in bus.plan.nodes
+        DcElement(n.name, n.position_m, n.stub_length_m, bus.devices[n.name].budget_input_ohm) for n in bus.plan.nodes
     ]
 
 
@@ -160,25 +178,34 @@ def listener_elements(bus: Bus) -> list[DcElement]:
     listeners = receiver_elements(bus)
     d = bus.plan.driver
     if bus.plan.standard == "rs485":
-        listeners.append(DcElement(d.name, d.position_m, d.stub_length_m, input_resistance_ohm(bus.driver.unit_loads)))
+        listeners.append(DcElement(d.name, d.position_m, d.stub_length_m, bus.driver_device.budget_input_ohm))
     return listeners
 
 
-def fixed_load_elements(bus: Bus) -> list[DcElement]:
-    """Parallel terminators (RC ones are open at DC) and the bias network with its supply."""
-    loads = [
+def terminator_elements(bus: Bus) -> list[DcElement]:
+    """Parallel terminators (RC ones are open at DC)."""
+    return [
         DcElement(f"terminator at {t.position_m:g} m", t.position_m, 0.0, t.resistance_ohm)
         for t in bus.plan.terminations
         if t.kind == "parallel"
     ]
-    if bus.plan.bias is not None:
-        b = bus.plan.bias
-        loads.append(DcElement("bias network", b.position_m, 0.0, b.pull_up_ohm + b.pull_down_ohm, bias_supply_v(bus)))
-    return loads
+
+
+def bias_elements(bus: Bus) -> list[DcElement]:
+    """Every bias network: a source of its supply behind pull-up + pull-down."""
+    return [
+        DcElement(bias_name(bus, i), b.position_m, 0.0, b.pull_up_ohm + b.pull_down_ohm, network_supply_v(bus, b))
+        for i, b in enumerate(bus.plan.bias)
+    ]
+
+
+def fixed_load_elements(bus: Bus) -> list[DcElement]:
+    """Parallel terminators and every bias network with its supply (bias networks last)."""
+    return [*terminator_elements(bus), *bias_elements(bus)]
 
 
 def idle_levels_v(bus: Bus) -> tuple[tuple[str, ...], np.ndarray]:
-    """Idle V_AB at every listener (listener_elements) with every driver off: the bias network the only source."""
+    """Idle V_AB at every listener (listener_elements) with every driver off: the bias networks the only sources."""
     listeners = listener_elements(bus)
     elements = [*listeners, *fixed_load_elements(bus)]
     sources_v = np.array([[e.source_v] for e in elements])
@@ -186,19 +213,17 @@ def idle_levels_v(bus: Bus) -> tuple[tuple[str, ...], np.ndarray]:
     return tuple(r.name for r in listeners), v[: len(listeners), 0]
 
 
-def bias_view(bus: Bus, position_m: float) -> tuple[float, float]:
-    """(R_in, t_min): the idle bus's DC resistance seen from a bias point, and the lowest ratio
-    V_listener / V_bias-point over the listeners, with any bias network of the plan left out. Both come from one
-    ladder solve with a 1 V source there, so a bias of supply V_S behind 2 R_B at that point idles listener k at
+def bias_view(bus: Bus, position_m: float) -> tuple[float, np.ndarray]:
+    """(R_in, t): the idle bus's DC resistance seen from a bias point, and the ratio V_listener / V_bias-point of
+    every listener (listener_elements order), with the plan's bias networks left out. Both come from one ladder
+    solve with a 1 V source there, so a bias of supply V_S behind 2 R_B at that point idles listener k at
     V_k = V_S t_k R_in / (2 R_B + R_in) (superposition: the rest of the network is passive)."""
     listeners = listener_elements(bus)
-    passive = [e for e in fixed_load_elements(bus) if e.source_v == 0.0]
     probe = DcElement("probe", position_m, 0.0, _PROBE_OHM, 1.0)
-    elements = [*listeners, *passive, probe]
+    elements = [*listeners, *terminator_elements(bus), probe]
     sources_v = np.array([[e.source_v] for e in elements])
     v = solve_dc_v(elements, bus.plan.trunk_length_m, bus.cable.resistance_ohm_per_m, sources_v)[:, 0]
     v_point = float(v[-1])
     current_a = (1.0 - v_point) / _PROBE_OHM
     r_in = v_point / current_a if current_a > 0.0 else math.inf
-    t_min = float(np.min(v[: len(listeners)]) / v_point) if listeners else 1.0
-    return r_in, t_min
+    return r_in, np.asarray(v[: len(listeners)] / v_point, dtype=float)

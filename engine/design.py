@@ -1,31 +1,39 @@
 """Designs for the advice: terminators and bias chosen together, each applied to the plan as a change list.
 
-A design is a set of terminators and a bias network. For each place the bias could go (the plan's bias point,
-the driver, either cable end, the middle of the trunk) the terminators and the bias are sized jointly: the
-terminator at an end is corrected for what else is lumped there, the bias network included (R_T || R_P = Z0),
-and the bias is the weakest E24 pair that still idles every receiver at 200 mV at the worst corner of the
-tolerances for those terminators (engine.rules.bias.size_bias); the two are iterated until they agree. Each
-design is applied to the plan as a change list and weighed by the rules it can move (engine.ruleset.DESIGN_RULES):
-fewest findings that break, then fewest tight, then fewest changes, then the bias where the plan (or else the
-driver) has it, then the weakest bias (the most room left).
-Parallel terminators are tried first; RC terminators, or none where the line may stay unterminated, only when
-the best parallel design is not clean. The bias is an E24 (5 %) part that holds at the worst corner; only when
-none fits the room does the search take one that holds with nominal parts (TIGHT), E24 or else E96 (1 %).
+A design is a set of terminators and bias networks. For each place the bias could go (the plan's bias points, the
+driver, the device nearest either cable end or the middle of the trunk) the terminators and the bias are sized
+jointly: the terminator at an end is corrected for what else is lumped there, the bias network included (R_T || R_P
+= Z0), and the bias is the weakest E24 pair that still idles every receiver at 200 mV at the worst corner of the
+tolerances for those terminators (engine.rules.bias.size_bias); the two are iterated until they agree. Each design
+is applied to the plan as a change list and weighed by the rules it can move (engine.ruleset.DESIGN_RULES): fewest
+findings that break, then fewest tight, then the bias left where the plan has it, then fewest changes, then the bias
+where the plan (or else the driver) has it, then the weakest bias (the most room left). Parallel terminators are
+tried first; RC terminators, or none where the line may stay unterminated, only when the best parallel design is not
+clean. The bias is an E24 (5 %) part that holds at the worst corner; only when none fits the room does the search
+take one that holds with nominal parts (TIGHT), E24 or else E96 (1 %).
 The chosen plan is then checked in full, simulation included.
 
-Every node is one device class today; sizing goes through the listeners of engine.dc (size_bias), so per-node
-receiver classes (bias sized for the receivers that need it) and several bias networks slot in there.
+Sizing goes through the listeners of engine.dc and counts only the receivers whose failsafe does not cover the
+bus (engine.rules.bias.listener_needs): a bus of idle-bus failsafe receivers gets no bias. A plan with several
+bias networks also gets them resized together, equal, where they are.
 """
 
 import math
 from collections.abc import Sequence
 from dataclasses import dataclass
 
-from pairline.engine.bus import Bus
-from pairline.engine.dc import bias_supply_v
+from pairline.engine.bus import Bus, with_plan
+from pairline.engine.dc import network_supply_v
 from pairline.engine.findings import Finding, Verdict
 from pairline.engine.plan import MAX_BIAS_OHM, BiasSpec, BusPlan, TerminationSpec
-from pairline.engine.rules.bias import BiasSizing, bias_min_ohm, bias_text, size_bias
+from pairline.engine.rules.bias import (
+    BiasSizing,
+    bias_min_ohm,
+    bias_text,
+    size_bias,
+    size_bias_networks,
+    without_bias,
+)
 from pairline.engine.rules.cable_ends import (
     end_name,
     lumped_load_ohm,
@@ -38,7 +46,7 @@ from pairline.engine.rules.rc_termination import rc_capacitance_window_f
 from pairline.engine.rules.termination import ends_to_terminate_m, gamma_verdict
 from pairline.engine.rules.unterminated import line_may_stay_unterminated
 from pairline.engine.ruleset import run_design_rules
-from pairline.engine.units import length_text, si_format
+from pairline.engine.units import length_text, parallel_ohm, si_format
 
 # Rules a change of terminators or bias can move; the others (stubs, ground offsets, length and rate) it cannot.
 COVERED_RULES = frozenset(
@@ -59,16 +67,17 @@ COVERED_RULES = frozenset(
 _SIZING_ROUNDS = 4  # terminator <-> bias agreement settles in two or three
 
 
+Part = TerminationSpec | BiasSpec
+
+
 @dataclass(frozen=True, slots=True)
 class PlanChange:
-    """One change from the plan to the advised plan: terminators at one place, or the bias network."""
+    """One change from the plan to the advised plan: terminators at one place, or one bias network."""
 
     part: str  # "terminator" or "bias"
     where: str  # "the far end (1000 m)", "400 m", "bias network"
-    removed: tuple[TerminationSpec, ...]  # terminators taken out
-    added: tuple[TerminationSpec, ...]  # terminators put in
-    bias_before: BiasSpec | None
-    bias_after: BiasSpec | None
+    removed: tuple[Part, ...]  # terminators or bias networks taken out
+    added: tuple[Part, ...]  # terminators or bias networks put in
     before_text: str
     after_text: str
     text: str  # the change as an instruction, lower-case: "change the terminator at ... from 120 Ω to 130 Ω"
@@ -77,22 +86,18 @@ class PlanChange:
 
 
 def apply_changes(plan: BusPlan, changes: Sequence[PlanChange]) -> BusPlan:
-    """The plan with the changes made: listed terminators out (one occurrence each), added ones in after the
-    kept ones, the bias network as the last bias change leaves it."""
+    """The plan with the changes made: listed terminators and bias networks out (one occurrence each), added ones
+    in after the kept ones."""
     terminations = list(plan.terminations)
-    bias = plan.bias
-    added: list[TerminationSpec] = []
+    bias = list(plan.bias)
+    added_t: list[TerminationSpec] = []
+    added_b: list[BiasSpec] = []
     for change in changes:
         for spec in change.removed:
-            terminations.remove(spec)
-        added.extend(change.added)
-        if change.part == "bias":
-            bias = change.bias_after
-    return plan.model_copy(update={"terminations": terminations + added, "bias": bias})
-
-
-def with_plan(bus: Bus, plan: BusPlan) -> Bus:
-    return Bus(plan=plan, cable=bus.cable, driver=bus.driver)
+            (bias if isinstance(spec, BiasSpec) else terminations).remove(spec)  # type: ignore[arg-type]
+        added_t += [spec for spec in change.added if isinstance(spec, TerminationSpec)]
+        added_b += [spec for spec in change.added if isinstance(spec, BiasSpec)]
+    return plan.model_copy(update={"terminations": terminations + added_t, "bias": bias + added_b})
 
 
 # --- designs ---------------------------------------------------------------------------------------------------
@@ -186,8 +191,6 @@ def _removal(present: list[TerminationSpec], where: str, reason: str) -> PlanCha
         where,
         tuple(present),
         (),
-        None,
-        None,
         listed,
         "none",
         f"remove the {listed} terminator{'s' if len(present) > 1 else ''} at {where}",
@@ -221,44 +224,82 @@ def _replacement(present: list[TerminationSpec], new: TerminationSpec, where: st
             ", its capacitor inside the window the round trip and the bit leave" if new.kind == "rc" else ""
         )
     before = " and ".join(_term_text(t) for t in present) or "none"
-    return PlanChange("terminator", where, tuple(present), (new,), None, None, before, after, text, why)
+    return PlanChange("terminator", where, tuple(present), (new,), before, after, text, why)
 
 
-def _bias_change(plan: BusPlan, bias: BiasSpec | None, supply_v: float) -> PlanChange | None:
-    old = plan.bias
-    if old == bias:
-        return None
-    if bias is None:
-        before = bias_text(old.pull_up_ohm, old.pull_down_ohm, supply_v, old.position_m) if old else "none"
-        return PlanChange(
-            "bias",
-            "bias network",
-            (),
-            (),
-            old,
-            None,
-            before,
-            "none",
-            "remove the bias network",
-            "no bias network fits this bus: see bias.idle_level",
+_BIAS_WHY = (
+    "the weakest standard pair that idles every receiver that needs bias at its threshold or more at the worst "
+    "corner of the tolerances, sized with the terminators"
+)
+
+
+def _network_text(bus: Bus, b: BiasSpec) -> str:
+    return bias_text(b.pull_up_ohm, b.pull_down_ohm, network_supply_v(bus, b), b.position_m)
+
+
+def _bias_changes(bus: Bus, networks: tuple[BiasSpec, ...]) -> list[PlanChange]:
+    """The bias networks of the plan turned into a design's: networks at the same place changed in place, one
+    network moved when one replaces one, the rest added or removed."""
+    old = list(bus.plan.bias)
+    if tuple(old) == networks:
+        return []
+    if len(old) == 1 and len(networks) == 1 and old[0].position_m != networks[0].position_m:
+        a, b = old[0], networks[0]
+        text = (
+            f"move the bias network from {length_text(a.position_m)} to {length_text(b.position_m)} and make it "
+            f"{_ohm(b.pull_up_ohm)} / {_ohm(b.pull_down_ohm)}"
         )
-    after = bias_text(bias.pull_up_ohm, bias.pull_down_ohm, supply_v, bias.position_m)
-    why = (
-        "the weakest standard pair that idles every receiver at 200 mV or more at the worst corner of the "
-        "tolerances, sized with the terminators"
-    )
-    if old is None:
-        return PlanChange("bias", "bias network", (), (), None, bias, "none", after, f"add failsafe bias: {after}", why)
-    before = bias_text(old.pull_up_ohm, old.pull_down_ohm, supply_v, old.position_m)
-    moved = old.position_m != bias.position_m
-    text = (
-        f"move the bias network from {length_text(old.position_m)} to {length_text(bias.position_m)} and make it "
-        f"{_ohm(bias.pull_up_ohm)} / {_ohm(bias.pull_down_ohm)}"
-        if moved
-        else f"change the bias resistors from {_ohm(old.pull_up_ohm)} / {_ohm(old.pull_down_ohm)} to "
-        f"{_ohm(bias.pull_up_ohm)} / {_ohm(bias.pull_down_ohm)}"
-    )
-    return PlanChange("bias", "bias network", (), (), old, bias, before, after, text, why)
+        return [
+            PlanChange(
+                "bias", "bias network", (a,), (b,), _network_text(bus, a), _network_text(bus, b), text, _BIAS_WHY
+            )
+        ]
+    changes = []
+    unmatched = list(old)
+    for b in networks:
+        same = next((a for a in unmatched if a.position_m == b.position_m), None)
+        if same is not None:
+            unmatched.remove(same)
+            if same == b:
+                continue
+            text = (
+                f"change the bias resistors at {length_text(b.position_m)} from {_ohm(same.pull_up_ohm)} / "
+                f"{_ohm(same.pull_down_ohm)} to {_ohm(b.pull_up_ohm)} / {_ohm(b.pull_down_ohm)}"
+            )
+            if len(old) == 1:
+                text = text.replace(f" at {length_text(b.position_m)}", "")
+            changes.append(
+                PlanChange(
+                    "bias",
+                    "bias network",
+                    (same,),
+                    (b,),
+                    _network_text(bus, same),
+                    _network_text(bus, b),
+                    text,
+                    _BIAS_WHY,
+                )
+            )
+        else:
+            after = _network_text(bus, b)
+            changes.append(
+                PlanChange("bias", "bias network", (), (b,), "none", after, f"add failsafe bias: {after}", _BIAS_WHY)
+            )
+    for a in unmatched:
+        why = (
+            "every receiver's failsafe covers the undriven bus, so no bias is needed"
+            if not networks and size_bias(without_bias(bus), a.position_m).needed is False
+            else "no bias network fits this bus: see bias.idle_level"
+            if not networks
+            else "the advised bias network takes its place"
+        )
+        where = f" at {length_text(a.position_m)}" if len(old) > 1 else ""
+        changes.append(
+            PlanChange(
+                "bias", "bias network", (a,), (), _network_text(bus, a), "none", f"remove the bias network{where}", why
+            )
+        )
+    return changes
 
 
 @dataclass(frozen=True, slots=True)
@@ -268,9 +309,10 @@ class Design:
     changes: tuple[PlanChange, ...]
     plan: BusPlan
     findings: tuple[Finding, ...]
-    bias_ohm: float
+    bias_ohm: float  # the design's bias networks as one equivalent across the pair; 0 for none
     order: int  # preference of the bias position (the plan's first)
-    moved: bool  # the bias network leaves the place the plan gives it
+    moved: bool  # a bias network leaves the place the plan gives it
+    kind: str  # the terminator kind: "plan", "parallel", "rc" or "none"
 
     @property
     def breaks(self) -> int:
@@ -286,57 +328,67 @@ class Design:
         return (self.breaks, load, tight, int(self.moved), len(self.changes), self.order, -self.bias_ohm)
 
 
-def _design(bus: Bus, kind: str, bias: BiasSpec | None, order: int) -> Design | None:
+def _design(bus: Bus, kind: str, networks: tuple[BiasSpec, ...], order: int) -> Design | None:
     plan = bus.plan
-    biased = with_plan(bus, plan.model_copy(update={"bias": bias}))
+    biased = with_plan(bus, plan.model_copy(update={"bias": list(networks)}))
     terminators = _terminator_changes(biased, kind, bus)
     if terminators is None:
         return None
-    bias_change = _bias_change(plan, bias, bias_supply_v(biased))
-    changes = tuple(terminators + ([bias_change] if bias_change else []))
+    changes = tuple(terminators + _bias_changes(bus, networks))
     advised = apply_changes(plan, changes)
     findings = run_design_rules(with_plan(bus, advised))
-    moved = plan.bias is not None and bias is not None and bias.position_m != plan.bias.position_m
-    return Design(changes, advised, findings, bias.pull_up_ohm if bias else 0.0, order, moved)
+    equivalent = parallel_ohm(*[b.pull_up_ohm + b.pull_down_ohm for b in networks]) if networks else 0.0
+    moved = bool(plan.bias) and bool(networks) and _places(networks) != _places(tuple(plan.bias))
+    return Design(changes, advised, findings, equivalent, order, moved, kind)
+
+
+def _places(networks: tuple[BiasSpec, ...]) -> list[float]:
+    return sorted(b.position_m for b in networks)
 
 
 def _bias_value_ohm(sizing: BiasSizing, tier: int) -> float:
     """Tier 0: the weakest E24 part that holds at the worst corner; 1: the weakest E24 part that holds with
-    nominal parts; 2: the weakest E96 (1 %) part that does. 0 when there is none. A bus that holds with a
-    weaker part than a plan may name gets the weakest it may."""
+    nominal parts; 2: the weakest E96 (1 %) part that does. 0 when there is none (or none is needed). A bus that
+    holds with a weaker part than a plan may name gets the weakest it may."""
     limit = sizing.corner_max_ohm if tier == 0 else sizing.nominal_max_ohm
-    if limit <= 0.0:
+    if limit <= 0.0 or not sizing.needed:
         return 0.0
     return preferred_at_or_below(min(limit, MAX_BIAS_OHM), E96 if tier == 2 else E24)
 
 
-def _sized_bias(bus: Bus, kind: str, position_m: float, tier: int) -> BiasSpec | None:
-    """The bias at a position sized jointly with the terminators of a design kind: alternate terminator
-    correction and bias sizing until the values agree."""
+def _sized_networks(bus: Bus, kind: str, positions: tuple[float, ...], tier: int) -> tuple[BiasSpec, ...] | None:
+    """Equal bias networks at the positions, sized jointly with the terminators of a design kind: alternate
+    terminator correction and bias sizing until the values agree. None when no bias is needed or none fits."""
     plan = bus.plan
-    supply = plan.bias.supply_v if plan.bias is not None else None
-    bias: BiasSpec | None = None
+    supply = plan.bias[0].supply_v if plan.bias else None
+    supply_v = supply if supply is not None else plan.supply_v
+    networks: tuple[BiasSpec, ...] = ()
     for _ in range(_SIZING_ROUNDS):
-        biased = with_plan(bus, plan.model_copy(update={"bias": bias}))
+        biased = with_plan(bus, plan.model_copy(update={"bias": list(networks)}))
         terminators = _terminator_changes(biased, kind, bus)
         if terminators is None:
             return None
-        unbiased = with_plan(bus, apply_changes(plan, terminators).model_copy(update={"bias": None}))
-        r = _bias_value_ohm(size_bias(unbiased, position_m, supply if supply is not None else plan.supply_v), tier)
-        if r <= 0.0 or (tier > 0 and r < bias_min_ohm(unbiased)):
+        unbiased = with_plan(bus, apply_changes(plan, terminators).model_copy(update={"bias": []}))
+        sizing = (
+            size_bias(unbiased, positions[0], supply_v)
+            if len(positions) == 1
+            else size_bias_networks(unbiased, positions, supply_v)
+        )
+        r = _bias_value_ohm(sizing, tier)
+        if r <= 0.0 or (tier > 0 and r < len(positions) * bias_min_ohm(unbiased)):
             return None  # the nominal tiers only serve when they fit the room; below it the load rules break
-        new = BiasSpec(position_m=position_m, pull_up_ohm=r, pull_down_ohm=r, supply_v=supply)
-        if new == bias:
+        new = tuple(BiasSpec(position_m=p, pull_up_ohm=r, pull_down_ohm=r, supply_v=supply) for p in positions)
+        if new == networks:
             break
-        bias = new
-    return bias
+        networks = new
+    return networks or None
 
 
 def bias_positions(plan: BusPlan) -> list[float]:
-    """Where a bias network may go, most preferred first: where the plan has it, at the driver, then at the
-    device nearest each cable end and nearest the middle. A bias network needs a device's supply, so every place
-    is a device's place."""
-    places = [plan.bias.position_m] if plan.bias is not None else []
+    """Where a bias network may go, most preferred first: where the plan has its networks, at the driver, then at
+    the device nearest each cable end and nearest the middle. A bias network needs a device's supply, so every
+    place is a device's place."""
+    places = [b.position_m for b in plan.bias]
     devices = [plan.driver.position_m] + [n.position_m for n in plan.nodes]
     places.append(plan.driver.position_m)
     for target in (0.0, plan.trunk_length_m, 0.5 * plan.trunk_length_m):
@@ -344,40 +396,45 @@ def bias_positions(plan: BusPlan) -> list[float]:
     return list(dict.fromkeys(places))
 
 
-def best_design(bus: Bus) -> Design:
-    """The design the advice takes (see the module docstring for the order of preference)."""
+def best_design(bus: Bus, skip: frozenset[str] = frozenset()) -> Design | None:
+    """The design the advice takes (see the module docstring for the order of preference); `skip` leaves out
+    terminator kinds whose design proved worse once simulated. None when every kind is skipped."""
     plan = bus.plan
-    wants_bias = plan.standard == "rs485" or plan.bias is not None
+    wants_bias = plan.standard == "rs485" or bool(plan.bias)
     kinds = ["plan", "parallel", "rc"] + (["none"] if line_may_stay_unterminated(bus) else [])
+    kinds = [k for k in kinds if k not in skip]
     has_rc = any(t.kind == "rc" for t in plan.terminations)
     best: Design | None = None
-    seen: set[tuple[str, BiasSpec | None]] = set()
+    seen: set[tuple[str, tuple[BiasSpec, ...]]] = set()
+    own = tuple(plan.bias)
 
-    def consider(kind: str, bias: BiasSpec | None, order: int) -> None:
+    def consider(kind: str, networks: tuple[BiasSpec, ...], order: int) -> None:
         nonlocal best
-        if (kind, bias) in seen:
+        if (kind, networks) in seen:
             return
-        seen.add((kind, bias))
-        d = _design(bus, kind, bias, order)
+        seen.add((kind, networks))
+        d = _design(bus, kind, networks, order)
         if d is not None and (best is None or d.key() < best.key()):
             best = d
 
     for kind in kinds:
         if best is not None and best.key()[:3] == (0, 0, 0):
             break
-        if kind == "parallel" and not has_rc:
+        if kind == "parallel" and not has_rc and "plan" not in skip:
             continue  # the "plan" kind already built parallel terminators
-        if plan.bias is not None or not wants_bias:
-            consider(kind, plan.bias, 0)
+        if own or not wants_bias:
+            consider(kind, own, 0)
         if not wants_bias:
             continue
-        consider(kind, None, 99)
+        consider(kind, (), 99)
         for tier in range(3):
             if tier and best is not None and best.breaks == 0:
                 break
-            for order, position in enumerate(bias_positions(plan), start=1):
-                bias = _sized_bias(bus, kind, position, tier)
-                if bias is not None:
-                    consider(kind, bias, order)
-    assert best is not None  # the "plan" kind always builds
+            places = [(p,) for p in bias_positions(plan)]
+            if len(own) > 1:
+                places.insert(0, tuple(b.position_m for b in own))  # the plan's networks, resized together
+            for order, positions in enumerate(places, start=1):
+                networks = _sized_networks(bus, kind, positions, tier)
+                if networks is not None:
+                    consider(kind, networks, order)
     return best

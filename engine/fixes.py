@@ -35,7 +35,7 @@ from pairline.engine.metrics import (
     propagation_delay_s,
     receiver_metrics,
 )
-from pairline.engine.plan import BusPlan, TerminationSpec
+from pairline.engine.plan import BusPlan, DeviceSpec, TerminationSpec
 from pairline.engine.rules.cable_ends import end_name, nearest_end_m, required_ends_m
 from pairline.engine.rules.preferred import nearest_preferred, preferred_at_or_below
 from pairline.engine.units import si_format
@@ -294,9 +294,7 @@ def driver_fix(bus: Bus, trial: _Trial) -> ComputedFix | None:
     keys.sort(key=lambda k: abs(math.log(TRANSCEIVERS[k].rise_time_s / rise)))
     plan = bus.plan
     for key in keys:
-        drv = plan.driver.model_copy(
-            update={"transceiver": key, "rise_time_s": None, "open_circuit_v": None, "source_ohm": None}
-        )
+        drv = plan.driver.model_copy(update={"device": DeviceSpec(class_key=key)})
         if trial.passes(plan.model_copy(update={"driver": drv})):
             cls = TRANSCEIVERS[key]
             text = f"use a driver of class '{key}' ({cls.label}, rise time {si_format(cls.rise_time_s, 's')})"

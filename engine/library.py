@@ -4,7 +4,9 @@ Names are Pairline's own. Each entry carries where its figures come from; "typic
 representative of the class, not of any one product.
 """
 
+import math
 from dataclasses import dataclass
+from typing import Any, Literal
 
 from pairline.engine.units import SPEED_OF_LIGHT_M_PER_S
 
@@ -22,8 +24,17 @@ class CableClass:
     source: str
 
 
+Failsafe = Literal["none", "open_short", "idle_bus"]
+IsolationGrade = Literal["basic", "reinforced"]
+
+
 @dataclass(frozen=True, slots=True)
 class TransceiverClass:
+    """A device class: what one node's transceiver brings to the bus, as a receiver and (if it may drive) a driver.
+
+    `sources` names where each value comes from, value by value.
+    """
+
     key: str
     label: str
     rise_time_s: float  # driver differential output, 10-90 %
@@ -32,7 +43,32 @@ class TransceiverClass:
     common_mode_v: float  # driver output common-mode voltage V_OC
     unit_loads: float  # receiver input loading of this part
     max_bit_rate_bps: float  # rate the class is built for (transition <= 30 % of a bit)
-    source: str
+    sources: tuple[tuple[str, str], ...]  # (value name, its source)
+    failsafe: Failsafe = "none"  # what the receiver reads with no driver on the bus (engine.devices)
+    threshold_low_v: float = -0.200  # V_AB at or below which the output is surely low
+    threshold_high_v: float = 0.200  # V_AB at or above which the output is surely high
+    input_capacitance_f: float = 20e-12
+    common_mode_min_v: float = -7.0
+    common_mode_max_v: float = 12.0
+    isolated: bool = False
+    isolation_rating_vrms: float | None = None  # 1-minute withstand (UL 1577 V_ISO)
+    isolation_grade: IsolationGrade | None = None
+
+    @property
+    def choice_label(self) -> str:
+        """The label with the class's unit loads, as a picker lists it: "Edge 100 ns (1 Mbit/s class), 1/4 UL"."""
+        return f"{self.label}, {unit_load_fraction(self.unit_loads)} UL"
+
+    @property
+    def source(self) -> str:
+        """Every value's source in one sentence."""
+        return "; ".join(f"{name}: {where}" for name, where in self.sources)
+
+
+def unit_load_fraction(unit_loads: float) -> str:
+    """1 -> "1", 0.5 -> "1/2", 0.125 -> "1/8"; other ratings as decimals."""
+    fractions = {1.0: "1", 0.5: "1/2", 0.25: "1/4", 0.125: "1/8"}
+    return fractions.get(unit_loads, f"{unit_loads:g}")
 
 
 def _c_per_m(z0_ohm: float, velocity_factor: float) -> float:
@@ -106,61 +142,170 @@ CABLES: dict[str, CableClass] = {
     )
 }
 
-_DRIVER_FIGURES = (
-    "rise time class: TI SLLA272 transceiver tables; 4 V / 40 Ω Thevenin output gives 2.3 V into 54 Ω "
-    "(TIA-485-A asks >= 1.5 V): typical"
+# Where each value of a transceiver class comes from. "typical" figures stand for the class, not for one product.
+_S_UNIT_LOAD = "TIA-485-A unit load; 1/2, 1/4 and 1/8 UL parts: TI SLLA166"
+_S_EDGE = "TI SLLA272 transceiver tables (rise time per rate class)"
+_S_SLEW = "t_r = 0.3 of a bit at the class's rate (TI SLLA628: transition <= 30 % of a bit); common practice"
+_S_OUTPUT = (
+    "4 V behind 40 Ω gives 2.3 V into 54 Ω, above the 1.5 V TIA-485-A asks: typical of 5 V parts (common practice)"
+)
+_S_OUTPUT_CM = "about half a 5 V supply (Intersil tutorial 'High-Speed RS-485 Transceiver and Applications')"
+_S_PLAIN = "+/-200 mV receiver thresholds, no failsafe: TIA/EIA-485-A"
+_S_IDLE_FAILSAFE = (
+    "thresholds shifted wholly below 0 V so an undriven, shorted or open bus reads high: Exar AN-207; published "
+    "upper thresholds are -10 mV to -50 mV with the lower at -200 mV (TI SLLS550E, ZHCS823H); the class takes "
+    "-10 mV, the least margin"
+)
+_S_OPEN_SHORT = (
+    "output held high while the inputs float or are shorted together, within the +/-200 mV TIA/EIA-485-A "
+    "thresholds; a terminator across the inputs defeats it: Exar AN-207, ST AN1690"
+)
+_S_INPUT_C = "20 pF per node with its connector and board (from memory: 10-30 pF)"
+_S_CM = "-7 V to +12 V: TIA/EIA-485-A"
+_S_EXTENDED_CM = "-25 V to +25 V, an extended common-mode part (from memory)"
+_S_BASIC = "2.5 kVrms 1-minute withstand (UL 1577), a common basic rating: ADI FAQ 'What is isolation rating?'"
+_S_REINFORCED = (
+    "5 kVrms 1-minute withstand with reinforced insulation to IEC 60747-17 (V_IOTM 7071 Vpk = 5 kVrms x sqrt 2, "
+    "TI SLLSF22H); reinforced: one system equal to double insulation (TI blog 'Our isolators are certified')"
+)
+_IDLE_WINDOW = {"failsafe": "idle_bus", "threshold_low_v": -0.200, "threshold_high_v": -0.010}
+_OPEN_WINDOW = {"failsafe": "open_short"}
+
+
+def _class(
+    key: str, label: str, rise_time_s: float, unit_loads: float, rate_bps: float, edge_source: str, **more: Any
+) -> TransceiverClass:
+    """A class on the common 5 V figures (4 V behind 40 Ω, 2.5 V common mode, 20 pF, -7..+12 V), with its
+    sources named value by value; `more` sets the receiver's failsafe, isolation or common-mode range."""
+    failsafe = more.get("failsafe", "none")
+    sources = {
+        "unit loads": _S_UNIT_LOAD,
+        "edge": edge_source,
+        "driver output": _S_OUTPUT,
+        "output common mode": _S_OUTPUT_CM,
+        "failsafe and thresholds": {"none": _S_PLAIN, "open_short": _S_OPEN_SHORT, "idle_bus": _S_IDLE_FAILSAFE}[
+            failsafe
+        ],
+        "input capacitance": _S_INPUT_C,
+        "common-mode range": _S_EXTENDED_CM if more.get("common_mode_max_v", 12.0) > 12.0 else _S_CM,
+    }
+    if more.get("isolated"):
+        sources["isolation"] = _S_REINFORCED if more.get("isolation_grade") == "reinforced" else _S_BASIC
+    return TransceiverClass(
+        key=key,
+        label=label,
+        rise_time_s=rise_time_s,
+        open_circuit_v=4.0,
+        source_ohm=40.0,
+        common_mode_v=2.5,
+        unit_loads=unit_loads,
+        max_bit_rate_bps=rate_bps,
+        sources=tuple(sources.items()),
+        **more,
+    )
+
+
+# What a device given by its own values starts from: the least TIA-485-A allows. No edge time: a node of its own
+# values that may drive must state one. The driver is its published minimum into 54 Ω behind no resistance, which
+# is the lowest level any source meeting that figure gives on a load of 54 Ω or more.
+STANDARD_MINIMUM = TransceiverClass(
+    key="",
+    label="Own values",
+    rise_time_s=math.nan,
+    open_circuit_v=1.5,
+    source_ohm=0.0,
+    common_mode_v=2.5,
+    unit_loads=1.0,
+    max_bit_rate_bps=math.nan,
+    sources=(
+        ("unit loads", "1 UL, the most a standard receiver may load: TIA-485-A"),
+        ("driver output", "1.5 V into 54 Ω, the least TIA-485-A allows, modelled behind 0 Ω (conservative)"),
+        ("output common mode", _S_OUTPUT_CM),
+        ("failsafe and thresholds", _S_PLAIN),
+        ("input capacitance", _S_INPUT_C),
+        ("common-mode range", _S_CM),
+    ),
 )
 
 TRANSCEIVERS: dict[str, TransceiverClass] = {
     t.key: t
     for t in (
-        TransceiverClass(
-            "edge-3ns",
-            "Very fast edge, 3 ns (20–50 Mbit/s class)",
-            3e-9,
-            4.0,
-            40.0,
-            2.5,
-            1.0,
-            50e6,
-            _DRIVER_FIGURES,
-        ),
-        TransceiverClass(
-            "edge-10ns",
-            "Fast edge, 10 ns (10 Mbit/s class)",
+        _class("edge-3ns", "Very fast edge, 3 ns (20–50 Mbit/s class)", 3e-9, 1.0, 50e6, _S_EDGE),
+        _class("edge-10ns", "Fast edge, 10 ns (10 Mbit/s class)", 10e-9, 1.0, 10e6, _S_EDGE),
+        _class("edge-25ns", "Edge 25 ns (5 Mbit/s class)", 25e-9, 0.5, 5e6, _S_EDGE),
+        _class("edge-100ns", "Edge 100 ns (1 Mbit/s class)", 100e-9, 0.25, 1e6, _S_EDGE),
+        _class("slew-1200ns", "Slew-limited, 1.2 µs (250 kbit/s class)", 1.2e-6, 0.125, 250e3, _S_SLEW),
+        _class("slew-2500ns", "Slew-limited, 2.5 µs (115.2 kbit/s class)", 2.5e-6, 0.125, 115.2e3, _S_SLEW),
+        _class(
+            "failsafe-full-fast",
+            "Idle-bus failsafe, fast edge 10 ns",
             10e-9,
-            4.0,
-            40.0,
-            2.5,
             1.0,
             10e6,
-            _DRIVER_FIGURES,
+            _S_EDGE,
+            **_IDLE_WINDOW,
         ),
-        TransceiverClass("edge-25ns", "Edge 25 ns (5 Mbit/s class)", 25e-9, 4.0, 40.0, 2.5, 0.5, 5e6, _DRIVER_FIGURES),
-        TransceiverClass(
-            "edge-100ns", "Edge 100 ns (1 Mbit/s class)", 100e-9, 4.0, 40.0, 2.5, 0.25, 1e6, _DRIVER_FIGURES
+        _class(
+            "failsafe-quarter-100ns",
+            "Idle-bus failsafe, edge 100 ns",
+            100e-9,
+            0.25,
+            1e6,
+            _S_EDGE,
+            **_IDLE_WINDOW,
         ),
-        TransceiverClass(
-            "slew-1200ns",
-            "Slew-limited, 1.2 µs (250 kbit/s class)",
+        _class(
+            "failsafe-eighth-slew",
+            "Idle-bus failsafe, slew-limited 1.2 µs",
             1.2e-6,
-            4.0,
-            40.0,
-            2.5,
             0.125,
             250e3,
-            _DRIVER_FIGURES + "; t_r = 0.3 bit at 250 kbit/s: common practice",
+            _S_SLEW,
+            **_IDLE_WINDOW,
         ),
-        TransceiverClass(
-            "slew-2500ns",
-            "Slew-limited, 2.5 µs (115.2 kbit/s class)",
-            2.5e-6,
-            4.0,
-            40.0,
-            2.5,
+        _class(
+            "open-failsafe-full",
+            "Open/short failsafe only, edge 100 ns",
+            100e-9,
+            1.0,
+            1e6,
+            _S_EDGE,
+            **_OPEN_WINDOW,
+        ),
+        _class(
+            "isolated-eighth-slew",
+            "Isolated 2.5 kVrms (basic), idle-bus failsafe, slew-limited 1.2 µs",
+            1.2e-6,
             0.125,
-            115.2e3,
-            _DRIVER_FIGURES + "; t_r = 0.3 bit at 115.2 kbit/s: common practice",
+            250e3,
+            _S_SLEW,
+            isolated=True,
+            isolation_rating_vrms=2500.0,
+            isolation_grade="basic",
+            **_IDLE_WINDOW,
+        ),
+        _class(
+            "isolated-reinforced-fast",
+            "Isolated 5 kVrms (reinforced), idle-bus failsafe, edge 25 ns",
+            25e-9,
+            0.25,
+            5e6,
+            _S_EDGE,
+            isolated=True,
+            isolation_rating_vrms=5000.0,
+            isolation_grade="reinforced",
+            **_IDLE_WINDOW,
+        ),
+        _class(
+            "extended-cm-eighth",
+            "Extended common mode ±25 V, idle-bus failsafe, slew-limited 1.2 µs",
+            1.2e-6,
+            0.125,
+            250e3,
+            _S_SLEW,
+            common_mode_min_v=-25.0,
+            common_mode_max_v=25.0,
+            **_IDLE_WINDOW,
         ),
     )
 }

@@ -3,16 +3,17 @@
 Model (differential mode, see engine/line.py for the cable):
 - The trunk runs from 0 to trunk_length_m. Every position where something attaches (node, driver,
   terminator, bias, the two ends) is a junction; between neighbouring junctions lies a trunk segment.
-- Each node hangs on its own stub of the same cable as the trunk, ending in its receiver input
-  R_in = 12 kOhm / unit_loads in parallel with input_capacitance_f. A stub of length 0 puts the load on the trunk.
-- Terminators sit on the trunk: parallel R, or R in series with C ("rc"). The failsafe bias network is
+- Each node hangs on its own stub of the same cable as the trunk, ending in its receiver input: its device's
+  differential input resistance, 24 kOhm per unit load across the pair (engine.devices), in parallel with the
+  device's input capacitance. A stub of length 0 puts the load on the trunk.
+- Terminators sit on the trunk: parallel R, or R in series with C ("rc"). Each failsafe bias network is
   its DC-equivalent resistance across the pair, pull_up_ohm + pull_down_ohm (the supply is an AC short).
-- The driving node is a Thevenin source (open_circuit_v, source_ohm of the plan's driver class) at the end of
-  its stub. Its own receiver input is left out while it drives: 12 kOhm / UL is negligible beside the source
-  resistance, and the part's pin capacitance is already inside the class's measured rise time. Every RS-485
-  "transceiver" node drives with the plan's driver class. Nodes not driving load the bus as receivers; the
-  primary driver, when a transceiver drives, loads the bus with its receiver: 12 kOhm / driver.unit_loads in
-  parallel with the plan's default node input capacitance (DRIVER_INPUT_CAPACITANCE_F).
+- The driving node is a Thevenin source (open_circuit_v, source_ohm of bus.driver) at the end of its stub. Its
+  own receiver input is left out while it drives: its input resistance is negligible beside the source
+  resistance, and the part's pin capacitance is already inside the class's measured rise time. Every driver
+  named in one solve drives with bus.driver's figures: callers with talkers of several devices solve each
+  group on its own view (engine.bus.talker_groups). Nodes not driving load the bus as receivers; the primary
+  driver, when another node drives, loads the bus with its own device's receiver.
 
 Method, linear in the number of junctions K for every frequency at once:
 1. Stub input admittances Y_in = (tanh/Z0 + Y_L) / (1 + Z0 tanh Y_L) give the shunt admittance at each junction.
@@ -39,9 +40,7 @@ from pairline.engine.line import (
     series_impedance_ohm_per_m,
     shunt_admittance_siemens_per_m,
 )
-from pairline.engine.plan import BusInputError, NodeSpec, Problem, input_resistance_ohm
-
-DRIVER_INPUT_CAPACITANCE_F: float = float(NodeSpec.model_fields["input_capacitance_f"].default)
+from pairline.engine.plan import BusInputError, Problem
 
 
 @dataclass(frozen=True, slots=True)
@@ -96,29 +95,24 @@ def build_topology(bus: Bus) -> Topology:
         return len(pos) - 1
 
     drv = plan.driver
+    own = bus.driver_device
     driver_branch = {
-        drv.name: add(
-            drv.position_m,
-            drv.stub_length_m,
-            1.0 / input_resistance_ohm(bus.driver.unit_loads),
-            DRIVER_INPUT_CAPACITANCE_F,
-        )
+        drv.name: add(drv.position_m, drv.stub_length_m, 1.0 / own.differential_input_ohm, own.input_capacitance_f)
     }
     receiver_branch = []
     for node in plan.nodes:
-        b = add(
-            node.position_m, node.stub_length_m, 1.0 / input_resistance_ohm(node.unit_loads), node.input_capacitance_f
-        )
+        device = bus.devices[node.name]
+        b = add(node.position_m, node.stub_length_m, 1.0 / device.differential_input_ohm, device.input_capacitance_f)
         receiver_branch.append(b)
-        if node.role == "transceiver" and plan.standard == "rs485":
+        if node.may_drive and plan.standard == "rs485":
             driver_branch[node.name] = b
     for term in plan.terminations:
         if term.kind == "rc" and term.capacitance_f is not None:
             add(term.position_m, 0.0, 0.0, 0.0, term.resistance_ohm, term.capacitance_f)
         else:
             add(term.position_m, 0.0, 1.0 / term.resistance_ohm, 0.0)
-    if plan.bias is not None:
-        add(plan.bias.position_m, 0.0, 1.0 / (plan.bias.pull_up_ohm + plan.bias.pull_down_ohm), 0.0)
+    for bias in plan.bias:
+        add(bias.position_m, 0.0, 1.0 / (bias.pull_up_ohm + bias.pull_down_ohm), 0.0)
 
     positions = np.asarray(pos)
     junctions = np.unique(np.concatenate([positions, [0.0, plan.trunk_length_m]]))

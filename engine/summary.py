@@ -13,8 +13,9 @@ from dataclasses import dataclass
 from pairline.engine.advice import Advice
 from pairline.engine.bus import Bus
 from pairline.engine.capacity import Capacity
-from pairline.engine.dc import bias_supply_v
+from pairline.engine.dc import network_supply_v
 from pairline.engine.design import PlanChange
+from pairline.engine.devices import ResolvedDevice
 from pairline.engine.findings import Finding
 from pairline.engine.plan import BusPlan, TerminationSpec
 from pairline.engine.rules.margins import LENGTH_ALLOWANCE, long_run_factor
@@ -35,11 +36,13 @@ class TerminatorAdvice:
 
 @dataclass(frozen=True, slots=True)
 class BiasAdvice:
+    """One bias network of the advised plan; the idle levels are the whole bus's, held by every network."""
+
     position_m: float
     pull_up_ohm: float
     pull_down_ohm: float
     supply_v: float
-    idle_v: float  # lowest idle V_AB over the receivers with the advised terminators, cable included
+    idle_v: float  # idle V_AB at the receiver nearest its threshold, advised terminators, cable included
     idle_corner_v: float  # the same at the worst corner of the tolerances
     power_rating_w: float  # for each resistor
 
@@ -56,8 +59,8 @@ class BomItem:
 @dataclass(frozen=True, slots=True)
 class PlanSummary:
     terminators: tuple[TerminatorAdvice, ...]
-    bias: BiasAdvice | None
-    bias_note: str  # why there is no bias network when one was wanted; else ""
+    bias: tuple[BiasAdvice, ...]  # every bias network of the advised plan, along the trunk
+    bias_note: str  # why there is no bias network when one was wanted (or why none is needed); else ""
     max_stub_m: dict[str, float]
     capacity: Capacity
     max_bit_rate_bps: float  # highest rate the length and stub rules allow for the longest path
@@ -95,23 +98,26 @@ def summarise(original: Bus, advice: Advice, capacity: Capacity) -> PlanSummary:
     terminators = tuple(
         TerminatorAdvice(t.position_m, t.kind, t.resistance_ohm, t.capacitance_f, term_w) for t in _by_position(plan)
     )
-    bias = None
     bias_note = ""
     idle = next(f for f in findings if f.rule_id == "bias.idle_level")
-    if plan.bias is not None:
-        b = plan.bias
-        bias = BiasAdvice(
+    bias = tuple(
+        BiasAdvice(
             b.position_m,
             b.pull_up_ohm,
             b.pull_down_ohm,
-            bias_supply_v(advice.run.bus),
+            network_supply_v(advice.run.bus, b),
             idle.value or 0.0,
             idle.figure("corner_v") or 0.0,
             _power(findings, "bias"),
         )
-    elif plan.standard == "rs485" or original.plan.bias is not None:
+        for b in sorted(plan.bias, key=lambda b: b.position_m)
+    )
+    if not bias and (plan.standard == "rs485" or original.plan.bias):
         unmet = next((u for u in advice.unmet if u.rule_id == "bias.idle_level"), None)
-        bias_note = "none advised: " + (unmet.text if unmet else idle.fix)
+        if unmet is not None or idle.fix:
+            bias_note = "none advised: " + (unmet.text if unmet else idle.fix)
+        elif plan.standard == "rs485":
+            bias_note = "none needed: every receiver's failsafe reads the undriven bus as a 1"
     rates = [r for f in findings if (r := f.figure("max_bit_rate_bps")) is not None]
     loss = next(f for f in findings if f.rule_id == "length.loss")
     path_m = next(f.value for f in findings if f.rule_id == "length.rate_rule") or 0.0
@@ -143,7 +149,7 @@ def summarise(original: Bus, advice: Advice, capacity: Capacity) -> PlanSummary:
 def _change_note(changes: tuple[PlanChange, ...], part: str, added: object) -> str:
     """How the advice arrived at a part: as in the plan, or the change that brought it."""
     for c in changes:
-        if c.part == part and (added in c.added or (part == "bias" and c.bias_after is not None)):
+        if c.part == part and added in c.added:
             return f"{c.text} ({', '.join(c.rule_ids) or 'see the change list'})"
     return "as in the plan"
 
@@ -181,18 +187,21 @@ def bill_of_materials(original: Bus, advice: Advice, summary: PlanSummary) -> tu
                 "at " + " and ".join(length_text(p) for p in where) + "; twice the 12 V common-mode fault level",
             )
         )
-    b = summary.bias
-    if b is not None:
-        note = _change_note(advice.changes, "bias", None)
+    networks: dict[tuple[float, float, float, str], list[float]] = {}
+    for spec, b in zip(sorted(plan.bias, key=lambda b: b.position_m), summary.bias, strict=True):
+        note = _change_note(advice.changes, "bias", spec)
+        networks.setdefault((b.pull_up_ohm, b.pull_down_ohm, b.supply_v, note), []).append(b.position_m)
+    for (up, down, supply_v, note), where in networks.items():
+        b = summary.bias[0]
         idle = (
-            f"at {length_text(b.position_m)}; every receiver idles at >= {b.idle_v * 1e3:.0f} mV "
-            f"({b.idle_corner_v * 1e3:.0f} mV at the worst corner of the tolerances); {note}"
+            f"at {' and '.join(length_text(p) for p in where)}; the receivers that need bias idle at >= "
+            f"{b.idle_v * 1e3:.0f} mV ({b.idle_corner_v * 1e3:.0f} mV at the worst corner of the tolerances); {note}"
         )
         for item, r in (
-            (f"Bias pull-up resistor ({b.supply_v:g} V to A)", b.pull_up_ohm),
-            ("Bias pull-down resistor (B to ground)", b.pull_down_ohm),
+            (f"Bias pull-up resistor ({supply_v:g} V to A)", up),
+            ("Bias pull-down resistor (B to ground)", down),
         ):
-            items.append(BomItem(item, si_format(r, "Ω"), 1, rating_text(b.power_rating_w), idle))
+            items.append(BomItem(item, si_format(r, "Ω"), len(where), rating_text(b.power_rating_w), idle))
     items.append(_cable_item(advice.run.bus))
     items += _transceiver_items(advice.run.bus)
     return tuple(items)
@@ -214,23 +223,23 @@ def _cable_item(bus: Bus) -> BomItem:
 
 
 def _transceiver_items(bus: Bus) -> list[BomItem]:
-    """The driver's part, then the nodes' parts counted per class (role and unit-load rating)."""
+    """The driver's part, then the nodes' parts counted per device (and whether they may drive)."""
     plan = bus.plan
     standard = "TIA-485-A" if plan.standard == "rs485" else "TIA/EIA-422-B"
+    driver = bus.driver_device
     items = [
         BomItem(
-            f"Driver transceiver: {bus.driver.label}",
-            f"{bus.driver.unit_loads:.3g} UL",
-            1,
-            standard,
-            f"'{plan.driver.name}'",
+            f"Driver transceiver: {driver.label}", f"{driver.unit_loads:.3g} UL", 1, standard, f"'{plan.driver.name}'"
         )
     ]
-    classes: dict[tuple[str, float], list[str]] = {}
+    classes: dict[tuple[bool, ResolvedDevice], list[str]] = {}
     for n in plan.nodes:
-        classes.setdefault((n.role, n.unit_loads), []).append(n.name)
-    for (role, ul), names in sorted(classes.items()):
+        classes.setdefault((n.may_drive, bus.devices[n.name]), []).append(n.name)
+    for (talks, device), names in sorted(classes.items(), key=lambda item: (not item[0][0], item[0][1].label)):
         shown = ", ".join(f"'{name}'" for name in names[:6]) + (f" and {len(names) - 6} more" if len(names) > 6 else "")
-        item = "Transceiver (may drive; the driver's class)" if role == "transceiver" else "Receiver"
-        items.append(BomItem(item, f"{ul:.3g} UL", len(names), standard, shown))
+        item = f"{'Transceiver (may drive)' if talks else 'Receiver'}: {device.label}"
+        rating = standard + (
+            f"; isolated {device.isolation_rating_vrms:g} Vrms ({device.isolation_grade})" if device.isolated else ""
+        )
+        items.append(BomItem(item, f"{device.unit_loads:.3g} UL, {device.failsafe_text}", len(names), rating, shown))
     return items

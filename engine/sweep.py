@@ -41,7 +41,7 @@ from dataclasses import dataclass
 import numpy as np
 from pairline.engine.bus import Bus, build_bus
 from pairline.engine.metrics import RECEIVER_THRESHOLD_V, crossing_time_s
-from pairline.engine.plan import MAX_TRUNK_M, BusPlan, NodeSpec, TerminationSpec, input_resistance_ohm
+from pairline.engine.plan import MAX_TRUNK_M, BusPlan, DeviceSpec, NodeSpec, TerminationSpec
 from pairline.engine.rules.cable_ends import required_ends_m
 from pairline.engine.waveform import step_responses
 
@@ -84,12 +84,14 @@ def default_bit_rates_bps(bus: Bus) -> np.ndarray:
 def sweep_bus(bus: Bus, length_m: float) -> Bus:
     """The plan reduced to its worst case at a trunk length (module docstring)."""
     plan = bus.plan
-    unit_loads = min(32.0, sum(n.unit_loads for n in plan.nodes))
-    cap_f = max(n.input_capacitance_f for n in plan.nodes)
-    node = NodeSpec(name="far-end", position_m=length_m, unit_loads=unit_loads, input_capacitance_f=cap_f)
+    devices = [bus.devices[n.name] for n in plan.nodes]
+    unit_loads = min(32.0, sum(d.unit_loads for d in devices))
+    cap_f = max(d.input_capacitance_f for d in devices)
+    lumped = DeviceSpec(class_key=None, unit_loads=unit_loads, input_capacitance_f=cap_f)
+    node = NodeSpec(name="far-end", position_m=length_m, device=lumped)
     driver = plan.driver.model_copy(update={"position_m": 0.0, "stub_length_m": 0.0})
     swept: BusPlan = plan.model_copy(
-        update={"trunk_length_m": length_m, "driver": driver, "nodes": [node], "terminations": [], "bias": None}
+        update={"trunk_length_m": length_m, "driver": driver, "nodes": [node], "terminations": [], "bias": []}
     )
     if plan.terminations:
         r_t = float(np.mean([t.resistance_ohm for t in plan.terminations]))
@@ -121,7 +123,7 @@ def _far_end_loss(bus: Bus) -> float:
     """Voltage loss generator -> load at DC on the swept bus: R_loop / (R_loop + R_far) (closed form)."""
     plan = bus.plan
     r_loop = 2.0 * bus.cable.resistance_ohm_per_m * plan.trunk_length_m
-    g_far = 1.0 / input_resistance_ohm(plan.nodes[0].unit_loads)
+    g_far = 1.0 / bus.devices[plan.nodes[0].name].budget_input_ohm
     g_far += sum(1.0 / t.resistance_ohm for t in plan.terminations if t.position_m == plan.trunk_length_m)
     return r_loop / (r_loop + 1.0 / g_far)
 
@@ -131,10 +133,11 @@ def lumped_rise_time_s(bus: Bus) -> float:
     "tia422"): sqrt(t_driver^2 + (ln 9 (R_s || R_load) (C' L + C_in))^2), R_load the far receiver's input
     resistance in parallel with any terminator at the far end."""
     plan = bus.plan
-    g_far = 1.0 / input_resistance_ohm(plan.nodes[0].unit_loads)
+    far = bus.devices[plan.nodes[0].name]
+    g_far = 1.0 / far.budget_input_ohm
     g_far += sum(1.0 / t.resistance_ohm for t in plan.terminations if t.position_m == plan.trunk_length_m)
     r_th = 1.0 / (1.0 / bus.driver.source_ohm + g_far)
-    c_total_f = bus.cable.capacitance_f_per_m * plan.trunk_length_m + plan.nodes[0].input_capacitance_f
+    c_total_f = bus.cable.capacitance_f_per_m * plan.trunk_length_m + far.input_capacitance_f
     return math.hypot(bus.driver.rise_time_s, math.log(9.0) * r_th * c_total_f)
 
 

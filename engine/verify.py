@@ -15,7 +15,8 @@ import dataclasses
 from collections.abc import Sequence
 
 from pairline.engine.advice import Advice, badness_by_rule
-from pairline.engine.design import COVERED_RULES, PlanChange, apply_changes, with_plan
+from pairline.engine.bus import with_plan
+from pairline.engine.design import COVERED_RULES, PlanChange, apply_changes
 from pairline.engine.findings import Finding, Verdict
 from pairline.engine.ruleset import SIGNAL_RULE_IDS, RuleRun, run_design_rules
 

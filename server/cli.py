@@ -17,6 +17,7 @@ from pathlib import Path
 from typing import Any, TextIO
 
 from pairline.engine.check import PlanReport, check_plan, report_to_dict
+from pairline.engine.devices import UNIT_LOAD_TEXT
 from pairline.engine.findings import Finding, Verdict, worst
 from pairline.engine.plan import BusInputError, Problem, load_plan, plan_to_dict
 from pairline.engine.rules.power import rating_text
@@ -201,15 +202,20 @@ def _terminator_summary(report: PlanReport) -> list[str]:
 
 
 def _bias_summary(report: PlanReport) -> list[str]:
-    b = report.summary.bias
-    if b is None:
+    networks = report.summary.bias
+    if not networks:
         return [f"  Failsafe bias: {report.summary.bias_note}"] if report.summary.bias_note else []
     with_terms = "with the terminators above" if report.summary.terminators else "with no terminators"
+    parts = [
+        f"{quantity_text(b.pull_up_ohm, 'Ω')} pull-up / {quantity_text(b.pull_down_ohm, 'Ω')} pull-down at "
+        f"{b.position_m:g} m from {b.supply_v:g} V ({rating_text(b.power_rating_w)} each)"
+        for b in networks
+    ]
+    b = networks[0]
     return [
-        f"  Failsafe bias: {quantity_text(b.pull_up_ohm, 'Ω')} pull-up / {quantity_text(b.pull_down_ohm, 'Ω')} "
-        f"pull-down at {b.position_m:g} m from {b.supply_v:g} V ({rating_text(b.power_rating_w)} each); every "
-        f"receiver idles at >= {quantity_text(b.idle_v, 'V')} ({quantity_text(b.idle_corner_v, 'V')} at the worst "
-        f"corner of the tolerances) {with_terms}."
+        f"  Failsafe bias: {'; '.join(parts)}; every receiver that needs bias idles at >= "
+        f"{quantity_text(b.idle_v, 'V')} ({quantity_text(b.idle_corner_v, 'V')} at the worst corner of the "
+        f"tolerances) {with_terms}."
     ]
 
 
@@ -263,6 +269,7 @@ def report_text(report: PlanReport, path: str = "") -> str:
         f"Pairline check: {plan.title or '(untitled plan)'}" + (f"  [{path}]" if path else ""),
         f"  {plan.standard.upper().replace('RS', 'RS-')}, {quantity_text(plan.bit_rate_bps, 'bit/s')}, trunk "
         f"{plan.trunk_length_m:g} m, {len(plan.nodes)} node(s); cable: {bus.cable.label}; driver: {bus.driver.label}",
+        f"  {UNIT_LOAD_TEXT}.",
         "",
         f"Overall: {report.verdict.value.upper()}  ({counts[Verdict.HOLDS]} holds, {counts[Verdict.TIGHT]} tight, "
         f"{counts[Verdict.BREAKS]} breaks)",

@@ -22,7 +22,8 @@ import math
 from collections.abc import Callable
 from dataclasses import dataclass
 
-from pairline.engine.plan import BusPlan, Problem, resolve_cable, resolve_driver
+from pairline.engine.devices import resolve_device
+from pairline.engine.plan import BusPlan, Problem, resolve_cable
 from pairline.engine.rules.signal import MAX_DRIVERS_ALL, MAX_DRIVERS_SAMPLED
 from pairline.engine.units import delay_s, si_format
 
@@ -47,7 +48,7 @@ class CheckWork:
     receivers: int
     terminators: int
     pattern_bits: int
-    edge_s: float  # 0-100 % edge time of the driver
+    edge_s: float  # 0-100 % edge time of the primary driver
     rise_time_s: float  # 10-90 %
     bit_time_s: float
     settle_s: float  # how long an edge is remembered
@@ -62,11 +63,11 @@ class CheckWork:
 
 
 def check_work(plan: BusPlan) -> CheckWork:
-    cable, driver = resolve_cable(plan.cable), resolve_driver(plan.driver)
+    cable, driver = resolve_cable(plan.cable), resolve_device(plan.driver.device, plan.default_device)
     longest_stub_m = max([n.stub_length_m for n in plan.nodes] + [plan.driver.stub_length_m])
     edge_s = driver.rise_time_s / 0.8
     return CheckWork(
-        transceivers=sum(n.role == "transceiver" for n in plan.nodes),
+        transceivers=sum(n.may_drive for n in plan.nodes),
         standard=plan.standard,
         receivers=len(plan.nodes),
         terminators=len(plan.terminations),
@@ -163,15 +164,15 @@ def _changes(plan: BusPlan, work: CheckWork, limit_s: float) -> list[Problem]:
         # every transceiver is simulated as a driver up to MAX_DRIVERS_ALL; only fewer of them cost less
         most = _largest(lambda n: _fits(work, limit_s, transceivers=n), min(work.transceivers, MAX_DRIVERS_ALL - 1))
         if most is not None:
-            first = next(i for i, n in enumerate(plan.nodes) if n.role == "transceiver")
+            first = next(i for i, n in enumerate(plan.nodes) if n.may_drive)
             out.append(
                 Problem(
-                    f"nodes.{first}.role",
+                    f"nodes.{first}.may_drive",
                     "Nodes that may drive",
                     work.transceivers,
                     {"max": most},
-                    f"{work.transceivers} nodes are transceivers, and each is simulated driving the bus; make at "
-                    f"most {most} of them transceivers (the rest receivers) to check this plan.",
+                    f"{work.transceivers} nodes may drive, and each is simulated driving the bus; let at most "
+                    f"{most} of them drive (the rest only listen) to check this plan.",
                 )
             )
     bits = _most_that_fits(work, limit_s, "pattern_bits", 2)
@@ -191,7 +192,8 @@ def _changes(plan: BusPlan, work: CheckWork, limit_s: float) -> list[Problem]:
         for _ in range(40):
             mid = math.sqrt(low * high)
             low, high = (low, mid) if _fits(work, limit_s, edge_s=mid / 0.8, rise_time_s=mid) else (mid, high)
-        field = "driver.rise_time_s" if plan.driver.rise_time_s is not None else "driver.transceiver"
+        device = plan.driver.device
+        field = "driver.device." + ("rise_time_s" if device and device.rise_time_s is not None else "class_key")
         out.append(
             Problem(
                 field,

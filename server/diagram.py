@@ -103,7 +103,7 @@ class BusDrawing:
     ticks: tuple[Tick, ...]
     nodes: tuple[NodeMark, ...]
     terminators: tuple[PartMark, ...]
-    bias: PartMark | None
+    bias: tuple[PartMark, ...]  # one per bias network
     driver: NodeMark
     caption: str
 
@@ -189,8 +189,7 @@ def bus_drawing(
         text = _ohm_text(t.resistance_ohm) + (f" + {_farad_text(t.capacitance_f)}" if t.capacitance_f else "")
         title = f"Terminator {i + 1}: {t.kind} at {_length_text(t.position_m, units)}"
         parts.append(("terminator", x_of(t.position_m, length_m), text, title))
-    if plan.bias is not None:
-        b = plan.bias
+    for b in plan.bias:
         text = f"bias ↑{_ohm_text(b.pull_up_ohm)} ↓{_ohm_text(b.pull_down_ohm)}"
         parts.append(
             ("bias", x_of(b.position_m, length_m), text, f"Failsafe bias at {_length_text(b.position_m, units)}")
@@ -222,7 +221,7 @@ def bus_drawing(
             stub_top_y=trunk_y,
             stub_bottom_y=trunk_y + node.stub_length_m * stub_px_per_m,
             verdict=node_verdicts.get(node.name, "unchecked"),
-            role=node.role,
+            role="transceiver" if node.may_drive else "receiver",
             stub_text=_length_text(node.stub_length_m, units) if node.stub_length_m > 0 else "",
             anchor=node_anchor(i),
             reason=reasons.get(node.name, ""),
@@ -247,7 +246,7 @@ def bus_drawing(
         anchor="driver",
     )
     terminators = tuple(m for m in marks if m.kind == "terminator")
-    bias = next((m for m in marks if m.kind == "bias"), None)
+    bias = tuple(m for m in marks if m.kind == "bias")
     longest_label = max((len(n.label) for n in nodes if n.show_label), default=4)
     height = name_y + LABEL_ANGLE_SIN * CHAR_PX * longest_label + 12.0
     caption = (

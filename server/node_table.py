@@ -1,11 +1,11 @@
 """A node table pasted from a spreadsheet (or uploaded as CSV) into the editor's node rows.
 
 Rows hold name, position, stub and unit loads, in that order, or in any order under a header row naming them
-(any node column the editor has may be named: role, ground offset, input C). Cells are tab-, semicolon- or
-comma-separated; a bare number is in the plan's units, a header may name another ("Position (ft)"), and a
-cell may carry its own unit ("12 ft"). Every cell is read the way the editor reads it, so a decimal comma
-means what it means there. Any problem is reported by its row and column and nothing is placed in the table,
-so the pasted text comes back whole beside the messages.
+(any node column the editor has may be named: device class, may drive, ground offset, and the device's values
+such as input C or isolated). Cells are tab-, semicolon- or comma-separated; a bare number is in the plan's
+units, a header may name another ("Position (ft)"), and a cell may carry its own unit ("12 ft"). Every cell is
+read the way the editor reads it, so a decimal comma means what it means there. Any problem is reported by its
+row and column and nothing is placed in the table, so the pasted text comes back whole beside the messages.
 
 New node columns reach the paste by their FieldSpec in `server.forms.NODE`; the positional order (for a table
 without a header) is `POSITIONAL`.
@@ -21,17 +21,22 @@ from pairline.server.forms import NODE, FieldSpec, FormState
 from pairline.server.quantities import KINDS, QuantityError, UnitSystem, parse_quantity
 
 FIELD = "node_table"  # the text area's name; problems of the paste carry it as their field
-POSITIONAL = ("name", "position_m", "stub_length_m", "unit_loads")
+POSITIONAL = ("name", "position_m", "stub_length_m", "device.unit_loads")
 MAX_ROWS = 512
 # Header words beyond each column's key and label.
 ALIASES: dict[str, tuple[str, ...]] = {
-    "name": ("node", "node name", "device", "id"),
+    "name": ("node", "node name", "id"),
     "position_m": ("position", "pos", "distance", "at", "location", "position on trunk"),
     "stub_length_m": ("stub", "stub length", "drop", "drop length"),
-    "unit_loads": ("unit loads", "unit load", "ul", "load", "loads"),
+    "device.class_key": ("device", "device class", "class", "transceiver"),
+    "may_drive": ("may drive", "drives", "talker"),
+    "device.unit_loads": ("unit loads", "unit load", "ul", "load", "loads"),
     "ground_offset_v": ("ground offset", "offset"),
-    "input_capacitance_f": ("input c", "input capacitance", "capacitance"),
+    "device.input_capacitance_f": ("input c", "input capacitance", "capacitance"),
+    "device.isolated": ("isolated", "isolation"),
 }
+_YES = {"yes", "y", "true", "1"}
+_NO = {"no", "n", "false", "0"}
 _UNIT_IN_HEADER = re.compile(r"^(.*?)\s*[\(\[]\s*([^\)\]]*?)\s*[\)\]]\s*$")
 _SPEC = {s.key: s for s in NODE}
 
@@ -52,7 +57,8 @@ def _column_for(header: str) -> tuple[str | None, str]:
     name, unit = (m.group(1), m.group(2)) if m else (header, "")
     word = _words(name)
     for key, spec in _SPEC.items():
-        names = {_words(key), _words(key.rsplit("_", 1)[0]), _words(spec.label), *ALIASES.get(key, ())}
+        field = key.rsplit(".", 1)[-1]
+        names = {_words(field), _words(field.rsplit("_", 1)[0]), _words(spec.label), *ALIASES.get(key, ())}
         if word in names:
             return key, unit.strip()
     return None, ""
@@ -121,7 +127,7 @@ def read_node_table(text: str, units: UnitSystem) -> PastedTable:
         for key, cell in zip(columns, cells, strict=False):
             if key is None or not cell:
                 continue
-            row[key] = _with_unit(cell, header_units.get(key, ""), _SPEC[key])
+            row[key] = _with_unit(_yes_no(cell, _SPEC[key]), header_units.get(key, ""), _SPEC[key])
             problem = _cell_problem(line, key, row[key], units)
             if problem:
                 problems.append(problem)
@@ -129,6 +135,14 @@ def read_node_table(text: str, units: UnitSystem) -> PastedTable:
             problems.append(_problem(line, _label("name"), "", "no name; every node needs one."))
         rows.append(row)
     return PastedTable([] if problems else rows, problems)
+
+
+def _yes_no(cell: str, spec: FieldSpec) -> str:
+    """A yes / no cell ("yes", "y", "1", "true" and their opposites) as the select's value."""
+    if not spec.boolean:
+        return cell
+    word = cell.strip().lower()
+    return "true" if word in _YES else "false" if word in _NO else cell
 
 
 def _with_unit(cell: str, unit: str, spec: FieldSpec) -> str:

@@ -14,7 +14,7 @@ from typing import Any
 import numpy as np
 from pairline.engine import ENGINE_VERSION
 from pairline.engine.findings import Verdict, worst
-from pairline.engine.library import CABLES, TRANSCEIVERS
+from pairline.engine.library import CABLES, STANDARD_MINIMUM, TRANSCEIVERS
 from pairline.engine.plan import BusPlan, Problem, plan_to_dict
 from pairline.engine.rules.power import rating_text
 from pairline.engine.units import si_format
@@ -27,7 +27,21 @@ from pairline.server.findings_view import (
     group_problems,
     holding_rules,
 )
-from pairline.server.forms import BIAS, CABLE, DRIVER, NODE, TERMINATION, TOP, FormState
+from pairline.server.forms import (
+    BIAS,
+    CABLE,
+    CUSTOM_DEVICE,
+    DEVICE,
+    DEVICE_PICKER,
+    DRIVER,
+    GROUNDING,
+    NODE,
+    NODE_COLUMNS,
+    TERMINATION,
+    TOP,
+    FieldSpec,
+    FormState,
+)
 from pairline.server.messages import problem_message, value_text
 from pairline.server.plots import curve_plot, eye_plot, waveform_plot
 from pairline.server.quantities import UnitSystem, format_quantity, length_unit
@@ -84,8 +98,16 @@ def bom_rows(bom: Any, units: UnitSystem) -> list[dict[str, Any]]:
 
 
 def _field_meta(units: UnitSystem) -> dict[str, dict[str, dict[str, Any]]]:
-    groups = {"plan": TOP, "cable": CABLE, "driver": DRIVER, "nodes": NODE, "terminations": TERMINATION}
-    groups["bias"] = BIAS
+    groups: dict[str, tuple[FieldSpec, ...]] = {
+        "plan": TOP,
+        "cable": CABLE,
+        "driver": DRIVER,
+        "nodes": NODE,
+        "terminations": TERMINATION,
+        "bias": BIAS,
+        "grounding": GROUNDING,
+        "device": (DEVICE_PICKER, *DEVICE),
+    }
     return {
         name: {
             s.key: {
@@ -102,22 +124,47 @@ def _field_meta(units: UnitSystem) -> dict[str, dict[str, dict[str, Any]]]:
 
 
 def _class_defaults(units: UnitSystem) -> dict[str, dict[str, dict[str, str]]]:
-    """Each library class's values as input text, shown as placeholders of the override inputs."""
+    """Each library class's values as input text, shown as placeholders of the override inputs; a custom device
+    starts from the standard's minimum device."""
     cable_keys = [s for s in CABLE if s.kind]
-    driver_keys = [s for s in DRIVER if s.key in ("rise_time_s", "open_circuit_v", "source_ohm")]
+    device_keys = [s for s in DEVICE if s.kind]
+
+    def device_text(t: Any) -> dict[str, str]:
+        out = {}
+        for s in device_keys:
+            value = getattr(t, s.key, None)
+            if isinstance(value, float) and math.isfinite(value):
+                out[s.key] = format_quantity(value, s.kind or "plain", units, s.bare, 4)
+        return out
+
     return {
         "cable": {
             key: {s.key: format_quantity(getattr(c, s.key), s.kind or "plain", units, s.bare, 4) for s in cable_keys}
             for key, c in CABLES.items()
         },
-        "driver": {
-            key: {s.key: format_quantity(getattr(t, s.key), s.kind or "plain", units, s.bare, 4) for s in driver_keys}
-            for key, t in TRANSCEIVERS.items()
-        },
+        "device": {key: device_text(t) for key, t in TRANSCEIVERS.items()}
+        | {CUSTOM_DEVICE: device_text(STANDARD_MINIMUM)},
     }
 
 
-TABLES = {"nodes": "node-rows", "terminations": "termination-rows"}  # whole-table problems link to the table
+def _open_devices(state: FormState, errors: Mapping[str, str]) -> list[str]:
+    """The device prefixes whose values the editor shows open: every device (the driver's, a node's) that is
+    custom, has a value typed, has a problem, or was asked open. A node's closed values are not sent at all; the
+    driver's are, folded."""
+    prefixes = ["driver.device"] + [f"nodes.{i}.device" for i in range(state.n_nodes)]
+    values = state.values
+    return [
+        prefix
+        for prefix in prefixes
+        if prefix in state.open_devices
+        or values.get(f"{prefix}.class_key") == CUSTOM_DEVICE
+        or any(values.get(f"{prefix}.{s.key}") for s in DEVICE)
+        or any(path.startswith(prefix + ".") for path in errors)
+    ]
+
+
+# whole-table problems link to the table
+TABLES = {"nodes": "node-rows", "terminations": "termination-rows", "bias": "bias-rows"}
 
 
 def editor_data(state: FormState, *, title: str, saved_from: SavedPlan | None = None) -> dict[str, Any]:
@@ -151,13 +198,17 @@ def editor_data(state: FormState, *, title: str, saved_from: SavedPlan | None = 
         "values": state.values,
         "n_nodes": state.n_nodes,
         "n_terminations": state.n_terminations,
+        "n_bias": state.n_bias,
         "parent_id": state.parent_id,
         "saved_from": saved_from.id if saved_from else None,
         "errors": by_field,
         "problems": general,
         "fields": _field_meta(state.units),
-        "node_columns": [s.key for s in NODE],
+        "node_columns": [s.key for s in NODE_COLUMNS],
+        "device_values": [s.key for s in DEVICE],
+        "open_devices": _open_devices(state, by_field),
         "termination_columns": [s.key for s in TERMINATION],
+        "bias_columns": [s.key for s in BIAS],
         "node_table": state.values.get("node_table", ""),
         "class_defaults": _class_defaults(state.units),
         "cables": {k: json_safe(c) for k, c in CABLES.items()},
@@ -209,8 +260,11 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
             "max_stub_text": quantity_text(summary.max_stub_m.get(n.name), "m", units)
             if n.name in summary.max_stub_m
             else "—",
-            "unit_loads": n.unit_loads,
-            "role": n.role,
+            "unit_loads": report.bus.devices[n.name].unit_loads,
+            "device": report.bus.devices[n.name].label,
+            "failsafe": report.bus.devices[n.name].failsafe,
+            "isolated": report.bus.devices[n.name].isolated,
+            "may_drive": n.may_drive,
             "ground_offset_v": n.ground_offset_v,
             "signal": _signal_data(metrics.get(n.name), units),
             "verdict": node_verdicts.get(n.name, "holds"),
@@ -419,18 +473,19 @@ def _summary_data(summary: Any, units: UnitSystem) -> dict[str, Any]:
         }
         for t in summary.terminators
     ]
-    bias = None
-    if summary.bias is not None:
-        b = summary.bias
-        bias = {
+    bias = [
+        {
             **asdict(b),
             "position_text": quantity_text(b.position_m, "m", units),
             "pull_up_text": quantity_text(b.pull_up_ohm, "Ω", units),
             "pull_down_text": quantity_text(b.pull_down_ohm, "Ω", units),
+            "supply_text": quantity_text(b.supply_v, "V", units),
             "idle_text": quantity_text(b.idle_v, "V", units),
             "idle_corner_text": quantity_text(b.idle_corner_v, "V", units),
             "power_text": rating_text(b.power_rating_w),
         }
+        for b in summary.bias
+    ]
     rate = quantity_text(summary.max_bit_rate_bps, "bit/s", units)
     return {
         "terminators": terminators,

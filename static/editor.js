@@ -1,5 +1,5 @@
 // Plan editor enhancements. The form works without this file; it adds and removes table rows in place,
-// keeps the cable and driver class figures visible as placeholders, and re-shows units on change.
+// keeps the cable and device class figures visible as placeholders, and re-shows units on change.
 (function () {
   "use strict";
   document.documentElement.classList.add("has-js");
@@ -38,6 +38,8 @@
     button.textContent = "Remove";
     button.addEventListener("click", function () {
       const tbody = row.parentElement;
+      const values = row.nextElementSibling;
+      if (values && values.classList.contains("device-row")) values.remove();
       row.remove();
       renumber(tbody);
       form.dispatchEvent(new Event("input"));  // the draft and the live verdict follow
@@ -52,7 +54,7 @@
     button.addEventListener("click", function (event) {
       event.preventDefault();
       const tableId = button.getAttribute("data-add-row");
-      const group = tableId === "node-rows" ? "nodes" : "terminations";
+      const group = { "node-rows": "nodes", "termination-rows": "terminations", "bias-rows": "bias" }[tableId];
       const row = addRow(tableId, group, nextIndex(document.getElementById(tableId).tBodies[0], group));
       saveDraft();
       const first = row.querySelector("input[type=text]");
@@ -74,7 +76,27 @@
     select.addEventListener("change", apply);
   }
   syncPlaceholders("cable", "cable.class_key");
-  syncPlaceholders("driver", "driver.transceiver");
+
+  // A device's value inputs show the figures of the class its picker names (blank: the plan's default class).
+  function syncDevice(prefix) {
+    const select = form.elements[prefix + ".class_key"];
+    if (!select) return;
+    const key = select.value || (form.elements["default_device"] || {}).value;
+    const values = defaults.device[key] || {};
+    form.querySelectorAll("input[name^='" + prefix + ".']").forEach(function (input) {
+      input.placeholder = values[input.name.slice(prefix.length + 1)] || "";
+    });
+  }
+  form.addEventListener("change", function (event) {
+    const name = event.target.name || "";
+    if (name === "default_device") {
+      form.querySelectorAll("select[name$='device.class_key']").forEach(function (select) {
+        syncDevice(select.name.slice(0, -".class_key".length));
+      });
+    } else if (/device\.class_key$/.test(name)) {
+      syncDevice(name.slice(0, -".class_key".length));
+    }
+  });
 
   // Live sketch: trunk, nodes, driver and terminators placed by the positions typed so far.
   const preview = document.getElementById("live-preview");
@@ -145,7 +167,10 @@
         values[el.name] = el.value;
       }
     });
-    const draft = { values: values, checked: checked, nodes: rowIndices("nodes"), terminations: rowIndices("terminations") };
+    const draft = {
+      values: values, checked: checked,
+      nodes: rowIndices("nodes"), terminations: rowIndices("terminations"), bias: rowIndices("bias")
+    };
     try { sessionStorage.setItem(draftKey, JSON.stringify(draft)); } catch (e) { /* storage full or off */ }
   }
   function addRow(tableId, group, index) {
@@ -161,14 +186,18 @@
     let draft = null;
     try { draft = JSON.parse(sessionStorage.getItem(draftKey) || "null"); } catch (e) { draft = null; }
     if (!draft) return;
-    [["node-rows", "nodes"], ["termination-rows", "terminations"]].forEach(function (pair) {
+    [["node-rows", "nodes"], ["termination-rows", "terminations"], ["bias-rows", "bias"]].forEach(function (pair) {
       const wanted = draft[pair[1]] || [];
       const present = rowIndices(pair[1]);
       const tbody = document.getElementById(pair[0]).tBodies[0];
       present.forEach(function (i) {
         if (wanted.indexOf(i) < 0) {
           const el = form.elements[pair[1] + "." + i + ".name"] || form.elements[pair[1] + "." + i + ".position_m"];
-          if (el) el.closest("tr").remove();
+          if (!el) return;
+          const row = el.closest("tr");
+          const values = row.nextElementSibling;
+          if (values && values.classList.contains("device-row")) values.remove();
+          row.remove();
         }
       });
       wanted.forEach(function (i) { if (present.indexOf(i) < 0) addRow(pair[0], pair[1], i); });

@@ -11,7 +11,6 @@ engine.rules.stubs, since the cable left beyond a terminator is an open stub.
 import math
 
 from pairline.engine.bus import Bus
-from pairline.engine.plan import input_resistance_ohm
 from pairline.engine.rules.preferred import nearest_preferred
 from pairline.engine.rules.stubs import max_stub_length_m
 from pairline.engine.units import length_text, parallel_ohm
@@ -21,7 +20,7 @@ END_TOLERANCE_CAP_M = 1.0
 
 def end_tolerance_m(bus: Bus) -> float:
     """How far from a cable end a terminator may sit and still count as at the end: min(1 m, stub limit)."""
-    return min(END_TOLERANCE_CAP_M, max_stub_length_m(bus.driver.rise_time_s, bus.cable.velocity_factor))
+    return min(END_TOLERANCE_CAP_M, max_stub_length_m(bus.fastest_rise_time_s, bus.cable.velocity_factor))
 
 
 def nearest_end_m(bus: Bus, position_m: float) -> float | None:
@@ -55,11 +54,10 @@ def lumped_load_ohm(bus: Bus, position_m: float) -> float:
     """Receivers (and the bias network) within the end tolerance of a position, in parallel: R_P."""
     tol = end_tolerance_m(bus)
     plan = bus.plan
-    loads = [input_resistance_ohm(n.unit_loads) for n in plan.nodes if abs(n.position_m - position_m) <= tol]
+    loads = [bus.devices[n.name].budget_input_ohm for n in plan.nodes if abs(n.position_m - position_m) <= tol]
     if plan.standard == "rs485" and abs(plan.driver.position_m - position_m) <= tol:
-        loads.append(input_resistance_ohm(bus.driver.unit_loads))
-    if plan.bias is not None and abs(plan.bias.position_m - position_m) <= tol:
-        loads.append(plan.bias.pull_up_ohm + plan.bias.pull_down_ohm)
+        loads.append(bus.driver_device.budget_input_ohm)
+    loads += [b.pull_up_ohm + b.pull_down_ohm for b in plan.bias if abs(b.position_m - position_m) <= tol]
     return parallel_ohm(*loads)
 
 

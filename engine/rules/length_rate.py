@@ -89,7 +89,7 @@ def signal_path_m(bus: Bus) -> float:
     nodes = bus.plan.nodes
     x_m = np.array([d.position_m, *(n.position_m for n in nodes)])
     stub_m = np.array([d.stub_length_m, *(n.stub_length_m for n in nodes)])
-    talks = np.array([True, *(n.role == "transceiver" for n in nodes)])
+    talks = np.array([True, *(n.may_drive for n in nodes)])
     path_m = np.abs(x_m[talks, None] - x_m[None, :]) + stub_m[talks, None] + stub_m[None, :]  # (n_talkers, n_points)
     path_m[np.arange(path_m.shape[0]), np.flatnonzero(talks)] = 0.0  # not to itself
     return float(path_m.max())

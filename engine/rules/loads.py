@@ -1,17 +1,17 @@
 """Bus loading: the unit-load budget and the total resistive load the driver sees.
 
 Unit loads (TIA-485-A; TI SLLA166 and SLLA272). A unit load (UL) draws at most 1 mA when its line is held at
-+12 V and at most 0.8 mA (out of the input) at -7 V, which Pairline models as 12 kOhm per UL (as
-engine.plan.input_resistance_ohm does). An RS-485 driver must drive 32 UL. Everything hung on the pair
-counts: each node's receiver, the driver's own receiver (a transceiver listens while it does not drive) and
-the failsafe bias network (SLLA272: bias may consume unit loads, up to 20 UL in its example). The budget
-holds per line; the bias puts R_u on line A and R_d on line B, each a load to a rail like a receiver input,
-so it counts with its worse line: UL_bias = 12 kOhm / min(R_u, R_d). A 600 Ohm network is the 20 UL of the
-SLLA272 example. (Rating the pull-up by its current at -7 V from a 5 V supply would be stricter by 25 %.)
++12 V and at most 0.8 mA (out of the input) at -7 V. An RS-485 driver must drive 32 UL. Everything hung on the
+pair counts: each node's receiver (its device's rating), the driver's own receiver (a transceiver listens while
+it does not drive) and every failsafe bias network (SLLA272: bias may consume unit loads, up to 20 UL in its
+example). The budget holds per line; a bias network puts R_u on line A and R_d on line B, each a load to a rail
+like a receiver input, so it counts with its worse line: UL_bias = 12 kOhm / min(R_u, R_d). A 600 Ohm network
+is the 20 UL of the SLLA272 example. (Rating the pull-up by its current at -7 V from a 5 V supply would be
+stricter by 25 %.) What 1 UL is across the pair, and why the budget counts it as 12 kOhm: engine.devices.
 RS-422 (TIA/EIA-422-B) counts receivers instead: one driver, at most 10 receivers of >= 4 kOhm.
 
 Driver load. The driver sees every terminator, every receiver input and the bias network in parallel across
-the pair: R_load = R_T1 || R_T2 || ... || (12 kOhm / UL)_i || (R_u + R_d). TIA-485-A specifies the driver into
+the pair: R_load = R_T1 || R_T2 || ... || (12 kOhm / UL)_i || (R_u + R_d)_j. TIA-485-A specifies the driver into
 54 Ohm, the load meant by two 120 Ohm terminators and 32 UL (TI SLLA628), which by arithmetic is 51.7 Ohm.
 TIA/EIA-422-B specifies the driver into 100 Ohm and allows up to 10 receivers of at least 4 kOhm; it states no
 total-load figure Pairline could confirm, so the RS-422 limit is the arithmetic of its stated figures, 100 Ohm
@@ -30,6 +30,7 @@ import math
 
 from pairline.engine.bus import Bus
 from pairline.engine.dc import receiver_loads_ohm
+from pairline.engine.devices import UNIT_LOAD_SOURCE, UNIT_LOAD_TEXT, ResolvedDevice
 from pairline.engine.findings import Finding, Verdict
 from pairline.engine.plan import input_resistance_ohm
 from pairline.engine.rules.margins import RESISTOR_TOLERANCE, band_verdict, corner_bus
@@ -40,7 +41,7 @@ RS422_MAX_RECEIVERS = 10  # TIA/EIA-422-B
 RS422_MIN_INPUT_OHM = 4_000.0  # TIA/EIA-422-B
 RS485_DESIGN_LOAD_OHM = 54.0  # TIA-485-A driver test load
 RS422_DESIGN_LOAD_OHM = 100.0  # TIA/EIA-422-B driver test load
-UNIT_LOAD_OHM = input_resistance_ohm(1.0)  # 12 kOhm, TIA-485-A
+UNIT_LOAD_OHM = input_resistance_ohm(1.0)  # 12 kOhm across the pair in the budget (engine.devices)
 UNIT_LOAD_CLASSES: dict[str, float] = {"1 UL": 1.0, "1/2 UL": 0.5, "1/4 UL": 0.25, "1/8 UL": 0.125}
 
 _UL_SOURCE = "TIA-485-A unit load and 32 UL driver capability; TI SLLA166 and SLLA272 (bias networks load the bus)"
@@ -72,15 +73,12 @@ def further_nodes(spare_unit_loads: float) -> dict[str, int]:
 
 
 def unit_load_parts(bus: Bus) -> dict[str, float]:
-    """The RS-485 unit-load budget by contributor: nodes, the driver's own receiver, the bias network."""
+    """The RS-485 unit-load budget by contributor: nodes, the driver's own receiver, the bias networks."""
     plan = bus.plan
-    bias_ul = 0.0
-    if plan.bias is not None:
-        bias_ul = bias_unit_loads(plan.bias.pull_up_ohm, plan.bias.pull_down_ohm)
     return {
-        "nodes": float(sum(n.unit_loads for n in plan.nodes)),
-        "driver": bus.driver.unit_loads if plan.standard == "rs485" else 0.0,
-        "bias": bias_ul,
+        "nodes": float(sum(bus.devices[n.name].unit_loads for n in plan.nodes)),
+        "driver": bus.driver_device.unit_loads if plan.standard == "rs485" else 0.0,
+        "bias": float(sum(bias_unit_loads(b.pull_up_ohm, b.pull_down_ohm) for b in plan.bias)),
     }
 
 
@@ -111,13 +109,15 @@ def check_unit_loads(bus: Bus) -> list[Finding]:
     corner_total = unit_load_total(corner_bus(bus, bias_resistors=-1))
     budget = RS485_UNIT_LOAD_BUDGET
     verdict = band_verdict(total <= budget + 1e-9, corner_total <= budget + 1e-9)
+    networks = "bias network" if len(plan.bias) <= 1 else f"{len(plan.bias)} bias networks"
     detail = (
-        f"nodes {parts['nodes']:g} UL + driver's own receiver {parts['driver']:g} UL + bias network "
+        f"nodes {parts['nodes']:g} UL + driver's own receiver {parts['driver']:g} UL + {networks} "
         f"{unit_loads_text(parts['bias'])} UL = {unit_loads_text(total)} UL of {budget:g}"
     )
     if parts["bias"] > 0.0:
         detail += f"; with the bias resistors 5 % low, {unit_loads_text(corner_total)} UL"
-    detail += ". TIGHT when the bias resistors at the low end of their tolerance would take it over 32 UL."
+    detail += ". TIGHT when the bias resistors at the low end of their tolerance would take it over 32 UL. "
+    detail += UNIT_LOAD_TEXT + "."
     return [
         Finding(
             rule_id="load.unit_loads",
@@ -129,7 +129,7 @@ def check_unit_loads(bus: Bus) -> list[Finding]:
             node=None,
             criterion="Sum of unit loads on the pair (nodes, the driver's own receiver, the bias network) <= 32 UL; "
             "tight when bias resistors 5 % low would exceed it",
-            source=_UL_SOURCE,
+            source=_UL_SOURCE + "; " + UNIT_LOAD_SOURCE,
             fix="" if verdict is Verdict.HOLDS else _unit_load_fix(bus, parts, total, corner_total),
             detail=detail,
         )
@@ -161,13 +161,13 @@ def _unit_load_fix(bus: Bus, parts: dict[str, float], total: float, corner_total
     steps = []
     if room > 0 and n_nodes:
         rated = next((ul for ul in UNIT_LOAD_CLASSES.values() if ul * n_nodes <= room), None)
-        if rated is not None and rated < max(n.unit_loads for n in bus.plan.nodes):
+        if rated is not None and rated < max(bus.devices[n.name].unit_loads for n in bus.plan.nodes):
             steps.append(f"use receivers of {rated:g} UL or less on all {n_nodes} nodes")
-    bias = bus.plan.bias
-    if bias is not None and parts["bias"] > 1.0:
+    if bus.plan.bias and parts["bias"] > 1.0:
+        weakest = min(min(b.pull_up_ohm, b.pull_down_ohm) for b in bus.plan.bias)
         steps.append(
-            f"raise the bias resistors (now {min(bias.pull_up_ohm, bias.pull_down_ohm):g} Ω, "
-            f"{parts['bias']:.1f} UL), with receivers of failsafe thresholds where the idle level then falls short"
+            f"raise the bias resistors (now {weakest:g} Ω, {parts['bias']:.1f} UL), with receivers of failsafe "
+            "thresholds where the idle level then falls short"
         )
     steps.append("split the bus with a repeater, which starts a fresh 32 UL budget")
     return f"{head}: {either(steps)}."
@@ -197,7 +197,7 @@ def _check_rs422_receivers(bus: Bus) -> list[Finding]:
         )
     ]
     for node in bus.plan.nodes:
-        r_in = input_resistance_ohm(node.unit_loads)
+        r_in = bus.devices[node.name].budget_input_ohm
         if r_in < RS422_MIN_INPUT_OHM:
             findings.append(
                 Finding(
@@ -211,7 +211,7 @@ def _check_rs422_receivers(bus: Bus) -> list[Finding]:
                     criterion="Each RS-422 receiver input >= 4 kΩ (3 UL at 12 kΩ per UL)",
                     source=_422_SOURCE,
                     fix=f"Use a receiver at node '{node.name}' of 3 UL or less (input >= 4 kΩ).",
-                    detail=f"{node.unit_loads:g} UL -> {r_in:.0f} Ω.",
+                    detail=f"{bus.devices[node.name].unit_loads:g} UL -> {r_in:.0f} Ω.",
                     limit_kind="min",
                 )
             )
@@ -219,9 +219,9 @@ def _check_rs422_receivers(bus: Bus) -> list[Finding]:
 
 
 def bias_equivalent_ohm(bus: Bus) -> float:
-    """The bias network across the pair for a differential signal: R_u + R_d (the supply is an AC ground)."""
-    bias = bus.plan.bias
-    return math.inf if bias is None else bias.pull_up_ohm + bias.pull_down_ohm
+    """The bias networks across the pair for a differential signal: each R_u + R_d (its supply is an AC ground),
+    in parallel."""
+    return parallel_ohm(*[b.pull_up_ohm + b.pull_down_ohm for b in bus.plan.bias])
 
 
 def driver_load_ohm(bus: Bus, *, edge: bool = True) -> float:
@@ -262,16 +262,23 @@ def check_driver_load(bus: Bus) -> list[Finding]:
     dc_ohm = driver_load_ohm(bus, edge=False)
     corner_ohm = driver_load_ohm(corner_bus(bus, terminators=-1, bias_resistors=-1), edge=True)
     verdict = band_verdict(edge_ohm >= limit_ohm, corner_ohm >= limit_ohm)
-    r_s = bus.driver.source_ohm
-    v_od = bus.driver.open_circuit_v * (edge_ohm / (edge_ohm + r_s)) if math.isfinite(edge_ohm) else None
     name = "RS-422" if standard == "rs422" else "RS-485"
     detail = (
         f"Edge view (RC terminators as their resistor): {_ohm_text(edge_ohm)}; DC view (RC terminators open): "
         f"{_ohm_text(dc_ohm)}; with terminators and bias resistors 5 % low: {_ohm_text(corner_ohm)}. The limit is "
-        f"the {name} fully loaded bus, {limit_ohm:.1f} Ω, which its {design:g} Ω test load stands for."
+        f"the {name} fully loaded bus, {limit_ohm:.1f} Ω, which its {design:g} Ω test load stands for. Receivers "
+        f"count {UNIT_LOAD_OHM / 1e3:g} kΩ per UL across the pair here, twice their real load (engine.devices)."
     )
-    if v_od is not None:
-        detail += f" The driver model ({bus.driver.open_circuit_v:g} V behind {r_s:g} Ω) gives {v_od:.2f} V into it."
+    if math.isfinite(edge_ohm):
+        talker, v_od = min(
+            ((name_, d.open_circuit_v * edge_ohm / (edge_ohm + d.source_ohm)) for name_, d in _talker_devices(bus)),
+            key=lambda item: item[1],
+        )
+        d = bus.devices[talker]
+        detail += (
+            f" The weakest driver, '{talker}' ({d.open_circuit_v:g} V behind {d.source_ohm:g} Ω), gives {v_od:.2f} V "
+            "into it."
+        )
     return [
         Finding(
             rule_id="load.driver",
@@ -299,6 +306,10 @@ def check_driver_load(bus: Bus) -> list[Finding]:
     ]
 
 
+def _talker_devices(bus: Bus) -> list[tuple[str, ResolvedDevice]]:
+    return [(name, bus.devices[name]) for name in bus.drivers_possible]
+
+
 def _ohm_text(value_ohm: float) -> str:
     return "open (no load)" if not math.isfinite(value_ohm) else si_format(value_ohm, "Ω")
 
@@ -319,7 +330,7 @@ def _driver_load_fix(bus: Bus, limit_ohm: float) -> str:
     bias_eq = bias_equivalent_ohm(bus)
     if math.isfinite(bias_eq) and bias_eq < 10 * limit_ohm:
         steps.append(f"raise the bias resistors (together {bias_eq:.0f} Ω across the pair)")
-    if plan.standard == "rs485" and sum(n.unit_loads for n in plan.nodes) > 8:
+    if plan.standard == "rs485" and sum(bus.devices[n.name].unit_loads for n in plan.nodes) > 8:
         steps.append("use 1/4 or 1/8 UL receivers")
     if not steps:
         steps.append("use a cable of higher impedance with matching terminators, or fewer receivers")

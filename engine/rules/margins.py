@@ -31,7 +31,8 @@ import dataclasses
 from typing import Literal
 
 from pairline.engine.bus import Bus
-from pairline.engine.dc import bias_supply_v
+from pairline.engine.dc import network_supply_v
+from pairline.engine.devices import scaled_outputs
 from pairline.engine.findings import Verdict
 
 RESISTOR_TOLERANCE = 0.05  # IEC 60063: E24 series, 5 % parts
@@ -86,8 +87,9 @@ def corner_bus(
     """The bus with parts moved to one corner of their tolerances: +1 up, -1 down, 0 nominal.
 
     terminators and bias_resistors scale by RESISTOR_TOLERANCE, bias_supply and driver_output by
-    SUPPLY_TOLERANCE; cable_resistance=+1 multiplies the conductor resistance by cable_loop_factor() (warm and
-    longer than drawn), which is what a longer, warmer run does to every DC level.
+    SUPPLY_TOLERANCE (driver_output: every device's driver); cable_resistance=+1 multiplies the conductor
+    resistance by cable_loop_factor() (warm and longer than drawn), which is what a longer, warmer run does to
+    every DC level.
     """
     plan = bus.plan
     update: dict[str, object] = {}
@@ -96,25 +98,28 @@ def corner_bus(
         update["terminations"] = [
             t.model_copy(update={"resistance_ohm": t.resistance_ohm * factor}) for t in plan.terminations
         ]
-    if plan.bias is not None and (bias_resistors or bias_supply):
+    if plan.bias and (bias_resistors or bias_supply):
         factor = 1.0 + bias_resistors * RESISTOR_TOLERANCE
-        update["bias"] = plan.bias.model_copy(
-            update={
-                "pull_up_ohm": plan.bias.pull_up_ohm * factor,
-                "pull_down_ohm": plan.bias.pull_down_ohm * factor,
-                "supply_v": bias_supply_v(bus) * (1.0 + bias_supply * SUPPLY_TOLERANCE),
-            }
-        )
+        update["bias"] = [
+            b.model_copy(
+                update={
+                    "pull_up_ohm": b.pull_up_ohm * factor,
+                    "pull_down_ohm": b.pull_down_ohm * factor,
+                    "supply_v": network_supply_v(bus, b) * (1.0 + bias_supply * SUPPLY_TOLERANCE),
+                }
+            )
+            for b in plan.bias
+        ]
     cable = bus.cable
     if cable_resistance:
         factor = cable_loop_factor() if cable_resistance > 0 else 1.0 / cable_loop_factor()
         cable = dataclasses.replace(cable, resistance_ohm_per_m=cable.resistance_ohm_per_m * factor)
-    driver = bus.driver
+    driver, devices = bus.driver, bus.devices
     if driver_output:
-        driver = dataclasses.replace(
-            driver, open_circuit_v=driver.open_circuit_v * (1 + driver_output * SUPPLY_TOLERANCE)
-        )
-    return Bus(plan=plan.model_copy(update=update) if update else plan, cable=cable, driver=driver)
+        factor = 1 + driver_output * SUPPLY_TOLERANCE
+        driver = dataclasses.replace(driver, open_circuit_v=driver.open_circuit_v * factor)
+        devices = scaled_outputs(devices, factor)
+    return Bus(plan=plan.model_copy(update=update) if update else plan, cable=cable, driver=driver, devices=devices)
 
 
 def band_verdict(nominal_inside: bool, corner_inside: bool) -> Verdict:

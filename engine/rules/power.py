@@ -1,6 +1,6 @@
 """Power in the terminators and bias resistors, and the rating to buy.
 
-Normal case: P = V^2 / R with the driver's full open-circuit differential voltage across a parallel
+Normal case: P = V^2 / R with the strongest driver's full open-circuit differential voltage across a parallel
 terminator (an upper bound: the source resistance and the cable only lower it). Bias resistors: while the
 driver holds the line against the bias, each resistor has the whole bias supply across it, P = V_S^2 / R.
 An RC terminator passes no steady current; each edge dissipates C dV^2 / 2 in its resistor with dV = 2 V_OC,
@@ -23,7 +23,7 @@ import math
 from dataclasses import dataclass
 
 from pairline.engine.bus import Bus
-from pairline.engine.dc import bias_supply_v
+from pairline.engine.dc import network_supply_v
 from pairline.engine.findings import Finding, Verdict
 from pairline.engine.rules.margins import RESISTOR_TOLERANCE, SUPPLY_TOLERANCE
 
@@ -62,7 +62,7 @@ def rating_to_buy_w(power_w: float) -> float:
 
 def resistor_powers(bus: Bus) -> list[ResistorPower]:
     """Normal and fault power of every terminator and bias resistor in the plan, each family rated alike."""
-    v_oc = bus.driver.open_circuit_v
+    v_oc = _strongest_v(bus)
     fault_term_v = max(FAULT_LINE_HIGH_V, bus.plan.supply_v)
     parts = []
     for t in bus.plan.terminations:
@@ -74,13 +74,14 @@ def resistor_powers(bus: Bus) -> list[ResistorPower]:
         else:
             normal_w, fault_w = v_oc**2 / r, fault_term_v**2 / r
         parts.append(ResistorPower(label, t.position_m, r, normal_w, fault_w, fault_term_v, 0.0))
-    b = bus.plan.bias
-    if b is not None:
-        supply_v = bias_supply_v(bus)
+    several = len(bus.plan.bias) > 1
+    for b in bus.plan.bias:
+        supply_v = network_supply_v(bus, b)
         up_fault_v = supply_v - FAULT_LINE_LOW_V
+        at = f" at {b.position_m:g} m" if several else ""
         for label, r, fault_v in (
-            ("bias pull-up", b.pull_up_ohm, up_fault_v),
-            ("bias pull-down", b.pull_down_ohm, FAULT_LINE_HIGH_V),
+            (f"bias pull-up{at}", b.pull_up_ohm, up_fault_v),
+            (f"bias pull-down{at}", b.pull_down_ohm, FAULT_LINE_HIGH_V),
         ):
             normal_w = supply_v**2 / r
             parts.append(ResistorPower(label, b.position_m, r, normal_w, fault_v**2 / r, fault_v, 0.0))
@@ -134,7 +135,7 @@ def check_resistor_power(bus: Bus) -> list[Finding]:
                 USUAL_MAX_W / DERATING,
                 "W",
                 None,
-                f"P = V^2 / R at the driver's {bus.driver.open_circuit_v:g} V open-circuit (bias: its supply) "
+                f"P = V^2 / R at the strongest driver's {_strongest_v(bus):g} V open-circuit (bias: its supply) "
                 f"<= 1 W, so a 2 W part runs at half rating; buy >= 2 P from 1/8, 1/4, 1/2, 1, 2 W; tight when "
                 f"the fault case ({p.fault_v:g} V across it) exceeds 2 W, or the corner (resistor 5 % low, supply "
                 "5 % high) needs more than 2 W",
@@ -149,6 +150,10 @@ def check_resistor_power(bus: Bus) -> list[Finding]:
             )
         )
     return findings
+
+
+def _strongest_v(bus: Bus) -> float:
+    return max(bus.devices[name].open_circuit_v for name in bus.drivers_possible)
 
 
 def rating_text(power_w: float) -> str:

@@ -23,7 +23,7 @@ simulated verdict only when the bus has no terminators; with terminators fitted 
 from dataclasses import dataclass
 
 import numpy as np
-from pairline.engine.bus import Bus, build_bus
+from pairline.engine.bus import Bus, build_bus, talker_groups
 from pairline.engine.findings import Finding, Verdict, worst
 from pairline.engine.fixes import ComputedFix, SignalJudgement, compute_fixes, judge_bus, one_driver, pattern_duration_s
 from pairline.engine.metrics import ReceiverMetrics
@@ -57,7 +57,7 @@ def drivers_to_simulate(bus: Bus) -> list[str]:
     drivers = bus.drivers_possible
     if len(drivers) <= MAX_DRIVERS_ALL:
         return drivers
-    nodes = [n for n in bus.plan.nodes if n.role == "transceiver"]
+    nodes = [n for n in bus.plan.nodes if n.may_drive]
     by_position = sorted(nodes, key=lambda n: n.position_m)
     picked = [bus.plan.driver.name, by_position[0].name, by_position[-1].name]
     picked += [n.name for n in sorted(nodes, key=lambda n: -n.stub_length_m)[:3]]
@@ -88,14 +88,20 @@ def simulate_bus(bus: Bus) -> Simulation:
     re-simulated fixes for the receivers the primary driver breaks."""
     drivers = drivers_to_simulate(bus)
     primary = bus.plan.driver.name
-    steps = step_responses(bus, drivers, max_time_s=pattern_duration_s(bus, bus.plan.test_pattern))
-    primary_step = one_driver(steps, primary)
+    duration_s = pattern_duration_s(bus, bus.plan.test_pattern)
+    # Talkers of one device share a simulation; each group drives with its own device's output and edge.
+    views = {}
+    for view, names in talker_groups(bus, drivers):
+        steps = step_responses(view, names, max_time_s=duration_s)
+        views.update({name: (view, steps) for name in names})
+    primary_step = one_driver(views[primary][1], primary)
     bits = bus.plan.test_pattern or default_pattern(primary_step, 1.0 / bus.plan.bit_rate_bps)
     out: dict[str, tuple[SignalJudgement, str]] = {}
     from_primary: dict[str, SignalJudgement] = {}
     for name in drivers:
+        view, steps = views[name]
         step = primary_step if name == primary else one_driver(steps, name)
-        judged = judge_bus(bus, driver_name=name, step=step, pattern=bits if name == primary else None)
+        judged = judge_bus(view, driver_name=name, step=step, pattern=bits if name == primary else None)
         if name == primary:
             from_primary = judged
         for rx, j in judged.items():

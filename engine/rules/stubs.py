@@ -49,8 +49,9 @@ def stub_lengths_m(bus: Bus) -> dict[str, float]:
 
 
 def max_stub_by_node_m(bus: Bus) -> dict[str, float]:
-    """The stub limit for each node (one driver class, so one value, keyed by node for the report)."""
-    limit = max_stub_length_m(bus.driver.rise_time_s, bus.cable.velocity_factor)
+    """The stub limit for each node: the fastest edge any node that may drive puts on the bus sets one value, keyed
+    by node for the report."""
+    limit = max_stub_length_m(bus.fastest_rise_time_s, bus.cable.velocity_factor)
     return dict.fromkeys(stub_lengths_m(bus), limit)
 
 
@@ -58,17 +59,17 @@ def max_bit_rate_for_stubs_bps(bus: Bus) -> float:
     """Highest bit rate the stub / rise-time view allows.
 
     The edge must be at least as slow as the longest stub needs and at most 30 % of a bit:
-    rate <= 0.3 / max(t_r of the driver, t_r needed by the longest stub). Sources: TI SLLA272, TI SLLA628.
+    rate <= 0.3 / max(t_r of the slowest driver, t_r needed by the longest stub). Sources: TI SLLA272, TI SLLA628.
     """
     longest = max(stub_lengths_m(bus).values())
     needed = rise_time_needed_s(longest, bus.cable.velocity_factor)
-    return MAX_TRANSITION_BIT_FRACTION / max(bus.driver.rise_time_s, needed)
+    return MAX_TRANSITION_BIT_FRACTION / max(bus.slowest_rise_time_s, needed)
 
 
 def check_stubs(bus: Bus) -> list[Finding]:
     """Rule "stub.length": one finding per node (and the driver), stub vs 0.1 * t_r * VF * c0."""
     vf = bus.cable.velocity_factor
-    rise = bus.driver.rise_time_s
+    rise = bus.fastest_rise_time_s
     limit = max_stub_length_m(rise, vf)
     bit_s = 1.0 / bus.plan.bit_rate_bps
     slowest_ok_s = MAX_TRANSITION_BIT_FRACTION * bit_s
@@ -111,7 +112,10 @@ def check_stubs(bus: Bus) -> list[Finding]:
                 fix=fix,
                 detail=detail,
                 figures=(
-                    ("max_bit_rate_bps", MAX_TRANSITION_BIT_FRACTION / max(rise, rise_time_needed_s(length, vf))),
+                    (
+                        "max_bit_rate_bps",
+                        MAX_TRANSITION_BIT_FRACTION / max(bus.slowest_rise_time_s, rise_time_needed_s(length, vf)),
+                    ),
                 ),
             )
         )

@@ -53,7 +53,7 @@ class OmitCriterion:
 def unterminated_criteria(bus: Bus) -> tuple[OmitCriterion, ...]:
     """Every published unterminated-line criterion evaluated on the plan; exactly one is marked deciding."""
     t_pd = one_way_delay_s(bus)
-    t_r = bus.driver.rise_time_s
+    t_r = bus.fastest_rise_time_s
     rate = bus.plan.bit_rate_bps
     t_bit = 1.0 / rate
     v = propagation_velocity_m_per_s(bus.cable.velocity_factor)

@@ -9,7 +9,7 @@ from urllib.parse import quote
 
 from fastapi import APIRouter, Depends, Request
 from fastapi.responses import JSONResponse, RedirectResponse, Response
-from pairline.engine.plan import BusInputError, BusPlan, Problem, load_plan, plan_to_dict
+from pairline.engine.plan import BusInputError, BusPlan, Problem, current_document, load_plan, plan_to_dict
 from pairline.server.checking import Checker, CheckRefused
 from pairline.server.errors import RequestRefused, not_found
 from pairline.server.forms import (
@@ -118,6 +118,7 @@ BLANK_NODE_ROWS = 5
 def new_plan_page(request: Request, units: str = "metric") -> Response:
     state = form_from_plan(starter_plan("imperial" if units == "imperial" else "metric"))
     state.n_nodes = BLANK_NODE_ROWS
+    state.n_bias = 1
     data = editor_data(state, title="New bus plan")
     return page(request, "editor.html", data, request.url.path.endswith(".json"))
 
@@ -155,11 +156,13 @@ async def submit_plan(request: Request, store: StoreDep, checker: CheckerDep) ->
             return render(request, "editor.html", editor_data(state, title=_editor_title(state)), status_code=422)
         state = with_pasted_rows(state, len(parsed.doc["nodes"]), table.rows, bool(fields.get("node_table_replace")))
         return render(request, "editor.html", editor_data(state, title=_editor_title(state)))
-    if parsed.action in ("add_node", "add_termination", "units", "edit"):
+    if parsed.action in ("add_node", "add_termination", "add_bias", "device_values", "units", "edit"):
         if parsed.action == "add_node":
             state.n_nodes += 1
         elif parsed.action == "add_termination":
             state.n_terminations += 1
+        elif parsed.action == "add_bias":
+            state.n_bias += 1
         elif parsed.action == "units":
             state = with_units(state, parsed.doc, parsed.doc["display_units"])
         state.problems = []
@@ -190,6 +193,15 @@ async def submit_plan(request: Request, store: StoreDep, checker: CheckerDep) ->
         "fields": draft_fields(state),
     }
     return render(request, "plan.html", data)
+
+
+def _editor_problems(doc: Any) -> list[Problem]:
+    """A saved plan's problems under the field names the editor shows (a version-1 plan's, as version 2)."""
+    try:
+        load_plan(current_document(doc))
+    except BusInputError as exc:
+        return exc.problems
+    return []
 
 
 def _editor_title(state: FormState) -> str:
@@ -251,7 +263,7 @@ def plan_page(
         if as_json:
             raise
         state = form_from_plan(saved.plan, parent_id=saved.id)
-        state.problems = exc.problems
+        state.problems = _editor_problems(saved.plan) or exc.problems
         title = "This saved plan needs changes before it can be checked here"
         return render(request, "editor.html", editor_data(state, title=title, saved_from=saved), status_code=422)
     data["waveforms"]["chosen_unknown"] = receiver
@@ -293,7 +305,11 @@ def download_plan(request: Request, ref: str, store: StoreDep) -> Response:
     saved = store.get_plan(ref)
     if saved is None:
         return not_found(request)
-    body = json.dumps(saved.plan, indent=2, ensure_ascii=False) + "\n"
+    try:  # the current format: a plan saved as version 1 comes down as its version-2 twin
+        doc: Any = plan_to_dict(load_plan(saved.plan))
+    except BusInputError:
+        doc = saved.plan  # no longer valid here: as it was saved, for the editor to mend
+    body = json.dumps(doc, indent=2, ensure_ascii=False) + "\n"
     return Response(
         body.encode("utf-8"),
         media_type="application/json",

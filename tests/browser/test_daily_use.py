@@ -16,8 +16,8 @@ def fill_eight_node_bus(page, base_url):
     page.fill("input[name='bit_rate_bps']", "19.2k")
     page.fill("input[name='trunk_length_m']", "250")
     page.fill("input[name='terminations.1.position_m']", "250")
-    page.fill("input[name='bias.pull_up_ohm']", "470")
-    page.fill("input[name='bias.pull_down_ohm']", "470")
+    page.fill("input[name='bias.0.pull_up_ohm']", "470")
+    page.fill("input[name='bias.0.pull_down_ohm']", "470")
     for _ in range(3):
         page.click("button[data-add-row='node-rows']")
     rows = page.locator("#node-rows tbody tr.row")
@@ -27,7 +27,7 @@ def fill_eight_node_bus(page, base_url):
         row.locator("input[name$='.name']").fill(name)
         row.locator("input[name$='.position_m']").fill(position)
         row.locator("input[name$='.stub_length_m']").fill(stub)
-        row.locator("input[name$='.unit_loads']").fill("1/8")
+        row.locator("select[name$='.device.class_key']").select_option("slew-2500ns")  # a 1/8 UL class
 
 
 def typed_values(page) -> dict[str, str]:
@@ -39,7 +39,7 @@ def typed_values(page) -> dict[str, str]:
 
 def test_back_after_check_keeps_every_typed_value(page, base_url):
     fill_eight_node_bus(page, base_url)
-    page.select_option("select[name='nodes.7.role']", "transceiver")
+    page.select_option("select[name='nodes.7.may_drive']", "true")
     before = typed_values(page)
     page.click("#check-button")
     page.wait_for_selector("#overall-verdict")

@@ -16,7 +16,7 @@ def fill_five_node_bus(page, base_url, title="Orchard gates"):
     page.fill("input[name='title']", title)
     page.fill("input[name='bit_rate_bps']", "19.2k")
     page.fill("input[name='trunk_length_m']", "400")
-    page.select_option("select[name='driver.transceiver']", "slew-2500ns")
+    page.select_option("select[name='default_device']", "slew-2500ns")
     page.fill("input[name='terminations.1.position_m']", "400")
     for i, (name, position, stub) in enumerate(NODES):
         page.fill(f"input[name='nodes.{i}.name']", name)

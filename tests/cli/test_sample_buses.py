@@ -98,7 +98,7 @@ def test_unterminated_bench_rack_names_each_open_end():
     ]
     assert all(f.value is None and f.limit is None for f in placement)
     # The plan's 4.7 kOhm bias holds (3.36 V idle), so the summary keeps it rather than advising another value.
-    assert report.summary.bias is not None and report.summary.bias.pull_up_ohm == 4700.0
+    assert [b.pull_up_ohm for b in report.summary.bias] == [4700.0]
 
 
 @pytest.mark.parametrize("plan_path", PLANS, ids=lambda p: p.stem)
@@ -127,14 +127,13 @@ def test_the_by_the_book_sample_holds_every_rule():
 def test_irrigation_fixes_and_bill_name_one_bias():
     # The unit-load fix, the bias fix and the bill of materials name the same bias network (one joint choice).
     report = check_plan(json.loads((SAMPLES / "irrigation-main-valves.json").read_text(encoding="utf-8")))
-    bias = report.advice.plan.bias
-    assert bias is not None
+    (bias,) = report.advice.plan.bias
     fixes = {f.rule_id: f.fix for f in report.findings if f.node is None and f.fix}
     wanted = f"make it {bias.pull_up_ohm:g} Ω / {bias.pull_down_ohm:g} Ω"
     assert wanted in fixes["bias.idle_level"] and wanted in fixes["load.unit_loads"]
     bom = [b for b in report.summary.bom if b.item.startswith("Bias")]
     assert {b.value for b in bom} == {f"{bias.pull_up_ohm:g} Ω"}
-    assert f"{report.summary.bias.idle_v * 1e3:.0f} mV" in bom[0].note
+    assert f"{report.summary.bias[0].idle_v * 1e3:.0f} mV" in bom[0].note
 
 
 def test_fix_sentences_name_no_company():

@@ -11,16 +11,19 @@ part of the product. The netlist models the same differential mode as the engine
   crawl; use the ladder there (the benchmark does).
   (`line_model="ladder"` instead cascades lossless `T` sections with the series resistance lumped between
   them, a check on LTRA itself.)
-- each receiver is R_in = 12 kOhm / UL in parallel with its input capacitance, at the end of its stub;
+- each receiver is its two line networks in series across the pair, 2 x 12 kOhm / UL (TIA-485-A defines the
+  unit load per line), in parallel with its device's input capacitance, at the end of its stub;
 - a parallel terminator is R; an "rc" terminator is R in series with C;
-- the bias network is its differential DC equivalent: pull_up + pull_down across the pair;
+- each bias network is its differential DC equivalent: pull_up + pull_down across the pair;
 - the active driver is a Thevenin source (open_circuit_v behind source_ohm) at the end of its stub, with a
   linear ramp whose 10-90 % time is rise_time_s (so 0-100 % lasts rise_time_s / 0.8), written as PWL;
 - the driving node's own receiver input is left out; a node that may drive but is not driving loads the bus
-  as a receiver; the primary driver, when another node drives, loads the bus with its receiver
-  (12 kOhm / driver.unit_loads, with the plan's default node input capacitance, 20 pF).
+  as a receiver; the primary driver, when another node drives, loads the bus with its own device's receiver.
 
-ngspice is run as `ngspice -b` with a `.control` block that writes the receiver voltages with `wrdata`.
+ngspice is run as `ngspice -b` with a `.control` block that writes the receiver voltages with `wrdata`. LTRA
+interpolates its past waveforms linearly (LININTERP): with its default quadratic interpolation the time step
+collapsed on one netlist (a terminated chain with stubs, 2.4 µs into a 3 µs run) and the run never ended; at a
+step of 1/25 of the edge the two differ far below the agreement asked.
 """
 
 from __future__ import annotations
@@ -35,11 +38,15 @@ from pathlib import Path
 
 import numpy as np
 from pairline.engine.bus import Bus
-from pairline.engine.plan import NodeSpec, input_resistance_ohm
 from pairline.engine.units import SPEED_OF_LIGHT_M_PER_S
 
 NGSPICE = "ngspice"
-PRIMARY_DRIVER_INPUT_CAPACITANCE_F = float(NodeSpec.model_fields["input_capacitance_f"].default)
+LINE_OHM_PER_UNIT_LOAD = 12_000.0  # TIA-485-A: 1 mA at +12 V on one line, the other at 0 V
+
+
+def _receiver_ohm(unit_loads: float) -> float:
+    """A receiver across the pair: its A and B line networks in series."""
+    return 2.0 * LINE_OHM_PER_UNIT_LOAD / unit_loads
 
 
 def ngspice_path() -> str | None:
@@ -77,8 +84,7 @@ class _Circuit:
         positions = {0.0, plan.trunk_length_m, plan.driver.position_m}
         positions.update(n.position_m for n in plan.nodes)
         positions.update(t.position_m for t in plan.terminations)
-        if plan.bias is not None:
-            positions.add(plan.bias.position_m)
+        positions.update(b.position_m for b in plan.bias)
         self.trunk_positions = sorted(positions)
         self.trunk_node = {p: f"t{i}" for i, p in enumerate(self.trunk_positions)}
         for i in range(len(self.trunk_positions) - 1):
@@ -120,7 +126,7 @@ def _line_elements(bus: Bus, sections: list[_Section], line_model: str, max_sect
         elif line_model == "ltra":
             out.append(
                 f".model ltra{k} LTRA R={_fmt(r_loop_ohm_per_m)} L={_fmt(z0 / v_m_per_s)} G=0 "
-                f"C={_fmt(1.0 / (z0 * v_m_per_s))} LEN={_fmt(sec.length_m)}"
+                f"C={_fmt(1.0 / (z0 * v_m_per_s))} LEN={_fmt(sec.length_m)} LININTERP=1"
             )
             out.append(f"O{k} {sec.node_a} 0 {sec.node_b} 0 ltra{k}")
         elif line_model == "ladder":
@@ -185,24 +191,20 @@ def bus_netlist(
     if primary_drives:
         circuit.driver_node = primary_end
     else:
-        _receiver(
-            lines,
-            "drv",
-            primary_end,
-            input_resistance_ohm(drv.unit_loads),
-            PRIMARY_DRIVER_INPUT_CAPACITANCE_F,
-        )
+        own = bus.driver_device
+        _receiver(lines, "drv", primary_end, _receiver_ohm(own.unit_loads), own.input_capacitance_f)
     known = {plan.driver.name}
     for i, node in enumerate(plan.nodes):
         known.add(node.name)
         end = circuit.stub_end(f"n{i}", node.position_m, node.stub_length_m)
         circuit.receiver_nodes[node.name] = end
         if node.name == circuit.driver_name:
-            if node.role != "transceiver":
+            if not node.may_drive:
                 raise ValueError(f"node '{node.name}' is a receiver and cannot drive")
             circuit.driver_node = end
             continue  # its own receiver input is left out while it drives, as in the engine
-        _receiver(lines, f"n{i}", end, input_resistance_ohm(node.unit_loads), node.input_capacitance_f)
+        device = bus.devices[node.name]
+        _receiver(lines, f"n{i}", end, _receiver_ohm(device.unit_loads), device.input_capacitance_f)
     if circuit.driver_name not in known:
         raise ValueError(f"unknown driver name {circuit.driver_name!r}")
     for k, term in enumerate(plan.terminations):
@@ -212,9 +214,9 @@ def bus_netlist(
             lines.append(f"CT{k} tc{k} 0 {_fmt(term.capacitance_f)}")
         else:
             lines.append(f"RT{k} {tap} 0 {_fmt(term.resistance_ohm)}")
-    if plan.bias is not None:
-        r_bias = plan.bias.pull_up_ohm + plan.bias.pull_down_ohm
-        lines.append(f"RB {circuit.trunk_node[plan.bias.position_m]} 0 {_fmt(r_bias)}")
+    for k, bias in enumerate(plan.bias):
+        r_bias = bias.pull_up_ohm + bias.pull_down_ohm
+        lines.append(f"RB{k} {circuit.trunk_node[bias.position_m]} 0 {_fmt(r_bias)}")
     if max_step_s is None:
         max_step_s = ramp_s / 25.0
     if source_points is None:

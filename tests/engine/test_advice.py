@@ -73,7 +73,7 @@ def test_building_the_advice_never_breaks_the_terminator_it_sized():
     # The bill of materials buys exactly the advised plan's parts.
     bom_ohms = {b.value for b in report.summary.bom if b.item.startswith(("Terminator resistor", "Bias"))}
     plan_ohms = {f"{t.resistance_ohm:g} Ω" for t in report.advice.plan.terminations}
-    plan_ohms |= {f"{report.advice.plan.bias.pull_up_ohm:g} Ω"}
+    plan_ohms |= {f"{b.pull_up_ohm:g} Ω" for b in report.advice.plan.bias}
     assert bom_ohms == plan_ohms
 
 
@@ -89,8 +89,8 @@ def test_a_terminator_sized_for_a_bias_that_moves_away_is_resized():
         bit_rate_bps=19_200,
     )
     report = check_plan(doc)
-    bias = report.advice.plan.bias
-    assert bias is not None and bias.position_m != 0.0
+    (bias,) = report.advice.plan.bias
+    assert bias.position_m != 0.0
     at_zero = [t for t in report.advice.plan.terminations if t.position_m == 0.0]
     # Source: TI SLLA272: R_T = Z0 = 120 Ohm with nothing else lumped at the end.
     assert [t.resistance_ohm for t in at_zero] == [120.0]
@@ -124,15 +124,14 @@ def test_one_answer_to_how_many_more_receivers():
     # Twelve 1 UL controllers and no bias: the advice adds one, and the spare capacity is counted with it, not
     # before it. Source: TIA-485-A 32 UL; TI SLLA272: a bias of R counts 12 kOhm / R unit loads.
     report = check_plan(_doc())
-    bias = report.advice.plan.bias
-    assert bias is not None
+    (bias,) = report.advice.plan.bias
     spare = 32.0 - (12.0 + 12_000.0 / bias.pull_up_ohm + report.bus.driver.unit_loads)
     assert report.capacity.spare_unit_loads == pytest.approx(spare, abs=1e-9)
     one_ul = next(c for c in report.capacity.classes if c.label == "1 UL")
     advised = build_bus(report.advice.plan)
 
     def with_more(count):
-        more = NodeSpec(name="more", position_m=300.0, unit_loads=1.0)
+        more = NodeSpec(name="more", position_m=300.0, device={"class_key": "slew-2500ns", "unit_loads": 1.0})
         nodes = [*report.advice.plan.nodes, *[more.model_copy(update={"name": f"more-{i}"}) for i in range(count)]]
         return build_bus(report.advice.plan.model_copy(update={"nodes": nodes}))
 
@@ -162,7 +161,7 @@ def test_a_bias_that_fits_mid_trunk_is_found_not_declared_impossible():
             if _load_rules_hold(bus):
                 found.append((position, r))
     assert found, "the scenario must have a fitting pair"
-    assert "bias.idle_level" not in unmet and report.advice.plan.bias is not None
+    assert "bias.idle_level" not in unmet and report.advice.plan.bias
 
 
 def test_highest_bit_rate_has_no_cliff_when_stubs_are_added():
@@ -329,5 +328,5 @@ def test_a_bias_weaker_than_a_plan_may_name_is_advised_at_the_weakest_it_may():
         "bias": {"pull_up_ohm": 10.0, "pull_down_ohm": 10.0},
     }
     advice = report_to_dict(check_plan(load_plan(doc)))["advice"]
-    assert advice["plan"]["bias"]["pull_up_ohm"] == pytest.approx(10e6)
-    assert load_plan(advice["plan"]).bias.pull_down_ohm == pytest.approx(10e6)
+    assert advice["plan"]["bias"][0]["pull_up_ohm"] == pytest.approx(10e6)
+    assert load_plan(advice["plan"]).bias[0].pull_down_ohm == pytest.approx(10e6)

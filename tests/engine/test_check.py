@@ -40,6 +40,8 @@ ALL_RULE_IDS = {
     "signal.dc_level",
     "bias.idle_level",
     "common_mode.range",
+    "common_mode.ground_current",
+    "common_mode.shield",
     "length.rate_rule",
     "length.loss",
     "power.resistor",
@@ -122,7 +124,8 @@ def test_summary_advises_terminators_at_both_ends_with_ratings():
     # Source: TI SLLA272, R_T = Z0 = 120 Ohm for the 120 Ohm cable: with the bias moved to mid-trunk nothing else
     # is lumped at either end, so both ends take 120 Ohm.
     assert [t.resistance_ohm for t in summary.terminators] == [120.0, 120.0]
-    assert report.advice.plan.bias is not None and 0.0 < report.advice.plan.bias.position_m < 1000.0
+    (bias,) = report.advice.plan.bias
+    assert 0.0 < bias.position_m < 1000.0
     for t in summary.terminators:
         # common practice: P = V^2 / R with the 4 V open-circuit driver, the resistor 5 % low on a supply 5 % high
         # (16 / 114 x 1.1025 = 0.155 W), bought at twice that: 1/2 W.
@@ -140,12 +143,12 @@ def test_summary_rs422_advice_is_the_far_end_only():
     summary = check_plan(doc).summary
     # Source: National Semiconductor AN-903, single driver at one end: terminate the far end, 100 Ohm cable.
     assert [(t.position_m, t.resistance_ohm) for t in summary.terminators] == [(1000.0, 100.0)]
-    assert summary.bias is None
+    assert summary.bias == ()
 
 
 def test_summary_bias_holds_the_idle_bus_above_threshold():
-    bias = check_plan(RS485).summary.bias
-    assert bias is not None and bias.pull_up_ohm == bias.pull_down_ohm
+    (bias,) = check_plan(RS485).summary.bias
+    assert bias.pull_up_ohm == bias.pull_down_ohm
     # Source: TI SLLA272 / B&B note arithmetic R_B,max = (R_eq/2)(V_S/V_min - 1) = 720 Ohm for 60 Ohm, 5 V, 200 mV.
     assert bias.pull_up_ohm <= 720.0
     # Source: TIA-485-A receiver threshold 200 mV, held even at the worst corner of the tolerances.
@@ -174,14 +177,13 @@ def test_bill_of_materials_lists_terminators_bias_cable_and_transceivers():
     # common practice: trunk 1000 m + stubs (1 + 3 m) = 1004 m, ordered with 10 % spare and rounded up: 1105 m.
     cable = next(b for b in bom if b.item.startswith("Cable"))
     assert cable.value == "1105 m" and "10%" in cable.note and "24 AWG" in cable.item
-    # One driver; the nodes counted per class: two 1 UL receivers and one 1 UL transceiver.
-    counts = {
-        (b.item.split(" (")[0], b.value): b.quantity for b in bom if "ransceiver" in b.item or b.item == "Receiver"
-    }
+    # One driver; the nodes counted per device: two 1 UL receivers and one 1 UL node that may drive.
+    counts = {(b.item.split(":")[0], b.value.split(",")[0]): b.quantity for b in bom if ":" in b.item}
     assert counts == {
-        ("Driver transceiver: Edge 100 ns", "0.25 UL"): 1,
+        ("Driver transceiver", "0.25 UL"): 1,
         ("Receiver", "1 UL"): 2,
-        ("Transceiver", "1 UL"): 1,
+        ("Transceiver (may drive)", "1 UL"): 1,
+        ("Cable", "1105 m"): 1,
     }
     assert all(b.rating for b in bom)
 
@@ -206,7 +208,8 @@ def test_bad_document_raises_with_field_path():
 
 
 def test_plan_built_without_cross_field_checks_is_refused():
-    plan = BusPlan.model_validate(_doc(nodes=[{"name": "beyond", "position_m": 1500.0}]))
+    doc = plan_to_dict(load_plan(RS485)) | {"nodes": [{"name": "beyond", "position_m": 1500.0}]}
+    plan = BusPlan.model_validate(doc)
     with pytest.raises(BusInputError) as err:
         check_plan(plan)
     assert err.value.problems[0].field == "nodes.0.position_m"
@@ -237,25 +240,25 @@ def test_summary_advises_no_bias_when_no_pair_fits_the_unit_load_budget():
     bias_finding = next(f for f in report.findings if f.rule_id == "bias.idle_level")
     # 31 x 1 UL + the driver's 1/8 UL leave 0.875 UL: each resistor >= 12 kOhm / 0.875 = 13.7 kOhm (TI SLLA272).
     assert "No pull-up / pull-down pair" in bias_finding.fix and "at least 13714 Ω" in bias_finding.fix
-    assert report.summary.bias is None
-    assert "failsafe thresholds" in report.summary.bias_note
+    assert report.summary.bias == ()
+    assert "idle-bus failsafe receivers" in report.summary.bias_note
     assert not any("Bias" in item.item for item in report.summary.bom)
     assert report_to_dict(report)["summary"]["bias_note"] == report.summary.bias_note
 
 
 def test_summary_bias_never_breaks_the_load_rules_it_is_checked_by():
     # Source: TIA-485-A (32 UL, 54 Ohm): the advised bus, bias included, must not break the loading rules.
-    from pairline.engine.bus import Bus
+    from pairline.engine.bus import build_bus
     from pairline.engine.rules.loads import check_driver_load, check_unit_loads
 
     for ul in (1.0, 0.5, 0.25, 0.125):
         report = check_plan(_full_bus_doc(ul))
-        b = report.summary.bias
-        if b is None:
+        if not report.summary.bias:
             continue
+        (b,) = report.summary.bias
         advised = plan_to_dict(report.plan)
-        advised["bias"] = {"position_m": b.position_m, "pull_up_ohm": b.pull_up_ohm, "pull_down_ohm": b.pull_down_ohm}
-        bus = Bus(plan=load_plan(advised), cable=report.bus.cable, driver=report.bus.driver)
+        advised["bias"] = [{"position_m": b.position_m, "pull_up_ohm": b.pull_up_ohm, "pull_down_ohm": b.pull_down_ohm}]
+        bus = build_bus(load_plan(advised))
         for f in check_unit_loads(bus) + check_driver_load(bus):
             assert f.verdict is not Verdict.BREAKS, (ul, f.rule_id, f.value)
 

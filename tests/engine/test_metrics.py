@@ -98,7 +98,7 @@ def test_too_fast_for_the_line_closes_the_eye():
 def test_every_driver_gets_metrics_equal_to_its_own_run():
     # Source: linearity; batching drivers only stacks independent solves. Node "far" may drive (RS-485).
     doc = _line(40.0, 120.0).plan.model_dump(mode="json")
-    doc["nodes"][1]["role"] = "transceiver"
+    doc["nodes"][1]["may_drive"] = True
     bus = build_bus(load_plan(doc))
     both = driver_metrics(bus)
     assert tuple(both) == ("driver", "far")
@@ -108,9 +108,9 @@ def test_every_driver_gets_metrics_equal_to_its_own_run():
         assert a.eye_height_v == pytest.approx(b.eye_height_v, abs=1e-6)  # volts
         assert a.overshoot_v == pytest.approx(b.overshoot_v, abs=1e-6)  # volts
     # Source: closed form, the far node drives through its own terminal into the 120 ohm terminator, with the
-    # listening primary driver's receiver (12 kOhm / 0.25 UL, TIA-485-A unit load) across the lossless line:
-    # V = V_oc R / (40 + R), R = 120 || 48 kOhm.
-    r_load = 1.0 / (1.0 / 120.0 + 1.0 / 48_000.0)
+    # listening primary driver's receiver (2 x 12 kOhm / 0.25 UL across the pair, TIA-485-A unit load per line)
+    # across the lossless line: V = V_oc R / (40 + R), R = 120 || 96 kOhm.
+    r_load = 1.0 / (1.0 / 120.0 + 1.0 / 96_000.0)
     assert both["far"][1].amplitude_v == pytest.approx(2.0 * r_load / (40.0 + r_load), rel=1e-6)
 
 
@@ -129,9 +129,10 @@ def test_settled_level_is_one_polarity_and_the_eye_spans_both():
         )
     )
     (rx,) = receiver_metrics(bus)
-    # Source: closed form, DC divider V_oc R_in / (R_s + R_loop + R_in) with R_in = 12 kOhm / 0.25 UL = 48 kOhm
-    # (TIA/EIA-485-A unit load) and R_loop = 2 * 12 m * 0.0842 Ohm/m (ASTM B258 24 AWG).
-    settled_v = 4.0 * 48_000.0 / (48_000.0 + 40.0 + 2.0 * 12.0 * 0.0842)
+    # Source: closed form, DC divider V_oc R_in / (R_s + R_loop + R_in) with R_in = 2 x 12 kOhm / 0.25 UL = 96 kOhm
+    # across the pair (TIA/EIA-485-A unit load, 12 kOhm per line) and R_loop = 2 * 12 m * 0.0842 Ohm/m (ASTM B258
+    # 24 AWG).
+    settled_v = 4.0 * 96_000.0 / (96_000.0 + 40.0 + 2.0 * 12.0 * 0.0842)
     assert rx.amplitude_v == pytest.approx(settled_v, rel=1e-4)
     assert rx.min_sample_v == pytest.approx(settled_v, abs=2e-3)  # volts: 1200 bit/s settles long before mid-bit
     # Source: definition of the inner eye with 1 -> +V and 0 -> -V: a settled eye is 2 x the settled level.

@@ -97,7 +97,7 @@ def test_no_bias_on_rs485_breaks_and_names_failsafe_receivers():
     # ch. 7: receivers with shifted (failsafe) thresholds need no bias.
     finding = check_failsafe_bias(_bus())[0]
     assert finding.verdict is Verdict.BREAKS and finding.value == 0.0 and finding.limit == pytest.approx(0.2)
-    assert "failsafe" in finding.fix and "failsafe thresholds" in finding.detail
+    assert "idle-bus failsafe receivers" in finding.fix and "need bias" in finding.detail
 
 
 def test_e24_value_below_the_limit():
@@ -178,4 +178,4 @@ def test_crowded_terminated_bus_gets_failsafe_or_rc_advice():
     assert size_bias(bus, 0.0).nominal_max_ohm < 720.0
     fix = check_failsafe_bias(bus)[0].fix
     assert "no pull-up / pull-down pair fits" in fix
-    assert "failsafe thresholds" in fix and "RC terminators" in fix
+    assert "idle-bus failsafe receivers" in fix and "RC terminators" in fix

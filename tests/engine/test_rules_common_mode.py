@@ -88,9 +88,14 @@ def test_small_breaking_offset_may_use_extended_common_mode_transceivers():
 
 
 def test_large_offsets_name_an_isolation_class_and_never_extended_common_mode():
-    # from memory: transceiver isolation classes 2.5 kVrms (basic) and 5 kVrms (reinforced).
+    # Source: D. Lohbeck, "Understanding isolator standards and certification", EDN 2016: above 30 Vrms a voltage is
+    # hazardous and the barrier to touchable circuits must be reinforced; ADI FAQ "What is isolation rating?": 2.5
+    # kVrms is a common UL 1577 rating (basic); 5 kVrms the reinforced class (from memory).
+    fix_28 = _findings([28.0])["n0"].fix
+    assert "2.5 kVrms" in fix_28 and "basic" in fix_28 and "extended common-mode" not in fix_28
     fix_300 = _findings([300.0])["n0"].fix
-    assert "2.5 kVrms" in fix_300 and "extended common-mode" not in fix_300
+    assert "reinforced" in fix_300 and "5 kVrms" in fix_300 and "fibre" in fix_300
+    assert "extended common-mode" not in fix_300
     fix_800 = _findings([800.0])["n0"].fix
     assert "5 kVrms" in fix_800 and "extended common-mode" not in fix_800
     fix_5000 = _findings([5000.0])["n0"].fix

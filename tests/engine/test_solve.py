@@ -5,12 +5,15 @@ import pytest
 import skrf
 from pairline.engine.bus import Bus, build_bus
 from pairline.engine.line import characteristic_impedance_ohm, propagation_constant_per_m
-from pairline.engine.plan import BusInputError, input_resistance_ohm, load_plan
+from pairline.engine.plan import BusInputError, load_plan
 from pairline.engine.solve import dc_transfer, solve_bus
 from pairline.engine.units import SPEED_OF_LIGHT_M_PER_S
 from skrf.circuit import Circuit
 from skrf.media import DefinedGammaZ0
 
+# Source: TIA-485-A defines the unit load per line (1 mA at +12 V, 12 kOhm); across the pair a receiver is its two
+# line networks in series, 24 kOhm per unit load.
+RX_OHM_PER_UL = 24_000.0
 LOSSLESS = {
     "class_key": None,
     "z0_ohm": 120.0,
@@ -68,7 +71,7 @@ def test_dc_solve_is_the_resistive_divider():
     # Source: closed form, Ohm's law: V = V_oc * R_load / (R_s + R_loop + R_load), R_loop = 2 * R' * l.
     cable = dict(LOSSLESS, resistance_ohm_per_m=0.0842)
     bus = _bus(cable=cable, nodes=[{"name": "far", "position_m": 100.0, "unit_loads": 1.0}])
-    load = 1.0 / (1.0 / 120.0 + 1.0 / 12_000.0)
+    load = 1.0 / (1.0 / 120.0 + 1.0 / RX_OHM_PER_UL)
     expected = load / (120.0 + 2 * 0.0842 * 100.0 + load)
     np.testing.assert_allclose(dc_transfer(bus)[0, 0], expected, rtol=1e-12)
 
@@ -129,7 +132,7 @@ def _skrf_transfer(bus: Bus, f: np.ndarray, driver_name: str | None = None) -> n
         {0.0, plan.trunk_length_m, plan.driver.position_m}
         | {n.position_m for n in plan.nodes}
         | {t.position_m for t in plan.terminations}
-        | ({plan.bias.position_m} if plan.bias else set())
+        | {b.position_m for b in plan.bias}
     )
     junctions: dict[float, list] = {p: [] for p in junction_pos}
     connections: list[list] = []
@@ -150,14 +153,16 @@ def _skrf_transfer(bus: Bus, f: np.ndarray, driver_name: str | None = None) -> n
     drv_port = Circuit.Port(freq, "drv", z0=z_src)
     if driver_name in (None, plan.driver.name):
         hang(plan.driver.position_m, plan.driver.stub_length_m, [(drv_port, 0)], "drv")
-    else:  # the primary driver listens: its receiver, 20 pF (the plan's default node capacitance)
-        r_drv = _one_port(freq, 1.0 / (1.0 / input_resistance_ohm(bus.driver.unit_loads) + 1j * w * 20e-12), "rd")
+    else:  # the primary driver listens: its receiver, 20 pF (its class's input capacitance)
+        r_own = RX_OHM_PER_UL / bus.driver_device.unit_loads
+        r_drv = _one_port(freq, 1.0 / (1.0 / r_own + 1j * w * 20e-12), "rd")
         hang(plan.driver.position_m, plan.driver.stub_length_m, [(r_drv, 0)], "drv")
     ports = []
     for i, node in enumerate(plan.nodes):
-        r_in = input_resistance_ohm(node.unit_loads)
+        device = bus.devices[node.name]
+        r_in = RX_OHM_PER_UL / device.unit_loads
         port = Circuit.Port(freq, f"rx{i}", z0=r_in)
-        cap = _one_port(freq, 1.0 / (1j * w * node.input_capacitance_f), f"cin{i}")
+        cap = _one_port(freq, 1.0 / (1j * w * device.input_capacitance_f), f"cin{i}")
         # the driving node's own receiver input is left out of the model while it drives
         items = [(drv_port, 0)] if node.name == driver_name else [(port, 0), (cap, 0)]
         hang(node.position_m, node.stub_length_m, items, f"n{i}")
@@ -165,9 +170,9 @@ def _skrf_transfer(bus: Bus, f: np.ndarray, driver_name: str | None = None) -> n
     for i, term in enumerate(plan.terminations):
         z = term.resistance_ohm + (1.0 / (1j * w * term.capacitance_f) if term.kind == "rc" else 0.0)
         junctions[term.position_m].append((_one_port(freq, z + 0 * w, f"term{i}"), 0))
-    if plan.bias:
-        z_bias = (plan.bias.pull_up_ohm + plan.bias.pull_down_ohm) + 0 * w
-        junctions[plan.bias.position_m].append((_one_port(freq, z_bias + 0j, "bias"), 0))
+    for k, bias in enumerate(plan.bias):
+        z_bias = (bias.pull_up_ohm + bias.pull_down_ohm) + 0 * w
+        junctions[bias.position_m].append((_one_port(freq, z_bias + 0j, f"bias{k}"), 0))
     connections = [items for items in junctions.values()] + connections
     circuit = Circuit(connections)
     s = circuit.network.s
@@ -203,8 +208,8 @@ def test_transceiver_driving_matches_scikit_rf_in_the_same_batch():
     # Source: scikit-rf Circuit as above, with node "mid" driving and the primary driver listening.
     cable = {"class_key": "pair-24awg-120"}
     doc = _tree_bus(cable).plan.model_dump(mode="json")
-    doc["nodes"][1]["role"] = "transceiver"
-    doc["nodes"][3]["role"] = "transceiver"
+    doc["nodes"][1]["may_drive"] = True
+    doc["nodes"][3]["may_drive"] = True
     bus = build_bus(load_plan(doc))
     f = np.geomspace(1e3, 60e6, 23)
     batch = solve_bus(bus, f, driver_names=["driver", "mid", "east"])
@@ -280,7 +285,7 @@ def test_bad_frequency_is_a_clear_error(bad):
 def test_rc_terminator_is_open_and_bias_is_its_series_pair_at_dc():
     # Source: closed form: a capacitor blocks DC, so the RC terminator draws nothing; the bias network across
     # the pair is pull-up + pull-down in series through the supply (TI SLLA272 failsafe biasing). With a
-    # 40 ohm driver: V = V_oc R / (40 + R), R = 12 kOhm (1 UL) || (560 + 560) ohm.
+    # 40 ohm driver: V = V_oc R / (40 + R), R = 24 kOhm (1 UL across the pair) || (560 + 560) ohm.
     bus = _bus(
         cable=dict(LOSSLESS),
         driver={"source_ohm": 40.0, "rise_time_s": 10e-9, "open_circuit_v": 2.0},
@@ -288,7 +293,7 @@ def test_rc_terminator_is_open_and_bias_is_its_series_pair_at_dc():
         terminations=[{"position_m": 100.0, "kind": "rc", "resistance_ohm": 120.0, "capacitance_f": 1e-9}],
         bias={"position_m": 0.0, "pull_up_ohm": 560.0, "pull_down_ohm": 560.0},
     )
-    r_load = 1.0 / (1.0 / 12_000.0 + 1.0 / 1120.0)
+    r_load = 1.0 / (1.0 / RX_OHM_PER_UL + 1.0 / 1120.0)
     np.testing.assert_allclose(dc_transfer(bus)[0, 0], r_load / (40.0 + r_load), rtol=1e-12)
 
 
@@ -296,11 +301,14 @@ def test_rc_terminator_is_open_and_bias_is_its_series_pair_at_dc():
 def test_transfer_between_two_transceivers_is_reciprocal(seed):
     # Source: reciprocity of linear passive networks, Z_ab = Z_ba (Pozar, Microwave Engineering, 4th ed.,
     # sec. 4.2): when the listening terminal is loaded by the same resistance as the driving source
-    # (32 UL = 375 ohm, source 375 ohm), V_b when a drives equals V_a when b drives.
+    # (32 UL = 750 ohm across the pair, source 750 ohm), V_b when a drives equals V_a when b drives.
     doc = _random_tree(seed).plan.model_dump(mode="json")
-    doc["driver"].update(source_ohm=375.0)
+    key = doc["default_device"]
+    doc["driver"]["device"] = {"class_key": key, "source_ohm": RX_OHM_PER_UL / 32.0}
     for i in (1, 4):
-        doc["nodes"][i].update(role="transceiver", unit_loads=32.0, input_capacitance_f=0.0)
+        doc["nodes"][i].update(
+            may_drive=True, device={"class_key": key, "unit_loads": 32.0, "input_capacitance_f": 0.0}
+        )
     bus = build_bus(load_plan(doc))
     a, b = doc["nodes"][1]["name"], doc["nodes"][4]["name"]
     f = np.geomspace(1e3, 30e6, 13)

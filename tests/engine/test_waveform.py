@@ -136,7 +136,7 @@ def test_fast_rate_short_terminated_bus_samples_at_the_dc_levels():
 def test_every_driver_in_one_batch_equals_each_alone():
     # Source: linearity; the batch axis only stacks independent solves.
     doc = probed_line(source_ohm=40.0, far_ohm=120.0).plan.model_dump(mode="json")
-    doc["nodes"][1]["role"] = "transceiver"
+    doc["nodes"][1]["may_drive"] = True
     bus = build_bus(load_plan(doc))
     both = step_responses(bus, ["driver", "far"])
     alone = step_responses(bus, ["far"])

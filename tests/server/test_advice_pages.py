@@ -53,8 +53,8 @@ def test_report_shows_capacity_beside_the_verdict_and_lists_the_changes(client, 
 def test_json_twin_carries_the_advised_plan_and_its_change_list(client, saved_id):
     data = client.get(f"/plans/{saved_id}.json").json()
     advised = load_plan(data["advice"]["plan"])  # a plan document like any other
-    assert len(advised.terminations) == 2 and advised.bias is not None
-    assert advised.bias.pull_up_ohm < 4700.0
+    assert len(advised.terminations) == 2 and len(advised.bias) == 1
+    assert advised.bias[0].pull_up_ohm < 4700.0
     assert data["report"]["advice"]["plan"] == data["advice"]["plan"]
     assert {c["part"] for c in data["report"]["advice"]["changes"]} == {"terminator", "bias"}
     # The fix of the missing-terminator finding names both changes (terminators and the bias they need).

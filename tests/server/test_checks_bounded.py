@@ -16,6 +16,8 @@ from tests.server.conftest import TestClient
 from tests.server.html_dom import parse_html
 from tests.server.test_pages import FIVE_NODE_FORM, PLAN_DOC, assert_problem
 
+FAST_DEVICE = {"class_key": None, "rise_time_s": 0.5e-9, "open_circuit_v": 5.0, "source_ohm": 30.0}
+
 
 def costliest_plan() -> dict:
     """The most the plan model accepts of everything that makes a check slow: 512 nodes of which 32 may drive,
@@ -26,20 +28,15 @@ def costliest_plan() -> dict:
         "standard": "rs485",
         "bit_rate_bps": 50.0,
         "trunk_length_m": trunk_m,
-        "driver": {
-            "name": "head",
-            "transceiver": None,
-            "rise_time_s": 0.5e-9,
-            "open_circuit_v": 5.0,
-            "source_ohm": 30.0,
-        },
+        "format_version": 2,
+        "driver": {"name": "head", "device": FAST_DEVICE},
         "nodes": [
             {
                 "name": f"n{k}",
                 "position_m": trunk_m * (k + 1) / 512,
                 "stub_length_m": 100.0 if k % 7 == 0 else 1.0,
-                "unit_loads": 0.0625,
-                "role": "transceiver" if k < 32 else "receiver",
+                "device": FAST_DEVICE | {"unit_loads": 0.0625},
+                "may_drive": k < 32,
             }
             for k in range(512)
         ],
@@ -72,7 +69,7 @@ def test_the_costliest_plan_is_refused_before_simulating_naming_what_to_change(c
     assert head["allowed"] == {"max": 30.0, "unit": "s"} and "30 s" in head["message"]
     fields = {p["field"]: p for p in resp.json()["problems"]}
     assert fields["test_pattern"]["value"] == 512 and fields["test_pattern"]["allowed"]["max_length"] < 512
-    assert fields["nodes.0.role"]["value"] == 32 and fields["nodes.0.role"]["allowed"]["max"] < 32
+    assert fields["nodes.0.may_drive"]["value"] == 32 and fields["nodes.0.may_drive"]["allowed"]["max"] < 32
     assert fields["nodes"]["allowed"]["max_length"] < 512
     # the editor shows the same refusal as form errors beside the inputs, keeping what was typed
     saved = client.post("/api/plans", json=costliest_plan())
@@ -86,12 +83,12 @@ def test_each_suggested_change_alone_brings_the_estimate_within_the_limit():
     problems = {p.field: p for p in cost_problems(plan, limit_s)}
     fewer_bits = dict(costliest_plan(), test_pattern="01" * (problems["test_pattern"].allowed["max_length"] // 2))
     assert estimated_check_s(check_work(load_plan(fewer_bits))) <= limit_s
-    most = problems["nodes.0.role"].allowed["max"]
+    most = problems["nodes.0.may_drive"].allowed["max"]
     doc = costliest_plan()
     for k, node in enumerate(doc["nodes"]):
-        node["role"] = "transceiver" if k < most else "receiver"
+        node["may_drive"] = k < most
     assert estimated_check_s(check_work(load_plan(doc))) <= limit_s
-    doc["nodes"][most]["role"] = "transceiver"
+    doc["nodes"][most]["may_drive"] = True
     assert estimated_check_s(check_work(load_plan(doc))) > limit_s  # one more would not fit
     assert estimated_check_s(work) > limit_s
 
@@ -151,11 +148,12 @@ def test_a_check_that_runs_past_the_limit_is_a_422_and_its_refusal_is_remembered
 
 
 def test_the_editor_shows_a_refusal_beside_the_inputs(client, monkeypatch):
-    form = FIVE_NODE_FORM | {"test_pattern": "01" * 256, "driver.transceiver": "", "driver.rise_time_s": "0.5 ns"}
+    form = FIVE_NODE_FORM | {"test_pattern": "01" * 256, "default_device": "edge-3ns"}
+    form |= {"driver.device.class_key": "custom", "driver.device.rise_time_s": "0.5 ns"}
     form |= {"bit_rate_bps": "50", "trunk_length_m": "4000", "terminations.1.position_m": "4000"}
-    form |= {"driver.open_circuit_v": "5", "driver.source_ohm": "30"}
+    form |= {"driver.device.open_circuit_v": "5", "driver.device.source_ohm": "30"}
     rows = {f"nodes.{i}.{k}": v for i in range(5, 400) for k, v in (("name", f"x{i}"), ("position_m", str(i * 10)))}
-    roles = {f"nodes.{i}.role": "transceiver" if i < 32 else "receiver" for i in range(400)}
+    roles = {f"nodes.{i}.may_drive": "true" if i < 32 else "false" for i in range(400)}
     monkeypatch.setattr(client.app.state.pool, "run", no_worker)
     resp = client.post("/plans", data=form | rows | roles | {"action": "check"})
     assert resp.status_code == 422

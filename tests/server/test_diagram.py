@@ -72,7 +72,7 @@ def test_each_node_carries_its_verdict_and_a_shortened_label():
 
 def test_parts_at_the_same_place_take_different_lanes():
     drawing = bus_drawing(load_plan(PLAN), {}, "metric")
-    at_zero = [drawing.driver.stub_top_y, drawing.terminators[0].y, drawing.bias.y]
+    at_zero = [drawing.driver.stub_top_y, drawing.terminators[0].y, drawing.bias[0].y]
     assert len(set(at_zero)) == 3
     lanes = assign_lanes([(0.0, 50.0), (10.0, 50.0), (100.0, 5 * CHAR_PX)])
     assert lanes[0] != lanes[1] and lanes[2] == 0

@@ -98,13 +98,15 @@ def test_an_empty_form_says_so_beside_the_node_table_and_keeps_its_blank_rows(cl
 
 def test_the_new_plan_driver_class_suits_the_new_plan_rate(client):
     data = client.get("/plans/new.json").json()
-    key = data["values"]["driver.transceiver"]
+    key = data["values"]["default_device"]
+    assert data["values"]["driver.device.class_key"] == ""  # the driver takes the plan's default class
     rate = float(data["values"]["bit_rate_bps"].split()[0]) * 1e3  # "115.2 kbit/s"
     driver = TRANSCEIVERS[key]
     # common practice: a driver's 10-90 % rise time at most 30 % of a bit, and the slowest class that does,
     # since slower edges reflect less on stubs.
     assert driver.rise_time_s <= 0.3 / rate
-    faster_than_needed = [t for t in TRANSCEIVERS.values() if rate <= t.max_bit_rate_bps < driver.max_bit_rate_bps]
+    plain = [t for t in TRANSCEIVERS.values() if t.failsafe == "none" and not t.isolated]
+    faster_than_needed = [t for t in plain if rate <= t.max_bit_rate_bps < driver.max_bit_rate_bps]
     assert faster_than_needed == []
 
 
@@ -117,7 +119,7 @@ def test_edit_this_draft_returns_the_editor_as_typed(client):
     editor = client.post("/plans", data=hidden)
     assert editor.status_code == 200
     values = _inputs(parse_html(editor.text))
-    for name in ("title", "bit_rate_bps", "nodes.4.name", "nodes.0.stub_length_m", "bias.pull_up_ohm"):
+    for name in ("title", "bit_rate_bps", "nodes.4.name", "nodes.0.stub_length_m", "bias.0.pull_up_ohm"):
         assert values[name] == form[name]
 
 
@@ -132,13 +134,13 @@ def test_a_pasted_twenty_row_table_fills_twenty_node_rows(client):
     values = _inputs(parse_html(resp.text))
     names = [values[f"nodes.{k}.name"] for k in range(20)]
     assert names == [f"probe-{k + 1}" for k in range(20)] and "nodes.20.name" not in values
-    assert values["nodes.19.position_m"] == "360,5" and values["nodes.3.unit_loads"] == "1/2"
+    assert values["nodes.19.position_m"] == "360,5" and values["nodes.3.device.unit_loads"] == "1/2"
     checked = client.post("/plans", data={**fields, **values, "action": "save"}, follow_redirects=False)
     plan = client.get(checked.headers["location"] + ".json").json()["plan"]
     assert len(plan["nodes"]) == 20
     # common practice: "360,5" with a decimal comma is 360.5 m; 1/2 UL is TIA-485-A's half unit load.
     assert plan["nodes"][19]["position_m"] == pytest.approx(360.5, rel=1e-12)
-    assert plan["nodes"][0]["unit_loads"] == 0.5
+    assert plan["nodes"][0]["device"]["unit_loads"] == 0.5
 
 
 def test_pasted_rows_follow_the_rows_already_typed_unless_they_replace_them(client):

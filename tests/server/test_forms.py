@@ -44,9 +44,11 @@ def test_a_plan_survives_the_form_in_either_unit_system(units):
     assert back["nodes"][0]["position_m"] == pytest.approx(original["nodes"][0]["position_m"], rel=1e-6)
     assert back["trunk_length_m"] >= back["terminations"][1]["position_m"]  # equal lengths round alike
     assert back["terminations"][1]["capacitance_f"] == pytest.approx(4.7e-9, rel=1e-12)
-    assert back["nodes"][0]["unit_loads"] == 0.125
-    assert back["nodes"][1]["role"] == "transceiver"
-    assert back["bias"]["pull_up_ohm"] == 620.0
+    assert back["nodes"][0]["device"]["unit_loads"] == 0.125
+    assert back["nodes"][1]["may_drive"] is True
+    assert back["bias"][0]["pull_up_ohm"] == 620.0
+    lengths = {"nodes": back["nodes"], "terminations": back["terminations"], "trunk_length_m": back["trunk_length_m"]}
+    assert back == original | lengths  # the devices, the bias networks and the grounding come back as they were
     assert back["display_units"] == units
 
 
@@ -67,7 +69,8 @@ def test_rows_with_gaps_blank_and_removed_rows_are_renumbered():
         "nodes.0.name": "a",
         "nodes.0.position_m": "10",
         "nodes.2.name": "",  # blank row: dropped
-        "nodes.2.role": "receiver",
+        "nodes.2.may_drive": "false",
+        "nodes.2.device.class_key": "",
         "nodes.5.name": "gone",
         "nodes.5.position_m": "20",
         "nodes.5.remove": "1",
@@ -95,14 +98,30 @@ def test_unreadable_text_is_a_problem_on_its_field_and_kept_for_the_form():
     assert [p.field for p in merged].count("trunk_length_m") == 1
 
 
-def test_bias_is_present_only_when_a_resistor_is_typed():
-    assert parse_form({"bias.position_m": "0"}).doc["bias"] is None
-    assert parse_form({"bias.pull_up_ohm": "1k", "bias.pull_down_ohm": "1k"}).doc["bias"]["pull_up_ohm"] == 1000.0
+def test_bias_networks_are_rows_and_blank_rows_are_none():
+    assert parse_form({"bias.0.position_m": "", "bias.0.supply_v": ""}).doc["bias"] == []
+    fields = {
+        f"bias.{i}.{k}": v for i, p in ((0, "0"), (4, "300")) for k, v in (("position_m", p), ("pull_up_ohm", "1k"))
+    }
+    fields |= {"bias.0.pull_down_ohm": "1k", "bias.4.pull_down_ohm": "2.2k", "bias.4.supply_v": "3.3"}
+    bias = parse_form(fields).doc["bias"]
+    assert [(b["position_m"], b["pull_up_ohm"], b["pull_down_ohm"]) for b in bias] == [
+        (0.0, 1000.0, 1000.0),
+        (300.0, 1000.0, 2200.0),
+    ]
+    assert bias[1]["supply_v"] == 3.3 and "supply_v" not in bias[0]
 
 
-def test_empty_class_select_means_custom_values():
-    doc = parse_form({"cable.class_key": "", "driver.transceiver": ""}).doc
-    assert doc["cable"]["class_key"] is None and doc["driver"]["transceiver"] is None
+def test_class_pickers_blank_custom_and_a_class():
+    doc = parse_form({"cable.class_key": "", "driver.device.class_key": ""}).doc
+    assert doc["cable"]["class_key"] is None and "device" not in doc["driver"]  # the plan's default class
+    doc = parse_form({"driver.device.class_key": "custom", "driver.device.rise_time_s": "1 µs"}).doc
+    assert doc["driver"]["device"] == {"class_key": None, "rise_time_s": 1e-6}
+    doc = parse_form({"driver.device.class_key": "", "driver.device.isolated": "true"}).doc
+    assert doc["driver"]["device"] == {"isolated": True}  # values on the plan's default class
+    row = {"nodes.0.name": "a", "nodes.0.position_m": "5", "nodes.0.device.class_key": "edge-25ns"}
+    node = parse_form(row | {"nodes.0.may_drive": "true", "nodes.0.device.failsafe": "idle_bus"}).doc["nodes"][0]
+    assert node["device"] == {"class_key": "edge-25ns", "failsafe": "idle_bus"} and node["may_drive"] is True
 
 
 def test_switching_units_converts_what_parsed_and_keeps_what_did_not():

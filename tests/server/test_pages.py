@@ -21,20 +21,20 @@ FIVE_NODE_FORM = {
     "cable.class_key": "pair-24awg-120",
     "driver.name": "controller",
     "driver.position_m": "0",
-    "driver.transceiver": "slew-2500ns",
+    "default_device": "slew-2500ns",
     **{f"nodes.{i}.name": f"valve-{i + 1}" for i in range(5)},
     **{f"nodes.{i}.position_m": str(80 * (i + 1)) for i in range(5)},
     **{f"nodes.{i}.stub_length_m": "1" for i in range(5)},
-    **{f"nodes.{i}.role": "receiver" for i in range(5)},
+    **{f"nodes.{i}.may_drive": "false" for i in range(5)},
     "terminations.0.position_m": "0",
     "terminations.0.kind": "parallel",
     "terminations.0.resistance_ohm": "120",
     "terminations.1.position_m": "400",
     "terminations.1.kind": "parallel",
     "terminations.1.resistance_ohm": "120",
-    "bias.position_m": "0",
-    "bias.pull_up_ohm": "620",
-    "bias.pull_down_ohm": "620",
+    "bias.0.position_m": "0",
+    "bias.0.pull_up_ohm": "620",
+    "bias.0.pull_down_ohm": "620",
 }
 PLAN_DOC = {
     "title": "Bench bus",
@@ -100,11 +100,19 @@ def test_new_plan_editor_has_inputs_named_by_plan_path(client):
         "bit_rate_bps",
         "trunk_length_m",
         "cable.z0_ohm",
-        "driver.rise_time_s",
+        "default_device",
+        "driver.device.class_key",
+        "driver.device.rise_time_s",
+        "driver.device.threshold_high_v",
         "nodes.0.stub_length_m",
+        "nodes.0.device.class_key",
+        "nodes.4.may_drive",
         "nodes.4.ground_offset_v",
         "terminations.1.resistance_ohm",
-        "bias.pull_up_ohm",
+        "bias.0.pull_up_ohm",
+        "grounding.signal_ground",
+        "grounding.ground_series_ohm",
+        "grounding.shield",
         "display_units",
     ):
         assert name in names
@@ -352,7 +360,7 @@ def test_editor_buttons_add_rows_and_switch_units_without_javascript(client):
 
 
 def test_a_failing_bus_is_a_page_not_an_error(client):
-    form = FIVE_NODE_FORM | {"nodes.0.stub_length_m": "60", "driver.transceiver": "edge-3ns"}
+    form = FIVE_NODE_FORM | {"nodes.0.stub_length_m": "60", "driver.device.class_key": "edge-3ns"}
     resp = client.post("/plans", data=form | {"action": "check"})
     assert resp.status_code == 200
     dom = parse_html(resp.text)
@@ -406,7 +414,7 @@ def test_a_feet_plan_reads_in_feet_everywhere_and_edits_with_rounded_values(clie
     form = parse_html(client.get(f"/plans/{plan_id}/edit").text)
     # Source: 1 ft = 0.3048 m exactly: 100 m = 328.0839895 ft, shown to 6 significant digits.
     assert form.find("input", name="trunk_length_m").attrs["value"] == "328.084"
-    assert form.find("input", name="nodes.0.unit_loads").attrs["value"] == "1/3"
+    assert form.find("input", name="nodes.0.device.unit_loads").attrs["value"] == "1/3"
     csv_text = client.get(f"/plans/{plan_id}/bom.csv").content.decode("utf-8-sig")
     # Source: 1 ft = 0.3048 m exactly: the terminators at 0 m and 100 m sit at 0 ft and 328 ft (3 digits).
     assert "at 0 ft and 328 ft" in csv_text and not re.search(r"\d m\b", csv_text)
@@ -439,8 +447,15 @@ def test_root_twin_and_static_files_are_served(client):
 
 def test_blank_node_cells_show_what_blank_means(client):
     dom = parse_html(client.get("/plans/new").text)
-    assert dom.find("input", name="nodes.0.unit_loads").attrs["placeholder"] == "1"
-    assert dom.find("input", name="nodes.0.input_capacitance_f").attrs["placeholder"] == "20 pF"
+    picker = dom.find("select", name="nodes.0.device.class_key")
+    assert picker.find_all("option")[0].attrs["value"] == "" and "default" in picker.find_all("option")[0].text()
+    default_key = client.get("/plans/new.json").json()["values"]["default_device"]
+    # Source: the library's own figures of the default class, which a blank device value takes.
+    from pairline.engine.library import TRANSCEIVERS
+
+    ul = f"{TRANSCEIVERS[default_key].unit_loads:g}"
+    assert dom.find("input", name="driver.device.unit_loads").attrs["placeholder"] == ul
+    assert dom.find("input", name="driver.device.input_capacitance_f").attrs["placeholder"] == "20 pF"
     assert dom.find("input", name="cable.z0_ohm").attrs["placeholder"] == "120 Ω"
 
 

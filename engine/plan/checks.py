@@ -1,0 +1,273 @@
+"""Checks that involve more than one field of a plan document (version 2), run on the raw document so they are
+reported alongside the field checks: positions past the trunk end, names used twice, an RC terminator without
+its capacitor, unknown cable or device classes, a threshold window that is not a window, isolation without a
+rating, a node that may drive on an RS-422 line, a node of its own values that may drive without an edge time."""
+
+from collections.abc import Callable
+from typing import Any
+
+from pairline.engine.library import CABLES, STANDARD_MINIMUM, TRANSCEIVERS, TransceiverClass
+from pairline.engine.plan.model import DEFAULT_DEVICE, MAX_NODES, MIN_TRUNK_M, BusPlan, CableSpec
+from pairline.engine.plan.problems import (
+    Problem,
+    allowed_of,
+    field_info,
+    finite_float,
+    range_text,
+    row_label,
+    short,
+    value_text,
+)
+
+PastEnd = Callable[[str, str, float | None], None]
+
+
+def num(obj: Any, key: str, default: float | None = None) -> float | None:
+    """A finite number from a raw dict, or the default when absent or not a number (field checks report it)."""
+    raw = obj.get(key, default) if isinstance(obj, dict) else default
+    if isinstance(raw, bool) or not isinstance(raw, int | float):
+        return None
+    return finite_float(raw)
+
+
+def sub(obj: dict[str, Any], key: str) -> dict[str, Any]:
+    raw = obj.get(key)
+    return raw if isinstance(raw, dict) else {}
+
+
+def items(obj: Any, key: str) -> list[Any]:
+    raw = obj.get(key) if isinstance(obj, dict) else None
+    return raw if isinstance(raw, list) and len(raw) <= MAX_NODES else []
+
+
+def past_end_check(data: dict[str, Any], problems: list[Problem]) -> PastEnd:
+    """A function that reports a position past the trunk end."""
+    length = num(data, "trunk_length_m")
+
+    def past_end(path: str, label: str, position_m: float | None) -> None:
+        if length is not None and length >= MIN_TRUNK_M and position_m is not None and position_m > length:
+            problems.append(
+                Problem(
+                    path,
+                    label,
+                    position_m,
+                    {"min": 0.0, "max": length, "unit": "m"},
+                    f"{label} is at {position_m:g} m, past the trunk end at {length:g} m "
+                    f"(trunk_length_m); allowed 0 to {length:g} m.",
+                )
+            )
+
+    return past_end
+
+
+def shared_problems(data: dict[str, Any], past_end: PastEnd) -> list[Problem]:
+    """Checks both format versions share: names, node and terminator positions, RC capacitors, the cable class."""
+    problems: list[Problem] = []
+    driver = sub(data, "driver")
+    past_end("driver.position_m", "Driver position", num(driver, "position_m", 0.0))
+    driver_name = driver.get("name", "driver")
+    names: dict[str, str] = {driver_name: "the driver"} if isinstance(driver_name, str) else {}
+    for i, node in enumerate(items(data, "nodes")):
+        if not isinstance(node, dict):
+            continue
+        name = node.get("name")
+        shown = f" ('{name}')" if isinstance(name, str) else ""
+        past_end(f"nodes.{i}.position_m", f"Node {i + 1}{shown} position", num(node, "position_m"))
+        if isinstance(name, str) and name in names:
+            problems.append(
+                Problem(
+                    f"nodes.{i}.name",
+                    f"Node {i + 1} name",
+                    name,
+                    {"rule": "unique among the driver and all nodes"},
+                    f"Node {i + 1} name '{name}' is already used by {names[name]}; every node needs its own name.",
+                )
+            )
+        elif isinstance(name, str):
+            names[name] = f"node {i + 1}"
+    for i, term in enumerate(items(data, "terminations")):
+        if not isinstance(term, dict):
+            continue
+        past_end(f"terminations.{i}.position_m", f"Terminator {i + 1} position", num(term, "position_m"))
+        if term.get("kind") == "rc" and term.get("capacitance_f") is None:
+            problems.append(
+                Problem(
+                    f"terminations.{i}.capacitance_f",
+                    f"Terminator {i + 1} capacitance",
+                    None,
+                    {"min": 1e-12, "max": 100e-6, "unit": "F"},
+                    f"Terminator {i + 1} is an RC terminator and needs a capacitance; allowed 1 pF to 100 µF.",
+                )
+            )
+    cable = sub(data, "cable")
+    cable_key = cable.get("class_key", "pair-24awg-120")
+    if isinstance(cable_key, str) and cable_key not in CABLES:
+        problems.append(
+            Problem(
+                "cable.class_key",
+                "Cable class",
+                short(cable_key),
+                {"choices": sorted(CABLES)},
+                f"Cable class '{short(cable_key)}' is not in the library; choose one of "
+                f"{', '.join(sorted(CABLES))}, or leave it empty and enter custom values.",
+            )
+        )
+    if cable_key is None:
+        for key in ("z0_ohm", "velocity_factor", "resistance_ohm_per_m"):
+            if cable.get(key) is None:
+                problems.append(missing_custom("cable", CableSpec.model_fields[key], key, "cable.class_key"))
+    return problems
+
+
+def missing_custom(prefix: str, info: Any, key: str, class_field: str, why: str = "", label: str = "") -> Problem:
+    """A value a custom class needs: "Driver rise time is needed when no class is chosen (...); allowed ..."."""
+    allowed = allowed_of(info)
+    because = why or f"no class is chosen ({class_field} is empty)"
+    shown = label or info.title or key
+    return Problem(
+        f"{prefix}.{key}", shown, None, allowed, f"{shown} is needed when {because}; allowed {range_text(allowed)}."
+    )
+
+
+DEVICE_CHOICES: list[str | None] = [*sorted(TRANSCEIVERS), None]
+
+
+def cross_field_problems(data: dict[str, Any]) -> list[Problem]:
+    """Every cross-field problem of a version-2 document (see the module docstring)."""
+    problems: list[Problem] = []
+    past_end = past_end_check(data, problems)
+    problems += shared_problems(data, past_end)
+    standard = data.get("standard", "rs485")
+    for i, bias in enumerate(items(data, "bias")):
+        if isinstance(bias, dict):
+            past_end(f"bias.{i}.position_m", f"Bias network {i + 1} position", num(bias, "position_m", 0.0))
+    default_key = data.get("default_device", DEFAULT_DEVICE)
+    if not isinstance(default_key, str) or default_key not in TRANSCEIVERS:
+        problems.append(_unknown_class("default_device", "Default device class", default_key))
+        default_key = None
+    problems += _device_problems(data, "driver.device", sub(data, "driver").get("device"), default_key, True)
+    for i, node in enumerate(items(data, "nodes")):
+        if not isinstance(node, dict):
+            continue
+        talks = node.get("may_drive") is True
+        if standard == "rs422" and talks:
+            name = node.get("name")
+            shown = f" ('{name}')" if isinstance(name, str) else ""
+            problems.append(
+                Problem(
+                    f"nodes.{i}.may_drive",
+                    f"Node {i + 1}{shown} may drive",
+                    True,
+                    {"choices": [False], "because": "standard is rs422"},
+                    f"Node {i + 1}{shown} may drive, but an RS-422 bus has one driver and receivers only "
+                    f"(standard); allowed: false. Make it a receiver or choose RS-485.",
+                )
+            )
+        talks = talks and standard == "rs485"
+        problems += _device_problems(data, f"nodes.{i}.device", node.get("device"), default_key, talks)
+    return problems
+
+
+def _unknown_class(path: str, label: str, key: Any) -> Problem:
+    choices = sorted(TRANSCEIVERS)
+    return Problem(
+        path,
+        label,
+        short(key),
+        {"choices": DEVICE_CHOICES},
+        f"{label} '{short(key)}' is not in the library; choose one of {', '.join(choices)}, or give the device's "
+        "own values (class_key null).",
+    )
+
+
+def _device_problems(
+    data: dict[str, Any], prefix: str, raw: Any, default_key: str | None, talks: bool
+) -> list[Problem]:
+    """One device: its class is known, its window is a window, an isolated one has a rating, a driver model is
+    given one way only, and a device of its own values that may drive states its edge time."""
+    if raw is None:
+        return []
+    given: dict[str, Any] = raw if isinstance(raw, dict) else {}
+    key_path = prefix if isinstance(raw, str) else f"{prefix}.class_key"
+    key = raw if isinstance(raw, str) else given.get("class_key", default_key)
+    if not isinstance(raw, str | dict):
+        return []  # the field check reports it
+    loc = tuple(int(p) if p.isdigit() else p for p in prefix.split("."))
+
+    def label(field: str) -> str:
+        info = field_info(BusPlan, (*loc, field))
+        return row_label((*loc, field), data, info.title if info and info.title else field)
+
+    if key is not None and (not isinstance(key, str) or key not in TRANSCEIVERS):
+        return [_unknown_class(key_path, label("class_key"), key)]
+    base: TransceiverClass = TRANSCEIVERS[key] if key is not None else STANDARD_MINIMUM
+    problems: list[Problem] = []
+
+    def value(field: str) -> Any:
+        return given[field] if given.get(field) is not None else getattr(base, field)
+
+    low, high = num({"v": value("threshold_low_v")}, "v"), num({"v": value("threshold_high_v")}, "v")
+    typed = [f for f in ("threshold_high_v", "threshold_low_v") if given.get(f) is not None]
+    if low is not None and high is not None and low >= high:
+        field = typed[0] if typed else "threshold_high_v"
+        problems.append(
+            Problem(
+                f"{prefix}.{field}",
+                label(field),
+                given.get(field, value(field)),
+                {"rule": "threshold_high_v above threshold_low_v", "threshold_low_v": low, "threshold_high_v": high},
+                f"{label(field)}: the window from {value_text(low, 'V')} (low threshold) to {value_text(high, 'V')} "
+                f"(high threshold) is not a window; the high threshold must be above the low one "
+                f"({prefix}.threshold_low_v, {prefix}.threshold_high_v).",
+            )
+        )
+    elif high is not None and value("failsafe") == "idle_bus" and high >= 0.0:
+        field = "threshold_high_v" if given.get("threshold_high_v") is not None else "failsafe"
+        problems.append(
+            Problem(
+                f"{prefix}.{field}",
+                label(field),
+                given.get(field, value(field)),
+                {"max": 0.0, "max_exclusive": True, "unit": "V", "because": "failsafe is idle_bus"},
+                f"{label(field)}: an idle-bus failsafe receiver reads 0 V as a 1, so its high threshold must be below "
+                f"0 V; it is {value_text(high, 'V')} ({prefix}.threshold_high_v). Lower it, or choose failsafe "
+                "none or open_short.",
+            )
+        )
+    if value("isolated") is True and value("isolation_rating_vrms") is None:
+        problems.append(
+            missing_custom(
+                prefix,
+                field_info(BusPlan, (*loc, "isolation_rating_vrms")),
+                "isolation_rating_vrms",
+                "",
+                f"the device is isolated ({prefix}.isolated): the rating decides what ground offset it may stand",
+                label("isolation_rating_vrms"),
+            )
+        )
+    if given.get("output_54_ohm_v") is not None:
+        both = [f for f in ("open_circuit_v", "source_ohm") if given.get(f) is not None]
+        if both:
+            problems.append(
+                Problem(
+                    f"{prefix}.output_54_ohm_v",
+                    label("output_54_ohm_v"),
+                    given["output_54_ohm_v"],
+                    {"rule": "either output_54_ohm_v, or open_circuit_v with source_ohm", "also_given": both},
+                    f"{label('output_54_ohm_v')}: give the driver's output one way, either its minimum into 54 Ω "
+                    f"or its open-circuit voltage with its source resistance, not both ({prefix}."
+                    f"{f' and {prefix}.'.join(both)} are also given).",
+                )
+            )
+    if talks and key is None and given.get("rise_time_s") is None:
+        problems.append(
+            missing_custom(
+                prefix,
+                field_info(BusPlan, (*loc, "rise_time_s")),
+                "rise_time_s",
+                "",
+                "the device is given by its own values and the node may drive",
+                label("rise_time_s"),
+            )
+        )
+    return problems

@@ -1,0 +1,176 @@
+"""Format version 1, read and upgraded: plans saved before devices, bias lists and grounding open unchanged.
+
+A version-1 document is validated by its own schema (so its problems name the fields it has), then upgraded to
+version 2 with the same meaning:
+- the driver's class (and any values it overrode) becomes the driver's device;
+- every node becomes a device of the driver's class (version 1 had every node that may drive drive like the
+  primary driver) with the node's unit loads and input capacitance where they differ from the class; its
+  receiver is plain (no failsafe, +/-200 mV), as version 1 assumed of every receiver; on RS-422 its
+  common-mode range is the standard's -7..+7 V, which version 1 applied to RS-422 receivers;
+- role "transceiver" becomes may_drive true;
+- the one bias network (or none) becomes a list of one (or none); no signal-ground conductor, no shield.
+"""
+
+from typing import Any, Literal
+
+from pairline.engine.library import STANDARD_MINIMUM, TRANSCEIVERS
+from pairline.engine.plan.checks import items, missing_custom, num, past_end_check, shared_problems, sub
+from pairline.engine.plan.model import (
+    DEFAULT_DEVICE,
+    MAX_NODES,
+    MAX_STUB_M,
+    MAX_TRUNK_M,
+    MIN_TRUNK_M,
+    PATTERN_CHARS,
+    BiasSpec,
+    CableSpec,
+    Name,
+    TerminationSpec,
+    _f,
+    _Strict,
+)
+from pairline.engine.plan.problems import Problem, short
+from pydantic import Field
+
+RS422_RECEIVER_RANGE_V = (-7.0, 7.0)  # TIA/EIA-422-B receiver common-mode range, which version 1 applied
+
+
+class DriverSpecV1(_Strict):
+    name: Name = Field("driver", title="Driver name")
+    position_m: float = _f("Driver position", "m", ge=0.0, le=MAX_TRUNK_M, default=0.0)
+    stub_length_m: float = _f("Driver stub length", "m", ge=0.0, le=MAX_STUB_M, default=0.0)
+    transceiver: str | None = Field("edge-100ns", title="Driver class")
+    rise_time_s: float | None = _f("Driver rise time", "s", ge=0.5e-9, le=20e-6, default=None)
+    open_circuit_v: float | None = _f("Driver open-circuit differential voltage", "V", ge=0.1, le=12.0, default=None)
+    source_ohm: float | None = _f("Driver source resistance", "Ω", ge=0.0, le=1000.0, default=None)
+
+
+class NodeSpecV1(_Strict):
+    name: Name = Field(title="Node name")
+    position_m: float = _f("Position", "m", ge=0.0, le=MAX_TRUNK_M)
+    stub_length_m: float = _f("Stub length", "m", ge=0.0, le=MAX_STUB_M, default=0.0)
+    role: Literal["receiver", "transceiver"] = Field(
+        "receiver", title="Role", description="a transceiver may also drive (RS-485)"
+    )
+    # down to a millionth of a unit load (12 GΩ), an ideal probe that draws nothing
+    unit_loads: float = _f("Unit loads", "UL", ge=1e-6, le=32.0, default=1.0)
+    input_capacitance_f: float = _f("Input capacitance", "F", ge=0.0, le=2e-9, default=20e-12)
+    ground_offset_v: float = _f(
+        "Ground offset",
+        "V",
+        ge=-10_000.0,
+        le=10_000.0,
+        default=0.0,
+        description="this node's ground relative to the driver's ground",
+    )
+
+
+class BusPlanV1(_Strict):
+    format: Literal["pairline-bus-plan"] = Field("pairline-bus-plan", title="Format")
+    format_version: Literal[1] = Field(1, title="Format version")
+    title: str = Field("", max_length=120, title="Title")
+    notes: str = Field("", max_length=4000, title="Notes")
+    display_units: Literal["metric", "imperial"] = Field("metric", title="Display units")
+    standard: Literal["rs485", "rs422"] = Field("rs485", title="Standard")
+    bit_rate_bps: float = _f("Bit rate", "bit/s", ge=50.0, le=100e6)
+    supply_v: float = _f("Supply voltage", "V", ge=1.5, le=15.0, default=5.0)
+    trunk_length_m: float = _f("Trunk length", "m", ge=MIN_TRUNK_M, le=MAX_TRUNK_M)
+    cable: CableSpec = Field(default_factory=CableSpec, title="Cable")
+    driver: DriverSpecV1 = Field(default_factory=DriverSpecV1, title="Driver")
+    nodes: list[NodeSpecV1] = Field(min_length=1, max_length=MAX_NODES, title="Nodes")
+    terminations: list[TerminationSpec] = Field(default_factory=list, max_length=16, title="Terminations")
+    bias: BiasSpec | None = Field(None, title="Failsafe bias")
+    test_pattern: str | None = Field(
+        None,
+        min_length=2,
+        max_length=PATTERN_CHARS,
+        pattern=r"^[01]+$",
+        title="Bit pattern",
+        description="0s and 1s; default a pseudo-random run",
+    )
+
+
+def cross_field_problems_v1(data: dict[str, Any]) -> list[Problem]:
+    """The cross-field checks of a version-1 document, on its own fields."""
+    problems: list[Problem] = []
+    past_end = past_end_check(data, problems)
+    problems += shared_problems(data, past_end)
+    if data.get("standard", "rs485") == "rs422":
+        for i, node in enumerate(items(data, "nodes")):
+            if isinstance(node, dict) and node.get("role") == "transceiver":
+                name = node.get("name")
+                shown = f" ('{name}')" if isinstance(name, str) else ""
+                problems.append(
+                    Problem(
+                        f"nodes.{i}.role",
+                        f"Node {i + 1}{shown} role",
+                        "transceiver",
+                        {"choices": ["receiver"], "because": "standard is rs422"},
+                        f"Node {i + 1}{shown} is a transceiver, but an RS-422 bus has one driver and receivers only "
+                        "(standard); make it a receiver or choose RS-485.",
+                    )
+                )
+    if isinstance(data.get("bias"), dict):
+        past_end("bias.position_m", "Bias position", num(data["bias"], "position_m", 0.0))
+    driver = sub(data, "driver")
+    driver_key = driver.get("transceiver", "edge-100ns")
+    if isinstance(driver_key, str) and driver_key not in TRANSCEIVERS:
+        problems.append(
+            Problem(
+                "driver.transceiver",
+                "Driver class",
+                short(driver_key),
+                {"choices": sorted(TRANSCEIVERS)},
+                f"Driver class '{short(driver_key)}' is not in the library; choose one of "
+                f"{', '.join(sorted(TRANSCEIVERS))}, or leave it empty and enter custom values.",
+            )
+        )
+    if driver_key is None:
+        for key in ("rise_time_s", "open_circuit_v", "source_ohm"):
+            if driver.get(key) is None:
+                problems.append(missing_custom("driver", DriverSpecV1.model_fields[key], key, "driver.transceiver"))
+    return problems
+
+
+_DRIVER_VALUES = ("rise_time_s", "open_circuit_v", "source_ohm")
+
+
+def upgrade_v1(v1: dict[str, Any]) -> dict[str, Any]:
+    """A version-1 document as a version-2 document of the same meaning (see the module docstring). Meant for a
+    validated document (BusPlanV1 dumped); one that does not validate is restated as far as it goes, its faulty
+    values kept where version 2 has them, so the editor can show it with version 2's field names."""
+    doc = {key: value for key, value in v1.items() if key not in ("format_version", "driver", "nodes", "bias")}
+    doc["format_version"] = 2
+    drv = v1.get("driver") if isinstance(v1.get("driver"), dict) else {}
+    key = drv.get("transceiver", DEFAULT_DEVICE)
+    base = TRANSCEIVERS.get(key, STANDARD_MINIMUM) if isinstance(key, str) else STANDARD_MINIMUM
+    driven = {k: drv[k] for k in _DRIVER_VALUES if drv.get(k) is not None}
+
+    def device(values: dict[str, Any]) -> Any:
+        return key if key is not None and not values else {"class_key": key, **values}
+
+    doc["default_device"] = key if isinstance(key, str) and key in TRANSCEIVERS else DEFAULT_DEVICE
+    doc["driver"] = {k: drv[k] for k in ("name", "position_m", "stub_length_m") if k in drv} | {
+        "device": device(driven)
+    }
+    rs422 = v1.get("standard") == "rs422"
+    nodes = []
+    for n in v1.get("nodes") if isinstance(v1.get("nodes"), list) else []:
+        if not isinstance(n, dict):
+            nodes.append(n)
+            continue
+        values = dict(driven)
+        for field, class_value in (("unit_loads", base.unit_loads), ("input_capacitance_f", base.input_capacitance_f)):
+            given = n.get(field, NodeSpecV1.model_fields[field].default)
+            if given != class_value:
+                values[field] = given
+        if rs422:
+            values["common_mode_min_v"], values["common_mode_max_v"] = RS422_RECEIVER_RANGE_V
+        node = {k: n[k] for k in ("name", "position_m", "stub_length_m", "ground_offset_v") if k in n}
+        node["device"] = device(values)
+        node["may_drive"] = n.get("role", "receiver") == "transceiver"
+        nodes.append(node)
+    doc["nodes"] = nodes
+    bias = v1.get("bias")
+    doc["bias"] = [bias] if bias else []
+    return doc
