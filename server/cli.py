@@ -1,4 +1,5 @@
-"""Command line: `pairline check PLAN.json [--json]` and `pairline serve [--host] [--port] [--db]`.
+"""Command line: `pairline check PLAN.json [--json]`, `pairline serve [--host] [--port] [--db]` and
+`pairline field PLAN.json CAPTURE.csv` (server/fieldcli.py).
 
 Exit status: 0 when no rule breaks, 1 when at least one rule breaks, 2 when the input cannot be checked
 (unreadable file, bad JSON, or a plan that fails validation; every problem is printed with its field, value
@@ -384,6 +385,9 @@ def build_parser() -> argparse.ArgumentParser:
     serve.add_argument("--port", type=int, default=None, help="TCP port (default 8485)")
     serve.add_argument("--db", default=None, metavar="PATH", help="SQLite file for saved plans (default ./pairline.db)")
     serve.set_defaults(run=run_serve)
+    from pairline.server.fieldcli import add_field_command  # it builds on this module's readers and formats
+
+    add_field_command(commands)
     return parser
 
 
