@@ -45,7 +45,7 @@ REGION_NAMES = ("edge", "reflections after the edge", "settled level")
 class Alignment:
     """How the plan's prediction was laid over the capture: capture = scale * prediction(t - offset) + level."""
 
-    time_offset_s: float  # capture time at which the driver's first edge starts
+    time_offset_s: float  # capture time at which the driver starts sending (its first bit; for one edge, the edge)
     scale: float
     level_offset_v: float
     inverted: bool  # the capture was used upside down (falling edge, or A and B swapped)

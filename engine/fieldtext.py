@@ -186,7 +186,20 @@ def _length(ctx: _Context, key: str) -> _Found:
     trunk, low, high = ctx.span(key, trunk0)
     vf = ctx.bus.cable.velocity_factor
     later_s = 2.0 * abs(trunk - trunk0) / ctx.speed_m_per_s
-    return [Quantity("trunk_length_m", "Trunk length", "m", trunk0, trunk, low, high, True)], Difference(
+    quantities = [
+        Quantity("trunk_length_m", "Trunk length", "m", trunk0, trunk, low, high, True),
+        Quantity(
+            "velocity_factor",
+            "Or: cable velocity factor (the same reflections)",
+            "",
+            vf,
+            vf * trunk0 / trunk,
+            vf * trunk0 / high,
+            vf * trunk0 / low,
+            True,
+        ),
+    ]
+    return quantities, Difference(
         key,
         f"Reflections from the far end arrive up to {time_text(later_s)} {'later' if trunk > trunk0 else 'earlier'} "
         f"than planned: the trunk fits about {ctx.length(trunk)} {ctx.give_or_take(key, trunk0)} "

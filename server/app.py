@@ -134,7 +134,7 @@ def create_app(
     max_body_bytes: int = MAX_BODY_BYTES,
 ) -> FastAPI:
     """The planner app on a SQLite file. `load_samples` puts every valid `samples_dir/*.json` into the store."""
-    from pairline.server.routes import api, pages
+    from pairline.server.routes import api, field, pages
 
     app = FastAPI(title="Pairline", version=ENGINE_VERSION, docs_url=None, redoc_url=None, openapi_url=None)
     app.state.store = PlanStore(Path(db_path))
@@ -143,6 +143,7 @@ def create_app(
         load_sample_buses(app.state.store, samples_dir)
     app.mount("/static", StaticFiles(directory=STATIC_DIR), name="static")
     app.include_router(api.router)
+    app.include_router(field.router)
     app.include_router(pages.router)
 
     @app.exception_handler(StarletteHTTPException)

@@ -128,7 +128,7 @@ def field_text(result: FieldCheck, data: dict[str, Any], args: argparse.Namespac
         f"  Capture: {cap['samples']} samples every {quantity_text(cap['sample_interval_s'], 's')} "
         f"({'A and B' if cap['signal'] == 'lines' else 'A-B'}), noise about {quantity_text(cap['noise_v'], 'V')}; "
         f"probe at {where}; sent: {sent}",
-        f"  Alignment: the plan's first edge starts {quantity_text(a.time_offset_s, 's')} into the capture; level "
+        f"  Alignment: the driver starts sending {quantity_text(a.time_offset_s, 's')} into the capture; level "
         f"scale {a.scale:.3g}, level offset {quantity_text(a.level_offset_v, 'V')}"
         + (" (compared upside down)" if a.inverted else ""),
         "  Residual by region, rms / largest (share of the swing): plan | fitted installation",
