@@ -32,6 +32,9 @@ from pairline.engine.waveform import edge_duration_s, longest_delay_s
 
 MIN_GAIN = 0.2  # fraction of the residual a difference must remove
 MAX_DIFFERENCES = 3
+SWING_ALIKE = 1.1  # a bus difference with the planned driver swing may leave this much more residual
+RIVAL = 1.1  # another candidate within this factor of the chosen one's residual fits about as well
+SWING_TOLERANCE = 0.1  # a fitted driver swing further than this from the plan asks for an explanation
 MEDIUM_WINDOW = 1.0  # candidates are compared averaged over this many edge times
 MEMORY_DELAYS = 8.0  # the plan's window: 3 edge times plus this many longest one-way delays
 LONGEST_STRETCH = 1.6  # the longest installed trunk tried, times the planned one
@@ -156,7 +159,7 @@ def check_capture(plan: BusPlan, capture: Capture, setup: FieldSetup) -> FieldCh
     bounds = _bounds(plan, z0, rise_s, window.offset_s, t_edge, memory_s)
     aligned, scale_v, level_v = _align(fit, window.offset_s, rise_s, t_edge, bounds)
     hypotheses = _hypotheses(plan, setup, z0, t_edge, delay_s, propagation_velocity_m_per_s(bus.cable.velocity_factor))
-    values, best, accepted = _diagnose(fit, aligned, bounds, hypotheses, planned, t_edge)
+    values, best, accepted, rivals = _diagnose(fit, aligned, bounds, hypotheses, planned, t_edge, v_oc)
 
     full = fit.level(0.0)
     predicted = scale_v * fit.unit_response(full, aligned, fit.time_s) + level_v
@@ -174,6 +177,7 @@ def check_capture(plan: BusPlan, capture: Capture, setup: FieldSetup) -> FieldCh
         planned,
         best,
         accepted,
+        rivals,
         left if is_unexplained(rms_v, capture.noise_v, swing_v) else None,
     )
     return FieldCheck(
@@ -229,44 +233,82 @@ def _diagnose(
     hypotheses: list["_Hypothesis"],
     planned: Installed,
     t_edge: float,
-) -> tuple[Values, FitResult, list[str]]:
-    """(fitted values, their result, accepted candidate keys): step 3 of the module docstring."""
+    swing_v: float,
+) -> tuple[Values, FitResult, list[str], dict[str, list[str]]]:
+    """(fitted values, their result, accepted candidate keys, and for each the other explanations that fit
+    about as well): step 3 of the module docstring. When the best fit asks for a driver swing outside its
+    tolerance, a bus difference that explains the capture about as well (within SWING_ALIKE of the residual)
+    with the planned swing is preferred, the swing named as its rival: at some probes a missing terminator and a
+    stronger driver look alike."""
     full = fit.level(0.0)
-    medium = fit.level(MEDIUM_WINDOW * t_edge)
     free = ["time_offset_s", "rise_time_s"]
     values = fit.fit(full, aligned, free, bounds)
     best = fit.result(values, free, bounds)
     accepted: list[str] = []
+    rivals: dict[str, list[str]] = {}
+    search = _Search(fit, bounds, [h for h in hypotheses], planned, t_edge, aligned["rise_time_s"])
     while len(accepted) < MAX_DIFFERENCES:
-        base = fit.fit(medium, values, free, bounds)
-        base_cost = fit.cost(medium, base)
-        trials = []
-        for h in hypotheses:
-            if h.key in accepted:
-                continue
-            trial = base
-            for window, grid, relative in h.scans:
-                level = fit.level(window * t_edge)
-                trial = fit.scan(level, trial, grid, h.realign, relative)
-            if fit.cost(level, trial) > (1.0 - 0.5 * MIN_GAIN) * fit.cost(level, base):
-                continue  # no promise even where the candidates are scanned
-            trial = fit.fit(medium, trial, free + list(h.free), bounds)
-            trials.append((fit.cost(medium, trial), h, trial))
-        found = None
-        for cost, h, trial in sorted(trials, key=lambda item: item[0]):
-            if cost > (1.0 - MIN_GAIN) * base_cost:
-                break
-            trial = fit.fit(full, trial, free + list(h.free), bounds)
-            result = fit.result(trial, free + list(h.free), bounds)
-            if _differs(h.key, result, planned):
-                found = (h, trial, result)
-                break
+        found = search.next_difference(values, free, accepted, None)
+        swing_off = abs(abs(best.open_circuit_v) / swing_v - 1.0) > SWING_TOLERANCE
+        if found is None and swing_off and "open_circuit_v" not in values:
+            found = search.next_difference(values | {"open_circuit_v": swing_v}, free, accepted, best.cost)
+            if found is not None:
+                found[3].append("open_circuit_v")
         if found is None:
             break
-        h, values, best = found
+        h, values, best, found_rivals = found
         accepted.append(h.key)
+        rivals[h.key] = found_rivals
         free += list(h.free)
-    return values, best, accepted
+    return values, best, accepted, rivals
+
+
+@dataclass(frozen=True, slots=True)
+class _Search:
+    fit: FitProblem
+    bounds: Bounds
+    hypotheses: list[_Hypothesis]
+    planned: Installed
+    t_edge: float
+    rise_s: float  # as planned
+
+    def next_difference(
+        self, values: Values, free: list[str], accepted: list[str], ceiling: float | None
+    ) -> tuple[_Hypothesis, Values, FitResult, list[str]] | None:
+        """(candidate, fitted values, result, rivals) for the candidate removing most of the residual that differs
+        from the plan; None if none does. Rivals fit about as well (within RIVAL of its residual).
+
+        ceiling: with the driver's swing held at the plan's, the residual of the fit that had it free; a
+        candidate must come within SWING_ALIKE of it (there is no gain to ask for: the held swing is the base).
+        """
+        fit, medium, full = self.fit, self.fit.level(MEDIUM_WINDOW * self.t_edge), self.fit.level(0.0)
+        # scans start from the planned edge time when the fit so far has bent it to stand in for something else
+        drifted = abs(values["rise_time_s"] / self.rise_s - 1.0) > 0.1
+        start = values | {"rise_time_s": self.rise_s} if drifted else values
+        base = fit.fit(medium, values, free, self.bounds) if ceiling is None else start
+        limit = (1.0 - MIN_GAIN) * fit.cost(medium, base) if ceiling is None else math.inf
+        trials = []
+        for h in self.hypotheses:
+            if h.key in accepted:
+                continue
+            trial = start
+            for window, grid, relative in h.scans:
+                level = fit.level(window * self.t_edge)
+                trial = fit.scan(level, trial, grid, h.realign, relative, self.bounds)
+            if ceiling is None and fit.cost(level, trial) > (1.0 - 0.5 * MIN_GAIN) * fit.cost(level, base):
+                continue  # no promise even where the candidates are scanned
+            trial = fit.fit(medium, trial, free + list(h.free), self.bounds)
+            trials.append((fit.cost(medium, trial), h, trial))
+        trials.sort(key=lambda item: item[0])
+        for cost, h, trial in trials:
+            if cost > limit:
+                break
+            trial = fit.fit(full, trial, free + list(h.free), self.bounds)
+            result = fit.result(trial, free + list(h.free), self.bounds)
+            if _differs(h.key, result, self.planned) and (ceiling is None or result.cost <= SWING_ALIKE * ceiling):
+                rivals = [other.key for c, other, _ in trials if other is not h and c <= RIVAL * cost]
+                return h, trial, result, rivals
+        return None
 
 
 def _half_time_s(time_s: np.ndarray, edge: np.ndarray, settled: float) -> float:
@@ -310,7 +352,7 @@ def _hypotheses(
 ) -> list[_Hypothesis]:
     """The candidate differences and their scans (averaging windows in edge times). Scans of quantities that
     move reflections in time step by a quarter of the averaged edge's length in round-trip time."""
-    stretch_step = 9.0 * t_edge / (4.0 * delay_s)
+    stretch_step = min(9.0 * t_edge / (4.0 * delay_s), 0.05)
     out = [
         _Hypothesis(
             "z0_ohm", ("z0_ohm",), ((2.0, {"z0_ohm": z0 * np.array([0.7, 0.85, 1.0, 1.2, 1.4])}, False),), False
@@ -332,7 +374,7 @@ def _hypotheses(
         planned_siemens = sum(1.0 / t.resistance_ohm for t in here)
         grid = np.unique(np.r_[0.0, 0.5 / z0, 1.0 / z0, 2.0 / z0, planned_siemens])
         out.append(_Hypothesis(key, (key,), ((2.0, {key: grid}, False),), False))
-    step_m = speed_m_per_s * 9.0 * t_edge / 4.0
+    step_m = min(speed_m_per_s * 9.0 * t_edge / 4.0, plan.trunk_length_m / 10.0)
     positions = np.arange(0.0, plan.trunk_length_m + 1e-9, max(step_m, plan.trunk_length_m / 200.0))
     out.append(
         _Hypothesis(

@@ -41,6 +41,7 @@ from pairline.engine.fieldmodel import (
 from pairline.engine.plan import BusPlan
 
 CACHE_ENTRIES = 48  # transfers kept (one per installation tried)
+MAX_WINDOW_SHARE = 0.125  # an averaging window spans at most this share of the compared time
 INSTALLED_KEYS = ("z0_ohm", "length_scale", "start_siemens", "end_siemens", "stub_position_m", "stub_length_m")
 Values = dict[str, float]
 Bounds = dict[str, tuple[float, float, float]]  # key -> (lower, upper, typical step)
@@ -97,8 +98,12 @@ class FitProblem:
     # --- model --------------------------------------------------------------------------------------------
 
     def level(self, window_s: float) -> Level:
-        """The resolution averaging over window_s (0: full), built once."""
+        """The resolution averaging over window_s (0: full; at most an eighth of the compared time), built once."""
         if window_s not in self.levels:
+            asked_s, window_s = window_s, min(window_s, MAX_WINDOW_SHARE * float(self.time_s[-1] - self.time_s[0]))
+            if window_s in self.levels:
+                self.levels[asked_s] = self.levels[window_s]
+                return self.levels[window_s]
             grid = model_grid(self.span_s, (self.edge_s + window_s) / SAMPLES_PER_EDGE)
             width = int(round(window_s / self.dt_capture_s))
             y, use, t = self.y_v, self.use, self.time_s
@@ -109,7 +114,9 @@ class FitProblem:
                 use = (bad[width:] - bad[:-width]) == 0
                 t = t[width - 1 :]
             stride = max(1, int(grid.dt_s / (2.0 * self.dt_capture_s)))
-            self.levels[window_s] = Level(grid, window_s, t[::stride], y[::stride], use[::stride])
+            self.levels[window_s] = self.levels[asked_s] = Level(
+                grid, window_s, t[::stride], y[::stride], use[::stride]
+            )
         return self.levels[window_s]
 
     def transfer(self, level: Level, inst: Installed) -> tuple[np.ndarray, float]:
@@ -141,10 +148,11 @@ class FitProblem:
         return sent_waveform(level.grid, edge, settled, self.setup, times - values["time_offset_s"])
 
     def residual(self, level: Level, values: Values) -> tuple[np.ndarray, float, float]:
-        """(residual at used samples, V_oc, b) with V_oc and b the linear least-squares solution."""
+        """(residual at used samples, V_oc, b) with V_oc and b the linear least-squares solution; V_oc is held
+        when values name it ("open_circuit_v")."""
         m = self.unit_response(level, values)[level.use]
         y = level.y_v[level.use]
-        v_oc, offset = _line_fit(m, y)
+        v_oc, offset = _line_fit(m, y, values.get("open_circuit_v"))
         return y - v_oc * m - offset, v_oc, offset
 
     # --- fitting ------------------------------------------------------------------------------------------
@@ -166,7 +174,13 @@ class FitProblem:
         return values | dict(zip(free, x.tolist(), strict=True))
 
     def scan(
-        self, level: Level, values: Values, grid: dict[str, np.ndarray], realign: bool, relative: bool = False
+        self,
+        level: Level,
+        values: Values,
+        grid: dict[str, np.ndarray],
+        realign: bool,
+        relative: bool = False,
+        bounds: Bounds | None = None,
     ) -> Values:
         """The best point of a grid of installations (every combination of the grid's values, or of the current
         values plus them when relative); with realign, the time offset is re-fitted at each point (for
@@ -174,8 +188,11 @@ class FitProblem:
         keys = list(grid)
         best, best_cost = values, math.inf
         base = np.array([values[k] if relative else 0.0 for k in keys])
-        for combo in np.stack(np.meshgrid(*grid.values(), indexing="ij"), axis=-1).reshape(-1, len(keys)):
-            trial = values | dict(zip(keys, (base + combo).tolist(), strict=True))
+        lower = np.array([bounds[k][0] if bounds else -math.inf for k in keys])
+        upper = np.array([bounds[k][1] if bounds else math.inf for k in keys])
+        combos = np.stack(np.meshgrid(*grid.values(), indexing="ij"), axis=-1).reshape(-1, len(keys))
+        for combo in np.unique(np.clip(base + combos, lower, upper), axis=0):
+            trial = values | dict(zip(keys, combo.tolist(), strict=True))
             if realign:
                 step = level.grid.dt_s
                 span = 4.0 * (self.edge_s + level.window_s)
@@ -191,7 +208,7 @@ class FitProblem:
         level = self.level(0.0)
         y = self.y_v[self.use]
         m = self.unit_response(level, values, self.time_s)[self.use]
-        v_oc, offset = _line_fit(m, y)
+        v_oc, offset = _line_fit(m, y, values.get("open_circuit_v"))
         r = y - v_oc * m - offset
         columns = [m, np.ones_like(m)]  # d/dV_oc, d/db
         for k in free:
@@ -211,9 +228,11 @@ class FitProblem:
         return FitResult(values, v_oc, offset, float(r @ r), full, sigma)
 
 
-def _line_fit(x: np.ndarray, y: np.ndarray) -> tuple[float, float]:
-    """(a, b) minimising |y - a x - b|^2 (the normal equations of a straight line)."""
+def _line_fit(x: np.ndarray, y: np.ndarray, slope: float | None = None) -> tuple[float, float]:
+    """(a, b) minimising |y - a x - b|^2 (the normal equations of a straight line), or b alone for a given a."""
     x_mean, y_mean = float(x.mean()), float(y.mean())
+    if slope is not None:
+        return slope, y_mean - slope * x_mean
     dx = x - x_mean
     sxx = float(dx @ dx)
     a = float(dx @ (y - y_mean)) / sxx if sxx > 0 else 0.0

@@ -30,6 +30,16 @@ UNEXPLAINED_FRACTION = 0.03  # of the swing: a best fit still this far off (rms)
 UNEXPLAINED_NOISE = 3.0  # ... and this many noise sigmas
 
 
+RIVAL_TEXT = {
+    "z0_ohm": "a cable of another impedance",
+    "length_scale": "a longer or shorter run",
+    "start_siemens": "another terminator at the start of the trunk",
+    "end_siemens": "another terminator at the end of the trunk",
+    "stub": "an extra stub",
+    "open_circuit_v": "a driver with another swing",
+}
+
+
 @dataclass(frozen=True, slots=True)
 class Quantity:
     """One physical quantity: as planned, as fitted, its 95 % range, and whether it counts as a difference."""
@@ -88,10 +98,12 @@ def describe(
     planned: Installed,
     best: FitResult,
     accepted: list[str],
+    rivals: dict[str, list[str]],
     unexplained: tuple[float, str] | None,
 ) -> tuple[tuple[Quantity, ...], tuple[Difference, ...], BusPlan | None]:
     """(quantities, difference sentences, fitted plan or None) of a finished fit.
 
+    rivals: for each accepted key, the other explanations that fit about as well from this probe.
     unexplained: (rms volts, region name) when the best fit still leaves too much (is_unexplained).
     """
     plan = bus.plan
@@ -103,7 +115,15 @@ def describe(
     found = [_rise(ctx), _swing(ctx)]
     builders = {"z0_ohm": _z0, "length_scale": _length, "start_siemens": _terminator, "end_siemens": _terminator}
     for key in accepted:
-        found.append(_stub(ctx) if key == "stub" else builders[key](ctx, key))
+        quantities_of, difference = _stub(ctx) if key == "stub" else builders[key](ctx, key)
+        if rivals.get(key) and difference is not None:
+            others = " or ".join(RIVAL_TEXT[k] for k in rivals[key])
+            difference = Difference(
+                key,
+                f"{difference.sentence} From this probe, {others} would look much the same: check this first, "
+                "or capture at another node to tell them apart.",
+            )
+        found.append((quantities_of, difference))
     quantities = tuple(q for qs, _ in found for q in qs)
     differences = [d for _, d in found if d is not None]
     if unexplained is not None:
@@ -138,34 +158,56 @@ def time_text(seconds: float) -> str:
 _Found = tuple[list[Quantity], Difference | None]
 
 
+def _driver_quantity(
+    key: str, label: str, unit: str, planned: float, fitted: float, sd: float, floor: float, tolerance: float
+) -> Quantity:
+    """A driver quantity: its range widened by a floor (a fraction of it), different beyond the tolerance when
+    the planned value lies outside the range."""
+    sd = math.hypot(sd, floor * fitted)
+    low, high = fitted - Z95 * sd, fitted + Z95 * sd
+    differs = abs(fitted / planned - 1.0) > tolerance and not low <= planned <= high
+    return Quantity(key, label, unit, planned, fitted, low, high, differs)
+
+
 def _rise(ctx: _Context) -> _Found:
     rise0, rise = ctx.bus.driver.rise_time_s, ctx.best.values["rise_time_s"]
-    sd = math.hypot(ctx.best.sigma["rise_time_s"], RISE_FLOOR * rise)
-    low, high = rise - Z95 * sd, rise + Z95 * sd
-    differs = abs(rise / rise0 - 1.0) > RISE_TOLERANCE and not low <= rise0 <= high
-    q = Quantity("rise_time_s", "Driver rise time (10–90 %)", "s", rise0, rise, low, high, differs)
-    if not differs:
+    q = _driver_quantity(
+        "rise_time_s",
+        "Driver rise time (10–90 %)",
+        "s",
+        rise0,
+        rise,
+        ctx.best.sigma["rise_time_s"],
+        RISE_FLOOR,
+        RISE_TOLERANCE,
+    )
+    if not q.differs or q.high is None:
         return [q], None
-    word = "slower" if rise > rise0 else "faster"
     return [q], Difference(
         "rise_time_s",
-        f"The driver's edges fit a rise time of {time_text(rise)} (± {time_text(high - rise)} at 95 %) where the "
-        f"plan's driver has {time_text(rise0)}: {word} edges than planned. Check which transceiver is "
-        "fitted.",
+        f"The driver's edges fit a rise time of {time_text(rise)} (± {time_text(q.high - rise)} at 95 %) where "
+        f"the plan's driver has {time_text(rise0)}: {'slower' if rise > rise0 else 'faster'} edges than planned. "
+        "Check which transceiver is fitted.",
     )
 
 
 def _swing(ctx: _Context) -> _Found:
     swing0, swing = ctx.bus.driver.open_circuit_v, abs(ctx.best.open_circuit_v)
-    sd = math.hypot(ctx.best.sigma["open_circuit_v"], SWING_FLOOR * swing)
-    low, high = swing - Z95 * sd, swing + Z95 * sd
-    differs = abs(swing / swing0 - 1.0) > SWING_TOLERANCE and not low <= swing0 <= high
-    q = Quantity("open_circuit_v", "Driver open-circuit swing", "V", swing0, swing, low, high, differs)
-    if not differs:
+    q = _driver_quantity(
+        "open_circuit_v",
+        "Driver open-circuit swing",
+        "V",
+        swing0,
+        swing,
+        ctx.best.sigma["open_circuit_v"],
+        SWING_FLOOR,
+        SWING_TOLERANCE,
+    )
+    if not q.differs or q.high is None:
         return [q], None
     return [q], Difference(
         "open_circuit_v",
-        f"The levels fit a driver swing of {swing:.3g} V (± {high - swing:.2g} V at 95 %) where the plan has "
+        f"The levels fit a driver swing of {swing:.3g} V (± {q.high - swing:.2g} V at 95 %) where the plan has "
         f"{swing0:.3g} V: check the transceiver's supply and type, and the probe attenuation entered.",
     )
 
@@ -215,8 +257,11 @@ def _terminator(ctx: _Context, key: str) -> _Found:
     at_end = key == "end_siemens"
     position_m = plan.trunk_length_m * ctx.inst.length_scale if at_end else 0.0
     other_m = 0.0 if at_end else plan.trunk_length_m * ctx.inst.length_scale
-    role = "far end" if abs(position_m - ctx.driver_m) >= abs(other_m - ctx.driver_m) else "near end"
-    name = f"{role} ({ctx.length(position_m)})"
+    here_m, there_m = abs(position_m - ctx.driver_m), abs(other_m - ctx.driver_m)
+    if abs(here_m - there_m) < 0.05 * max(here_m, there_m):  # a driver about midway: neither end is "far"
+        name = f"end at {ctx.length(position_m)}"
+    else:
+        name = f"{'far' if here_m > there_m else 'near'} end ({ctx.length(position_m)})"
     low_ohm = 1.0 / g_high if g_high > 0 else math.inf
     high_ohm = 1.0 / g_low if g_low > 0 else None
     missing = g < MISSING_FRACTION / ctx.inst.z0_ohm
