@@ -267,16 +267,22 @@ def plan_edge(
 def sent_waveform(
     grid: ModelGrid, edge_v: np.ndarray, settled: float, setup: FieldSetup, at_s: np.ndarray
 ) -> np.ndarray:
-    """What was sent, seen at the probe at times at_s (model time: the first edge starts at 0), per volt of V_oc.
+    """What was sent, seen at the probe at ascending times at_s (model time: bit 0 starts at 0), per volt of V_oc.
 
-    edge_v: the edge response on the grid; settled: its value for good (H(0)).
+    edge_v: the edge response on the grid; settled: its value for good (H(0)). Each level change is
+    interpolated only over the grid's span after it; later samples take its settled share through one running
+    sum, so a long pattern costs the samples plus one grid span per change.
     """
     first, times, steps = setup.transitions()
     t_grid = grid.dt_s * np.arange(edge_v.size)
     out = np.full(at_s.shape, first * settled)
-    for t_k, step in zip(times, steps, strict=True):
-        out += step * np.interp(at_s - t_k, t_grid, edge_v, left=0.0, right=settled)
-    return out
+    settled_from = np.zeros(at_s.size + 1)
+    begin = np.searchsorted(at_s, times, side="left")
+    end = np.searchsorted(at_s, times + t_grid[-1], side="right")
+    for t_k, step, lo, hi in zip(times, steps, begin, end, strict=True):
+        out[lo:hi] += step * np.interp(at_s[lo:hi] - t_k, t_grid, edge_v)
+        settled_from[hi] += step * settled
+    return np.asarray(out + np.cumsum(settled_from[:-1]))
 
 
 def sent_duration_s(setup: FieldSetup) -> float:

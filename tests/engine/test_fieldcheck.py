@@ -11,10 +11,10 @@ import pytest
 from pairline.engine.capture import parse_capture
 from pairline.engine.fieldcheck import check_capture
 from pairline.engine.fieldmodel import field_setup
-from pairline.engine.plan import BusInputError
+from pairline.engine.plan import BusInputError, load_plan
 
 from tests.engine.captures import Trace, capture_csv, sample
-from tests.engine.field_buses import DRIVER, FAR_NODE, TRUNK_M, capture_text, plan, trace
+from tests.engine.field_buses import DRIVER, FAR_NODE, PLAN_DOC, TRUNK_M, capture_text, plan, trace
 
 
 def _check(text: str, at: str = DRIVER, **setup):
@@ -130,6 +130,15 @@ def test_typed_bits_are_compared_as_sent():
     result = _check(_pattern_capture("far_missing", "0110", 1e-6, seed=11), sent="bits", bits="0110")
     assert [d.key for d in result.differences] == ["end_siemens"]
     assert _fitted(result, "end_termination_ohm") is None
+
+
+def test_the_plans_own_pattern_is_compared_as_sent():
+    # Source: superposed ngspice edge responses of the missing far terminator, the plan's pattern 0110.
+    bus_plan = load_plan(PLAN_DOC | {"test_pattern": "0110"})
+    capture = parse_capture(_pattern_capture("far_missing", "0110", 1e-6, seed=15))
+    result = check_capture(bus_plan, capture, field_setup(bus_plan, sent="pattern"))
+    assert result.setup.bits == "0110"
+    assert [d.key for d in result.differences] == ["end_siemens"]
 
 
 def test_a_capture_far_longer_than_the_plan_window_is_trimmed_with_a_warning():
