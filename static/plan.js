@@ -5,10 +5,6 @@
   document.querySelectorAll("[data-print]").forEach(function (b) {
     b.addEventListener("click", function () { window.print(); });
   });
-  // The printed sheet lists every finding, including the ones folded away on screen.
-  window.addEventListener("beforeprint", function () {
-    document.querySelectorAll("details").forEach(function (d) { d.open = true; });
-  });
   const share = document.getElementById("share-url");
   if (share) {
     share.addEventListener("focus", function () { share.select(); });

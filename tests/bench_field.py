@@ -12,7 +12,9 @@ from __future__ import annotations
 
 import os
 import platform
+import sys
 import time
+from pathlib import Path
 
 import numpy as np
 from pairline.engine.capture import parse_capture
@@ -27,8 +29,9 @@ from pairline.engine.fieldmodel import (
 )
 from pairline.engine.plan import BusPlan, load_plan
 
-from tests.bench_sim import plan_doc
-from tests.engine.captures import capture_csv
+sys.path.insert(0, str(Path(__file__).resolve().parents[1]))  # run as a script: the repository root
+from tests.bench_sim import plan_doc  # noqa: E402
+from tests.engine.captures import capture_csv  # noqa: E402
 
 SAMPLES = 10_000
 SAMPLE_INTERVAL_S = 0.5e-9

@@ -7,9 +7,10 @@ from fastapi import APIRouter, Request
 from fastapi.responses import JSONResponse, Response
 from pairline.engine import ENGINE_VERSION
 from pairline.engine.plan import BusInputError, Problem, load_plan, plan_to_dict
-from pairline.server.results import check_and_simulate
+from pairline.server.forms import plan_from_body
+from pairline.server.results import check_only
 from pairline.server.store import PlanStore
-from pairline.server.views import plan_data
+from pairline.server.views import check_data
 
 router = APIRouter(prefix="/api")
 
@@ -38,9 +39,11 @@ def _reject_constant(name: str) -> Any:
 
 @router.post("/check")
 async def check(request: Request) -> Response:
-    """Check a plan without saving it: the same data as a saved plan's page twin, without id or URL."""
-    plan = load_plan(await _json_body(request))
-    return JSONResponse(plan_data(check_and_simulate(plan), None))
+    """Check a plan without saving it: verdict, findings, summary and the engine report (no simulated
+    pictures; a saved plan's page twin has them). The body is a plan, or {"form": {...}} with the editor's
+    typed fields, as its live verdict sends."""
+    plan = plan_from_body(await _json_body(request))
+    return JSONResponse(check_data(check_only(plan)))
 
 
 @router.post("/plans")

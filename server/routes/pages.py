@@ -11,14 +11,24 @@ from pairline.engine import ENGINE_VERSION
 from pairline.engine.plan import BusInputError, BusPlan, Problem, load_plan, plan_to_dict
 from pairline.server.app import render
 from pairline.server.errors import not_found
-from pairline.server.forms import FormState, form_from_plan, merge_problems, parse_form, with_units
+from pairline.server.forms import (
+    MAX_FORM_FIELDS,
+    FormState,
+    draft_fields,
+    fields_from_draft,
+    form_from_plan,
+    merge_problems,
+    parse_form,
+    starter_plan,
+    with_units,
+)
+from pairline.server.node_table import read_node_table, with_pasted_rows
 from pairline.server.quantities import UnitSystem
 from pairline.server.results import check_and_simulate, check_only
 from pairline.server.store import PlanStore, SavedPlan
-from pairline.server.views import bom_rows, editor_data, plan_data, start_data
+from pairline.server.views import bom_rows, editor_data, lineage_data, plan_data, start_data
 
 router = APIRouter()
-MAX_FORM_FIELDS = 8000  # 512 node rows of 8 inputs, plus the rest
 UTF8_BOM = "\ufeff"  # spreadsheet programs read a CSV as UTF-8 (so "Ω" survives) only when it starts with this
 
 
@@ -95,36 +105,13 @@ async def import_plan(request: Request, store: StoreDep) -> Response:
 
 # --- editor -----------------------------------------------------------------------------------------------
 
-STARTER_PLAN: dict[str, Any] = {
-    "title": "",
-    "standard": "rs485",
-    "bit_rate_bps": 115_200,
-    "supply_v": 5.0,
-    "trunk_length_m": 100.0,
-    "cable": {"class_key": "pair-24awg-120"},
-    "driver": {"name": "controller", "position_m": 0.0, "stub_length_m": 0.0, "transceiver": "edge-100ns"},
-    "nodes": [],
-    "terminations": [
-        {"position_m": 0.0, "kind": "parallel", "resistance_ohm": 120.0},
-        {"position_m": 100.0, "kind": "parallel", "resistance_ohm": 120.0},
-    ],
-}
 BLANK_NODE_ROWS = 5
 
 
 @router.get("/plans/new")
 @router.get("/plans/new.json")
 def new_plan_page(request: Request, units: str = "metric") -> Response:
-    system = "imperial" if units == "imperial" else "metric"
-    starter = STARTER_PLAN | {"display_units": system}
-    if system == "imperial":  # a round 300 ft trunk rather than 328.08 ft
-        trunk_m = 300 * 0.3048
-        starter["trunk_length_m"] = trunk_m
-        starter["terminations"] = [
-            STARTER_PLAN["terminations"][0],
-            {**STARTER_PLAN["terminations"][1], "position_m": trunk_m},
-        ]
-    state = form_from_plan(starter)
+    state = form_from_plan(starter_plan("imperial" if units == "imperial" else "metric"))
     state.n_nodes = BLANK_NODE_ROWS
     data = editor_data(state, title="New bus plan")
     return page(request, "editor.html", data, request.url.path.endswith(".json"))
@@ -146,16 +133,29 @@ async def submit_plan(request: Request, store: StoreDep) -> Response:
     """The editor's form (or a checked draft's save button). Check renders the report; save answers 303."""
     async with request.form(max_fields=MAX_FORM_FIELDS) as form:
         fields = {k: v for k, v in form.items() if isinstance(v, str)}
+        upload = form.get("node_table_file")
+        if upload is not None and not isinstance(upload, str) and (raw := await upload.read()):
+            fields["node_table"] = raw.decode("utf-8-sig", errors="replace")
     if "plan_json" in fields:
         return _save_draft(fields, store)
+    if "draft_fields" in fields:  # "Edit this draft" on a checked draft: the editor as it was typed
+        fields = fields_from_draft(fields["draft_fields"]) | {"action": "edit"}
     parsed = parse_form(fields)
     state = parsed.state
-    if parsed.action in ("add_node", "add_termination", "units"):
+    if parsed.action == "paste_nodes":
+        table = read_node_table(fields.get("node_table", ""), state.units)
+        if table.problems:
+            state.values["node_table"] = fields.get("node_table", "")
+            state.problems = table.problems
+            return render(request, "editor.html", editor_data(state, title=_editor_title(state)), status_code=422)
+        state = with_pasted_rows(state, len(parsed.doc["nodes"]), table.rows, bool(fields.get("node_table_replace")))
+        return render(request, "editor.html", editor_data(state, title=_editor_title(state)))
+    if parsed.action in ("add_node", "add_termination", "units", "edit"):
         if parsed.action == "add_node":
             state.n_nodes += 1
         elif parsed.action == "add_termination":
             state.n_terminations += 1
-        else:
+        elif parsed.action == "units":
             state = with_units(state, parsed.doc, parsed.doc["display_units"])
         state.problems = []
         return render(request, "editor.html", editor_data(state, title=_editor_title(state)))
@@ -170,7 +170,11 @@ async def submit_plan(request: Request, store: StoreDep) -> Response:
         plan_id = store.save_plan(plan_to_dict(plan), engine_version=ENGINE_VERSION, parent_id=_parent(store, state))
         return RedirectResponse(f"/plans/{plan_id}", status_code=303)
     data = plan_data(check_and_simulate(plan), None)
-    data["draft"] = {"plan_json": json.dumps(plan_to_dict(plan)), "parent_id": _parent(store, state)}
+    data["draft"] = {
+        "plan_json": json.dumps(plan_to_dict(plan)),
+        "parent_id": _parent(store, state),
+        "fields": draft_fields(state),
+    }
     return render(request, "plan.html", data)
 
 
@@ -223,7 +227,10 @@ def plan_page(request: Request, ref: str, store: StoreDep, receiver: str | None 
         title = "This saved plan needs changes before the current engine can check it"
         return render(request, "editor.html", editor_data(state, title=title, saved_from=saved), status_code=422)
     data = plan_data(check_and_simulate(plan, receiver), saved, receiver)
-    data["children"] = store.children_of(saved.id)
+    children = store.children_of(saved.id)
+    data["children"] = children
+    parent = store.get_plan(saved.parent_id) if saved.parent_id else None
+    data["lineage"] = lineage_data(parent, [c for c in map(store.get_plan, children) if c is not None])
     return page(request, "plan.html", data, as_json)
 
 

@@ -92,3 +92,26 @@ def page(browser):
 def artifacts() -> Path:
     ARTIFACTS.mkdir(exist_ok=True)
     return ARTIFACTS
+
+
+AXE = Path(__file__).resolve().parent / "node_modules" / "axe-core" / "axe.min.js"
+
+
+@pytest.fixture(scope="session")
+def axe_script() -> Path:
+    """axe-core from the npm registry, installed by `.ci/setup` (npm ci in tests/browser)."""
+    if not AXE.exists():
+        reason = f"axe-core not installed at {AXE} (run: npm ci --prefix tests/browser)"
+        if os.environ.get("CI") == "true":
+            pytest.fail(reason)
+        pytest.skip(reason)
+    return AXE
+
+
+@pytest.fixture()
+def phone(browser):
+    """A page 390 px wide, as a phone shows it."""
+    context = browser.new_context(viewport={"width": 390, "height": 844}, device_scale_factor=2)
+    pg = context.new_page()
+    yield pg
+    context.close()
