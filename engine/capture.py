@@ -437,7 +437,10 @@ def _uniform_time(table: _Table, column: int, factor: float) -> tuple[float, flo
     """(t0, dt) of a time column that rises steadily; a step back or a gap raises, naming the file line."""
     t = table.rows[:, column] * factor
     steps = np.diff(t)
-    back = np.flatnonzero(steps <= 0)
+    printed = float(np.median([_printed_step(s) for s in table.time_text[:: max(1, t.size // 200)]])) * factor
+    # repeated times are allowed only where the column is printed too coarsely to tell neighbours apart
+    coarse = t[-1] > t[0] and 2.0 * printed >= 0.5 * (t[-1] - t[0]) / (t.size - 1)
+    back = np.flatnonzero(steps < 0 if coarse else steps <= 0)
     if back.size:
         k = int(back[0]) + 1
         raise _file_error(
@@ -448,7 +451,6 @@ def _uniform_time(table: _Table, column: int, factor: float) -> tuple[float, flo
         )
     k_index = np.arange(t.size)
     dt, t0 = np.polyfit(k_index, t, 1)
-    printed = float(np.median([_printed_step(s) for s in table.time_text[:: max(1, t.size // 200)]])) * factor
     off = np.abs(t - (t0 + dt * k_index))
     worst = int(np.argmax(off))
     if off[worst] > max(STEP_TOLERANCE * dt, printed):
