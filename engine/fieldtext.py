@@ -259,9 +259,9 @@ def _terminator(ctx: _Context, key: str) -> _Found:
     other_m = 0.0 if at_end else plan.trunk_length_m * ctx.inst.length_scale
     here_m, there_m = abs(position_m - ctx.driver_m), abs(other_m - ctx.driver_m)
     if abs(here_m - there_m) < 0.05 * max(here_m, there_m):  # a driver about midway: neither end is "far"
-        name = f"end at {ctx.length(position_m)}"
+        name = f"end {ctx.length(position_m)} along the trunk"
     else:
-        name = f"{'far' if here_m > there_m else 'near'} end ({ctx.length(position_m)})"
+        name = f"{'far' if here_m > there_m else 'near'} end, {ctx.length(position_m)} along the trunk,"
     low_ohm = 1.0 / g_high if g_high > 0 else math.inf
     high_ohm = 1.0 / g_low if g_low > 0 else None
     missing = g < MISSING_FRACTION / ctx.inst.z0_ohm

@@ -14,13 +14,13 @@ from pairline.engine.capture import MAX_CAPTURE_BYTES, SIGNALS, decode_capture
 from pairline.engine.fieldcheck import FieldCheck
 from pairline.engine.fieldmodel import SENT
 from pairline.engine.plan import BusInputError, Problem, load_plan
+from pairline.engine.units import length_text
 from pairline.server.cli import (
     EXIT_BREAKS,
     EXIT_INVALID,
     EXIT_OK,
     SAFETY_NOTE,
     PlanFileError,
-    lengths_in_feet,
     problems_envelope,
     problems_text,
     quantity_text,
@@ -111,13 +111,17 @@ def run_field(args: argparse.Namespace, out: TextIO, err: TextIO) -> int:
     if args.json:
         print(json.dumps(data, indent=2, ensure_ascii=False, allow_nan=False), file=out)
     else:
-        text = field_text(result, data, args)
-        print(lengths_in_feet(text) if plan.display_units == "imperial" else text, file=out)
+        print(field_text(result, data, args, plan.display_units), file=out)
     return EXIT_OK if result.matches else EXIT_BREAKS
 
 
-def field_text(result: FieldCheck, data: dict[str, Any], args: argparse.Namespace) -> str:
-    """The readable report: the capture, the alignment, residuals by region, differences, fitted quantities."""
+def field_text(result: FieldCheck, data: dict[str, Any], args: argparse.Namespace, display_units: str) -> str:
+    """The readable report: the capture, the alignment, residuals by region, differences, fitted quantities.
+    Lengths read in the plan's display units (the engine's sentences already do)."""
+
+    def value_text(value: float, unit: str) -> str:
+        return length_text(value, display_units) if unit == "m" else quantity_text(value, unit)
+
     cap, a = data["capture"], result.alignment
     where = "a point on the trunk" if data["settings"]["at_position_m"] is not None else f"'{data['probe']}'"
     sent = {"edge": "one edge", "pattern": f"the plan's pattern ({len(result.setup.bits)} bits)"}.get(
@@ -148,10 +152,10 @@ def field_text(result: FieldCheck, data: dict[str, Any], args: argparse.Namespac
         out += [f"  - {d.sentence}" for d in result.differences]
     out += ["", "Fitted quantities (95 % range):"]
     for q in result.quantities:
-        planned = "none" if q.planned is None else quantity_text(q.planned, q.unit)
-        fitted = "none (missing)" if q.fitted is None else quantity_text(q.fitted, q.unit)
-        low = quantity_text(q.low, q.unit) if q.low is not None else "?"
-        high = quantity_text(q.high, q.unit) if q.high is not None else "open"
+        planned = "none" if q.planned is None else value_text(q.planned, q.unit)
+        fitted = "none (missing)" if q.fitted is None else value_text(q.fitted, q.unit)
+        low = value_text(q.low, q.unit) if q.low is not None else "?"
+        high = value_text(q.high, q.unit) if q.high is not None else "open"
         mark = "DIFFERS" if q.differs else "as planned"
         out.append(f"  {q.label}: planned {planned}, fitted {fitted} ({low} to {high}) {mark}")
     if data["fitted_plan"] is not None:

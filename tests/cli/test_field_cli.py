@@ -37,6 +37,16 @@ def test_a_missing_terminator_exits_1_with_its_sentence_and_a_fitted_plan(tmp_pa
     assert [t.position_m for t in draft.terminations] == [0.0]
 
 
+def test_an_imperial_plan_reads_feet_with_the_metres_once(tmp_path, capsys):
+    # Source: ngspice transient with the far terminator removed; 400 m = 1312 ft (1 ft = 0.3048 m exactly,
+    # international yard and pound agreement, 1959).
+    doc = PLAN_DOC | {"display_units": "imperial"}
+    assert main(["field", *_files(tmp_path, capture_text("far_missing", seed=24), plan=doc)]) == 1
+    out = capsys.readouterr().out
+    assert "far end, 1312 ft (400 m) along the trunk," in out
+    assert "ft (1312 ft" not in out and "(400 m) (" not in out
+
+
 def test_json_output_holds_the_verdict_and_the_overlay(tmp_path, capsys):
     status = main(["field", *_files(tmp_path, capture_text("far_missing", seed=23, lines=True)), "--json"])
     data = json.loads(capsys.readouterr().out)
