@@ -13,6 +13,7 @@ from pairline.server.field import FIELD_KEYS, field_request, run_field_check
 from pairline.server.fieldviews import field_form_data, field_json, field_result_data
 from pairline.server.routes.pages import StoreDep, page
 from pairline.server.store import PlanStore
+from starlette.concurrency import run_in_threadpool
 
 router = APIRouter()
 MAX_FORM_FIELDS = 20
@@ -39,7 +40,8 @@ def field_form(request: Request, ref: str, store: StoreDep) -> Response:
 
 @router.post("/plans/{ref}/field")
 async def field_submit(request: Request, ref: str, store: StoreDep) -> Response:
-    """The capture form: 422 with everything typed and each message beside its input, else the result."""
+    """The capture form: 422 with everything typed and each message beside its input, else the result. Reading
+    the capture and fitting run off the event loop."""
     plan = _plan(store, ref)
     if plan is None:
         return not_found(request)
@@ -60,8 +62,8 @@ async def field_submit(request: Request, ref: str, store: StoreDep) -> Response:
     try:
         if problems:
             raise BusInputError(problems)
-        field = field_request(values, plan)
-        result = run_field_check(plan, field)
+        field = await run_in_threadpool(field_request, values, plan)
+        result = await run_in_threadpool(run_field_check, plan, field)
     except BusInputError as exc:
         return render(request, "field_form.html", field_form_data(plan, ref, values, exc.problems), status_code=422)
     return render(request, "field_result.html", field_result_data(plan, ref, field, result))
@@ -91,8 +93,7 @@ async def api_field(request: Request) -> Response:
     """Check a capture against a plan sent along: {"plan": {...}, "capture_csv": "...", settings}."""
     body = await _json_object(request)
     plan = load_plan(body.get("plan"))
-    field = field_request(body, plan)
-    return JSONResponse(field_json(field_result_data(plan, None, field, run_field_check(plan, field))))
+    return JSONResponse(await run_in_threadpool(_checked, plan, None, body))
 
 
 @router.post("/api/plans/{ref}/field")
@@ -102,5 +103,10 @@ async def api_plan_field(request: Request, ref: str, store: StoreDep) -> Respons
     if plan is None:
         return JSONResponse({"status": 404, "message": f"No saved plan '{ref}'."}, status_code=404)
     body = await _json_object(request)
+    return JSONResponse(await run_in_threadpool(_checked, plan, ref, body))
+
+
+def _checked(plan: BusPlan, plan_id: str | None, body: dict[str, Any]) -> dict[str, Any]:
+    """The JSON result of a request (the fit takes seconds: callers run this off the event loop)."""
     field = field_request(body, plan)
-    return JSONResponse(field_json(field_result_data(plan, ref, field, run_field_check(plan, field))))
+    return field_json(field_result_data(plan, plan_id, field, run_field_check(plan, field)))
