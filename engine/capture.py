@@ -1,48 +1,48 @@
 """A scope or logger capture of the bus: read from CSV text, checked, turned into one differential trace.
 
-Accepted shapes (what scopes and loggers commonly write):
-- a few header lines before the data: `key,value[,unit]` pairs (sample interval or sample rate, units), and
-  usually one row of column names (`Time (s),CH1 (V)`);
-- data rows of numbers, separated by commas, semicolons, tabs or spaces; with semicolons, tabs or spaces a
-  comma may be the decimal mark;
-- time in the first (or a named) column, or no time column and a sample interval from the header or the user;
-- one voltage column (the differential voltage A-B) or two (A and B against ground; A-B is taken).
+The file's shapes (header lines, column names, separators, decimal commas, A and B or A-B) are read by
+engine.capturefile. Time must rise steadily: every step within a quarter of the mean step (or the precision the
+times are printed with); a gap or a step back is an error naming the line. Units come from the user, else the
+column names, else the header; units the reader does not know are refused rather than guessed, and missing ones
+are read as seconds and volts with a warning. Source for the shapes and the rules: IEC 60469:2013 (state levels,
+reference levels) and common practice.
 
-The data start at the first row whose fields all read as numbers. Time must rise steadily: every step within
-a quarter of the mean step (or the precision the times are printed with); a gap or a step back is an error
-naming the row. Units come from the user, else the column names, else the header; units the reader does not
-know are refused rather than guessed, and missing ones are read as seconds and volts with a warning.
-Source for the shapes and the rules: IEC 60469:2013 (state levels, reference levels) and common practice.
-
-A trace flat at its highest (or lowest) value for a run of samples is clipped at the scope's rails: the run
-is flagged, the fit leaves it out, and a warning says so; a trace clipped for most of its length is refused.
+A trace that spans no more than a few noise sigmas holds no edge and is refused. A trace flat at its highest (or
+lowest) value for a run of samples is clipped at the scope's rails: the run is flagged, the fit leaves it out,
+and a warning says so; a trace clipped for most of its length is refused.
 """
 
 import math
-import re
 from dataclasses import dataclass
 from typing import Literal
 
 import numpy as np
-from pairline.engine.plan import BusInputError, Problem
+from pairline.engine.capturefile import (
+    MAX_CAPTURE_BYTES,
+    SIGNALS,
+    TIME_UNITS,
+    VOLTAGE_UNITS,
+    Signal,
+    column_layout,
+    decode_capture,
+    differential,
+    file_error,
+    header_interval,
+    header_items,
+    header_units,
+    problem,
+    read_table,
+    uniform_time,
+    unit_factor,
+    unknown_unit,
+)
+from pairline.engine.plan import BusInputError
 
-MAX_CAPTURE_BYTES = 1_500_000  # about 40 000 rows of time, A and B
 MIN_SAMPLES = 100
-MAX_SAMPLES = 200_000
 MAX_ATTENUATION = 1000.0
-STEP_TOLERANCE = 0.25  # of the mean time step: larger departures are gaps or jitter
 CLIP_RUN_SAMPLES = 8  # consecutive samples exactly at the extreme value that count as a flat top
 MAX_CLIPPED_FRACTION = 0.3  # of the samples; more than this is refused
 EDGE_NOISE_RATIO = 12.0  # the trace must span at least this many noise sigmas to hold an edge
-
-Signal = Literal["auto", "differential", "lines"]
-SIGNALS: tuple[Signal, ...] = ("auto", "differential", "lines")
-TIME_UNITS = {"s": 1.0, "sec": 1.0, "ms": 1e-3, "us": 1e-6, "µs": 1e-6, "μs": 1e-6, "ns": 1e-9, "ps": 1e-12}
-VOLTAGE_UNITS = {"v": 1.0, "volt": 1.0, "volts": 1.0, "mv": 1e-3, "uv": 1e-6, "µv": 1e-6, "μv": 1e-6, "kv": 1e3}
-RATE_UNITS = {"hz": 1.0, "khz": 1e3, "mhz": 1e6, "ghz": 1e9, "sa/s": 1.0, "ksa/s": 1e3, "msa/s": 1e6, "gsa/s": 1e9}
-_NUMBER = re.compile(r"^[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?$")
-_BRACKET = re.compile(r"[\(\[]\s*([^\)\]]*?)\s*[\)\]]")
-_TIME_NAMES = {"t", "time", "x", "sec", "second", "seconds", "s"}
 
 
 @dataclass(frozen=True, slots=True)
@@ -69,16 +69,12 @@ class Capture:
     warnings: tuple[str, ...]
 
 
-def _problem(field: str, label: str, value: object, allowed: dict[str, object], message: str) -> Problem:
-    return Problem(field, label, value, allowed, message)
-
-
 def check_options(options: CaptureOptions) -> None:
     """Refuse settings outside their ranges, every problem at once (BusInputError)."""
     problems = []
     if options.signal not in SIGNALS:
         problems.append(
-            _problem(
+            problem(
                 "signal",
                 "Signal",
                 options.signal,
@@ -90,12 +86,12 @@ def check_options(options: CaptureOptions) -> None:
         ("time_unit", "Time unit", options.time_unit, TIME_UNITS),
         ("voltage_unit", "Voltage unit", options.voltage_unit, VOLTAGE_UNITS),
     ):
-        if unit is not None and _unit_factor(unit, table) is None:
-            problems.append(_unknown_unit(field, label, unit, table))
+        if unit is not None and unit_factor(unit, table) is None:
+            problems.append(unknown_unit(field, label, unit, table))
     dt = options.sample_interval_s
     if dt is not None and not (math.isfinite(dt) and 1e-13 <= dt <= 1.0):
         problems.append(
-            _problem(
+            problem(
                 "sample_interval_s",
                 "Sample interval",
                 dt,
@@ -106,7 +102,7 @@ def check_options(options: CaptureOptions) -> None:
     att = options.probe_attenuation
     if not (math.isfinite(att) and 1e-3 <= att <= MAX_ATTENUATION):
         problems.append(
-            _problem(
+            problem(
                 "probe_attenuation",
                 "Probe attenuation",
                 att,
@@ -119,212 +115,18 @@ def check_options(options: CaptureOptions) -> None:
         raise BusInputError(problems)
 
 
-def _unit_factor(unit: str, table: dict[str, float]) -> float | None:
-    key = unit.strip()
-    return table.get(key, table.get(key.lower()))
-
-
-def _unknown_unit(field: str, label: str, unit: str, table: dict[str, float]) -> Problem:
-    shown = ", ".join(dict.fromkeys(k for k in table if k.isascii() or k.startswith("µ")))
-    return _problem(
-        field,
-        label,
-        unit,
-        {"choices": list(table)},
-        f"{label} '{unit}' is not known; allowed {shown}.",
-    )
-
-
-def decode_capture(raw: bytes) -> str:
-    """File bytes as text: UTF-8 (with or without a byte-order mark), else Latin-1, which reads any byte."""
-    if len(raw) > MAX_CAPTURE_BYTES:
-        raise _file_error(
-            len(raw),
-            {"max": MAX_CAPTURE_BYTES, "unit": "bytes"},
-            f"The capture file holds {len(raw)} bytes; at most {MAX_CAPTURE_BYTES} are read. Save fewer points "
-            "(a shorter record or a longer sample interval) or only the channels on the bus.",
-        )
-    try:
-        return raw.decode("utf-8-sig")
-    except UnicodeDecodeError:
-        return raw.decode("latin-1")
-
-
-def _file_error(value: object, allowed: dict[str, object], message: str) -> BusInputError:
-    return BusInputError([_problem("capture_csv", "Capture file", value, allowed, message)])
-
-
-@dataclass(frozen=True, slots=True)
-class _Table:
-    header: list[str]  # header lines as written
-    separator: str | None
-    names: list[str] | None  # column names, when a header row names the data columns
-    rows: np.ndarray  # (n, n_columns) float
-    time_text: list[str]  # the first column as written (its printed precision bounds the time check)
-    first_line: int  # file line number (1-based) of the first data row
-    line_of: np.ndarray  # (n,) file line number of each data row
-
-
-def _separator(line: str) -> str | None:
-    for sep in (";", "\t", ","):
-        if sep in line:
-            return sep
-    return None  # whitespace
-
-
-def _split(line: str, sep: str | None, decimal_comma: bool) -> list[str]:
-    fields = line.split(sep) if sep else line.split()
-    fields = [f.strip().strip('"').strip() for f in fields]
-    while fields and fields[-1] == "":
-        fields.pop()
-    if decimal_comma:
-        fields = [f.replace(",", ".") for f in fields]
-    return fields
-
-
-def _is_number(text: str) -> bool:
-    return bool(_NUMBER.match(text))
-
-
-def _read_table(text: str) -> _Table:
-    if len(text) > MAX_CAPTURE_BYTES:
-        raise _file_error(
-            len(text),
-            {"max": MAX_CAPTURE_BYTES, "unit": "characters"},
-            f"The capture holds {len(text)} characters; at most {MAX_CAPTURE_BYTES} are read.",
-        )
-    lines = [(i + 1, ln.strip()) for i, ln in enumerate(text.lstrip("\ufeff").splitlines())]
-    lines = [(n, ln) for n, ln in lines if ln]
-    if not lines:
-        raise _file_error("", {"type": "CSV text"}, "The capture is empty; choose a CSV file or paste its rows.")
-    sep = _separator(lines[-1][1])
-    decimal_comma = sep != "," and any("," in ln for _, ln in lines[-5:])
-    start = next(
-        (k for k, (_, ln) in enumerate(lines) if (f := _split(ln, sep, decimal_comma)) and all(map(_is_number, f))),
-        None,
-    )
-    if start is None:
-        raise _file_error(
-            lines[-1][1][:80],
-            {"type": "rows of numbers"},
-            "No row of the capture holds only numbers; the data rows should read like '1.5e-6,0.82' "
-            "(time, volts) after any header lines.",
-        )
-    header = [ln.replace(",", ".") if decimal_comma else ln for _, ln in lines[:start]]
-    body = lines[start:]
-    if len(body) > MAX_SAMPLES:
-        raise _file_error(
-            len(body),
-            {"max": MAX_SAMPLES, "unit": "samples"},
-            f"The capture holds {len(body)} samples; at most {MAX_SAMPLES} are read.",
-        )
-    width = len(_split(body[0][1], sep, decimal_comma))
-    values = np.empty((len(body), width))
-    time_text: list[str] = []
-    for r, (line_no, ln) in enumerate(body):
-        fields = _split(ln, sep, decimal_comma)
-        if len(fields) != width:
-            raise _file_error(
-                f"line {line_no}",
-                {"columns": width},
-                f"Line {line_no} of the capture has {len(fields)} fields where the data rows have {width}: "
-                f"'{ln[:60]}'.",
-            )
-        for c, cell in enumerate(fields):
-            if not _is_number(cell):
-                raise _file_error(
-                    f"line {line_no}, column {c + 1}: {cell[:40]!r}",
-                    {"type": "number"},
-                    f"Line {line_no}, column {c + 1} of the capture is '{cell[:40]}', not a number; every data "
-                    "row must hold numbers only.",
-                )
-            values[r, c] = float(cell)
-        time_text.append(fields[0])
-    last = _split(header[-1], sep, False) if header else []
-    names = last if len(last) == width and not all(map(_is_number, last)) else None
-    return _Table(header, sep, names, values, time_text, body[0][0], np.array([n for n, _ in body]))
-
-
-def _header_items(lines: list[str], sep: str | None) -> dict[str, tuple[str, str]]:
-    """`key -> (value, unit text)` of the header's key-value rows ('key,value[,unit]', 'key: value unit' or
-    'key = value'); keys in lower-case words."""
-    items: dict[str, tuple[str, str]] = {}
-    for line in lines:
-        if sep is not None and sep in line:
-            fields = [f.strip().strip('"') for f in line.split(sep)]
-        elif re.search(r"[:=]", line):
-            fields = [p.strip() for p in re.split(r"[:=]", line, maxsplit=1)]
-        else:
-            continue
-        if len(fields) < 2:
-            continue
-        key = " ".join(re.sub(r"[^a-z0-9/]+", " ", fields[0].lower()).split())
-        value, unit = fields[1], fields[2] if len(fields) > 2 else ""
-        m = re.match(r"^([+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?)\s*(\S*)$", value)
-        if m and m.group(2):
-            value, unit = m.group(1), m.group(2)
-        items[key] = (value, unit)
-    return items
-
-
-@dataclass(frozen=True, slots=True)
-class _Layout:
-    time_column: int | None
-    signal_columns: list[int]
-    time_factor: float | None
-    voltage_factor: float | None
-
-
-def _column_layout(table: _Table, options: CaptureOptions, interval_known: bool) -> _Layout:
-    width = table.rows.shape[1]
-    time_factor = voltage_factor = None
-    if table.names is None:
-        first_rises = width > 1 and bool(np.all(np.diff(table.rows[:, 0]) > 0))
-        if not interval_known:
-            has_time = width > 1
-        elif width == 2:  # time and A-B, or A and B with the interval from elsewhere
-            has_time = first_rises and options.signal != "lines"
-        else:
-            has_time = width == 3 and first_rises
-        time_column = 0 if has_time else None
-    else:
-        bases = [_BRACKET.sub("", n).strip().lower() for n in table.names]
-        time_column = next((i for i, b in enumerate(bases) if b in _TIME_NAMES or b.startswith("time")), None)
-        if time_column is None and not interval_known:
-            time_column = 0
-        for i, name in enumerate(table.names):
-            for unit in _BRACKET.findall(name):
-                if i == time_column:
-                    factor = _unit_factor(unit, TIME_UNITS)
-                    if factor is None:
-                        raise BusInputError([_unknown_unit("time_unit", "Time unit", unit, TIME_UNITS)])
-                    time_factor = factor
-                else:
-                    factor = _unit_factor(unit, VOLTAGE_UNITS)
-                    if factor is not None:
-                        voltage_factor = factor
-                    elif not bases[i].startswith("v"):  # 'V(A)' names a net, not a unit
-                        raise BusInputError([_unknown_unit("voltage_unit", "Voltage unit", unit, VOLTAGE_UNITS)])
-    signal_columns = [i for i in range(width) if i != time_column]
-    if table.names is not None and len(signal_columns) == 2:
-        tags = [re.findall(r"[a-z0-9]+", table.names[i].lower())[-1:] for i in signal_columns]
-        if tags == [["b"], ["a"]]:
-            signal_columns.reverse()
-    return _Layout(time_column, signal_columns, time_factor, voltage_factor)
-
-
 def parse_capture(text: str, options: CaptureOptions = CaptureOptions()) -> Capture:
     """Read a capture (module docstring). Bad input raises BusInputError naming the field, value and range."""
     check_options(options)
-    table = _read_table(text)
+    table = read_table(text)
     warnings: list[str] = []
-    items = _header_items(table.header, table.separator)
-    header_dt = _header_interval(items)
-    header_time_unit, header_voltage_unit = _header_units(items)
-    layout = _column_layout(table, options, options.sample_interval_s is not None or header_dt is not None)
+    items = header_items(table.header, table.separator)
+    header_dt = header_interval(items)
+    header_time_unit, header_voltage_unit = header_units(items)
+    layout = column_layout(table, options.signal, options.sample_interval_s is not None or header_dt is not None)
     n = table.rows.shape[0]
     if n < MIN_SAMPLES:
-        raise _file_error(
+        raise file_error(
             n,
             {"min": MIN_SAMPLES, "unit": "samples"},
             f"The capture holds {n} samples; at least {MIN_SAMPLES} are needed to see an edge and what follows it.",
@@ -340,7 +142,7 @@ def parse_capture(text: str, options: CaptureOptions = CaptureOptions()) -> Capt
         if dt is None:
             raise BusInputError(
                 [
-                    _problem(
+                    problem(
                         "sample_interval_s",
                         "Sample interval",
                         None,
@@ -352,19 +154,19 @@ def parse_capture(text: str, options: CaptureOptions = CaptureOptions()) -> Capt
             )
         t0 = 0.0
     else:
-        t0, dt = _uniform_time(table, layout.time_column, time_factor or 1.0)
+        t0, dt = uniform_time(table, layout.time_column, time_factor or 1.0)
         if options.sample_interval_s is not None and abs(options.sample_interval_s / dt - 1.0) > 0.01:
             warnings.append(
                 f"The time column steps by {dt:.4g} s, not the {options.sample_interval_s:.4g} s entered; the time "
                 "column is used."
             )
-    signal, v = _differential(table, layout, options.signal)
+    signal, v = differential(table, layout, options.signal)
     v = v * (voltage_factor or 1.0) * options.probe_attenuation
     time_s = t0 + dt * np.arange(n)
     noise_v = noise_sigma_v(v)
     swing_v = float(np.percentile(v, 99.5) - np.percentile(v, 0.5))
     if swing_v < EDGE_NOISE_RATIO * noise_v or swing_v == 0.0:
-        raise _file_error(
+        raise file_error(
             f"swing {swing_v:.3g} V",
             {"min_swing_v": EDGE_NOISE_RATIO * noise_v},
             f"The trace stays within {swing_v * 1e3:.3g} mV (noise about {noise_v * 1e3:.2g} mV): it holds no edge. "
@@ -373,7 +175,7 @@ def parse_capture(text: str, options: CaptureOptions = CaptureOptions()) -> Capt
     clipped = _clipped(v)
     share = float(np.count_nonzero(clipped)) / n
     if share > MAX_CLIPPED_FRACTION:
-        raise _file_error(
+        raise file_error(
             f"{100 * share:.0f} % clipped",
             {"max_clipped_fraction": MAX_CLIPPED_FRACTION},
             f"The trace sits flat at the scope's limit for {100 * share:.0f} % of the capture: it is clipped. "
@@ -392,123 +194,10 @@ def _pick_factor(
     chosen: str | None, table: dict[str, float], from_names: float | None, from_header: str | None
 ) -> float | None:
     if chosen is not None:
-        return _unit_factor(chosen, table)
+        return unit_factor(chosen, table)
     if from_names is not None:
         return from_names
-    return None if from_header is None else _unit_factor(from_header, table)
-
-
-def _header_interval(items: dict[str, tuple[str, str]]) -> float | None:
-    for key, (value, unit) in items.items():
-        if not _is_number(value):
-            continue
-        number = float(value)
-        if any(w in key for w in ("interval", "increment", "time step", "sample period", "time per sample")) or key in (
-            "dt",
-            "xinc",
-        ):
-            factor = _unit_factor(unit, TIME_UNITS) if unit else 1.0
-            if factor is None:
-                raise BusInputError([_unknown_unit("time_unit", "Time unit", unit, TIME_UNITS)])
-            if number > 0:
-                return number * factor
-        if "sample rate" in key or "sampling rate" in key:
-            factor = _unit_factor(unit, RATE_UNITS) if unit else 1.0
-            if factor is None:
-                raise BusInputError([_unknown_unit("sample_interval_s", "Sample rate unit", unit, RATE_UNITS)])
-            if number > 0:
-                return 1.0 / (number * factor)
-    return None
-
-
-def _header_units(items: dict[str, tuple[str, str]]) -> tuple[str | None, str | None]:
-    time_unit = voltage_unit = None
-    for key, (value, _) in items.items():
-        if "unit" not in key:
-            continue
-        if _unit_factor(value, TIME_UNITS) is not None:
-            time_unit = value
-        elif _unit_factor(value, VOLTAGE_UNITS) is not None:
-            voltage_unit = value
-    return time_unit, voltage_unit
-
-
-def _uniform_time(table: _Table, column: int, factor: float) -> tuple[float, float]:
-    """(t0, dt) of a time column that rises steadily; a step back or a gap raises, naming the file line."""
-    t = table.rows[:, column] * factor
-    steps = np.diff(t)
-    printed = float(np.median([_printed_step(s) for s in table.time_text[:: max(1, t.size // 200)]])) * factor
-    # repeated times are allowed only where the column is printed too coarsely to tell neighbours apart
-    coarse = t[-1] > t[0] and 2.0 * printed >= 0.5 * (t[-1] - t[0]) / (t.size - 1)
-    back = np.flatnonzero(steps < 0 if coarse else steps <= 0)
-    if back.size:
-        k = int(back[0]) + 1
-        raise _file_error(
-            f"line {table.line_of[k]}",
-            {"rule": "time rises from row to row"},
-            f"Time does not rise at line {table.line_of[k]} of the capture ({t[k - 1]:.6g} s, then {t[k]:.6g} s); "
-            "the rows must be in time order without repeats.",
-        )
-    k_index = np.arange(t.size)
-    dt, t0 = np.polyfit(k_index, t, 1)
-    off = np.abs(t - (t0 + dt * k_index))
-    worst = int(np.argmax(off))
-    if off[worst] > max(STEP_TOLERANCE * dt, printed):
-        step_at = int(np.argmax(np.abs(steps - dt)))
-        raise _file_error(
-            f"line {table.line_of[step_at + 1]}",
-            {"rule": f"every time step within {100 * STEP_TOLERANCE:.0f} % of the mean step"},
-            f"The time steps are irregular: the step to line {table.line_of[step_at + 1]} is {steps[step_at]:.4g} s "
-            f"where the mean step is {dt:.4g} s. Save the capture without gaps, at one sample rate.",
-        )
-    return float(t0), float(dt)
-
-
-def _printed_step(text: str) -> float:
-    """Half a unit in the last printed digit of a number as written ('1.25e-6' -> 5e-9)."""
-    mantissa, _, exponent = text.lower().partition("e")
-    decimals = len(mantissa.partition(".")[2])
-    return 0.5 * 10.0 ** (int(exponent or 0) - decimals)
-
-
-def _differential(
-    table: _Table, layout: _Layout, signal: Signal
-) -> tuple[Literal["differential", "lines"], np.ndarray]:
-    columns = layout.signal_columns
-    if not columns:
-        raise _file_error(
-            "time only",
-            {"columns": "time, then A-B or A and B"},
-            "The capture holds a time column and no voltage column.",
-        )
-    if signal == "auto" and len(columns) > 2:
-        raise BusInputError(
-            [
-                _problem(
-                    "signal",
-                    "Signal",
-                    "auto",
-                    {"choices": ["differential", "lines"]},
-                    f"The capture has {len(columns)} voltage columns; say which to use: differential (the first "
-                    "column is A-B) or lines (the first two are A and B against ground).",
-                )
-            ]
-        )
-    if signal == "lines" or (signal == "auto" and len(columns) == 2):
-        if len(columns) < 2:
-            raise BusInputError(
-                [
-                    _problem(
-                        "signal",
-                        "Signal",
-                        signal,
-                        {"choices": ["differential"]},
-                        "Lines A and B need two voltage columns; this capture has one. Choose differential.",
-                    )
-                ]
-            )
-        return "lines", table.rows[:, columns[0]] - table.rows[:, columns[1]]
-    return "differential", table.rows[:, columns[0]].copy()
+    return None if from_header is None else unit_factor(from_header, table)
 
 
 def noise_sigma_v(v_v: np.ndarray) -> float:
@@ -542,6 +231,9 @@ __all__ = [
     "CaptureOptions",
     "MAX_CAPTURE_BYTES",
     "MIN_SAMPLES",
+    "SIGNALS",
+    "TIME_UNITS",
+    "VOLTAGE_UNITS",
     "check_options",
     "decode_capture",
     "noise_sigma_v",
