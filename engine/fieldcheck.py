@@ -132,7 +132,8 @@ def check_capture(plan: BusPlan, capture: Capture, setup: FieldSetup) -> FieldCh
                     fit.time_s.size,
                     {"min": MIN_SAMPLES, "unit": "samples"},
                     f"Only {fit.time_s.size} samples of the capture fall in the plan's window around the edge "
-                    f"({time_text(window.end_s - window.start_s)}); at least {MIN_SAMPLES} are needed: sample faster.",
+                    f"({time_text(window.end_s - window.start_s)}); at least {MIN_SAMPLES} are needed: sample "
+                    "faster, or check the time unit (times in µs read as seconds look like this).",
                 )
             ]
         )
