@@ -271,11 +271,15 @@ def termination_fix(bus: Bus, trial: _Trial) -> ComputedFix | None:
     best = _bisect(lambda r: trial.passes(_with_end_terminators(bus, r)), z0, 10.0 * z0, MAX_BISECTIONS, log=True)
     value = nearest_preferred(z0)
     ends = " and ".join(end_name(bus, e) for e in required_ends_m(bus))
-    has = bool(bus.plan.terminations)
-    verb = "set the terminators at" if has else "fit terminators at"
+    terms = bus.plan.terminations
+    if any(t.kind == "rc" for t in terms):
+        head = f"replace the RC terminators at {ends} with plain {value:g} Ω resistors"
+    elif terms:
+        head = f"set the terminators at {ends} to {value:g} Ω"
+    else:
+        head = f"fit {value:g} Ω terminators at {ends}"
     text = (
-        f"{verb} {ends} to {value:g} Ω, the cable's Z0 (parallel; in simulation anything from {z0:g} Ω up to "
-        f"{preferred_at_or_below(best):g} Ω passes)"
+        f"{head}, the cable's Z0 (in simulation anything from {z0:g} Ω up to {preferred_at_or_below(best):g} Ω passes)"
     )
     return ComputedFix("termination_ohm", None, value, "Ω", text, trial.count - before)
 

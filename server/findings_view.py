@@ -110,25 +110,21 @@ def deciding_rules(findings: "list[dict[str, Any]]", verdict: str) -> list[str]:
 
 
 def capacity_data(report: Any) -> dict[str, Any]:
-    """The load on the pair and how many more receivers fit, as figures and as text."""
+    """The load on the pair, and how many more receivers fit: the engine's one answer, counted on the advised
+    plan (engine.capacity), used as it is wherever spare capacity is mentioned."""
     plan, summary = report.plan, report.summary
     load = next((f for f in report.findings if f.rule_id == "load.unit_loads" and f.node is None), None)
     total = load.value if load is not None else None
     further = {str(k): int(v) for k, v in dict(summary.further_nodes).items()}
     if plan.standard == "rs422":
-        spare = max(0, int(summary.spare_unit_loads))
         load_text = f"{counted(len(plan.nodes), 'receiver', 'receivers')} of 10"
-        more_text = counted(spare, "more receiver", "more receivers") if spare else "none: the driver feeds 10 at most"
     else:
         load_text = f"{number_text(total)} UL of 32 UL" if total is not None else "—"
-        if summary.spare_unit_loads <= 0 or not any(further.values()):
-            more_text = "none: the 32 UL budget is used up"
-        else:
-            more_text = " · ".join(f"{n} more at {cls}" for cls, n in further.items())
     return {
         "unit_loads": total,
         "unit_loads_text": load_text,
         "spare_unit_loads": summary.spare_unit_loads,
         "further_nodes": further,
-        "more_text": more_text,
+        "more_text": report.capacity.text,
+        "text": report.capacity.text,
     }

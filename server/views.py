@@ -4,6 +4,7 @@
 lists). SVG coordinates come from `server.diagram` and `server.plots`; this module only assembles them.
 """
 
+import json
 import math
 from collections.abc import Mapping
 from dataclasses import asdict, fields, is_dataclass
@@ -15,6 +16,7 @@ from pairline.engine import ENGINE_VERSION
 from pairline.engine.findings import Verdict, worst
 from pairline.engine.library import CABLES, TRANSCEIVERS
 from pairline.engine.plan import BusPlan, Problem, plan_to_dict
+from pairline.engine.rules.power import rating_text
 from pairline.engine.units import si_format
 from pairline.server.cautions import cautions_data, danger_data
 from pairline.server.diagram import bus_drawing, node_anchor
@@ -75,7 +77,10 @@ def json_safe(value: Any) -> Any:
 
 def bom_rows(bom: Any, units: UnitSystem) -> list[dict[str, Any]]:
     """Bill-of-materials rows for the page and the CSV, positions in the plan's display unit."""
-    return [asdict(item) | {"note": lengths_in_text(item.note, units)} for item in bom]
+    return [
+        asdict(item) | {"value": lengths_in_text(item.value, units), "note": lengths_in_text(item.note, units)}
+        for item in bom
+    ]
 
 
 def _field_meta(units: UnitSystem) -> dict[str, dict[str, dict[str, Any]]]:
@@ -263,6 +268,7 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
             "holding_rules": holding_rules(findings),
             "nodes": nodes,
             "summary": _summary_data(summary, units),
+            "advice": advice_data(report, units, plan_id),
             "waveforms": waveforms,
             "curve": {
                 "bit_rate_bps": sweep.bit_rate_bps,
@@ -407,7 +413,7 @@ def _summary_data(summary: Any, units: UnitSystem) -> dict[str, Any]:
             "kind": t.kind,
             "resistance_text": quantity_text(t.resistance_ohm, "Ω", units),
             "capacitance_text": quantity_text(t.capacitance_f, "F", units) if t.capacitance_f else "",
-            "power_text": quantity_text(t.power_rating_w, "W", units),
+            "power_text": rating_text(t.power_rating_w),
             **asdict(t),
         }
         for t in summary.terminators
@@ -421,19 +427,21 @@ def _summary_data(summary: Any, units: UnitSystem) -> dict[str, Any]:
             "pull_up_text": quantity_text(b.pull_up_ohm, "Ω", units),
             "pull_down_text": quantity_text(b.pull_down_ohm, "Ω", units),
             "idle_text": quantity_text(b.idle_v, "V", units),
-            "power_text": quantity_text(b.power_rating_w, "W", units),
+            "idle_corner_text": quantity_text(b.idle_corner_v, "V", units),
+            "power_text": rating_text(b.power_rating_w),
         }
+    rate = quantity_text(summary.max_bit_rate_bps, "bit/s", units)
     return {
         "terminators": terminators,
         "bias": bias,
         "spare_unit_loads": summary.spare_unit_loads,
         "further_nodes": dict(summary.further_nodes),
+        "capacity_text": summary.capacity.text,
         "max_bit_rate_bps": summary.max_bit_rate_bps,
-        "max_bit_rate_text": (
-            quantity_text(summary.max_bit_rate_bps, "bit/s", units)
-            if summary.max_bit_rate_bps is not None
-            else "no rate: the trunk is too long for these rules"
-        ),
+        "max_bit_rate_text": rate,
+        "max_path_m": summary.max_path_m,
+        "max_path_text": quantity_text(summary.max_path_m, "m", units),
+        "rate_note": in_plan_units(summary.rate_note, units),
         "bias_note": in_plan_units(summary.bias_note, units),
         "bom": bom_rows(summary.bom, units),
     }
@@ -461,10 +469,53 @@ def check_data(report: Any) -> dict[str, Any]:
                 finding_data(f, i, units, anchors) for i, f in enumerate(ordered) if f.verdict != Verdict.HOLDS
             ],
             "summary": _summary_data(report.summary, units),
+            "advice": advice_data(report, units, None),
             "danger": danger_data(plan),
         }
     )
     data["report"] = report_to_dict(report)
+    return data
+
+
+def advice_data(report: Any, units: UnitSystem, plan_id: str | None) -> dict[str, Any]:
+    """The advised plan's verdict, its change list and what cannot be met, and where the editor opens it."""
+    advice = report.advice
+    return {
+        "verdict": advice.verdict.value,
+        "counts": {v.value: sum(1 for f in advice.findings if f.verdict is v) for v in Verdict},
+        "changes": [
+            {
+                "part": c.part,
+                "where": in_plan_units(c.where, units),
+                "text": in_plan_units(c.text[:1].upper() + c.text[1:], units),
+                "from": in_plan_units(c.before_text, units),
+                "to": in_plan_units(c.after_text, units),
+                "why": c.why[:1].upper() + c.why[1:],
+                "rule_ids": list(c.rule_ids),
+            }
+            for c in advice.changes
+        ],
+        "unmet": [
+            {
+                "rule_id": u.rule_id,
+                "nodes": list(u.nodes),
+                "why": in_plan_units(u.why, units),
+                "remedies": [in_plan_units(r, units) for r in u.remedies],
+            }
+            for u in advice.unmet
+        ],
+        "plan": plan_to_dict(advice.plan),
+        # Saved plans open their advice by link; a draft posts its plan back (it has no id yet).
+        "open_url": f"/plans/{plan_id}/advised" if plan_id else None,
+        "draft_json": None if plan_id else json.dumps(plan_to_dict(report.plan)),
+    }
+
+
+def advised_editor_data(report: Any, state: FormState, *, saved_from: SavedPlan | None = None) -> dict[str, Any]:
+    """The editor opened on the advised plan as a new, unsaved draft, with the changes that made it listed."""
+    title = "Advised plan: a new draft, not saved yet"
+    data = editor_data(state, title=title, saved_from=saved_from)
+    data["advice"] = advice_data(report, state.units, None) | {"from_title": report.plan.title or "Untitled bus"}
     return data
 
 

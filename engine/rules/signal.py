@@ -20,15 +20,18 @@ as HOLDS here, with the rule's own finding still beside it. The termination conf
 simulated verdict only when the bus has no terminators; with terminators fitted its what-if is advice (HOLDS).
 """
 
+from dataclasses import dataclass
+
 import numpy as np
 from pairline.engine.bus import Bus, build_bus
 from pairline.engine.findings import Finding, Verdict, worst
 from pairline.engine.fixes import ComputedFix, SignalJudgement, compute_fixes, judge_bus, one_driver, pattern_duration_s
-from pairline.engine.rules.cable_ends import required_ends_m, terminator_value_ohm
+from pairline.engine.metrics import ReceiverMetrics
+from pairline.engine.rules.cable_ends import end_name, required_ends_m, terminator_value_ohm
 from pairline.engine.rules.stubs import check_stubs
 from pairline.engine.rules.unterminated import line_may_stay_unterminated
-from pairline.engine.units import si_format
-from pairline.engine.waveform import step_responses
+from pairline.engine.units import length_text, si_format
+from pairline.engine.waveform import StepResponses, default_pattern, step_responses
 
 MAX_STUB_CONFIRMS = 8  # flagged stubs reported one by one; the rest summarised
 MAX_WATCHED = 8  # receivers judged in a second (what-if) simulation on large buses
@@ -63,32 +66,78 @@ def drivers_to_simulate(bus: Bus) -> list[str]:
     return list(dict.fromkeys(picked))[:MAX_DRIVERS_SAMPLED]
 
 
-def _worst_over_drivers(bus: Bus) -> dict[str, tuple[SignalJudgement, str]]:
-    """Per receiver, its worst judgement over the nodes that may drive (drivers_to_simulate), with the driver."""
+@dataclass(frozen=True, slots=True)
+class Simulation:
+    """What the signal rule simulated, kept so that nothing downstream solves it again: the primary driver's edge
+    responses at every receiver, its bit pattern and each receiver's metrics; each receiver's worst judgement over
+    the drivers simulated, with the driver; and the fixes found by re-simulating."""
+
+    driver_name: str  # the primary driver
+    bits: str  # the pattern the primary driver sent
+    step: StepResponses  # the primary driver's edge responses at every receiver
+    metrics: tuple[ReceiverMetrics, ...]  # every receiver, plan order, from the primary driver
+    worst: tuple[tuple[SignalJudgement, str], ...]  # every receiver, plan order: its worst judgement and driver
+    fixes: tuple[ComputedFix, ...]  # re-simulated fixes for receivers the primary driver breaks
+
+    def judgement(self, receiver: str) -> tuple[SignalJudgement, str]:
+        return next(item for item in self.worst if item[0].receiver == receiver)
+
+
+def simulate_bus(bus: Bus) -> Simulation:
+    """Simulate every node that may drive (drivers_to_simulate), judge each receiver by its worst case, and find
+    re-simulated fixes for the receivers the primary driver breaks."""
     drivers = drivers_to_simulate(bus)
+    primary = bus.plan.driver.name
     steps = step_responses(bus, drivers, max_time_s=pattern_duration_s(bus, bus.plan.test_pattern))
+    primary_step = one_driver(steps, primary)
+    bits = bus.plan.test_pattern or default_pattern(primary_step, 1.0 / bus.plan.bit_rate_bps)
     out: dict[str, tuple[SignalJudgement, str]] = {}
+    from_primary: dict[str, SignalJudgement] = {}
     for name in drivers:
-        judged = judge_bus(bus, driver_name=name, step=one_driver(steps, name))
+        step = primary_step if name == primary else one_driver(steps, name)
+        judged = judge_bus(bus, driver_name=name, step=step, pattern=bits if name == primary else None)
+        if name == primary:
+            from_primary = judged
         for rx, j in judged.items():
             if rx == name:  # a node does not listen to itself: its own receiver is not judged while it drives
                 continue
             old = out.get(rx)
             if old is None or _severity(j) > _severity(old[0]):
                 out[rx] = (j, name)
-    return out
+    failing = [rx for rx, (j, d) in out.items() if j.verdict is Verdict.BREAKS and d == primary]
+    return Simulation(
+        driver_name=primary,
+        bits=bits,
+        step=primary_step,
+        metrics=tuple(from_primary[n.name].metrics for n in bus.plan.nodes),
+        worst=tuple(out[n.name] for n in bus.plan.nodes),
+        fixes=tuple(compute_fixes(bus, failing)) if failing else (),
+    )
 
 
 def _severity(j: SignalJudgement) -> tuple[int, float]:
     return (j.verdict.rank, -j.metrics.eye_height_v)
 
 
-def _fix_text(fixes: list[ComputedFix]) -> str:
+def fix_text(fixes: "tuple[ComputedFix, ...] | list[ComputedFix]") -> str:
     """Each computed fix makes every failing receiver pass on re-simulation, wherever the change is made: a long
     stub on one node can be what breaks its neighbours."""
     if not fixes:
         return ""
     return "Re-simulated fixes (any one): " + "; ".join(f.sentence for f in fixes) + "."
+
+
+def termination_step(bus: Bus) -> str:
+    """The terminator change that would widen a margin, worded for what the plan already has at the ends."""
+    ends = required_ends_m(bus)
+    value = terminator_value_ohm(bus, ends[0])
+    where = " and ".join(end_name(bus, e) for e in ends)
+    terms = bus.plan.terminations
+    if not terms:
+        return f"fit {value:g} Ω terminators at {where}"
+    if any(t.kind == "rc" for t in terms):
+        return f"replace the RC terminators with plain {value:g} Ω resistors at {where}"
+    return f"set the terminators at {where} to {value:g} Ω"
 
 
 def headline(j: SignalJudgement) -> tuple[str, float, float, str, str]:
@@ -107,15 +156,14 @@ def headline(j: SignalJudgement) -> tuple[str, float, float, str, str]:
     return "lowest sampled level", m.min_sample_v, th, "V", "min"
 
 
-def check_signal_integrity(bus: Bus) -> list[Finding]:
-    """Rule "signal.integrity" (one finding per receiver) and rule "signal.confirms" (stubs, termination)."""
-    judged = _worst_over_drivers(bus)
+def check_signal_integrity(bus: Bus, simulation: Simulation | None = None) -> list[Finding]:
+    """Rule "signal.integrity" (one finding per receiver) and rule "signal.confirms" (stubs, termination);
+    simulation: what simulate_bus(bus) returned, when the caller has it already."""
+    sim = simulation if simulation is not None else simulate_bus(bus)
     primary = bus.plan.driver.name
-    failing = [rx for rx, (j, d) in judged.items() if j.verdict is Verdict.BREAKS and d == primary]
-    fixes = compute_fixes(bus, failing) if failing else []
     findings = []
-    for node in bus.plan.nodes:
-        j, driver = judged[node.name]
+    fixes_by_node: dict[str, str] = {}
+    for node, (j, driver) in zip(bus.plan.nodes, sim.worst, strict=True):
         m = j.metrics
         driven_by = "" if driver == primary else f" (worst case: '{driver}' driving)"
         detail = (
@@ -128,20 +176,26 @@ def check_signal_integrity(bus: Bus) -> list[Finding]:
         )
         if j.reasons:
             detail = "; ".join(j.reasons) + ". " + detail
+        steps = []
+        if node.stub_length_m > 0.0:
+            steps.append(f"shorten its {length_text(node.stub_length_m)} stub")
+        steps.append(termination_step(bus))
         fix = ""
         if j.verdict is Verdict.TIGHT:
             fix = (
-                f"Margin at '{node.name}'{driven_by} is small ({'; '.join(j.reasons)}). To widen it: shorten its "
-                f"{node.stub_length_m:g} m stub, fit Z0 terminators at both cable ends, or lower the bit rate "
-                f"below {si_format(1.0 / m.bit_time_s, 'bit/s')}; then re-check."
+                f"Margin at '{node.name}'{driven_by} is small ({'; '.join(j.reasons)}). To widen it: "
+                + ", ".join(steps)
+                + f", or lower the bit rate below {si_format(1.0 / m.bit_time_s, 'bit/s')}; then re-check."
             )
         if j.verdict is Verdict.BREAKS:
-            fix = _fix_text(fixes) if driver == primary else ""
+            fix = fix_text(sim.fixes) if driver == primary else ""
             if not fix:
                 fix = (
-                    f"No single change found by re-simulation for '{node.name}'{driven_by}: shorten its stub, "
-                    "terminate both cable ends with Z0 and lower the bit rate together, then re-check."
+                    f"No single change found by re-simulation for '{node.name}'{driven_by}: "
+                    + " and ".join(steps)
+                    + ", and lower the bit rate together, then re-check."
                 )
+        fixes_by_node[node.name] = fix
         quantity, value, limit, unit, limit_kind = headline(j)
         findings.append(
             Finding(
@@ -159,14 +213,17 @@ def check_signal_integrity(bus: Bus) -> list[Finding]:
                 detail=detail,
             )
         )
-    from_primary = {rx: j for rx, (j, d) in judged.items() if d == primary} or None
-    findings += confirm_stub_rule(bus, from_primary)
+    from_primary = {j.receiver: j for j, d in sim.worst if d == primary} or None
+    findings += confirm_stub_rule(bus, from_primary, fixes_by_node)
     findings.append(confirm_termination_rule(bus, from_primary))
     return findings
 
 
-def confirm_stub_rule(bus: Bus, judged: dict[str, SignalJudgement] | None = None) -> list[Finding]:
-    """Rule "signal.confirms" for "stub.length": each flagged stub's node with and without the flagged stubs."""
+def confirm_stub_rule(
+    bus: Bus, judged: dict[str, SignalJudgement] | None = None, fixes_by_node: dict[str, str] | None = None
+) -> list[Finding]:
+    """Rule "signal.confirms" for "stub.length": each flagged stub's node with and without the flagged stubs.
+    fixes_by_node: the fix sentence of each receiver's signal.integrity finding, which a confirmation repeats."""
     stub_findings = {f.node: f for f in check_stubs(bus) if f.node is not None}
     flagged = [n for n, f in stub_findings.items() if f.verdict is not Verdict.HOLDS]
     if judged is None or any(n.name not in judged for n in bus.plan.nodes if n.name in flagged):
@@ -187,9 +244,7 @@ def confirm_stub_rule(bus: Bus, judged: dict[str, SignalJudgement] | None = None
                 node=None,
                 criterion="The stub rule passes every stub; the simulation judges every receiver.",
                 source=_SOURCE,
-                fix=""
-                if sim is Verdict.HOLDS
-                else f"Follow the re-simulated fixes of the signal.integrity finding at '{worst_rx.receiver}'.",
+                fix="" if sim is Verdict.HOLDS else _receiver_fix(bus, worst_rx, fixes_by_node),
                 detail=(
                     f"simulation: worst receiver '{worst_rx.receiver}' {sim.value} with ringback "
                     f"{worst_rx.metrics.undershoot_v:.2f} V and {worst_rx.metrics.threshold_recrossings} re-crossing(s)"
@@ -267,6 +322,14 @@ def confirm_stub_rule(bus: Bus, judged: dict[str, SignalJudgement] | None = None
             )
         )
     return out
+
+
+def _receiver_fix(bus: Bus, j: SignalJudgement, fixes_by_node: dict[str, str] | None) -> str:
+    """The fix a confirmation repeats: the receiver's own signal.integrity fix when there is one."""
+    own = (fixes_by_node or {}).get(j.receiver, "")
+    if own:
+        return f"As for '{j.receiver}' under signal.integrity: {own}"
+    return f"At '{j.receiver}': {termination_step(bus)}, or lower the bit rate, then re-check."
 
 
 def _watch_list(bus: Bus, judged: dict[str, SignalJudgement] | None) -> list[str] | None:

@@ -8,7 +8,7 @@ from fastapi.responses import JSONResponse, Response
 from pairline.engine import ENGINE_VERSION
 from pairline.engine.plan import BusInputError, Problem, load_plan, plan_to_dict
 from pairline.server.forms import plan_from_body
-from pairline.server.results import check_only
+from pairline.server.results import quick_check
 from pairline.server.store import PlanStore
 from pairline.server.views import check_data
 
@@ -43,7 +43,7 @@ async def check(request: Request) -> Response:
     pictures; a saved plan's page twin has them). The body is a plan, or {"form": {...}} with the editor's
     typed fields, as its live verdict sends."""
     plan = plan_from_body(await _json_body(request))
-    return JSONResponse(check_data(check_only(plan)))
+    return JSONResponse(check_data(quick_check(plan)))
 
 
 @router.post("/plans")

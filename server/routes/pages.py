@@ -26,7 +26,7 @@ from pairline.server.node_table import read_node_table, with_pasted_rows
 from pairline.server.quantities import UnitSystem
 from pairline.server.results import check_and_simulate, check_only
 from pairline.server.store import PlanStore, SavedPlan
-from pairline.server.views import bom_rows, editor_data, lineage_data, plan_data, start_data
+from pairline.server.views import advised_editor_data, bom_rows, editor_data, lineage_data, plan_data, start_data
 
 router = APIRouter()
 UTF8_BOM = "\ufeff"  # spreadsheet programs read a CSV as UTF-8 (so "Ω" survives) only when it starts with this
@@ -232,6 +232,38 @@ def plan_page(request: Request, ref: str, store: StoreDep, receiver: str | None 
     parent = store.get_plan(saved.parent_id) if saved.parent_id else None
     data["lineage"] = lineage_data(parent, [c for c in map(store.get_plan, children) if c is not None])
     return page(request, "plan.html", data, as_json)
+
+
+@router.get("/plans/{ref}/advised")
+@router.get("/plans/{ref}/advised.json")
+def advised_page(request: Request, ref: str, store: StoreDep) -> Response:
+    """The editor opened on a saved plan's advised plan: a new, unsaved draft, with the changes listed."""
+    found = _saved(store, ref)
+    if found is None:
+        return not_found(request)
+    saved, plan = found
+    report = check_only(plan)
+    state = form_from_plan(plan_to_dict(report.advice.plan), parent_id=saved.id)
+    data = advised_editor_data(report, state, saved_from=saved)
+    return page(request, "editor.html", data, request.url.path.endswith(".json"))
+
+
+@router.post("/plans/advised")
+async def advised_draft(request: Request, store: StoreDep) -> Response:
+    """The same for a checked draft that has no id yet: its plan comes back in the form."""
+    async with request.form(max_fields=4) as form:
+        raw = form.get("plan_json")
+        parent = form.get("parent_id")
+    try:
+        doc = json.loads(raw if isinstance(raw, str) else "")
+    except json.JSONDecodeError as exc:
+        raise BusInputError(
+            [Problem("plan_json", "Plan", None, {"type": "JSON object"}, f"The plan is not valid JSON ({exc.msg}).")]
+        ) from exc
+    report = check_only(load_plan(doc))
+    parent_id = parent if isinstance(parent, str) and parent and store.get_plan(parent) else None
+    state = form_from_plan(plan_to_dict(report.advice.plan), parent_id=parent_id)
+    return render(request, "editor.html", advised_editor_data(report, state))
 
 
 @router.get("/plans/{ref}/download")

@@ -105,7 +105,7 @@ def test_live_verdict_follows_typing_within_a_second(page, base_url):
     # and a 470 Ω bias (12 kΩ / 470 Ω = 25.53 UL, TI SLLA272's count) make 26.7 UL of the 32 UL budget.
     assert page.locator("#live-unit-loads").inner_text() == "26.7 UL of 32 UL"
     # Source: TIA-485-A 32 UL budget: 32 − 26.66 = 5.34 UL spare, room for 5 more 1 UL receivers.
-    assert page.locator("#live-spare").inner_text().startswith("5 more at 1 UL")
+    assert page.locator("#live-spare").inner_text().startswith("5 more of 1 UL")
     assert "verdict-breaks" not in pill.get_attribute("class")
     page.fill("input[name='nodes.0.stub_length_m']", "")
     page.wait_for_function("document.getElementById('live-verdict').dataset.state === 'checked'")

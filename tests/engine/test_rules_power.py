@@ -8,7 +8,7 @@ from hypothesis import strategies as st
 from pairline.engine.bus import build_bus
 from pairline.engine.findings import Verdict
 from pairline.engine.plan import load_plan
-from pairline.engine.rules.bias import check_failsafe_bias, recommended_bias_ohm
+from pairline.engine.rules.bias import check_failsafe_bias, size_bias
 from pairline.engine.rules.common_mode import check_common_mode
 from pairline.engine.rules.length_rate import check_length_vs_rate, max_bit_rate_bps
 from pairline.engine.rules.power import check_resistor_power, rating_to_buy_w, resistor_powers
@@ -140,4 +140,5 @@ def test_rules_7_to_11_never_raise_and_give_finite_numbers(doc):
         assert f.limit is None or math.isfinite(f.limit), f
         assert f.verdict is Verdict.HOLDS or f.fix, f
     rate_bps = max_bit_rate_bps(bus)
-    assert (rate_bps is None or math.isfinite(rate_bps)) and math.isfinite(recommended_bias_ohm(bus))
+    sizing = size_bias(bus, bus.plan.driver.position_m)
+    assert math.isfinite(rate_bps) and math.isfinite(sizing.corner_max_ohm) and math.isfinite(sizing.nominal_max_ohm)

@@ -160,14 +160,16 @@ def test_every_picture_shows_the_findings_verdict_and_the_rule_that_decided_it(c
 def test_a_tight_finding_reads_as_close_to_the_limit(client):
     from tests.server.html_dom import parse_html
 
-    # Source: TIA-485-A, 32 UL per driver; 30 receivers of 1 UL and the driver's own 1/4 UL leave 1.75 UL,
-    # under a tenth of the budget (Pairline's TIGHT band): close to the limit, not over it.
+    # Source: TIA-485-A, 32 UL per driver; TI SLLA272, a bias counts 12 kOhm / R unit loads: 12 receivers of 1 UL,
+    # the driver's own 1/4 UL and 620 Ohm of bias (19.35 UL) are 31.6 UL, inside 32; with the bias resistors 5 %
+    # low (IEC 60063 E24 parts) 32.6 UL, over it: tight, close to the limit, not over it.
     plan = {
         "bit_rate_bps": 9600,
         "trunk_length_m": 300.0,
         "driver": {"name": "head", "transceiver": "edge-100ns"},
-        "nodes": [{"name": f"n{k}", "position_m": 10.0 * (k + 1)} for k in range(30)],
+        "nodes": [{"name": f"n{k}", "position_m": 25.0 * (k + 1)} for k in range(12)],
         "terminations": [{"position_m": 0.0, "resistance_ohm": 120.0}, {"position_m": 300.0, "resistance_ohm": 120.0}],
+        "bias": {"position_m": 150.0, "pull_up_ohm": 620.0, "pull_down_ohm": 620.0},
     }
     plan_id = client.post("/api/plans", json=plan).json()["id"]
     dom = parse_html(client.get(f"/plans/{plan_id}").text)
