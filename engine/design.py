@@ -270,6 +270,7 @@ class Design:
     findings: tuple[Finding, ...]
     bias_ohm: float
     order: int  # preference of the bias position (the plan's first)
+    moved: bool  # the bias network leaves the place the plan gives it
 
     @property
     def breaks(self) -> int:
@@ -277,11 +278,12 @@ class Design:
 
     def key(self) -> tuple[int, int, int, int, int, float]:
         """Fewest breaks; among those, fewest in the loading rules (an idle level failsafe receivers can rescue,
-        a loading limit they cannot); then fewest tight, fewest changes, the bias where the plan has it (else at
-        the driver, where its supply is), the weakest bias."""
+        a loading limit they cannot); then fewest tight; then the bias left where the plan has it (changing
+        resistor values is easier on site than moving a network to another device); fewest changes; the bias
+        where the plan has it, else at the driver, where its supply is; the weakest bias."""
         load = sum(f.verdict is Verdict.BREAKS for f in self.findings if f.rule_id.startswith("load."))
         tight = sum(f.verdict is Verdict.TIGHT for f in self.findings)
-        return (self.breaks, load, tight, len(self.changes), self.order, -self.bias_ohm)
+        return (self.breaks, load, tight, int(self.moved), len(self.changes), self.order, -self.bias_ohm)
 
 
 def _design(bus: Bus, kind: str, bias: BiasSpec | None, order: int) -> Design | None:
@@ -294,7 +296,8 @@ def _design(bus: Bus, kind: str, bias: BiasSpec | None, order: int) -> Design | 
     changes = tuple(terminators + ([bias_change] if bias_change else []))
     advised = apply_changes(plan, changes)
     findings = run_design_rules(with_plan(bus, advised))
-    return Design(changes, advised, findings, bias.pull_up_ohm if bias else 0.0, order)
+    moved = plan.bias is not None and bias is not None and bias.position_m != plan.bias.position_m
+    return Design(changes, advised, findings, bias.pull_up_ohm if bias else 0.0, order, moved)
 
 
 def _bias_value_ohm(sizing: BiasSizing, tier: int) -> float:
@@ -329,8 +332,14 @@ def _sized_bias(bus: Bus, kind: str, position_m: float, tier: int) -> BiasSpec |
 
 
 def bias_positions(plan: BusPlan) -> list[float]:
+    """Where a bias network may go, most preferred first: where the plan has it, at the driver, then at the
+    device nearest each cable end and nearest the middle. A bias network needs a device's supply, so every place
+    is a device's place."""
     places = [plan.bias.position_m] if plan.bias is not None else []
-    places += [plan.driver.position_m, 0.0, plan.trunk_length_m, 0.5 * plan.trunk_length_m]
+    devices = [plan.driver.position_m] + [n.position_m for n in plan.nodes]
+    places.append(plan.driver.position_m)
+    for target in (0.0, plan.trunk_length_m, 0.5 * plan.trunk_length_m):
+        places.append(min(devices, key=lambda p: abs(p - target)))
     return list(dict.fromkeys(places))
 
 

@@ -205,7 +205,7 @@ def _cable_item(bus: Bus) -> BomItem:
     drawn_m = plan.trunk_length_m + stubs_m
     return BomItem(
         f"Cable: {bus.cable.label}",
-        f"{math.ceil(drawn_m * long_run_factor()):.0f} m",
+        f"{math.ceil(round(drawn_m * long_run_factor(), 6)):.0f} m",  # round first: 100 m x 1.1 is 110 m, not 111
         1,
         f"Z0 {bus.cable.z0_ohm:g} Ω",
         f"trunk {plan.trunk_length_m:.4g} m + stubs {stubs_m:.3g} m = {drawn_m:.4g} m, plus "

@@ -21,6 +21,7 @@ from pairline.engine.findings import Finding, Verdict, worst
 from pairline.engine.plan import BusInputError, Problem, load_plan, plan_to_dict
 from pairline.engine.rules.power import rating_text
 from pairline.engine.units import length_text, si_format
+from pairline.server.json_input import JsonInputError, load_json
 
 EXIT_OK = 0
 EXIT_BREAKS = 1
@@ -89,22 +90,10 @@ def read_plan_document(path: str, stdin: TextIO | None = None) -> Any:
         )
     shown = "standard input" if path == "-" else path
     try:
-        return json.loads(text)
-    except json.JSONDecodeError as exc:
+        return load_json(text)
+    except JsonInputError as exc:
         raise PlanFileError(
-            [
-                Problem(
-                    "file",
-                    "Plan file",
-                    f"line {exc.lineno}, column {exc.colno}",
-                    {"type": "JSON object"},
-                    f"{shown} is not valid JSON: {exc.msg} at line {exc.lineno}, column {exc.colno}.",
-                )
-            ]
-        ) from None
-    except RecursionError:
-        raise PlanFileError(
-            [Problem("file", "Plan file", path, {"type": "JSON object"}, f"{shown} is nested too deeply.")]
+            [Problem("file", "Plan file", shown, {"type": "JSON object"}, f"{shown} cannot be read: {exc}.")]
         ) from None
 
 
@@ -357,6 +346,9 @@ def run_check(args: argparse.Namespace, out: TextIO, err: TextIO) -> int:
         if args.json:
             print(json.dumps(problems_envelope(exc.problems), indent=2, ensure_ascii=False, default=str), file=out)
         print(problems_text(exc.problems), file=err)
+        return EXIT_INVALID
+    except Exception as exc:  # whatever else a file can do to the checker, it is still input that cannot be checked
+        print(f"pairline check: {args.plan} cannot be checked: {type(exc).__name__}: {exc}".splitlines()[0], file=err)
         return EXIT_INVALID
     if args.json:
         print(json.dumps(report_to_dict(report), indent=2, ensure_ascii=False, allow_nan=False), file=out)

@@ -18,6 +18,7 @@ from typing import Any
 
 from pairline.engine.library import CABLES, TRANSCEIVERS
 from pairline.engine.plan import PLAN_FORMAT, PLAN_FORMAT_VERSION, BusInputError, BusPlan, Problem, load_plan
+from pairline.server.json_input import JsonInputError, load_json
 from pairline.server.messages import field_allowed, not_a_number_message, range_text
 from pairline.server.quantities import Bare, QuantityError, UnitSystem, bare_unit, format_quantity, parse_quantity
 
@@ -340,8 +341,8 @@ def draft_fields(state: FormState) -> str:
 def fields_from_draft(text: str) -> dict[str, str]:
     """Form fields back from `draft_fields`; text that is not such a JSON object gives an empty form."""
     try:
-        doc = json.loads(text)
-    except json.JSONDecodeError:
+        doc = load_json(text)
+    except JsonInputError:
         return {}
     if not isinstance(doc, dict):
         return {}

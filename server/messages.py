@@ -132,6 +132,12 @@ def problem_message(problem: Problem, units: UnitSystem) -> str:
     unit = str(allowed.get("unit", ""))
     shown = value_text(float(value), unit, units, spec)
     allowed_words = range_text(allowed, units, spec)
+    if "nonzero_min" in allowed:
+        floor = value_text(float(allowed["nonzero_min"]), unit, units, spec)
+        return (
+            f"{problem.label} is {value:g} {unit}, too small to be physical; allowed 0 or at least {floor} in size, "
+            f"within {allowed_words}."
+        )
     if _PAST_END in problem.message:
         end = value_text(float(allowed["max"]), unit, units, spec)
         return f"{problem.label} is at {shown}, {_PAST_END} at {end}; allowed {allowed_words}."

@@ -267,7 +267,7 @@ def number_text(value: float, digits: int = 3) -> str:
     if value == 0.0 or not math.isfinite(value):
         return f"{value:g}"
     if abs(value) >= 10.0 ** (digits - 1):
-        rounded = round(value, digits - 1 - math.floor(math.log10(abs(value))))
+        rounded = float(f"{value:.{digits}g}")  # round() overflows near the largest float
         text = f"{rounded:,.0f}" if abs(rounded) >= GROUP_FROM else f"{rounded:.0f}"
         return text.replace(",", "\u202f")  # narrow no-break space
     text = f"{value:.{digits}g}"

@@ -1,10 +1,13 @@
-"""Run the planner with uvicorn. Settings come from arguments, else PAIRLINE_HOST / PAIRLINE_PORT / PAIRLINE_DB."""
+"""Run the planner with uvicorn. Settings come from arguments, else PAIRLINE_HOST / PAIRLINE_PORT / PAIRLINE_DB
+(and the PAIRLINE_* variables of server.settings)."""
 
 import os
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 
 import uvicorn
+from pairline.server.settings import Settings
+from pairline.server.settings import settings_from_env as server_settings_from_env
 
 DEFAULT_HOST = "127.0.0.1"
 DEFAULT_PORT = 8485
@@ -16,6 +19,7 @@ class ServeSettings:
     host: str
     port: int
     db_path: Path
+    server: Settings = field(default_factory=Settings)  # limits, cache, quotas and the public URL
 
 
 def settings_from_env(
@@ -35,13 +39,15 @@ def settings_from_env(
         host=host or os.environ.get("PAIRLINE_HOST") or DEFAULT_HOST,
         port=port,
         db_path=Path(db_path or os.environ.get("PAIRLINE_DB") or DEFAULT_DB),
+        server=server_settings_from_env(),
     )
 
 
 def run(host: str | None = None, port: int | None = None, db_path: str | Path | None = None) -> None:
-    """Serve the planner until interrupted (loopback by default)."""
+    """Serve the planner until interrupted (loopback by default). Limits, cache and links come from the
+    PAIRLINE_* variables that server.settings reads."""
     from pairline.server.app import create_app
 
     settings = settings_from_env(host, port, db_path)
-    app = create_app(settings.db_path)
+    app = create_app(settings.db_path, settings=settings.server)
     uvicorn.run(app, host=settings.host, port=settings.port, log_level="info")

@@ -329,18 +329,19 @@ def _signal_data(m: Any, units: UnitSystem) -> dict[str, Any] | None:
 LENGTH_RULES = ("length.rate_rule", "length.loss")  # the rules the length-against-rate picture stands for
 
 
-def lineage_data(parent: SavedPlan | None, children: list[SavedPlan]) -> dict[str, Any]:
-    """The plan this one was copied from and its later copies, each by title, date and link."""
-
-    def entry(p: SavedPlan) -> dict[str, Any]:
-        return {
-            "id": p.id,
-            "url": f"/plans/{p.id}",
-            "title": p.title or "Untitled bus",
-            "date": date_text(p.created_at),
+def lineage_data(parent: SavedPlan | None) -> dict[str, Any]:
+    """The plan this one was copied from, by title, date and link. Later copies are not listed: each is the
+    link of whoever made it, and one shared link must not lead to everyone's edits."""
+    if parent is None:
+        return {"parent": None}
+    return {
+        "parent": {
+            "id": parent.id,
+            "url": f"/plans/{parent.id}",
+            "title": parent.title or "Untitled bus",
+            "date": date_text(parent.created_at),
         }
-
-    return {"parent": entry(parent) if parent else None, "children": [entry(c) for c in children]}
+    }
 
 
 def _waveforms_data(

@@ -7,6 +7,9 @@
   });
   const share = document.getElementById("share-url");
   if (share) {
+    // The server writes the link relative to the site unless a public address is configured; show it whole.
+    share.value = new URL(share.value, window.location.href).href;
+    share.closest("[data-share]").setAttribute("data-share", share.value);
     share.addEventListener("focus", function () { share.select(); });
   }
 })();

@@ -100,7 +100,8 @@ def test_twelve_comma_five_is_twelve_and_a_half_metres_never_125(page, base_url)
 def test_live_verdict_follows_typing_within_a_second(page, base_url):
     fill_eight_node_bus(page, base_url)
     pill = page.locator("#live-pill")
-    page.wait_for_function("document.getElementById('live-verdict').dataset.state === 'checked'", timeout=5000)
+    # locator waits, not wait_for_function: the page's Content-Security-Policy forbids evaluating strings
+    page.locator("#live-verdict[data-state='checked']").wait_for(timeout=5000)
     # Source: TIA-485-A; eight 1/8 UL receivers (1 UL), the driver's own 1/8 UL receiver (its class's rating)
     # and a 470 Ω bias (12 kΩ / 470 Ω = 25.53 UL, TI SLLA272's count) make 26.7 UL of the 32 UL budget.
     assert page.locator("#live-unit-loads").inner_text() == "26.7 UL of 32 UL"
@@ -108,14 +109,12 @@ def test_live_verdict_follows_typing_within_a_second(page, base_url):
     assert page.locator("#live-spare").inner_text().startswith("5 more of 1 UL")
     assert "verdict-breaks" not in pill.get_attribute("class")
     page.fill("input[name='nodes.0.stub_length_m']", "")
-    page.wait_for_function("document.getElementById('live-verdict').dataset.state === 'checked'")
+    page.locator("#live-verdict[data-state='checked']").wait_for()
     start = time.monotonic()
     # Source: TI SLLA272, stub delay at most 1/10 of the rise time: 0.1 x 2.5 us x 0.78 x c0 = 58.5 m for the
     # 115.2 kbit/s driver class on 24 AWG pair (velocity factor 0.78), so an 80 m stub breaks.
     page.locator("input[name='nodes.0.stub_length_m']").press_sequentially("80")
-    page.wait_for_function(
-        "document.getElementById('live-pill').className.includes('verdict-breaks')", timeout=1000, polling=50
-    )
+    page.locator("#live-pill.verdict-breaks").wait_for(timeout=1000)
     assert time.monotonic() - start < 1.0
     assert "stub.length at probe-1" in page.locator("#live-text").inner_text()
     assert pill.text_content() == "Breaks"

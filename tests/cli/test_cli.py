@@ -180,22 +180,23 @@ def test_rs422_summary_counts_receivers_not_unit_loads(tmp_path, capsys):
 
 
 def test_imperial_plan_reads_lengths_in_feet_with_metres_in_brackets(tmp_path, capsys):
-    # Source: international foot, 0.3048 m exactly: 575 m = 1886 ft, 1152 m = 3779.5 ft (shown 3780 ft).
+    # Source: international foot, 0.3048 m exactly: 550 m = 1804.5 ft (shown 1804 ft), 1150 m = 3773.0 ft.
     doc = json.loads((ROOT / "sample_buses" / "irrigation-main-valves.json").read_text(encoding="utf-8"))
     doc["display_units"] = "imperial"
     main(["check", _write(tmp_path, doc)])
     out = capsys.readouterr().out
-    assert "1886 ft (575 m)" in out and "3780 ft (1152 m)" in out
+    assert "1804 ft (550 m)" in out and "3773 ft (1150 m)" in out
     assert "mΩ/m" not in out or "ft (84.2" not in out
-    assert "ft (1886 ft" not in out
+    assert "ft (1804 ft" not in out
 
 
 def test_bom_bias_note_names_a_change_and_a_move(tmp_path, capsys):
-    # Source: TI SLLA272 bias sizing, as the advice sizes it for the irrigation sample: 560 Ohm each at 575 m
-    # (mid-trunk, where the drop to either end is smallest) in place of the plan's 390 Ohm at 0 m.
+    # Source: TI SLLA272 bias sizing, as the advice sizes it for the irrigation sample: 560 Ohm each at 550 m
+    # (the station nearest mid-trunk, where the drop to either end is smallest) in place of the plan's 390 Ohm
+    # at 0 m.
     main(["check", str(ROOT / "sample_buses" / "irrigation-main-valves.json")])
     out = capsys.readouterr().out
-    assert "move the bias network from 0 m to 575 m and make it 560 Ω / 560 Ω" in out
+    assert "move the bias network from 0 m to 550 m and make it 560 Ω / 560 Ω" in out
     assert "Bias pull-up resistor (5 V to A), 560 Ω" in out
 
 
@@ -207,7 +208,7 @@ def test_advise_writes_the_advised_plan_and_lists_the_changes(tmp_path, capsys):
     out = tmp_path / "advised.json"
     assert main(["advise", _write(tmp_path, doc), "-o", str(out)]) == 0
     printed = capsys.readouterr().out
-    assert "1. Add failsafe bias" in printed and "from none to" in printed
+    assert ". Add failsafe bias" in printed and "from none to" in printed
     advised = json.loads(out.read_text(encoding="utf-8"))
     assert advised["bias"] is not None and [n["name"] for n in advised["nodes"]] == ["meter-1"]
     assert main(["check", str(out)]) == 0

@@ -186,6 +186,14 @@ def test_bill_of_materials_lists_terminators_bias_cable_and_transceivers():
     assert all(b.rating for b in bom)
 
 
+def test_cable_allowance_of_a_round_length_is_not_rounded_up_past_it():
+    # common practice: 100 m drawn with 10 % spare is 110 m to order (110.00000000000001 in floating point).
+    doc = RS485 | {"trunk_length_m": 100.0, "nodes": [{"name": "end", "position_m": 100.0}], "terminations": []}
+    doc["driver"] = doc["driver"] | {"stub_length_m": 0.0}
+    cable = next(b for b in check_plan(load_plan(doc)).summary.bom if b.item.startswith("Cable"))
+    assert cable.value == "110 m"
+
+
 def test_short_unterminated_line_gets_no_terminator_advice():
     doc = _doc(trunk_length_m=40.0, bit_rate_bps=9600, terminations=[], nodes=[{"name": "a", "position_m": 40.0}])
     assert check_plan(doc).summary.terminators == ()

@@ -30,6 +30,13 @@ SETTINGS = settings(
 UNIT_LOADS = [0.125, 0.25, 0.5, 1.0, 2.0]
 
 
+def zero_or(low: float, high: float, either_sign: bool = False) -> st.SearchStrategy[float]:
+    """0, or a magnitude from low to high: the plan model refuses non-zero values below a physical floor
+    (1 mm, 1 mV), as no one lays out a 1e-300 m stub."""
+    sides = [st.floats(low, high)] + ([st.floats(-high, -low)] if either_sign else [])
+    return st.one_of(st.just(0.0), *sides)
+
+
 @st.composite
 def plan_docs(draw, min_terminations=0, min_length_m=5.0, max_stub_m=20.0, max_length_m=4000.0, max_nodes=12):
     standard = draw(st.sampled_from(["rs485", "rs422"]))
@@ -38,11 +45,11 @@ def plan_docs(draw, min_terminations=0, min_length_m=5.0, max_stub_m=20.0, max_l
     nodes = [
         {
             "name": f"node-{i}",
-            "position_m": draw(st.floats(0.0, 1.0)) * length_m,
-            "stub_length_m": draw(st.floats(0.0, max_stub_m)),
+            "position_m": draw(zero_or(1e-2, 1.0)) * length_m,
+            "stub_length_m": draw(zero_or(1e-3, max_stub_m)),
             "unit_loads": draw(st.sampled_from(UNIT_LOADS)),
             "role": "receiver" if standard == "rs422" else draw(st.sampled_from(["receiver", "transceiver"])),
-            "ground_offset_v": draw(st.floats(-10.0, 10.0)),
+            "ground_offset_v": draw(zero_or(1e-3, 10.0, either_sign=True)),
         }
         for i in range(n_nodes)
     ]
@@ -50,7 +57,7 @@ def plan_docs(draw, min_terminations=0, min_length_m=5.0, max_stub_m=20.0, max_l
     for _ in range(draw(st.integers(min_terminations, 4))):
         kind = draw(st.sampled_from(["parallel", "rc"]))
         term = {
-            "position_m": draw(st.sampled_from([0.0, 1.0, draw(st.floats(0.0, 1.0))])) * length_m,
+            "position_m": draw(st.sampled_from([0.0, 1.0, draw(zero_or(1e-2, 1.0))])) * length_m,
             "kind": kind,
             "resistance_ohm": draw(st.floats(50.0, 200.0)),
         }
@@ -60,15 +67,15 @@ def plan_docs(draw, min_terminations=0, min_length_m=5.0, max_stub_m=20.0, max_l
     bias = None
     if draw(st.booleans()):
         r = draw(st.floats(200.0, 50_000.0))
-        bias = {"position_m": draw(st.floats(0.0, 1.0)) * length_m, "pull_up_ohm": r, "pull_down_ohm": r}
+        bias = {"position_m": draw(zero_or(1e-2, 1.0)) * length_m, "pull_up_ohm": r, "pull_down_ohm": r}
     return {
         "standard": standard,
         "bit_rate_bps": draw(st.sampled_from([1200.0, 9600.0, 115_200.0, 1e6, 10e6])),
         "trunk_length_m": length_m,
         "cable": {"class_key": draw(st.sampled_from(sorted(CABLES)))},
         "driver": {
-            "position_m": draw(st.floats(0.0, 1.0)) * length_m,
-            "stub_length_m": draw(st.floats(0.0, 5.0)),
+            "position_m": draw(zero_or(1e-2, 1.0)) * length_m,
+            "stub_length_m": draw(zero_or(1e-3, 5.0)),
             "transceiver": draw(st.sampled_from(sorted(TRANSCEIVERS))),
         },
         "nodes": nodes,
@@ -82,7 +89,7 @@ def _bus(doc):
 
 
 @SETTINGS
-@given(doc=plan_docs(), unit_loads=st.sampled_from(UNIT_LOADS), where=st.floats(0.0, 1.0))
+@given(doc=plan_docs(), unit_loads=st.sampled_from(UNIT_LOADS), where=zero_or(1e-2, 1.0))
 def test_adding_a_receiver_never_lowers_the_unit_load_total(doc, unit_loads, where):
     before = _bus(doc)
     more = copy.deepcopy(doc)
@@ -110,7 +117,7 @@ def test_moving_a_terminator_to_mid_bus_never_improves_placement(doc, pick, wher
 
 
 @SETTINGS
-@given(doc=plan_docs(), pick=st.integers(0, 11), extra_m=st.floats(0.0, 50.0))
+@given(doc=plan_docs(), pick=st.integers(0, 11), extra_m=zero_or(1e-3, 50.0))
 def test_a_longer_stub_never_improves_the_stub_verdict(doc, pick, extra_m):
     index = pick % len(doc["nodes"])
     longer = copy.deepcopy(doc)
@@ -157,13 +164,15 @@ def test_any_valid_plan_checks_and_its_advice_holds_when_built(doc):
 
 
 def _scaled(doc, factor):
-    """Every length of the plan (trunk, positions, stubs) times factor."""
+    """Every length of the plan (trunk, positions, stubs) times factor; a stub stays at least the plan's 1 mm
+    floor for a non-zero length."""
     out = copy.deepcopy(doc)
     out["trunk_length_m"] *= factor
     for part in [out["driver"], *out["nodes"], *out["terminations"], *([out["bias"]] if out["bias"] else [])]:
         for key in ("position_m", "stub_length_m"):
             if key in part:
-                part[key] = min(part[key] * factor, 100.0 if key == "stub_length_m" else out["trunk_length_m"])
+                scaled = min(part[key] * factor, 100.0 if key == "stub_length_m" else out["trunk_length_m"])
+                part[key] = max(scaled, 1e-3) if part[key] > 0 else 0.0
     return out
 
 

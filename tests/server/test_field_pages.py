@@ -137,3 +137,20 @@ def test_a_capture_over_the_size_cap_is_refused_with_its_size(client, plan_id):
     resp = client.post(f"/plans/{plan_id}/field", data={"sent": "edge"}, files=files)
     assert resp.status_code == 422
     assert "1600000 bytes" in parse_html(resp.text).by_id("e-capture_csv").text()
+
+
+def test_the_json_api_takes_json_only(client, plan_id):
+    resp = client.post(f"/api/plans/{plan_id}/field", content=BAD_ROWS.encode(), headers={"content-type": "text/csv"})
+    assert resp.status_code == 415
+    assert resp.json()["problems"][0]["field"] == ""
+
+
+def test_a_fit_over_the_time_limit_is_refused_naming_the_capture(tmp_path):
+    from pairline.server.settings import Settings
+
+    app = create_app(tmp_path / "plans.db", load_samples=False, settings=Settings(check_time_limit_s=0.05))
+    with TestClient(app) as c:
+        plan_id = c.post("/api/plans", json=PLAN_DOC).json()["id"]
+        capture = capture_text("far_missing", seed=34)
+        problem = _assert_problem(c.post(f"/api/plans/{plan_id}/field", json={"capture_csv": capture}), "capture_csv")
+        assert "longer than the 0.05 s" in problem["message"]

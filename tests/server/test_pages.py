@@ -5,6 +5,7 @@ import re
 
 import pytest
 from pairline.server.app import create_app
+from pairline.server.settings import Settings
 
 from tests.server.conftest import TestClient
 from tests.server.html_dom import parse_html
@@ -225,10 +226,12 @@ def test_json_api_errors_use_one_envelope(client):
     assert problem["value"] == 5000 and problem["allowed"]["max"] == 4000.0
     nodes = [{"name": "left", "position_m": 150.0}]
     assert_problem(client.post("/api/plans", json=PLAN_DOC | {"nodes": nodes}), field="nodes.0.position_m")
-    assert_problem(client.post("/api/check", content=b"{nope", headers={"content-type": "application/json"}), field="")
-    assert_problem(client.post("/api/check", content=b'{"trunk_length_m": NaN}'), field="")
+    as_json = {"content-type": "application/json"}
+    assert_problem(client.post("/api/check", content=b"{nope", headers=as_json), field="")
+    assert_problem(client.post("/api/check", content=b'{"trunk_length_m": NaN}', headers=as_json), field="")
     overflow = assert_problem(
-        client.post("/api/check", content=b'{"trunk_length_m": 1e999, "bit_rate_bps": 9600}'), field="trunk_length_m"
+        client.post("/api/check", content=b'{"trunk_length_m": 1e999, "bit_rate_bps": 9600}', headers=as_json),
+        field="trunk_length_m",
     )
     assert overflow["value"] is None and "finite" in overflow["message"]
 
@@ -257,9 +260,10 @@ def test_save_open_copy_edit_save_keeps_the_original(client, saved_id):
     assert copy["plan"]["nodes"][0] == original["plan"]["nodes"][0]
     again = client.get(f"/plans/{saved_id}.json").json()
     assert again["plan"] == original["plan"]  # the shared plan never changes
-    assert copy_id in again["children"]
+    # the shared plan's page does not reveal who copied it; the copy's page names its parent
+    assert "children" not in again and copy_id not in client.get(f"/plans/{saved_id}").text
     page = parse_html(client.get(f"/plans/{copy_id}").text)
-    assert any(a.attrs.get("href") == f"/plans/{saved_id}" for a in page.find_all("a"))
+    assert page.by_id("parent-plan").attrs["href"] == f"/plans/{saved_id}"
 
 
 def test_unknown_ids_and_paths_get_the_404_page(client):
@@ -274,7 +278,7 @@ def test_unknown_ids_and_paths_get_the_404_page(client):
 
 
 def test_oversized_bodies_are_refused(client, tmp_path):
-    small = create_app(tmp_path / "small.db", load_samples=False, max_body_bytes=1000)
+    small = create_app(tmp_path / "small.db", load_samples=False, settings=Settings(max_body_bytes=1000))
     with TestClient(small) as c:
         resp = c.post("/api/check", content=b"x" * 5000, headers={"content-type": "application/json"})
         assert resp.status_code == 413 and resp.json()["status"] == 413
@@ -382,9 +386,10 @@ def test_imperial_plans_take_feet_and_explain_limits_in_feet(client):
     too_long = client.post("/plans", data=form | {"trunk_length_m": "20000", "action": "check"})
     message = parse_html(too_long.text).by_id("e-trunk_length_m").text().replace("\u202f", " ")
     # Source: 1 ft = 0.3048 m exactly: 20000 ft = 6096 m (6100 m to 3 digits); the plan's 4000 m limit is
-    # 13123.36 ft (13 100 ft to 3 digits). What was typed leads, in feet; metres follow in brackets.
+    # 13123.36 ft (13 100 ft to 3 digits), its 0.1 m floor 0.328 ft. What was typed leads, in feet; metres follow
+    # in brackets.
     assert message.startswith("Trunk length is 20 000 ft (6100 m)")
-    assert "more than 0 ft, up to 13 100 ft (4000 m)" in message
+    assert "0.328 ft (0.1 m) to 13 100 ft (4000 m)" in message
     huge = client.post("/plans", data=form | {"trunk_length_m": "1e9", "action": "check"})
     message = parse_html(huge.text).by_id("e-trunk_length_m").text().replace("\u202f", " ")
     # Source: 1e9 ft = 304 800 000 m exactly (1 ft = 0.3048 m).
