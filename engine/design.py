@@ -276,7 +276,7 @@ class Design:
     def breaks(self) -> int:
         return sum(f.verdict is Verdict.BREAKS for f in self.findings)
 
-    def key(self) -> tuple[int, int, int, int, int, float]:
+    def key(self) -> tuple[int, int, int, int, int, int, float]:
         """Fewest breaks; among those, fewest in the loading rules (an idle level failsafe receivers can rescue,
         a loading limit they cannot); then fewest tight; then the bias left where the plan has it (changing
         resistor values is easier on site than moving a network to another device); fewest changes; the bias

@@ -1,7 +1,5 @@
 """The app factory. Nothing touches disk or settings at import time: every test builds its own app."""
 
-import json
-import logging
 import threading
 from collections.abc import AsyncIterator
 from contextlib import asynccontextmanager
@@ -11,53 +9,54 @@ from fastapi import FastAPI, Request
 from fastapi.responses import JSONResponse, Response
 from fastapi.staticfiles import StaticFiles
 from pairline.engine import ENGINE_VERSION
-from pairline.engine.plan import BusInputError, Problem, load_plan, plan_to_dict
-from pairline.server.cache import MemoryCache
+from pairline.engine.plan import BusInputError, Problem
+from pairline.server.cache import MemoryCache, ResultCache
 from pairline.server.checking import Checker
 from pairline.server.errors import RequestRefused, error_envelope, input_error_response, not_found, refused_response
 from pairline.server.middleware import BodyLimit, ErrorGuard, HeadAsGet, SecurityHeaders
 from pairline.server.openapi import plan_openapi
-from pairline.server.quota import MemoryLimiter
+from pairline.server.quota import MemoryLimiter, SaveLimiter
 from pairline.server.rendering import make_templates
+from pairline.server.samples import SAMPLES_DIR, seed_samples
 from pairline.server.settings import Settings
-from pairline.server.store import PlanStore
+from pairline.server.store import PlanStore, open_store
+from pairline.server.store.shared import StoreCache, StoreLimiter
 from pairline.server.workers import CheckPool, PoolBusy
 from starlette.exceptions import HTTPException as StarletteHTTPException
 
 from pairline import data_dir
 
 STATIC_DIR = data_dir("static")
-SAMPLES_DIR = data_dir("sample_buses")
-
-log = logging.getLogger("pairline.server")
 
 
-def load_sample_buses(store: PlanStore, directory: Path = SAMPLES_DIR) -> int:
-    """Load every valid `sample_buses/*.json` into the store; an invalid file is logged and skipped."""
-    loaded: list[str] = []
-    for position, path in enumerate(sorted(directory.glob("*.json"))):
-        try:
-            plan = load_plan(json.loads(path.read_text(encoding="utf-8")))
-        except (OSError, ValueError) as exc:  # BusInputError and JSONDecodeError are ValueErrors
-            log.warning("sample bus %s skipped: %s", path.name, exc)
-            continue
-        store.put_sample(path.stem, plan_to_dict(plan), engine_version=ENGINE_VERSION, position=position)
-        loaded.append(path.stem)
-    store.retain_samples(loaded)
-    return len(loaded)
+def shared_state(store: PlanStore, settings: Settings) -> tuple[ResultCache, SaveLimiter]:
+    """The results cache and the save limiter: in the store when several processes share it (PostgreSQL), so a
+    plan checked by one process is a cache hit in every other and a client's saves count once whichever process
+    takes them; in this process otherwise (SQLite), where memory is many times faster than the database file."""
+    if store.shared:
+        return StoreCache(store), StoreLimiter(store, settings.saves_per_minute, settings.saves_per_day)
+    cache = MemoryCache(settings.cache_max_mb * 1024 * 1024)
+    return cache, MemoryLimiter(settings.saves_per_minute, settings.saves_per_day)
 
 
 def create_app(
-    db_path: Path,
+    db: PlanStore | Path | str,
     *,
     load_samples: bool = True,
     samples_dir: Path = SAMPLES_DIR,
     settings: Settings | None = None,
 ) -> FastAPI:
-    """The planner app on a SQLite file. `load_samples` puts every valid `samples_dir/*.json` into the store."""
+    """The planner app on a store: an open PlanStore, a SQLite file path or a postgresql:// URL.
+
+    `load_samples` seeds every valid `samples_dir/*.json` into the store. Several workers sharing one database
+    seed once beforehand (`pairline seed`) and start with `load_samples=False`. A store opened here from a path
+    or URL is closed when the app shuts down.
+    """
     from pairline.server.routes import api, field, pages
 
     settings = settings or Settings()
+    owned = not isinstance(db, PlanStore)
+    store = db if isinstance(db, PlanStore) else open_store(db)
     pool = CheckPool(
         settings.check_workers, settings.check_time_limit_s, settings.check_memory_limit_mb, settings.check_queue_limit
     )
@@ -68,6 +67,8 @@ def create_app(
         threading.Thread(target=pool.warm, name="pairline-warm", daemon=True).start()
         yield
         pool.close()
+        if owned:
+            store.close()
 
     app = FastAPI(
         title="Pairline",
@@ -79,13 +80,13 @@ def create_app(
         redirect_slashes=False,  # its redirects are absolute URLs built from the Host header
     )
     app.state.settings = settings
-    app.state.store = PlanStore(Path(db_path))
+    app.state.store = store
     app.state.templates = make_templates()
     app.state.pool = pool
-    app.state.checker = Checker(pool, MemoryCache(settings.cache_max_mb * 1024 * 1024), settings)
-    app.state.save_limiter = MemoryLimiter(settings.saves_per_minute, settings.saves_per_day)
+    cache, app.state.save_limiter = shared_state(store, settings)
+    app.state.checker = Checker(pool, cache, settings)
     if load_samples:
-        load_sample_buses(app.state.store, samples_dir)
+        seed_samples(store, samples_dir)
     app.mount("/static", StaticFiles(directory=STATIC_DIR), name="static")
     app.include_router(api.router)
     app.include_router(field.router)

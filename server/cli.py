@@ -1,5 +1,6 @@
-"""Command line: `pairline check PLAN.json [--json]`, `pairline advise PLAN.json [-o OUT.json]`,
-`pairline serve [--host] [--port] [--db]` and `pairline field PLAN.json CAPTURE.csv` (server/fieldcli.py).
+"""Command line: `pairline check PLAN.json [--json]`, `pairline check --sample NAME`, `pairline samples`,
+`pairline advise PLAN.json [-o OUT.json]`, `pairline serve [--host] [--port] [--db]`, `pairline seed [--db]` and
+`pairline field PLAN.json CAPTURE.csv` (server/fieldcli.py).
 
 Exit status of check: 0 when no rule breaks, 1 when at least one rule breaks; of advise: 0 when the advised plan
 breaks no rule, 1 when some rule cannot be met with terminators and bias alone (each said why). Both exit 2 when
@@ -22,6 +23,7 @@ from pairline.engine.plan import BusInputError, Problem, load_plan, plan_to_dict
 from pairline.engine.rules.power import rating_text
 from pairline.engine.units import length_text, si_format
 from pairline.server.json_input import JsonInputError, load_json
+from pairline.server.samples import UnknownSampleError, sample_file, sample_files, seed_samples
 
 EXIT_OK = 0
 EXIT_BREAKS = 1
@@ -340,21 +342,44 @@ def lengths_in_feet(text: str) -> str:
 
 def run_check(args: argparse.Namespace, out: TextIO, err: TextIO) -> int:
     try:
-        document = read_plan_document(args.plan)
+        path = str(sample_file(args.sample)) if args.sample else args.plan
+        document = read_plan_document(path)
         report = check_plan(load_plan(document))
+    except UnknownSampleError as exc:
+        problem = Problem("sample", "Sample bus", exc.name, {"choices": exc.allowed}, str(exc))
+        if args.json:
+            print(json.dumps(problems_envelope([problem]), indent=2, ensure_ascii=False), file=out)
+        print(problems_text([problem]), file=err)
+        return EXIT_INVALID
     except (PlanFileError, BusInputError) as exc:
         if args.json:
             print(json.dumps(problems_envelope(exc.problems), indent=2, ensure_ascii=False, default=str), file=out)
         print(problems_text(exc.problems), file=err)
         return EXIT_INVALID
     except Exception as exc:  # whatever else a file can do to the checker, it is still input that cannot be checked
-        print(f"pairline check: {args.plan} cannot be checked: {type(exc).__name__}: {exc}".splitlines()[0], file=err)
+        print(
+            f"pairline check: {args.sample or args.plan} cannot be checked: {type(exc).__name__}: {exc}".splitlines()[
+                0
+            ],
+            file=err,
+        )
         return EXIT_INVALID
     if args.json:
         print(json.dumps(report_to_dict(report), indent=2, ensure_ascii=False, allow_nan=False), file=out)
     else:
-        print(report_text(report, args.plan), file=out)
+        print(report_text(report, args.sample or args.plan), file=out)
     return EXIT_BREAKS if report.verdict is Verdict.BREAKS else EXIT_OK
+
+
+def run_samples(args: argparse.Namespace, out: TextIO, err: TextIO) -> int:
+    """List the sample buses shipped with Pairline: name and title, one a line."""
+    files = sample_files()
+    width = max((len(path.stem) for path in files), default=0)
+    for path in files:
+        title = json.loads(path.read_text(encoding="utf-8")).get("title", "")
+        print(f"{path.stem:<{width}}  {title}", file=out)
+    print(f"\nCheck one with: pairline check --sample {files[0].stem if files else 'NAME'}", file=out)
+    return EXIT_OK
 
 
 def advise_text(report: PlanReport, path: str = "") -> str:
@@ -398,18 +423,39 @@ def run_advise(args: argparse.Namespace, out: TextIO, err: TextIO) -> int:
 def run_serve(args: argparse.Namespace, out: TextIO, err: TextIO) -> int:
     """Serve the web planner until interrupted; options override PAIRLINE_HOST, PAIRLINE_PORT, PAIRLINE_DB."""
     from pairline.server.serve import run, settings_from_env
+    from pairline.server.store import StoreError, target_for_people
 
     try:
         settings = settings_from_env(args.host, args.port, args.db)
-    except ValueError as exc:
+        where = target_for_people(settings.db)
+        print(f"Pairline planner on http://{settings.host}:{settings.port}/ (plans in {where})", file=out)
+        run(settings)
+    except (ValueError, StoreError) as exc:
         print(f"pairline serve: {exc}", file=err)
         return EXIT_INVALID
-    print(f"Pairline planner on http://{settings.host}:{settings.port}/ (plans in {settings.db_path})", file=out)
-    run(settings.host, settings.port, settings.db_path)
+    return EXIT_OK
+
+
+def run_seed(args: argparse.Namespace, out: TextIO, err: TextIO) -> int:
+    """Bring the database's schema up to date and load the sample buses: once per database, before the workers."""
+    from pairline.server.serve import db_from_env
+    from pairline.server.store import StoreError, open_store
+
+    try:
+        store = open_store(db_from_env(args.db))
+    except (ValueError, StoreError) as exc:
+        print(f"pairline seed: {exc}", file=err)
+        return EXIT_INVALID
+    try:
+        count = seed_samples(store)
+        print(f"{count} sample buses in {store.target} (schema version {store.schema_version()})", file=out)
+    finally:
+        store.close()
     return EXIT_OK
 
 
 Command = Callable[[argparse.Namespace, TextIO, TextIO], int]
+DB_HELP = "SQLite file or postgresql://user@host/database URL for saved plans (default ./pairline.db)"
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -420,9 +466,13 @@ def build_parser() -> argparse.ArgumentParser:
         help="check a bus plan file and print every rule's verdict",
         description="Check a bus plan. Exit status 0: nothing breaks; 1: a rule breaks; 2: invalid input.",
     )
-    check.add_argument("plan", metavar="PLAN.json", help="the bus plan file ('-' reads standard input)")
+    source = check.add_mutually_exclusive_group(required=True)
+    source.add_argument("plan", nargs="?", metavar="PLAN.json", help="the bus plan file ('-' reads standard input)")
+    source.add_argument("--sample", metavar="NAME", help="a sample bus shipped with Pairline (see: pairline samples)")
     check.add_argument("--json", action="store_true", help="print the full report as JSON")
     check.set_defaults(run=run_check)
+    samples = commands.add_parser("samples", help="list the sample buses shipped with Pairline")
+    samples.set_defaults(run=run_samples)
     advise = commands.add_parser(
         "advise",
         help="write the plan as Pairline advises it and list the changes",
@@ -442,8 +492,16 @@ def build_parser() -> argparse.ArgumentParser:
     )
     serve.add_argument("--host", default=None, help="interface to listen on (default 127.0.0.1)")
     serve.add_argument("--port", type=int, default=None, help="TCP port (default 8485)")
-    serve.add_argument("--db", default=None, metavar="PATH", help="SQLite file for saved plans (default ./pairline.db)")
+    serve.add_argument("--db", default=None, metavar="PATH|URL", help=DB_HELP)
     serve.set_defaults(run=run_serve)
+    seed = commands.add_parser(
+        "seed",
+        help="create or upgrade the database and load the sample buses (once, before several workers start)",
+        description="Apply the database's schema migrations and load the sample buses. --db falls back to "
+        "PAIRLINE_DB, then to ./pairline.db.",
+    )
+    seed.add_argument("--db", default=None, metavar="PATH|URL", help=DB_HELP)
+    seed.set_defaults(run=run_seed)
     from pairline.server.fieldcli import add_field_command  # it builds on this module's readers and formats
 
     add_field_command(commands)

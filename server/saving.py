@@ -15,6 +15,9 @@ from pairline.server.store import PlanStore
 
 
 def client_address(request: Request) -> str:
+    """The address a request came from: its save quota is counted by it, and it is kept with each save. Behind a
+    proxy, uvicorn's --proxy-headers and --forwarded-allow-ips make it the client's, not the proxy's. A request
+    with no address (a Unix socket) counts as "unknown"."""
     return request.client.host if request.client else "unknown"
 
 
@@ -26,7 +29,8 @@ def save_checked_plan(request: Request, plan: BusPlan, parent: str | None) -> tu
     if problems:
         raise CheckRefused(problems)
     limiter: SaveLimiter = request.app.state.save_limiter
-    wait_s = limiter.admit(client_address(request))
+    client = client_address(request)
+    wait_s = limiter.admit(client)
     if wait_s is not None:
         raise RequestRefused(
             429,
@@ -42,5 +46,5 @@ def save_checked_plan(request: Request, plan: BusPlan, parent: str | None) -> tu
         )
     store: PlanStore = request.app.state.store
     parent_id = parent if parent and store.get_plan(parent) else None
-    plan_id = store.save_plan(plan_to_dict(plan), engine_version=ENGINE_VERSION, parent_id=parent_id)
+    plan_id = store.save_plan(plan_to_dict(plan), engine_version=ENGINE_VERSION, parent_id=parent_id, client=client)
     return plan_id, parent_id

@@ -143,3 +143,34 @@ def test_fix_sentences_name_no_company():
         report = check_plan(json.loads(plan_path.read_text(encoding="utf-8")))
         for f in report.findings:
             assert "B&B" not in f.fix, (plan_path.name, f.rule_id)
+
+
+def test_pairline_samples_lists_every_shipped_sample_with_its_title(capsys):
+    assert main(["samples"]) == 0
+    out = capsys.readouterr().out
+    for plan_path in PLANS:
+        title = json.loads(plan_path.read_text(encoding="utf-8"))["title"]
+        assert re.search(rf"^{re.escape(plan_path.stem)}\s+{re.escape(title)}$", out, re.MULTILINE)
+
+
+@pytest.mark.parametrize("name", ["pump-house-long-stub", "pump-house-long-stub.json"])
+def test_check_sample_checks_the_copy_shipped_in_the_package(name, capsys, monkeypatch, tmp_path):
+    monkeypatch.chdir(tmp_path)  # no checkout around: the sample comes from the installed package
+    status = main(["check", "--sample", name])
+    assert status == _expected(SAMPLES / "pump-house-long-stub.json")["exit_status"]
+    assert "[pump-house-long-stub" in capsys.readouterr().out
+
+
+def test_check_sample_with_an_unknown_name_lists_the_names_allowed(capsys):
+    assert main(["check", "--sample", "pump-house", "--json"]) == 2
+    captured = capsys.readouterr()
+    (problem,) = json.loads(captured.out)["problems"]
+    assert problem["field"] == "sample" and problem["value"] == "pump-house"
+    assert problem["allowed"]["choices"] == sorted(p.stem for p in PLANS)
+    assert "There is no sample bus 'pump-house'; allowed: bench-rack-unterminated" in captured.err
+
+
+def test_check_takes_a_file_or_a_sample_not_both(capsys):
+    with pytest.raises(SystemExit) as exit_info:
+        main(["check", str(PLANS[0]), "--sample", PLANS[0].stem])
+    assert exit_info.value.code == 2

@@ -189,7 +189,7 @@ def test_share_ids_come_from_a_secure_random_source_not_the_clock(tmp_path, monk
     import random
     import time
 
-    from pairline.server.store import PlanStore
+    from pairline.server.store import open_store
 
     # With the clock frozen and the ordinary random generator reseeded before every save, ids must still differ
     # and look like fair coin flips: an id derived from time or from `random` would repeat or lean.
@@ -204,7 +204,7 @@ def test_share_ids_come_from_a_secure_random_source_not_the_clock(tmp_path, monk
             return real_datetime.datetime(2024, 1, 1, tzinfo=tz)
 
     monkeypatch.setattr(real_datetime, "datetime", FrozenDatetime)
-    store = PlanStore(tmp_path / "plans.db")
+    store = open_store(tmp_path / "plans.db", clock=lambda: 1_700_000_000.0)
     ids = []
     for _ in range(300):
         random.seed(7)

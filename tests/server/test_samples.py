@@ -4,7 +4,8 @@ import json
 from pathlib import Path
 
 import pytest
-from pairline.server.app import SAMPLES_DIR, create_app
+from pairline.server.app import create_app
+from pairline.server.samples import SAMPLES_DIR
 
 from tests.server.conftest import TestClient
 
