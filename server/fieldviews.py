@@ -1,16 +1,24 @@
 """Page data of field checks: the capture form (with what was typed and every message beside its input) and
-the result page, each one plain dict rendered by its template or returned as its JSON twin."""
+the result page, each one plain dict rendered by its template or returned as its JSON twin. A saved capture's
+page is the result page with its link, its save time and its file to download."""
 
 import json
 from typing import Any
 
+from jinja2 import Environment
+from pairline.engine import ENGINE_VERSION
 from pairline.engine.capture import TIME_UNITS, VOLTAGE_UNITS
 from pairline.engine.fieldcheck import REGIONS, FieldCheck
 from pairline.engine.plan import BusPlan, Problem
 from pairline.engine.units import si_format
 from pairline.server.field import FIELD_KEYS, FieldRequest, field_data
 from pairline.server.fieldplot import overlay_plot
+from pairline.server.jobs import Page
 from pairline.server.quantities import UnitSystem, length_text, length_unit, number_text
+from pairline.server.rendering import PageAt, page_json, render_page
+from pairline.server.store import SavedCapture
+from pairline.server.views import json_safe
+from pairline.server.wording import date_text
 
 REGION_LABELS = {"edge": "First edge", "reflections": "Reflections", "settled": "Settled level"}
 SENT_CHOICES = (("edge", "one edge"), ("pattern", "the plan's bit pattern"), ("bits", "the bits typed beside"))
@@ -123,7 +131,7 @@ def field_result_data(plan: BusPlan, plan_id: str | None, request: FieldRequest,
         "swing_text": si_format(swing, "V"),
         "residual_rows": rows,
         "quantity_rows": quantities,
-        "svg": overlay_plot(o.time_s, o.measured_v, o.predicted_v, o.fitted_v, o.region, REGIONS),
+        "svg": json_safe(overlay_plot(o.time_s, o.measured_v, o.predicted_v, o.fitted_v, o.region, REGIONS)),
         "draft_json": None if data["fitted_plan"] is None else json.dumps(data["fitted_plan"]),
     }
 
@@ -131,6 +139,34 @@ def field_result_data(plan: BusPlan, plan_id: str | None, request: FieldRequest,
 def field_json(page: dict[str, Any]) -> dict[str, Any]:
     """The JSON twin of a result page: everything but what only the drawing needs."""
     return {k: v for k, v in page.items() if k not in ("svg", "draft_json")}
+
+
+def capture_url(plan_id: str, capture_id: str) -> str:
+    return f"/plans/{plan_id}/captures/{capture_id}"
+
+
+def saved_capture_data(saved: SavedCapture) -> dict[str, Any]:
+    """A saved capture's link, its JSON twin and file, and when and with which engine it was saved."""
+    url = capture_url(saved.plan_id, saved.id)
+    return {
+        "id": saved.id,
+        "url": url,
+        "json_url": url + ".json",
+        "csv_url": url + ".csv",
+        "created_at": saved.created_at,
+        "created_text": date_text(saved.created_at),
+        "saved_with_engine": saved.engine_version,
+        "checked_with_engine": ENGINE_VERSION,
+    }
+
+
+def field_pages(env: Environment, result: dict[str, Any], saved: SavedCapture | None, base_url: str) -> Page:
+    """The result's JSON twin, and for a saved capture its page too (rendered at its own link)."""
+    if saved is None:
+        return page_json(field_json(result)), None
+    data = result | {"saved_capture": saved_capture_data(saved)}
+    html = render_page(env, "field_result.html", data, PageAt(data["saved_capture"]["url"], base_url))
+    return page_json(field_json(data)), html
 
 
 def _value_text(value: float | None, unit: str, units: UnitSystem, none: str) -> str:

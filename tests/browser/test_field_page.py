@@ -41,6 +41,9 @@ def test_choose_a_capture_compare_and_read_the_difference(browser, base_url, axe
         assert page.locator("#field-verdict").get_attribute("data-verdict") == "breaks"
         assert "probably missing" in page.locator("#differences").inner_text()
         assert page.locator("figure.overlay svg polyline").count() == 3
+        # the capture is saved with the plan: the result has its own link, shown whole for sharing
+        assert page.url.startswith(plan_url + "/captures/")
+        assert page.locator("#share-url").input_value() == page.url
         assert errors_found + _serious(page, axe_script) == []
     finally:
         context.close()
