@@ -47,16 +47,29 @@ def plan() -> BusPlan:
     return load_plan(PLAN_DOC)
 
 
+JUNCTION_M = 200.0  # a junction box on the trunk with no device, where a probe may be clipped on
+JUNCTION_PROBE = "junction-probe"
+
+
 def variant(name: str) -> dict[str, Any]:
-    """The plan as installed: 'planned', 'far_missing', 'cable_150', 'stub_5m_at_300m', 'longer_20pc',
-    'slower_edges'."""
+    """The plan as installed: 'planned', 'far_missing', 'far_60_ohm', 'cable_150', 'stub_5m_at_300m',
+    'stub_8m_at_screen_2', 'longer_20pc', 'slower_edges'; with '+junction-probe', a scope probe (1 MOhm, a 10:1
+    probe's typical input: 0.012 unit loads of 12 kOhm) on the trunk at JUNCTION_M."""
+    name, _, probe = name.partition("+")
     doc = copy.deepcopy(PLAN_DOC)
+    if probe:
+        probe_node = {"name": probe, "position_m": JUNCTION_M, "unit_loads": 0.012, "input_capacitance_f": 0.0}
+        doc["nodes"].append(probe_node)
     if name == "far_missing":
         doc["terminations"] = doc["terminations"][:1]
+    elif name == "far_60_ohm":  # a device's built-in 120 Ohm switched on beside the planned one
+        doc["terminations"][1]["resistance_ohm"] = 60.0
     elif name == "cable_150":
         doc["cable"]["z0_ohm"] = 150.0
     elif name == "stub_5m_at_300m":
         doc["nodes"].append({"name": "unplanned", "position_m": 300.0, "stub_length_m": 5.0})
+    elif name == "stub_8m_at_screen_2":  # the device at 250 m wired 8 m off the trunk instead of on it
+        next(n for n in doc["nodes"] if n["name"] == "screen-2")["stub_length_m"] = 8.0
     elif name == "longer_20pc":  # the run is 20 % longer than drawn: every position along it 20 % further
         doc["trunk_length_m"] *= 1.2
         for item in (*doc["nodes"], *doc["terminations"]):

@@ -14,7 +14,17 @@ from pairline.engine.fieldmodel import field_setup
 from pairline.engine.plan import BusInputError, load_plan
 
 from tests.engine.captures import Trace, capture_csv, sample
-from tests.engine.field_buses import DRIVER, FAR_NODE, PLAN_DOC, TRUNK_M, capture_text, plan, trace
+from tests.engine.field_buses import (
+    DRIVER,
+    FAR_NODE,
+    JUNCTION_M,
+    JUNCTION_PROBE,
+    PLAN_DOC,
+    TRUNK_M,
+    capture_text,
+    plan,
+    trace,
+)
 
 
 def _check(text: str, at: str = DRIVER, **setup):
@@ -56,6 +66,36 @@ def test_far_terminator_missing_seen_at_the_far_node():
     result = _check(capture_text("far_missing", FAR_NODE, seed=4), FAR_NODE)
     assert [d.key for d in result.differences] == ["end_siemens"]
     assert _fitted(result, "end_termination_ohm") is None
+
+
+def test_far_terminator_of_60_ohm_instead_of_120():
+    # Source: ngspice transient with 60 Ohm at 400 m (a device's built-in 120 Ohm beside the planned one).
+    result = _check(capture_text("far_60_ohm", seed=16))
+    assert [d.key for d in result.differences] == ["end_siemens"]
+    assert _fitted(result, "end_termination_ohm") == pytest.approx(60.0, rel=0.1)  # value within 10 %
+    assert "instead of the planned 120 Ω" in result.differences[0].sentence
+    assert [t.resistance_ohm for t in result.fitted_plan.terminations] == [120.0, pytest.approx(60.0, rel=0.1)]
+
+
+def test_far_terminator_missing_seen_from_a_junction_on_the_trunk():
+    # Source: ngspice transient with the far terminator removed, probed with 1 MOhm at a junction 200 m along.
+    result = _check(
+        capture_text(f"far_missing+{JUNCTION_PROBE}", JUNCTION_PROBE, seed=17), None, at_position_m=JUNCTION_M
+    )
+    assert [d.key for d in result.differences] == ["end_siemens"]
+    assert _fitted(result, "end_termination_ohm") is None
+    # Source: from the junction to the far end and back, 2 x 200 m / (0.78 c0) = 1.71 µs after the edge passes.
+    assert "1.71 µs" in result.differences[0].sentence
+
+
+def test_a_longer_stub_at_a_planned_node():
+    # Source: ngspice transient with the device at 250 m ('screen-2') on an 8 m stub instead of on the trunk.
+    result = _check(capture_text("stub_8m_at_screen_2", seed=18))
+    assert [d.key for d in result.differences] == ["stub"]
+    assert _fitted(result, "stub_position_m") == pytest.approx(250.0, abs=0.05 * TRUNK_M)  # 5 % of the trunk
+    # the fit's stub carries no device at its end, the real one carries 100 pF: its length reads up to 20 % long
+    assert _fitted(result, "stub_length_m") == pytest.approx(8.0, rel=0.2)
+    assert "at node 'screen-2'" in result.differences[0].sentence
 
 
 def test_cable_of_150_ohm_instead_of_120():
