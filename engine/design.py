@@ -24,7 +24,7 @@ from dataclasses import dataclass
 from pairline.engine.bus import Bus
 from pairline.engine.dc import bias_supply_v
 from pairline.engine.findings import Finding, Verdict
-from pairline.engine.plan import BiasSpec, BusPlan, TerminationSpec
+from pairline.engine.plan import MAX_BIAS_OHM, BiasSpec, BusPlan, TerminationSpec
 from pairline.engine.rules.bias import BiasSizing, bias_min_ohm, bias_text, size_bias
 from pairline.engine.rules.cable_ends import (
     end_name,
@@ -302,11 +302,12 @@ def _design(bus: Bus, kind: str, bias: BiasSpec | None, order: int) -> Design | 
 
 def _bias_value_ohm(sizing: BiasSizing, tier: int) -> float:
     """Tier 0: the weakest E24 part that holds at the worst corner; 1: the weakest E24 part that holds with
-    nominal parts; 2: the weakest E96 (1 %) part that does. 0 when there is none."""
+    nominal parts; 2: the weakest E96 (1 %) part that does. 0 when there is none. A bus that holds with a
+    weaker part than a plan may name gets the weakest it may."""
     limit = sizing.corner_max_ohm if tier == 0 else sizing.nominal_max_ohm
     if limit <= 0.0:
         return 0.0
-    return preferred_at_or_below(limit, E96 if tier == 2 else E24)
+    return preferred_at_or_below(min(limit, MAX_BIAS_OHM), E96 if tier == 2 else E24)
 
 
 def _sized_bias(bus: Bus, kind: str, position_m: float, tier: int) -> BiasSpec | None:

@@ -23,6 +23,8 @@ MAX_TRUNK_M = 4000.0
 MIN_TRUNK_M = 0.1  # a bench bus; shorter is no cable run
 MAX_STUB_M = 100.0
 MAX_NAME_CHARS = 60
+MIN_BIAS_OHM = 10.0
+MAX_BIAS_OHM = 10e6
 PATTERN_CHARS = 512
 
 
@@ -132,8 +134,8 @@ class TerminationSpec(_Strict):
 
 class BiasSpec(_Strict):
     position_m: float = _f("Bias position", "m", ge=0.0, le=MAX_TRUNK_M, default=0.0)
-    pull_up_ohm: float = _f("Pull-up resistor", "Ω", ge=10.0, le=10e6)
-    pull_down_ohm: float = _f("Pull-down resistor", "Ω", ge=10.0, le=10e6)
+    pull_up_ohm: float = _f("Pull-up resistor", "Ω", ge=MIN_BIAS_OHM, le=MAX_BIAS_OHM)
+    pull_down_ohm: float = _f("Pull-down resistor", "Ω", ge=MIN_BIAS_OHM, le=MAX_BIAS_OHM)
     supply_v: float | None = _f("Bias supply", "V", ge=1.0, le=15.0, default=None)
 
 

@@ -315,3 +315,19 @@ def test_the_quick_check_gives_the_same_advice_and_capacity():
     assert quick.capacity == full.capacity
     assert [f.fix for f in quick.findings] == [f.fix for f in full.findings]
     assert full.advice.simulated and not quick.advice.simulated
+
+
+def test_a_bias_weaker_than_a_plan_may_name_is_advised_at_the_weakest_it_may():
+    """A 10 Ohm pair on a 1 m RS-422 bench bus with one 1/128 UL receiver (1.5 MOhm): the weakest pair that still
+    idles it at 200 mV is about 18 MOhm (R_B <= R_in / 2 (V_S / 200 mV - 1), hand calculation), so the advice
+    names the plan format's largest resistor, and the advised plan loads as a plan."""
+    doc = {
+        "standard": "rs422",
+        "bit_rate_bps": 50.0,
+        "trunk_length_m": 1.0,
+        "nodes": [{"name": "bench-probe", "position_m": 0.0, "unit_loads": 1 / 128}],
+        "bias": {"pull_up_ohm": 10.0, "pull_down_ohm": 10.0},
+    }
+    advice = report_to_dict(check_plan(load_plan(doc)))["advice"]
+    assert advice["plan"]["bias"]["pull_up_ohm"] == pytest.approx(10e6)
+    assert load_plan(advice["plan"]).bias.pull_down_ohm == pytest.approx(10e6)
