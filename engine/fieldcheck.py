@@ -17,11 +17,12 @@ from dataclasses import dataclass, replace
 import numpy as np
 from pairline.engine.bus import build_bus
 from pairline.engine.capture import MIN_SAMPLES, Capture
+from pairline.engine.capturefile import file_error
 from pairline.engine.fieldfit import Bounds, FitProblem, Values
 from pairline.engine.fieldmodel import FieldSetup, plan_edge, planned_installation, sent_duration_s
 from pairline.engine.fieldsearch import LONGEST_STRETCH, candidates, diagnose, fit_bounds
 from pairline.engine.fieldtext import Difference, Quantity, describe, is_unexplained, time_text
-from pairline.engine.plan import BusInputError, BusPlan, Problem
+from pairline.engine.plan import BusPlan
 from pairline.engine.units import propagation_velocity_m_per_s
 from pairline.engine.waveform import edge_duration_s, longest_delay_s
 
@@ -124,18 +125,12 @@ def check_capture(plan: BusPlan, capture: Capture, setup: FieldSetup) -> FieldCh
         )
     fit = FitProblem(plan, setup, capture, planned, (window.start_s, window.end_s), window.span_s, rise_s)
     if fit.time_s.size < MIN_SAMPLES:
-        raise BusInputError(
-            [
-                Problem(
-                    "capture_csv",
-                    "Capture file",
-                    fit.time_s.size,
-                    {"min": MIN_SAMPLES, "unit": "samples"},
-                    f"Only {fit.time_s.size} samples of the capture fall in the plan's window around the edge "
-                    f"({time_text(window.end_s - window.start_s)}); at least {MIN_SAMPLES} are needed: sample "
-                    "faster, or check the time unit (times in µs read as seconds look like this).",
-                )
-            ]
+        raise file_error(
+            fit.time_s.size,
+            {"min": MIN_SAMPLES, "unit": "samples"},
+            f"Only {fit.time_s.size} samples of the capture fall in the plan's window around the edge "
+            f"({time_text(window.end_s - window.start_s)}); at least {MIN_SAMPLES} are needed: sample faster, or "
+            "check the time unit (times in µs read as seconds look like this).",
         )
     limits = fit_bounds(plan, z0, rise_s, window.offset_s, t_edge, memory_s)
     aligned, scale_v, level_v = _align(fit, window.offset_s, rise_s, t_edge, limits)

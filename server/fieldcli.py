@@ -11,9 +11,10 @@ from pathlib import Path
 from typing import Any, TextIO
 
 from pairline.engine.capture import MAX_CAPTURE_BYTES, SIGNALS, decode_capture
+from pairline.engine.capturefile import file_error
 from pairline.engine.fieldcheck import FieldCheck
 from pairline.engine.fieldmodel import SENT
-from pairline.engine.plan import BusInputError, Problem, load_plan
+from pairline.engine.plan import BusInputError, load_plan
 from pairline.engine.units import length_text
 from pairline.server.cli import (
     EXIT_BREAKS,
@@ -60,27 +61,15 @@ def _read_capture(path: str) -> str:
     try:
         size = Path(path).stat().st_size
         if size > MAX_CAPTURE_BYTES:
-            raise BusInputError(
-                [
-                    Problem(
-                        "capture_csv",
-                        "Capture file",
-                        size,
-                        {"max": MAX_CAPTURE_BYTES, "unit": "bytes"},
-                        f"{path} holds {size} bytes; a capture file may hold at most {MAX_CAPTURE_BYTES} bytes.",
-                    )
-                ]
+            raise file_error(
+                size,
+                {"max": MAX_CAPTURE_BYTES, "unit": "bytes"},
+                f"{path} holds {size} bytes; a capture file may hold at most {MAX_CAPTURE_BYTES} bytes.",
             )
         return decode_capture(Path(path).read_bytes())
     except OSError as exc:
         reason = exc.strerror or type(exc).__name__
-        raise BusInputError(
-            [
-                Problem(
-                    "capture_csv", "Capture file", path, {"type": "readable CSV file"}, f"Cannot read {path}: {reason}."
-                )
-            ]
-        ) from None
+        raise file_error(path, {"type": "readable CSV file"}, f"Cannot read {path}: {reason}.") from None
 
 
 def run_field(args: argparse.Namespace, out: TextIO, err: TextIO) -> int:

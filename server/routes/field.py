@@ -15,6 +15,7 @@ from typing import Any
 from fastapi import APIRouter, Request
 from fastapi.responses import JSONResponse, RedirectResponse, Response
 from pairline.engine.capture import decode_capture
+from pairline.engine.capturefile import file_error
 from pairline.engine.plan import BusInputError, BusPlan, Problem, load_plan, plan_to_dict
 from pairline.server.errors import RequestRefused, not_found
 from pairline.server.field import FIELD_KEYS
@@ -22,7 +23,7 @@ from pairline.server.fieldjobs import field_result_job
 from pairline.server.fieldviews import capture_url, field_form_data, field_pages
 from pairline.server.jobs import Page
 from pairline.server.json_input import JsonInputError, load_json
-from pairline.server.openapi import REFUSALS
+from pairline.server.openapi import REFUSALS, SAVE_BODY, multipart_body
 from pairline.server.rendering import render
 from pairline.server.routes.api import require_json
 from pairline.server.routes.pages import StoreDep, page
@@ -51,7 +52,7 @@ CAPTURE_BODY: dict[str, Any] = {
 }
 SAVED_PLAN_CAPTURE: dict[str, Any] = {
     "requestBody": {"required": True, "content": {"application/json": {"schema": CAPTURE_BODY}}},
-    "responses": REFUSALS
+    "responses": SAVE_BODY["responses"]
     | {"201": {"description": "The capture is saved with the plan; Location is its page; the body its JSON twin."}},
 }
 PLAN_AND_CAPTURE: dict[str, Any] = {
@@ -69,20 +70,10 @@ PLAN_AND_CAPTURE: dict[str, Any] = {
     },
     "responses": REFUSALS,
 }
-FORM_BODY: dict[str, Any] = {
-    "requestBody": {
-        "required": True,
-        "content": {
-            "multipart/form-data": {
-                "schema": {
-                    "type": "object",
-                    "properties": {"capture_file": {"type": "string", "format": "binary"}}
-                    | {k: {"type": "string"} for k in (*FIELD_KEYS, "capture_csv")},
-                }
-            }
-        },
-    }
-}
+FORM_BODY = multipart_body(
+    {"capture_file": {"type": "string", "format": "binary"}}
+    | {k: {"type": "string"} for k in (*FIELD_KEYS, "capture_csv")}
+)
 
 
 def _plan(store: PlanStore, ref: str) -> BusPlan | None:
@@ -105,17 +96,11 @@ def _result(request: Request, plan: BusPlan, plan_id: str | None, raw: dict[str,
             if exc.limit == "memory"
             else f"took longer than the {exc.time_limit_s:g} s a check may take"
         )
-        raise BusInputError(
-            [
-                Problem(
-                    "capture_csv",
-                    "Capture file",
-                    None,
-                    {"time_limit_s": exc.time_limit_s, "memory_limit_mb": exc.memory_limit_mb},
-                    f"Comparing this capture with the plan {what}. Send a shorter capture (the plan's window "
-                    "around the edge is enough) or fewer samples.",
-                )
-            ]
+        raise file_error(
+            None,
+            {"time_limit_s": exc.time_limit_s, "memory_limit_mb": exc.memory_limit_mb},
+            f"Comparing this capture with the plan {what}. Send a shorter capture (the plan's window around the edge "
+            "is enough) or fewer samples.",
         ) from None
     result: dict[str, Any] = json.loads(body)
     return result
