@@ -9,7 +9,7 @@ the form shows (nanoseconds, the plan's length unit).
 
 import math
 from collections.abc import Mapping
-from dataclasses import dataclass
+from dataclasses import asdict, dataclass
 from typing import Any
 
 import numpy as np
@@ -179,8 +179,8 @@ def field_data(result: FieldCheck, request: FieldRequest) -> dict[str, Any]:
             "level_offset_v": a.level_offset_v,
             "inverted": bool(a.inverted),
         },
-        "residuals": [_region(r) for r in result.residuals],
-        "fitted_residuals": [_region(r) for r in result.fitted_residuals],
+        "residuals": [asdict(r) for r in result.residuals],
+        "fitted_residuals": [asdict(r) for r in result.fitted_residuals],
         "differences": [{"key": d.key, "sentence": d.sentence} for d in result.differences],
         "quantities": [
             {
@@ -204,16 +204,6 @@ def field_data(result: FieldCheck, request: FieldRequest) -> dict[str, Any]:
             "predicted_v": _floats(predicted),
             "fitted_v": _floats(fitted),
         },
-    }
-
-
-def _region(r: Any) -> dict[str, Any]:
-    return {
-        "region": r.region,
-        "samples": r.samples,
-        "rms_v": r.rms_v,
-        "max_abs_v": r.max_abs_v,
-        "rms_fraction": r.rms_fraction,
     }
 
 
