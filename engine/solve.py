@@ -329,6 +329,11 @@ def receiver_spectra(net: Network, driver_names: tuple[str, ...], receivers: np.
     return out
 
 
+def driver_terminal_spectra(net: Network, driver_names: tuple[str, ...]) -> np.ndarray:
+    """V / V_open_circuit at each driver's own terminal (the end of its stub, behind the source), (n_drivers, n_s)."""
+    return np.stack([_junction_voltages(net, name)[1] for name in driver_names])
+
+
 def junction_spectra(net: Network, driver_names: tuple[str, ...]) -> np.ndarray:
     """V_junction / V_open_circuit at every trunk junction for each driver, (n_drivers, K, n_s)."""
     return np.stack([_junction_voltages(net, name)[0] for name in driver_names])

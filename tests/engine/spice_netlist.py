@@ -173,12 +173,15 @@ def bus_netlist(
     max_step_s: float | None = None,
     line_model: str = "ltra",
     output_path: str = "out.txt",
+    probes: tuple[str, ...] | None = None,
 ) -> tuple[str, dict[str, str]]:
     """The bus as an ngspice netlist; returns (netlist text, receiver name -> spice node).
 
     `source_points` are PWL (time, open-circuit volts) corners of the driver; default one rising edge 0 ->
     open_circuit_v starting at t = 0 and ramping linearly for rise_time_s / 0.8.
     stop_time_s None: a DC operating point instead, the source at its last PWL value.
+    `probes`: the voltages written, by node name (the driving node's name is its own terminal, behind the
+    source resistance); default every receiver in plan order.
     """
     plan = bus.plan
     drv = bus.driver
@@ -230,7 +233,8 @@ def bus_netlist(
         analysis = [f".tran {_fmt(max_step_s)} {_fmt(stop_time_s)} 0 {_fmt(max_step_s)}"]
     lines.append(f"RS vs {circuit.driver_node} {_fmt(max(drv.source_ohm, 1e-6))}")
     lines += _line_elements(bus, circuit.sections, line_model, max_section_delay_s=ramp_s / 160.0)
-    probes = " ".join(f"v({circuit.receiver_nodes[n.name]})" for n in plan.nodes)
+    spice_nodes = dict(circuit.receiver_nodes) | {circuit.driver_name: circuit.driver_node}
+    written = " ".join(f"v({spice_nodes[name]})" for name in (probes or tuple(n.name for n in plan.nodes)))
     text = "\n".join(
         [
             f"* pairline reference transient, driver {circuit.driver_name}",
@@ -242,7 +246,7 @@ def bus_netlist(
             "set wr_vecnames",
             "option numdgt=12",
             "op" if stop_time_s is None else "run",
-            f"wrdata {output_path} {probes}",
+            f"wrdata {output_path} {written}",
             "quit",
             ".endc",
             ".end",
@@ -282,11 +286,17 @@ def run_netlist(netlist: str, receiver_names: tuple[str, ...], timeout_s: float 
 
 
 def step_waveforms(
-    bus: Bus, stop_time_s: float, *, driver_name: str | None = None, line_model: str = "ltra"
+    bus: Bus,
+    stop_time_s: float,
+    *,
+    driver_name: str | None = None,
+    line_model: str = "ltra",
+    probes: tuple[str, ...] | None = None,
 ) -> SpiceWaveforms:
-    """Receiver voltages for one rising edge 0 -> open_circuit_v of the driver, ramp starting at t = 0."""
-    text, _ = bus_netlist(bus, stop_time_s=stop_time_s, driver_name=driver_name, line_model=line_model)
-    return run_netlist(text, tuple(n.name for n in bus.plan.nodes))
+    """Voltages (receivers, or the named probes) for one rising edge 0 -> open_circuit_v of the driver, ramp
+    starting at t = 0."""
+    text, _ = bus_netlist(bus, stop_time_s=stop_time_s, driver_name=driver_name, line_model=line_model, probes=probes)
+    return run_netlist(text, probes or tuple(n.name for n in bus.plan.nodes))
 
 
 def pattern_waveforms(
@@ -298,16 +308,20 @@ def pattern_waveforms(
     start_s: float = 0.0,
     repeats: int = 1,
     line_model: str = "ltra",
+    probes: tuple[str, ...] | None = None,
 ) -> SpiceWaveforms:
-    """Receiver voltages for a bit pattern (1 -> +V, 0 -> -V), each bit's ramp starting start_s + k * bit_time_s
-    after t = 0 and the line at rest at the first bit's level; the pattern is repeated `repeats` times."""
+    """Voltages (receivers, or the named probes) for a bit pattern (1 -> +V, 0 -> -V), each bit's ramp starting
+    start_s + k * bit_time_s after t = 0 and the line at rest at the first bit's level; the pattern is repeated
+    `repeats` times."""
     v = bus.driver.open_circuit_v
     seq = bits * repeats
     levels = [v if b == "1" else -v for b in seq]
     points = _pwl_points(levels, bit_time_s, bus.driver.rise_time_s / 0.8, start_s)
     stop = start_s + len(seq) * bit_time_s
-    text, _ = bus_netlist(bus, stop_time_s=stop, driver_name=driver_name, source_points=points, line_model=line_model)
-    return run_netlist(text, tuple(n.name for n in bus.plan.nodes))
+    text, _ = bus_netlist(
+        bus, stop_time_s=stop, driver_name=driver_name, source_points=points, line_model=line_model, probes=probes
+    )
+    return run_netlist(text, probes or tuple(n.name for n in bus.plan.nodes))
 
 
 def dc_levels(bus: Bus, *, driver_name: str | None = None) -> np.ndarray:
