@@ -15,6 +15,8 @@ from pairline.server.cli import main
 
 SAMPLES = Path(__file__).resolve().parents[2] / "sample_buses"
 PLANS = sorted(SAMPLES.glob("*.json"))
+# The samples as they were written in plan format 1, before devices, bias lists and grounding.
+FORMAT_1 = sorted((Path(__file__).resolve().parent / "format_v1").glob("*.json"))
 
 
 def _expected(plan_path: Path) -> dict:
@@ -71,6 +73,22 @@ def test_cli_exit_status_matches(plan_path: Path, capsys):
     assert f"Overall: {_expected(plan_path)['overall'].upper()}" in out
 
 
+@pytest.mark.parametrize("v1_path", FORMAT_1, ids=lambda p: p.stem)
+def test_a_format_1_sample_gives_the_verdicts_of_its_format_2_twin(v1_path: Path):
+    v1 = json.loads(v1_path.read_text(encoding="utf-8"))
+    v2 = json.loads((SAMPLES / v1_path.name).read_text(encoding="utf-8"))
+    assert (v1.get("format_version", 1), v2["format_version"]) == (1, 2)
+    old, new = check_plan(load_plan(v1)), check_plan(load_plan(v2))
+    assert [(f.rule_id, f.node, f.verdict, f.value) for f in old.findings] == [
+        (f.rule_id, f.node, f.verdict, f.value) for f in new.findings
+    ]
+    assert dict(old.bus.devices) == dict(new.bus.devices)  # every node's device, every value filled in
+
+
+def test_every_format_1_sample_has_its_twin():
+    assert len(FORMAT_1) >= 9 and {p.name for p in FORMAT_1} <= {p.name for p in PLANS}
+
+
 def test_store_building_offset_needs_isolation():
     # Source: Intersil tutorial "High-Speed RS-485 Transceiver and Applications": a 2.5 V driver with 2.5 V of
     # noise leaves 7 V of ground offset inside the TIA/EIA-485-A -7..+12 V range; the store sits 11 V off.
@@ -78,6 +96,8 @@ def test_store_building_offset_needs_isolation():
     store = next(f for f in report.findings if f.rule_id == "common_mode.range" and f.node == "store-door")
     assert store.value == pytest.approx(11.0) and store.limit == pytest.approx(7.0, abs=1e-12)
     assert "galvanically" in store.fix and "local electrical codes" in store.fix
+    # common practice (TI SLLA272): isolation belongs at the boundary between earths, the store's two panels.
+    assert "'store-door', 'store-alarm'" in store.fix and "workshop-door" not in store.fix
 
 
 @pytest.mark.parametrize("plan_path", PLANS, ids=lambda p: p.stem)
