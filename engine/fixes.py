@@ -286,12 +286,19 @@ def termination_fix(bus: Bus, trial: _Trial) -> ComputedFix | None:
 
 def driver_fix(bus: Bus, trial: _Trial) -> ComputedFix | None:
     """The library driver class nearest in rise time to the plan's (on a log scale) that makes them pass and
-    switches within 30 % of a bit (TI SLLA628)."""
+    switches within 30 % of a bit (TI SLLA628); of classes with one edge, the one like the driver's own device."""
     before = trial.count
     rise = bus.driver.rise_time_s
     bit_s = 1.0 / bus.plan.bit_rate_bps
+    own = bus.driver_device
     keys = [k for k, t in TRANSCEIVERS.items() if t.rise_time_s <= 0.3 * bit_s and t.rise_time_s != rise]
-    keys.sort(key=lambda k: abs(math.log(TRANSCEIVERS[k].rise_time_s / rise)))
+    # Nearest edge first; among classes of one edge, the one whose receiver and isolation match the driver's own.
+    keys.sort(
+        key=lambda k: (
+            abs(math.log(TRANSCEIVERS[k].rise_time_s / rise)),
+            (TRANSCEIVERS[k].failsafe, TRANSCEIVERS[k].isolated) != (own.failsafe, own.isolated),
+        )
+    )
     plan = bus.plan
     for key in keys:
         drv = plan.driver.model_copy(update={"device": DeviceSpec(class_key=key)})

@@ -11,6 +11,8 @@ OFFSET_BUDGET_V = 7.0
 # Above this a difference between grounds is no signalling matter: 50 V AC is the conventional touch-voltage
 # limit for ordinary dry locations (IEC 60364-4-41; from memory).
 DANGER_OFFSET_V = 50.0
+# Tens of volts between earths: a fault to investigate before any isolation is chosen (common practice).
+FAULT_OFFSET_V = 20.0
 # Pairline's own prompt for the surge caution; the caution itself is always shown, for any outdoor run.
 LONG_RUN_M = 100.0
 
@@ -33,7 +35,10 @@ SAFETY_CAUTIONS = (
         "isolation",
         "Isolation",
         "Where the offset may exceed the common-mode range, or the sites have separate earthing systems, use "
-        "galvanically isolated transceivers and isolated supplies rather than a bare ground wire between sites.",
+        "galvanically isolated transceivers and isolated supplies rather than a bare ground wire between sites, "
+        "at the boundary between the earths. A difference of tens of volts between earths is itself a fault to "
+        "find first (an earthing or wiring fault, or a site on another supply). Where the difference is "
+        "mains-level, the isolation must be reinforced (or the link fibre), not basic.",
     ),
     (
         "codes",
@@ -53,13 +58,19 @@ def cautions_data(plan: BusPlan) -> list[dict[str, Any]]:
         "surge": f"trunk length {length_text(plan.trunk_length_m, plan.display_units)}"
         if plan.trunk_length_m >= LONG_RUN_M
         else "",
-        "isolation": f"a node sits {largest:g} V from the driver's ground" if largest >= OFFSET_BUDGET_V else "",
+        "isolation": _isolation_reason(largest),
         "codes": "always",
     }
     return [
         {"key": key, "title": title, "text": text, "applies": bool(reasons[key]), "reason": reasons[key]}
         for key, title, text in SAFETY_CAUTIONS
     ]
+
+
+def _isolation_reason(largest_v: float) -> str:
+    if largest_v >= FAULT_OFFSET_V:
+        return f"a node sits {largest_v:g} V from the driver's ground: find that fault before choosing isolation"
+    return f"a node sits {largest_v:g} V from the driver's ground" if largest_v >= OFFSET_BUDGET_V else ""
 
 
 def danger_data(plan: BusPlan) -> dict[str, Any] | None:

@@ -13,6 +13,7 @@ from typing import Any
 
 import numpy as np
 from pairline.engine import ENGINE_VERSION
+from pairline.engine.devices import UNIT_LOAD_TEXT
 from pairline.engine.findings import Verdict, worst
 from pairline.engine.library import CABLES, STANDARD_MINIMUM, TRANSCEIVERS
 from pairline.engine.plan import BusPlan, Problem, plan_to_dict
@@ -321,6 +322,8 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
             "problem_groups": problem_groups,
             "holding_rules": holding_rules(findings),
             "nodes": nodes,
+            "devices": _devices_data(report.bus),
+            "unit_load_text": UNIT_LOAD_TEXT,
             "summary": _summary_data(summary, units),
             "advice": advice_data(report, units, plan_id),
             "waveforms": waveforms,
@@ -357,6 +360,33 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
     )
     data["report"] = report_to_dict(report)  # already JSON-safe: the same JSON as `pairline check --json`
     return data
+
+
+def _devices_data(bus: Any) -> list[dict[str, Any]]:
+    """Each distinct device on the bus, its values as text, and the nodes that carry it (the driver first)."""
+    by_device: dict[Any, list[str]] = {}
+    for name, device in bus.devices.items():
+        by_device.setdefault(device, []).append(name)
+    rows = []
+    for d, names in by_device.items():
+        edge = si_format(d.rise_time_s, "s") if math.isfinite(d.rise_time_s) else "not stated (receives only)"
+        isolation = f"{d.isolation_rating_vrms:g} Vrms, {d.isolation_grade}" if d.isolated else "not isolated"
+        shown = ", ".join(names[:6]) + (f" and {len(names) - 6} more" if len(names) > 6 else "")
+        source = si_format(d.source_ohm, "Ω") if d.source_ohm else "0 Ω"
+        rows.append(
+            {
+                "label": d.label,
+                "unit_loads_text": f"{d.unit_loads:g} UL ({si_format(d.differential_input_ohm, 'Ω')} across the pair)",
+                "failsafe_text": d.failsafe_text,
+                "driver_text": f"{d.open_circuit_v:g} V behind {source}, edge {edge}",
+                "common_mode_text": f"{d.common_mode_min_v:+g} V to {d.common_mode_max_v:+g} V",
+                "isolation_text": isolation,
+                "nodes_text": shown,
+                "count": len(names),
+                "source": d.source,
+            }
+        )
+    return rows
 
 
 def _signal_data(m: Any, units: UnitSystem) -> dict[str, Any] | None:

@@ -143,7 +143,7 @@ def cross_field_problems(data: dict[str, Any]) -> list[Problem]:
             past_end(f"bias.{i}.position_m", f"Bias network {i + 1} position", num(bias, "position_m", 0.0))
     default_key = data.get("default_device", DEFAULT_DEVICE)
     if not isinstance(default_key, str) or default_key not in TRANSCEIVERS:
-        problems.append(_unknown_class("default_device", "Default device class", default_key))
+        problems.append(_unknown_class("default_device", "Default device class", default_key, own_values=False))
         default_key = None
     problems += _device_problems(data, "driver.device", sub(data, "driver").get("device"), default_key, True)
     for i, node in enumerate(items(data, "nodes")):
@@ -168,15 +168,17 @@ def cross_field_problems(data: dict[str, Any]) -> list[Problem]:
     return problems
 
 
-def _unknown_class(path: str, label: str, key: Any) -> Problem:
+def _unknown_class(path: str, label: str, key: Any, own_values: bool = True) -> Problem:
+    """A class key the library does not hold; a device (not the plan's default) may also be given by its own
+    values."""
     choices = sorted(TRANSCEIVERS)
     return Problem(
         path,
         label,
         short(key),
-        {"choices": DEVICE_CHOICES},
-        f"{label} '{short(key)}' is not in the library; choose one of {', '.join(choices)}, or give the device's "
-        "own values (class_key null).",
+        {"choices": DEVICE_CHOICES if own_values else choices},
+        f"{label} '{short(key)}' is not in the library; choose one of {', '.join(choices)}"
+        + (", or give the device's own values (class_key null)." if own_values else "."),
     )
 
 
@@ -255,8 +257,8 @@ def _device_problems(
                     given["output_54_ohm_v"],
                     {"rule": "either output_54_ohm_v, or open_circuit_v with source_ohm", "also_given": both},
                     f"{label('output_54_ohm_v')}: give the driver's output one way, either its minimum into 54 Ω "
-                    f"or its open-circuit voltage with its source resistance, not both ({prefix}."
-                    f"{f' and {prefix}.'.join(both)} are also given).",
+                    f"or its open-circuit voltage with its source resistance, not both "
+                    f"({' and '.join(f'{prefix}.{f}' for f in both)} {'is' if len(both) == 1 else 'are'} also given).",
                 )
             )
     if talks and key is None and given.get("rise_time_s") is None:

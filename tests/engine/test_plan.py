@@ -4,6 +4,7 @@ import copy
 
 import pytest
 from pairline.engine.bus import build_bus
+from pairline.engine.library import TRANSCEIVERS
 from pairline.engine.plan import BusInputError, load_plan, plan_to_dict
 
 GOOD = {
@@ -95,3 +96,75 @@ def test_not_an_object():
 def test_negative_trunk_is_one_problem_not_a_cascade():
     found = _problems(_with(trunk_length_m=-3.0))
     assert set(found) == {"trunk_length_m"}
+
+
+# --- format 2: devices, bias networks, grounding ----------------------------------------------------------------
+
+V2 = {
+    "format_version": 2,
+    "bit_rate_bps": 9600,
+    "trunk_length_m": 100.0,
+    "nodes": [{"name": "a", "position_m": 10.0}],
+}
+
+
+def _node(**device):
+    return {"nodes": [{"name": "a", "position_m": 10.0, "device": device}]}
+
+
+@pytest.mark.parametrize("device", ["edge-7ns", {"class_key": "edge-7ns"}])
+def test_an_unknown_class_is_named_with_the_allowed_ones(device):
+    doc = V2 | {"nodes": [{"name": "a", "position_m": 10.0, "device": device}]}
+    field = "nodes.0.device" if isinstance(device, str) else "nodes.0.device.class_key"
+    p = _problems(doc)[field]
+    assert p.value == "edge-7ns" and "edge-100ns" in p.allowed["choices"] and "edge-100ns" in p.message
+    p = _problems(V2 | {"default_device": "nope"})["default_device"]
+    assert p.allowed["choices"] == sorted(TRANSCEIVERS) and "slew-2500ns" in p.message
+
+
+def test_a_threshold_window_that_is_not_a_window_is_refused():
+    p = _problems(V2 | _node(threshold_low_v=-0.05, threshold_high_v=-0.1))["nodes.0.device.threshold_high_v"]
+    assert p.value == -0.1 and p.allowed["threshold_low_v"] == -0.05 and "not a window" in p.message
+    # Source: TI E2E FAQ on fail-safe biasing: an idle-bus failsafe reads 0 V as a 1, so its window lies below 0 V.
+    p = _problems(V2 | _node(failsafe="idle_bus", threshold_high_v=0.05))["nodes.0.device.threshold_high_v"]
+    assert p.allowed["max"] == 0.0 and p.allowed["max_exclusive"]
+
+
+def test_isolation_needs_its_rating():
+    p = _problems(V2 | _node(class_key=None, isolated=True))["nodes.0.device.isolation_rating_vrms"]
+    assert p.value is None and p.allowed["unit"] == "Vrms" and "isolated" in p.message
+    load_plan(V2 | _node(class_key=None, isolated=True, isolation_rating_vrms=2500.0))
+
+
+def test_a_node_that_may_drive_on_rs422_is_refused():
+    doc = V2 | {"standard": "rs422", "nodes": [{"name": "a", "position_m": 10.0, "may_drive": True}]}
+    p = _problems(doc)["nodes.0.may_drive"]
+    assert p.value is True and p.allowed["choices"] == [False] and "RS-422" in p.message
+
+
+def test_a_custom_talker_states_its_edge_and_a_driver_its_output_one_way():
+    doc = V2 | {"nodes": [{"name": "a", "position_m": 10.0, "may_drive": True, "device": {"class_key": None}}]}
+    assert "edge time" in _problems(doc)["nodes.0.device.rise_time_s"].message
+    doc = V2 | {"driver": {"device": {"output_54_ohm_v": 2.0, "source_ohm": 10.0}}}
+    assert "one way" in _problems(doc)["driver.device.output_54_ohm_v"].message
+
+
+def test_a_format_1_plan_opens_as_format_2_with_the_same_meaning():
+    v1 = {
+        "bit_rate_bps": 9600,
+        "trunk_length_m": 100.0,
+        "driver": {"transceiver": "edge-25ns", "rise_time_s": 40e-9},
+        "nodes": [
+            {"name": "a", "position_m": 10.0, "role": "transceiver", "unit_loads": 0.125},
+            {"name": "b", "position_m": 90.0, "input_capacitance_f": 50e-12},
+        ],
+        "bias": {"position_m": 0.0, "pull_up_ohm": 680.0, "pull_down_ohm": 680.0},
+    }
+    plan = load_plan(v1)
+    doc = plan_to_dict(plan)
+    assert (doc["format_version"], doc["default_device"]) == (2, "edge-25ns")
+    assert plan.nodes[0].may_drive and not plan.nodes[1].may_drive and len(plan.bias) == 1
+    # Format 1 drove every node that may drive like the driver's class and its values: the node keeps them.
+    assert plan.nodes[0].device.rise_time_s == 40e-9 and plan.nodes[0].device.unit_loads == 0.125
+    assert plan.nodes[1].device.input_capacitance_f == 50e-12
+    assert load_plan(doc) == plan  # the upgraded document is a format-2 plan of its own

@@ -14,6 +14,7 @@ from pairline.engine.rules.bias import (
     idle_voltage_v,
     max_bias_ohm,
     size_bias,
+    size_bias_networks,
 )
 from pairline.engine.rules.preferred import preferred_at_or_below
 from pairline.engine.units import parallel_ohm
@@ -179,3 +180,29 @@ def test_crowded_terminated_bus_gets_failsafe_or_rc_advice():
     fix = check_failsafe_bias(bus)[0].fix
     assert "no pull-up / pull-down pair fits" in fix
     assert "idle-bus failsafe receivers" in fix and "RC terminators" in fix
+
+
+def test_two_equal_networks_at_the_ends_may_each_be_twice_as_weak_as_one():
+    bus = _bus(cable=LOSSLESS)
+    one = size_bias(bus, 0.0)
+    two = size_bias_networks(bus, (0.0, 100.0), 5.0)
+    # Source: Thevenin: two equal networks of V_S behind 2 R_B, in parallel on a lossless pair, are one network of
+    # V_S behind R_B; so each may be twice the single network's largest resistor (bisection to 1e-12 of the range).
+    assert two.nominal_max_ohm == pytest.approx(2.0 * one.nominal_max_ohm, rel=1e-6)
+    assert two.corner_max_ohm == pytest.approx(2.0 * one.corner_max_ohm, rel=1e-6)
+
+
+def test_the_advice_resizes_bias_at_both_ends_together():
+    from pairline.engine.check import check_plan
+
+    weak = [
+        {"position_m": 0.0, "pull_up_ohm": 10e3, "pull_down_ohm": 10e3},
+        {"position_m": 100.0, "pull_up_ohm": 10e3, "pull_down_ohm": 10e3},
+    ]
+    report = check_plan(_bus(format_version=2, driver={"device": "edge-10ns"}, bias=weak).plan)
+    advised = report.advice.plan.bias
+    assert [b.position_m for b in advised] == [0.0, 100.0]
+    assert advised[0].pull_up_ohm == advised[1].pull_up_ohm < 10e3
+    idle = next(f for f in report.advice.findings if f.rule_id == "bias.idle_level")
+    # Source: TIA/EIA-485-A: 200 mV at every plain receiver, at the worst corner as well (tight band).
+    assert idle.verdict is Verdict.HOLDS and idle.figure("corner_v") >= 0.2

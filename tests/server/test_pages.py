@@ -469,7 +469,12 @@ def test_cautions_point_at_what_in_the_plan_calls_for_them():
     loud = {c["key"]: c for c in cautions_data(load_plan(PLAN_DOC | {"nodes": nodes}))}
     # Source: TIA/EIA-485-A common-mode range -7 V to +12 V: a 9 V offset leaves it, so isolation applies.
     assert loud["ground"]["applies"] and loud["isolation"]["applies"] and loud["surge"]["applies"]
-    assert "9 V" in loud["isolation"]["reason"]
+    assert "9 V" in loud["isolation"]["reason"] and "fault" not in loud["isolation"]["reason"]
+    nodes = [{"name": "far", "position_m": 100.0, "ground_offset_v": 35.0}]
+    faulty = {c["key"]: c for c in cautions_data(load_plan(PLAN_DOC | {"nodes": nodes}))}
+    # common practice: tens of volts between earths is a fault (a broken earth, a site on another supply).
+    assert "find that fault before choosing isolation" in faulty["isolation"]["reason"]
+    assert "reinforced" in faulty["isolation"]["text"] and "boundary between the earths" in faulty["isolation"]["text"]
 
 
 def test_curve_section_names_its_criteria_and_marks_the_plan(client, saved_id):

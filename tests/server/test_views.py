@@ -103,6 +103,12 @@ def test_a_ground_offset_above_50_volts_puts_a_stop_caution_above_the_findings(c
     assert "shock hazard" in text and "earth fault" in text and "licensed electrician" in text
     assert "local electrical codes" in text and "'barn'" in text
     assert html.index('id="danger"') < html.index('id="h-findings"')
+    # Source: above 30 Vrms a barrier needs reinforced insulation (TI "Our isolators are certified"; IEC 60747-17):
+    # the common-mode fix names reinforced isolation or fibre, after the stop.
+    fix = next(
+        f["fix"] for f in data["report"]["findings"] if (f["rule_id"], f["node"]) == ("common_mode.range", "barn")
+    )
+    assert fix.startswith("DANGER") and "reinforced" in fix and "fibre" in fix
 
 
 def test_no_stop_caution_at_50_volts_or_less(client):
