@@ -12,6 +12,7 @@ from pairline.engine.bus import Bus
 from pairline.engine.findings import Finding
 from pairline.engine.rules.bias import check_failsafe_bias
 from pairline.engine.rules.common_mode import check_common_mode
+from pairline.engine.rules.ground_wiring import check_ground_wiring
 from pairline.engine.rules.length_rate import check_length_vs_rate
 from pairline.engine.rules.loads import check_driver_load, check_unit_loads
 from pairline.engine.rules.power import check_resistor_power
@@ -34,6 +35,7 @@ RULES: tuple[RuleCheck, ...] = (
     check_receiver_voltage,
     check_failsafe_bias,
     check_common_mode,
+    check_ground_wiring,
     check_length_vs_rate,
     check_resistor_power,
     check_signal_integrity,

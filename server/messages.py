@@ -8,11 +8,9 @@ import math
 import re
 from typing import TYPE_CHECKING, Any
 
-import annotated_types as at
-from pairline.engine.plan import BusPlan, Problem
+from pairline.engine.plan import BusPlan, Problem, allowed_of, field_info
 from pairline.engine.units import si_format
 from pairline.server.quantities import KINDS, QuantityError, UnitSystem, bare_unit, length_text, number_text
-from pydantic import BaseModel
 
 if TYPE_CHECKING:
     from pairline.server.forms import FieldSpec
@@ -22,42 +20,9 @@ _SI_UNITS = {"s", "F", "Hz", "Ω", "bit/s", "W", "A", "V"}
 
 def field_allowed(path: str) -> dict[str, Any]:
     """The allowed range of a plan field by dotted path (`nodes.3.stub_length_m`): min, max, min_exclusive and
-    the SI unit, as the plan model states them; {} for a path that is not a bounded field."""
-    model: type[BaseModel] | None = BusPlan
-    info = None
-    for part in path.split("."):
-        if part.isdigit():
-            continue
-        if model is None:
-            return {}
-        info = model.model_fields.get(part)
-        if info is None:
-            return {}
-        model = _submodel(info.annotation)
-    if info is None:
-        return {}
-    allowed: dict[str, Any] = {}
-    for m in info.metadata:
-        if isinstance(m, at.Ge):
-            allowed["min"] = m.ge
-        elif isinstance(m, at.Gt):
-            allowed["min"], allowed["min_exclusive"] = m.gt, True
-        elif isinstance(m, at.Le):
-            allowed["max"] = m.le
-    extra = info.json_schema_extra
-    if isinstance(extra, dict) and "unit" in extra:
-        allowed["unit"] = extra["unit"]
-    return allowed
-
-
-def _submodel(annotation: Any) -> type[BaseModel] | None:
-    stack = [annotation]
-    while stack:
-        item = stack.pop()
-        if isinstance(item, type) and issubclass(item, BaseModel):
-            return item
-        stack.extend(getattr(item, "__args__", ()))
-    return None
+    the SI unit, as the plan model states them; {} for a path that is not a field of the plan."""
+    info = field_info(BusPlan, tuple(int(p) if p.isdigit() else p for p in path.split(".")))
+    return allowed_of(info) if info is not None else {}
 
 
 def value_text(value: float, unit: str, units: UnitSystem, spec: "FieldSpec | None" = None) -> str:

@@ -32,7 +32,7 @@ from pairline.engine.plan.model import (
     NodeSpec,
     TerminationSpec,
 )
-from pairline.engine.plan.problems import BusInputError, Problem
+from pairline.engine.plan.problems import BusInputError, Problem, allowed_of, field_info
 
 UNIT_LOAD_OHM = 12_000.0  # one unit load, per line: 12 V / 1 mA (TIA-485-A)
 
@@ -70,8 +70,10 @@ __all__ = [
     "Problem",
     "ResolvedCable",
     "TerminationSpec",
+    "allowed_of",
     "cross_field_problems",
     "current_document",
+    "field_info",
     "input_resistance_ohm",
     "load_plan",
     "plan_to_dict",

@@ -3,7 +3,7 @@ reported alongside the field checks: positions past the trunk end, names used tw
 its capacitor, unknown cable or device classes, a threshold window that is not a window, isolation without a
 rating, a node that may drive on an RS-422 line, a node of its own values that may drive without an edge time."""
 
-from collections.abc import Callable
+from collections.abc import Callable, Mapping
 from typing import Any
 
 from pairline.engine.library import CABLES, STANDARD_MINIMUM, TRANSCEIVERS, TransceiverClass
@@ -18,6 +18,7 @@ from pairline.engine.plan.problems import (
     short,
     value_text,
 )
+from pydantic import BaseModel
 
 PastEnd = Callable[[str, str, float | None], None]
 
@@ -99,24 +100,40 @@ def shared_problems(data: dict[str, Any], past_end: PastEnd) -> list[Problem]:
                     f"Terminator {i + 1} is an RC terminator and needs a capacitance; allowed 1 pF to 100 µF.",
                 )
             )
-    cable = sub(data, "cable")
-    cable_key = cable.get("class_key", "pair-24awg-120")
-    if isinstance(cable_key, str) and cable_key not in CABLES:
-        problems.append(
-            Problem(
-                "cable.class_key",
-                "Cable class",
-                short(cable_key),
-                {"choices": sorted(CABLES)},
-                f"Cable class '{short(cable_key)}' is not in the library; choose one of "
-                f"{', '.join(sorted(CABLES))}, or leave it empty and enter custom values.",
-            )
-        )
-    if cable_key is None:
-        for key in ("z0_ohm", "velocity_factor", "resistance_ohm_per_m"):
-            if cable.get(key) is None:
-                problems.append(missing_custom("cable", CableSpec.model_fields[key], key, "cable.class_key"))
+    fields = ("z0_ohm", "velocity_factor", "resistance_ohm_per_m")
+    problems += class_problems(data, "cable", "class_key", "pair-24awg-120", "Cable class", CABLES, CableSpec, fields)
     return problems
+
+
+def class_problems(
+    data: dict[str, Any],
+    part: str,
+    key_field: str,
+    default_key: str,
+    label: str,
+    library: Mapping[str, Any],
+    model: type[BaseModel],
+    custom_fields: tuple[str, ...],
+) -> list[Problem]:
+    """A part that names a library class (the cable, a format-1 driver): the class is known, or with no class
+    (null) the values a custom part needs are given."""
+    given = sub(data, part)
+    key = given.get(key_field, default_key)
+    path = f"{part}.{key_field}"
+    if isinstance(key, str) and key not in library:
+        return [
+            Problem(
+                path,
+                label,
+                short(key),
+                {"choices": sorted(library)},
+                f"{label} '{short(key)}' is not in the library; choose one of {', '.join(sorted(library))}, or "
+                "leave it empty and enter custom values.",
+            )
+        ]
+    if key is not None:
+        return []
+    return [missing_custom(part, model.model_fields[k], k, path) for k in custom_fields if given.get(k) is None]
 
 
 def missing_custom(prefix: str, info: Any, key: str, class_field: str, why: str = "", label: str = "") -> Problem:
@@ -151,21 +168,25 @@ def cross_field_problems(data: dict[str, Any]) -> list[Problem]:
             continue
         talks = node.get("may_drive") is True
         if standard == "rs422" and talks:
-            name = node.get("name")
-            shown = f" ('{name}')" if isinstance(name, str) else ""
-            problems.append(
-                Problem(
-                    f"nodes.{i}.may_drive",
-                    f"Node {i + 1}{shown} may drive",
-                    True,
-                    {"choices": [False], "because": "standard is rs422"},
-                    f"Node {i + 1}{shown} may drive, but an RS-422 bus has one driver and receivers only "
-                    f"(standard); allowed: false. Make it a receiver or choose RS-485.",
-                )
-            )
+            problems.append(rs422_talker_problem(i, node, "may_drive", True, False, "may drive"))
         talks = talks and standard == "rs485"
         problems += _device_problems(data, f"nodes.{i}.device", node.get("device"), default_key, talks)
     return problems
+
+
+def rs422_talker_problem(i: int, node: dict[str, Any], key: str, value: Any, allowed: Any, says: str) -> Problem:
+    """Node i would drive an RS-422 line, which has one driver: "Node 3 ('pump') may drive, but ..."."""
+    name = node.get("name")
+    shown = f" ('{name}')" if isinstance(name, str) else ""
+    label = f"Node {i + 1}{shown} {key.replace('_', ' ')}"
+    return Problem(
+        f"nodes.{i}.{key}",
+        label,
+        value,
+        {"choices": [allowed], "because": "standard is rs422"},
+        f"Node {i + 1}{shown} {says}, but an RS-422 bus has one driver and receivers only (standard); allowed: "
+        f"{str(allowed).lower() if isinstance(allowed, bool) else allowed}. Make it a receiver or choose RS-485.",
+    )
 
 
 def _unknown_class(path: str, label: str, key: Any, own_values: bool = True) -> Problem:

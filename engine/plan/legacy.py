@@ -14,24 +14,31 @@ version 2 with the same meaning:
 from typing import Any, Literal
 
 from pairline.engine.library import STANDARD_MINIMUM, TRANSCEIVERS
-from pairline.engine.plan.checks import items, missing_custom, num, past_end_check, shared_problems, sub
+from pairline.engine.plan.checks import (
+    class_problems,
+    items,
+    num,
+    past_end_check,
+    rs422_talker_problem,
+    shared_problems,
+)
 from pairline.engine.plan.model import (
     DEFAULT_DEVICE,
     MAX_NODES,
     MAX_STUB_M,
     MAX_TRUNK_M,
-    MIN_TRUNK_M,
     PATTERN_CHARS,
     BiasSpec,
-    CableSpec,
     Name,
+    PlanHead,
     TerminationSpec,
     _f,
     _Strict,
 )
-from pairline.engine.plan.problems import Problem, short
+from pairline.engine.plan.problems import Problem
 from pydantic import Field
 
+_DRIVER_VALUES = ("rise_time_s", "open_circuit_v", "source_ohm")
 RS422_RECEIVER_RANGE_V = (-7.0, 7.0)  # TIA/EIA-422-B receiver common-mode range, which version 1 applied
 
 
@@ -65,17 +72,8 @@ class NodeSpecV1(_Strict):
     )
 
 
-class BusPlanV1(_Strict):
-    format: Literal["pairline-bus-plan"] = Field("pairline-bus-plan", title="Format")
+class BusPlanV1(PlanHead):
     format_version: Literal[1] = Field(1, title="Format version")
-    title: str = Field("", max_length=120, title="Title")
-    notes: str = Field("", max_length=4000, title="Notes")
-    display_units: Literal["metric", "imperial"] = Field("metric", title="Display units")
-    standard: Literal["rs485", "rs422"] = Field("rs485", title="Standard")
-    bit_rate_bps: float = _f("Bit rate", "bit/s", ge=50.0, le=100e6)
-    supply_v: float = _f("Supply voltage", "V", ge=1.5, le=15.0, default=5.0)
-    trunk_length_m: float = _f("Trunk length", "m", ge=MIN_TRUNK_M, le=MAX_TRUNK_M)
-    cable: CableSpec = Field(default_factory=CableSpec, title="Cable")
     driver: DriverSpecV1 = Field(default_factory=DriverSpecV1, title="Driver")
     nodes: list[NodeSpecV1] = Field(min_length=1, max_length=MAX_NODES, title="Nodes")
     terminations: list[TerminationSpec] = Field(default_factory=list, max_length=16, title="Terminations")
@@ -98,41 +96,13 @@ def cross_field_problems_v1(data: dict[str, Any]) -> list[Problem]:
     if data.get("standard", "rs485") == "rs422":
         for i, node in enumerate(items(data, "nodes")):
             if isinstance(node, dict) and node.get("role") == "transceiver":
-                name = node.get("name")
-                shown = f" ('{name}')" if isinstance(name, str) else ""
-                problems.append(
-                    Problem(
-                        f"nodes.{i}.role",
-                        f"Node {i + 1}{shown} role",
-                        "transceiver",
-                        {"choices": ["receiver"], "because": "standard is rs422"},
-                        f"Node {i + 1}{shown} is a transceiver, but an RS-422 bus has one driver and receivers only "
-                        "(standard); make it a receiver or choose RS-485.",
-                    )
-                )
+                problems.append(rs422_talker_problem(i, node, "role", "transceiver", "receiver", "is a transceiver"))
     if isinstance(data.get("bias"), dict):
         past_end("bias.position_m", "Bias position", num(data["bias"], "position_m", 0.0))
-    driver = sub(data, "driver")
-    driver_key = driver.get("transceiver", "edge-100ns")
-    if isinstance(driver_key, str) and driver_key not in TRANSCEIVERS:
-        problems.append(
-            Problem(
-                "driver.transceiver",
-                "Driver class",
-                short(driver_key),
-                {"choices": sorted(TRANSCEIVERS)},
-                f"Driver class '{short(driver_key)}' is not in the library; choose one of "
-                f"{', '.join(sorted(TRANSCEIVERS))}, or leave it empty and enter custom values.",
-            )
-        )
-    if driver_key is None:
-        for key in ("rise_time_s", "open_circuit_v", "source_ohm"):
-            if driver.get(key) is None:
-                problems.append(missing_custom("driver", DriverSpecV1.model_fields[key], key, "driver.transceiver"))
+    problems += class_problems(
+        data, "driver", "transceiver", DEFAULT_DEVICE, "Driver class", TRANSCEIVERS, DriverSpecV1, _DRIVER_VALUES
+    )
     return problems
-
-
-_DRIVER_VALUES = ("rise_time_s", "open_circuit_v", "source_ohm")
 
 
 def upgrade_v1(v1: dict[str, Any]) -> dict[str, Any]:

@@ -238,9 +238,12 @@ class GroundingSpec(_Strict):
     shield: Literal["none", "one_end", "both_ends"] = Field("none", title="Shield earthed at")
 
 
-class BusPlan(_Strict):
+class PlanHead(_Strict):
+    """The fields every format version shares, in the order a document states them; each version's model adds
+    its own after them and states its format_version."""
+
     format: Literal["pairline-bus-plan"] = Field(PLAN_FORMAT, title="Format")
-    format_version: Literal[2] = Field(PLAN_FORMAT_VERSION, title="Format version")
+    format_version: int = Field(title="Format version")
     title: str = Field("", max_length=120, title="Title")
     notes: str = Field("", max_length=4000, title="Notes")
     display_units: Literal["metric", "imperial"] = Field("metric", title="Display units")
@@ -249,6 +252,10 @@ class BusPlan(_Strict):
     supply_v: float = _f("Supply voltage", "V", ge=1.5, le=15.0, default=5.0)
     trunk_length_m: float = _f("Trunk length", "m", ge=MIN_TRUNK_M, le=MAX_TRUNK_M)
     cable: CableSpec = Field(default_factory=CableSpec, title="Cable")
+
+
+class BusPlan(PlanHead):
+    format_version: Literal[2] = Field(PLAN_FORMAT_VERSION, title="Format version")
     default_device: str = Field(DEFAULT_DEVICE, title="Default device class")
     driver: DriverSpec = Field(default_factory=DriverSpec, title="Driver")
     nodes: list[NodeSpec] = Field(min_length=1, max_length=MAX_NODES, title="Nodes")

@@ -6,13 +6,8 @@ from pairline.engine.bus import build_bus
 from pairline.engine.findings import Verdict
 from pairline.engine.grounding import ground_state
 from pairline.engine.plan import load_plan
-from pairline.engine.rules.common_mode import (
-    GROUND_RULE_ID,
-    RULE_ID,
-    SHIELD_RULE_ID,
-    check_common_mode,
-    isolation_advice,
-)
+from pairline.engine.rules.common_mode import RULE_ID, check_common_mode, isolation_advice
+from pairline.engine.rules.ground_wiring import GROUND_RULE_ID, SHIELD_RULE_ID, check_ground_wiring
 
 ENDS = [{"position_m": 0.0, "resistance_ohm": 120.0}, {"position_m": 100.0, "resistance_ohm": 120.0}]
 
@@ -54,8 +49,8 @@ def test_a_signal_ground_conductor_with_100_ohm_resistors_by_hand():
     assert state.reference_v == pytest.approx([0.0, 5.0, 10.0], abs=1e-9)
     assert state.series_current_a == pytest.approx([current_a, 0.0, -current_a], rel=1e-9)
     assert state.series_power_w[0] == pytest.approx(current_a**2 * 100.0, rel=1e-9)  # 0.227 W
+    (ground, _) = check_ground_wiring(_bus(nodes, CONDUCTOR))
     findings = check_common_mode(_bus(nodes, CONDUCTOR))
-    (ground,) = [f for f in findings if f.rule_id == GROUND_RULE_ID]
     assert ground.value == pytest.approx(0.2268, abs=1e-4) and ground.verdict is Verdict.HOLDS
     cm = _by_node(findings)
     # Source: Intersil RS-485 budget, V_OC 2.5 V and 2.5 V noise in -7 .. +12 V: 7 V of offset allowed: the
@@ -124,8 +119,8 @@ def test_mains_level_offsets_stop_first_and_name_reinforced_isolation():
 
 def test_shield_earthed_at_both_ends_across_different_earths_is_tight():
     nodes = [{"name": "far", "position_m": 100.0, "ground_offset_v": 4.0}]
-    both = [f for f in check_common_mode(_bus(nodes, {"shield": "both_ends"})) if f.rule_id == SHIELD_RULE_ID]
-    one = [f for f in check_common_mode(_bus(nodes, {"shield": "one_end"})) if f.rule_id == SHIELD_RULE_ID]
+    both = [f for f in check_ground_wiring(_bus(nodes, {"shield": "both_ends"})) if f.rule_id == SHIELD_RULE_ID]
+    one = [f for f in check_ground_wiring(_bus(nodes, {"shield": "one_end"})) if f.rule_id == SHIELD_RULE_ID]
     # Source: B&B RS-422/485 application note: a shield earthed at both ends across different earths carries
     # their loop current; earthed at one end it carries none.
     assert both[0].verdict is Verdict.TIGHT and both[0].value == pytest.approx(4.0)
@@ -135,6 +130,6 @@ def test_shield_earthed_at_both_ends_across_different_earths_is_tight():
 def test_a_conductor_without_series_resistors_between_different_earths_breaks():
     nodes = [{"name": "far", "position_m": 100.0, "ground_offset_v": 2.0}]
     grounding = CONDUCTOR | {"ground_series_ohm": 0.0}
-    (ground,) = [f for f in check_common_mode(_bus(nodes, grounding)) if f.rule_id == GROUND_RULE_ID]
+    (ground,) = [f for f in check_ground_wiring(_bus(nodes, grounding)) if f.rule_id == GROUND_RULE_ID]
     # Source: TI SLLA272: a 100 Ohm resistor in series with each node's ground connection limits the loop current.
     assert ground.verdict is Verdict.BREAKS and "100 Ω resistor in series" in ground.fix

@@ -10,6 +10,7 @@ from pairline.engine.findings import Verdict
 from pairline.engine.plan import load_plan
 from pairline.engine.rules.bias import check_failsafe_bias, size_bias
 from pairline.engine.rules.common_mode import check_common_mode
+from pairline.engine.rules.ground_wiring import check_ground_wiring
 from pairline.engine.rules.length_rate import check_length_vs_rate, max_bit_rate_bps
 from pairline.engine.rules.power import check_resistor_power, rating_to_buy_w, resistor_powers
 from pairline.engine.rules.voltage import check_receiver_voltage
@@ -140,6 +141,7 @@ def test_rules_7_to_11_never_raise_and_give_finite_numbers(doc):
         *check_receiver_voltage(bus),
         *check_failsafe_bias(bus),
         *check_common_mode(bus),
+        *check_ground_wiring(bus),
         *check_length_vs_rate(bus),
         *check_resistor_power(bus),
     ]
