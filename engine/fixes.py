@@ -19,7 +19,6 @@ are computed from the whole bus's step response), which keeps a fix to a few ten
 of one check share a budget of re-simulations (resimulation_budget).
 """
 
-import dataclasses
 import math
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
@@ -27,26 +26,12 @@ from dataclasses import dataclass
 from pairline.engine.bus import Bus, build_bus
 from pairline.engine.findings import Verdict
 from pairline.engine.library import TRANSCEIVERS
-from pairline.engine.metrics import (
-    RECEIVER_THRESHOLD_V,
-    ReceiverMetrics,
-    arrival_time_s,
-    pattern_metrics,
-    propagation_delay_s,
-    receiver_metrics,
-)
+from pairline.engine.metrics import ReceiverMetrics, receiver_metrics
 from pairline.engine.plan import BusPlan, TerminationSpec
 from pairline.engine.rules.cable_ends import end_name, nearest_end_m, required_ends_m
 from pairline.engine.rules.preferred import nearest_preferred, preferred_at_or_below
 from pairline.engine.units import si_format
-from pairline.engine.waveform import (
-    DEFAULT_PATTERN_BITS,
-    StepResponses,
-    default_pattern,
-    edge_duration_s,
-    simulate_pattern,
-    step_responses,
-)
+from pairline.engine.waveform import StepResponses, default_pattern, pattern_duration_s, step_responses
 
 MAX_BISECTIONS = 5
 MAX_STUB_CANDIDATES = 2
@@ -130,17 +115,9 @@ def judge_metrics(m: ReceiverMetrics) -> SignalJudgement:
     return SignalJudgement(m.receiver, verdict, tuple(breaks or tight), m)
 
 
-def pattern_duration_s(bus: Bus, pattern: str | None) -> float:
-    """How long the pattern (None: at most the default PRBS length) lasts at the plan's bit rate."""
-    return (len(pattern) if pattern else DEFAULT_PATTERN_BITS) / bus.plan.bit_rate_bps
-
-
 def one_driver(steps: StepResponses, name: str) -> StepResponses:
     """The edge responses of one driver out of a batch computed for several."""
-    i = steps.driver_names.index(name)
-    return dataclasses.replace(
-        steps, driver_names=(name,), v_diff_v=steps.v_diff_v[i : i + 1], v_final_v=steps.v_final_v[i : i + 1]
-    )
+    return steps.for_driver(name)
 
 
 def judge_bus(
@@ -166,20 +143,7 @@ def judge_bus(
         step = step_responses(bus, [driver], max_time_s=pattern_duration_s(bus, bits), receiver_names=watched)
     if bits is None:
         bits = default_pattern(step, bit_time_s)
-    if receivers is None:
-        every = receiver_metrics(bus, driver_name=driver, pattern=bits, step=step)
-        return {m.receiver: judge_metrics(m) for m in every}
-    names = list(receivers)
-    index = [step.receiver_names.index(n) for n in names]
-    wave = simulate_pattern(bus, bits, driver, receiver_names=names, step=step)
-    metrics = pattern_metrics(
-        wave,
-        propagation_delay_s(step)[0][index],
-        arrival_time_s(step)[0][index],
-        abs(step.v_final_v[0][index]),
-        edge_duration_s(step.rise_time_s),
-        RECEIVER_THRESHOLD_V,
-    )
+    metrics = receiver_metrics(bus, driver_name=driver, pattern=bits, step=step, receiver_names=watched)
     return {m.receiver: judge_metrics(m) for m in metrics}
 
 

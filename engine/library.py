@@ -20,6 +20,9 @@ class CableClass:
     skin_effect_onset_hz: float  # above it series R grows as sqrt(f / onset)
     dielectric_loss_tangent: float
     source: str
+    z0_tolerance: float = 0.10  # +/- fraction of z0_ohm
+    velocity_factor_tolerance: float = 0.05  # +/- fraction of velocity_factor
+    tolerance_source: str = "Z0 +/- 10 % and velocity factor +/- 5 % for a generic RS-485 pair: from memory"
 
 
 @dataclass(frozen=True, slots=True)
@@ -33,6 +36,36 @@ class TransceiverClass:
     unit_loads: float  # receiver input loading of this part
     max_bit_rate_bps: float  # rate the class is built for (transition <= 30 % of a bit)
     source: str
+    rise_time_min_s: float = 0.0  # fastest edge of the class (0: FAST_EDGE_RANGE x rise_time_s)
+    rise_time_max_s: float = 0.0  # slowest edge of the class (0: FAST_EDGE_RANGE x rise_time_s)
+    edge_range_source: str = ""
+
+    def rise_time_range_s(self) -> tuple[float, float]:
+        """(fastest, slowest) 10-90 % edge of the class: its own figures, else FAST_EDGE_RANGE of its typical."""
+        lo = self.rise_time_min_s or FAST_EDGE_RANGE[0] * self.rise_time_s
+        hi = self.rise_time_max_s or FAST_EDGE_RANGE[1] * self.rise_time_s
+        return lo, hi
+
+
+# Tolerances for the worst-case analysis (engine.tolerance). Each class below may state its own.
+RESISTOR_TOLERANCE = 0.05
+RESISTOR_TOLERANCE_SOURCE = "E24 resistors, +/- 5 % (IEC 60063 preferred-number series: E24 5 %, E48 2 %, E96 1 %)"
+FAST_EDGE_RANGE = (3.0 / 25.0, 40.0 / 25.0)  # fastest and slowest edge over the typical one
+FAST_EDGE_SOURCE = (
+    "min/typ/max 10-90 % edges of 3 / 25 / 40 ns (54 ohm || 100 pF) in the switching tables of RS-485 driver "
+    "data sheets, applied to the class as 0.12x to 1.6x its typical edge"
+)
+SLEW_EDGE_SOURCE = "slew-limited drivers of this class switch in roughly 250 to 2000 ns: from memory"
+INPUT_CAPACITANCE_RANGE = (0.4, 1.5)  # of each node's stated input capacitance
+INPUT_CAPACITANCE_SOURCE = (
+    "receiver input capacitance 8 pF at 6 MHz to 20 pF at 1 MHz in RS-485 receiver tables; taken as 0.4x to "
+    "1.5x the node's stated value: common practice"
+)
+UNIT_LOAD_RANGE = (0.5, 1.0)  # of each node's unit-load rating: a rating is a maximum
+UNIT_LOAD_SOURCE = (
+    "a unit-load rating is the most a receiver may draw (TIA/EIA-485-A, 1 mA at 12 V per unit load); parts "
+    "draw about half to all of it: from memory"
+)
 
 
 def _c_per_m(z0_ohm: float, velocity_factor: float) -> float:
@@ -80,6 +113,8 @@ CABLES: dict[str, CableClass] = {
             skin_effect_onset_hz=171.5e3,
             dielectric_loss_tangent=1.75e-3,
             source="TIA/EIA-568 Cat-5e (Z0 100 Ω); loss fitted to D. Glisic, EE Times 2008; 9.38 Ω/100 m, VF 0.69",
+            z0_tolerance=0.15,
+            tolerance_source="Z0 100 Ω ± 15 % (TIA/EIA-568 Cat-5e); velocity factor ± 5 %: from memory",
         ),
         CableClass(
             key="tia422-reference",
@@ -102,6 +137,10 @@ CABLES: dict[str, CableClass] = {
             skin_effect_onset_hz=268e3,
             dielectric_loss_tangent=0.002,
             source="RS-485 accepts 120 ± 30 Ω (Intersil high-speed RS-485 tutorial); ASTM B258 24 AWG",
+            tolerance_source=(
+                "Z0 150 Ω ± 10 % (135 to 165 Ω, PROFIBUS Specification, Normative Parts 2:1997, 4.1.2.3, type A "
+                "cable); velocity factor ± 5 %: from memory"
+            ),
         ),
     )
 }
@@ -124,6 +163,9 @@ TRANSCEIVERS: dict[str, TransceiverClass] = {
             1.0,
             50e6,
             _DRIVER_FIGURES,
+            rise_time_min_s=2e-9,
+            rise_time_max_s=5e-9,
+            edge_range_source="edges of 2 to 5 ns for the very fast class: from memory",
         ),
         TransceiverClass(
             "edge-10ns",
@@ -135,10 +177,33 @@ TRANSCEIVERS: dict[str, TransceiverClass] = {
             1.0,
             10e6,
             _DRIVER_FIGURES,
+            rise_time_min_s=3e-9,
+            rise_time_max_s=16e-9,
+            edge_range_source=FAST_EDGE_SOURCE + " (the fastest edge, 3 ns, the same as the tables')",
         ),
-        TransceiverClass("edge-25ns", "Edge 25 ns (5 Mbit/s class)", 25e-9, 4.0, 40.0, 2.5, 0.5, 5e6, _DRIVER_FIGURES),
         TransceiverClass(
-            "edge-100ns", "Edge 100 ns (1 Mbit/s class)", 100e-9, 4.0, 40.0, 2.5, 0.25, 1e6, _DRIVER_FIGURES
+            "edge-25ns",
+            "Edge 25 ns (5 Mbit/s class)",
+            25e-9,
+            4.0,
+            40.0,
+            2.5,
+            0.5,
+            5e6,
+            _DRIVER_FIGURES,
+            edge_range_source=FAST_EDGE_SOURCE,
+        ),
+        TransceiverClass(
+            "edge-100ns",
+            "Edge 100 ns (1 Mbit/s class)",
+            100e-9,
+            4.0,
+            40.0,
+            2.5,
+            0.25,
+            1e6,
+            _DRIVER_FIGURES,
+            edge_range_source=FAST_EDGE_SOURCE,
         ),
         TransceiverClass(
             "slew-1200ns",
@@ -150,6 +215,9 @@ TRANSCEIVERS: dict[str, TransceiverClass] = {
             0.125,
             250e3,
             _DRIVER_FIGURES + "; t_r = 0.3 bit at 250 kbit/s: common practice",
+            rise_time_min_s=250e-9,
+            rise_time_max_s=2000e-9,
+            edge_range_source=SLEW_EDGE_SOURCE,
         ),
         TransceiverClass(
             "slew-2500ns",
@@ -161,6 +229,9 @@ TRANSCEIVERS: dict[str, TransceiverClass] = {
             0.125,
             115.2e3,
             _DRIVER_FIGURES + "; t_r = 0.3 bit at 115.2 kbit/s: common practice",
+            rise_time_min_s=500e-9,
+            rise_time_max_s=4000e-9,
+            edge_range_source="slew-limited drivers of this class switch in roughly 0.5 to 4 µs: from memory",
         ),
     )
 }

@@ -107,6 +107,46 @@ class BiasSpec(_Strict):
     supply_v: float | None = _f("Bias supply", "V", ge=1.0, le=15.0, default=None)
 
 
+class SamplingWindowSpec(_Strict):
+    """Where in each bit a receiver's level must hold, in bits after the start edge its input shows."""
+
+    centre_ui: float = _f("Sampling instant", "bit", ge=0.1, le=0.9, default=0.5, description="UART: mid-bit")
+    half_width_ui: float = _f(
+        "Sampling window half-width", "bit", ge=0.0, le=0.4, default=0.125, description="UART: 2/16 of a bit"
+    )
+
+
+class ProbeSpec(_Strict):
+    """A point to show the waveform at: a node's receiver input, a trunk position, or the driver's pins."""
+
+    kind: Literal["node", "junction", "driver_pin"] = Field("node", title="Probe")
+    node: str | None = Field(None, max_length=MAX_NAME_CHARS, title="Probed node")
+    position_m: float | None = _f("Probed trunk position", "m", ge=0.0, le=MAX_TRUNK_M, default=None)
+
+
+class ToleranceSpec(_Strict):
+    """Component tolerances for the worst-case analysis; each left empty takes the library class's own."""
+
+    z0_tolerance: float | None = _f("Cable Z0 tolerance", "", ge=0.0, le=0.5, default=None, description="± fraction")
+    velocity_factor_tolerance: float | None = _f(
+        "Velocity factor tolerance", "", ge=0.0, le=0.3, default=None, description="± fraction"
+    )
+    terminator_tolerance: float | None = _f("Terminator tolerance", "", ge=0.0, le=0.5, default=None)
+    bias_tolerance: float | None = _f("Bias resistor tolerance", "", ge=0.0, le=0.5, default=None)
+    rise_time_min_s: float | None = _f("Fastest driver edge", "s", ge=0.1e-9, le=20e-6, default=None)
+    rise_time_max_s: float | None = _f("Slowest driver edge", "s", ge=0.1e-9, le=20e-6, default=None)
+    input_capacitance_tolerance: float | None = _f(
+        "Receiver capacitance tolerance", "", ge=0.0, le=1.0, default=None, description="± fraction"
+    )
+    unit_loads_min_ratio: float | None = _f(
+        "Lightest receiver load", "", gt=0.0, le=1.0, default=None, description="fraction of the unit-load rating"
+    )
+    monte_carlo_variants: int = Field(
+        0, ge=0, le=10_000, title="Monte Carlo variants", description="0: corners only (the Monte Carlo is slow)"
+    )
+    seed: int = Field(1, ge=0, le=2**31 - 1, title="Random seed")
+
+
 class BusPlan(_Strict):
     format: Literal["pairline-bus-plan"] = Field(PLAN_FORMAT, title="Format")
     format_version: Literal[1] = Field(PLAN_FORMAT_VERSION, title="Format version")
@@ -130,6 +170,12 @@ class BusPlan(_Strict):
         title="Bit pattern",
         description="0s and 1s; default a pseudo-random run",
     )
+    sampling_window: SamplingWindowSpec = Field(default_factory=SamplingWindowSpec, title="Sampling window")
+    probes: list[ProbeSpec] = Field(default_factory=list, max_length=16, title="Probes")
+    probe_signal: Literal["pattern", "step"] = Field(
+        "pattern", title="Probe signal", description="the bit pattern, or a single step 0 -> high"
+    )
+    tolerances: ToleranceSpec = Field(default_factory=ToleranceSpec, title="Tolerances")
 
 
 @dataclass(frozen=True, slots=True)
@@ -343,6 +389,49 @@ def cross_field_problems(data: dict[str, Any]) -> list[Problem]:
             )
     if isinstance(data.get("bias"), dict):
         past_end("bias.position_m", "Bias position", _num(data["bias"], "position_m", 0.0))
+    for i, probe in enumerate(_items(data, "probes")):
+        if not isinstance(probe, dict):
+            continue
+        kind = probe.get("kind", "node")
+        node_names = [n.get("name") for n in _items(data, "nodes") if isinstance(n, dict)]
+        if kind == "node" and probe.get("node") not in node_names:
+            problems.append(
+                Problem(
+                    f"probes.{i}.node",
+                    f"Probe {i + 1} node",
+                    _short(probe.get("node")),
+                    {"choices": [n for n in node_names if isinstance(n, str)]},
+                    f"Probe {i + 1} names node {_short(probe.get('node'))!r}, which is not a node of this bus; "
+                    f"choose one of the nodes (the driver's pins are probe kind 'driver_pin').",
+                )
+            )
+        if kind == "junction":
+            position = _num(probe, "position_m")
+            if position is None:
+                problems.append(
+                    Problem(
+                        f"probes.{i}.position_m",
+                        f"Probe {i + 1} trunk position",
+                        None,
+                        {"min": 0.0, "max": length, "unit": "m"},
+                        f"Probe {i + 1} reads the trunk and needs a position; allowed 0 to "
+                        f"{length if length is not None else MAX_TRUNK_M:g} m.",
+                    )
+                )
+            past_end(f"probes.{i}.position_m", f"Probe {i + 1} trunk position", position)
+    tolerances = _sub(data, "tolerances")
+    fastest, slowest = _num(tolerances, "rise_time_min_s"), _num(tolerances, "rise_time_max_s")
+    if fastest is not None and slowest is not None and fastest > slowest:
+        problems.append(
+            Problem(
+                "tolerances.rise_time_max_s",
+                "Slowest driver edge",
+                slowest,
+                {"min": fastest, "unit": "s"},
+                f"The slowest driver edge ({si_format(slowest, 's')}) is faster than the fastest "
+                f"(tolerances.rise_time_min_s, {si_format(fastest, 's')}); it must be at least that.",
+            )
+        )
     cable = _sub(data, "cable")
     cable_key = cable.get("class_key", "pair-24awg-120")
     if cable_key is not None and cable_key not in CABLES:
@@ -550,9 +639,12 @@ __all__ = [
     "DriverSpec",
     "NodeSpec",
     "Problem",
+    "ProbeSpec",
     "ResolvedCable",
     "ResolvedDriver",
+    "SamplingWindowSpec",
     "TerminationSpec",
+    "ToleranceSpec",
     "input_resistance_ohm",
     "load_plan",
     "plan_to_dict",

@@ -23,12 +23,14 @@ simulated verdict only when the bus has no terminators; with terminators fitted 
 import numpy as np
 from pairline.engine.bus import Bus, build_bus
 from pairline.engine.findings import Finding, Verdict, worst
-from pairline.engine.fixes import ComputedFix, SignalJudgement, compute_fixes, judge_bus, one_driver, pattern_duration_s
+from pairline.engine.fixes import ComputedFix, SignalJudgement, compute_fixes, judge_bus, judge_metrics
 from pairline.engine.rules.cable_ends import required_ends_m, terminator_value_ohm
+from pairline.engine.rules.signal_model import model_finding, tolerance_finding
 from pairline.engine.rules.stubs import check_stubs
 from pairline.engine.rules.unterminated import line_may_stay_unterminated
+from pairline.engine.tolerance import ReceiverTolerance, analyse_tolerances
 from pairline.engine.units import si_format
-from pairline.engine.waveform import step_responses
+from pairline.engine.waveform import pattern_duration_s, step_responses
 
 MAX_STUB_CONFIRMS = 8  # flagged stubs reported one by one; the rest summarised
 MAX_WATCHED = 8  # receivers judged in a second (what-if) simulation on large buses
@@ -39,9 +41,10 @@ _SOURCE = (
     "and TIA/EIA-422-B; margins: common practice"
 )
 _CRITERION = (
-    "BREAKS: a sampled bit not beyond ±200 mV, a fall back through the threshold after an edge, inner eye < 0.4 V, "
-    "or not settled by the sampling instant. TIGHT: under 200 mV beyond the threshold, eye open < 50 % of a bit, "
-    "jitter > 10 % of a bit, or settling in the last quarter-bit."
+    "BREAKS: a bit not beyond ±200 mV somewhere in its sampling window, a fall back through the threshold after an "
+    "edge, inner eye < 0.4 V, or not settled by the sampling instant; with nominal parts or at the receiver's worst "
+    "tolerance corner. TIGHT: under 200 mV beyond the threshold, eye open < 50 % of a bit, jitter > 10 % of a bit, "
+    "or settling in the last quarter-bit."
 )
 
 
@@ -69,7 +72,7 @@ def _worst_over_drivers(bus: Bus) -> dict[str, tuple[SignalJudgement, str]]:
     steps = step_responses(bus, drivers, max_time_s=pattern_duration_s(bus, bus.plan.test_pattern))
     out: dict[str, tuple[SignalJudgement, str]] = {}
     for name in drivers:
-        judged = judge_bus(bus, driver_name=name, step=one_driver(steps, name))
+        judged = judge_bus(bus, driver_name=name, step=steps.for_driver(name))
         for rx, j in judged.items():
             if rx == name:  # a node does not listen to itself: its own receiver is not judged while it drives
                 continue
@@ -108,46 +111,63 @@ def headline(j: SignalJudgement) -> tuple[str, float, float, str, str]:
 
 
 def check_signal_integrity(bus: Bus) -> list[Finding]:
-    """Rule "signal.integrity" (one finding per receiver) and rule "signal.confirms" (stubs, termination)."""
+    """Rules "signal.integrity" (one finding per receiver: the worse of its nominal verdict over the drivers and
+    its verdict at its worst tolerance corner), "signal.model" and "signal.tolerance" (what was assumed), and
+    "signal.confirms" (stubs, termination)."""
     judged = _worst_over_drivers(bus)
     primary = bus.plan.driver.name
+    tolerance = analyse_tolerances(bus)
+    corners = {t.receiver: t for t in tolerance.receivers}
     failing = [rx for rx, (j, d) in judged.items() if j.verdict is Verdict.BREAKS and d == primary]
     fixes = compute_fixes(bus, failing) if failing else []
     findings = []
     for node in bus.plan.nodes:
         j, driver = judged[node.name]
+        corner = corners[node.name]
+        at_corner = judge_metrics(corner.worst)
+        by_corner = at_corner.verdict.rank > j.verdict.rank
+        shown = at_corner if by_corner else j
         m = j.metrics
         driven_by = "" if driver == primary else f" (worst case: '{driver}' driving)"
         detail = (
             f"Driver '{driver}', {si_format(1.0 / m.bit_time_s, 'bit/s')}: settled level ±{m.amplitude_v:.2f} V, "
             f"peak {m.peak_v:.2f} V, overshoot {m.overshoot_v:.2f} V, ringback {m.undershoot_v:.2f} V, "
-            f"{m.threshold_recrossings} threshold re-crossing(s), eye {m.eye_height_v:.2f} V "
-            f"(from the 0s' -V to the 1s' +V) × {m.eye_width_ui:.0%} of a bit, "
-            f"delay {si_format(m.propagation_delay_s, 's')}, "
-            f"jitter {m.jitter_ui:.0%} of a bit."
+            f"{m.threshold_recrossings} threshold re-crossing(s), lowest level over the sampling window "
+            f"{m.min_sample_v:.2f} V (margin {m.margin_v:+.2f} V), eye {m.eye_height_v:.2f} V "
+            f"(from the 0s' -V to the 1s' +V) × {m.eye_width_ui:.0%} of a bit at ±{m.threshold_v * 1e3:.0f} mV, "
+            f"delay {si_format(m.propagation_delay_s, 's')} (0 V crossings), jitter {m.jitter_ui:.0%} of a bit. "
+            + _corner_text(corner)
         )
-        if j.reasons:
-            detail = "; ".join(j.reasons) + ". " + detail
+        if shown.reasons:
+            detail = "; ".join(shown.reasons) + ". " + detail
         fix = ""
-        if j.verdict is Verdict.TIGHT:
+        if by_corner:
+            fix = (
+                f"'{node.name}' passes with nominal parts but its worst tolerance corner ({corner.worst_corner}) "
+                f"{shown.verdict.value}; {corner.dominant} moves its margin most ({corner.dominant_shift_v:+.2f} V): "
+                f"specify parts held closer in {corner.dominant}, or widen the margin (shorter stubs, Z0 terminators "
+                f"at both cable ends, a lower bit rate), then re-check."
+            )
+        elif j.verdict is Verdict.TIGHT:
             fix = (
                 f"Margin at '{node.name}'{driven_by} is small ({'; '.join(j.reasons)}). To widen it: shorten its "
                 f"{node.stub_length_m:g} m stub, fit Z0 terminators at both cable ends, or lower the bit rate "
                 f"below {si_format(1.0 / m.bit_time_s, 'bit/s')}; then re-check."
             )
-        if j.verdict is Verdict.BREAKS:
+        elif j.verdict is Verdict.BREAKS:
             fix = _fix_text(fixes) if driver == primary else ""
             if not fix:
                 fix = (
                     f"No single change found by re-simulation for '{node.name}'{driven_by}: shorten its stub, "
                     "terminate both cable ends with Z0 and lower the bit rate together, then re-check."
                 )
-        quantity, value, limit, unit, limit_kind = headline(j)
+        quantity, value, limit, unit, limit_kind = headline(shown)
+        where = " at the worst tolerance corner" if by_corner else driven_by
         findings.append(
             Finding(
                 rule_id="signal.integrity",
-                title=f"Simulated waveform: {quantity}{driven_by}",
-                verdict=j.verdict,
+                title=f"Simulated waveform: {quantity}{where}",
+                verdict=shown.verdict,
                 value=value,
                 limit=limit,
                 unit=unit,
@@ -159,10 +179,23 @@ def check_signal_integrity(bus: Bus) -> list[Finding]:
                 detail=detail,
             )
         )
+    findings.append(model_finding(bus))
+    findings.append(tolerance_finding(tolerance, bus.driver.rise_time_s))
     from_primary = {rx: j for rx, (j, d) in judged.items() if d == primary} or None
     findings += confirm_stub_rule(bus, from_primary)
     findings.append(confirm_termination_rule(bus, from_primary))
     return findings
+
+
+def _corner_text(t: ReceiverTolerance) -> str:
+    w = t.worst
+    text = (
+        f"Worst tolerance corner ({t.worst_corner}): margin {w.margin_v:+.2f} V, eye {w.eye_height_v:.2f} V; "
+        f"dominant tolerance: {t.dominant} ({t.dominant_shift_v:+.2f} V)."
+    )
+    if t.p1_margin_v is not None and t.p1_eye_height_v is not None:
+        text += f" Monte Carlo 1st percentile: margin {t.p1_margin_v:+.2f} V, eye {t.p1_eye_height_v:.2f} V."
+    return text
 
 
 def confirm_stub_rule(bus: Bus, judged: dict[str, SignalJudgement] | None = None) -> list[Finding]:

@@ -27,15 +27,18 @@ from __future__ import annotations
 
 import math
 import os
+import re
 import shutil
 import subprocess
 import tempfile
+from collections.abc import Sequence
 from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
 from pairline.engine.bus import Bus
 from pairline.engine.plan import NodeSpec, input_resistance_ohm
+from pairline.engine.solve import Probe, node_probe
 from pairline.engine.units import SPEED_OF_LIGHT_M_PER_S
 
 NGSPICE = "ngspice"
@@ -54,6 +57,7 @@ class SpiceWaveforms:
     v_diff_v: np.ndarray  # (n_receivers, n_t)
     netlist: str
     elapsed_s: float  # wall time of the ngspice run
+    analysis_s: float  # ngspice's own transient analysis time (its "rusage trantime"), nan for an operating point
 
 
 @dataclass(frozen=True, slots=True)
@@ -66,7 +70,7 @@ class _Section:
 class _Circuit:
     """Spice node names and elements for one bus, built once per driver."""
 
-    def __init__(self, bus: Bus, driver_name: str | None) -> None:
+    def __init__(self, bus: Bus, driver_name: str | None, extra_positions_m: list[float]) -> None:
         plan = bus.plan
         self.bus = bus
         self.driver_name = driver_name or plan.driver.name
@@ -77,6 +81,7 @@ class _Circuit:
         positions = {0.0, plan.trunk_length_m, plan.driver.position_m}
         positions.update(n.position_m for n in plan.nodes)
         positions.update(t.position_m for t in plan.terminations)
+        positions.update(extra_positions_m)
         if plan.bias is not None:
             positions.add(plan.bias.position_m)
         self.trunk_positions = sorted(positions)
@@ -167,17 +172,22 @@ def bus_netlist(
     max_step_s: float | None = None,
     line_model: str = "ltra",
     output_path: str = "out.txt",
+    probes: Sequence[Probe] | None = None,
 ) -> tuple[str, dict[str, str]]:
-    """The bus as an ngspice netlist; returns (netlist text, receiver name -> spice node).
+    """The bus as an ngspice netlist; returns (netlist text, probe label -> spice node).
 
     `source_points` are PWL (time, open-circuit volts) corners of the driver; default one rising edge 0 ->
     open_circuit_v starting at t = 0 and ramping linearly for rise_time_s / 0.8.
     stop_time_s None: a DC operating point instead, the source at its last PWL value.
+    probes: what to write out (engine.solve.Probe: a node's input, a trunk position, the driver's pins);
+    default every node.
     """
     plan = bus.plan
     drv = bus.driver
     ramp_s = drv.rise_time_s / 0.8
-    circuit = _Circuit(bus, driver_name)
+    probes = [node_probe(n.name) for n in plan.nodes] if probes is None else list(probes)
+    extra = [p.position_m for p in probes if p.kind == "junction" and p.position_m is not None]
+    circuit = _Circuit(bus, driver_name, extra)
     lines = circuit.lines
     # Primary driver: a source when it drives, else its receiver's load.
     primary_end = circuit.stub_end("drv", plan.driver.position_m, plan.driver.stub_length_m)
@@ -227,8 +237,16 @@ def bus_netlist(
         lines.append(f"VS vs 0 PWL({pwl})")
         analysis = [f".tran {_fmt(max_step_s)} {_fmt(stop_time_s)} 0 {_fmt(max_step_s)}"]
     lines.append(f"RS vs {circuit.driver_node} {_fmt(max(drv.source_ohm, 1e-6))}")
-    lines += _line_elements(bus, circuit.sections, line_model, max_section_delay_s=ramp_s / 160.0)
-    probes = " ".join(f"v({circuit.receiver_nodes[n.name]})" for n in plan.nodes)
+    lines += _line_elements(bus, circuit.sections, line_model, ramp_s / 160.0)
+    probe_nodes = {}
+    for p in probes:
+        if p.kind == "node" and p.node is not None:
+            probe_nodes[p.name] = circuit.receiver_nodes[p.node]
+        elif p.kind == "junction" and p.position_m is not None:
+            probe_nodes[p.name] = circuit.trunk_node[p.position_m]
+        else:
+            probe_nodes[p.name] = circuit.driver_node
+    wanted = " ".join(f"v({node})" for node in probe_nodes.values())
     text = "\n".join(
         [
             f"* pairline reference transient, driver {circuit.driver_name}",
@@ -240,14 +258,15 @@ def bus_netlist(
             "set wr_vecnames",
             "option numdgt=12",
             "op" if stop_time_s is None else "run",
-            f"wrdata {output_path} {probes}",
+            *([] if stop_time_s is None else ["rusage trantime"]),
+            f"wrdata {output_path} {wanted}",
             "quit",
             ".endc",
             ".end",
             "",
         ]
     )
-    return text, dict(circuit.receiver_nodes)
+    return text, probe_nodes
 
 
 def run_netlist(netlist: str, receiver_names: tuple[str, ...], timeout_s: float = 300.0) -> SpiceWaveforms:
@@ -276,15 +295,30 @@ def run_netlist(netlist: str, receiver_names: tuple[str, ...], timeout_s: float 
     v = data[:, 1:].T
     # ngspice may repeat a time point at breakpoints; keep the last value of each.
     keep = np.append(np.diff(time_s) > 0.0, True)
-    return SpiceWaveforms(time_s[keep], receiver_names, v[:, keep], netlist, elapsed_s)
+    found = re.search(r"Transient time\s*=\s*([0-9.eE+-]+)", proc.stdout)
+    analysis_s = float(found.group(1)) if found else float("nan")
+    return SpiceWaveforms(time_s[keep], receiver_names, v[:, keep], netlist, elapsed_s, analysis_s)
 
 
 def step_waveforms(
-    bus: Bus, stop_time_s: float, *, driver_name: str | None = None, line_model: str = "ltra"
+    bus: Bus,
+    stop_time_s: float,
+    *,
+    driver_name: str | None = None,
+    line_model: str = "ltra",
+    probes: Sequence[Probe] | None = None,
+    max_step_s: float | None = None,
 ) -> SpiceWaveforms:
-    """Receiver voltages for one rising edge 0 -> open_circuit_v of the driver, ramp starting at t = 0."""
-    text, _ = bus_netlist(bus, stop_time_s=stop_time_s, driver_name=driver_name, line_model=line_model)
-    return run_netlist(text, tuple(n.name for n in bus.plan.nodes))
+    """Probe voltages (default every node) for one rising edge 0 -> open_circuit_v of the driver from t = 0."""
+    text, nodes = bus_netlist(
+        bus,
+        stop_time_s=stop_time_s,
+        driver_name=driver_name,
+        line_model=line_model,
+        probes=probes,
+        max_step_s=max_step_s,
+    )
+    return run_netlist(text, tuple(nodes))
 
 
 def pattern_waveforms(
@@ -296,24 +330,29 @@ def pattern_waveforms(
     start_s: float = 0.0,
     repeats: int = 1,
     line_model: str = "ltra",
+    probes: Sequence[Probe] | None = None,
+    max_step_s: float | None = None,
 ) -> SpiceWaveforms:
-    """Receiver voltages for a bit pattern (1 -> +V, 0 -> -V), each bit's ramp starting start_s + k * bit_time_s
+    """Probe voltages for a bit pattern (1 -> +V, 0 -> -V), each bit's ramp starting start_s + k * bit_time_s
     after t = 0 and the line at rest at the first bit's level; the pattern is repeated `repeats` times."""
     v = bus.driver.open_circuit_v
     seq = bits * repeats
     levels = [v if b == "1" else -v for b in seq]
     points = _pwl_points(levels, bit_time_s, bus.driver.rise_time_s / 0.8, start_s)
     stop = start_s + len(seq) * bit_time_s
-    text, _ = bus_netlist(bus, stop_time_s=stop, driver_name=driver_name, source_points=points, line_model=line_model)
-    return run_netlist(text, tuple(n.name for n in bus.plan.nodes))
+    text, nodes = bus_netlist(
+        bus,
+        stop_time_s=stop,
+        driver_name=driver_name,
+        source_points=points,
+        line_model=line_model,
+        probes=probes,
+        max_step_s=max_step_s,
+    )
+    return run_netlist(text, tuple(nodes))
 
 
-def dc_levels(bus: Bus, *, driver_name: str | None = None) -> np.ndarray:
-    """Settled receiver voltages (n_receivers,) for the driver at +open_circuit_v: an ngspice operating point."""
-    text, _ = bus_netlist(bus, stop_time_s=None, driver_name=driver_name)
-    return run_netlist(text, tuple(n.name for n in bus.plan.nodes)).v_diff_v[:, -1]
-
-
-def resample(wave: SpiceWaveforms, time_s: np.ndarray) -> np.ndarray:
-    """ngspice's adaptive time points interpolated linearly onto another grid; (n_receivers, len(time_s))."""
-    return np.stack([np.interp(time_s, wave.time_s, row) for row in wave.v_diff_v])
+def dc_levels(bus: Bus, *, driver_name: str | None = None, probes: Sequence[Probe] | None = None) -> np.ndarray:
+    """Settled probe voltages (n_probes,) for the driver at +open_circuit_v: an ngspice operating point."""
+    text, nodes = bus_netlist(bus, stop_time_s=None, driver_name=driver_name, probes=probes)
+    return run_netlist(text, tuple(nodes)).v_diff_v[:, -1]

@@ -44,6 +44,8 @@ ALL_RULE_IDS = {
     "length.loss",
     "power.resistor",
     "signal.integrity",
+    "signal.model",
+    "signal.tolerance",
     "signal.confirms",
 }
 
