@@ -40,6 +40,13 @@ class Finding:
     # Direction of the limit: "max" the value must stay at or below it, "min" at or above it,
     # "none" the limit is informational (no direction).
     limit_kind: str = "max"
+    # Further named numbers the rule worked out, in SI units by their names (e.g. ("max_bit_rate_bps", 8.3e4)):
+    # what a summary reads instead of asking the rule again.
+    figures: tuple[tuple[str, float], ...] = ()
+
+    def figure(self, name: str) -> float | None:
+        """One of the finding's named figures, or None when the rule gave none by that name."""
+        return next((value for key, value in self.figures if key == name), None)
 
 
 LIMIT_KINDS = ("max", "min", "none")

@@ -5,11 +5,8 @@ Verdict of one receiver (metrics from engine.metrics, threshold +/-200 mV of TIA
   falls back through the threshold after crossing it (threshold_recrossings: a false extra edge), when the
   inner eye at the sampling instant is under 2 x threshold (the 1s and 0s do not both clear the undefined
   band), or when the level has not settled beyond the threshold by the sampling instant.
-- TIGHT when it passes but with little margin (common practice for receivers in electrically noisy plant):
-  the smallest sampled level clears the threshold by less than another 200 mV, the eye is open for less
-  than half a bit, edge jitter exceeds 10 % of a bit, or the level settles in the last quarter-bit before
-  the sampling instant.
-- HOLDS otherwise.
+- HOLDS otherwise. The tight band is not judged here: a receiver that holds with nominal parts but breaks at
+  its worst tolerance corner is TIGHT (engine.rules.signal.banded, engine.tolerance).
 
 A fix is one parameter changed until the failing receivers stop breaking, found by re-simulating the changed
 bus: bisection over a continuous parameter (a stub length, a terminator value, the bit rate; MAX_BISECTIONS
@@ -26,7 +23,7 @@ from dataclasses import dataclass
 from pairline.engine.bus import Bus, build_bus
 from pairline.engine.findings import Verdict
 from pairline.engine.library import TRANSCEIVERS
-from pairline.engine.metrics import ReceiverMetrics, receiver_metrics
+from pairline.engine.metrics import ReceiverMetrics, SampledLevels, receiver_metrics
 from pairline.engine.plan import BusPlan, TerminationSpec
 from pairline.engine.rules.cable_ends import end_name, nearest_end_m, required_ends_m
 from pairline.engine.rules.preferred import nearest_preferred, preferred_at_or_below
@@ -37,10 +34,6 @@ MAX_BISECTIONS = 5
 MAX_STUB_CANDIDATES = 2
 MAX_RESIMULATIONS = 32
 MAX_RESIMULATIONS_LARGE = 12
-TIGHT_EXTRA_MARGIN_V = 0.2  # sampled level at least this far beyond the threshold for HOLDS (common practice)
-TIGHT_EYE_WIDTH_UI = 0.5
-TIGHT_JITTER_UI = 0.1
-TIGHT_SETTLE_MARGIN_UI = 0.25
 STANDARD_RATES_BPS = (
     1200.0,
     2400.0,
@@ -83,41 +76,29 @@ class ComputedFix:
     simulations: int  # re-simulations spent finding it
 
 
-def judge_metrics(m: ReceiverMetrics) -> SignalJudgement:
-    """HOLDS / TIGHT / BREAKS of one receiver from its metrics (criteria in the module docstring)."""
+def level_breaks(m: ReceiverMetrics | SampledLevels) -> list[str]:
+    """Why the levels over the sampling windows break (criteria in the module docstring): none when they hold."""
     th = m.threshold_v
-    breaks: list[str] = []
-    tight: list[str] = []
+    breaks = []
     if m.sample_errors > 0:
         breaks.append(f"{m.sample_errors} sampled bit(s) not beyond ±{th * 1e3:.0f} mV (lowest {m.min_sample_v:.2f} V)")
+    if m.eye_height_v < 2.0 * th:
+        breaks.append(f"eye closed: inner eye {m.eye_height_v:.2f} V at the sampling instant, needs ≥ {2 * th:.1f} V")
+    return breaks
+
+
+def judge_metrics(m: ReceiverMetrics) -> SignalJudgement:
+    """HOLDS or BREAKS of one receiver from its metrics (criteria in the module docstring)."""
+    th = m.threshold_v
+    breaks = level_breaks(m)
     if m.threshold_recrossings > 0:
         breaks.append(
             f"falls back through the ±{th * 1e3:.0f} mV threshold {m.threshold_recrossings} time(s) after an edge "
             f"(ringback {m.undershoot_v:.2f} V): a false extra edge"
         )
-    if m.eye_height_v < 2.0 * th:
-        breaks.append(f"eye closed: inner eye {m.eye_height_v:.2f} V at the sampling instant, needs ≥ {2 * th:.1f} V")
     if not math.isfinite(m.settle_time_s) or m.settle_margin_s < 0.0:
         breaks.append("not settled beyond the threshold by the sampling instant")
-    if not breaks:
-        if m.min_sample_v < th + TIGHT_EXTRA_MARGIN_V:
-            tight.append(
-                f"lowest sampled level {m.min_sample_v:.2f} V clears the threshold by under "
-                f"{TIGHT_EXTRA_MARGIN_V * 1e3:.0f} mV"
-            )
-        if m.eye_width_ui < TIGHT_EYE_WIDTH_UI:
-            tight.append(f"eye open for only {m.eye_width_ui:.0%} of a bit")
-        if m.jitter_ui > TIGHT_JITTER_UI:
-            tight.append(f"edge jitter {m.jitter_ui:.0%} of a bit")
-        if m.settle_margin_s < TIGHT_SETTLE_MARGIN_UI * m.bit_time_s:
-            tight.append(f"settles only {si_format(max(m.settle_margin_s, 0.0), 's')} before the sampling instant")
-    verdict = Verdict.BREAKS if breaks else Verdict.TIGHT if tight else Verdict.HOLDS
-    return SignalJudgement(m.receiver, verdict, tuple(breaks or tight), m)
-
-
-def one_driver(steps: StepResponses, name: str) -> StepResponses:
-    """The edge responses of one driver out of a batch computed for several."""
-    return steps.for_driver(name)
+    return SignalJudgement(m.receiver, Verdict.BREAKS if breaks else Verdict.HOLDS, tuple(breaks), m)
 
 
 def judge_bus(
@@ -235,11 +216,15 @@ def termination_fix(bus: Bus, trial: _Trial) -> ComputedFix | None:
     best = _bisect(lambda r: trial.passes(_with_end_terminators(bus, r)), z0, 10.0 * z0, MAX_BISECTIONS, log=True)
     value = nearest_preferred(z0)
     ends = " and ".join(end_name(bus, e) for e in required_ends_m(bus))
-    has = bool(bus.plan.terminations)
-    verb = "set the terminators at" if has else "fit terminators at"
+    terms = bus.plan.terminations
+    if any(t.kind == "rc" for t in terms):
+        head = f"replace the RC terminators at {ends} with plain {value:g} Ω resistors"
+    elif terms:
+        head = f"set the terminators at {ends} to {value:g} Ω"
+    else:
+        head = f"fit {value:g} Ω terminators at {ends}"
     text = (
-        f"{verb} {ends} to {value:g} Ω, the cable's Z0 (parallel; in simulation anything from {z0:g} Ω up to "
-        f"{preferred_at_or_below(best):g} Ω passes)"
+        f"{head}, the cable's Z0 (in simulation anything from {z0:g} Ω up to {preferred_at_or_below(best):g} Ω passes)"
     )
     return ComputedFix("termination_ohm", None, value, "Ω", text, trial.count - before)
 

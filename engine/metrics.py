@@ -7,9 +7,11 @@ Conventions (all differential, V_AB):
 - Each receiver is read in its own frame (engine.transient): bit n's window is [n T, (n + 1) T) after the
   receiver's path delay, so ringing is charged to the bit that caused it. The driven side of bit n is
   s_n = +1 for a 1, -1 for a 0.
-- Crossing: when s_n V rises through 0 V in an edge's window. Delay (propagation_delay_s, DELAY_DEFINITION):
-  the median over the pattern's edges of the receiver's 0 V crossing minus the driver's own (n T + T_e / 2);
-  jitter_s: the spread (max - min) of those crossings.
+- Crossing: when s_n V rises through 0 V in an edge's window, for good: the last rise through 0 V before the
+  level first clears 2 x ACCURACY of the settled level (engine.transient), so a touch of 0 V smaller than the
+  waveforms' own error, which a slow or RC-terminated edge can show, is no crossing. Delay (propagation_delay_s,
+  DELAY_DEFINITION): the median over the pattern's edges of the receiver's 0 V crossing minus the driver's own
+  (n T + T_e / 2); jitter_s: the spread (max - min) of those crossings.
 - Sampling (SamplingWindow): a UART samples each bit at its start edge as its input shows it plus centre_ui of a
   bit (8/16 by default: mid-bit on the 16x clock), and the phase is uncertain by a sample clock either way, so
   the level must hold over centre +/- half_width_ui (2/16 by default, 0.375 to 0.625 of the bit). The start edge
@@ -50,7 +52,10 @@ from pairline.engine.waveform import (
 RECEIVER_THRESHOLD_V = 0.2  # TIA/EIA-485-A and TIA/EIA-422-B receiver input sensitivity, +/-200 mV
 RECEIVERS_PER_PASS = 16  # receivers whose pattern waveforms are held at once (small blocks stay in cache)
 DRIVERS_PER_PASS = 8  # drivers whose step responses are held at once
-DELAY_DEFINITION = "from the driver's 0 V crossing to the receiver's 0 V crossing, median over the pattern's edges"
+DELAY_DEFINITION = (
+    "from the driver's 0 V crossing to the receiver's 0 V crossing (the rise through 0 V that goes on to clear "
+    f"{2 * ACCURACY:.0%} of the settled level), median over the pattern's edges"
+)
 
 
 @dataclass(frozen=True, slots=True)
@@ -97,6 +102,20 @@ class ReceiverMetrics:
     @property
     def margin_v(self) -> float:
         """How far the lowest level over the sampling windows clears the threshold (negative: it does not)."""
+        return self.min_sample_v - self.threshold_v
+
+
+@dataclass(frozen=True, slots=True)
+class SampledLevels:
+    """A receiver's levels over the sampling windows alone (as a tolerance case is judged, engine.tolerance)."""
+
+    min_sample_v: float  # lowest level on the driven side over every bit's window
+    sample_errors: int  # bits whose window dips below the threshold
+    eye_height_v: float  # at the sampling instant: lowest 1 plus lowest 0 (driven sides)
+    threshold_v: float
+
+    @property
+    def margin_v(self) -> float:
         return self.min_sample_v - self.threshold_v
 
 
@@ -150,12 +169,16 @@ def receiver_metrics(
     return tuple(out)
 
 
-def _crossings(local: LocalPatterns, sv: np.ndarray, edge: np.ndarray) -> np.ndarray:
-    """Local time of the 0 V crossing in each edge window, (n_rx, n_edges); inf where it never crosses."""
+def _crossings(local: LocalPatterns, sv: np.ndarray, edge: np.ndarray, clear_v: np.ndarray) -> np.ndarray:
+    """Local time of the 0 V crossing in each edge window, (n_rx, n_edges): the last rise through 0 V before the
+    level first reaches clear_v (n_rx,) on the driven side; inf where it never does."""
     u = local.offsets_s
     rows = sv[:, edge, :]
-    pos = rows >= 0.0
-    first = np.argmax(pos, axis=2)
+    cleared = rows >= clear_v[:, None, None]
+    first_clear = np.argmax(cleared, axis=2)
+    below = (rows < 0.0) & (np.arange(u.size) < first_clear[..., None])
+    last_below = np.where(below.any(axis=2), u.size - 1 - np.argmax(below[..., ::-1], axis=2), -1)
+    first = last_below + 1
     k = np.clip(first, 1, u.size - 1)
     va = np.take_along_axis(rows, (k - 1)[..., None], 2)[..., 0]
     vb = np.take_along_axis(rows, k[..., None], 2)[..., 0]
@@ -163,7 +186,7 @@ def _crossings(local: LocalPatterns, sv: np.ndarray, edge: np.ndarray) -> np.nda
         t = np.where(vb != va, u[k - 1] - va * (u[k] - u[k - 1]) / (vb - va), u[k])
     t = np.where(first == 0, u[0], t)
     bits_idx = np.flatnonzero(edge)
-    return np.asarray(np.where(pos.any(axis=2), bits_idx[None, :] * local.bit_time_s + t, np.inf))
+    return np.asarray(np.where(cleared.any(axis=2), bits_idx[None, :] * local.bit_time_s + t, np.inf))
 
 
 def pattern_metrics(
@@ -182,7 +205,7 @@ def pattern_metrics(
     sv = level[None, :, None] * v
 
     # crossings: delay and jitter; the sampling phase is the median crossing within its bit
-    cross = _crossings(local, sv, edge)  # (n_rx, n_edges) local
+    cross = _crossings(local, sv, edge, 2.0 * ACCURACY * amp[:, 0, 0])  # (n_rx, n_edges) local
     within = cross - np.flatnonzero(edge)[None, :] * t_bit
     finite = np.isfinite(within)
     has = finite.any(axis=1)

@@ -12,15 +12,19 @@ from typing import Annotated, Any, Literal
 import annotated_types as at
 from pairline.engine.library import CABLES, TRANSCEIVERS, CableClass
 from pairline.engine.units import si_format
-from pydantic import BaseModel, ConfigDict, Field, ValidationError
+from pydantic import BaseModel, ConfigDict, Field, ValidationError, ValidationInfo, field_validator
 from pydantic.fields import FieldInfo
+from pydantic_core import PydanticCustomError
 
 PLAN_FORMAT: Literal["pairline-bus-plan"] = "pairline-bus-plan"
 PLAN_FORMAT_VERSION: Literal[1] = 1
 MAX_NODES = 512
 MAX_TRUNK_M = 4000.0
+MIN_TRUNK_M = 0.1  # a bench bus; shorter is no cable run
 MAX_STUB_M = 100.0
 MAX_NAME_CHARS = 60
+MIN_BIAS_OHM = 10.0
+MAX_BIAS_OHM = 10e6
 PATTERN_CHARS = 512
 
 
@@ -38,8 +42,35 @@ def _f(
     return Field(default, title=title, ge=ge, gt=gt, le=le, description=description, json_schema_extra={"unit": unit})
 
 
+# The smallest non-zero magnitude a field of each unit may hold. Anything smaller (down to subnormal numbers
+# such as 5e-324) is no physical quantity, only a typing slip or a probe: 1 mm of cable, 1 mV, 1 mΩ, 1 fF,
+# a millionth of a dimensionless ratio.
+NONZERO_MIN_BY_UNIT: dict[str, float] = {
+    "m": 1e-3,
+    "V": 1e-3,
+    "Ω": 1e-3,
+    "Ω/m": 1e-6,
+    "F": 1e-15,
+    "F/m": 1e-15,
+    "": 1e-6,
+}
+
+
 class _Strict(BaseModel):
     model_config = ConfigDict(extra="forbid", allow_inf_nan=False, frozen=True)
+
+    @field_validator("*")
+    @classmethod
+    def _not_vanishingly_small(cls, value: Any, info: ValidationInfo) -> Any:
+        """Refuse a non-zero number below its unit's smallest physical magnitude (NONZERO_MIN_BY_UNIT)."""
+        if not isinstance(value, float) or value == 0.0 or info.field_name is None:
+            return value
+        extra = cls.model_fields[info.field_name].json_schema_extra
+        unit = extra.get("unit") if isinstance(extra, dict) else None
+        floor = NONZERO_MIN_BY_UNIT.get(unit) if isinstance(unit, str) else None
+        if floor is not None and abs(value) < floor:
+            raise PydanticCustomError("vanishing_number", "too small to be physical", {"nonzero_min": floor})
+        return value
 
 
 Name = Annotated[str, Field(min_length=1, max_length=MAX_NAME_CHARS)]
@@ -70,7 +101,7 @@ class DriverSpec(_Strict):
     stub_length_m: float = _f("Driver stub length", "m", ge=0.0, le=MAX_STUB_M, default=0.0)
     transceiver: str | None = Field("edge-100ns", title="Driver class")
     rise_time_s: float | None = _f("Driver rise time", "s", ge=0.5e-9, le=20e-6, default=None)
-    open_circuit_v: float | None = _f("Driver open-circuit differential voltage", "V", gt=0.0, le=12.0, default=None)
+    open_circuit_v: float | None = _f("Driver open-circuit differential voltage", "V", ge=0.1, le=12.0, default=None)
     source_ohm: float | None = _f("Driver source resistance", "Ω", ge=0.0, le=1000.0, default=None)
 
 
@@ -81,7 +112,8 @@ class NodeSpec(_Strict):
     role: Literal["receiver", "transceiver"] = Field(
         "receiver", title="Role", description="a transceiver may also drive (RS-485)"
     )
-    unit_loads: float = _f("Unit loads", "UL", gt=0.0, le=32.0, default=1.0)
+    # down to a millionth of a unit load (12 GΩ), an ideal probe that draws nothing
+    unit_loads: float = _f("Unit loads", "UL", ge=1e-6, le=32.0, default=1.0)
     input_capacitance_f: float = _f("Input capacitance", "F", ge=0.0, le=2e-9, default=20e-12)
     ground_offset_v: float = _f(
         "Ground offset",
@@ -102,8 +134,8 @@ class TerminationSpec(_Strict):
 
 class BiasSpec(_Strict):
     position_m: float = _f("Bias position", "m", ge=0.0, le=MAX_TRUNK_M, default=0.0)
-    pull_up_ohm: float = _f("Pull-up resistor", "Ω", ge=10.0, le=10e6)
-    pull_down_ohm: float = _f("Pull-down resistor", "Ω", ge=10.0, le=10e6)
+    pull_up_ohm: float = _f("Pull-up resistor", "Ω", ge=MIN_BIAS_OHM, le=MAX_BIAS_OHM)
+    pull_down_ohm: float = _f("Pull-down resistor", "Ω", ge=MIN_BIAS_OHM, le=MAX_BIAS_OHM)
     supply_v: float | None = _f("Bias supply", "V", ge=1.0, le=15.0, default=None)
 
 
@@ -156,7 +188,7 @@ class BusPlan(_Strict):
     standard: Literal["rs485", "rs422"] = Field("rs485", title="Standard")
     bit_rate_bps: float = _f("Bit rate", "bit/s", ge=50.0, le=100e6)
     supply_v: float = _f("Supply voltage", "V", ge=1.5, le=15.0, default=5.0)
-    trunk_length_m: float = _f("Trunk length", "m", gt=0.0, le=MAX_TRUNK_M)
+    trunk_length_m: float = _f("Trunk length", "m", ge=MIN_TRUNK_M, le=MAX_TRUNK_M)
     cable: CableSpec = Field(default_factory=CableSpec, title="Cable")
     driver: DriverSpec = Field(default_factory=DriverSpec, title="Driver")
     nodes: list[NodeSpec] = Field(min_length=1, max_length=MAX_NODES, title="Nodes")
@@ -305,9 +337,10 @@ def plan_to_dict(plan: BusPlan) -> dict[str, Any]:
 def _num(obj: Any, key: str, default: float | None = None) -> float | None:
     """A finite number from a raw dict, or the default when absent or not a number (field checks report it)."""
     raw = obj.get(key, default) if isinstance(obj, dict) else default
-    if isinstance(raw, bool) or not isinstance(raw, int | float) or not math.isfinite(raw):
+    if isinstance(raw, bool) or not isinstance(raw, int | float):
         return None
-    return float(raw)
+    number = _finite_float(raw)
+    return number
 
 
 def _sub(obj: dict[str, Any], key: str) -> dict[str, Any]:
@@ -327,7 +360,7 @@ def cross_field_problems(data: dict[str, Any]) -> list[Problem]:
     standard = data.get("standard", "rs485")
 
     def past_end(path: str, label: str, position_m: float | None) -> None:
-        if length is not None and length > 0 and position_m is not None and position_m > length:
+        if length is not None and length >= MIN_TRUNK_M and position_m is not None and position_m > length:
             problems.append(
                 Problem(
                     path,
@@ -434,7 +467,7 @@ def cross_field_problems(data: dict[str, Any]) -> list[Problem]:
         )
     cable = _sub(data, "cable")
     cable_key = cable.get("class_key", "pair-24awg-120")
-    if cable_key is not None and cable_key not in CABLES:
+    if isinstance(cable_key, str) and cable_key not in CABLES:
         problems.append(
             Problem(
                 "cable.class_key",
@@ -450,7 +483,7 @@ def cross_field_problems(data: dict[str, Any]) -> list[Problem]:
             if cable.get(key) is None:
                 problems.append(_missing_custom("cable", CableSpec, key, "cable.class_key"))
     driver_key = driver.get("transceiver", "edge-100ns")
-    if driver_key is not None and driver_key not in TRANSCEIVERS:
+    if isinstance(driver_key, str) and driver_key not in TRANSCEIVERS:
         problems.append(
             Problem(
                 "driver.transceiver",
@@ -521,14 +554,37 @@ def _range_text(allowed: dict[str, Any]) -> str:
     return "a valid value"
 
 
+def _finite_float(value: int | float) -> float | None:
+    """The number as a finite float, or None when it is infinite, NaN or an integer beyond any float."""
+    try:
+        number = float(value)
+    except OverflowError:
+        return None
+    return number if math.isfinite(number) else None
+
+
 def _value_text(value: Any, unit: str) -> str:
     if isinstance(value, bool) or not isinstance(value, int | float):
         return repr(value) if isinstance(value, str) else str(value)
+    if isinstance(value, int) and _finite_float(value) is None:
+        return f"a {len(str(abs(value)))}-digit number"
     if not math.isfinite(value):
         return str(value)
     if unit in {"s", "F", "Hz", "Ω", "bit/s", "F/m"} and value != 0:
         return si_format(float(value), unit)
     return f"{value:g} {unit}".strip()
+
+
+def _value_beside(value: Any, bound: Any, unit: str) -> str:
+    """The value's text, with as many digits as it takes to differ from the bound it is compared with."""
+    text = _value_text(value, unit)
+    if not (isinstance(value, float) and isinstance(bound, int | float) and math.isfinite(value) and value != bound):
+        return text
+    digits = 7
+    while text == _value_text(bound, unit) and digits <= 17:
+        text = f"{value:.{digits}g} {unit}".strip()
+        digits += 1
+    return text
 
 
 def _model_at(loc: tuple[int | str, ...]) -> tuple[type[BaseModel] | None, FieldInfo | None]:
@@ -558,6 +614,7 @@ def _submodel(info: FieldInfo) -> type[BaseModel] | None:
 
 def _label(loc: tuple[int | str, ...], data: Any, info: FieldInfo | None) -> str:
     base = info.title if info is not None and info.title else str(loc[-1]) if loc else "Plan"
+    base = base or "(empty name)"
     if len(loc) >= 2 and loc[0] in ("nodes", "terminations") and isinstance(loc[1], int):
         what = "Node" if loc[0] == "nodes" else "Terminator"
         name = ""
@@ -602,8 +659,16 @@ def _problem_from_pydantic(err: Any, data: Any) -> Problem:
         msg += f"; allowed {_range_text(allowed)}." if "min" in allowed else "."
     elif kind == "finite_number":
         msg = f"{label} is {value}; it must be a finite number, allowed {_range_text(allowed)}."
+    elif kind == "vanishing_number":
+        floor = ctx["nonzero_min"]
+        msg = (
+            f"{label} is {_value_beside(value, floor, unit)}, too small to be physical; allowed 0 or at least "
+            f"{_value_text(floor, unit)} in size, within {_range_text(allowed)}."
+        )
+        allowed = allowed | {"nonzero_min": floor}
     elif kind in {"greater_than_equal", "greater_than", "less_than_equal", "less_than"}:
-        msg = f"{label} is {_value_text(value, unit)}; allowed {_range_text(allowed)}."
+        bound = next((v for k, v in ctx.items() if k in {"ge", "gt", "le", "lt"}), None)
+        msg = f"{label} is {_value_beside(value, bound, unit)}; allowed {_range_text(allowed)}."
     elif kind in {"too_long", "too_short", "string_too_long", "string_too_short"}:
         count = len(value) if isinstance(value, list | str) else value
         noun = "items" if isinstance(value, list) else "characters"
@@ -612,6 +677,10 @@ def _problem_from_pydantic(err: Any, data: Any) -> Problem:
         allowed = {"min_length": lo, "max_length": hi}
         msg = f"{label} has {count} {noun}; allowed {lo} to {hi}."
         value = count if isinstance(value, list) else value
+    elif kind == "string_type":
+        allowed = allowed or _library_choices(loc)
+        msg = f"{label} must be text; got {_value_text(_short(value), '')}"
+        msg += f"; allowed {_range_text(allowed)}." if allowed else "."
     elif kind == "string_pattern_mismatch":
         msg = f"{label} may hold only 0 and 1; got {_value_text(_short(value), '')}."
         allowed = {"pattern": "0s and 1s"}
@@ -620,8 +689,19 @@ def _problem_from_pydantic(err: Any, data: Any) -> Problem:
     return Problem(path, label, _short(value), allowed, msg)
 
 
+def _library_choices(loc: tuple[int | str, ...]) -> dict[str, Any]:
+    """The library keys a class field may name, for messages about it."""
+    if loc == ("cable", "class_key"):
+        return {"choices": sorted(CABLES)}
+    if loc == ("driver", "transceiver"):
+        return {"choices": sorted(TRANSCEIVERS)}
+    return {}
+
+
 def _short(value: Any) -> Any:
     """Keep echoed values small: a huge pasted list is summarised, not repeated back."""
+    if isinstance(value, int) and not isinstance(value, bool) and _finite_float(value) is None:
+        return _value_text(value, "")
     if isinstance(value, dict):
         return {"type": "object", "keys": len(value)}
     if isinstance(value, list):

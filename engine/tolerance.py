@@ -1,5 +1,5 @@
-"""Worst case over component tolerances: corners and a seeded Monte Carlo, every variant of the bus solved in one
-batch (engine.solve.NetworkVariants, engine.transient.variant_step_responses).
+"""Worst case over component tolerances: corners and a seeded Monte Carlo, every variant of the bus solved in
+batches (engine.solve.NetworkVariants, engine.transient.variant_step_responses).
 
 Parameters, each a range from the library classes (engine.library; the plan's `tolerances` may set any of them):
 - the cable's Z0 and velocity factor, +/- the cable class's z0_tolerance and velocity_factor_tolerance;
@@ -15,8 +15,19 @@ capacitance and load) drawn uniformly within its range from numpy's default_rng(
 edge are one draw per variant. Reported per receiver: the 1st percentile of margin and eye height over them.
 Dominant tolerance of a receiver: the parameter whose one-at-a-time ends move its margin furthest down.
 
-Every variant is simulated on the grid chosen for the nominal bus driven by the class's fastest edge (the
-sharpest variant), so each keeps the accuracy of engine.transient.
+What a variant is judged by (SampledLevels): what tolerances move, the receiver's levels over the sampling window
+of every bit of the pattern (engine.metrics: the lowest level, the bits below the threshold) and its inner eye at
+the sampling instant. They are read from the variant's edge response at the window's own instants: the window's
+ends and centre and, between them, every offset at which the pattern's waveform bends (engine.waveform's refined
+offsets, so that linear interpolation between them stays within the waveforms' own accuracy); the pattern is
+superposed there only (engine.waveform: v(t) = v_final (2 b_n - 1) + sum_m 2 (b_{n-m} - b_{n-m-1}) D(m T + u),
+n = floor(t / T)).
+The window sits where the nominal receiver's start edge puts it (engine.metrics' median 0 V crossing), moved by
+half the change of the driver's 0-100 % edge: a ramp crosses 0 V at its middle.
+
+Grids: every variant is simulated on the grid chosen for the nominal bus driven by an edge at least as sharp as its
+own (its edge factor rounded down to a power of two, or the class's fastest), so each keeps the accuracy of
+engine.transient while variants with the nominal edge or slower share the nominal grid.
 """
 
 from dataclasses import dataclass, replace
@@ -36,13 +47,21 @@ from pairline.engine.library import (
     UNIT_LOAD_SOURCE,
     CableClass,
 )
-from pairline.engine.metrics import RECEIVER_THRESHOLD_V, ReceiverMetrics, SamplingWindow, pattern_metrics, plan_window
+from pairline.engine.metrics import (
+    RECEIVER_THRESHOLD_V,
+    ReceiverMetrics,
+    SampledLevels,
+    SamplingWindow,
+    plan_window,
+    receiver_metrics,
+)
 from pairline.engine.solve import NetworkVariants, Topology, build_topology, with_cable
-from pairline.engine.transient import StepResponses, step_responses, variant_step_responses
-from pairline.engine.waveform import default_pattern, local_patterns, pattern_duration_s, pattern_offsets_s
+from pairline.engine.transient import ACCURACY, StepResponses, edge_duration_s, step_responses, variant_step_responses
+from pairline.engine.waveform import default_pattern, pattern_duration_s, pattern_memory_bits, pattern_offsets_s
 
-VARIANTS_PER_BATCH = 32  # variants whose spectra are held at once
-ROWS_PER_PASS = 512  # variant x receiver rows whose pattern waveforms are held at once
+VARIANTS_PER_BATCH = 32  # variants solved at once, at most
+BATCH_VALUES = 4_000_000  # variant x probe x sample values of the edge responses held at once
+INSTANT_TOLERANCE = ACCURACY  # of each probe's peak-to-peak: interpolation between window instants
 GENERIC_CABLE = CableClass("custom", "", 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, "")  # its default tolerances
 
 
@@ -63,7 +82,7 @@ class ReceiverTolerance:
 
     receiver: str
     nominal: ReceiverMetrics
-    worst: ReceiverMetrics  # at the worst corner
+    worst: SampledLevels  # at the worst corner
     worst_corner: str  # the corner's parameter ends, as text
     p1_margin_v: float | None  # None without Monte Carlo variants
     p1_eye_height_v: float | None
@@ -80,7 +99,6 @@ class ToleranceReport:
     seed: int
     pattern: str
     window: SamplingWindow
-    corner_margin_v: np.ndarray  # (n_corners + 1, n_receivers), the nominal first
     monte_carlo_margin_v: np.ndarray | None  # (n_variants, n_receivers)
     monte_carlo_eye_height_v: np.ndarray | None  # (n_variants, n_receivers)
 
@@ -237,31 +255,136 @@ def _networks(bus: Bus, topo: Topology, f: _Factors) -> tuple[NetworkVariants, n
     return variants, network_of.ravel()
 
 
+@dataclass(frozen=True, slots=True)
+class _Grid:
+    """A grid run (the nominal bus with one edge) and, per receiver, the window instants to read (n_rx, n_tau),
+    in bits after the start edge: the window's ends and centre first, then the refined offsets inside it."""
+
+    step: StepResponses
+    tau_ui: np.ndarray  # (n_rx, n_tau)
+
+
+def _window_instants(offsets_s: np.ndarray, phase_s: np.ndarray, t_bit: float, window: SamplingWindow) -> np.ndarray:
+    """Per receiver the window's ends and centre and every offset inside it, in bits after its start edge
+    (n_rx, n_tau); rows are padded with the centre."""
+    lo, hi = window.centre_ui - window.half_width_ui, window.centre_ui + window.half_width_ui
+    rows = []
+    for phase in phase_s:
+        tau = (np.concatenate([offsets_s + k * t_bit for k in range(3)]) - phase) / t_bit
+        rows.append(np.r_[lo, window.centre_ui, hi, tau[(tau > lo) & (tau < hi)]])
+    width = max(r.size for r in rows)
+    return np.array([np.pad(r, (0, width - r.size), constant_values=window.centre_ui) for r in rows])
+
+
+def _sampled_levels(
+    step: StepResponses,
+    variants: np.ndarray,
+    phase_s: np.ndarray,
+    tau_ui: np.ndarray,
+    bits: str,
+    t_bit: float,
+    threshold_v: float,
+) -> np.ndarray:
+    """Lowest level, bits below the threshold and eye height, (3, n_variants, n_rx), of the step's variants
+    `variants` (its probes are variant-major), receiver r read with its start edge at phase_s[r] (module
+    docstring). The instants are located on the step's grid once for all these variants."""
+    n_rx = tau_ui.shape[0]
+    b = np.frombuffer(bits.encode(), dtype=np.uint8) == ord("1")
+    level = np.where(b, 1.0, -1.0)
+    edges = 2.0 * np.diff(b.astype(float), prepend=float(b[0]))
+    n_bits = len(bits)
+    n_mem = pattern_memory_bits(step, t_bit, n_bits)
+    toeplitz = np.zeros((n_bits, n_mem))  # (n_bits, n_mem): edges[n - m]
+    for m in range(n_mem):
+        toeplitz[m:, m] = edges[: n_bits - m]
+    t = step.time_s
+    u = phase_s[:, None] + tau_ui * t_bit  # (n_rx, n_tau) local time after bit n's start
+    shift = np.floor(u / t_bit).astype(int)
+    u -= shift * t_bit
+    n_s = n_bits - max(1, int(shift.max(initial=0)))
+    bit = np.arange(n_s)[None, :, None] + shift[:, None, :]  # (n_rx, n_s, n_tau) the bit each instant falls in
+    at = np.arange(n_mem)[None, :, None] * t_bit + u[:, None, :]  # (n_rx, n_mem, n_tau)
+    k = np.clip(np.searchsorted(t, at, side="right") - 1, 0, t.size - 2)
+    w = np.clip((at - t[k]) / (t[k + 1] - t[k]), 0.0, 1.0)
+    late = at > t[-1]
+    flat = k.reshape(n_rx, -1)
+    ones, zeros = level[:n_s] > 0, level[:n_s] < 0
+    out = np.empty((3, variants.size, n_rx))
+    for i, v in enumerate(variants):
+        final = step.v_final_v[0, v * n_rx : (v + 1) * n_rx]
+        dev = step.v_diff_v[0, v * n_rx : (v + 1) * n_rx] - final[:, None]  # (n_rx, n_t)
+        d0 = np.take_along_axis(dev, flat, 1).reshape(k.shape)
+        d = d0 + (np.take_along_axis(dev, flat + 1, 1).reshape(k.shape) - d0) * w
+        d = np.where(late, 0.0 if step.settled else dev[:, -1, None, None], d)
+        wave = np.einsum("nm,rmj->rnj", toeplitz, d)  # (n_rx, n_bits, n_tau): the edges' sum in bit n'
+        wave += level[None, :, None] * final[:, None, None]
+        driven = level[None, :n_s, None] * np.take_along_axis(wave, bit, axis=1)  # (n_rx, n_s, n_tau)
+        window_min = driven.min(axis=2)
+        centre = driven[..., 1]
+        if ones.any() and zeros.any():
+            out[2, i] = centre[:, ones].min(axis=1) + centre[:, zeros].min(axis=1)
+        else:
+            out[2, i] = 2.0 * centre.min(axis=1)
+        out[0, i] = window_min.min(axis=1)
+        out[1, i] = np.count_nonzero(window_min < threshold_v, axis=1)
+    return out
+
+
 def _simulate(
-    bus: Bus, grid: StepResponses, topo: Topology, f: _Factors, bits: str, offsets_s: np.ndarray, window: SamplingWindow
-) -> list[list[ReceiverMetrics]]:
-    """Metrics of every receiver for each variant, (n_v, n_receivers): VARIANTS_PER_BATCH variants are solved at
-    once, and their receivers judged together on the offsets the grid run refined."""
-    names = [n.name for n in bus.plan.nodes]
+    bus: Bus,
+    grids: dict[float, _Grid],
+    topo: Topology,
+    f: _Factors,
+    phase_s: np.ndarray,
+    bits: str,
+    threshold_v: float,
+) -> np.ndarray:
+    """Sampled levels of every receiver of each variant, (3, n_v, n_rx): lowest level, bits below the threshold
+    and eye height. Variants run on their edge's grid (_grid_factor), up to VARIANTS_PER_BATCH solved at once."""
+    n_rx = len(bus.plan.nodes)
     t_bit = 1.0 / bus.plan.bit_rate_bps
-    out: list[list[ReceiverMetrics]] = []
-    for v0 in range(0, f.z0.size, VARIANTS_PER_BATCH):
-        part = slice(v0, v0 + VARIANTS_PER_BATCH)
-        chunk = _Factors(*(np.asarray(getattr(f, k))[part] for k in _Factors.__slots__))
-        variants, network_of = _networks(bus, topo, chunk)
-        step = variant_step_responses(bus, grid, variants, network_of, bus.driver.rise_time_s * chunk.rise_time)
-        rows: list[ReceiverMetrics] = []
-        for r0 in range(0, len(step.receiver_names), ROWS_PER_PASS):
-            index = np.arange(r0, min(r0 + ROWS_PER_PASS, len(step.receiver_names)))
-            local = local_patterns(step, bits, t_bit, rows=index, offsets_s=offsets_s)
-            rows.extend(pattern_metrics(local, RECEIVER_THRESHOLD_V, window))
-        for v in range(chunk.z0.size):
-            out.append(
-                [
-                    replace(m, receiver=n)
-                    for m, n in zip(rows[v * len(names) : (v + 1) * len(names)], names, strict=True)
-                ]
+    t_edge = edge_duration_s(bus.driver.rise_time_s)
+    out = np.empty((3, f.z0.size, n_rx))
+    bucket = np.array([_grid_factor(x, min(grids)) for x in f.rise_time])
+    for factor, grid in grids.items():
+        members = np.flatnonzero(bucket == factor)
+        per_batch = int(np.clip(BATCH_VALUES // (n_rx * grid.step.time_s.size), 1, VARIANTS_PER_BATCH))
+        for v0 in range(0, members.size, per_batch):
+            part = members[v0 : v0 + per_batch]
+            chunk = _Factors(*(np.asarray(getattr(f, k))[part] for k in _Factors.__slots__))
+            variants, network_of = _networks(bus, topo, chunk)
+            step = variant_step_responses(
+                bus, grid.step, variants, network_of, bus.driver.rise_time_s * chunk.rise_time
             )
+            for edge in np.unique(chunk.rise_time):  # a ramp crosses 0 V at its middle
+                same = np.flatnonzero(chunk.rise_time == edge)
+                phase = phase_s + 0.5 * t_edge * (edge - 1.0)
+                out[:, part[same]] = _sampled_levels(step, same, phase, grid.tau_ui, bits, t_bit, threshold_v)
+    return out
+
+
+def _grid_factor(edge_factor: float, fastest: float) -> float:
+    """The edge (as a factor on the nominal) whose grid a variant runs on: 1 for the nominal edge or slower, else
+    its factor rounded down to a power of two, but not below the fastest of the range."""
+    if edge_factor >= 1.0:
+        return 1.0
+    return float(max(fastest, 2.0 ** np.floor(np.log2(edge_factor))))
+
+
+def _grids(
+    bus: Bus, factors: set[float], bits: str, nominal: StepResponses, phase_s: np.ndarray, window: SamplingWindow
+) -> dict[float, _Grid]:
+    """A grid run per edge factor (the nominal edge reuses the nominal simulation) and its window instants."""
+    t_bit = 1.0 / bus.plan.bit_rate_bps
+    out = {}
+    for factor in sorted(factors):
+        if factor == 1.0:
+            step = nominal
+        else:
+            edged = replace(bus, driver=replace(bus.driver, rise_time_s=bus.driver.rise_time_s * factor))
+            step = step_responses(edged, max_time_s=pattern_duration_s(bus, bits))
+        offsets = pattern_offsets_s(step, bits, t_bit, INSTANT_TOLERANCE)
+        out[factor] = _Grid(step, _window_instants(offsets, phase_s, t_bit, window))
     return out
 
 
@@ -278,8 +401,9 @@ def _text(ranges: tuple[ToleranceRange, ...], ends: np.ndarray, rise_s: float) -
     return ", ".join(parts) or "nominal"
 
 
-def _rank(m: ReceiverMetrics) -> tuple[float, float]:
-    return (m.margin_v, m.eye_height_v)
+def _rank(margin_v: np.ndarray, eye_v: np.ndarray) -> np.ndarray:
+    """Order of cases (rows) per receiver, worst first: lowest margin, then smallest eye."""
+    return np.lexsort((eye_v, margin_v), axis=0)
 
 
 def analyse_tolerances(
@@ -289,65 +413,83 @@ def analyse_tolerances(
     variants: int | None = None,
     seed: int | None = None,
     window: SamplingWindow | None = None,
+    nominal: tuple[StepResponses, tuple[ReceiverMetrics, ...]] | None = None,
 ) -> ToleranceReport:
     """Corners and Monte Carlo of the primary driver's bit pattern at every receiver (module docstring).
 
     pattern None: the plan's test pattern, else the default PRBS of the nominal bus. variants / seed None: the
-    plan's tolerances.monte_carlo_variants / seed. window None: the plan's sampling window.
+    plan's tolerances.monte_carlo_variants / seed. window None: the plan's sampling window. nominal: the primary
+    driver's edge responses at every receiver and their metrics for this pattern and window, when known.
     """
     plan = bus.plan
     ranges = tolerance_ranges(bus)
     sampling = plan_window(bus) if window is None else window
     n_mc = plan.tolerances.monte_carlo_variants if variants is None else variants
     rng_seed = plan.tolerances.seed if seed is None else seed
+    t_bit = 1.0 / plan.bit_rate_bps
+    if nominal is None:
+        step = step_responses(bus, max_time_s=pattern_duration_s(bus, pattern or plan.test_pattern))
+        bits = pattern or plan.test_pattern or default_pattern(step, t_bit)
+        metrics = receiver_metrics(bus, pattern=bits, step=step, window=sampling)
+    else:
+        step, metrics = nominal
+        bits = pattern or plan.test_pattern or default_pattern(step, t_bit)
+    t_edge = edge_duration_s(bus.driver.rise_time_s)
+    start = step.start_s[0]
+    phase = np.array(
+        [
+            m.propagation_delay_s - s + 0.5 * t_edge if np.isfinite(m.propagation_delay_s) else 0.5 * t_edge
+            for m, s in zip(metrics, start, strict=True)
+        ]
+    )
     by = {r.key: r for r in ranges}
-    fastest = bus.driver.rise_time_s * min(1.0, by["rise_time"].low)
-    grid_bus = replace(bus, driver=replace(bus.driver, rise_time_s=fastest))
-    grid = step_responses(grid_bus, max_time_s=pattern_duration_s(bus, pattern or plan.test_pattern))
-    bits = pattern or plan.test_pattern or default_pattern(grid, 1.0 / plan.bit_rate_bps)
-    offsets = pattern_offsets_s(grid, bits, 1.0 / plan.bit_rate_bps)
+    fastest = min(1.0, by["rise_time"].low)
     topo = build_topology(bus)
-    n_terms, n_nodes = len(plan.terminations), len(plan.nodes)
+    n_terms, n_rx = len(plan.terminations), len(plan.nodes)
+    threshold = metrics[0].threshold_v if metrics else RECEIVER_THRESHOLD_V
 
     # nominal and one at a time
     k = len(ranges)
     one_at_a_time = np.zeros((1 + 2 * k, k))
     for i in range(k):
         one_at_a_time[1 + 2 * i, i], one_at_a_time[2 + 2 * i, i] = -1.0, 1.0
-    first = _simulate(
-        bus, grid, topo, _corner_factors(ranges, one_at_a_time, n_terms, n_nodes), bits, offsets, sampling
-    )
-    nominal = first[0]
-    margins = np.array([[m.margin_v for m in case] for case in first])  # (1 + 2k, n_rx)
+    first_f = _corner_factors(ranges, one_at_a_time, n_terms, n_rx)
+    randoms = _random_factors(ranges, n_mc, n_terms, n_rx, rng_seed) if n_mc > 0 else None
+    factors = {_grid_factor(x, fastest) for x in first_f.rise_time}
+    factors |= {_grid_factor(by["rise_time"].low, fastest), _grid_factor(by["rise_time"].high, fastest)}
+    if randoms is not None:
+        factors |= {_grid_factor(x, fastest) for x in randoms.rise_time}
+    grids = _grids(bus, factors, bits, step, phase, sampling)
+    first = _simulate(bus, grids, topo, first_f, phase, bits, threshold)
+    margins = first[0] - threshold  # (1 + 2k, n_rx)
     low_end, high_end = margins[1::2], margins[2::2]  # (k, n_rx)
     # each receiver's worst corner: every parameter at the end that lowered its margin
     corner_ends = np.where(low_end < high_end, -1.0, 1.0).T  # (n_rx, k)
-    vertices, vertex_of = np.unique(corner_ends, axis=0, return_inverse=True)
-    second = _simulate(bus, grid, topo, _corner_factors(ranges, vertices, n_terms, n_nodes), bits, offsets, sampling)
-    cases = first + second
+    vertices = np.unique(corner_ends, axis=0)
+    second_f = _corner_factors(ranges, vertices, n_terms, n_rx)
+    second = _simulate(bus, grids, topo, second_f, phase, bits, threshold)
+    cases = np.concatenate([first, second], axis=1)  # (3, n_cases, n_rx)
     case_ends = np.vstack([one_at_a_time, vertices])
 
     p1_margin = p1_eye = mc_margin = mc_eye = None
-    if n_mc > 0:
-        randoms = _random_factors(ranges, n_mc, n_terms, n_nodes, rng_seed)
-        drawn = _simulate(bus, grid, topo, randoms, bits, offsets, sampling)
-        mc_margin = np.array([[m.margin_v for m in case] for case in drawn])
-        mc_eye = np.array([[m.eye_height_v for m in case] for case in drawn])
+    if randoms is not None:
+        drawn = _simulate(bus, grids, topo, randoms, phase, bits, threshold)
+        mc_margin, mc_eye = drawn[0] - threshold, drawn[2]
         p1_margin = np.percentile(mc_margin, 1.0, axis=0)
         p1_eye = np.percentile(mc_eye, 1.0, axis=0)
 
+    worst_case = _rank(cases[0], cases[2])[0]  # (n_rx,)
     receivers = []
     for r, node in enumerate(plan.nodes):
-        ranks = [_rank(case[r]) for case in cases]
-        worst_case = min(range(len(ranks)), key=ranks.__getitem__)
+        c = int(worst_case[r])
         shifts = np.minimum(low_end[:, r], high_end[:, r]) - margins[0, r]
         dominant = int(np.argmin(shifts))
         receivers.append(
             ReceiverTolerance(
                 receiver=node.name,
-                nominal=nominal[r],
-                worst=cases[worst_case][r],
-                worst_corner=_text(ranges, case_ends[worst_case], bus.driver.rise_time_s),
+                nominal=metrics[r],
+                worst=SampledLevels(float(cases[0, c, r]), int(cases[1, c, r]), float(cases[2, c, r]), threshold),
+                worst_corner=_text(ranges, case_ends[c], bus.driver.rise_time_s),
                 p1_margin_v=None if p1_margin is None else float(p1_margin[r]),
                 p1_eye_height_v=None if p1_eye is None else float(p1_eye[r]),
                 dominant=ranges[dominant].label,
@@ -357,12 +499,11 @@ def analyse_tolerances(
     return ToleranceReport(
         ranges=ranges,
         receivers=tuple(receivers),
-        corners=len(cases) - 1,
+        corners=len(case_ends) - 1,
         variants=n_mc,
         seed=rng_seed,
         pattern=bits,
         window=sampling,
-        corner_margin_v=np.array([[m.margin_v for m in case] for case in cases]),
         monte_carlo_margin_v=mc_margin,
         monte_carlo_eye_height_v=mc_eye,
     )

@@ -32,6 +32,7 @@ __all__ = [
     "local_patterns",
     "longest_delay_s",
     "pattern_at",
+    "pattern_memory_bits",
     "plan_probes",
     "prbs_bits",
     "probe_waveforms",
@@ -157,18 +158,25 @@ def _deviation_at(step: StepResponses, rows: np.ndarray, local_s: np.ndarray) ->
     return np.asarray(out)
 
 
-def _memory(step: StepResponses, bit_time_s: float, n_bits: int) -> int:
+def pattern_memory_bits(step: StepResponses, bit_time_s: float, n_bits: int) -> int:
+    """Bits back whose edges still shape a pattern of n_bits (the edge response's span, or the whole pattern when
+    it has not settled), counting the bit itself."""
     horizon_s = step.time_s[-1] if step.settled else max(step.time_s[-1], n_bits * bit_time_s)
     return int(min(n_bits, np.floor(horizon_s / bit_time_s) + 1))
 
 
-def pattern_offsets_s(step: StepResponses, bits: str, bit_time_s: float) -> np.ndarray:
-    """The offsets refined for every probe of the step's first driver (to share with variants of the bus)."""
+def pattern_offsets_s(
+    step: StepResponses, bits: str, bit_time_s: float, tolerance: float = REFINE_TOLERANCE
+) -> np.ndarray:
+    """The offsets refined for every probe of the step's first driver (to share with variants of the bus), to
+    `tolerance` of each probe's peak-to-peak."""
     rows = np.arange(len(step.receiver_names))
-    return _offsets(step, rows, bit_time_s, _memory(step, bit_time_s, len(bits)))
+    return _offsets(step, rows, bit_time_s, pattern_memory_bits(step, bit_time_s, len(bits)), tolerance)
 
 
-def _offsets(step: StepResponses, rows: np.ndarray, bit_time_s: float, n_mem: int) -> np.ndarray:
+def _offsets(
+    step: StepResponses, rows: np.ndarray, bit_time_s: float, n_mem: int, tolerance: float = REFINE_TOLERANCE
+) -> np.ndarray:
     """Offsets within a bit (module docstring), common to the probes `rows`."""
     t = step.time_s
     uniform = np.arange(UNIFORM_OFFSETS) * (bit_time_s / UNIFORM_OFFSETS)
@@ -184,7 +192,7 @@ def _offsets(step: StepResponses, rows: np.ndarray, bit_time_s: float, n_mem: in
     for r0 in range(0, rows.size, per_block):
         block = rows[r0 : r0 + per_block]
         vals = _deviation_at(step, block, (lags + cand[None, :]).ravel()).reshape(block.size * n_mem, cand.size)
-        tol = np.repeat(REFINE_TOLERANCE * ptp[r0 : r0 + per_block], n_mem)
+        tol = np.repeat(tolerance * ptp[r0 : r0 + per_block], n_mem)
         keep |= _refine(cand, vals, fixed, tol)
     return np.asarray(cand[keep])
 
@@ -228,7 +236,7 @@ def local_patterns(
     check_bits(bits)
     rows = _receiver_index(step, receiver_names) if rows is None else np.asarray(rows, dtype=int)
     n_bits = len(bits)
-    n_mem = _memory(step, bit_time_s, n_bits)
+    n_mem = pattern_memory_bits(step, bit_time_s, n_bits)
     offsets = _offsets(step, rows, bit_time_s, n_mem) if offsets_s is None else offsets_s
     d_mem = _deviation_at(step, rows, (np.arange(n_mem)[:, None] * bit_time_s + offsets[None, :]).ravel())
     d_mem = d_mem.reshape(rows.size, n_mem, offsets.size)

@@ -1,160 +1,140 @@
 """The app factory. Nothing touches disk or settings at import time: every test builds its own app."""
 
-import json
-import logging
+import threading
+from collections.abc import AsyncIterator
+from contextlib import asynccontextmanager
 from pathlib import Path
-from typing import Any
 
 from fastapi import FastAPI, Request
-from fastapi.responses import HTMLResponse, JSONResponse, Response
+from fastapi.responses import JSONResponse, Response
 from fastapi.staticfiles import StaticFiles
-from jinja2 import Environment, FileSystemLoader, select_autoescape
 from pairline.engine import ENGINE_VERSION
-from pairline.engine.plan import BusInputError, load_plan, plan_to_dict
-from pairline.server.errors import input_error_response, not_found
-from pairline.server.store import PlanStore
+from pairline.engine.plan import BusInputError, Problem
+from pairline.server.cache import MemoryCache, ResultCache
+from pairline.server.checking import Checker
+from pairline.server.errors import RequestRefused, error_envelope, input_error_response, not_found, refused_response
+from pairline.server.middleware import BodyLimit, ErrorGuard, HeadAsGet, SecurityHeaders
+from pairline.server.openapi import plan_openapi
+from pairline.server.quota import MemoryLimiter, SaveLimiter
+from pairline.server.rendering import make_templates
+from pairline.server.samples import SAMPLES_DIR, seed_samples
+from pairline.server.settings import Settings
+from pairline.server.store import PlanStore, open_store
+from pairline.server.store.shared import StoreCache, StoreLimiter
+from pairline.server.workers import CheckPool, PoolBusy
 from starlette.exceptions import HTTPException as StarletteHTTPException
-from starlette.types import ASGIApp, Message, Receive, Scope, Send
 
 from pairline import data_dir
 
-TEMPLATES_DIR = data_dir("templates")
 STATIC_DIR = data_dir("static")
-SAMPLES_DIR = data_dir("sample_buses")
-MAX_BODY_BYTES = 2_000_000  # a 512-node plan is about 100 kB; anything far larger is refused
-
-log = logging.getLogger("pairline.server")
 
 
-class BodyLimit:
-    """Refuse request bodies over `max_bytes` with 413, by Content-Length or by counting a streamed body."""
-
-    def __init__(self, app: ASGIApp, max_bytes: int):
-        self.app = app
-        self.max_bytes = max_bytes
-
-    async def __call__(self, scope: Scope, receive: Receive, send: Send) -> None:
-        if scope["type"] != "http":
-            await self.app(scope, receive, send)
-            return
-        headers = dict(scope.get("headers") or [])
-        declared = headers.get(b"content-length")
-        if declared is not None and (not declared.isdigit() or int(declared) > self.max_bytes):
-            await _too_large(scope, receive, send, self.max_bytes)
-            return
-        seen = 0
-
-        async def counting_receive() -> Message:
-            nonlocal seen
-            message = await receive()
-            if message["type"] == "http.request":
-                seen += len(message.get("body", b""))
-                if seen > self.max_bytes:
-                    raise BodyTooLarge
-            return message
-
-        try:
-            await self.app(scope, counting_receive, send)
-        except BodyTooLarge:
-            await _too_large(scope, receive, send, self.max_bytes)
-
-
-class BodyTooLarge(Exception):
-    pass
-
-
-async def _too_large(scope: Scope, receive: Receive, send: Send, max_bytes: int) -> None:
-    message = f"The request is larger than {max_bytes // 1000} kB; send a smaller plan."
-    body: dict[str, Any] = {
-        "status": 413,
-        "problems": [
-            {
-                "field": "",
-                "label": "Request body",
-                "value": None,
-                "allowed": {"max_bytes": max_bytes},
-                "message": message,
-            }
-        ],
-    }
-    path = str(scope.get("path", ""))
-    accept = dict(scope.get("headers") or []).get(b"accept", b"").decode("latin-1")
-    if "text/html" in accept and not (path.startswith("/api/") or path.endswith(".json")):
-        html = (
-            "<!doctype html><html lang='en'><head><meta charset='utf-8'><title>Too large · Pairline</title>"
-            "<link rel='stylesheet' href='/static/pairline.css'></head><body><main><section class='panel lost'>"
-            f"<h1>That is too much to send</h1><p>{message}</p>"
-            "<p><a class='button' href='/'>Back to the start</a></p></section></main></body></html>"
-        )
-        await HTMLResponse(html, status_code=413)(scope, receive, send)
-        return
-    await JSONResponse(body, status_code=413)(scope, receive, send)
-
-
-def make_templates() -> Environment:
-    env = Environment(
-        loader=FileSystemLoader(TEMPLATES_DIR),
-        autoescape=select_autoescape(enabled_extensions=("html", "svg"), default=True),
-        trim_blocks=True,
-        lstrip_blocks=True,
-    )
-    env.globals["engine_version"] = ENGINE_VERSION
-    return env
-
-
-def render(request: Request, template: str, data: dict[str, Any], status_code: int = 200) -> HTMLResponse:
-    env: Environment = request.app.state.templates
-    path = request.url.path
-    json_url = path + ".json" if path != "/" else "/index.json"
-    base = str(request.base_url).rstrip("/")
-    html = env.get_template(template).render(data=data, request_path=path, json_url=json_url, base_url=base)
-    return HTMLResponse(html, status_code=status_code)
-
-
-def load_sample_buses(store: PlanStore, directory: Path = SAMPLES_DIR) -> int:
-    """Load every valid `sample_buses/*.json` into the store; an invalid file is logged and skipped."""
-    loaded: list[str] = []
-    for position, path in enumerate(sorted(directory.glob("*.json"))):
-        try:
-            plan = load_plan(json.loads(path.read_text(encoding="utf-8")))
-        except (OSError, ValueError) as exc:  # BusInputError and JSONDecodeError are ValueErrors
-            log.warning("sample bus %s skipped: %s", path.name, exc)
-            continue
-        store.put_sample(path.stem, plan_to_dict(plan), engine_version=ENGINE_VERSION, position=position)
-        loaded.append(path.stem)
-    store.retain_samples(loaded)
-    return len(loaded)
+def shared_state(store: PlanStore, settings: Settings) -> tuple[ResultCache, SaveLimiter]:
+    """The results cache and the save limiter: in the store when several processes share it (PostgreSQL), so a
+    plan checked by one process is a cache hit in every other and a client's saves count once whichever process
+    takes them; in this process otherwise (SQLite), where memory is many times faster than the database file."""
+    if store.shared:
+        return StoreCache(store), StoreLimiter(store, settings.saves_per_minute, settings.saves_per_day)
+    cache = MemoryCache(settings.cache_max_mb * 1024 * 1024)
+    return cache, MemoryLimiter(settings.saves_per_minute, settings.saves_per_day)
 
 
 def create_app(
-    db_path: Path,
+    db: PlanStore | Path | str,
     *,
     load_samples: bool = True,
     samples_dir: Path = SAMPLES_DIR,
-    max_body_bytes: int = MAX_BODY_BYTES,
+    settings: Settings | None = None,
 ) -> FastAPI:
-    """The planner app on a SQLite file. `load_samples` puts every valid `samples_dir/*.json` into the store."""
+    """The planner app on a store: an open PlanStore, a SQLite file path or a postgresql:// URL.
+
+    `load_samples` seeds every valid `samples_dir/*.json` into the store. Several workers sharing one database
+    seed once beforehand (`pairline seed`) and start with `load_samples=False`. A store opened here from a path
+    or URL is closed when the app shuts down.
+    """
     from pairline.server.routes import api, pages
 
-    app = FastAPI(title="Pairline", version=ENGINE_VERSION, docs_url=None, redoc_url=None, openapi_url=None)
-    app.state.store = PlanStore(Path(db_path))
+    settings = settings or Settings()
+    owned = not isinstance(db, PlanStore)
+    store = db if isinstance(db, PlanStore) else open_store(db)
+    pool = CheckPool(
+        settings.check_workers, settings.check_time_limit_s, settings.check_memory_limit_mb, settings.check_queue_limit
+    )
+
+    @asynccontextmanager
+    async def lifespan(app: FastAPI) -> AsyncIterator[None]:
+        # workers start in the background, so the first check need not wait for them and startup does not either
+        threading.Thread(target=pool.warm, name="pairline-warm", daemon=True).start()
+        yield
+        pool.close()
+        if owned:
+            store.close()
+
+    app = FastAPI(
+        title="Pairline",
+        version=ENGINE_VERSION,
+        docs_url=None,
+        redoc_url=None,
+        openapi_url="/openapi.json",
+        lifespan=lifespan,
+        redirect_slashes=False,  # its redirects are absolute URLs built from the Host header
+    )
+    app.state.settings = settings
+    app.state.store = store
     app.state.templates = make_templates()
+    app.state.pool = pool
+    cache, app.state.save_limiter = shared_state(store, settings)
+    app.state.checker = Checker(pool, cache, settings)
     if load_samples:
-        load_sample_buses(app.state.store, samples_dir)
+        seed_samples(store, samples_dir)
     app.mount("/static", StaticFiles(directory=STATIC_DIR), name="static")
     app.include_router(api.router)
     app.include_router(pages.router)
+    app.openapi = lambda: plan_openapi(app)  # type: ignore[method-assign]
 
     @app.exception_handler(StarletteHTTPException)
     async def http_error(request: Request, exc: StarletteHTTPException) -> Response:
         if exc.status_code == 404:
             return not_found(request)
+        headers = dict(exc.headers or {})
+        if exc.status_code == 405:
+            allowed = [m.strip() for m in headers.get("Allow", "").split(",") if m.strip()]
+            allowed += ["HEAD"] if "GET" in allowed and "HEAD" not in allowed else []
+            headers["Allow"] = ", ".join(allowed)
+            problem = Problem(
+                "",
+                "Method",
+                request.method,
+                {"choices": allowed},
+                f"{request.url.path} answers {', '.join(allowed)}, not {request.method}.",
+            )
+            return JSONResponse(error_envelope([problem], 405), status_code=405, headers=headers)
         detail = exc.detail if isinstance(exc.detail, str) else "Request refused."
-        return JSONResponse({"status": exc.status_code, "message": detail}, status_code=exc.status_code)
+        return JSONResponse(
+            {"status": exc.status_code, "message": detail}, status_code=exc.status_code, headers=headers
+        )
 
     @app.exception_handler(BusInputError)
     async def bus_input_error(request: Request, exc: BusInputError) -> Response:
         return input_error_response(exc)
 
-    app.add_middleware(BodyLimit, max_bytes=max_body_bytes)
+    @app.exception_handler(RequestRefused)
+    async def request_refused(request: Request, exc: RequestRefused) -> Response:
+        return refused_response(request, exc)
+
+    @app.exception_handler(PoolBusy)
+    async def pool_busy(request: Request, exc: PoolBusy) -> Response:
+        problem = Problem(
+            "",
+            "Server load",
+            None,
+            {"retry_after_s": round(exc.retry_after_s)},
+            f"Every check worker is busy; try again in {exc.retry_after_s:.0f} s.",
+        )
+        return refused_response(request, RequestRefused(503, problem, exc.retry_after_s))
+
+    app.add_middleware(BodyLimit, max_bytes=settings.max_body_bytes)
+    app.add_middleware(HeadAsGet)
+    app.add_middleware(ErrorGuard)
+    app.add_middleware(SecurityHeaders)
     return app

@@ -3,6 +3,7 @@
 from typing import Any
 
 from pairline.engine.plan import BusPlan
+from pairline.server.quantities import length_text
 
 # The -7..+12 V common-mode range leaves about ±7 V for ground offset once the driver's 2.5 V and noise are
 # counted (Intersil, "High-Speed RS-485 Transceiver and Applications").
@@ -49,7 +50,9 @@ def cautions_data(plan: BusPlan) -> list[dict[str, Any]]:
     largest = max(offsets, default=0.0)
     reasons = {
         "ground": f"largest ground offset in this plan: {largest:g} V" if largest > 0 else "",
-        "surge": f"trunk length {plan.trunk_length_m:g} m" if plan.trunk_length_m >= LONG_RUN_M else "",
+        "surge": f"trunk length {length_text(plan.trunk_length_m, plan.display_units)}"
+        if plan.trunk_length_m >= LONG_RUN_M
+        else "",
         "isolation": f"a node sits {largest:g} V from the driver's ground" if largest >= OFFSET_BUDGET_V else "",
         "codes": "always",
     }

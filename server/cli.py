@@ -1,8 +1,10 @@
-"""Command line: `pairline check PLAN.json [--json]` and `pairline serve [--host] [--port] [--db]`.
+"""Command line: `pairline check PLAN.json [--json]`, `pairline check --sample NAME`, `pairline samples`,
+`pairline advise PLAN.json [-o OUT.json]`, `pairline serve [--host] [--port] [--db]` and `pairline seed [--db]`.
 
-Exit status: 0 when no rule breaks, 1 when at least one rule breaks, 2 when the input cannot be checked
-(unreadable file, bad JSON, or a plan that fails validation; every problem is printed with its field, value
-and allowed range). Subcommands hang off one argparse parser, so further commands plug into build_parser().
+Exit status of check: 0 when no rule breaks, 1 when at least one rule breaks; of advise: 0 when the advised plan
+breaks no rule, 1 when some rule cannot be met with terminators and bias alone (each said why). Both exit 2 when
+the input cannot be checked (unreadable file, bad JSON, or a plan that fails validation; every problem is printed
+with its field, value and allowed range). Subcommands hang off one argparse parser (build_parser()).
 """
 
 import argparse
@@ -16,9 +18,11 @@ from typing import Any, TextIO
 
 from pairline.engine.check import PlanReport, check_plan, report_to_dict
 from pairline.engine.findings import Finding, Verdict, worst
-from pairline.engine.plan import BusInputError, Problem, load_plan
+from pairline.engine.plan import BusInputError, Problem, load_plan, plan_to_dict
 from pairline.engine.rules.power import rating_text
 from pairline.engine.units import length_text, si_format
+from pairline.server.json_input import JsonInputError, load_json
+from pairline.server.samples import UnknownSampleError, sample_file, sample_files, seed_samples
 
 EXIT_OK = 0
 EXIT_BREAKS = 1
@@ -87,22 +91,10 @@ def read_plan_document(path: str, stdin: TextIO | None = None) -> Any:
         )
     shown = "standard input" if path == "-" else path
     try:
-        return json.loads(text)
-    except json.JSONDecodeError as exc:
+        return load_json(text)
+    except JsonInputError as exc:
         raise PlanFileError(
-            [
-                Problem(
-                    "file",
-                    "Plan file",
-                    f"line {exc.lineno}, column {exc.colno}",
-                    {"type": "JSON object"},
-                    f"{shown} is not valid JSON: {exc.msg} at line {exc.lineno}, column {exc.colno}.",
-                )
-            ]
-        ) from None
-    except RecursionError:
-        raise PlanFileError(
-            [Problem("file", "Plan file", path, {"type": "JSON object"}, f"{shown} is nested too deeply.")]
+            [Problem("file", "Plan file", shown, {"type": "JSON object"}, f"{shown} cannot be read: {exc}.")]
         ) from None
 
 
@@ -194,58 +186,77 @@ def _finding_line(f: Finding, indent: str) -> list[str]:
     return lines
 
 
-def _terminators_changed(report: PlanReport) -> bool:
-    planned = {(t.position_m, t.kind, t.resistance_ohm, t.capacitance_f) for t in report.plan.terminations}
-    advised = {(t.position_m, t.kind, t.resistance_ohm, t.capacitance_f) for t in report.summary.terminators}
-    return planned != advised
-
-
 def _terminator_summary(report: PlanReport) -> list[str]:
     s = report.summary
     if not s.terminators:
-        return ["  Terminators: none needed (the line may stay unterminated)"]
-    planned = {(t.position_m, t.kind, t.resistance_ohm, t.capacitance_f) for t in report.plan.terminations}
+        return ["  Terminators: none (the line may stay unterminated)"]
     parts = []
     for t in s.terminators:
-        text = (
+        parts.append(
             f"{quantity_text(t.resistance_ohm, 'Ω')}"
             + (f" + {quantity_text(t.capacitance_f, 'F')}" if t.capacitance_f else "")
             + f" at {t.position_m:g} m ({rating_text(t.power_rating_w)})"
         )
-        same = (t.position_m, t.kind, t.resistance_ohm, t.capacitance_f) in planned
-        parts.append(text + ("" if same else ", changed from the plan"))
     return [f"  Terminators: {'; '.join(parts)}"]
 
 
 def _bias_summary(report: PlanReport) -> list[str]:
-    b, planned = report.summary.bias, report.plan.bias
+    b = report.summary.bias
     if b is None:
         return [f"  Failsafe bias: {report.summary.bias_note}"] if report.summary.bias_note else []
-    as_planned = planned is not None and (planned.position_m, planned.pull_up_ohm, planned.pull_down_ohm) == (
-        b.position_m,
-        b.pull_up_ohm,
-        b.pull_down_ohm,
-    )
     with_terms = "with the terminators above" if report.summary.terminators else "with no terminators"
-    line = (
+    return [
         f"  Failsafe bias: {quantity_text(b.pull_up_ohm, 'Ω')} pull-up / {quantity_text(b.pull_down_ohm, 'Ω')} "
         f"pull-down at {b.position_m:g} m from {b.supply_v:g} V ({rating_text(b.power_rating_w)} each); every "
-        f"receiver idles at >= {quantity_text(b.idle_v, 'V')} {with_terms}"
+        f"receiver idles at >= {quantity_text(b.idle_v, 'V')} ({quantity_text(b.idle_corner_v, 'V')} at the worst "
+        f"corner of the tolerances) {with_terms}."
+    ]
+
+
+def rate_text(report: PlanReport) -> str:
+    """The highest bit rate with the longest path the loss allows at any rate: both limits, never 'no rate'."""
+    s = report.summary
+    text = (
+        f"{quantity_text(s.max_bit_rate_bps, 'bit/s')} for the longest path, {s.path_m:.4g} m; the cable's loss "
+        f"allows at most {s.max_path_m:.4g} m at any rate"
     )
-    if as_planned:
-        return [line + " (the plan's own network)."]
-    if _terminators_changed(report):
-        why = (
-            "sized for the terminators above, so it can differ from the fix under bias.idle_level, which is "
-            "sized for the plan's terminators"
-        )
-    else:
-        why = "the largest standard value that keeps every receiver at >= 250 mV"
-    return [line + f" (advised: {why})."]
+    return text + (f" ({s.rate_note})" if s.rate_note else "")
+
+
+def capacity_line(report: PlanReport) -> str:
+    return f"How many more receivers (on the advised plan): {report.capacity.text}"
+
+
+def change_lines(report: PlanReport, indent: str = "  ") -> list[str]:
+    """The advice's change list: what changes, from what to what, why, and what it re-checks."""
+    advice = report.advice
+    lines = []
+    for i, c in enumerate(advice.changes, start=1):
+        rules = f"; re-checked: {', '.join(c.rule_ids)}" if c.rule_ids else ""
+        lines.append(f"{indent}{i}. {c.text[:1].upper() + c.text[1:]}.")
+        lines.append(f"{indent}   from {c.before_text} to {c.after_text}: {c.why}{rules}")
+    if not advice.changes:
+        lines.append(f"{indent}No change: the plan's terminators and bias are already what Pairline advises.")
+    if advice.unmet:
+        lines.append(f"{indent}Cannot be met with terminators and bias alone:")
+        for u in advice.unmet:
+            where = f" ({', '.join(u.nodes)})" if u.nodes else ""
+            lines.append(f"{indent}  - {u.rule_id}{where}: {u.text}")
+    return lines
+
+
+def advice_head(report: PlanReport) -> str:
+    advice = report.advice
+    counts = {v: sum(1 for f in advice.findings if f.verdict is v) for v in Verdict}
+    return (
+        f"Advised plan: {advice.verdict.value.upper()} after {len(advice.changes)} change(s) "
+        f"({counts[Verdict.HOLDS]} holds, {counts[Verdict.TIGHT]} tight, {counts[Verdict.BREAKS]} breaks)"
+    )
 
 
 def report_text(report: PlanReport, path: str = "") -> str:
-    """The readable report: the plan in one line, verdict per rule and per node, fixes, the summary."""
+    """The readable report: the plan in one line, the verdict with how many more receivers fit, verdict per rule
+    and per node, fixes, the advice's change list, the summary."""
     plan, bus, s = report.plan, report.bus, report.summary
     counts = {v: sum(1 for f in report.findings if f.verdict is v) for v in Verdict}
     out = [
@@ -255,6 +266,8 @@ def report_text(report: PlanReport, path: str = "") -> str:
         "",
         f"Overall: {report.verdict.value.upper()}  ({counts[Verdict.HOLDS]} holds, {counts[Verdict.TIGHT]} tight, "
         f"{counts[Verdict.BREAKS]} breaks)",
+        capacity_line(report),
+        advice_head(report),
         "",
         "By rule",
     ]
@@ -290,13 +303,12 @@ def report_text(report: PlanReport, path: str = "") -> str:
     if holding:
         shown = ", ".join(holding) if len(holding) <= 12 else ", ".join(holding[:10]) + f", ... {holding[-1]}"
         out.append(f"  {len(holding)} node(s) hold every rule: {shown}")
-    out += ["", "Summary (the bus as Pairline advises it; where the plan already holds, its own parts are kept)"]
+    out += ["", "Advice (the plan as Pairline would build it, checked by the same rules; `pairline advise` writes it)"]
+    out += change_lines(report)
+    out += ["", "Summary (the advised plan)"]
     out += _terminator_summary(report)
     out += _bias_summary(report)
-    if s.max_bit_rate_bps is None:
-        out.append("  Highest bit rate the rules allow: no rate: the trunk is too long for these rules")
-    else:
-        out.append(f"  Highest bit rate the rules allow: {quantity_text(s.max_bit_rate_bps, 'bit/s')}")
+    out.append(f"  Highest bit rate the rules allow: {rate_text(report)}")
     if plan.standard == "rs422":
         spare = int(s.spare_unit_loads)
         out.append(
@@ -305,10 +317,7 @@ def report_text(report: PlanReport, path: str = "") -> str:
             else f"  Spare receivers: none; {-spare} receiver(s) over the 10 one RS-422 driver feeds"
         )
     else:
-        further = ", ".join(f"{n} of {label}" for label, n in s.further_nodes.items())
-        out.append(
-            f"  Spare unit loads in the plan: {s.spare_unit_loads:.3g}" + (f"; room for {further}" if further else "")
-        )
+        out.append(f"  Spare unit loads: {max(s.spare_unit_loads, 0.0):.3g}; {report.capacity.text}")
     if s.bom:
         out.append("  Bill of materials:")
         for item in s.bom:
@@ -332,35 +341,120 @@ def lengths_in_feet(text: str) -> str:
 
 def run_check(args: argparse.Namespace, out: TextIO, err: TextIO) -> int:
     try:
-        document = read_plan_document(args.plan)
+        path = str(sample_file(args.sample)) if args.sample else args.plan
+        document = read_plan_document(path)
         report = check_plan(load_plan(document))
+    except UnknownSampleError as exc:
+        problem = Problem("sample", "Sample bus", exc.name, {"choices": exc.allowed}, str(exc))
+        if args.json:
+            print(json.dumps(problems_envelope([problem]), indent=2, ensure_ascii=False), file=out)
+        print(problems_text([problem]), file=err)
+        return EXIT_INVALID
     except (PlanFileError, BusInputError) as exc:
         if args.json:
             print(json.dumps(problems_envelope(exc.problems), indent=2, ensure_ascii=False, default=str), file=out)
         print(problems_text(exc.problems), file=err)
         return EXIT_INVALID
+    except Exception as exc:  # whatever else a file can do to the checker, it is still input that cannot be checked
+        print(
+            f"pairline check: {args.sample or args.plan} cannot be checked: {type(exc).__name__}: {exc}".splitlines()[
+                0
+            ],
+            file=err,
+        )
+        return EXIT_INVALID
     if args.json:
         print(json.dumps(report_to_dict(report), indent=2, ensure_ascii=False, allow_nan=False), file=out)
     else:
-        print(report_text(report, args.plan), file=out)
+        print(report_text(report, args.sample or args.plan), file=out)
     return EXIT_BREAKS if report.verdict is Verdict.BREAKS else EXIT_OK
+
+
+def run_samples(args: argparse.Namespace, out: TextIO, err: TextIO) -> int:
+    """List the sample buses shipped with Pairline: name and title, one a line."""
+    files = sample_files()
+    width = max((len(path.stem) for path in files), default=0)
+    for path in files:
+        title = json.loads(path.read_text(encoding="utf-8")).get("title", "")
+        print(f"{path.stem:<{width}}  {title}", file=out)
+    print(f"\nCheck one with: pairline check --sample {files[0].stem if files else 'NAME'}", file=out)
+    return EXIT_OK
+
+
+def advise_text(report: PlanReport, path: str = "") -> str:
+    """What `pairline advise` prints: the verdicts before and after, how many more receivers, the change list."""
+    lines = [
+        f"Pairline advice: {report.plan.title or '(untitled plan)'}" + (f"  [{path}]" if path else ""),
+        f"  The plan as laid out: {report.verdict.value.upper()}",
+        f"  {advice_head(report)}",
+        f"  {capacity_line(report)}",
+        "",
+        "Changes",
+        *change_lines(report),
+    ]
+    text = "\n".join(lines)
+    return lengths_in_feet(text) if report.plan.display_units == "imperial" else text
+
+
+def run_advise(args: argparse.Namespace, out: TextIO, err: TextIO) -> int:
+    """Write the advised plan (to -o, else standard output) and print the change list (to standard output when
+    the plan goes to a file, else to standard error, so the plan can be piped on)."""
+    try:
+        report = check_plan(load_plan(read_plan_document(args.plan)))
+    except (PlanFileError, BusInputError) as exc:
+        print(problems_text(exc.problems), file=err)
+        return EXIT_INVALID
+    document = json.dumps(plan_to_dict(report.advice.plan), indent=2, ensure_ascii=False) + "\n"
+    if args.output:
+        try:
+            Path(args.output).write_text(document, encoding="utf-8")
+        except OSError as exc:
+            print(f"pairline advise: cannot write {args.output}: {exc.strerror or type(exc).__name__}.", file=err)
+            return EXIT_INVALID
+        print(advise_text(report, args.plan), file=out)
+        print(f"\nAdvised plan written to {args.output}.", file=out)
+    else:
+        print(document, end="", file=out)
+        print(advise_text(report, args.plan), file=err)
+    return EXIT_BREAKS if report.advice.verdict is Verdict.BREAKS else EXIT_OK
 
 
 def run_serve(args: argparse.Namespace, out: TextIO, err: TextIO) -> int:
     """Serve the web planner until interrupted; options override PAIRLINE_HOST, PAIRLINE_PORT, PAIRLINE_DB."""
     from pairline.server.serve import run, settings_from_env
+    from pairline.server.store import StoreError, target_for_people
 
     try:
         settings = settings_from_env(args.host, args.port, args.db)
-    except ValueError as exc:
+        where = target_for_people(settings.db)
+        print(f"Pairline planner on http://{settings.host}:{settings.port}/ (plans in {where})", file=out)
+        run(settings)
+    except (ValueError, StoreError) as exc:
         print(f"pairline serve: {exc}", file=err)
         return EXIT_INVALID
-    print(f"Pairline planner on http://{settings.host}:{settings.port}/ (plans in {settings.db_path})", file=out)
-    run(settings.host, settings.port, settings.db_path)
+    return EXIT_OK
+
+
+def run_seed(args: argparse.Namespace, out: TextIO, err: TextIO) -> int:
+    """Bring the database's schema up to date and load the sample buses: once per database, before the workers."""
+    from pairline.server.serve import db_from_env
+    from pairline.server.store import StoreError, open_store
+
+    try:
+        store = open_store(db_from_env(args.db))
+    except (ValueError, StoreError) as exc:
+        print(f"pairline seed: {exc}", file=err)
+        return EXIT_INVALID
+    try:
+        count = seed_samples(store)
+        print(f"{count} sample buses in {store.target} (schema version {store.schema_version()})", file=out)
+    finally:
+        store.close()
     return EXIT_OK
 
 
 Command = Callable[[argparse.Namespace, TextIO, TextIO], int]
+DB_HELP = "SQLite file or postgresql://user@host/database URL for saved plans (default ./pairline.db)"
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -371,9 +465,24 @@ def build_parser() -> argparse.ArgumentParser:
         help="check a bus plan file and print every rule's verdict",
         description="Check a bus plan. Exit status 0: nothing breaks; 1: a rule breaks; 2: invalid input.",
     )
-    check.add_argument("plan", metavar="PLAN.json", help="the bus plan file ('-' reads standard input)")
+    source = check.add_mutually_exclusive_group(required=True)
+    source.add_argument("plan", nargs="?", metavar="PLAN.json", help="the bus plan file ('-' reads standard input)")
+    source.add_argument("--sample", metavar="NAME", help="a sample bus shipped with Pairline (see: pairline samples)")
     check.add_argument("--json", action="store_true", help="print the full report as JSON")
     check.set_defaults(run=run_check)
+    samples = commands.add_parser("samples", help="list the sample buses shipped with Pairline")
+    samples.set_defaults(run=run_samples)
+    advise = commands.add_parser(
+        "advise",
+        help="write the plan as Pairline advises it and list the changes",
+        description="Build the advised plan (terminators and bias chosen together, checked by every rule) and list "
+        "what changes, from what to what, and why. Exit status 0: the advised plan breaks no rule; 1: some rule "
+        "cannot be met with terminators and bias alone (said why); 2: invalid input. Without -o the advised plan "
+        "goes to standard output and the change list to standard error.",
+    )
+    advise.add_argument("plan", metavar="PLAN.json", help="the bus plan file ('-' reads standard input)")
+    advise.add_argument("-o", "--output", metavar="OUT.json", help="write the advised plan to this file")
+    advise.set_defaults(run=run_advise)
     serve = commands.add_parser(
         "serve",
         help="run the web planner (loopback only unless --host says otherwise)",
@@ -382,8 +491,16 @@ def build_parser() -> argparse.ArgumentParser:
     )
     serve.add_argument("--host", default=None, help="interface to listen on (default 127.0.0.1)")
     serve.add_argument("--port", type=int, default=None, help="TCP port (default 8485)")
-    serve.add_argument("--db", default=None, metavar="PATH", help="SQLite file for saved plans (default ./pairline.db)")
+    serve.add_argument("--db", default=None, metavar="PATH|URL", help=DB_HELP)
     serve.set_defaults(run=run_serve)
+    seed = commands.add_parser(
+        "seed",
+        help="create or upgrade the database and load the sample buses (once, before several workers start)",
+        description="Apply the database's schema migrations and load the sample buses. --db falls back to "
+        "PAIRLINE_DB, then to ./pairline.db.",
+    )
+    seed.add_argument("--db", default=None, metavar="PATH|URL", help=DB_HELP)
+    seed.set_defaults(run=run_seed)
     return parser
 
 

@@ -10,17 +10,20 @@ removed rows are dropped and the rest renumbered before validation, and the form
 numbering, so every message lands beside the right input.
 """
 
+import json
 import re
 from collections.abc import Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 from pairline.engine.library import CABLES, TRANSCEIVERS
-from pairline.engine.plan import PLAN_FORMAT, PLAN_FORMAT_VERSION, Problem
-from pairline.server.messages import field_allowed, not_a_number_message
+from pairline.engine.plan import PLAN_FORMAT, PLAN_FORMAT_VERSION, BusInputError, BusPlan, Problem, load_plan
+from pairline.server.json_input import JsonInputError, load_json
+from pairline.server.messages import field_allowed, not_a_number_message, range_text
 from pairline.server.quantities import Bare, QuantityError, UnitSystem, bare_unit, format_quantity, parse_quantity
 
 MAX_FORM_ROWS = 512
+MAX_FORM_FIELDS = 8000  # 512 node rows of 8 inputs, plus the rest
 
 
 @dataclass(frozen=True, slots=True)
@@ -32,6 +35,7 @@ class FieldSpec:
     choices: tuple[tuple[str, str], ...] = ()  # (value, label) for a select
     hint: str = ""
     placeholder: str = ""  # what a blank input means (the plan's default)
+    required: bool = False  # a cleared input is an error, not a silent default
 
     def unit_label(self, units: UnitSystem) -> str:
         return bare_unit(self.kind, units, self.bare).label if self.kind else ""
@@ -45,7 +49,7 @@ TOP = (
     FieldSpec("title", "Plan title"),
     FieldSpec("standard", "Standard", choices=(("rs485", "RS-485 (multipoint)"), ("rs422", "RS-422 (one driver)"))),
     FieldSpec("bit_rate_bps", "Bit rate", "rate", hint="e.g. 115.2k, 1M"),
-    FieldSpec("supply_v", "Transceiver supply", "voltage"),
+    FieldSpec("supply_v", "Transceiver supply", "voltage", required=True),
     FieldSpec("trunk_length_m", "Trunk length", "length"),
     FieldSpec("test_pattern", "Test bit pattern", hint="0s and 1s; blank for a built-in pseudo-random run"),
     FieldSpec("notes", "Notes"),
@@ -60,9 +64,9 @@ CABLE = (
     FieldSpec("dielectric_loss_tangent", "Loss tangent", "plain"),
 )
 DRIVER = (
-    FieldSpec("name", "Driver name"),
-    FieldSpec("position_m", "Position on trunk", "length"),
-    FieldSpec("stub_length_m", "Stub length", "length"),
+    FieldSpec("name", "Driver name", required=True),
+    FieldSpec("position_m", "Position on trunk", "length", required=True),
+    FieldSpec("stub_length_m", "Stub length", "length", placeholder="0"),
     FieldSpec("transceiver", "Driver class", choices=_choices(TRANSCEIVERS, "Custom driver (enter all values)")),
     FieldSpec("rise_time_s", "Rise time (10–90 %)", "time", hint="e.g. 100 ns, 1.2 µs"),
     FieldSpec("open_circuit_v", "Open-circuit output", "voltage"),
@@ -161,6 +165,44 @@ def form_from_plan(plan: Mapping[str, Any], units: UnitSystem | None = None, par
     return FormState(values, counts["nodes"], counts["terminations"], system, parent_id)
 
 
+STARTER_RATE_BPS = 115_200.0
+
+
+def driver_class_for_rate(bit_rate_bps: float) -> str:
+    """The library driver class built for the lowest rate at or above `bit_rate_bps`: the slowest edge that
+    still suits the rate, since slower edges reflect less on stubs (common practice); the fastest class when
+    none is built for the rate."""
+    fitting = [t for t in TRANSCEIVERS.values() if t.max_bit_rate_bps >= bit_rate_bps]
+    chosen = min(fitting, key=lambda t: t.max_bit_rate_bps, default=None)
+    return chosen.key if chosen else max(TRANSCEIVERS.values(), key=lambda t: t.max_bit_rate_bps).key
+
+
+def starter_plan(units: UnitSystem) -> dict[str, Any]:
+    """The new plan's document: 115.2 kbit/s, a driver class that suits it, 100 m (or 300 ft) terminated at
+    both ends, no nodes yet."""
+    trunk_m = 300 * 0.3048 if units == "imperial" else 100.0  # a round 300 ft rather than 328.08 ft
+    return {
+        "title": "",
+        "standard": "rs485",
+        "display_units": units,
+        "bit_rate_bps": STARTER_RATE_BPS,
+        "supply_v": 5.0,
+        "trunk_length_m": trunk_m,
+        "cable": {"class_key": "pair-24awg-120"},
+        "driver": {
+            "name": "controller",
+            "position_m": 0.0,
+            "stub_length_m": 0.0,
+            "transceiver": driver_class_for_rate(STARTER_RATE_BPS),
+        },
+        "nodes": [],
+        "terminations": [
+            {"position_m": 0.0, "kind": "parallel", "resistance_ohm": 120.0},
+            {"position_m": trunk_m, "kind": "parallel", "resistance_ohm": 120.0},
+        ],
+    }
+
+
 _ROW_NAME = re.compile(r"^(nodes|terminations)\.(\d{1,6})\.(\w+)$")
 
 
@@ -182,6 +224,8 @@ def parse_form(form: Mapping[str, str]) -> ParsedForm:
         if text == "":
             if spec.key in ("class_key", "transceiver"):
                 target[spec.key] = None
+            elif spec.required:
+                problems.append(_empty_problem(path, spec, shown))
             return
         if spec.kind is None:
             target[spec.key] = text
@@ -221,11 +265,13 @@ def parse_form(form: Mapping[str, str]) -> ParsedForm:
             if m and m.group(1) == group:
                 raw_rows.setdefault(int(m.group(2)), {})[m.group(3)] = str(text)
         rows = []
+        blank = 0  # blank rows come back after the filled ones, so their numbering matches the messages
         for index in sorted(raw_rows)[:MAX_FORM_ROWS]:
             raw = raw_rows[index]
             if raw.get("remove"):
                 continue
             if all(not raw.get(s.key, "").strip() for s in specs if s.key not in _ROW_CHOICE_KEYS):
+                blank += 1
                 continue
             rows.append(raw)
         items = []
@@ -235,13 +281,26 @@ def parse_form(form: Mapping[str, str]) -> ParsedForm:
                 read(f"{group}.{i}.{spec.key}", spec, item, raw.get(spec.key, ""), raw.get("name", "").strip())
             items.append(item)
         doc[group] = items
-        counts[group] = len(items)
+        counts[group] = min(len(items) + blank, MAX_FORM_ROWS)
 
     if doc.get("test_pattern") == "":
         doc.pop("test_pattern")
     parent = form.get("parent_id") or None
     state = FormState(values, counts["nodes"], counts["terminations"], shown, parent, list(problems), chosen)
     return ParsedForm(doc, state, problems, action)
+
+
+def _empty_problem(path: str, spec: FieldSpec, units: UnitSystem) -> Problem:
+    """A required input left blank: "Transceiver supply is empty; write a value in V, allowed 1.5 to 15 V."."""
+    label = _label_for(path, spec)
+    allowed = field_allowed(path)
+    if spec.kind:
+        allowed |= {"input_unit": spec.unit_label(units)}
+    unit = spec.unit_label(units) if spec.kind else ""
+    write = f"write a value in {unit}" if unit else "write a value"
+    shown = range_text(allowed, units, spec)
+    message = f"{label} is empty; {write}" + (f", allowed {shown}" if shown else "") + "."
+    return Problem(path, label, "", allowed, message)
 
 
 def _label_for(path: str, spec: FieldSpec, row_name: str = "") -> str:
@@ -269,3 +328,41 @@ def with_units(state: FormState, doc: Mapping[str, Any], units: UnitSystem) -> F
             fresh.values[path] = text
     fresh.n_nodes, fresh.n_terminations = state.n_nodes, state.n_terminations
     return fresh
+
+
+def draft_fields(state: FormState) -> str:
+    """The typed form of a checked draft as JSON, for its "Edit this draft" button: every input's text."""
+    fields = dict(state.values) | {"shown_units": state.units, "display_units": state.chosen_units or state.units}
+    if state.parent_id:
+        fields["parent_id"] = state.parent_id
+    return json.dumps(fields, ensure_ascii=False)
+
+
+def fields_from_draft(text: str) -> dict[str, str]:
+    """Form fields back from `draft_fields`; text that is not such a JSON object gives an empty form."""
+    try:
+        doc = load_json(text)
+    except JsonInputError:
+        return {}
+    if not isinstance(doc, dict):
+        return {}
+    return {str(k): v for k, v in list(doc.items())[:8000] if isinstance(v, str)}
+
+
+def plan_from_body(body: Any) -> BusPlan:
+    """A plan from a JSON body: a plan document, or {"form": {...}} holding the editor's typed fields (what the
+    editor's live verdict sends). Typed text is read as the form reads it; problems name the inputs."""
+    if not (isinstance(body, dict) and set(body) == {"form"} and isinstance(body["form"], dict)):
+        return load_plan(body)
+    from pairline.server.messages import problem_message
+
+    fields = {str(k): str(v) for k, v in list(body["form"].items())[:MAX_FORM_FIELDS]}
+    parsed = parse_form(fields)
+    try:
+        plan = load_plan(parsed.doc)
+    except BusInputError as exc:
+        problems = merge_problems(parsed.problems, exc.problems)
+        raise BusInputError([replace(p, message=problem_message(p, parsed.state.units)) for p in problems]) from exc
+    if parsed.problems:
+        raise BusInputError(parsed.problems)
+    return plan

@@ -118,6 +118,11 @@ def problem_message(problem: Problem, units: UnitSystem) -> str:
     "Trunk length is 20 000 ft (6100 m); allowed more than 0 ft, up to 13 100 ft (4000 m)." Other messages
     (missing values, names, choices) pass unchanged."""
     value, allowed = problem.value, problem.allowed
+    if problem.field == "nodes" and value == 0:
+        return (
+            f"The bus has no nodes yet: fill in at least one row of the node table (a name and a position); "
+            f"allowed {allowed.get('min_length', 1)} to {allowed.get('max_length', 512)} nodes."
+        )
     numeric = isinstance(value, int | float) and not isinstance(value, bool) and math.isfinite(value)
     if not numeric or "min" not in allowed or "max" not in allowed:
         return problem.message
@@ -127,6 +132,12 @@ def problem_message(problem: Problem, units: UnitSystem) -> str:
     unit = str(allowed.get("unit", ""))
     shown = value_text(float(value), unit, units, spec)
     allowed_words = range_text(allowed, units, spec)
+    if "nonzero_min" in allowed:
+        floor = value_text(float(allowed["nonzero_min"]), unit, units, spec)
+        return (
+            f"{problem.label} is {value:g} {unit}, too small to be physical; allowed 0 or at least {floor} in size, "
+            f"within {allowed_words}."
+        )
     if _PAST_END in problem.message:
         end = value_text(float(allowed["max"]), unit, units, spec)
         return f"{problem.label} is at {shown}, {_PAST_END} at {end}; allowed {allowed_words}."

@@ -9,15 +9,15 @@ from dataclasses import dataclass
 import numpy as np
 from pairline.server.quantities import UnitSystem, length_in, length_unit, number_text
 
-PLOT_W = 640.0
-PLOT_H = 240.0
+PLOT_W = 520.0  # narrow enough that text stays legible when a phone shows the plot 340 px wide
+PLOT_H = 260.0
 MARGIN_L = 64.0
 MARGIN_R = 16.0
 MARGIN_T = 14.0
 MARGIN_B = 40.0
 MAX_BITS_SHOWN = 24  # a longer pattern is plotted over its first bits; margins still cover every bit
 MAX_POINTS = 1200  # a polyline longer than this is decimated to min/max pairs per pixel column
-Y_LABEL = "V(A−B) (V)"  # both voltage plots: the differential voltage, in volts
+Y_LABEL = "differential voltage A−B (V)"  # both voltage plots
 RECEIVER_THRESHOLD_V = 0.2  # TIA-485-A / TIA-422-B receiver input sensitivity, ±200 mV
 
 
@@ -250,8 +250,8 @@ def curve_plot(
     )
 
 
-LABEL_CHAR_PX = 7.4  # bold 12 px label text, average character width
-LABEL_HEIGHT_PX = 13.0
+LABEL_CHAR_PX = 8.7  # bold label text at its largest (14 px on a phone), average character width
+LABEL_HEIGHT_PX = 15.0
 
 
 def _densify(line: np.ndarray, step_px: float = 4.0) -> np.ndarray:

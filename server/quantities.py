@@ -116,7 +116,7 @@ def parse_quantity(text: str, kind: str, units: UnitSystem, bare: Bare | None = 
     """SI value of typed text. Raises QuantityError naming the accepted units."""
     spec = KINDS[kind]
     unit_of_bare = bare_unit(kind, units, bare)
-    m = _NUMBER.match(text.replace(",", "").replace("\u2009", "").replace("\u00a0", "").replace("\u202f", ""))
+    m = _NUMBER.match(_decimal_point(text))
     if not m:
         raise QuantityError(f"'{text}' is not a number")
     number = float(m.group(1))
@@ -142,6 +142,47 @@ def parse_quantity(text: str, kind: str, units: UnitSystem, bare: Bare | None = 
             f"the unit '{token}' is not understood here (units it takes: {shown})",
         )
     return _clean(number * factor)
+
+
+_SPACES = ("\u2009", "\u00a0", "\u202f")  # thin, no-break and narrow no-break spaces between digit groups
+_COMMA_NUMBER = re.compile(r"(\d*),(\d+)")
+
+
+def _decimal_point(text: str) -> str:
+    """Typed text with a decimal comma read as a decimal point: "12,5" -> "12.5", "0,125" -> "0.125".
+
+    A comma is never taken silently as a thousands separator. Where it could be either ("1,500": 1.5 or
+    1500), where there are several ("1,234,567"), or beside a point ("1,500.5"), QuantityError names the
+    readings, so the person says which they meant."""
+    for space in _SPACES:
+        text = text.replace(space, "")
+    if "," not in text:
+        return text
+    commas = text.count(",")
+    number = re.match(r"\s*[-+]?[\d.,]*", text)
+    digits = number.group(0).strip().lstrip("+-") if number else ""
+    as_thousands = digits.replace(",", "")
+    if commas > 1 or "." in digits:
+        raise QuantityError(
+            f"'{text}' mixes separators",
+            f"commas are not read as thousands separators; write {as_thousands} (or use a point for decimals)",
+        )
+    m = _COMMA_NUMBER.search(digits)
+    if m is None:
+        raise QuantityError(f"'{text}' is not a number")
+    whole, fraction = m.group(1), m.group(2)
+    as_decimal = f"{whole or '0'}.{fraction}"
+    if len(fraction) == 3 and whole and not whole.startswith("0") and len(whole) <= 3:
+        raise QuantityError(
+            f"'{text}' is ambiguous",
+            f"it could be {_plain(as_decimal)} (decimal comma) or {as_thousands} (thousands comma); "
+            f"write {_plain(as_decimal)} or {as_thousands}",
+        )
+    return text.replace(",", ".", 1)
+
+
+def _plain(number: str) -> str:
+    return number.rstrip("0").rstrip(".") if "." in number else number
 
 
 def _clean(value: float) -> float:
@@ -226,7 +267,7 @@ def number_text(value: float, digits: int = 3) -> str:
     if value == 0.0 or not math.isfinite(value):
         return f"{value:g}"
     if abs(value) >= 10.0 ** (digits - 1):
-        rounded = round(value, digits - 1 - math.floor(math.log10(abs(value))))
+        rounded = float(f"{value:.{digits}g}")  # round() overflows near the largest float
         text = f"{rounded:,.0f}" if abs(rounded) >= GROUP_FROM else f"{rounded:.0f}"
         return text.replace(",", "\u202f")  # narrow no-break space
     text = f"{value:.{digits}g}"

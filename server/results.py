@@ -1,8 +1,8 @@
 """The one place the server calls the engine for results: rule report, receiver metrics, waveforms, curve.
 
-One edge response of the primary driver is solved per view and shared: the metrics of every receiver and the
-pattern waveforms of the one or two receivers the page draws both come from it. Everything returned is plain
-data for `server.views`; nothing here knows about HTTP or templates.
+check_plan solves the bus once and returns what it simulated (the primary driver's edge responses, its bit
+pattern and every receiver's metrics); the page draws the one or two receivers it shows from those, without
+solving again. Everything returned is plain data for `server.views`; nothing here knows about HTTP or templates.
 """
 
 from dataclasses import dataclass
@@ -11,7 +11,7 @@ import numpy as np
 from pairline.engine.bus import Bus
 from pairline.engine.check import PlanReport, check_plan, report_to_dict
 from pairline.engine.findings import Finding, Verdict
-from pairline.engine.metrics import ReceiverMetrics, receiver_metrics
+from pairline.engine.metrics import ReceiverMetrics
 from pairline.engine.plan import BusPlan
 from pairline.engine.rules.length_rate import (
     LENGTH_RATE_PRODUCT_M_BPS,
@@ -20,9 +20,17 @@ from pairline.engine.rules.length_rate import (
     loss_limit_length_m,
 )
 from pairline.engine.sweep import LengthRateCurve, length_rate_curve
-from pairline.engine.waveform import DEFAULT_PATTERN_BITS, Waveforms, default_pattern, simulate_pattern, step_responses
+from pairline.engine.waveform import Waveforms, simulate_pattern
 
-__all__ = ["CheckedPlan", "PlanReport", "check_and_simulate", "check_only", "report_to_dict", "worst_receiver"]
+__all__ = [
+    "CheckedPlan",
+    "PlanReport",
+    "check_and_simulate",
+    "check_only",
+    "quick_check",
+    "report_to_dict",
+    "worst_receiver",
+]
 
 
 @dataclass(frozen=True, slots=True)
@@ -37,8 +45,13 @@ class CheckedPlan:
 
 
 def check_only(plan: BusPlan) -> PlanReport:
-    """The rule report alone (for the bill of materials), without simulating."""
+    """The report alone (for the bill of materials and the advised plan), without drawing waveforms or the curve."""
     return check_plan(plan)
+
+
+def quick_check(plan: BusPlan) -> PlanReport:
+    """The report for a verdict while typing: the advised plan is not simulated again (engine.check.check_plan)."""
+    return check_plan(plan, simulate_advice=False)
 
 
 SIGNAL_RULE = "signal.integrity"  # the finding that judges each receiver's simulated signal
@@ -59,24 +72,17 @@ def worst_receiver(
 
 
 def check_and_simulate(plan: BusPlan, chosen_receiver: str | None = None) -> CheckedPlan:
-    """Run every rule, simulate the plan's bit pattern from the primary driver, and sweep length against rate."""
+    """Run every rule (which simulates the plan once), draw the shown receivers from that simulation, and sweep
+    length against rate."""
     report = check_plan(plan)
     bus: Bus = report.bus
-    bit_time_s = 1.0 / plan.bit_rate_bps
-    drivers = (plan.driver.name,)
-    # The same pattern the engine picks by default (so these figures match the signal findings).
-    if plan.test_pattern:
-        bits = plan.test_pattern
-        step = step_responses(bus, drivers, max_time_s=len(bits) * bit_time_s)
-    else:
-        step = step_responses(bus, drivers, max_time_s=DEFAULT_PATTERN_BITS * bit_time_s)
-        bits = default_pattern(step, bit_time_s)
-    metrics = receiver_metrics(bus, pattern=bits, step=step)
+    sim = report.simulation
+    metrics = sim.metrics
     worst = worst_receiver(metrics, report.findings)
     shown = [] if worst is None else [worst.receiver]
     if chosen_receiver and chosen_receiver not in shown and any(m.receiver == chosen_receiver for m in metrics):
         shown.append(chosen_receiver)
-    waveforms = simulate_pattern(bus, bits, receiver_names=tuple(shown), step=step) if shown else None
+    waveforms = simulate_pattern(bus, sim.bits, receiver_names=tuple(shown), step=sim.step) if shown else None
     rule_rates_bps, rule_lengths_m = length_rate_limit(bus)
     return CheckedPlan(
         report=report,

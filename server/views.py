@@ -4,8 +4,8 @@
 lists). SVG coordinates come from `server.diagram` and `server.plots`; this module only assembles them.
 """
 
+import json
 import math
-import re
 from collections.abc import Mapping
 from dataclasses import asdict, fields, is_dataclass
 from enum import Enum
@@ -16,13 +16,21 @@ from pairline.engine import ENGINE_VERSION
 from pairline.engine.findings import Verdict, worst
 from pairline.engine.library import CABLES, TRANSCEIVERS
 from pairline.engine.plan import BusPlan, Problem, plan_to_dict
+from pairline.engine.rules.power import rating_text
 from pairline.engine.units import si_format
 from pairline.server.cautions import cautions_data, danger_data
 from pairline.server.diagram import bus_drawing, node_anchor
+from pairline.server.findings_view import (
+    capacity_data,
+    deciding_rules,
+    finding_data,
+    group_problems,
+    holding_rules,
+)
 from pairline.server.forms import BIAS, CABLE, DRIVER, NODE, TERMINATION, TOP, FormState
-from pairline.server.messages import problem_message
+from pairline.server.messages import problem_message, value_text
 from pairline.server.plots import curve_plot, eye_plot, waveform_plot
-from pairline.server.quantities import UnitSystem, format_quantity, length_text, length_unit, number_text
+from pairline.server.quantities import UnitSystem, format_quantity, length_unit
 from pairline.server.results import (
     CURVE_CRITERIA,
     RULE_CRITERION,
@@ -33,6 +41,15 @@ from pairline.server.results import (
     worst_receiver,
 )
 from pairline.server.store import SampleEntry, SavedPlan
+from pairline.server.wording import (
+    VERDICT_HEADLINE,
+    VERDICT_TEXT,
+    counts_text,
+    date_text,
+    in_plan_units,
+    lengths_in_text,
+    quantity_text,
+)
 
 _SEVERITY = {"breaks": 0, "tight": 1, "holds": 2}
 
@@ -58,37 +75,12 @@ def json_safe(value: Any) -> Any:
     return value
 
 
-def quantity_text(value: float | None, unit: str, units: UnitSystem) -> str:
-    """A result value for reading: lengths in the plan's display unit, others with an SI prefix."""
-    if value is None:
-        return "—"
-    if not math.isfinite(value):
-        return "unlimited" if value > 0 else "—"
-    if unit == "m":
-        return length_text(value, units)
-    if unit in ("s", "F", "Hz", "Ω", "bit/s", "W", "A", "V") and value != 0:
-        return si_format(value, unit)
-    return f"{number_text(value)} {unit}".strip()
-
-
-# "<number> m" as a length: not inside a word or formula ("10^8 m·bit/s", "Ω/m" and "mV" stay as they are).
-_METRES_IN_TEXT = re.compile(r"(?<![\w.^/])(\d+(?:\.\d+)?(?:[eE][-+]?\d+)?) m(?![\w·/^])")
-
-
-def lengths_in_text(text: str, units: UnitSystem, keep_metres: bool = False) -> str:
-    """An engine sentence with every "<number> m" restated in the display unit and the house rounding;
-    with `keep_metres`, feet are followed by the engine's metres in brackets."""
-
-    def restate(m: re.Match[str]) -> str:
-        shown = length_text(float(m.group(1)), units)
-        return f"{shown} ({m.group(0)})" if keep_metres and units == "imperial" else shown
-
-    return _METRES_IN_TEXT.sub(restate, text)
-
-
 def bom_rows(bom: Any, units: UnitSystem) -> list[dict[str, Any]]:
     """Bill-of-materials rows for the page and the CSV, positions in the plan's display unit."""
-    return [asdict(item) | {"note": lengths_in_text(item.note, units)} for item in bom]
+    return [
+        asdict(item) | {"value": lengths_in_text(item.value, units), "note": lengths_in_text(item.note, units)}
+        for item in bom
+    ]
 
 
 def _field_meta(units: UnitSystem) -> dict[str, dict[str, dict[str, Any]]]:
@@ -125,18 +117,30 @@ def _class_defaults(units: UnitSystem) -> dict[str, dict[str, dict[str, str]]]:
     }
 
 
+TABLES = {"nodes": "node-rows", "terminations": "termination-rows"}  # whole-table problems link to the table
+
+
 def editor_data(state: FormState, *, title: str, saved_from: SavedPlan | None = None) -> dict[str, Any]:
     """The plan editor: every input's text by dotted path, problems by field, and the field descriptions."""
     by_field: dict[str, str] = {}
     general: list[dict[str, Any]] = []
     for p in state.problems:
         message = problem_message(p, state.units)
-        if p.field in state.values or p.field.endswith(("class_key", "transceiver")):
+        # A problem with a whole table ("nodes") sits beside that table; its id is the table's.
+        on_form = p.field in state.values or p.field.endswith(("class_key", "transceiver")) or p.field in TABLES
+        if on_form:
             by_field.setdefault(p.field, message)
         # The list links the label; a message that starts with it goes on after the link rather than repeating it.
         rest = message[len(p.label) :] if p.label and message.startswith(p.label) else None
         general.append(
-            {"field": p.field, "label": p.label, "message": message, "rest": rest, "on_form": p.field in state.values}
+            {
+                "field": p.field,
+                "target": TABLES.get(p.field, f"f-{p.field}"),
+                "label": p.label,
+                "message": message,
+                "rest": rest,
+                "on_form": on_form,
+            }
         )
     return {
         "page": "editor",
@@ -152,6 +156,9 @@ def editor_data(state: FormState, *, title: str, saved_from: SavedPlan | None = 
         "errors": by_field,
         "problems": general,
         "fields": _field_meta(state.units),
+        "node_columns": [s.key for s in NODE],
+        "termination_columns": [s.key for s in TERMINATION],
+        "node_table": state.values.get("node_table", ""),
         "class_defaults": _class_defaults(state.units),
         "cables": {k: json_safe(c) for k, c in CABLES.items()},
         "transceivers": {k: json_safe(t) for k, t in TRANSCEIVERS.items()},
@@ -174,45 +181,6 @@ def start_data(
     }
 
 
-LIMIT_SIGNS = {"max": "≤", "min": "≥"}
-
-
-def limit_kind_of(finding: Any) -> str:
-    """How a finding's value is held against its limit: "max" (at most), "min" (at least) or "none" (the
-    limit is only a reference). Findings from engines that do not say are upper limits."""
-    kind = getattr(finding, "limit_kind", None) or "max"
-    return kind if kind in ("max", "min", "none") else "max"
-
-
-def limit_text(limit: float | None, unit: str, kind: str, units: UnitSystem) -> str:
-    """The limit for reading, with the side the value must stay on: "≤ 1.2 m", "≥ 54 Ω"; "" for no limit."""
-    if kind == "none" or limit is None or not math.isfinite(limit):
-        return ""
-    return f"{LIMIT_SIGNS[kind]} {quantity_text(limit, unit, units)}"
-
-
-def finding_data(f: Any, index: int, units: UnitSystem, node_anchors: Mapping[str, str]) -> dict[str, Any]:
-    kind = limit_kind_of(f)
-    return {
-        "anchor": f"finding-{index + 1}-{f.rule_id}",
-        "rule_id": f.rule_id,
-        "title": f.title,
-        "verdict": f.verdict.value,
-        "value": f.value,
-        "limit": f.limit,
-        "unit": f.unit,
-        "value_text": quantity_text(f.value, f.unit, units),
-        "limit_kind": kind,
-        "limit_text": limit_text(f.limit, f.unit, kind, units),
-        "node": f.node,
-        "node_anchor": node_anchors.get(f.node, "") if f.node else "",
-        "criterion": f.criterion,
-        "source": f.source,
-        "fix": lengths_in_text(f.fix, units, keep_metres=True) if units == "imperial" else f.fix,
-        "detail": lengths_in_text(f.detail, units, keep_metres=True) if units == "imperial" else f.detail,
-    }
-
-
 def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: str | None = None) -> dict[str, Any]:
     """The checked plan: verdicts, findings, per-node table, drawing, waveforms, curve, summary, BOM, cautions."""
     report = checked.report
@@ -226,6 +194,9 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
         if fd["node"]:
             per_node.setdefault(fd["node"], []).append(fd)
     node_verdicts = {name: worst([Verdict(fd["verdict"]) for fd in items]).value for name, items in per_node.items()}
+    node_rules = {
+        name: deciding_rules(items, node_verdicts[name]) for name, items in per_node.items()
+    }  # the rules that set each node's verdict
     metrics = {m.receiver: m for m in checked.metrics}
     summary = report.summary
     nodes = [
@@ -243,6 +214,7 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
             "ground_offset_v": n.ground_offset_v,
             "signal": _signal_data(metrics.get(n.name), units),
             "verdict": node_verdicts.get(n.name, "holds"),
+            "decided_by": node_rules.get(n.name, []),
             "findings": [
                 {"anchor": fd["anchor"], "rule_id": fd["rule_id"], "verdict": fd["verdict"]}
                 for fd in per_node.get(n.name, [])
@@ -251,7 +223,10 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
         for i, n in enumerate(plan.nodes)
     ]
     counts = {v.value: sum(1 for f in report.findings if f.verdict == v) for v in Verdict}
-    waveforms = _waveforms_data(checked, chosen_receiver)
+    problem_groups = group_problems(findings)
+    waveforms = _waveforms_data(checked, chosen_receiver, findings, node_verdicts, node_rules)
+    length_findings = [fd for fd in findings if fd["rule_id"] in LENGTH_RULES and not fd["node"]]
+    curve_verdict = worst([Verdict(fd["verdict"]) for fd in length_findings]).value
     sweep = checked.curve
     curve = curve_plot(
         sweep.bit_rate_bps,
@@ -270,11 +245,15 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
             "url": f"/plans/{plan_id}" if plan_id else None,
             "parent_id": saved.parent_id if saved else None,
             "created_at": saved.created_at if saved else None,
+            "created_text": date_text(saved.created_at) if saved else None,
             "saved_with_engine": saved.engine_version if saved else None,
             "checked_with_engine": report.engine_version,
             "units": units,
             "length_unit": length_unit(units),
             "verdict": report.verdict.value,
+            "verdict_text": VERDICT_HEADLINE[report.verdict.value],
+            "counts_text": counts_text(counts),
+            "capacity": capacity_data(report),
             "facts": {
                 "standard": "RS-485" if plan.standard == "rs485" else "RS-422",
                 "rate": quantity_text(plan.bit_rate_bps, "bit/s", units),
@@ -285,30 +264,40 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
             "cable_label": report.bus.cable.label,
             "driver_label": report.bus.driver.label,
             "findings": findings,
+            "problem_groups": problem_groups,
+            "holding_rules": holding_rules(findings),
             "nodes": nodes,
             "summary": _summary_data(summary, units),
+            "advice": advice_data(report, units, plan_id),
             "waveforms": waveforms,
             "curve": {
                 "bit_rate_bps": sweep.bit_rate_bps,
                 "max_length_m": sweep.max_length_m,
                 "criterion": sweep.criterion,
-                "criterion_text": CURVE_CRITERIA.get(sweep.criterion, sweep.criterion),
-                "source": sweep.source,
+                "criterion_text": in_plan_units(CURVE_CRITERIA.get(sweep.criterion, sweep.criterion), units),
+                "source": in_plan_units(sweep.source, units),
                 "plan_max_length_m": sweep.plan_max_length_m,
                 "plan_max_length_text": quantity_text(sweep.plan_max_length_m, "m", units),
                 "plan_inside": sweep.plan_inside,
+                "plan_verdict": curve_verdict,
+                "plan_decided_by": deciding_rules(length_findings, curve_verdict),
+                "sweep_end_text": value_text(max(sweep.max_length_m), "m", units) if len(sweep.max_length_m) else "",
                 "rule": {
                     "bit_rate_bps": checked.rule_bit_rate_bps,
                     "max_length_m": checked.rule_max_length_m,
-                    "criterion_text": RULE_CRITERION,
-                    "source": RULE_SOURCE,
+                    "criterion_text": in_plan_units(RULE_CRITERION, units),
+                    "source": in_plan_units(RULE_SOURCE, units),
                 },
                 "svg": curve,
             },
             "drawing": bus_drawing(
-                plan, node_verdicts | {plan.driver.name: node_verdicts.get(plan.driver.name, "holds")}, units
+                plan,
+                node_verdicts | {plan.driver.name: node_verdicts.get(plan.driver.name, "holds")},
+                units,
+                {name: ", ".join(rules) for name, rules in node_rules.items()},
             ),
             "cautions": cautions_data(plan),
+            "verdict_words": VERDICT_TEXT,
             "danger": danger_data(plan),
         }
     )
@@ -337,14 +326,38 @@ def _signal_data(m: Any, units: UnitSystem) -> dict[str, Any] | None:
     }
 
 
-def _waveforms_data(checked: CheckedPlan, chosen: str | None) -> dict[str, Any]:
+LENGTH_RULES = ("length.rate_rule", "length.loss")  # the rules the length-against-rate picture stands for
+
+
+def lineage_data(parent: SavedPlan | None) -> dict[str, Any]:
+    """The plan this one was copied from, by title, date and link. Later copies are not listed: each is the
+    link of whoever made it, and one shared link must not lead to everyone's edits."""
+    if parent is None:
+        return {"parent": None}
+    return {
+        "parent": {
+            "id": parent.id,
+            "url": f"/plans/{parent.id}",
+            "title": parent.title or "Untitled bus",
+            "date": date_text(parent.created_at),
+        }
+    }
+
+
+def _waveforms_data(
+    checked: CheckedPlan,
+    chosen: str | None,
+    findings: "list[dict[str, Any]]",
+    node_verdicts: Mapping[str, str],
+    node_rules: Mapping[str, list[str]],
+) -> dict[str, Any]:
     wf = checked.waveforms
     worst = worst_receiver(checked.metrics, checked.report.findings)
     receivers = [m.receiver for m in checked.metrics]
     if wf is None or worst is None:
         return {"available": False, "note": checked.simulation_note, "receivers": receivers}
     by_name = {m.receiver: m for m in checked.metrics}
-    signal = {f.node: f.verdict.value for f in checked.report.findings if f.rule_id == SIGNAL_RULE and f.node}
+    signal = {fd["node"]: fd for fd in findings if fd["rule_id"] == SIGNAL_RULE and fd["node"]}
     chosen_name = chosen if chosen in by_name else None
     plots = []
     for k, name in enumerate(wf.receiver_names):
@@ -356,7 +369,9 @@ def _waveforms_data(checked: CheckedPlan, chosen: str | None) -> dict[str, Any]:
             {
                 "receiver": name,
                 "role": "worst" if name == worst.receiver else "chosen",
-                "verdict": signal.get(name, "holds"),
+                "verdict": node_verdicts.get(name, "holds"),
+                "decided_by": node_rules.get(name, []),
+                "signal": _signal_finding(signal.get(name)),
                 "margin_v": m.min_sample_v,
                 "margin_text": quantity_text(m.min_sample_v, "V", "metric"),
                 "eye_height_v": m.eye_height_v,
@@ -380,6 +395,18 @@ def _waveforms_data(checked: CheckedPlan, chosen: str | None) -> dict[str, Any]:
     }
 
 
+def _signal_finding(fd: "dict[str, Any] | None") -> dict[str, Any]:
+    """What the signal-integrity rule said of one receiver, for its waveform's caption."""
+    if fd is None:
+        return {"verdict": "holds", "text": "no signal finding for this receiver", "anchor": ""}
+    numbers = ", ".join(t for t in (fd["value_text"], f"limit {fd['limit_text']}" if fd["limit_text"] else "") if t)
+    return {
+        "verdict": fd["verdict"],
+        "text": f"{fd['title']} ({numbers})" if numbers else fd["title"],
+        "anchor": fd["anchor"],
+    }
+
+
 def _summary_data(summary: Any, units: UnitSystem) -> dict[str, Any]:
     terminators = [
         {
@@ -387,7 +414,7 @@ def _summary_data(summary: Any, units: UnitSystem) -> dict[str, Any]:
             "kind": t.kind,
             "resistance_text": quantity_text(t.resistance_ohm, "Ω", units),
             "capacitance_text": quantity_text(t.capacitance_f, "F", units) if t.capacitance_f else "",
-            "power_text": quantity_text(t.power_rating_w, "W", units),
+            "power_text": rating_text(t.power_rating_w),
             **asdict(t),
         }
         for t in summary.terminators
@@ -401,22 +428,96 @@ def _summary_data(summary: Any, units: UnitSystem) -> dict[str, Any]:
             "pull_up_text": quantity_text(b.pull_up_ohm, "Ω", units),
             "pull_down_text": quantity_text(b.pull_down_ohm, "Ω", units),
             "idle_text": quantity_text(b.idle_v, "V", units),
-            "power_text": quantity_text(b.power_rating_w, "W", units),
+            "idle_corner_text": quantity_text(b.idle_corner_v, "V", units),
+            "power_text": rating_text(b.power_rating_w),
         }
+    rate = quantity_text(summary.max_bit_rate_bps, "bit/s", units)
     return {
         "terminators": terminators,
         "bias": bias,
         "spare_unit_loads": summary.spare_unit_loads,
         "further_nodes": dict(summary.further_nodes),
+        "capacity_text": summary.capacity.text,
         "max_bit_rate_bps": summary.max_bit_rate_bps,
-        "max_bit_rate_text": (
-            quantity_text(summary.max_bit_rate_bps, "bit/s", units)
-            if summary.max_bit_rate_bps is not None
-            else "no rate: the trunk is too long for these rules"
-        ),
-        "bias_note": summary.bias_note,
+        "max_bit_rate_text": rate,
+        "max_path_m": summary.max_path_m,
+        "max_path_text": quantity_text(summary.max_path_m, "m", units),
+        "rate_note": in_plan_units(summary.rate_note, units),
+        "bias_note": in_plan_units(summary.bias_note, units),
         "bom": bom_rows(summary.bom, units),
     }
+
+
+def check_data(report: Any) -> dict[str, Any]:
+    """A checked plan without simulated pictures (the JSON API's check and the editor's live verdict)."""
+    plan: BusPlan = report.plan
+    units: UnitSystem = plan.display_units
+    anchors = {n.name: node_anchor(i) for i, n in enumerate(plan.nodes)} | {plan.driver.name: "driver"}
+    ordered = sorted(report.findings, key=lambda f: (_SEVERITY[f.verdict.value], f.rule_id))
+    counts = {v.value: sum(1 for f in report.findings if f.verdict == v) for v in Verdict}
+    data: dict[str, Any] = json_safe(
+        {
+            "page": "check",
+            "title": plan.title or "Untitled bus",
+            "units": units,
+            "verdict": report.verdict.value,
+            "verdict_text": VERDICT_HEADLINE[report.verdict.value],
+            "counts": counts,
+            "counts_text": counts_text(counts),
+            "capacity": capacity_data(report),
+            # Those that do not hold, ready to read; every finding is in the report below.
+            "problems": [
+                finding_data(f, i, units, anchors) for i, f in enumerate(ordered) if f.verdict != Verdict.HOLDS
+            ],
+            "summary": _summary_data(report.summary, units),
+            "advice": advice_data(report, units, None),
+            "danger": danger_data(plan),
+        }
+    )
+    data["report"] = report_to_dict(report)
+    return data
+
+
+def advice_data(report: Any, units: UnitSystem, plan_id: str | None) -> dict[str, Any]:
+    """The advised plan's verdict, its change list and what cannot be met, and where the editor opens it."""
+    advice = report.advice
+    return {
+        "verdict": advice.verdict.value,
+        "counts": {v.value: sum(1 for f in advice.findings if f.verdict is v) for v in Verdict},
+        "changes": [
+            {
+                "part": c.part,
+                "where": in_plan_units(c.where, units),
+                "text": in_plan_units(c.text[:1].upper() + c.text[1:], units),
+                "from": in_plan_units(c.before_text, units),
+                "to": in_plan_units(c.after_text, units),
+                "why": c.why[:1].upper() + c.why[1:],
+                "rule_ids": list(c.rule_ids),
+            }
+            for c in advice.changes
+        ],
+        "unmet": [
+            {
+                "rule_id": u.rule_id,
+                "nodes": list(u.nodes),
+                "why": in_plan_units(u.why, units),
+                "remedies": [in_plan_units(r, units) for r in u.remedies],
+            }
+            for u in advice.unmet
+        ],
+        "plan": plan_to_dict(advice.plan),
+        # Saved plans open their advice by link; a draft posts its plan back (it has no id yet).
+        "open_url": f"/plans/{plan_id}/advised" if plan_id else None,
+        "draft_json": None if plan_id else json.dumps(plan_to_dict(report.plan)),
+    }
+
+
+def advised_editor_data(report: Any, state: FormState, *, saved_from: SavedPlan | None = None) -> dict[str, Any]:
+    """The editor opened on the advised plan as a new, unsaved draft, with the changes that made it listed."""
+    title = "Advised plan: a new draft, not saved yet"
+    data = editor_data(state, title=title, saved_from=saved_from)
+    data["advice"] = advice_data(report, state.units, None) | {"from_title": report.plan.title or "Untitled bus"}
+    return data
 
 
 def not_found_data(path: str) -> dict[str, Any]:

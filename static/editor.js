@@ -40,6 +40,7 @@
       const tbody = row.parentElement;
       row.remove();
       renumber(tbody);
+      form.dispatchEvent(new Event("input"));  // the draft and the live verdict follow
     });
     box.closest("label").hidden = true;
     box.closest("td").appendChild(button);
@@ -51,16 +52,9 @@
     button.addEventListener("click", function (event) {
       event.preventDefault();
       const tableId = button.getAttribute("data-add-row");
-      const table = document.getElementById(tableId);
-      const template = document.getElementById(tableId + "-template");
-      const tbody = table.tBodies[0];
       const group = tableId === "node-rows" ? "nodes" : "terminations";
-      const index = nextIndex(tbody, group);
-      const html = template.innerHTML.split("__i__").join(String(index));
-      tbody.insertAdjacentHTML("beforeend", html);
-      const row = tbody.lastElementChild;
-      addRemoveButton(row);
-      renumber(tbody);
+      const row = addRow(tableId, group, nextIndex(document.getElementById(tableId).tBodies[0], group));
+      saveDraft();
       const first = row.querySelector("input[type=text]");
       if (first) first.focus();
     });
@@ -128,6 +122,151 @@
   }
   form.addEventListener("input", drawPreview);
   drawPreview();
+
+  // --- Drafts survive Back and reload: every input is kept in this tab's session storage and put back,
+  // rows added or removed in place included, when the browser shows this page again without its state.
+  const draftKey = "pairline-draft:" + location.pathname + location.search;
+  function rowIndices(group) {
+    const seen = {};
+    form.querySelectorAll("[name^='" + group + ".']").forEach(function (el) {
+      const part = el.name.split(".")[1];
+      if (/^\d+$/.test(part)) seen[part] = true;
+    });
+    return Object.keys(seen).map(Number).sort(function (a, b) { return a - b; });
+  }
+  function saveDraft() {
+    const values = {};
+    const checked = [];
+    Array.prototype.forEach.call(form.elements, function (el) {
+      if (!el.name || el.type === "file" || el.type === "submit" || el.name.indexOf("__i__") >= 0) return;
+      if (el.type === "checkbox" || el.type === "radio") {
+        if (el.checked) checked.push(el.name + "=" + el.value);
+      } else {
+        values[el.name] = el.value;
+      }
+    });
+    const draft = { values: values, checked: checked, nodes: rowIndices("nodes"), terminations: rowIndices("terminations") };
+    try { sessionStorage.setItem(draftKey, JSON.stringify(draft)); } catch (e) { /* storage full or off */ }
+  }
+  function addRow(tableId, group, index) {
+    const tbody = document.getElementById(tableId).tBodies[0];
+    const template = document.getElementById(tableId + "-template");
+    tbody.insertAdjacentHTML("beforeend", template.innerHTML.split("__i__").join(String(index)));
+    const row = tbody.lastElementChild;
+    addRemoveButton(row);
+    renumber(tbody);
+    return row;
+  }
+  function restoreDraft() {
+    let draft = null;
+    try { draft = JSON.parse(sessionStorage.getItem(draftKey) || "null"); } catch (e) { draft = null; }
+    if (!draft) return;
+    [["node-rows", "nodes"], ["termination-rows", "terminations"]].forEach(function (pair) {
+      const wanted = draft[pair[1]] || [];
+      const present = rowIndices(pair[1]);
+      const tbody = document.getElementById(pair[0]).tBodies[0];
+      present.forEach(function (i) {
+        if (wanted.indexOf(i) < 0) {
+          const el = form.elements[pair[1] + "." + i + ".name"] || form.elements[pair[1] + "." + i + ".position_m"];
+          if (el) el.closest("tr").remove();
+        }
+      });
+      wanted.forEach(function (i) { if (present.indexOf(i) < 0) addRow(pair[0], pair[1], i); });
+      renumber(tbody);
+    });
+    Array.prototype.forEach.call(form.elements, function (el) {
+      if (!el.name || el.type === "file" || el.type === "submit") return;
+      if (el.type === "checkbox" || el.type === "radio") {
+        el.checked = draft.checked.indexOf(el.name + "=" + el.value) >= 0;
+      } else if (Object.prototype.hasOwnProperty.call(draft.values, el.name)) {
+        el.value = draft.values[el.name];
+      }
+    });
+  }
+  const navigation = (performance.getEntriesByType && performance.getEntriesByType("navigation")[0]) || {};
+  if (navigation.type === "back_forward" || navigation.type === "reload") {
+    restoreDraft();
+    drawPreview();
+  }
+  form.addEventListener("input", saveDraft);
+  form.addEventListener("change", saveDraft);
+  window.addEventListener("pagehide", saveDraft);
+
+  // --- A table pasted into a node cell goes to the node-table reader, which fills the rows.
+  const pasteBox = document.getElementById("f-node_table");
+  const pasteButton = document.getElementById("paste-button");
+  document.getElementById("node-rows").addEventListener("paste", function (event) {
+    const text = (event.clipboardData || window.clipboardData).getData("text");
+    if (!pasteBox || !pasteButton || !/[\t\n]/.test(text.trim())) return;
+    event.preventDefault();
+    pasteBox.value = text;
+    pasteButton.click();
+  });
+
+  // --- Live verdict: the JSON API checks what is typed so far, a moment after typing stops.
+  const live = document.getElementById("live-verdict");
+  let sequence = 0;
+  let timer = null;
+  function liveFields() {
+    const fields = {};
+    Array.prototype.forEach.call(form.elements, function (el) {
+      if (!el.name || el.type === "file" || el.type === "submit" || el.name.indexOf("__i__") >= 0) return;
+      if (el.name === "node_table" || el.name === "node_table_replace") return;
+      if ((el.type === "checkbox" || el.type === "radio") && !el.checked) return;
+      fields[el.name] = el.value;
+    });
+    return fields;
+  }
+  function showLive(state, pill, text, loads, spare) {
+    live.dataset.state = state;
+    const pillEl = document.getElementById("live-pill");
+    pillEl.className = "pill" + (state === "checked" ? " verdict-" + pill.verdict : "");
+    pillEl.textContent = pill.text;
+    document.getElementById("live-text").textContent = text;
+    document.getElementById("live-unit-loads").textContent = loads;
+    document.getElementById("live-spare").textContent = spare;
+  }
+  function checkLive() {
+    const mine = ++sequence;
+    live.dataset.state = "checking";
+    fetch("/api/check", {
+      method: "POST",
+      headers: { "Content-Type": "application/json", "Accept": "application/json" },
+      body: JSON.stringify({ form: liveFields() })
+    }).then(function (resp) {
+      return resp.json().then(function (body) { return { status: resp.status, body: body }; });
+    }).then(function (answer) {
+      if (mine !== sequence) return;  // a later check is on its way
+      const body = answer.body;
+      if (answer.status === 200) {
+        const deciding = (body.problems || []).slice(0, 3).map(function (f) {
+          return f.rule_id + (f.node ? " at " + f.node : "");
+        });
+        const why = deciding.length ? " Decided by " + deciding.join(", ") + "." : "";
+        showLive("checked", { verdict: body.verdict, text: body.verdict_text }, body.counts_text + "." + why,
+          body.capacity.unit_loads_text, body.capacity.more_text);
+      } else if (answer.status === 422) {
+        const problems = body.problems || [];
+        const first = problems.length ? problems[0].message : "";
+        const count = problems.length === 1 ? "1 value" : problems.length + " values";
+        showLive("incomplete", { text: "not checked yet" }, count + " to fix before a verdict. " + first, "—", "—");
+      } else {
+        showLive("failed", { text: "not checked" }, "The check did not answer (" + answer.status + "); Check still works.", "—", "—");
+      }
+    }).catch(function () {
+      if (mine === sequence) showLive("failed", { text: "not checked" }, "No answer from the planner; Check still works.", "—", "—");
+    });
+  }
+  function scheduleLive(event) {
+    if (!live || (event && event.target && (event.target.name === "node_table" || event.target.type === "file"))) return;
+    clearTimeout(timer);
+    timer = setTimeout(checkLive, 300);
+  }
+  if (live) {
+    form.addEventListener("input", scheduleLive);
+    form.addEventListener("change", scheduleLive);
+    scheduleLive();
+  }
 
   form.querySelectorAll("input[name=display_units]").forEach(function (radio) {
     radio.addEventListener("change", function () {

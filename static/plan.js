@@ -5,12 +5,11 @@
   document.querySelectorAll("[data-print]").forEach(function (b) {
     b.addEventListener("click", function () { window.print(); });
   });
-  // The printed sheet lists every finding, including the ones folded away on screen.
-  window.addEventListener("beforeprint", function () {
-    document.querySelectorAll("details").forEach(function (d) { d.open = true; });
-  });
   const share = document.getElementById("share-url");
   if (share) {
+    // The server writes the link relative to the site unless a public address is configured; show it whole.
+    share.value = new URL(share.value, window.location.href).href;
+    share.closest("[data-share]").setAttribute("data-share", share.value);
     share.addEventListener("focus", function () { share.select(); });
   }
 })();

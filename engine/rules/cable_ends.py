@@ -67,7 +67,8 @@ def corrected_termination_ohm(z0_ohm: float, parallel_load_ohm: float) -> float:
     """Terminator that, beside a lumped load R_P, presents Z0: R_T = Z0 / (1 - Z0/R_P).
 
     R_P = inf gives Z0; R_P <= Z0 gives inf (the load alone is already at or below Z0, no resistor helps).
-    Source: H. Johnson, M. Graham, High-Speed Digital Design, sec. 4.4.
+    Source: R_T || R_P = Z0 solved for R_T (parallel resistances); with a bias network 2 R_B as R_P this is the
+    matched bias end of J. Axelson, Serial Port Complete, 2nd ed., ch. 7.
     """
     if math.isinf(parallel_load_ohm):
         return z0_ohm

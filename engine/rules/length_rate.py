@@ -4,18 +4,22 @@ The length checked is the longest cable path a signal travels: from any node tha
 driver; on RS-485 also transceiver nodes) along its stub, the trunk and the receiver's stub.
 
 1. "length.rate_rule": length (m) x rate (bit/s) <= 1e8, the trade's rule of thumb (100 kbit/s -> 1000 m,
-   10 Mbit/s -> 10 m). Over 80 % of it is tight (Pairline's own margin).
-2. "length.loss": a loss limit in two regimes, split at 90 kbit/s where the TIA/EIA-422-B Annex A curve
-   turns from its flat part to its falling part (J. Axelson, Serial Port Complete, ch. 6; TIA/EIA-422-B Annex A).
-   - Below 90 kbit/s the Annex's length is flat at 1200 m (4000 ft) on its 24 AWG reference cable: at such
-     rates the line is limited by its resistance, not by its attenuation at f = rate. The path is held
-     against 1200 m scaled by the cable's conductor resistance against 24 AWG (84.2 Ohm/km per conductor,
-     ASTM B258): L_max = 1200 m x min(1, 84.2 mOhm/m / R'). Over 90 % of it is tight (Pairline's margin).
-   - From 90 kbit/s the cable's exact attenuation at f = bit rate, alpha = Re(gamma) from
-     engine.line.propagation_constant_per_m (skin effect and dielectric loss included), loss_dB = 8.686 alpha L:
-     over 9 dB breaks (the loss rule for RS-485 on twisted pair, D. Glisic, EE Times 2008); over 6 dB is
-     tight (the 6 dB loss criterion quoted for the Annex A curve).
-   The exact DC level at each receiver is what rule "signal.dc_level" checks.
+   10 Mbit/s -> 10 m).
+2. "length.loss": the longest path the cable's loss allows at the bit rate, the smaller of two published limits,
+   so the limit runs on continuously across every rate:
+   - the flat part of the TIA/EIA-422-B Annex A curve, 1200 m (4000 ft) on its 24 AWG reference cable
+     (J. Axelson, Serial Port Complete, ch. 6), scaled by the cable's conductor resistance against 24 AWG
+     (84.2 Ohm/km per conductor, ASTM B258): L_plateau = 1200 m x min(1, 84.2 mOhm/m / R');
+   - the length at which the cable's exact attenuation at f = bit rate reaches 9 dB (the loss rule for RS-485
+     on twisted pair, D. Glisic, EE Times 2008): alpha = Re(gamma) from engine.line.propagation_constant_per_m
+     (skin effect and dielectric loss included), L_9dB = 9 dB / (8.686 alpha).
+   At low rates L_9dB is far longer than the plateau, so the plateau decides; at high rates the 9 dB length
+   does. The two limits are also stated apart: the plateau is a length no bit rate extends, the 9 dB length
+   gives the highest rate for the path.
+Tight bands (engine.rules.margins): both rules are TIGHT when the path as built, 10 % longer than drawn, would
+break them. (Both limits are stated for the cable as tabulated and carry their own criteria's margin, so the
+copper's warm corner is left to the DC level rule, which computes the level itself.)
+The exact DC level at each receiver is what rule "signal.dc_level" checks.
 """
 
 import math
@@ -24,18 +28,15 @@ import numpy as np
 from pairline.engine.bus import Bus
 from pairline.engine.findings import Finding, Verdict
 from pairline.engine.line import propagation_constant_per_m
+from pairline.engine.rules.margins import band_verdict, long_run_factor
 from pairline.engine.units import length_text
 
 RATE_RULE_ID = "length.rate_rule"
 LOSS_RULE_ID = "length.loss"
 LENGTH_RATE_PRODUCT_M_BPS = 1e8  # common practice
-TIGHT_FRACTION = 0.8  # Pairline's own margin on the rule of thumb
 LOSS_LIMIT_DB = 9.0  # D. Glisic, "Getting the most out of your twisted pair cable", EE Times, 2008
-LOSS_TIGHT_DB = 6.0  # loss criterion quoted for the TIA/EIA-422-B Annex A length-vs-rate curve
 NEPER_DB = 20.0 / math.log(10.0)  # 8.686 dB per neper
-PLATEAU_RATE_BPS = 90e3  # TIA/EIA-422-B Annex A: below it the curve is flat (J. Axelson, Serial Port Complete)
 PLATEAU_LENGTH_M = 1200.0  # TIA/EIA-422-B Annex A: 4000 ft on 24 AWG
-PLATEAU_TIGHT_FRACTION = 0.9  # Pairline's own margin on the plateau
 REFERENCE_RESISTANCE_OHM_PER_M = 0.0842  # 24 AWG copper per conductor, ASTM B258
 MIN_RATE_BPS = 50.0  # the plan's lowest bit rate
 MAX_RATE_BPS = 100e6  # the plan's highest bit rate
@@ -43,10 +44,10 @@ RATE_SOURCE = (
     "length (m) x bit rate (bit/s) <= 1e8: common practice, a rule of thumb below the TIA/EIA-422-B Annex A curve"
 )
 LOSS_SOURCE = (
-    "Below 90 kbit/s: the 1200 m (4000 ft) plateau of the TIA/EIA-422-B Annex A length-vs-rate curve (24 AWG, "
-    "ASTM B258 84.2 Ω/km); from 90 kbit/s: attenuation <= 9 dB at f = bit rate, D. Glisic, 'Getting the most out "
-    "of your twisted pair cable', EE Times 2008, and the 6 dB criterion of TIA/EIA-422-B Annex A; alpha = "
-    "Re(sqrt(Z' Y')), D. M. Pozar, Microwave Engineering, eq. 2.5"
+    "The 1200 m (4000 ft) plateau of the TIA/EIA-422-B Annex A length-vs-rate curve (24 AWG, ASTM B258 84.2 Ω/km) "
+    "and attenuation <= 9 dB at f = bit rate (D. Glisic, 'Getting the most out of your twisted pair cable', EE Times "
+    "2008), the smaller of the two; alpha = Re(sqrt(Z' Y')), D. M. Pozar, Microwave Engineering, eq. 2.5; tight "
+    "band from engine.rules.margins"
 )
 
 
@@ -59,7 +60,7 @@ def attenuation_np_per_m(bus: Bus, frequency_hz: float) -> float:
 
 
 def plateau_length_m(bus: Bus) -> float:
-    """Longest path below 90 kbit/s: 1200 m x min(1, R'_24AWG / R'), the Annex A plateau scaled by resistance."""
+    """The longest path at any bit rate: 1200 m x min(1, R'_24AWG / R'), the Annex A plateau scaled by resistance."""
     r_ohm_per_m = bus.cable.resistance_ohm_per_m
     if r_ohm_per_m <= REFERENCE_RESISTANCE_OHM_PER_M:
         return PLATEAU_LENGTH_M
@@ -71,12 +72,15 @@ def line_loss_db(bus: Bus, frequency_hz: float, length_m: float) -> float:
     return NEPER_DB * attenuation_np_per_m(bus, frequency_hz) * length_m
 
 
-def loss_limit_length_m(bus: Bus, rate_bps: float) -> float:
-    """Longest path rule "length.loss" allows at a bit rate: the plateau below 90 kbit/s, else 9 dB / loss per m."""
-    if rate_bps < PLATEAU_RATE_BPS:
-        return plateau_length_m(bus)
+def nine_db_length_m(bus: Bus, rate_bps: float) -> float:
+    """The length at which the attenuation at f = rate reaches 9 dB."""
     per_m_db = line_loss_db(bus, rate_bps, 1.0)
     return LOSS_LIMIT_DB / per_m_db if per_m_db > 0.0 else math.inf
+
+
+def loss_limit_length_m(bus: Bus, rate_bps: float) -> float:
+    """Longest path rule "length.loss" allows at a bit rate: min(plateau, 9 dB length), continuous in the rate."""
+    return min(plateau_length_m(bus), nine_db_length_m(bus, rate_bps))
 
 
 def signal_path_m(bus: Bus) -> float:
@@ -91,18 +95,15 @@ def signal_path_m(bus: Bus) -> float:
     return float(path_m.max())
 
 
-def loss_limited_rate_bps(bus: Bus, length_m: float, limit_db: float = LOSS_LIMIT_DB) -> float | None:
-    """Highest bit rate the loss rule allows over length_m; None when no rate does (the path is longer than the
-    plateau). Below 90 kbit/s the plateau decides; from 90 kbit/s the attenuation at f = rate stays within limit_db
-    (bisection in log f). MAX_RATE_BPS when the highest rate stays within it.
-    """
-    if length_m > plateau_length_m(bus):
-        return None
-    if line_loss_db(bus, PLATEAU_RATE_BPS, length_m) > limit_db:
-        return PLATEAU_RATE_BPS
+def loss_limited_rate_bps(bus: Bus, length_m: float, limit_db: float = LOSS_LIMIT_DB) -> float:
+    """Highest bit rate at which the attenuation at f = rate over length_m stays within limit_db (bisection in
+    log f), clamped to the plan's range of rates: continuous in the length. The plateau is a length limit no
+    rate changes; it is stated apart (plateau_length_m)."""
     if line_loss_db(bus, MAX_RATE_BPS, length_m) <= limit_db:
         return MAX_RATE_BPS
-    lo, hi = math.log(PLATEAU_RATE_BPS), math.log(MAX_RATE_BPS)
+    if line_loss_db(bus, MIN_RATE_BPS, length_m) > limit_db:
+        return MIN_RATE_BPS
+    lo, hi = math.log(MIN_RATE_BPS), math.log(MAX_RATE_BPS)
     for _ in range(60):
         mid = 0.5 * (lo + hi)
         if line_loss_db(bus, math.exp(mid), length_m) <= limit_db:
@@ -112,45 +113,38 @@ def loss_limited_rate_bps(bus: Bus, length_m: float, limit_db: float = LOSS_LIMI
     return math.exp(lo)
 
 
-def max_bit_rate_bps(bus: Bus) -> float | None:
-    """Highest bit rate both rules allow on this bus: min(1e8 / length, loss-limited rate); None when the path is
-    too long for any rate."""
+def max_bit_rate_bps(bus: Bus) -> float:
+    """Highest bit rate both length rules allow for this bus's path: min(1e8 / length, the 9 dB-limited rate).
+    A path beyond the plateau breaks "length.loss" at every rate; that limit is a length (plateau_length_m)."""
     length_m = signal_path_m(bus)
     if length_m <= 0.0:
         return MAX_RATE_BPS
-    loss_rate = loss_limited_rate_bps(bus, length_m)
-    if loss_rate is None:
-        return None
-    return min(LENGTH_RATE_PRODUCT_M_BPS / length_m, loss_rate, MAX_RATE_BPS)
+    return min(LENGTH_RATE_PRODUCT_M_BPS / length_m, loss_limited_rate_bps(bus, length_m), MAX_RATE_BPS)
 
 
 def check_length_vs_rate(bus: Bus) -> list[Finding]:
-    """Two whole-bus findings: the length x rate rule and the cable loss at f = bit rate."""
+    """Two whole-bus findings: the length x rate rule and the longest path the cable's loss allows."""
     rate = bus.plan.bit_rate_bps
     length_m = signal_path_m(bus)
     rate_limit_m = LENGTH_RATE_PRODUCT_M_BPS / rate
-    rate_verdict = (
-        Verdict.BREAKS
-        if length_m > rate_limit_m
-        else Verdict.TIGHT
-        if length_m > TIGHT_FRACTION * rate_limit_m
-        else Verdict.HOLDS
-    )
+    as_built_m = length_m * long_run_factor()
+    rate_verdict = band_verdict(length_m <= rate_limit_m, as_built_m <= rate_limit_m)
     best_bps = max_bit_rate_bps(bus)
+    plateau_m = plateau_length_m(bus)
     repeater = "or split the bus with a repeater (each segment gets its own length budget)"
+    margin = long_run_factor()  # the fix aims where the rule holds, the path 10 % longer as built included
     rate_fix = (
         ""
         if rate_verdict is Verdict.HOLDS
-        else f"Lower the bit rate to at most {_rate_text(LENGTH_RATE_PRODUCT_M_BPS / max(length_m, 1e-9), floor=True)}"
-        ", "
-        f"or shorten the longest path from {length_text(length_m)} to at most "
-        f"{length_text(rate_limit_m)}, {repeater}."
+        else f"Lower the bit rate to at most "
+        f"{_rate_text(LENGTH_RATE_PRODUCT_M_BPS / max(length_m * margin, 1e-9), floor=True)}, or shorten the longest "
+        f"path from {length_text(length_m)} to at most {length_text(rate_limit_m / margin)}, {repeater}."
     )
-    loss_rate = loss_limited_rate_bps(bus, length_m)
-    if rate < PLATEAU_RATE_BPS:
-        loss_finding = _plateau_finding(bus, length_m, repeater)
-    else:
-        loss_finding = _attenuation_finding(bus, length_m, loss_rate, repeater)
+    beyond = (
+        f" The path is beyond the {length_text(plateau_m)} the cable's loss allows at any rate (length.loss)."
+        if length_m > plateau_m
+        else ""
+    )
     return [
         Finding(
             RATE_RULE_ID,
@@ -161,105 +155,62 @@ def check_length_vs_rate(bus: Bus) -> list[Finding]:
             "m",
             None,
             f"longest path x bit rate <= 1e8 m bit/s, i.e. <= {length_text(rate_limit_m)} at "
-            f"{_rate_text(rate)}; over {TIGHT_FRACTION:.0%} of it is tight",
+            f"{_rate_text(rate)}; tight when the path 10 % longer as built would exceed it",
             RATE_SOURCE,
             fix=rate_fix,
             detail=f"Longest path {length_text(length_m)}; length × rate is "
             f"{length_m * rate / LENGTH_RATE_PRODUCT_M_BPS:.2%} of 10^8 m·bit/s. Highest rate both length rules "
-            "allow here: "
-            + ("no rate: the trunk is too long for these rules." if best_bps is None else f"{_rate_text(best_bps)}."),
+            f"allow for this path: {_rate_text(best_bps)}." + beyond,
+            figures=(("max_bit_rate_bps", LENGTH_RATE_PRODUCT_M_BPS / max(length_m, 1e-9)),),
         ),
-        loss_finding,
+        _loss_finding(bus, length_m, repeater),
     ]
 
 
-def _plateau_finding(bus: Bus, length_m: float, repeater: str) -> Finding:
-    """Below 90 kbit/s: the path against the Annex A plateau, 1200 m scaled by the cable's resistance."""
-    limit_m = plateau_length_m(bus)
-    verdict = (
-        Verdict.BREAKS
-        if length_m > limit_m
-        else Verdict.TIGHT
-        if length_m > PLATEAU_TIGHT_FRACTION * limit_m
-        else Verdict.HOLDS
-    )
-    target_m = limit_m if verdict is Verdict.BREAKS else PLATEAU_TIGHT_FRACTION * limit_m
+def _loss_finding(bus: Bus, length_m: float, repeater: str) -> Finding:
+    """The path against min(plateau, 9 dB length) at the plan's rate; tight at the warm, as-built corner."""
+    rate = bus.plan.bit_rate_bps
+    plateau_m = plateau_length_m(bus)
+    nine_db_m = nine_db_length_m(bus, rate)
+    limit_m = min(plateau_m, nine_db_m)
+    verdict = band_verdict(length_m <= limit_m, length_m * long_run_factor() <= limit_m)
+    loss_db = line_loss_db(bus, rate, length_m)
+    loss_rate = loss_limited_rate_bps(bus, length_m)
+    by_plateau = plateau_m <= nine_db_m
     fix = ""
     if verdict is not Verdict.HOLDS:
-        thicker = (
-            ", use a pair of lower resistance (24 AWG or thicker)"
-            if bus.cable.resistance_ohm_per_m > REFERENCE_RESISTANCE_OHM_PER_M
-            else ""
-        )
-        fix = (
-            f"Shorten the longest path from {length_text(length_m)} to at most "
-            f"{length_text(target_m)}{thicker}, {repeater}."
-        )
+        target_m = limit_m / long_run_factor()  # where the rule holds, the path 10 % longer as built included
+        target_rate = loss_limited_rate_bps(bus, length_m * long_run_factor())
+        steps = []
+        if not by_plateau and target_rate < rate:
+            steps.append(f"lower the bit rate to at most {_rate_text(target_rate, floor=True)}")
+        steps.append(f"shorten the path to at most {length_text(target_m)}")
+        steps.append("use a lower-loss pair (thicker gauge, e.g. 22 AWG)")
+        fix = f"Bring the path ({length_text(length_m)}) inside the loss limit: " + ", ".join(steps) + f", {repeater}."
+    deciding = (
+        f"the TIA/EIA-422-B Annex A plateau, {length_text(plateau_m)} for this cable at any rate"
+        if by_plateau
+        else f"9 dB of attenuation at {_rate_text(rate).replace('bit/s', 'Hz')}"
+    )
     return Finding(
         LOSS_RULE_ID,
-        "Longest path against the low-rate length limit (TIA/EIA-422-B Annex A plateau)",
+        "Longest path against the cable's loss limit at this bit rate",
         verdict,
         length_m,
         limit_m,
         "m",
         None,
-        f"below {_rate_text(PLATEAU_RATE_BPS)} the longest path <= 1200 m x min(1, 84.2 mΩ/m / R') = "
-        f"{length_text(limit_m)} for this cable; over {PLATEAU_TIGHT_FRACTION:.0%} of it is tight",
+        "longest path <= min(1200 m x min(1, 84.2 mΩ/m / R'), the length of 9 dB attenuation at f = bit rate); "
+        "tight when the path 10 % longer as built would exceed it",
         LOSS_SOURCE,
         fix=fix,
         detail=f"{bus.cable.label}: {bus.cable.resistance_ohm_per_m * 1e3:.1f} mΩ/m per conductor against 84.2 "
-        f"mΩ/m for 24 AWG. At these rates the curve is flat: the loop resistance, not the attenuation at "
-        f"f = bit rate, limits the run (the DC level at each receiver is rule signal.dc_level). Over this path the "
-        f"attenuation at {_rate_text(bus.plan.bit_rate_bps).replace('bit/s', 'Hz')} is "
-        f"{line_loss_db(bus, bus.plan.bit_rate_bps, length_m):.1f} dB, for information.",
+        f"mΩ/m for 24 AWG. Limit here: {length_text(limit_m)}, set by {deciding}; the plateau is "
+        f"{length_text(plateau_m)}, the 9 dB length at this rate {length_text(nine_db_m)}. Over this path the "
+        f"attenuation at f = bit rate is {loss_db:.1f} dB; rates up to {_rate_text(loss_rate, floor=True)} stay "
+        "within 9 dB.",
+        figures=(("max_bit_rate_bps", loss_rate), ("max_path_m", plateau_m)),
     )
-
-
-def _attenuation_finding(bus: Bus, length_m: float, loss_rate: float | None, repeater: str) -> Finding:
-    """From 90 kbit/s: the exact attenuation at f = bit rate over the path, 9 dB breaks, 6 dB tight."""
-    rate = bus.plan.bit_rate_bps
-    loss = line_loss_db(bus, rate, length_m)
-    verdict = Verdict.BREAKS if loss > LOSS_LIMIT_DB else Verdict.TIGHT if loss > LOSS_TIGHT_DB else Verdict.HOLDS
-    alpha = attenuation_np_per_m(bus, rate)
-    max_len_m = LOSS_LIMIT_DB / (NEPER_DB * alpha) if alpha > 0 else math.inf
-    fix = ""
-    if verdict is not Verdict.HOLDS:
-        target_db = LOSS_LIMIT_DB if verdict is Verdict.BREAKS else LOSS_TIGHT_DB
-        target_rate = loss_limited_rate_bps(bus, length_m, target_db)
-        target_len_m = target_db / (NEPER_DB * alpha) if alpha > 0 else math.inf
-        steps = []
-        if target_rate is not None and 0.0 < target_rate < rate:
-            steps.append(f"lower the bit rate to at most {_rate_text(target_rate, floor=True)}")
-        steps.append(f"shorten the path to at most {length_text(target_len_m)}")
-        steps.append("use a lower-loss pair (thicker gauge, e.g. 22 AWG)")
-        fix = (
-            f"Bring the loss ({loss:.1f} dB over {length_text(length_m)}) under {target_db:g} dB: "
-            + ", ".join(steps)
-            + f", {repeater}."
-        )
-    return Finding(
-        LOSS_RULE_ID,
-        "Cable loss over the longest path at f = bit rate",
-        verdict,
-        loss,
-        LOSS_LIMIT_DB,
-        "dB",
-        None,
-        f"from {_rate_text(PLATEAU_RATE_BPS)}: attenuation Re(γ) at f = bit rate over the longest path <= "
-        f"{LOSS_LIMIT_DB:g} dB; over {LOSS_TIGHT_DB:g} dB is tight",
-        LOSS_SOURCE,
-        fix=fix,
-        detail=f"alpha {alpha * 1e3:.3f} mNp/m at {_rate_text(rate).replace('bit/s', 'Hz')} "
-        f"({bus.cable.label}); 9 dB is reached at {length_text(max_len_m)} at this rate; " + _loss_rate_text(loss_rate),
-    )
-
-
-def _loss_rate_text(loss_rate_bps: float | None) -> str:
-    if loss_rate_bps is None:
-        return "no rate: the path is longer than the low-rate length limit."
-    if loss_rate_bps >= MAX_RATE_BPS:
-        return "at this length every rate up to 100 Mbit/s stays within 9 dB."
-    return f"at this length rates up to {_rate_text(loss_rate_bps, floor=True)} stay within 9 dB."
 
 
 def _rate_text(rate_bps: float, *, floor: bool = False) -> str:

@@ -12,23 +12,28 @@ RS-422 (TIA/EIA-422-B) counts receivers instead: one driver, at most 10 receiver
 
 Driver load. The driver sees every terminator, every receiver input and the bias network in parallel across
 the pair: R_load = R_T1 || R_T2 || ... || (12 kOhm / UL)_i || (R_u + R_d). TIA-485-A specifies the driver into
-54 Ohm, the load meant by two 120 Ohm terminators and 32 UL (which by arithmetic is 51.7 Ohm); TIA-422-B
-specifies 100 Ohm, with up to 10 receivers of 4 kOhm beside it (80 Ohm by arithmetic). Two views exist:
+54 Ohm, the load meant by two 120 Ohm terminators and 32 UL (TI SLLA628), which by arithmetic is 51.7 Ohm.
+TIA/EIA-422-B specifies the driver into 100 Ohm and allows up to 10 receivers of at least 4 kOhm; it states no
+total-load figure Pairline could confirm, so the RS-422 limit is the arithmetic of its stated figures, 100 Ohm
+|| 10 x 4 kOhm = 80 Ohm. Two views exist:
     DC view:   RC terminators are open (their capacitor blocks DC); what an idle bias network sees.
     edge view: RC terminators count with their resistor (the capacitor is a short during an edge and,
                while data flow, for as long as RC lasts).
 The verdict uses the edge view, the heavier of the two; the DC view is stated in the detail.
-The 54 Ohm / 100 Ohm test loads are what the standards mean for their fully loaded bus (TI SLLA628, RS-485
-compliance note: 54 Ohm stands for two 120 Ohm terminators and 32 UL), so the load HOLDS down to that full bus
-by arithmetic (51.7 Ohm / 80 Ohm), is TIGHT down to 95 % of it (resistor tolerance) and BREAKS below.
+
+Tight bands (engine.rules.margins): the unit-load budget is TIGHT when the bias resistors at the low end of
+their 5 % tolerance would take it over 32 UL (receiver ratings are maxima already); the driver load is TIGHT
+when terminators and bias resistors 5 % low would take it below the full bus.
 """
 
 import math
 
 from pairline.engine.bus import Bus
+from pairline.engine.dc import receiver_loads_ohm
 from pairline.engine.findings import Finding, Verdict
 from pairline.engine.plan import input_resistance_ohm
-from pairline.engine.units import length_text, parallel_ohm, si_format
+from pairline.engine.rules.margins import RESISTOR_TOLERANCE, band_verdict, corner_bus
+from pairline.engine.units import parallel_ohm, si_format
 
 RS485_UNIT_LOAD_BUDGET = 32.0  # TIA-485-A
 RS422_MAX_RECEIVERS = 10  # TIA/EIA-422-B
@@ -36,11 +41,6 @@ RS422_MIN_INPUT_OHM = 4_000.0  # TIA/EIA-422-B
 RS485_DESIGN_LOAD_OHM = 54.0  # TIA-485-A driver test load
 RS422_DESIGN_LOAD_OHM = 100.0  # TIA/EIA-422-B driver test load
 UNIT_LOAD_OHM = input_resistance_ohm(1.0)  # 12 kOhm, TIA-485-A
-# A budget is TIGHT when less than this fraction of it is left.
-TIGHT_SPARE_FRACTION = 0.10
-# The driver load HOLDS down to the standard's own full bus (51.7 Ohm for RS-485, 80 Ohm for RS-422), is TIGHT
-# down to this fraction of it (room for resistor tolerance) and BREAKS below.
-LOAD_FLOOR_FRACTION = 0.95
 UNIT_LOAD_CLASSES: dict[str, float] = {"1 UL": 1.0, "1/2 UL": 0.5, "1/4 UL": 0.25, "1/8 UL": 0.125}
 
 _UL_SOURCE = "TIA-485-A unit load and 32 UL driver capability; TI SLLA166 and SLLA272 (bias networks load the bus)"
@@ -96,24 +96,9 @@ def spare_unit_loads(bus: Bus) -> float:
     return RS485_UNIT_LOAD_BUDGET - unit_load_total(bus)
 
 
-def further_nodes_for_bus(bus: Bus) -> dict[str, int]:
-    """Further nodes per unit-load class; on RS-422 the receiver count limits every class alike."""
-    if bus.plan.standard == "rs422":
-        spare = max(0, RS422_MAX_RECEIVERS - len(bus.plan.nodes))
-        return dict.fromkeys(UNIT_LOAD_CLASSES, spare)
-    return further_nodes(spare_unit_loads(bus))
-
-
-def _budget_verdict(used: float, budget: float) -> Verdict:
-    if used > budget + 1e-9:
-        return Verdict.BREAKS
-    if budget - used < TIGHT_SPARE_FRACTION * budget - 1e-9:
-        return Verdict.TIGHT
-    return Verdict.HOLDS
-
-
-def _fit_text(counts: dict[str, int]) -> str:
-    return ", ".join(f"{n} of {label}" for label, n in counts.items())
+def unit_loads_text(value: float) -> str:
+    """A unit-load figure for a sentence: two decimals, and never a negative zero."""
+    return f"{value + 0.0:.2f}" if abs(value) >= 0.005 else "0.00"
 
 
 def check_unit_loads(bus: Bus) -> list[Finding]:
@@ -123,73 +108,74 @@ def check_unit_loads(bus: Bus) -> list[Finding]:
         return _check_rs422_receivers(bus)
     parts = unit_load_parts(bus)
     total = sum(parts.values())
-    spare = RS485_UNIT_LOAD_BUDGET - total
-    verdict = _budget_verdict(total, RS485_UNIT_LOAD_BUDGET)
-    fits = further_nodes(spare)
+    corner_total = unit_load_total(corner_bus(bus, bias_resistors=-1))
+    budget = RS485_UNIT_LOAD_BUDGET
+    verdict = band_verdict(total <= budget + 1e-9, corner_total <= budget + 1e-9)
     detail = (
         f"nodes {parts['nodes']:g} UL + driver's own receiver {parts['driver']:g} UL + bias network "
-        f"{parts['bias']:.2f} UL = {total:.2f} UL; spare {spare:.2f} UL. Still fits: {_fit_text(fits)}. "
-        f"TIGHT when less than {TIGHT_SPARE_FRACTION:.0%} of the 32 UL budget is left."
+        f"{unit_loads_text(parts['bias'])} UL = {unit_loads_text(total)} UL of {budget:g}"
     )
-    fix = ""
-    if verdict is not Verdict.HOLDS:
-        fix = _unit_load_fix(bus, parts, total)
+    if parts["bias"] > 0.0:
+        detail += f"; with the bias resistors 5 % low, {unit_loads_text(corner_total)} UL"
+    detail += ". TIGHT when the bias resistors at the low end of their tolerance would take it over 32 UL."
     return [
         Finding(
             rule_id="load.unit_loads",
             title="Unit-load budget",
             verdict=verdict,
             value=total,
-            limit=RS485_UNIT_LOAD_BUDGET,
+            limit=budget,
             unit="UL",
             node=None,
-            criterion="Sum of unit loads on the pair (nodes, the driver's own receiver, the bias network) <= 32 UL",
+            criterion="Sum of unit loads on the pair (nodes, the driver's own receiver, the bias network) <= 32 UL; "
+            "tight when bias resistors 5 % low would exceed it",
             source=_UL_SOURCE,
-            fix=fix,
+            fix="" if verdict is Verdict.HOLDS else _unit_load_fix(bus, parts, total, corner_total),
             detail=detail,
         )
     ]
 
 
-def _unit_load_fix(bus: Bus, parts: dict[str, float], total: float) -> str:
-    from pairline.engine.rules.bias import bias_choice  # bias builds on this module; one sizing function for both texts
+def either(steps: list[str]) -> str:
+    """Alternatives for a sentence: "a", "a or b", "a; b; or c"."""
+    if len(steps) <= 1:
+        return "".join(steps)
+    if len(steps) == 2:
+        return f"{steps[0]}, or {steps[1]}"
+    return "; ".join(steps[:-1]) + f"; or {steps[-1]}"
 
-    over = total - RS485_UNIT_LOAD_BUDGET
+
+def _unit_load_fix(bus: Bus, parts: dict[str, float], total: float, corner_total: float) -> str:
+    budget = RS485_UNIT_LOAD_BUDGET
     n_nodes = len(bus.plan.nodes)
-    steps = []
+    over = total - budget
     if over > 0:
-        head = f"To fit 32 UL, remove {over:.2f} UL"
+        head = f"To fit 32 UL, take {unit_loads_text(over)} UL off the pair"
+        room = budget - parts["driver"] - parts["bias"]
     else:
         head = (
-            f"The bus fits the 32 UL budget with {-over:.2f} UL spare, under the {TIGHT_SPARE_FRACTION:.0%} "
-            "Pairline keeps for the next nodes; to make room"
+            f"With the bias resistors 5 % low the pair carries {unit_loads_text(corner_total)} UL, over 32 UL; "
+            "make room"
         )
-    # What receiver rating would bring the nodes inside the budget with 10 % to spare?
-    room = (1.0 - TIGHT_SPARE_FRACTION) * RS485_UNIT_LOAD_BUDGET - parts["driver"] - parts["bias"]
+        room = budget - parts["driver"] - parts["bias"] * (1.0 / (1.0 - RESISTOR_TOLERANCE))
+    steps = []
     if room > 0 and n_nodes:
-        per_node = room / n_nodes
-        rated = next((ul for ul in UNIT_LOAD_CLASSES.values() if ul <= per_node), None)
-        if rated is not None:
+        rated = next((ul for ul in UNIT_LOAD_CLASSES.values() if ul * n_nodes <= room), None)
+        if rated is not None and rated < max(n.unit_loads for n in bus.plan.nodes):
             steps.append(f"use receivers of {rated:g} UL or less on all {n_nodes} nodes")
     bias = bus.plan.bias
     if bias is not None and parts["bias"] > 1.0:
-        now = f"{min(bias.pull_up_ohm, bias.pull_down_ohm):g} Ω, {parts['bias']:.1f} UL"
-        choice = bias_choice(bus)
-        if choice.fits and choice.resistance_ohm > min(bias.pull_up_ohm, bias.pull_down_ohm):
-            where = "" if choice.position_m == bias.position_m else f", moved to {length_text(choice.position_m)}"
-            steps.append(
-                f"raise each bias resistor to {choice.resistance_ohm:g} Ω (now {now}){where}, as bias.idle_level "
-                "advises"
-            )
-        else:
-            steps.append(f"raise the bias resistors (now {now}) and use receivers with failsafe thresholds")
-    steps.append("or split the bus with a repeater, which starts a fresh 32 UL budget")
-    return head + ": " + "; ".join(steps) + "."
+        steps.append(
+            f"raise the bias resistors (now {min(bias.pull_up_ohm, bias.pull_down_ohm):g} Ω, "
+            f"{parts['bias']:.1f} UL), with receivers of failsafe thresholds where the idle level then falls short"
+        )
+    steps.append("split the bus with a repeater, which starts a fresh 32 UL budget")
+    return f"{head}: {either(steps)}."
 
 
 def _check_rs422_receivers(bus: Bus) -> list[Finding]:
     n = len(bus.plan.nodes)
-    verdict = _budget_verdict(float(n), float(RS422_MAX_RECEIVERS))
+    verdict = Verdict.BREAKS if n > RS422_MAX_RECEIVERS else Verdict.HOLDS
     findings = [
         Finding(
             rule_id="load.unit_loads",
@@ -199,17 +185,15 @@ def _check_rs422_receivers(bus: Bus) -> list[Finding]:
             limit=float(RS422_MAX_RECEIVERS),
             unit="receivers",
             node=None,
-            criterion="One RS-422 driver feeds at most 10 receivers",
+            criterion="One RS-422 driver feeds at most 10 receivers (a count: no tolerance, no tight band)",
             source=_422_SOURCE,
             fix=""
             if verdict is Verdict.HOLDS
             else (
                 f"Move {n - RS422_MAX_RECEIVERS} receiver(s) to a second driver or a repeater, or use RS-485 "
                 "(32 UL) instead."
-                if n > RS422_MAX_RECEIVERS
-                else "Plan the next receivers on a second driver or a repeater: this one is at its limit."
             ),
-            detail=f"{n} receivers; {max(0, RS422_MAX_RECEIVERS - n)} more fit. TIGHT at 10 receivers.",
+            detail=f"{n} receivers of the 10 one RS-422 driver feeds.",
         )
     ]
     for node in bus.plan.nodes:
@@ -234,20 +218,6 @@ def _check_rs422_receivers(bus: Bus) -> list[Finding]:
     return findings
 
 
-def receiver_loads_ohm(bus: Bus) -> list[float]:
-    """Input resistance of every receiver on the pair: nodes and, on RS-485, the driver's own receiver."""
-    loads = [input_resistance_ohm(n.unit_loads) for n in bus.plan.nodes]
-    if bus.plan.standard == "rs485":
-        loads.append(input_resistance_ohm(bus.driver.unit_loads))
-    return loads
-
-
-def bias_supply_v(bus: Bus) -> float:
-    """The bias network's supply: its own supply_v, else the plan's supply voltage."""
-    b = bus.plan.bias
-    return b.supply_v if b is not None and b.supply_v is not None else bus.plan.supply_v
-
-
 def bias_equivalent_ohm(bus: Bus) -> float:
     """The bias network across the pair for a differential signal: R_u + R_d (the supply is an AC ground)."""
     bias = bus.plan.bias
@@ -270,39 +240,35 @@ def design_load_ohm(standard: str) -> float:
 
 
 def full_bus_load_ohm(standard: str) -> float:
-    """The standard's own fully loaded bus: RS-485 120||120||32 UL; RS-422 100 || 10 x 4 kOhm."""
+    """The fully loaded bus by arithmetic: RS-485 120 || 120 || 32 UL (the load TIA-485-A's 54 Ohm stands for,
+    TI SLLA628); RS-422 the 100 Ohm test load || 10 x 4 kOhm receivers (TIA/EIA-422-B's stated figures)."""
     if standard == "rs422":
         return parallel_ohm(RS422_DESIGN_LOAD_OHM, *[RS422_MIN_INPUT_OHM] * RS422_MAX_RECEIVERS)
     return parallel_ohm(120.0, 120.0, input_resistance_ohm(RS485_UNIT_LOAD_BUDGET))
 
 
 def driver_load_holds_ohm(standard: str) -> float:
-    """Lowest driver load that HOLDS: the standard's fully loaded bus (51.7 Ohm RS-485, 80 Ohm RS-422), which the
-    54 / 100 Ohm test loads stand for (TI SLLA628). The tiny allowance keeps the exact full bus from rounding out."""
+    """Lowest driver load inside the limit: the fully loaded bus (51.7 Ohm RS-485, 80 Ohm RS-422). The tiny
+    allowance keeps the exact full bus from rounding out."""
     return full_bus_load_ohm(standard) * (1.0 - 1e-9)
 
 
 def check_driver_load(bus: Bus) -> list[Finding]:
-    """Rule "load.driver": terminators || receivers || bias vs the 54 Ohm (RS-485) / 100 Ohm (RS-422) design load."""
+    """Rule "load.driver": terminators || receivers || bias vs the fully loaded bus of the standard."""
     standard = bus.plan.standard
     design = design_load_ohm(standard)
-    holds_ohm = driver_load_holds_ohm(standard)
-    floor = LOAD_FLOOR_FRACTION * full_bus_load_ohm(standard)
+    limit_ohm = driver_load_holds_ohm(standard)
     edge_ohm = driver_load_ohm(bus, edge=True)
     dc_ohm = driver_load_ohm(bus, edge=False)
-    if edge_ohm >= holds_ohm:
-        verdict = Verdict.HOLDS
-    elif edge_ohm >= floor:
-        verdict = Verdict.TIGHT
-    else:
-        verdict = Verdict.BREAKS
+    corner_ohm = driver_load_ohm(corner_bus(bus, terminators=-1, bias_resistors=-1), edge=True)
+    verdict = band_verdict(edge_ohm >= limit_ohm, corner_ohm >= limit_ohm)
     r_s = bus.driver.source_ohm
     v_od = bus.driver.open_circuit_v * (edge_ohm / (edge_ohm + r_s)) if math.isfinite(edge_ohm) else None
     name = "RS-422" if standard == "rs422" else "RS-485"
     detail = (
         f"Edge view (RC terminators as their resistor): {_ohm_text(edge_ohm)}; DC view (RC terminators open): "
-        f"{_ohm_text(dc_ohm)}. HOLDS at or above the standard's fully loaded bus, {holds_ohm:.1f} Ω, which its "
-        f"{design:g} Ω test load stands for; TIGHT down to {floor:.1f} Ω ({LOAD_FLOOR_FRACTION:.0%} of it)."
+        f"{_ohm_text(dc_ohm)}; with terminators and bias resistors 5 % low: {_ohm_text(corner_ohm)}. The limit is "
+        f"the {name} fully loaded bus, {limit_ohm:.1f} Ω, which its {design:g} Ω test load stands for."
     )
     if v_od is not None:
         detail += f" The driver model ({bus.driver.open_circuit_v:g} V behind {r_s:g} Ω) gives {v_od:.2f} V into it."
@@ -312,20 +278,21 @@ def check_driver_load(bus: Bus) -> list[Finding]:
             title="Load on the driver (terminators, receivers and bias across the pair)",
             verdict=verdict,
             value=edge_ohm,
-            limit=holds_ohm,
+            limit=limit_ohm,
             unit="Ω",
             node=None,
             criterion=(
-                f"Terminators || receivers || bias (edge view) >= the {name} fully loaded bus of {holds_ohm:.1f} Ω "
-                f"(the {design:g} Ω test load stands for it); TIGHT to {floor:.1f} Ω"
+                f"Terminators || receivers || bias (edge view) >= the {name} fully loaded bus of {limit_ohm:.1f} Ω "
+                f"(the {design:g} Ω test load stands for it); tight when resistors 5 % low fall below it"
             ),
             source=(
-                "TIA/EIA-422-B (driver into 100 Ω, 10 receivers of 4 kΩ)"
+                "TIA/EIA-422-B: driver into 100 Ω, up to 10 receivers of at least 4 kΩ; 80 Ω is their parallel "
+                "(arithmetic, common practice)"
                 if standard == "rs422"
                 else "TIA-485-A (driver into 54 Ω: two 120 Ω terminators and 32 UL); TI SLLA628 RS-485 compliance "
                 "note (54 Ω stands for that full bus); TI SLLA272"
             ),
-            fix="" if verdict is Verdict.HOLDS else _driver_load_fix(bus, holds_ohm),
+            fix="" if verdict is Verdict.HOLDS else _driver_load_fix(bus, limit_ohm),
             detail=detail,
             limit_kind="min",
         )
@@ -336,7 +303,7 @@ def _ohm_text(value_ohm: float) -> str:
     return "open (no load)" if not math.isfinite(value_ohm) else si_format(value_ohm, "Ω")
 
 
-def _driver_load_fix(bus: Bus, design_ohm: float) -> str:
+def _driver_load_fix(bus: Bus, limit_ohm: float) -> str:
     plan = bus.plan
     wanted = 1 if plan.standard == "rs422" else 2
     steps = []
@@ -350,10 +317,10 @@ def _driver_load_fix(bus: Bus, design_ohm: float) -> str:
     if low:
         steps.append(f"raise terminators below {0.9 * z0:.0f} Ω to about {z0:.0f} Ω (the cable's impedance)")
     bias_eq = bias_equivalent_ohm(bus)
-    if math.isfinite(bias_eq) and bias_eq < 10 * design_ohm:
+    if math.isfinite(bias_eq) and bias_eq < 10 * limit_ohm:
         steps.append(f"raise the bias resistors (together {bias_eq:.0f} Ω across the pair)")
     if plan.standard == "rs485" and sum(n.unit_loads for n in plan.nodes) > 8:
         steps.append("use 1/4 or 1/8 UL receivers")
     if not steps:
         steps.append("use a cable of higher impedance with matching terminators, or fewer receivers")
-    return f"Raise the load to at least {design_ohm:.1f} Ω: " + "; ".join(steps) + "."
+    return f"Keep the load at or above {limit_ohm:.1f} Ω with resistors 5 % low: {either(steps)}."

@@ -4,8 +4,12 @@ whether the simulation confirms or overrides the rules of thumb for stubs and fo
 Rule "signal.integrity": one finding per receiver (plan order). The waveforms are the bit pattern of the plan
 (or the default PRBS) driven by the primary driver; on an RS-485 bus with transceiver nodes every node that
 may drive is simulated (up to 33; on larger buses a sample of 12 holding the usual worst cases, see
-drivers_to_simulate) and each receiver gets its worst case, naming the driver. Verdict criteria are those
-of engine.fixes.judge_metrics (threshold +/-200 mV, TIA-485-A / TIA-422-B receiver sensitivity).
+drivers_to_simulate) and each receiver gets its worst case, naming the driver. A waveform breaks by the
+criteria of engine.fixes.judge_metrics (threshold +/-200 mV, TIA-485-A / TIA-422-B receiver sensitivity). The
+tight band is that of every rule (engine.rules.margins): BREAKS when the waveform breaks with nominal parts,
+TIGHT when it holds with nominal parts but breaks at the receiver's worst tolerance corner (engine.tolerance:
+the primary driver's pattern with the cable, resistors, driver edge and receiver loads at the ends of their
+published tolerances), HOLDS when even that corner holds.
 
 Rule "signal.confirms": the rules of thumb judge the layout without a waveform; the simulation settles it.
 - "stub.length": the stubs the rule flags (TIGHT or BREAKS) are set to zero in one more simulation; the
@@ -20,17 +24,21 @@ as HOLDS here, with the rule's own finding still beside it. The termination conf
 simulated verdict only when the bus has no terminators; with terminators fitted its what-if is advice (HOLDS).
 """
 
+from dataclasses import dataclass
+
 import numpy as np
 from pairline.engine.bus import Bus, build_bus
 from pairline.engine.findings import Finding, Verdict, worst
-from pairline.engine.fixes import ComputedFix, SignalJudgement, compute_fixes, judge_bus, judge_metrics
-from pairline.engine.rules.cable_ends import required_ends_m, terminator_value_ohm
+from pairline.engine.fixes import ComputedFix, SignalJudgement, compute_fixes, judge_bus, level_breaks
+from pairline.engine.metrics import ReceiverMetrics, SampledLevels
+from pairline.engine.rules.cable_ends import end_name, required_ends_m, terminator_value_ohm
+from pairline.engine.rules.margins import band_verdict
 from pairline.engine.rules.signal_model import model_finding, tolerance_finding
 from pairline.engine.rules.stubs import check_stubs
 from pairline.engine.rules.unterminated import line_may_stay_unterminated
-from pairline.engine.tolerance import ReceiverTolerance, analyse_tolerances
-from pairline.engine.units import si_format
-from pairline.engine.waveform import pattern_duration_s, step_responses
+from pairline.engine.tolerance import ReceiverTolerance, ToleranceReport, analyse_tolerances
+from pairline.engine.units import length_text, si_format
+from pairline.engine.waveform import StepResponses, default_pattern, pattern_duration_s, step_responses
 
 MAX_STUB_CONFIRMS = 8  # flagged stubs reported one by one; the rest summarised
 MAX_WATCHED = 8  # receivers judged in a second (what-if) simulation on large buses
@@ -38,13 +46,12 @@ MAX_DRIVERS_ALL = 33  # every possible driver is simulated up to this many (32 t
 MAX_DRIVERS_SAMPLED = 12  # beyond, a sample of this many (drivers_to_simulate)
 _SOURCE = (
     "Simulated waveforms (reflection simulation of the whole bus); receiver threshold ±200 mV from TIA/EIA-485-A "
-    "and TIA/EIA-422-B; margins: common practice"
+    "and TIA/EIA-422-B; tolerance band from the parts' published tolerances (signal.tolerance)"
 )
 _CRITERION = (
-    "BREAKS: a bit not beyond ±200 mV somewhere in its sampling window, a fall back through the threshold after an "
-    "edge, inner eye < 0.4 V, or not settled by the sampling instant; with nominal parts or at the receiver's worst "
-    "tolerance corner. TIGHT: under 200 mV beyond the threshold, eye open < 50 % of a bit, jitter > 10 % of a bit, "
-    "or settling in the last quarter-bit."
+    "BREAKS: with nominal parts, a bit not beyond ±200 mV somewhere in its sampling window, a fall back through "
+    "the threshold after an edge, inner eye < 0.4 V, or not settled by the sampling instant. TIGHT: none of these "
+    "with nominal parts, but one of them at the receiver's worst tolerance corner."
 )
 
 
@@ -66,32 +73,82 @@ def drivers_to_simulate(bus: Bus) -> list[str]:
     return list(dict.fromkeys(picked))[:MAX_DRIVERS_SAMPLED]
 
 
-def _worst_over_drivers(bus: Bus) -> dict[str, tuple[SignalJudgement, str]]:
-    """Per receiver, its worst judgement over the nodes that may drive (drivers_to_simulate), with the driver."""
+@dataclass(frozen=True, slots=True)
+class Simulation:
+    """What the signal rule simulated, kept so that nothing downstream solves it again: the primary driver's edge
+    responses at every receiver, its bit pattern and each receiver's metrics; each receiver's worst judgement over
+    the drivers simulated, with the driver; and the fixes found by re-simulating."""
+
+    driver_name: str  # the primary driver
+    bits: str  # the pattern the primary driver sent
+    step: StepResponses  # the primary driver's edge responses at every receiver
+    metrics: tuple[ReceiverMetrics, ...]  # every receiver, plan order, from the primary driver
+    worst: tuple[tuple[SignalJudgement, str], ...]  # every receiver, plan order: its worst judgement and driver
+    fixes: tuple[ComputedFix, ...]  # re-simulated fixes for receivers the primary driver breaks
+    tolerance: ToleranceReport  # the primary driver's pattern over the component tolerances
+
+    def judgement(self, receiver: str) -> tuple[SignalJudgement, str]:
+        return next(item for item in self.worst if item[0].receiver == receiver)
+
+
+def simulate_bus(bus: Bus) -> Simulation:
+    """Simulate every node that may drive (drivers_to_simulate), judge each receiver by its worst case, find
+    re-simulated fixes for the receivers the primary driver breaks, and run the primary driver's pattern over the
+    component tolerances (engine.tolerance)."""
     drivers = drivers_to_simulate(bus)
+    primary = bus.plan.driver.name
     steps = step_responses(bus, drivers, max_time_s=pattern_duration_s(bus, bus.plan.test_pattern))
+    primary_step = steps.for_driver(primary)
+    bits = bus.plan.test_pattern or default_pattern(primary_step, 1.0 / bus.plan.bit_rate_bps)
     out: dict[str, tuple[SignalJudgement, str]] = {}
+    from_primary: dict[str, SignalJudgement] = {}
     for name in drivers:
-        judged = judge_bus(bus, driver_name=name, step=steps.for_driver(name))
+        step = primary_step if name == primary else steps.for_driver(name)
+        judged = judge_bus(bus, driver_name=name, step=step, pattern=bits if name == primary else None)
+        if name == primary:
+            from_primary = judged
         for rx, j in judged.items():
             if rx == name:  # a node does not listen to itself: its own receiver is not judged while it drives
                 continue
             old = out.get(rx)
             if old is None or _severity(j) > _severity(old[0]):
                 out[rx] = (j, name)
-    return out
+    failing = [rx for rx, (j, d) in out.items() if j.verdict is Verdict.BREAKS and d == primary]
+    metrics = tuple(from_primary[n.name].metrics for n in bus.plan.nodes)
+    return Simulation(
+        driver_name=primary,
+        bits=bits,
+        step=primary_step,
+        metrics=metrics,
+        worst=tuple(out[n.name] for n in bus.plan.nodes),
+        fixes=tuple(compute_fixes(bus, failing)) if failing else (),
+        tolerance=analyse_tolerances(bus, pattern=bits, nominal=(primary_step, metrics)),
+    )
 
 
 def _severity(j: SignalJudgement) -> tuple[int, float]:
     return (j.verdict.rank, -j.metrics.eye_height_v)
 
 
-def _fix_text(fixes: list[ComputedFix]) -> str:
+def fix_text(fixes: "tuple[ComputedFix, ...] | list[ComputedFix]") -> str:
     """Each computed fix makes every failing receiver pass on re-simulation, wherever the change is made: a long
     stub on one node can be what breaks its neighbours."""
     if not fixes:
         return ""
     return "Re-simulated fixes (any one): " + "; ".join(f.sentence for f in fixes) + "."
+
+
+def termination_step(bus: Bus) -> str:
+    """The terminator change that would widen a margin, worded for what the plan already has at the ends."""
+    ends = required_ends_m(bus)
+    value = terminator_value_ohm(bus, ends[0])
+    where = " and ".join(end_name(bus, e) for e in ends)
+    terms = bus.plan.terminations
+    if not terms:
+        return f"fit {value:g} Ω terminators at {where}"
+    if any(t.kind == "rc" for t in terms):
+        return f"replace the RC terminators with plain {value:g} Ω resistors at {where}"
+    return f"set the terminators at {where} to {value:g} Ω"
 
 
 def headline(j: SignalJudgement) -> tuple[str, float, float, str, str]:
@@ -110,23 +167,18 @@ def headline(j: SignalJudgement) -> tuple[str, float, float, str, str]:
     return "lowest sampled level", m.min_sample_v, th, "V", "min"
 
 
-def check_signal_integrity(bus: Bus) -> list[Finding]:
-    """Rules "signal.integrity" (one finding per receiver: the worse of its nominal verdict over the drivers and
-    its verdict at its worst tolerance corner), "signal.model" and "signal.tolerance" (what was assumed), and
-    "signal.confirms" (stubs, termination)."""
-    judged = _worst_over_drivers(bus)
+def check_signal_integrity(bus: Bus, simulation: Simulation | None = None) -> list[Finding]:
+    """Rules "signal.integrity" (one finding per receiver: BREAKS when its nominal waveform breaks for some driver,
+    TIGHT when only its worst tolerance corner does), "signal.model" and "signal.tolerance" (what was assumed),
+    and "signal.confirms" (stubs, termination); simulation: what simulate_bus(bus) returned, when the caller has
+    it already."""
+    sim = simulation if simulation is not None else simulate_bus(bus)
     primary = bus.plan.driver.name
-    tolerance = analyse_tolerances(bus)
-    corners = {t.receiver: t for t in tolerance.receivers}
-    failing = [rx for rx, (j, d) in judged.items() if j.verdict is Verdict.BREAKS and d == primary]
-    fixes = compute_fixes(bus, failing) if failing else []
     findings = []
-    for node in bus.plan.nodes:
-        j, driver = judged[node.name]
-        corner = corners[node.name]
-        at_corner = judge_metrics(corner.worst)
-        by_corner = at_corner.verdict.rank > j.verdict.rank
-        shown = at_corner if by_corner else j
+    fixes_by_node: dict[str, str] = {}
+    for node, (j, driver), corner in zip(bus.plan.nodes, sim.worst, sim.tolerance.receivers, strict=True):
+        verdict, reasons = banded(j, corner)
+        by_corner = verdict is Verdict.TIGHT
         m = j.metrics
         driven_by = "" if driver == primary else f" (worst case: '{driver}' driving)"
         detail = (
@@ -138,36 +190,37 @@ def check_signal_integrity(bus: Bus) -> list[Finding]:
             f"delay {si_format(m.propagation_delay_s, 's')} (0 V crossings), jitter {m.jitter_ui:.0%} of a bit. "
             + _corner_text(corner)
         )
-        if shown.reasons:
-            detail = "; ".join(shown.reasons) + ". " + detail
+        if reasons:
+            detail = "; ".join(reasons) + ". " + detail
+        steps = []
+        if node.stub_length_m > 0.0:
+            steps.append(f"shorten its {length_text(node.stub_length_m)} stub")
+        steps.append(termination_step(bus))
         fix = ""
         if by_corner:
             fix = (
-                f"'{node.name}' passes with nominal parts but its worst tolerance corner ({corner.worst_corner}) "
-                f"{shown.verdict.value}; {corner.dominant} moves its margin most ({corner.dominant_shift_v:+.2f} V): "
-                f"specify parts held closer in {corner.dominant}, or widen the margin (shorter stubs, Z0 terminators "
-                f"at both cable ends, a lower bit rate), then re-check."
-            )
-        elif j.verdict is Verdict.TIGHT:
-            fix = (
-                f"Margin at '{node.name}'{driven_by} is small ({'; '.join(j.reasons)}). To widen it: shorten its "
-                f"{node.stub_length_m:g} m stub, fit Z0 terminators at both cable ends, or lower the bit rate "
-                f"below {si_format(1.0 / m.bit_time_s, 'bit/s')}; then re-check."
+                f"'{node.name}' passes with nominal parts but breaks at its worst tolerance corner "
+                f"({corner.worst_corner}); {corner.dominant} moves its margin most ({corner.dominant_shift_v:+.2f} V). "
+                f"Specify parts held closer in {corner.dominant}, or widen the margin: "
+                + ", ".join(steps)
+                + f", or lower the bit rate below {si_format(1.0 / m.bit_time_s, 'bit/s')}; then re-check."
             )
         elif j.verdict is Verdict.BREAKS:
-            fix = _fix_text(fixes) if driver == primary else ""
+            fix = fix_text(sim.fixes) if driver == primary else ""
             if not fix:
                 fix = (
-                    f"No single change found by re-simulation for '{node.name}'{driven_by}: shorten its stub, "
-                    "terminate both cable ends with Z0 and lower the bit rate together, then re-check."
+                    f"No single change found by re-simulation for '{node.name}'{driven_by}: "
+                    + " and ".join(steps)
+                    + ", and lower the bit rate together, then re-check."
                 )
-        quantity, value, limit, unit, limit_kind = headline(shown)
+        fixes_by_node[node.name] = fix
+        quantity, value, limit, unit, limit_kind = corner_headline(corner.worst) if by_corner else headline(j)
         where = " at the worst tolerance corner" if by_corner else driven_by
         findings.append(
             Finding(
                 rule_id="signal.integrity",
                 title=f"Simulated waveform: {quantity}{where}",
-                verdict=shown.verdict,
+                verdict=verdict,
                 value=value,
                 limit=limit,
                 unit=unit,
@@ -180,11 +233,30 @@ def check_signal_integrity(bus: Bus) -> list[Finding]:
             )
         )
     findings.append(model_finding(bus))
-    findings.append(tolerance_finding(tolerance, bus.driver.rise_time_s))
-    from_primary = {rx: j for rx, (j, d) in judged.items() if d == primary} or None
-    findings += confirm_stub_rule(bus, from_primary)
+    findings.append(tolerance_finding(sim.tolerance, bus.driver.rise_time_s))
+    from_primary = {j.receiver: j for j, d in sim.worst if d == primary} or None
+    findings += confirm_stub_rule(bus, from_primary, fixes_by_node)
     findings.append(confirm_termination_rule(bus, from_primary))
     return findings
+
+
+def banded(j: SignalJudgement, corner: ReceiverTolerance) -> tuple[Verdict, tuple[str, ...]]:
+    """The receiver's verdict in the tolerance band (engine.rules.margins.band_verdict) and its reasons: BREAKS as
+    judged with nominal parts; TIGHT when only its worst tolerance corner breaks (the corner's reasons); else
+    HOLDS."""
+    at_corner = level_breaks(corner.worst)
+    verdict = band_verdict(j.verdict is not Verdict.BREAKS, not at_corner)
+    if verdict is not Verdict.TIGHT:
+        return verdict, j.reasons
+    return verdict, tuple(f"at the worst tolerance corner ({corner.worst_corner}) {r}" for r in at_corner)
+
+
+def corner_headline(levels: SampledLevels) -> tuple[str, float, float, str, str]:
+    """headline() of a tolerance corner: its lowest sampled level, or its eye when that is what breaks."""
+    th = levels.threshold_v
+    if levels.sample_errors == 0 and levels.eye_height_v < 2.0 * th:
+        return "inner eye height", levels.eye_height_v, 2.0 * th, "V", "min"
+    return "lowest sampled level", levels.min_sample_v, th, "V", "min"
 
 
 def _corner_text(t: ReceiverTolerance) -> str:
@@ -198,8 +270,11 @@ def _corner_text(t: ReceiverTolerance) -> str:
     return text
 
 
-def confirm_stub_rule(bus: Bus, judged: dict[str, SignalJudgement] | None = None) -> list[Finding]:
-    """Rule "signal.confirms" for "stub.length": each flagged stub's node with and without the flagged stubs."""
+def confirm_stub_rule(
+    bus: Bus, judged: dict[str, SignalJudgement] | None = None, fixes_by_node: dict[str, str] | None = None
+) -> list[Finding]:
+    """Rule "signal.confirms" for "stub.length": each flagged stub's node with and without the flagged stubs.
+    fixes_by_node: the fix sentence of each receiver's signal.integrity finding, which a confirmation repeats."""
     stub_findings = {f.node: f for f in check_stubs(bus) if f.node is not None}
     flagged = [n for n, f in stub_findings.items() if f.verdict is not Verdict.HOLDS]
     if judged is None or any(n.name not in judged for n in bus.plan.nodes if n.name in flagged):
@@ -220,9 +295,7 @@ def confirm_stub_rule(bus: Bus, judged: dict[str, SignalJudgement] | None = None
                 node=None,
                 criterion="The stub rule passes every stub; the simulation judges every receiver.",
                 source=_SOURCE,
-                fix=""
-                if sim is Verdict.HOLDS
-                else f"Follow the re-simulated fixes of the signal.integrity finding at '{worst_rx.receiver}'.",
+                fix="" if sim is Verdict.HOLDS else _receiver_fix(bus, worst_rx, fixes_by_node),
                 detail=(
                     f"simulation: worst receiver '{worst_rx.receiver}' {sim.value} with ringback "
                     f"{worst_rx.metrics.undershoot_v:.2f} V and {worst_rx.metrics.threshold_recrossings} re-crossing(s)"
@@ -300,6 +373,14 @@ def confirm_stub_rule(bus: Bus, judged: dict[str, SignalJudgement] | None = None
             )
         )
     return out
+
+
+def _receiver_fix(bus: Bus, j: SignalJudgement, fixes_by_node: dict[str, str] | None) -> str:
+    """The fix a confirmation repeats: the receiver's own signal.integrity fix when there is one."""
+    own = (fixes_by_node or {}).get(j.receiver, "")
+    if own:
+        return f"As for '{j.receiver}' under signal.integrity: {own}"
+    return f"At '{j.receiver}': {termination_step(bus)}, or lower the bit rate, then re-check."
 
 
 def _watch_list(bus: Bus, judged: dict[str, SignalJudgement] | None) -> list[str] | None:

@@ -5,8 +5,9 @@ electrically invisible while its delay is a small part of the edge. TI SLLA272 g
     L_stub <= 0.1 * t_r * VF * c0          (stub delay at most a tenth of the 10-90 % rise time)
 with t_r the driver's rise time, VF the cable's velocity factor and c0 the speed of light.
 
-Verdicts: HOLDS up to 80 % of that length, TIGHT from 80 % to 100 %, BREAKS beyond. The looser published
-variants (stub delay <= 1/3 of t_r; CiA 301 critical length) are named in the detail only.
+Verdicts: BREAKS beyond that length; TIGHT when the stub as built, up to 10 % longer than drawn (routing and
+service loops; engine.rules.margins), would be beyond it, i.e. from 1/1.1 = 91 % of the limit; HOLDS below.
+The looser published variants (stub delay <= 1/3 of t_r; CiA 301 critical length) are named in the detail only.
 
 Every node that may drive is assumed to have the driver's rise time (the plan states one driver class); the
 driver's own stub is checked like any node's. A slower driver allows longer stubs but must still switch
@@ -17,10 +18,10 @@ import math
 
 from pairline.engine.bus import Bus
 from pairline.engine.findings import Finding, Verdict
+from pairline.engine.rules.margins import band_verdict, long_run_factor
 from pairline.engine.units import SPEED_OF_LIGHT_M_PER_S, length_text, si_format
 
 STUB_RISE_FRACTION = 0.1  # TI SLLA272
-TIGHT_FROM_FRACTION = 0.8  # TIGHT from 80 % of the limit
 MAX_TRANSITION_BIT_FRACTION = 0.3  # driver transition <= 30 % of a bit (TI SLLA628)
 _SOURCE = "TI SLLA272 The RS-485 Design Guide (stub delay <= 1/10 of the driver rise time)"
 
@@ -36,12 +37,8 @@ def rise_time_needed_s(stub_length_m: float, velocity_factor: float) -> float:
 
 
 def stub_verdict(stub_length_m: float, limit_m: float) -> Verdict:
-    """HOLDS up to 80 % of the limit, TIGHT to 100 %, BREAKS beyond."""
-    if stub_length_m > limit_m:
-        return Verdict.BREAKS
-    if stub_length_m > TIGHT_FROM_FRACTION * limit_m:
-        return Verdict.TIGHT
-    return Verdict.HOLDS
+    """BREAKS beyond the limit, TIGHT when the stub 10 % longer as built would be beyond it, else HOLDS."""
+    return band_verdict(stub_length_m <= limit_m, stub_length_m * long_run_factor() <= limit_m)
 
 
 def stub_lengths_m(bus: Bus) -> dict[str, float]:
@@ -80,14 +77,15 @@ def check_stubs(bus: Bus) -> list[Finding]:
         verdict = stub_verdict(length, limit)
         detail = (
             f"Rise time {si_format(rise, 's')}, velocity factor {vf:g}: limit {length_text(limit)}. HOLDS to "
-            f"{length_text(TIGHT_FROM_FRACTION * limit)} (80 %), TIGHT to {length_text(limit)}. "
+            f"{length_text(limit / long_run_factor())} (a stub 10 % longer as built still fits), TIGHT to "
+            f"{length_text(limit)}. "
             f"Looser published variants (stub delay <= 1/3 of the rise time) would allow "
             f"{length_text(limit * 10 / 3)}."
         )
         fix = ""
         if verdict is not Verdict.HOLDS:
-            needed = rise_time_needed_s(length, vf)
-            keep = TIGHT_FROM_FRACTION * limit if verdict is Verdict.TIGHT else limit
+            needed = rise_time_needed_s(length * long_run_factor(), vf)  # holds as built, 10 % longer
+            keep = limit / long_run_factor()  # so the stub holds as built, 10 % longer included
             fix = f"Shorten the stub of node '{name}' to <= {_length_text(keep)}"
             if needed <= slowest_ok_s:
                 fix += f", or use a driver with >= {si_format(needed, 's')} rise time."
@@ -107,10 +105,14 @@ def check_stubs(bus: Bus) -> list[Finding]:
                 limit=limit,
                 unit="m",
                 node=name,
-                criterion="Stub length <= 0.1 × t_r × VF × c0 (stub delay at most a tenth of the rise time)",
+                criterion="Stub length <= 0.1 × t_r × VF × c0 (stub delay at most a tenth of the rise time); "
+                "tight when the stub 10 % longer as built would exceed it",
                 source=_SOURCE,
                 fix=fix,
                 detail=detail,
+                figures=(
+                    ("max_bit_rate_bps", MAX_TRANSITION_BIT_FRACTION / max(rise, rise_time_needed_s(length, vf))),
+                ),
             )
         )
     return findings

@@ -1,21 +1,19 @@
-"""Termination: where the terminators sit, their values, and RC (AC) terminators.
+"""Termination: where the terminators sit, and their values.
 
 Placement. One terminator at each cable end that needs one (engine.rules.cable_ends: both ends for RS-485,
 the far end for RS-422 driven from one end), none elsewhere. Whether a missing or misplaced terminator
 breaks the bus depends on whether the line may stay unterminated (engine.rules.unterminated).
 
 Value. A matched end presents Z0. Receivers or a bias network lumped at the same end (within the end
-tolerance) sit in parallel with the terminator, so the resistor is raised to R_T = Z0 / (1 - Z0/R_P)
-(H. Johnson, M. Graham, High-Speed Digital Design, sec. 4.4: loaded line). The verdict reads the reflection
-coefficient of the whole end, Gamma = (R_T||R_P - Z0)/(R_T||R_P + Z0): HOLDS |Gamma| <= 0.05 (about 10 % off),
-TIGHT <= 0.12, which covers a 120 Ohm terminator on the 100..150 Ohm cables RS-485 accepts (120 +/- 30 Ohm,
-Intersil high-speed RS-485 tutorial), BREAKS beyond.
+tolerance) sit in parallel with the terminator, so the resistor is raised until R_T || R_P = Z0, i.e.
+R_T = Z0 / (1 - Z0/R_P) (parallel resistances; for a bias network at the end this is the matched bias end
+R_T2 = 2 R_B Z0 / (2 R_B - Z0) of J. Axelson, Serial Port Complete, ch. 7). The verdict reads the reflection
+coefficient of the whole end, Gamma = (R_T||R_P - Z0)/(R_T||R_P + Z0), against |Gamma| <= 1/7 (0.143): the
+reflection of a 120 Ohm terminator on the lowest cable impedance RS-485 accepts, 90 Ohm (120 +/- 30 Ohm,
+Intersil high-speed RS-485 tutorial). It is TIGHT when the worst corner of the terminator's 5 % and the cable's
+Z0 tolerance (engine.rules.margins) goes beyond that.
 
-RC (AC) terminators. R should match Z0 as above; the time constant RC should be long against the round
-trip, so the capacitor still looks like a short while reflections arrive (RC >> 2 t_pd; B&B application
-note); HOLDS from 3 x, TIGHT from 1 x, BREAKS below. It should also be short against a bit: the idle bus
-reaches its bias level only about 3 RC after the drivers release, so HOLDS when 3 RC <= T_bit, TIGHT beyond
-(the data still pass: the terminator then acts as a plain resistor while data flow).
+RC (AC) terminators are checked by engine.rules.rc_termination.
 """
 
 import math
@@ -32,25 +30,22 @@ from pairline.engine.rules.cable_ends import (
     required_ends_m,
     terminator_value_ohm,
 )
+from pairline.engine.rules.margins import RESISTOR_TOLERANCE, band_verdict, z0_tolerance
 from pairline.engine.rules.preferred import nearest_preferred
-from pairline.engine.rules.unterminated import line_may_stay_unterminated, one_way_delay_s
-from pairline.engine.units import length_text, parallel_ohm, si_format
+from pairline.engine.rules.unterminated import line_may_stay_unterminated
+from pairline.engine.units import length_text, parallel_ohm
 
-GAMMA_HOLDS = 0.05
-GAMMA_TIGHT = 0.12
-RC_ROUND_TRIPS_HOLDS = 3.0
-RC_SETTLE_TIME_CONSTANTS = 3.0
+GAMMA_LIMIT = 30.0 / 210.0  # (120 - 90) / (120 + 90): a 120 Ohm terminator on a 90 Ohm cable
 
 _PLACEMENT_SOURCE = (
     "TI SLLA272 The RS-485 Design Guide and B&B Electronics RS-422/485 application note (both cable ends); "
     "National Semiconductor AN-903 (single-driver RS-422: far end only)"
 )
-_VALUE_SOURCE = (
-    "R_T = Z0 matches the line (TI SLLA272); R_T = Z0/(1 - Z0/R_P) for lumped loads at the end (H. Johnson, "
-    "M. Graham, High-Speed Digital Design, sec. 4.4); RS-485 accepts Z0 120 +/- 30 Ω (Intersil high-speed "
-    "RS-485 tutorial)"
+VALUE_SOURCE = (
+    "R_T = Z0 matches the line (TI SLLA272); R_T || R_P = Z0 for lumped loads at the end (parallel resistances; "
+    "matched bias end: J. Axelson, Serial Port Complete, ch. 7); |Γ| <= 1/7 from the 120 +/- 30 Ω cables RS-485 "
+    "accepts (Intersil high-speed RS-485 tutorial); tight band from engine.rules.margins"
 )
-_RC_SOURCE = "B&B Electronics RS-422/485 application note (AC termination: R = Z0, RC >> round-trip delay)"
 
 
 # --- closed forms ---------------------------------------------------------------------------------------
@@ -229,12 +224,21 @@ def _placement_findings(bus: Bus) -> list[Finding]:
     return findings
 
 
-def _gamma_verdict(gamma: float) -> Verdict:
-    if abs(gamma) <= GAMMA_HOLDS:
-        return Verdict.HOLDS
-    if abs(gamma) <= GAMMA_TIGHT:
-        return Verdict.TIGHT
-    return Verdict.BREAKS
+def corner_gamma(bus: Bus, resistance_ohm: float, lumped_ohm: float) -> float:
+    """Largest |Gamma| of an end over the corners of the terminator's 5 % and the cable's Z0 tolerance."""
+    z0 = bus.cable.z0_ohm
+    tol_z0 = z0_tolerance(bus)
+    return max(
+        abs(reflection_coefficient(parallel_ohm(resistance_ohm * (1 + r), lumped_ohm), z0 * (1 + z)))
+        for r in (-RESISTOR_TOLERANCE, RESISTOR_TOLERANCE)
+        for z in (-tol_z0, tol_z0)
+    )
+
+
+def gamma_verdict(bus: Bus, resistance_ohm: float, lumped_ohm: float) -> Verdict:
+    """BREAKS beyond |Gamma| 1/7 nominal, TIGHT beyond it at the worst corner, else HOLDS."""
+    gamma = reflection_coefficient(parallel_ohm(resistance_ohm, lumped_ohm), bus.cable.z0_ohm)
+    return band_verdict(abs(gamma) <= GAMMA_LIMIT, corner_gamma(bus, resistance_ohm, lumped_ohm) <= GAMMA_LIMIT)
 
 
 def end_match(
@@ -242,7 +246,7 @@ def end_match(
 ) -> tuple[float, float, float]:
     """(R_P, ideal R_T, Gamma of the whole end) for a terminator of resistance_ohm at a position, with others_ohm
     (further terminators there) beside the lumped loads. Source: Gamma = (Z_L - Z0)/(Z_L + Z0), D. M. Pozar,
-    Microwave Engineering, sec. 2.3; R_T = Z0/(1 - Z0/R_P), H. Johnson, M. Graham, High-Speed Digital Design, 4.4."""
+    Microwave Engineering, sec. 2.3; R_T || R_P = Z0 solved for R_T (parallel resistances)."""
     z0 = bus.cable.z0_ohm
     r_p = parallel_ohm(lumped_load_ohm(bus, position_m), *others_ohm)
     ideal = corrected_termination_ohm(z0, r_p)
@@ -267,13 +271,15 @@ def _value_findings(bus: Bus) -> list[Finding]:
         rc_terms = [t.resistance_ohm for t in terms if t.kind == "rc"]
         r_t = parallel_ohm(*parallel_terms)
         r_p, ideal, gamma = end_match(bus, end, r_t, rc_terms)
-        verdict = _gamma_verdict(gamma)
+        verdict = gamma_verdict(bus, r_t, r_p)
+        corner = corner_gamma(bus, r_t, r_p)
         name = end_name(bus, end)
         resistor = f"{r_t:.4g} Ω" + (" (terminators in parallel)" if len(parallel_terms) > 1 else "")
         detail = (
-            f"Terminator {resistor}; other loads lumped at this end {_ohm(r_p)}; together "
-            f"{_ohm(parallel_ohm(r_t, r_p))} on a {z0:g} Ω cable: reflection coefficient {gamma:+.3f}. "
-            f"The ideal terminator here is {_ohm(ideal)}. Holds to |Γ| {GAMMA_HOLDS}, tight to {GAMMA_TIGHT}."
+            f"Terminator {resistor}; other loads lumped at this end {ohm_text(r_p)}; together "
+            f"{ohm_text(parallel_ohm(r_t, r_p))} on a {z0:g} Ω cable: reflection coefficient {gamma:+.3f}. "
+            f"The ideal terminator here is {ohm_text(ideal)}. With the terminator 5 % off and the cable's Z0 "
+            f"{z0_tolerance(bus):.0%} off, |Γ| reaches {corner:.3f}; the limit is {GAMMA_LIMIT:.3f}."
         )
         if plan.standard == "rs485" and not 90.0 <= z0 <= 150.0:
             detail += f" The cable's {z0:g} Ω is outside the 120 ± 30 Ω RS-485 accepts."
@@ -281,7 +287,7 @@ def _value_findings(bus: Bus) -> list[Finding]:
         if verdict is not Verdict.HOLDS:
             if math.isinf(ideal):
                 fix = (
-                    f"Remove the terminator at {name}: the loads there ({_ohm(r_p)}) already load the line "
+                    f"Remove the terminator at {name}: the loads there ({ohm_text(r_p)}) already load the line "
                     f"below its {z0:g} Ω; move the bias network or receivers off the end."
                 )
             else:
@@ -292,12 +298,13 @@ def _value_findings(bus: Bus) -> list[Finding]:
                 f"Reflection at {name} with its {r_t:.4g} Ω terminator",
                 verdict,
                 abs(gamma),
-                GAMMA_TIGHT,
+                GAMMA_LIMIT,
                 "",
                 None,
-                f"|Γ| of the whole end (terminator || lumped loads R_P vs Z0) <= {GAMMA_HOLDS} holds, <= "
-                f"{GAMMA_TIGHT} tight; ideal R_T = Z0/(1 - Z0/R_P)",
-                _VALUE_SOURCE,
+                f"|Γ| of the whole end (terminator || lumped loads R_P vs Z0) <= 1/7 ({GAMMA_LIMIT:.3f}); tight "
+                "when the terminator 5 % off and the cable's Z0 at its tolerance exceed it; "
+                "ideal R_T = Z0/(1 - Z0/R_P)",
+                VALUE_SOURCE,
                 fix,
                 detail,
             )
@@ -305,7 +312,8 @@ def _value_findings(bus: Bus) -> list[Finding]:
     return findings
 
 
-def _ohm(value: float) -> str:
+def ohm_text(value: float) -> str:
+    """A resistance for a sentence: "120.0 Ω", or "none (open)" for an open end."""
     return "none (open)" if math.isinf(value) else f"{value:.1f} Ω"
 
 
@@ -314,121 +322,22 @@ def _at(bus: Bus, position_m: float) -> str:
     return length_text(position_m)
 
 
-# --- RC terminators ---------------------------------------------------------------------------------------
-
-
-def rc_capacitance_window_f(bus: Bus, resistance_ohm: float) -> tuple[float, float]:
-    """(C_min, C_max): RC >= 3 round trips and 3 RC <= one bit. Empty when C_min > C_max."""
-    round_trip = 2.0 * one_way_delay_s(bus)
-    t_bit = 1.0 / bus.plan.bit_rate_bps
-    return RC_ROUND_TRIPS_HOLDS * round_trip / resistance_ohm, t_bit / (RC_SETTLE_TIME_CONSTANTS * resistance_ohm)
-
-
-def check_ac_termination(bus: Bus) -> list[Finding]:
-    """Rule "termination.rc": per RC terminator, R vs Z0, RC vs the round trip and RC vs a bit."""
-    findings = []
-    round_trip = 2.0 * one_way_delay_s(bus)
-    t_bit = 1.0 / bus.plan.bit_rate_bps
-    for term in bus.plan.terminations:
-        if term.kind != "rc" or term.capacitance_f is None:
-            continue
-        end = nearest_end_m(bus, term.position_m)
-        where = end_name(bus, end) if end is not None else f"{_at(bus, term.position_m)}"
-        r = term.resistance_ohm
-        tau = r * term.capacitance_f
-        part = f"RC terminator at {where} ({r:g} Ω + {si_format(term.capacitance_f, 'F')})"
-        c_lo, c_hi = rc_capacitance_window_f(bus, r)
-        if c_lo <= c_hi:
-            change = f"Use a capacitor from {si_format(c_lo, 'F')} to {si_format(c_hi, 'F')} in the {part}"
-        else:
-            change = (
-                f"No capacitor suits both the round trip and the bit in the {part}: use a parallel terminator "
-                "there (with a bias network sized for it)"
-            )
-        others = [t.resistance_ohm for t in bus.plan.terminations if t is not term and t.position_m == term.position_m]
-        r_p, ideal, gamma = end_match(bus, term.position_m, r, others)
-        v_r = _gamma_verdict(gamma)
-        findings.append(
-            Finding(
-                "termination.rc",
-                f"Reflection at {where} with its RC terminator's {r:g} Ω",
-                v_r,
-                abs(gamma),
-                GAMMA_TIGHT,
-                "",
-                None,
-                f"|Γ| of the end (R || lumped loads vs Z0, the capacitor a short during an edge) <= {GAMMA_HOLDS} "
-                f"holds, <= {GAMMA_TIGHT} tight",
-                _RC_SOURCE + "; " + _VALUE_SOURCE,
-                "" if v_r is Verdict.HOLDS else f"Use {nearest_preferred(ideal):g} Ω in the {part}.",
-                f"Reflection coefficient {gamma:+.3f}; other loads lumped here {_ohm(r_p)}; ideal resistor "
-                f"{_ohm(ideal)}.",
-            )
-        )
-        if tau >= RC_ROUND_TRIPS_HOLDS * round_trip:
-            v_t = Verdict.HOLDS
-        elif tau >= round_trip:
-            v_t = Verdict.TIGHT
-        else:
-            v_t = Verdict.BREAKS
-        findings.append(
-            Finding(
-                "termination.rc",
-                f"RC terminator at {where}: time constant, longer than the round trip",
-                v_t,
-                tau,
-                round_trip,
-                "s",
-                None,
-                "RC >> round-trip delay 2·t_pd: holds from 3 round trips, tight from 1, breaks below",
-                _RC_SOURCE,
-                "" if v_t is Verdict.HOLDS else change + ".",
-                f"RC {si_format(tau, 's')}; round trip {si_format(round_trip, 's')} (holds from "
-                f"{si_format(RC_ROUND_TRIPS_HOLDS * round_trip, 's')}). A shorter RC lets the capacitor charge "
-                "while reflections still arrive, so the end is no longer matched.",
-                limit_kind="min",
-            )
-        )
-        settle_s = RC_SETTLE_TIME_CONSTANTS * tau
-        v_b = Verdict.HOLDS if settle_s <= t_bit else Verdict.TIGHT
-        findings.append(
-            Finding(
-                "termination.rc",
-                f"RC terminator at {where}: settling time 3·RC, within one bit",
-                v_b,
-                settle_s,
-                t_bit,
-                "s",
-                None,
-                "3 RC <= one bit, so the idle bus reaches its bias level within a bit after the drivers release",
-                _RC_SOURCE,
-                ""
-                if v_b is Verdict.HOLDS
-                else (
-                    change + f", or leave at least {si_format(settle_s, 's')} of idle after each turnaround before "
-                    "the next transmission."
-                ),
-                f"3 RC {si_format(settle_s, 's')}, one bit {si_format(t_bit, 's')}; with RC longer than that the "
-                "terminator acts as a plain resistor while data flow (the data still pass).",
-            )
-        )
-    return findings
-
-
 def placement_verdict(bus: Bus) -> Verdict:
     """Worst verdict of the placement findings (used by property tests and summaries)."""
     return worst([f.verdict for f in _placement_findings(bus)])
 
 
 __all__ = [
-    "check_ac_termination",
     "check_termination",
     "corrected_termination_ohm",
+    "VALUE_SOURCE",
+    "ohm_text",
     "end_match",
     "ends_to_terminate_m",
-    "GAMMA_HOLDS",
+    "GAMMA_LIMIT",
+    "corner_gamma",
+    "gamma_verdict",
     "placement_verdict",
-    "rc_capacitance_window_f",
     "recommended_termination_ohm",
     "reflection_coefficient",
 ]

@@ -1,19 +1,16 @@
 """DC differential level at every receiver through the cable's loop resistance (rule "signal.dc_level").
 
-Model (differential mode, DC). The pair is one conductor path whose series resistance is the loop of both
-wires, 2 * R' per metre. Every element hangs from a point of the trunk, at the end of its stub when it has one:
-the driver is a Thevenin source (open-circuit voltage behind its source resistance), a receiver is its input
-resistance (12 kOhm per unit load), a parallel terminator is its resistance (an RC terminator is open at DC)
-and the failsafe bias network is a Thevenin source of its supply voltage behind pull-up + pull-down. Node
-voltages come from one nodal solve G v = i over the trunk points and stub ends (a DC ladder).
-
-When the driver drives, the bias network pushes the receivers toward its idle level; in one of the two
-driven states it works against the driver. By superposition the weaker state at each receiver has
-|V_AB| = V_driver - |V_bias| (the driver's share with the bias supply off, minus the bias share with the
-driver's source off). That weaker state is what the rule checks against the receiver threshold.
+The DC network is engine.dc's ladder. When the driver drives, the bias network pushes the receivers toward its
+idle level; in one of the two driven states it works against the driver. By superposition the weaker state at
+each receiver has |V_AB| = V_driver - |V_bias| (the driver's share with the bias supply off, minus the bias share
+with the driver's source off). That weaker state is what the rule checks against the receiver threshold.
 
 On RS-485 every transceiver node may talk too; each receiver's finding is its weakest level over all talkers
 (a transceiver node is assumed to drive like the primary driver's class; see talker_levels).
+
+Verdict (engine.rules.margins): BREAKS below the 200 mV receiver threshold; TIGHT when the worst corner falls
+below it: the driver's swing 5 % low (its supply), terminators 5 % low, the bias network 5 % strong on a supply
+5 % high, and the loop resistance of a run 10 % longer than drawn at 50 Celsius.
 """
 
 import math
@@ -21,127 +18,17 @@ from dataclasses import dataclass
 
 import numpy as np
 from pairline.engine.bus import Bus
+from pairline.engine.dc import DcElement, fixed_load_elements, loop_resistance_ohm, receiver_elements, solve_dc_cases_v
 from pairline.engine.findings import Finding, Verdict
 from pairline.engine.plan import input_resistance_ohm
-from pairline.engine.rules.loads import bias_supply_v
+from pairline.engine.rules.margins import band_verdict, corner_bus
 
 RULE_ID = "signal.dc_level"
 RECEIVER_THRESHOLD_V = 0.200  # TIA/EIA-485-A and TIA/EIA-422-B receiver input sensitivity
-NOISE_MARGIN_V = 0.300  # Pairline's allowance for noise picked up on the pair, on top of the threshold
-_MIN_BRANCH_OHM = 1e-6  # stands in for a zero-resistance wire or source so the nodal matrix stays regular
 SOURCE = (
     "TIA/EIA-485-A and TIA/EIA-422-B receiver sensitivity +/-200 mV; loop resistance of 24 AWG copper "
-    "84.2 Ω/km per conductor (ASTM B258); noise margin 300 mV: Pairline's own allowance"
+    "84.2 Ω/km per conductor (ASTM B258); tight band from the tolerances of engine.rules.margins"
 )
-
-
-@dataclass(frozen=True, slots=True)
-class DcElement:
-    """One branch from the pair to the return conductor, at a trunk point or at the end of a stub."""
-
-    name: str
-    position_m: float
-    stub_m: float
-    resistance_ohm: float  # math.inf for an open branch
-    source_v: float = 0.0  # Thevenin voltage in series with resistance_ohm
-
-
-def loop_resistance_ohm(length_m: float, resistance_ohm_per_m: float) -> float:
-    """Series resistance of a pair run: both conductors, R_loop = 2 * R' * L."""
-    return 2.0 * resistance_ohm_per_m * length_m
-
-
-def solve_dc_v(
-    elements: list[DcElement], trunk_length_m: float, resistance_ohm_per_m: float, sources_v: np.ndarray
-) -> np.ndarray:
-    """Voltage across the pair at each element's own terminal, for several source settings at once.
-
-    sources_v  # (n_elements, n_cases): the Thevenin voltage of every element in each case
-    returns    # (n_elements, n_cases) in volts
-    """
-    resistance_ohm = np.broadcast_to([e.resistance_ohm for e in elements], (sources_v.shape[1], len(elements)))
-    v = solve_dc_cases_v(elements, resistance_ohm, sources_v.T, trunk_length_m, resistance_ohm_per_m)
-    return np.ascontiguousarray(v.T)
-
-
-def solve_dc_cases_v(
-    elements: list[DcElement],
-    resistance_ohm: np.ndarray,
-    sources_v: np.ndarray,
-    trunk_length_m: float,
-    resistance_ohm_per_m: float,
-) -> np.ndarray:
-    """Voltage at each element's own terminal in several cases that may differ in element resistances too.
-
-    resistance_ohm, sources_v  # (n_cases, n_elements): each element's Thevenin resistance and voltage per case
-    returns                    # (n_cases, n_elements) in volts
-
-    Nodal analysis on the trunk points (every element position plus both trunk ends), joined by sections of
-    loop resistance 2 R' L. A stub is folded into its element (stub loop resistance in series with the
-    element's Thevenin resistance), which leaves a chain: a tridiagonal system, solved by the Thomas
-    algorithm in O(n), batched over the cases. The stub end's voltage then follows from the element's current.
-    """
-    n_cases = resistance_ohm.shape[0]
-    positions = np.unique(np.array([0.0, trunk_length_m] + [e.position_m for e in elements]))
-    n = positions.size
-    at = np.searchsorted(positions, [e.position_m for e in elements])
-    stub_ohm = np.array([loop_resistance_ohm(e.stub_m, resistance_ohm_per_m) for e in elements])
-    branch_ohm = np.maximum(resistance_ohm, _MIN_BRANCH_OHM) + stub_ohm
-    branch_siemens = np.where(np.isinf(branch_ohm), 0.0, 1.0 / branch_ohm)  # (n_cases, n_elements)
-    # Internally trunk points come first, (n, n_cases), so each sweep step reads one contiguous row.
-    diag = np.zeros((n, n_cases))
-    rhs = np.zeros((n, n_cases))
-    np.add.at(diag, at, branch_siemens.T)
-    np.add.at(rhs, at, (branch_siemens * sources_v).T)
-    link_siemens = 1.0 / np.maximum(2.0 * resistance_ohm_per_m * np.diff(positions), _MIN_BRANCH_OHM)  # (n - 1,)
-    diag += 1e-15  # a tiny leak to the return conductor keeps a bus with every load open solvable
-    diag[:-1] += link_siemens[:, None]
-    diag[1:] += link_siemens[:, None]
-    v_trunk = _thomas_v(link_siemens, diag, rhs).T  # (n_cases, n)
-    v_tap = v_trunk[:, at]  # (n_cases, n_elements)
-    current_a = (v_tap - sources_v) * branch_siemens  # into each element from the trunk
-    return np.asarray(v_tap - current_a * stub_ohm, dtype=float)
-
-
-def _thomas_v(link_siemens: np.ndarray, diag: np.ndarray, rhs: np.ndarray) -> np.ndarray:
-    """Solve the chain's tridiagonal system (off-diagonals -link_siemens) for every case: forward sweep,
-    back substitution. diag, rhs  # (n, n_cases)"""
-    n = diag.shape[0]
-    c_prime = np.zeros(diag.shape)
-    d_prime = np.zeros(rhs.shape)
-    if n > 1:
-        c_prime[0] = -link_siemens[0] / diag[0]
-    d_prime[0] = rhs[0] / diag[0]
-    for k in range(1, n):
-        denom = diag[k] + link_siemens[k - 1] * c_prime[k - 1]
-        if k < n - 1:
-            c_prime[k] = -link_siemens[k] / denom
-        d_prime[k] = (rhs[k] + link_siemens[k - 1] * d_prime[k - 1]) / denom
-    v = np.zeros(rhs.shape)
-    v[-1] = d_prime[-1]
-    for k in range(n - 2, -1, -1):
-        v[k] = d_prime[k] - c_prime[k] * v[k + 1]
-    return v
-
-
-def receiver_elements(bus: Bus) -> list[DcElement]:
-    """Every plan node as a receiver load (a transceiver node that is not driving listens like a receiver)."""
-    return [
-        DcElement(n.name, n.position_m, n.stub_length_m, input_resistance_ohm(n.unit_loads)) for n in bus.plan.nodes
-    ]
-
-
-def fixed_load_elements(bus: Bus) -> list[DcElement]:
-    """Parallel terminators (RC ones are open at DC) and the bias network with its supply."""
-    loads = [
-        DcElement(f"terminator at {t.position_m:g} m", t.position_m, 0.0, t.resistance_ohm)
-        for t in bus.plan.terminations
-        if t.kind == "parallel"
-    ]
-    if bus.plan.bias is not None:
-        b = bus.plan.bias
-        loads.append(DcElement("bias network", b.position_m, 0.0, b.pull_up_ohm + b.pull_down_ohm, bias_supply_v(bus)))
-    return loads
 
 
 @dataclass(frozen=True, slots=True)
@@ -216,10 +103,24 @@ def talker_levels(bus: Bus) -> TalkerLevels:
     )
 
 
+def dc_corner_bus(bus: Bus) -> Bus:
+    """The bus at the corner that lowers every driven level (see the module docstring)."""
+    return corner_bus(bus, terminators=-1, bias_resistors=-1, bias_supply=1, driver_output=-1, cable_resistance=1)
+
+
+def _weakest(levels: TalkerLevels) -> tuple[np.ndarray, np.ndarray]:
+    """(weakest level over the talkers, index of that talker) per receiver; a node never hears itself."""
+    weak_v = np.where(np.isnan(levels.weak_state_v), np.inf, levels.weak_state_v)  # (n_talkers, n_receivers)
+    worst_talker = np.argmin(weak_v, axis=0)  # (n_receivers,)
+    return weak_v[worst_talker, np.arange(weak_v.shape[1])], worst_talker
+
+
 def check_receiver_voltage(bus: Bus) -> list[Finding]:
-    """One finding per receiver: DC |V_AB| in the weaker driven state vs the 200 mV threshold plus margin."""
+    """One finding per receiver: DC |V_AB| in the weaker driven state vs the 200 mV threshold, tight band from
+    the worst corner of the tolerances (engine.rules.margins)."""
     try:
         levels = talker_levels(bus)
+        corner = talker_levels(dc_corner_bus(bus))
     except (FloatingPointError, ValueError) as exc:
         return [
             Finding(
@@ -238,19 +139,17 @@ def check_receiver_voltage(bus: Bus) -> list[Finding]:
             )
         ]
     v_oc = bus.driver.open_circuit_v
-    tight_below_v = RECEIVER_THRESHOLD_V + NOISE_MARGIN_V
-    weak_v = np.where(np.isnan(levels.weak_state_v), np.inf, levels.weak_state_v)  # a node never hears itself
-    worst_talker = np.argmin(weak_v, axis=0)  # (n_receivers,)
+    weakest_v, worst_talker = _weakest(levels)
+    corner_v, _ = _weakest(corner)
     several = len(levels.talker_names) > 1
     findings = []
     for i, name in enumerate(levels.receiver_names):
         t = int(worst_talker[i])
-        v_rx = float(weak_v[t, i])
+        v_rx = float(weakest_v[i])
+        v_corner = float(corner_v[i])
         v_drv = float(levels.driver_share_v[t, i])
         v_bias = float(levels.bias_share_v[t, i])
-        verdict = (
-            Verdict.BREAKS if v_rx < RECEIVER_THRESHOLD_V else Verdict.TIGHT if v_rx < tight_below_v else Verdict.HOLDS
-        )
+        verdict = band_verdict(v_rx >= RECEIVER_THRESHOLD_V, v_corner >= RECEIVER_THRESHOLD_V)
         ratio = v_drv / v_oc
         detail = (
             (f"Weakest when '{levels.talker_names[t]}' talks: " if several else "")
@@ -259,6 +158,7 @@ def check_receiver_voltage(bus: Bus) -> list[Finding]:
         )
         if bus.plan.bias is not None:
             detail += f"; the bias network shifts it by {v_bias:+.3f} V, so the weaker state has {v_rx:.3f} V"
+        detail += f"; at the worst corner of the tolerances {v_corner:.3f} V"
         findings.append(
             Finding(
                 RULE_ID,
@@ -269,10 +169,10 @@ def check_receiver_voltage(bus: Bus) -> list[Finding]:
                 "V",
                 name,
                 "|V_AB| in the weaker driven state through the cable's loop resistance >= 200 mV, for every node "
-                f"that may talk; below {tight_below_v:.1f} V (threshold + {NOISE_MARGIN_V * 1e3:.0f} mV noise "
-                "margin) is tight",
+                "that may talk; tight when the worst corner (driver swing and terminators 5 % low, bias 5 % "
+                "strong, the run 10 % longer and 50 °C warm) falls below 200 mV",
                 SOURCE,
-                fix="" if verdict is Verdict.HOLDS else _fix(bus, name, v_rx, v_bias),
+                fix="" if verdict is Verdict.HOLDS else _fix(bus, name, v_rx, v_corner, v_bias),
                 detail=detail + ".",
                 limit_kind="min",
             )
@@ -280,13 +180,13 @@ def check_receiver_voltage(bus: Bus) -> list[Finding]:
     return findings
 
 
-def _fix(bus: Bus, name: str, v_rx: float, v_bias: float) -> str:
+def _fix(bus: Bus, name: str, v_rx: float, v_corner: float, v_bias: float) -> str:
     r_loop = loop_resistance_ohm(bus.plan.trunk_length_m, bus.cable.resistance_ohm_per_m)
+    level = f"{v_rx * 1e3:.0f} mV" + (f", {v_corner * 1e3:.0f} mV at the worst corner" if v_rx >= 0.2 else "")
     parts = [
-        f"Raise the level at '{name}' ({v_rx * 1e3:.0f} mV) to at least "
-        f"{(RECEIVER_THRESHOLD_V + NOISE_MARGIN_V) * 1e3:.0f} mV: use a heavier-gauge pair (22 AWG has 0.63 "
-        f"times the resistance of 24 AWG; the trunk's loop is now {r_loop:.0f} Ω), shorten the run, or split "
-        f"it with a repeater"
+        f"Raise the level at '{name}' ({level}) above {RECEIVER_THRESHOLD_V * 1e3:.0f} mV at the worst corner: use "
+        f"a heavier-gauge pair (22 AWG has 0.63 times the resistance of 24 AWG; the trunk's loop is now "
+        f"{r_loop:.0f} Ω), shorten the run, or split it with a repeater"
     ]
     if abs(v_bias) > 0.25 * max(v_rx, 1e-3):
         parts.append("and weaken the bias network (larger pull-up and pull-down) so it fights the driver less")

@@ -1,24 +1,44 @@
-"""JSON API: check a plan, save a plan, read a saved plan. Bad input answers 422 with the error envelope."""
+"""JSON API: check a plan, save a plan, read a saved plan. Bad input answers 422 with the error envelope.
 
-import json
+Bodies must be sent as application/json (so no page elsewhere can make a visitor's browser post a plan without
+a CORS preflight), are refused past the nesting cap before parsing, and validate through the one plan model.
+"""
+
+from collections.abc import Callable
 from typing import Any
 
 from fastapi import APIRouter, Request
 from fastapi.responses import JSONResponse, Response
-from pairline.engine import ENGINE_VERSION
-from pairline.engine.plan import BusInputError, Problem, load_plan, plan_to_dict
-from pairline.server.results import check_and_simulate
+from pairline.engine.plan import BusInputError, BusPlan, Problem, load_plan
+from pairline.server.errors import RequestRefused
+from pairline.server.forms import plan_from_body
+from pairline.server.json_input import JsonInputError, load_json
+from pairline.server.openapi import CHECK_BODY, SAVE_BODY
+from pairline.server.saving import save_checked_plan
 from pairline.server.store import PlanStore
-from pairline.server.views import plan_data
+from starlette.concurrency import run_in_threadpool
 
 router = APIRouter(prefix="/api")
+JSON_TYPES = ("application/json",)
 
 
-async def _json_body(request: Request) -> Any:
-    raw = await request.body()
+async def plan_body(request: Request, read: Callable[[Any], BusPlan] = load_plan) -> BusPlan:
+    """The request's JSON body, read as a bus plan by `read`. Raises RequestRefused (415) or BusInputError (422)."""
+    media_type = request.headers.get("content-type", "").split(";")[0].strip().lower()
+    if media_type not in JSON_TYPES:
+        raise RequestRefused(
+            415,
+            Problem(
+                "",
+                "Content-Type",
+                media_type or None,
+                {"choices": list(JSON_TYPES)},
+                f"The plan was sent as '{media_type or 'nothing'}'; send it as application/json.",
+            ),
+        )
     try:
-        return json.loads(raw, parse_constant=_reject_constant)
-    except (json.JSONDecodeError, UnicodeDecodeError, ValueError) as exc:
+        doc = load_json(await request.body(), request.app.state.settings.max_json_depth)
+    except JsonInputError as exc:
         raise BusInputError(
             [
                 Problem(
@@ -26,30 +46,28 @@ async def _json_body(request: Request) -> Any:
                     "Plan",
                     None,
                     {"type": "JSON object"},
-                    f"The request body is not valid JSON ({exc}); send one bus plan as a JSON object.",
+                    f"The request body cannot be read: {exc}. Send one bus plan as a JSON object.",
                 )
             ]
-        ) from exc
+        ) from None
+    return read(doc)
 
 
-def _reject_constant(name: str) -> Any:
-    raise ValueError(f"{name} is not a number JSON allows")
-
-
-@router.post("/check")
+@router.post("/check", openapi_extra=CHECK_BODY)
 async def check(request: Request) -> Response:
-    """Check a plan without saving it: the same data as a saved plan's page twin, without id or URL."""
-    plan = load_plan(await _json_body(request))
-    return JSONResponse(plan_data(check_and_simulate(plan), None))
+    """Check a plan without saving it: verdict, findings, summary and the engine report (no simulated
+    pictures; a saved plan's page twin has them). The body is a plan, or {"form": {...}} with the editor's
+    typed fields, as its live verdict sends."""
+    plan = await plan_body(request, plan_from_body)
+    body = await run_in_threadpool(request.app.state.checker.draft_report, plan)
+    return Response(body, media_type="application/json")
 
 
-@router.post("/plans")
+@router.post("/plans", status_code=201, openapi_extra=SAVE_BODY)
 async def save(request: Request, parent: str | None = None) -> Response:
     """Save a plan; answers 201 with its id and URLs. `?parent=<id>` links it to the plan it was copied from."""
-    store: PlanStore = request.app.state.store
-    plan = load_plan(await _json_body(request))
-    parent_id = parent if parent and store.get_plan(parent) else None
-    plan_id = store.save_plan(plan_to_dict(plan), engine_version=ENGINE_VERSION, parent_id=parent_id)
+    plan = await plan_body(request)
+    plan_id, parent_id = await run_in_threadpool(save_checked_plan, request, plan, parent)
     body = {"id": plan_id, "url": f"/plans/{plan_id}", "json_url": f"/plans/{plan_id}.json", "parent_id": parent_id}
     return JSONResponse(body, status_code=201, headers={"Location": f"/plans/{plan_id}"})
 

@@ -3,22 +3,37 @@
 import csv
 import io
 import json
+import unicodedata
 from typing import Annotated, Any
+from urllib.parse import quote
 
 from fastapi import APIRouter, Depends, Request
 from fastapi.responses import JSONResponse, RedirectResponse, Response
-from pairline.engine import ENGINE_VERSION
 from pairline.engine.plan import BusInputError, BusPlan, Problem, load_plan, plan_to_dict
-from pairline.server.app import render
-from pairline.server.errors import not_found
-from pairline.server.forms import FormState, form_from_plan, merge_problems, parse_form, with_units
+from pairline.server.checking import Checker, CheckRefused
+from pairline.server.errors import RequestRefused, not_found
+from pairline.server.forms import (
+    MAX_FORM_FIELDS,
+    FormState,
+    draft_fields,
+    fields_from_draft,
+    form_from_plan,
+    merge_problems,
+    parse_form,
+    starter_plan,
+    with_units,
+)
+from pairline.server.json_input import JsonInputError, load_json
+from pairline.server.node_table import read_node_table, with_pasted_rows
+from pairline.server.openapi import FORM_BODY, IMPORT_BODY
 from pairline.server.quantities import UnitSystem
-from pairline.server.results import check_and_simulate, check_only
+from pairline.server.rendering import page_at, render
+from pairline.server.saving import save_checked_plan
 from pairline.server.store import PlanStore, SavedPlan
-from pairline.server.views import bom_rows, editor_data, plan_data, start_data
+from pairline.server.views import editor_data, lineage_data, start_data
+from starlette.concurrency import run_in_threadpool
 
 router = APIRouter()
-MAX_FORM_FIELDS = 8000  # 512 node rows of 8 inputs, plus the rest
 UTF8_BOM = "\ufeff"  # spreadsheet programs read a CSV as UTF-8 (so "Ω" survives) only when it starts with this
 
 
@@ -28,6 +43,14 @@ def get_store(request: Request) -> PlanStore:
 
 
 StoreDep = Annotated[PlanStore, Depends(get_store)]
+
+
+def get_checker(request: Request) -> Checker:
+    checker: Checker = request.app.state.checker
+    return checker
+
+
+CheckerDep = Annotated[Checker, Depends(get_checker)]
 
 
 def page(request: Request, template: str, data: dict[str, Any], as_json: bool, status_code: int = 200) -> Response:
@@ -51,7 +74,7 @@ def start_page(request: Request, store: StoreDep) -> Response:
     return page(request, "start.html", start_data(store.samples()), as_json)
 
 
-@router.post("/import")
+@router.post("/import", openapi_extra=IMPORT_BODY)
 async def import_plan(request: Request, store: StoreDep) -> Response:
     """A plan file uploaded or pasted: validated like any plan, saved, then opened (303 to its URL)."""
     async with request.form(max_fields=20) as form:
@@ -70,61 +93,30 @@ async def import_plan(request: Request, store: StoreDep) -> Response:
                 [Problem("plan_text", "Plan", "", {"type": "JSON object"}, "Choose a plan file or paste its JSON.")]
             )
         try:
-            doc = json.loads(text)
-        except json.JSONDecodeError as exc:
+            doc = load_json(text, request.app.state.settings.max_json_depth)
+        except JsonInputError as exc:
             raise BusInputError(
-                [
-                    Problem(
-                        "plan_text",
-                        "Plan",
-                        text[:80],
-                        {"type": "JSON object"},
-                        f"The plan is not valid JSON (line {exc.lineno}, column {exc.colno}: {exc.msg}).",
-                    )
-                ]
-            ) from exc
+                [Problem("plan_text", "Plan", text[:80], {"type": "JSON object"}, f"The plan cannot be read: {exc}.")]
+            ) from None
         units = "imperial" if isinstance(doc, dict) and doc.get("display_units") == "imperial" else "metric"
         plan = load_plan(doc)
+        plan_id, _ = await run_in_threadpool(save_checked_plan, request, plan, None)
     except BusInputError as exc:
         problems = exc.problems
     if problems:
         return render(request, "start.html", start_data(store.samples(), problems, pasted, units), status_code=422)
-    plan_id = store.save_plan(plan_to_dict(plan), engine_version=ENGINE_VERSION)
     return RedirectResponse(f"/plans/{plan_id}", status_code=303)
 
 
 # --- editor -----------------------------------------------------------------------------------------------
 
-STARTER_PLAN: dict[str, Any] = {
-    "title": "",
-    "standard": "rs485",
-    "bit_rate_bps": 115_200,
-    "supply_v": 5.0,
-    "trunk_length_m": 100.0,
-    "cable": {"class_key": "pair-24awg-120"},
-    "driver": {"name": "controller", "position_m": 0.0, "stub_length_m": 0.0, "transceiver": "edge-100ns"},
-    "nodes": [],
-    "terminations": [
-        {"position_m": 0.0, "kind": "parallel", "resistance_ohm": 120.0},
-        {"position_m": 100.0, "kind": "parallel", "resistance_ohm": 120.0},
-    ],
-}
 BLANK_NODE_ROWS = 5
 
 
 @router.get("/plans/new")
 @router.get("/plans/new.json")
 def new_plan_page(request: Request, units: str = "metric") -> Response:
-    system = "imperial" if units == "imperial" else "metric"
-    starter = STARTER_PLAN | {"display_units": system}
-    if system == "imperial":  # a round 300 ft trunk rather than 328.08 ft
-        trunk_m = 300 * 0.3048
-        starter["trunk_length_m"] = trunk_m
-        starter["terminations"] = [
-            STARTER_PLAN["terminations"][0],
-            {**STARTER_PLAN["terminations"][1], "position_m": trunk_m},
-        ]
-    state = form_from_plan(starter)
+    state = form_from_plan(starter_plan("imperial" if units == "imperial" else "metric"))
     state.n_nodes = BLANK_NODE_ROWS
     data = editor_data(state, title="New bus plan")
     return page(request, "editor.html", data, request.url.path.endswith(".json"))
@@ -141,21 +133,34 @@ def edit_page(request: Request, ref: str, store: StoreDep) -> Response:
     return page(request, "editor.html", data, request.url.path.endswith(".json"))
 
 
-@router.post("/plans")
-async def submit_plan(request: Request, store: StoreDep) -> Response:
+@router.post("/plans", openapi_extra=FORM_BODY)
+async def submit_plan(request: Request, store: StoreDep, checker: CheckerDep) -> Response:
     """The editor's form (or a checked draft's save button). Check renders the report; save answers 303."""
     async with request.form(max_fields=MAX_FORM_FIELDS) as form:
         fields = {k: v for k, v in form.items() if isinstance(v, str)}
+        upload = form.get("node_table_file")
+        if upload is not None and not isinstance(upload, str) and (raw := await upload.read()):
+            fields["node_table"] = raw.decode("utf-8-sig", errors="replace")
     if "plan_json" in fields:
-        return _save_draft(fields, store)
+        return await _save_draft(request, fields)
+    if "draft_fields" in fields:  # "Edit this draft" on a checked draft: the editor as it was typed
+        fields = fields_from_draft(fields["draft_fields"]) | {"action": "edit"}
     parsed = parse_form(fields)
     state = parsed.state
-    if parsed.action in ("add_node", "add_termination", "units"):
+    if parsed.action == "paste_nodes":
+        table = read_node_table(fields.get("node_table", ""), state.units)
+        if table.problems:
+            state.values["node_table"] = fields.get("node_table", "")
+            state.problems = table.problems
+            return render(request, "editor.html", editor_data(state, title=_editor_title(state)), status_code=422)
+        state = with_pasted_rows(state, len(parsed.doc["nodes"]), table.rows, bool(fields.get("node_table_replace")))
+        return render(request, "editor.html", editor_data(state, title=_editor_title(state)))
+    if parsed.action in ("add_node", "add_termination", "units", "edit"):
         if parsed.action == "add_node":
             state.n_nodes += 1
         elif parsed.action == "add_termination":
             state.n_terminations += 1
-        else:
+        elif parsed.action == "units":
             state = with_units(state, parsed.doc, parsed.doc["display_units"])
         state.problems = []
         return render(request, "editor.html", editor_data(state, title=_editor_title(state)))
@@ -166,11 +171,24 @@ async def submit_plan(request: Request, store: StoreDep) -> Response:
         state.problems = merge_problems(parsed.problems, exc.problems)
     if plan is None or parsed.problems:
         return render(request, "editor.html", editor_data(state, title=_editor_title(state)), status_code=422)
-    if parsed.action == "save":
-        plan_id = store.save_plan(plan_to_dict(plan), engine_version=ENGINE_VERSION, parent_id=_parent(store, state))
-        return RedirectResponse(f"/plans/{plan_id}", status_code=303)
-    data = plan_data(check_and_simulate(plan), None)
-    data["draft"] = {"plan_json": json.dumps(plan_to_dict(plan)), "parent_id": _parent(store, state)}
+    try:
+        if parsed.action == "save":
+            plan_id, _ = await run_in_threadpool(save_checked_plan, request, plan, state.parent_id)
+            return RedirectResponse(f"/plans/{plan_id}", status_code=303)
+        data = json.loads(await run_in_threadpool(checker.draft_data, plan))
+    except CheckRefused as exc:
+        state.problems = exc.problems
+        return render(request, "editor.html", editor_data(state, title=_editor_title(state)), status_code=422)
+    except RequestRefused as exc:  # over the save quota: the form comes back as typed, the reason on top
+        state.problems = [exc.problem]
+        refused = render(request, "editor.html", editor_data(state, title=_editor_title(state)), exc.status)
+        refused.headers["Retry-After"] = str(round(exc.retry_after_s or 0))
+        return refused
+    data["draft"] = {
+        "plan_json": json.dumps(plan_to_dict(plan)),
+        "parent_id": await run_in_threadpool(_parent, store, state.parent_id),
+        "fields": draft_fields(state),
+    }
     return render(request, "plan.html", data)
 
 
@@ -178,53 +196,96 @@ def _editor_title(state: FormState) -> str:
     return "Edit a copy" if state.parent_id else "New bus plan"
 
 
-def _parent(store: PlanStore, state: FormState) -> str | None:
-    return state.parent_id if state.parent_id and store.get_plan(state.parent_id) else None
+def _parent(store: PlanStore, parent_id: str | None) -> str | None:
+    return parent_id if parent_id and store.get_plan(parent_id) else None
 
 
-def _save_draft(fields: dict[str, str], store: PlanStore) -> Response:
+async def _save_draft(request: Request, fields: dict[str, str]) -> Response:
     try:
-        doc = json.loads(fields["plan_json"])
-    except json.JSONDecodeError as exc:
+        doc = load_json(fields["plan_json"], request.app.state.settings.max_json_depth)
+    except JsonInputError as exc:
         raise BusInputError(
-            [Problem("plan_json", "Plan", None, {"type": "JSON object"}, f"The plan is not valid JSON ({exc.msg}).")]
-        ) from exc
+            [Problem("plan_json", "Plan", None, {"type": "JSON object"}, f"The plan cannot be read: {exc}.")]
+        ) from None
     plan = load_plan(doc)
-    parent = fields.get("parent_id") or None
-    parent = parent if parent and store.get_plan(parent) else None
-    plan_id = store.save_plan(plan_to_dict(plan), engine_version=ENGINE_VERSION, parent_id=parent)
+    plan_id, _ = await run_in_threadpool(save_checked_plan, request, plan, fields.get("parent_id") or None)
     return RedirectResponse(f"/plans/{plan_id}", status_code=303)
 
 
 # --- saved plans ------------------------------------------------------------------------------------------
 
 
-def _saved(store: PlanStore, plan_id: str) -> tuple[SavedPlan, BusPlan] | None:
-    saved = store.get_plan(plan_id)
-    if saved is None:
-        return None
-    return saved, load_plan(saved.plan)
+def _receiver_names(saved: SavedPlan) -> set[str]:
+    nodes = saved.plan.get("nodes")
+    return {n["name"] for n in nodes if isinstance(n, dict) and isinstance(n.get("name"), str)} if nodes else set()
 
 
 @router.get("/plans/{ref}")
-def plan_page(request: Request, ref: str, store: StoreDep, receiver: str | None = None) -> Response:
+def plan_page(
+    request: Request, ref: str, store: StoreDep, checker: CheckerDep, receiver: str | None = None
+) -> Response:
+    """A saved plan, checked: straight from the results cache when it holds this plan, view and format."""
     plan_id, as_json = _split(ref)
+    receiver = receiver or None
+    media_type = "application/json" if as_json else "text/html; charset=utf-8"
+    cached = checker.cached_json(plan_id, receiver) if as_json else checker.cached_html(plan_id, receiver)
+    if cached is not None:
+        return Response(cached, media_type=media_type)
     saved = store.get_plan(plan_id)
     if saved is None:
         return not_found(request)
     try:
         plan = load_plan(saved.plan)
+        known = receiver if receiver in _receiver_names(saved) else None
+        parent = store.get_plan(saved.parent_id) if saved.parent_id else None
+        extra = {"lineage": lineage_data(parent)}
+        if receiver == known:  # the view every request with these options gets, cached as bytes
+            if as_json:
+                body = checker.saved_json(saved, plan, known, extra)
+            else:
+                body = checker.saved_html(saved, plan, known, extra, page_at(request))
+            return Response(body, media_type=media_type)
+        data = json.loads(checker.saved_json(saved, plan, None, extra))
     except BusInputError as exc:
-        # Saved under an older engine that accepted it; show it in the editor with what to change.
+        # Saved under an older engine or looser limits that accepted it; show it in the editor with what to change.
         if as_json:
             raise
         state = form_from_plan(saved.plan, parent_id=saved.id)
         state.problems = exc.problems
-        title = "This saved plan needs changes before the current engine can check it"
+        title = "This saved plan needs changes before it can be checked here"
         return render(request, "editor.html", editor_data(state, title=title, saved_from=saved), status_code=422)
-    data = plan_data(check_and_simulate(plan, receiver), saved, receiver)
-    data["children"] = store.children_of(saved.id)
+    data["waveforms"]["chosen_unknown"] = receiver
     return page(request, "plan.html", data, as_json)
+
+
+@router.get("/plans/{ref}/advised")
+@router.get("/plans/{ref}/advised.json")
+def advised_page(request: Request, ref: str, store: StoreDep, checker: CheckerDep) -> Response:
+    """The editor opened on a saved plan's advised plan: a new, unsaved draft, with the changes listed."""
+    saved = store.get_plan(ref.removesuffix(".json"))
+    if saved is None:
+        return not_found(request)
+    data = json.loads(checker.advised_editor(load_plan(saved.plan), saved, saved.id))
+    return page(request, "editor.html", data, request.url.path.endswith(".json"))
+
+
+@router.post("/plans/advised")
+async def advised_draft(request: Request, store: StoreDep, checker: CheckerDep) -> Response:
+    """The same for a checked draft that has no id yet: its plan comes back in the form."""
+    async with request.form(max_fields=4) as form:
+        raw = form.get("plan_json")
+        parent = form.get("parent_id")
+    text = raw if isinstance(raw, str) else ""
+    try:
+        doc = load_json(text, request.app.state.settings.max_json_depth)
+    except JsonInputError as exc:
+        raise BusInputError(
+            [Problem("plan_json", "Plan", text[:80], {"type": "JSON object"}, f"The plan cannot be read: {exc}.")]
+        ) from None
+    plan = load_plan(doc)
+    parent_id = parent if isinstance(parent, str) and parent and store.get_plan(parent) else None
+    data = json.loads(await run_in_threadpool(checker.advised_editor, plan, None, parent_id))
+    return render(request, "editor.html", data)
 
 
 @router.get("/plans/{ref}/download")
@@ -234,31 +295,42 @@ def download_plan(request: Request, ref: str, store: StoreDep) -> Response:
         return not_found(request)
     body = json.dumps(saved.plan, indent=2, ensure_ascii=False) + "\n"
     return Response(
-        body,
+        body.encode("utf-8"),
         media_type="application/json",
-        headers={"Content-Disposition": f'attachment; filename="{_filename(saved)}.json"'},
+        headers={"Content-Disposition": attachment(saved, ".json")},
     )
 
 
 @router.get("/plans/{ref}/bom.csv")
-def bill_of_materials(request: Request, ref: str, store: StoreDep) -> Response:
-    found = _saved(store, ref)
-    if found is None:
+def bill_of_materials(request: Request, ref: str, store: StoreDep, checker: CheckerDep) -> Response:
+    saved = store.get_plan(ref)
+    if saved is None:
         return not_found(request)
-    saved, plan = found
-    report = check_only(plan)
+    parent = store.get_plan(saved.parent_id) if saved.parent_id else None
+    data = json.loads(checker.saved_json(saved, load_plan(saved.plan), None, {"lineage": lineage_data(parent)}))
     out = io.StringIO()
     writer = csv.writer(out)
     writer.writerow(["item", "value", "quantity", "rating", "note"])
-    for row in bom_rows(report.summary.bom, plan.display_units):
+    for row in data["summary"]["bom"]:
         writer.writerow([row["item"], row["value"], row["quantity"], row["rating"], row["note"]])
     return Response(
-        UTF8_BOM + out.getvalue(),
+        (UTF8_BOM + out.getvalue()).encode("utf-8"),
         media_type="text/csv; charset=utf-8",
-        headers={"Content-Disposition": f'attachment; filename="{_filename(saved)}-bom.csv"'},
+        headers={"Content-Disposition": attachment(saved, "-bom.csv")},
     )
 
 
-def _filename(saved: SavedPlan) -> str:
-    stem = "".join(c if c.isalnum() else "-" for c in saved.title.lower()).strip("-")[:40]
-    return f"{stem or 'bus-plan'}-{saved.id}"
+def attachment(saved: SavedPlan, suffix: str) -> str:
+    """Content-Disposition for a download named after the plan's title: an ASCII `filename` for old clients and
+    the title as written in `filename*` (RFC 6266 with RFC 5987 encoding), so "120 Ω bus" survives."""
+
+    def stem(text: str) -> str:
+        slug = "".join(c if c.isalnum() else "-" for c in text.lower())
+        return "-".join(part for part in slug.split("-") if part)[:40].strip("-")
+
+    title = saved.title
+    plain = stem(unicodedata.normalize("NFKD", title).encode("ascii", "ignore").decode("ascii"))
+    written = stem(title)
+    ascii_name = f"{plain or 'bus-plan'}-{saved.id}{suffix}"
+    utf8_name = quote(f"{written or 'bus-plan'}-{saved.id}{suffix}", safe="")
+    return f"attachment; filename=\"{ascii_name}\"; filename*=UTF-8''{utf8_name}"

@@ -6,9 +6,6 @@ with a reason when it is missing; with CI=true they fail instead, so CI cannot p
 
 import os
 import shutil
-import socket
-import threading
-import time
 from collections.abc import Iterator
 from pathlib import Path
 
@@ -53,31 +50,15 @@ def browser() -> Iterator[object]:
         b.close()
 
 
-def _free_port() -> int:
-    with socket.socket() as s:
-        s.bind(("127.0.0.1", 0))
-        return int(s.getsockname()[1])
-
-
 @pytest.fixture(scope="session")
 def base_url(tmp_path_factory: pytest.TempPathFactory) -> Iterator[str]:
     """A real uvicorn server on a free loopback port, in a thread, on a temporary database."""
-    import uvicorn
     from pairline.server.app import create_app
 
-    app = create_app(tmp_path_factory.mktemp("browser-db") / "plans.db")
-    port = _free_port()
-    server = uvicorn.Server(uvicorn.Config(app, host="127.0.0.1", port=port, log_level="warning"))
-    thread = threading.Thread(target=server.run, daemon=True)
-    thread.start()
-    deadline = time.monotonic() + 20
-    while not server.started:
-        if time.monotonic() > deadline or not thread.is_alive():
-            raise RuntimeError("uvicorn did not start")
-        time.sleep(0.05)
-    yield f"http://127.0.0.1:{port}"
-    server.should_exit = True
-    thread.join(timeout=10)
+    from tests.server.live import live_server
+
+    with live_server(create_app(tmp_path_factory.mktemp("browser-db") / "plans.db")) as (host, port):
+        yield f"http://{host}:{port}"
 
 
 @pytest.fixture()
@@ -92,3 +73,26 @@ def page(browser):
 def artifacts() -> Path:
     ARTIFACTS.mkdir(exist_ok=True)
     return ARTIFACTS
+
+
+AXE = Path(__file__).resolve().parent / "node_modules" / "axe-core" / "axe.min.js"
+
+
+@pytest.fixture(scope="session")
+def axe_script() -> Path:
+    """axe-core from the npm registry, installed by `.ci/setup` (npm ci in tests/browser)."""
+    if not AXE.exists():
+        reason = f"axe-core not installed at {AXE} (run: npm ci --prefix tests/browser)"
+        if os.environ.get("CI") == "true":
+            pytest.fail(reason)
+        pytest.skip(reason)
+    return AXE
+
+
+@pytest.fixture()
+def phone(browser):
+    """A page 390 px wide, as a phone shows it."""
+    context = browser.new_context(viewport={"width": 390, "height": 844}, device_scale_factor=2)
+    pg = context.new_page()
+    yield pg
+    context.close()

@@ -180,19 +180,58 @@ def test_rs422_summary_counts_receivers_not_unit_loads(tmp_path, capsys):
 
 
 def test_imperial_plan_reads_lengths_in_feet_with_metres_in_brackets(tmp_path, capsys):
-    # Source: international foot, 0.3048 m exactly: 575 m = 1886 ft, 1152 m = 3779.5 ft (shown 3780 ft).
+    # Source: international foot, 0.3048 m exactly: 550 m = 1804.5 ft (shown 1804 ft), 1150 m = 3773.0 ft.
     doc = json.loads((ROOT / "sample_buses" / "irrigation-main-valves.json").read_text(encoding="utf-8"))
     doc["display_units"] = "imperial"
     main(["check", _write(tmp_path, doc)])
     out = capsys.readouterr().out
-    assert "1886 ft (575 m)" in out and "3780 ft (1152 m)" in out
+    assert "1804 ft (550 m)" in out and "3773 ft (1150 m)" in out
     assert "mΩ/m" not in out or "ft (84.2" not in out
-    assert "ft (1886 ft" not in out
+    assert "ft (1804 ft" not in out
 
 
 def test_bom_bias_note_names_a_change_and_a_move(tmp_path, capsys):
-    # Source: TI SLLA272 bias sizing as bias.idle_level advises it for the irrigation sample (510 Ohm at 575 m
-    # in place of the plan's 390 Ohm at 0 m).
+    # Source: TI SLLA272 bias sizing, as the advice sizes it for the irrigation sample: 560 Ohm each at 550 m
+    # (the station nearest mid-trunk, where the drop to either end is smallest) in place of the plan's 390 Ohm
+    # at 0 m.
     main(["check", str(ROOT / "sample_buses" / "irrigation-main-valves.json")])
     out = capsys.readouterr().out
-    assert "changed from the plan's 390 Ω and moved from the plan's 0 m: see bias.idle_level" in out
+    assert "move the bias network from 0 m to 550 m and make it 560 Ω / 560 Ω" in out
+    assert "Bias pull-up resistor (5 V to A), 560 Ω" in out
+
+
+def test_advise_writes_the_advised_plan_and_lists_the_changes(tmp_path, capsys):
+    # A plan without bias on RS-485 (TIA/EIA-485-A: 0 V idles inside the undefined band) gets one added; the
+    # advised plan written to the file is a valid plan that checks with exit 0.
+    doc = dict(GOOD)
+    doc.pop("bias")
+    out = tmp_path / "advised.json"
+    assert main(["advise", _write(tmp_path, doc), "-o", str(out)]) == 0
+    printed = capsys.readouterr().out
+    assert ". Add failsafe bias" in printed and "from none to" in printed
+    advised = json.loads(out.read_text(encoding="utf-8"))
+    assert advised["bias"] is not None and [n["name"] for n in advised["nodes"]] == ["meter-1"]
+    assert main(["check", str(out)]) == 0
+
+
+def test_advise_without_output_pipes_the_plan_and_reports_on_stderr(tmp_path, capsys):
+    assert main(["advise", _write(tmp_path, GOOD)]) == 0
+    captured = capsys.readouterr()
+    assert json.loads(captured.out)["title"] == "bench pair"
+    assert "Advised plan:" in captured.err
+
+
+def test_advise_exits_1_naming_what_cannot_be_met(tmp_path, capsys):
+    # Source: TI SLLA272 stub rule: a 5 m drop is far beyond 0.1 x 10 ns x 0.78 c0 = 23 cm; terminators and bias
+    # cannot change it, so the advice says which rule and what can.
+    doc = dict(GOOD, driver={"transceiver": "edge-10ns"}, bit_rate_bps=1e6)
+    doc["nodes"] = [{"name": "meter-1", "position_m": 10.0, "stub_length_m": 5.0, "unit_loads": 0.125}]
+    assert main(["advise", _write(tmp_path, doc), "-o", str(tmp_path / "out.json")]) == 1
+    printed = capsys.readouterr().out
+    assert "Cannot be met with terminators and bias alone" in printed and "stub.length (meter-1)" in printed
+    assert "Shorten the stub of node 'meter-1'" in printed
+
+
+def test_advise_on_bad_input_exits_2(tmp_path, capsys):
+    assert main(["advise", _write(tmp_path, dict(GOOD, trunk_length_m=-1.0))]) == 2
+    assert "trunk_length_m" in capsys.readouterr().err

@@ -95,13 +95,17 @@ def test_report_is_plain_json():
     assert sum(data["counts"].values()) == len(data["findings"])
 
 
-def test_end_loaded_below_z0_serialises_and_asks_to_remove_the_terminator():
-    # A 50 + 50 Ohm bias at the 0 m end already loads the 120 Ohm line below Z0: no terminator value can match.
-    data = report_to_dict(check_plan(_doc(bias={"position_m": 0.0, "pull_up_ohm": 50.0, "pull_down_ohm": 50.0})))
+def test_end_loaded_below_z0_serialises_and_moves_the_bias_off_the_end():
+    # common practice: a 50 + 50 Ohm bias at the 0 m end already loads the 120 Ohm line below Z0, so no terminator
+    # value can match that end; the advice takes the bias off the end, and its own check holds the end.
+    report = check_plan(_doc(bias={"position_m": 0.0, "pull_up_ohm": 50.0, "pull_down_ohm": 50.0}))
+    data = report_to_dict(report)
     json.dumps(data, allow_nan=False)
     at_zero = [f for f in data["findings"] if f["rule_id"] == "termination.value" and "(0 m)" in f["title"]]
     assert at_zero[0]["verdict"] == "breaks"
-    assert at_zero[0]["fix"].startswith("Remove the terminator at the driver's end (0 m)")
+    assert "move the bias network from 0 m" in at_zero[0]["fix"]
+    advised = [f for f in report.advice.findings if f.rule_id == "termination.value" and "(0 m)" in f.title]
+    assert [f.verdict for f in advised] == [Verdict.HOLDS]
 
 
 def test_infinite_and_nan_numbers_serialise_as_null():
@@ -112,17 +116,19 @@ def test_infinite_and_nan_numbers_serialise_as_null():
 
 
 def test_summary_advises_terminators_at_both_ends_with_ratings():
-    summary = check_plan(RS485).summary
-    assert [t.position_m for t in summary.terminators] == [0.0, 1000.0]
+    report = check_plan(RS485)
+    summary = report.summary
+    assert sorted(t.position_m for t in summary.terminators) == [0.0, 1000.0]
     # RC at 1000 m cannot suit both a 1000 m round trip and a 115.2 kbit/s bit: the advice is a plain resistor.
     assert [t.kind for t in summary.terminators] == ["parallel", "parallel"]
-    # Source: TI SLLA272, R_T = Z0 = 120 Ohm for the 120 Ohm cable (the bias at 0 m raises it to the E24 130 Ohm).
-    assert summary.terminators[1].resistance_ohm == 120.0
-    assert summary.terminators[0].resistance_ohm == 130.0
+    # Source: TI SLLA272, R_T = Z0 = 120 Ohm for the 120 Ohm cable: with the bias moved to mid-trunk nothing else
+    # is lumped at either end, so both ends take 120 Ohm.
+    assert [t.resistance_ohm for t in summary.terminators] == [120.0, 120.0]
+    assert report.advice.plan.bias is not None and 0.0 < report.advice.plan.bias.position_m < 1000.0
     for t in summary.terminators:
-        # common practice: P = V^2 / R with the 4 V open-circuit driver, bought at twice that.
-        assert t.power_rating_w == rating_to_buy_w(4.0**2 / t.resistance_ohm)
-        assert t.power_rating_w >= 0.25
+        # common practice: P = V^2 / R with the 4 V open-circuit driver, the resistor 5 % low on a supply 5 % high
+        # (16 / 114 x 1.1025 = 0.155 W), bought at twice that: 1/2 W.
+        assert t.power_rating_w == rating_to_buy_w(4.0**2 * 1.05**2 / (0.95 * t.resistance_ohm)) == 0.5
 
 
 def test_summary_rs422_advice_is_the_far_end_only():
@@ -144,9 +150,10 @@ def test_summary_bias_holds_the_idle_bus_above_threshold():
     assert bias is not None and bias.pull_up_ohm == bias.pull_down_ohm
     # Source: TI SLLA272 / B&B note arithmetic R_B,max = (R_eq/2)(V_S/V_min - 1) = 720 Ohm for 60 Ohm, 5 V, 200 mV.
     assert bias.pull_up_ohm <= 720.0
-    # Source: TIA-485-A receiver threshold 200 mV.
-    assert bias.idle_v >= 0.200
-    assert bias.power_rating_w == rating_to_buy_w(5.0**2 / bias.pull_up_ohm)
+    # Source: TIA-485-A receiver threshold 200 mV, held even at the worst corner of the tolerances.
+    assert bias.idle_v >= bias.idle_corner_v >= 0.200
+    # common practice: V_S^2 / R at the corner (resistor 5 % low, supply 5 % high), bought at twice that.
+    assert bias.power_rating_w == rating_to_buy_w(5.0**2 * 1.05**2 / (0.95 * bias.pull_up_ohm))
 
 
 def test_summary_limits_and_budget():
@@ -161,13 +168,32 @@ def test_summary_limits_and_budget():
     assert set(s.further_nodes) == {"1 UL", "1/2 UL", "1/4 UL", "1/8 UL"}
 
 
-def test_bill_of_materials_lists_terminators_and_bias():
+def test_bill_of_materials_lists_terminators_bias_cable_and_transceivers():
     bom = check_plan(RS485).summary.bom
-    items = {(b.item.split(" (")[0], b.value): b for b in bom}
-    assert items[("Terminator resistor", "120 Ω")].quantity == 1
-    assert items[("Terminator resistor", "130 Ω")].quantity == 1
+    terminators = [b for b in bom if b.item.startswith("Terminator resistor")]
+    assert sum(b.quantity for b in terminators) == 2 and {b.value for b in terminators} == {"120 Ω"}
     assert sum(1 for b in bom if b.item.startswith("Bias")) == 2
+    # common practice: trunk 1000 m + stubs (1 + 3 m) = 1004 m, ordered with 10 % spare and rounded up: 1105 m.
+    cable = next(b for b in bom if b.item.startswith("Cable"))
+    assert cable.value == "1105 m" and "10%" in cable.note and "24 AWG" in cable.item
+    # One driver; the nodes counted per class: two 1 UL receivers and one 1 UL transceiver.
+    counts = {
+        (b.item.split(" (")[0], b.value): b.quantity for b in bom if "ransceiver" in b.item or b.item == "Receiver"
+    }
+    assert counts == {
+        ("Driver transceiver: Edge 100 ns", "0.25 UL"): 1,
+        ("Receiver", "1 UL"): 2,
+        ("Transceiver", "1 UL"): 1,
+    }
     assert all(b.rating for b in bom)
+
+
+def test_cable_allowance_of_a_round_length_is_not_rounded_up_past_it():
+    # common practice: 100 m drawn with 10 % spare is 110 m to order (110.00000000000001 in floating point).
+    doc = RS485 | {"trunk_length_m": 100.0, "nodes": [{"name": "end", "position_m": 100.0}], "terminations": []}
+    doc["driver"] = doc["driver"] | {"stub_length_m": 0.0}
+    cable = next(b for b in check_plan(load_plan(doc)).summary.bom if b.item.startswith("Cable"))
+    assert cable.value == "110 m"
 
 
 def test_short_unterminated_line_gets_no_terminator_advice():
@@ -211,7 +237,8 @@ def test_summary_advises_no_bias_when_no_pair_fits_the_unit_load_budget():
     # loads): with 32 UL already on the pair any bias pair strong enough for 200 mV over 60 Ohm breaks a budget.
     report = check_plan(_full_bus_doc())
     bias_finding = next(f for f in report.findings if f.rule_id == "bias.idle_level")
-    assert "no pull-up / pull-down pair fits" in bias_finding.fix
+    # 31 x 1 UL + the driver's 1/8 UL leave 0.875 UL: each resistor >= 12 kOhm / 0.875 = 13.7 kOhm (TI SLLA272).
+    assert "No pull-up / pull-down pair" in bias_finding.fix and "at least 13714 Ω" in bias_finding.fix
     assert report.summary.bias is None
     assert "failsafe thresholds" in report.summary.bias_note
     assert not any("Bias" in item.item for item in report.summary.bom)
@@ -253,15 +280,15 @@ def test_summary_and_placement_agree_on_an_rs422_end_that_needs_no_terminator():
 
 
 def test_bom_notes_say_where_the_advice_changes_the_plan():
-    # Source: H. Johnson, M. Graham, High-Speed Digital Design, sec. 4.4: R_T = Z0/(1 - Z0/R_P); a 1.5 kOhm bias
-    # network lumped at the end (R_P = 3 kOhm) moves the ideal 120 Ohm terminator to 125 Ohm, E24 130 Ohm.
+    # common practice: a 100 Ohm terminator on a 120 Ohm pair reflects (100 - 120)/(100 + 120) = -0.09 nominal and
+    # -0.16 with 5 % parts and 10 % cable tolerance, beyond the 1/7 limit; the advice changes it and says so.
     doc = _doc(
         bit_rate_bps=115_200,
         terminations=[{"position_m": 0.0, "resistance_ohm": 100.0}, {"position_m": 1000.0, "resistance_ohm": 120.0}],
     )
     report = check_plan(doc)
-    notes = {item.value: item.note for item in report.summary.bom if "Terminator resistor" in item.item}
-    changed = [n for n in notes.values() if "changed from the plan's 100 Ω: see termination.value" in n]
+    notes = [item.note for item in report.summary.bom if "Terminator resistor" in item.item]
+    changed = [n for n in notes if "from 100 Ω to" in n and "termination.value" in n]
     assert changed, notes
 
 

@@ -6,7 +6,7 @@ from pathlib import Path
 import pytest
 
 ENGINE = Path(__file__).resolve().parents[2] / "engine"
-FORBIDDEN = {"fastapi", "starlette", "jinja2", "uvicorn", "sqlite3", "psycopg", "httpx", "multipart"}
+FORBIDDEN = {"fastapi", "starlette", "jinja2", "uvicorn", "sqlite3", "psycopg", "psycopg_pool", "httpx", "multipart"}
 FORBIDDEN_PACKAGES = ("pairline.server",)
 ENGINE_FILES = sorted(ENGINE.rglob("*.py"))
 

@@ -125,10 +125,12 @@ def _transceiver_bus(n_nodes: int):
 
 
 def test_every_driver_is_simulated_on_a_32_node_bus():
-    from pairline.engine.rules.signal import drivers_to_simulate
+    from pairline.engine.rules.signal import MAX_DRIVERS_ALL, drivers_to_simulate
 
     bus = _transceiver_bus(32)
-    # Source: TIA/EIA-485-A allows 32 unit loads, so 32 transceivers plus the driver may each drive.
+    # Pairline's own simulation budget (MAX_DRIVERS_ALL, a cost choice, not a limit of TIA/EIA-485-A): every node
+    # that may drive is simulated up to 33 drivers, which covers 32 transceivers and the primary driver.
+    assert MAX_DRIVERS_ALL == 33
     assert drivers_to_simulate(bus) == bus.drivers_possible and len(bus.drivers_possible) == 33
 
 

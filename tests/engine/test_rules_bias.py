@@ -4,17 +4,16 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 from pairline.engine.bus import build_bus
+from pairline.engine.dc import idle_levels_v
 from pairline.engine.findings import Verdict
 from pairline.engine.plan import load_plan
 from pairline.engine.rules.bias import (
-    bias_choice,
     bias_min_ohm,
     check_failsafe_bias,
-    idle_levels_v,
     idle_load_ohm,
     idle_voltage_v,
     max_bias_ohm,
-    recommended_bias,
+    size_bias,
 )
 from pairline.engine.rules.preferred import preferred_at_or_below
 from pairline.engine.units import parallel_ohm
@@ -107,18 +106,46 @@ def test_e24_value_below_the_limit():
     assert preferred_at_or_below(750.0) == pytest.approx(750.0)
 
 
-def test_recommended_bias_keeps_a_long_bus_far_end_above_threshold():
-    # Source: TIA/EIA-485-A threshold 200 mV; the recommendation aims at 250 mV allowing for the cable drop.
+def test_sized_bias_keeps_a_long_bus_far_end_above_threshold_at_the_worst_corner():
+    # Source: TIA/EIA-485-A threshold 200 mV; the sizing allows for the cable drop and the tolerance corner
+    # (supply 5 % low, resistors 5 % high: engine.rules.margins).
     long_doc = {
         "trunk_length_m": 1200.0,
         "nodes": [{"name": "mid", "position_m": 600.0}, {"name": "end", "position_m": 1200.0}],
         "terminations": [{"position_m": 0.0, "resistance_ohm": 120.0}, {"position_m": 1200.0, "resistance_ohm": 120.0}],
     }
-    r_b, at_m = recommended_bias(_bus(**long_doc))
-    fitted = _bus(**long_doc, bias={"position_m": at_m, "pull_up_ohm": r_b, "pull_down_ohm": r_b})
+    sizing = size_bias(_bus(**long_doc), 0.0)
+    r_b = preferred_at_or_below(sizing.corner_max_ohm)
+    fitted = _bus(**long_doc, bias={"position_m": 0.0, "pull_up_ohm": r_b, "pull_down_ohm": r_b})
     _, levels_v = idle_levels_v(fitted)
-    assert levels_v.min() >= 0.25
+    assert levels_v.min() >= 0.2
     assert check_failsafe_bias(fitted)[0].verdict is Verdict.HOLDS
+    # The next E24 value up no longer holds at the corner.
+    weaker = preferred_at_or_below(sizing.corner_max_ohm * 1.2)
+    assert weaker > r_b
+    looser = _bus(**long_doc, bias={"position_m": 0.0, "pull_up_ohm": weaker, "pull_down_ohm": weaker})
+    assert check_failsafe_bias(looser)[0].verdict is not Verdict.HOLDS
+
+
+@pytest.mark.parametrize(
+    ("r_b", "nominal_v", "corner_v", "verdict"),
+    [
+        # common practice (worst-case arithmetic): 560 Ohm each from 5 V over 120 || 120 || 13 x 12 kOhm
+        # (56.3 Ohm) idles at 5 x 56.3 / (1120 + 56.3) = 0.239 V; with 4.75 V (5 V - 5 %), 588 Ohm (+5 %) and
+        # terminators at 114 Ohm (-5 %): 4.75 x 53.6 / (1176 + 53.6) = 0.207 V, still above the 200 mV threshold
+        # (TIA/EIA-485-A): holds.
+        (560.0, 0.239, 0.207, Verdict.HOLDS),
+        # 620 Ohm: 5 x 56.3 / 1296.3 = 0.217 V nominal, 4.75 x 53.6 / (1302 + 53.6) = 0.188 V at the corner: tight.
+        (620.0, 0.217, 0.188, Verdict.TIGHT),
+    ],
+)
+def test_the_tight_band_is_the_worst_corner_of_parts_and_supply(r_b, nominal_v, corner_v, verdict):
+    nodes = [{"name": f"n{i}", "position_m": 8.0 * i, "unit_loads": 1.0} for i in range(1, 13)]
+    bus = _bus(cable=LOSSLESS, nodes=nodes, bias={"position_m": 0.0, "pull_up_ohm": r_b, "pull_down_ohm": r_b})
+    finding = check_failsafe_bias(bus)[0]
+    assert finding.value == pytest.approx(nominal_v, abs=1e-3)  # V
+    assert finding.figure("corner_v") == pytest.approx(corner_v, abs=1e-3)  # V
+    assert finding.verdict is verdict
 
 
 @settings(max_examples=40, deadline=None)
@@ -147,7 +174,8 @@ def test_crowded_terminated_bus_gets_failsafe_or_rc_advice():
     # terminators need <= 720 Ohm for 200 mV (formula above): no pair fits.
     nodes = [{"name": f"n{i}", "position_m": 3.0 * i} for i in range(1, 31)]
     bus = _bus(nodes=nodes, cable=LOSSLESS)
-    choice = bias_choice(bus)
-    assert not choice.fits and choice.min_ohm == pytest.approx(12_000.0, rel=1e-9)
+    assert bias_min_ohm(bus) == pytest.approx(12_000.0, rel=1e-9)
+    assert size_bias(bus, 0.0).nominal_max_ohm < 720.0
     fix = check_failsafe_bias(bus)[0].fix
+    assert "no pull-up / pull-down pair fits" in fix
     assert "failsafe thresholds" in fix and "RC terminators" in fix

@@ -62,16 +62,19 @@ def test_one_finding_per_node_and_the_driver_with_its_limit():
     assert all(f.rule_id == "stub.length" and f.unit == "m" and f.source for f in findings)
 
 
-def test_tight_band_is_80_to_100_percent_of_the_limit():
+def test_tight_band_is_the_stub_ten_percent_longer_as_built():
+    # common practice: a stub as built runs up to 10 % longer than drawn, so it is tight from 1/1.1 = 90.9 % of
+    # the limit (TI SLLA272: 0.1 t_r VF c0) and breaks beyond the limit.
     limit = max_stub_length_m(100e-9, 0.78)
-    findings = check_stubs(_bus([0.79 * limit, 0.81 * limit, 0.99 * limit, 1.01 * limit]))[1:]
+    findings = check_stubs(_bus([0.90 * limit, 0.92 * limit, 0.99 * limit, 1.01 * limit]))[1:]
     assert [f.verdict for f in findings] == [Verdict.HOLDS, Verdict.TIGHT, Verdict.TIGHT, Verdict.BREAKS]
 
 
 def test_fix_names_node_shorter_stub_and_slower_driver():
     finding = check_stubs(_bus([3.0]))[1]
-    # Source: TI SLLA272 rule at VF 0.78: 3 m needs t_r >= 3 / (0.1 * 0.78 * c0) = 128 ns; 100 ns allows 2.34 m.
-    assert finding.fix == "Shorten the stub of node 'node-0' to <= 2.3 m, or use a driver with >= 128 ns rise time."
+    # Source: TI SLLA272 rule at VF 0.78: 100 ns allows 2.34 m; a fix that holds as built (10 % longer, common
+    # practice) asks for 2.34 / 1.1 = 2.13 m (shown rounded down, 2.1 m), or t_r >= 3.3 / (0.1 * 0.78 * c0) = 141 ns.
+    assert finding.fix == "Shorten the stub of node 'node-0' to <= 2.1 m, or use a driver with >= 141 ns rise time."
 
 
 def test_fix_refuses_a_driver_too_slow_for_the_bit_rate():

@@ -5,8 +5,8 @@ from pairline.engine.bus import build_bus
 from pairline.engine.findings import Verdict, worst
 from pairline.engine.plan import load_plan
 from pairline.engine.rules.cable_ends import end_tolerance_m, required_ends_m
+from pairline.engine.rules.rc_termination import check_ac_termination
 from pairline.engine.rules.termination import (
-    check_ac_termination,
     check_termination,
     corrected_termination_ohm,
     recommended_termination_ohm,
@@ -58,8 +58,8 @@ def test_reflection_coefficients():
 
 
 def test_terminator_corrected_for_lumped_receivers():
-    # Source: H. Johnson, M. Graham, High-Speed Digital Design, sec. 4.4: R_T = Z0 / (1 - Z0/R_P);
-    # 30 receivers of 36 kOhm -> R_P 1200 Ohm, Z0 100 Ohm -> 109.1 Ohm.
+    # common practice (arithmetic): R_T || R_P = Z0 solved for R_T gives R_T = Z0 / (1 - Z0/R_P); 30 receivers
+    # of 36 kOhm in parallel are R_P = 1200 Ohm, so on a 100 Ohm line R_T = 100 / (1 - 1/12) = 109.1 Ohm.
     assert corrected_termination_ohm(100.0, 36_000.0 / 30) == pytest.approx(109.1, abs=0.05)
 
 
@@ -71,7 +71,7 @@ def test_matched_bias_end_terminator():
 def test_plan_with_30_receivers_lumped_at_the_end_gets_109_ohm():
     nodes = [{"name": f"rx{i}", "position_m": 100.0, "unit_loads": 1 / 3} for i in range(30)]
     bus = _bus(terms=((0.0, 100.0), (100.0, 100.0)), length_m=100.0, nodes=nodes, cable={"class_key": "cat5e-100"})
-    # Source: H. Johnson, M. Graham, High-Speed Digital Design, sec. 4.4 worked case, 109.1 Ohm.
+    # common practice (arithmetic, as above): 30 receivers of 1/3 UL (36 kOhm each) lumped at the end -> 109.1 Ohm.
     assert recommended_termination_ohm(bus, 100.0) == pytest.approx(109.1, abs=0.05)
     value = [f for f in check_termination(bus) if f.rule_id == "termination.value" and "100 m" in f.title][0]
     assert "The ideal terminator here is 109.1 Ω" in value.detail

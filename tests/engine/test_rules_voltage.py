@@ -3,16 +3,10 @@
 import numpy as np
 import pytest
 from pairline.engine.bus import build_bus
+from pairline.engine.dc import DcElement, loop_resistance_ohm, solve_dc_cases_v, solve_dc_v
 from pairline.engine.findings import Verdict
 from pairline.engine.plan import load_plan
-from pairline.engine.rules.voltage import (
-    RECEIVER_THRESHOLD_V,
-    DcElement,
-    check_receiver_voltage,
-    driven_levels,
-    loop_resistance_ohm,
-    solve_dc_v,
-)
+from pairline.engine.rules.voltage import RECEIVER_THRESHOLD_V, check_receiver_voltage, driven_levels
 
 TINY_UL = 1e-6  # a receiver that draws nothing, to compare with load-free hand formulas
 
@@ -67,6 +61,28 @@ def test_library_driver_meets_the_1_5_v_into_54_ohm_requirement():
 def test_receiver_threshold_is_200_mv():
     # Source: TIA/EIA-485-A receiver input sensitivity +/-200 mV.
     assert pytest.approx(0.200, abs=1e-12) == RECEIVER_THRESHOLD_V
+
+
+@pytest.mark.parametrize(
+    ("open_circuit_v", "level_v", "verdict"),
+    [
+        # common practice (divider): V_oc x 120 / (120 + 202.08) over 1200 m of 24 AWG loop (2 x 84.2 Ohm/km,
+        # ASTM B258): 0.5 V -> 0.186 V, under the 200 mV threshold of TIA/EIA-485-A: breaks.
+        (0.5, 0.1863, Verdict.BREAKS),
+        # 0.6 V -> 0.224 V nominal; at the corner (0.57 V, 114 Ohm, loop 1.23 x 202.08 Ohm) 0.179 V: tight.
+        (0.6, 0.2236, Verdict.TIGHT),
+        # 0.8 V -> 0.298 V nominal; 0.239 V at the corner: holds.
+        (0.8, 0.2981, Verdict.HOLDS),
+    ],
+)
+def test_the_200_mv_threshold_decides_the_dc_level_verdict(open_circuit_v, level_v, verdict):
+    bus = _bus(
+        driver={"transceiver": None, "rise_time_s": 1e-6, "open_circuit_v": open_circuit_v, "source_ohm": 0.0},
+        cable={"class_key": None, "z0_ohm": 120.0, "velocity_factor": 0.78, "resistance_ohm_per_m": 0.0842},
+    )
+    finding = check_receiver_voltage(bus)[0]
+    assert finding.value == pytest.approx(level_v, abs=2e-4)  # V, hand value to 4 digits
+    assert finding.verdict is verdict
 
 
 def test_one_finding_per_receiver_and_a_weak_far_end_breaks():
@@ -182,3 +198,28 @@ def test_a_far_transceiver_talking_sets_the_weakest_level():
     east = next(f for f in check_receiver_voltage(bus) if f.node == "east")
     assert east.value == pytest.approx(expected_v, rel=1e-6)
     assert "'west' talks" in east.detail
+
+
+def test_a_long_chain_swept_in_o_n_agrees_with_a_dense_nodal_solve():
+    # Source: an independent second route: Kirchhoff's current law as a full nodal matrix, solved by numpy's LU
+    # solve, for a ladder long enough (1500 taps, three cases that differ) that the engine sweeps the chain.
+    rng = np.random.default_rng(7)
+    n_taps, r_per_m, length_m = 1500, 0.0842, 749.5
+    elements = [DcElement(f"t{k}", 0.5 * k, 0.0, float(rng.uniform(100.0, 20_000.0))) for k in range(n_taps)]
+    resistance = np.tile([e.resistance_ohm for e in elements], (3, 1))
+    resistance[:, 0] = 40.0
+    resistance[1, 700] = 120.0  # a terminator in one case only: each case has its own matrix
+    resistance[2, 1499] = 120.0
+    sources = np.zeros((3, n_taps))
+    sources[:, 0] = [4.0, 4.0, 2.5]
+    got = solve_dc_cases_v(elements, resistance, sources, length_m, r_per_m)
+    link = 1.0 / (2.0 * r_per_m * 0.5)
+    for case in range(3):
+        g = np.diag(1.0 / resistance[case]) + np.diag(np.full(n_taps, 2.0 * link))
+        g[0, 0] -= link  # the chain's ends have one neighbour each
+        g[-1, -1] -= link
+        idx = np.arange(n_taps - 1)
+        g[idx, idx + 1] = -link
+        g[idx + 1, idx] = -link
+        want = np.linalg.solve(g, sources[case] / resistance[case])
+        np.testing.assert_allclose(got[case], want, rtol=1e-9, atol=1e-12)  # V

@@ -31,11 +31,36 @@ def test_trunk_positions_are_linear_in_metres():
 def test_stub_lengths_are_drawn_in_proportion():
     drawing = bus_drawing(load_plan(PLAN), {}, "metric")
     lengths = [n.stub_bottom_y - n.stub_top_y for n in drawing.nodes]
-    assert lengths[0] < lengths[1] < lengths[2]
-    # The drawn part beyond the fixed minimum is proportional to the stub: 2 m vs 8 m -> 1 : 4.
-    base = lengths[0]
-    assert (lengths[2] - base) / (lengths[1] - base) == pytest.approx(4.0, rel=1e-9)
-    assert "×" in drawing.caption  # 8 m stubs on a 400 m trunk need their own scale, and say so
+    # Source: a scale drawing: drawn length = stub length x one scale; 0 m, 2 m and 8 m -> 0 : 1 : 4.
+    assert lengths[0] == 0.0
+    assert lengths[2] / lengths[1] == pytest.approx(4.0, rel=1e-12)
+    assert lengths[1] == pytest.approx(2.0 * drawing.stub_px_per_m, rel=1e-12)
+    # 8 m stubs on a 400 m trunk would be 16 px on the trunk's scale: they get their own, with a bar.
+    assert drawing.stub_px_per_m > drawing.px_per_m and "scale of their own" in drawing.caption
+    bar = drawing.stub_bar
+    assert bar is not None and bar.label == "5 m" and "5 m of stub" in drawing.caption
+    assert bar.y_bottom - bar.y_top == pytest.approx(5.0 * drawing.stub_px_per_m, rel=1e-12)
+
+
+def test_stubs_share_the_trunk_scale_when_they_show_on_it():
+    plan = PLAN | {"trunk_length_m": 400.0}
+    plan["nodes"] = [n | {"stub_length_m": 20.0} for n in PLAN["nodes"]]
+    drawing = bus_drawing(load_plan(plan), {}, "metric")
+    assert drawing.stub_px_per_m == drawing.px_per_m and drawing.stub_bar is None
+    # Source: a scale drawing: 20 m at the trunk's 780 px / 400 m.
+    assert drawing.nodes[0].stub_bottom_y - drawing.nodes[0].stub_top_y == pytest.approx(39.0, rel=1e-12)
+
+
+def test_names_of_close_nodes_never_overlap():
+    crowded = PLAN | {"nodes": [{"name": f"sensor-{k}", "position_m": 150.0 + 2.0 * k} for k in range(12)]}
+    drawing = bus_drawing(load_plan(crowded), {}, "metric")
+    shown = sorted((n for n in drawing.nodes if n.show_label), key=lambda n: n.label_x)
+    assert len(shown) == 12  # twelve names fit beside each other with leaders
+    assert len({n.label_y for n in shown}) == 1  # one baseline: parallel slanted names cannot cross
+    gaps = [b.label_x - a.label_x for a, b in zip(shown, shown[1:], strict=False)]
+    # 11.5 px text at 45° needs 13.4 px between parallel baselines: 19 px apart along the line.
+    assert min(gaps) >= 19.0 - 1e-9
+    assert all(abs(n.label_x - n.x) <= 6 * 19.0 + 1e-9 for n in shown)  # a leader joins each to its node
 
 
 def test_each_node_carries_its_verdict_and_a_shortened_label():
@@ -82,9 +107,12 @@ def test_crowded_labels_are_thinned_but_nodes_that_do_not_hold_keep_theirs():
     shown = [n for n in drawing.nodes if n.show_label]
     assert len(drawing.nodes) == 100 and 0 < len(shown) < 100
     assert drawing.nodes[51].show_label
-    xs = sorted(n.x for n in shown)
-    assert min(b - a for a, b in zip(xs, xs[1:], strict=False)) >= 16.0
+    starts = sorted(n.label_x for n in shown)
+    assert min(b - a for a, b in zip(starts, starts[1:], strict=False)) >= 19.0 - 1e-9
     assert "left out" in drawing.caption
+    # The names kept spread over the whole trunk: the first node keeps its name, and names reach both ends.
+    assert drawing.nodes[0].show_label
+    assert starts[0] < drawing.trunk_x0 + 50.0 and starts[-1] > drawing.trunk_x1 - 50.0
 
 
 def test_part_labels_near_the_right_edge_run_leftwards():

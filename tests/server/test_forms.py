@@ -77,7 +77,8 @@ def test_rows_with_gaps_blank_and_removed_rows_are_renumbered():
     parsed = parse_form(fields)
     assert [n["name"] for n in parsed.doc["nodes"]] == ["a", "c"]
     assert parsed.state.values["nodes.1.name"] == "c"
-    assert parsed.state.n_nodes == 2
+    # The blank row is kept for the person to fill, after the filled ones so their numbers match the messages.
+    assert parsed.state.n_nodes == 3 and "nodes.2.name" not in parsed.state.values
 
 
 def test_unreadable_text_is_a_problem_on_its_field_and_kept_for_the_form():

@@ -38,9 +38,11 @@ def test_worst_receiver_is_the_one_whose_signal_finding_breaks_not_the_least_mar
     expected = json.loads((samples / "expected" / "print-hall-fast-drop.json").read_text())["verdicts"]
     checked = check_and_simulate(plan)
     worst = worst_receiver(checked.metrics, checked.report.findings)
-    # Source: the sample's stored verdicts: the drop's neighbours break (press-2 rings back through the threshold,
-    # press-3 at its worst tolerance corner) while the far presses hold with more margin.
-    assert expected[f"signal.integrity@{worst.receiver}"] == "breaks"
+    # Source: the sample's stored verdicts: press-2 rings back through the threshold (breaks) although
+    # another receiver samples a smaller voltage.
+    assert expected[f"signal.integrity@{worst.receiver}"]["verdict"] == "breaks"
+    least_margin = min(checked.metrics, key=lambda m: m.min_sample_v)
+    assert least_margin.receiver != worst.receiver  # the case the margin alone got wrong
     assert checked.waveforms.receiver_names[0] == worst.receiver
 
 

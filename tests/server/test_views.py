@@ -4,7 +4,7 @@ from dataclasses import dataclass
 
 import pytest
 from pairline.engine.findings import Finding, Verdict
-from pairline.server.views import finding_data
+from pairline.server.findings_view import finding_data
 
 
 @dataclass(frozen=True)
@@ -69,7 +69,8 @@ def test_plan_page_prints_each_limit_with_its_side(client):
         "nodes": [{"name": "far", "position_m": 100.0, "stub_length_m": 0.5}],
         "terminations": [{"position_m": 0.0, "resistance_ohm": 120.0}, {"position_m": 100.0, "resistance_ohm": 120.0}],
     }
-    data = client.post("/api/check", json=plan).json()
+    plan_id = client.post("/api/plans", json=plan).json()["id"]
+    data = client.get(f"/plans/{plan_id}.json").json()
     stub = next(f for f in data["findings"] if f["rule_id"] == "stub.length")
     assert stub["limit_kind"] == "max" and stub["limit_text"].startswith("≤ ")
     assert all(f["limit_text"][:1] in ("≤", "≥", "") for f in data["findings"])
@@ -124,7 +125,54 @@ def test_no_stop_caution_at_50_volts_or_less(client):
     ],
 )
 def test_engine_sentences_read_in_feet_for_an_imperial_plan(text, expected):
-    from pairline.server.views import lengths_in_text
+    from pairline.server.wording import lengths_in_text
 
     assert lengths_in_text(text, "imperial", keep_metres=True) == expected
     assert lengths_in_text(text, "metric", keep_metres=True) == text  # already 3 digits in metres
+
+
+def test_every_picture_shows_the_findings_verdict_and_the_rule_that_decided_it(client):
+    import json
+    from pathlib import Path
+
+    from tests.server.html_dom import parse_html
+
+    root = Path(__file__).resolve().parents[2] / "sample_buses"
+    doc = json.loads((root / "print-hall-fast-drop.json").read_text(encoding="utf-8"))
+    plan_id = client.post("/api/plans", json=doc).json()["id"]
+    dom = parse_html(client.get(f"/plans/{plan_id}?receiver=ink-dryer").text)
+    # Source: the sample's stored verdicts (sample_buses/expected/print-hall-fast-drop.json): length.rate_rule
+    # breaks; stub.length and signal.confirms break at ink-dryer; signal.integrity breaks at press-2.
+    mark = dom.find("g", class_="plan-point verdict-breaks")
+    assert mark is not None and "length.rate_rule" in mark.find("title").text()
+    caption = dom.find("figure", class_="plot curve").find("figcaption").text()
+    assert "breaks by length.rate_rule" in caption
+    node = next(a for a in dom.find_all("a") if "ink-dryer" in (a.find("title").text() if a.find("title") else ""))
+    assert node.attrs["class"] == "node verdict-breaks" and "stub.length" in node.find("title").text()
+    heads = {h.text().split(":")[1].split()[0]: h for h in dom.find_all("h3", class_="receiver-head")}
+    table = {tr.find("th").text(): tr for tr in dom.find("table", class_="node-table").find_all("tr") if tr.find("th")}
+    for name in ("press-2", "ink-dryer"):
+        pill = heads[name].find("span", class_="pill verdict-breaks")
+        assert pill is not None and table[name].attrs["class"] == "verdict-breaks"
+    assert "stub.length" in heads["ink-dryer"].text()
+
+
+def test_a_tight_finding_reads_as_close_to_the_limit(client):
+    from tests.server.html_dom import parse_html
+
+    # Source: TIA-485-A, 32 UL per driver; TI SLLA272, a bias counts 12 kOhm / R unit loads: 12 receivers of 1 UL,
+    # the driver's own 1/4 UL and 620 Ohm of bias (19.35 UL) are 31.6 UL, inside 32; with the bias resistors 5 %
+    # low (IEC 60063 E24 parts) 32.6 UL, over it: tight, close to the limit, not over it.
+    plan = {
+        "bit_rate_bps": 9600,
+        "trunk_length_m": 300.0,
+        "driver": {"name": "head", "transceiver": "edge-100ns"},
+        "nodes": [{"name": f"n{k}", "position_m": 25.0 * (k + 1)} for k in range(12)],
+        "terminations": [{"position_m": 0.0, "resistance_ohm": 120.0}, {"position_m": 300.0, "resistance_ohm": 120.0}],
+        "bias": {"position_m": 150.0, "pull_up_ohm": 620.0, "pull_down_ohm": 620.0},
+    }
+    plan_id = client.post("/api/plans", json=plan).json()["id"]
+    dom = parse_html(client.get(f"/plans/{plan_id}").text)
+    item = next(li for li in dom.find_all("li") if li.attrs.get("data-rule") == "load.unit_loads")
+    assert item.find("span", class_="pill verdict-tight").text() == "close to the limit"
+    assert "close to the limit" in item.find("p", class_="numbers").text()

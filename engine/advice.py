@@ -1,0 +1,193 @@
+"""The advised plan: the best design (engine.design) built as a plan and checked by the same rules, in full.
+
+What terminators and bias cannot meet is said plainly (Unmet): which rule, why, and what can (failsafe
+receivers, lighter receivers, a repeater, a shorter stub, a lower bit rate); a remedy that edits the plan is
+re-checked (the edited plan advised again) before it is offered.
+"""
+
+import dataclasses
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+from pairline.engine.bus import Bus
+from pairline.engine.dc import bias_supply_v
+from pairline.engine.design import COVERED_RULES, PlanChange, apply_changes, best_design, bias_positions, with_plan
+from pairline.engine.findings import Finding, Verdict, worst
+from pairline.engine.plan import BusPlan
+from pairline.engine.rules.bias import bias_min_ohm, size_bias
+from pairline.engine.rules.loads import RS485_UNIT_LOAD_BUDGET, bias_unit_loads
+from pairline.engine.ruleset import RuleRun, run_design_rules, run_rules
+from pairline.engine.units import length_text
+
+
+@dataclass(frozen=True, slots=True)
+class Unmet:
+    """A rule the advised plan still breaks: why terminators and bias cannot meet it, and what can."""
+
+    rule_id: str
+    nodes: tuple[str, ...]
+    why: str
+    remedies: tuple[str, ...]
+
+    @property
+    def text(self) -> str:
+        return f"{self.why} What can: " + "; ".join(self.remedies) + "." if self.remedies else self.why
+
+
+@dataclass(frozen=True, slots=True)
+class Advice:
+    """The advised plan, how it differs from the plan, and its own check."""
+
+    plan: BusPlan
+    changes: tuple[PlanChange, ...]
+    run: RuleRun  # the advised plan's check: findings and simulation
+    unmet: tuple[Unmet, ...]
+    simulated: bool = True  # False: the quick form, its signal findings are the plan's (see advise)
+
+    @property
+    def findings(self) -> tuple[Finding, ...]:
+        return self.run.findings
+
+    @property
+    def verdict(self) -> Verdict:
+        return worst([f.verdict for f in self.run.findings])
+
+
+# --- advising ----------------------------------------------------------------------------------------------------
+
+
+def badness_by_rule(findings: Sequence[Finding]) -> dict[str, int]:
+    """Per rule, the sum of its findings' verdict ranks: lower is better."""
+    out: dict[str, int] = {}
+    for f in findings:
+        out[f.rule_id] = out.get(f.rule_id, 0) + f.verdict.rank
+    return out
+
+
+def _with_rules(bus: Bus, base: Sequence[Finding], changes: Sequence[PlanChange]) -> tuple[PlanChange, ...]:
+    """Each change with the rules it moves for the better when made alone on the plan (re-checked)."""
+    before = badness_by_rule([f for f in base if f.rule_id in COVERED_RULES])
+    out = []
+    for change in changes:
+        after = badness_by_rule(run_design_rules(with_plan(bus, apply_changes(bus.plan, [change]))))
+        improved = tuple(r for r in {**before, **after} if after.get(r, 0) < before.get(r, 0))
+        out.append(dataclasses.replace(change, rule_ids=improved))
+    return tuple(out)
+
+
+def advise(run: RuleRun, *, simulate: bool = True) -> Advice:
+    """The advised plan for a checked bus: the best design, its change list and its own full check.
+
+    simulate=False is the quick form for a verdict while typing: the advised plan's design rules are run, the
+    rest of its findings (stubs, ground offsets, length, the simulated signal) are the plan's own, and remedies
+    that need a further search are left out. The plan, the changes and what they mean for the load rules (and so
+    the spare capacity) are the same as in the full form."""
+    bus = run.bus
+    design = best_design(bus)
+    changes = _with_rules(bus, run.findings, design.changes)
+    if not changes:
+        advised_run = run
+    elif simulate:
+        advised_run = run_rules(with_plan(bus, design.plan))
+    else:
+        kept = [f for f in run.findings if f.rule_id not in {d.rule_id for d in design.findings}]
+        advised_run = RuleRun(with_plan(bus, design.plan), (*design.findings, *kept), run.simulation)
+    return Advice(
+        plan=design.plan,
+        changes=changes,
+        run=advised_run,
+        unmet=_unmet(advised_run, search=simulate),
+        simulated=simulate or not changes,
+    )
+
+
+_NOT_COVERED = {
+    "stub.length": "Terminators and bias do not shorten a stub: its reflection depends on its length and the "
+    "driver's edge.",
+    "common_mode.range": "Terminators and bias do not change a ground offset.",
+    "length.rate_rule": "Terminators and bias do not change the path length or the bit rate.",
+    "length.loss": "Terminators and bias do not change the cable's loss over the path.",
+}
+_REPEATER = "split the bus with a repeater (each segment has its own budget, terminators and bias)"
+_FAILSAFE = "use receivers with failsafe thresholds on every node (they read an idle terminated bus without bias)"
+
+
+def _unmet(advised: RuleRun, *, search: bool = True) -> tuple[Unmet, ...]:
+    """Every rule the advised plan still breaks, why, and what can meet it."""
+    by_rule: dict[str, list[Finding]] = {}
+    for f in advised.findings:
+        if f.verdict is Verdict.BREAKS:
+            by_rule.setdefault(f.rule_id, []).append(f)
+    out = []
+    for rule_id, found in by_rule.items():
+        nodes = tuple(dict.fromkeys(f.node for f in found if f.node))
+        own = [f.fix.rstrip(".") for f in found if f.fix]
+        remedies = list(dict.fromkeys(own))[:4]
+        if rule_id in _NOT_COVERED:
+            why = _NOT_COVERED[rule_id]
+        elif rule_id == "bias.idle_level":
+            why, remedies = _bias_unmet(advised.bus, search=search)
+        elif rule_id in ("load.unit_loads", "load.driver"):
+            why = (
+                "The nodes and the driver's own receiver load the pair this much before any bias or terminator choice."
+            )
+            bias = advised.bus.plan.bias
+            held = bias_unit_loads(bias.pull_up_ohm, bias.pull_down_ohm) if bias is not None else 0.0
+            remedies = [r for r in (_lighter_receivers(advised.bus, held) if search else "", _REPEATER) if r]
+        elif rule_id in ("signal.integrity", "signal.confirms"):
+            why = (
+                "The simulated waveform still breaks with the advised terminators and bias: the cause is a stub, "
+                "the bit rate or the driver's edge, which they do not change."
+            )
+        else:
+            why = f"With the advised terminators and bias, {rule_id} still breaks."
+        out.append(Unmet(rule_id, nodes, why, tuple(remedies)))
+    return tuple(out)
+
+
+def _bias_unmet(bus: Bus, *, search: bool = True) -> tuple[str, list[str]]:
+    """Why no bias network fits the advised terminators, with the numbers, and what can replace it."""
+    unbiased = with_plan(bus, bus.plan.model_copy(update={"bias": None}))
+    r_min = bias_min_ohm(unbiased)
+    sizings = [size_bias(unbiased, p, bias_supply_v(bus)) for p in bias_positions(bus.plan)]
+    best = max(sizings, key=lambda s: s.nominal_max_ohm)
+    room = (
+        "the nodes already take the whole 32 UL budget"
+        if r_min == float("inf")
+        else f"the 32 UL budget and the driver-load limit need at least {r_min:.0f} Ω"
+    )
+    reach = (
+        f"at most {best.nominal_max_ohm:.0f} Ω each (from {length_text(best.position_m)})"
+        if best.nominal_max_ohm > 0.0
+        else "more than the bias supply can give through any resistor"
+    )
+    why = (
+        "No pull-up / pull-down pair idles every receiver at 200 mV within the bus's room, not even 1 % parts: "
+        f"with the advised terminators that takes {reach}, while {room}."
+    )
+    remedies = [_FAILSAFE]
+    held = bias_unit_loads(best.nominal_max_ohm, best.nominal_max_ohm) if best.nominal_max_ohm else 0.0
+    lighter = _lighter_receivers(bus, held) if search else ""
+    if lighter:
+        remedies.append(lighter)
+    remedies.append(_REPEATER)
+    return why, remedies
+
+
+def _lighter_receivers(bus: Bus, bias_unit_loads: float = 0.0) -> str:
+    """Receivers of fewer unit loads, if some rating makes the advice meet every rule it covers (re-checked by
+    advising the edited plan); empty when none does. The first rating tried is the heaviest that leaves room, by
+    arithmetic, for the driver's receiver and a bias of bias_unit_loads; lighter ones follow if it fails."""
+    plan = bus.plan
+    if plan.standard != "rs485" or not plan.nodes:
+        return ""
+    heaviest = max(n.unit_loads for n in plan.nodes)
+    room_each = (RS485_UNIT_LOAD_BUDGET - bus.driver.unit_loads - bias_unit_loads) / len(plan.nodes)
+    ratings = [r for r in (0.5, 0.25, 0.125) if r < heaviest and (r <= room_each or r == 0.125)]
+    for rating in ratings:
+        nodes = [n.model_copy(update={"unit_loads": min(n.unit_loads, rating)}) for n in plan.nodes]
+        design = best_design(with_plan(bus, plan.model_copy(update={"nodes": nodes})))
+        if design.breaks == 0:
+            steps = " and ".join(c.text for c in design.changes)
+            return f"use receivers of {rating:g} UL on every node" + (f", then {steps}" if steps else "")
+    return ""

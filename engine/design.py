@@ -1,0 +1,383 @@
+"""Designs for the advice: terminators and bias chosen together, each applied to the plan as a change list.
+
+A design is a set of terminators and a bias network. For each place the bias could go (the plan's bias point,
+the driver, either cable end, the middle of the trunk) the terminators and the bias are sized jointly: the
+terminator at an end is corrected for what else is lumped there, the bias network included (R_T || R_P = Z0),
+and the bias is the weakest E24 pair that still idles every receiver at 200 mV at the worst corner of the
+tolerances for those terminators (engine.rules.bias.size_bias); the two are iterated until they agree. Each
+design is applied to the plan as a change list and weighed by the rules it can move (engine.ruleset.DESIGN_RULES):
+fewest findings that break, then fewest tight, then fewest changes, then the bias where the plan (or else the
+driver) has it, then the weakest bias (the most room left).
+Parallel terminators are tried first; RC terminators, or none where the line may stay unterminated, only when
+the best parallel design is not clean. The bias is an E24 (5 %) part that holds at the worst corner; only when
+none fits the room does the search take one that holds with nominal parts (TIGHT), E24 or else E96 (1 %).
+The chosen plan is then checked in full, simulation included.
+
+Every node is one device class today; sizing goes through the listeners of engine.dc (size_bias), so per-node
+receiver classes (bias sized for the receivers that need it) and several bias networks slot in there.
+"""
+
+import math
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+from pairline.engine.bus import Bus
+from pairline.engine.dc import bias_supply_v
+from pairline.engine.findings import Finding, Verdict
+from pairline.engine.plan import MAX_BIAS_OHM, BiasSpec, BusPlan, TerminationSpec
+from pairline.engine.rules.bias import BiasSizing, bias_min_ohm, bias_text, size_bias
+from pairline.engine.rules.cable_ends import (
+    end_name,
+    lumped_load_ohm,
+    nearest_end_m,
+    required_ends_m,
+    terminator_value_ohm,
+)
+from pairline.engine.rules.preferred import E24, E96, preferred_at_or_above, preferred_at_or_below
+from pairline.engine.rules.rc_termination import rc_capacitance_window_f
+from pairline.engine.rules.termination import ends_to_terminate_m, gamma_verdict
+from pairline.engine.rules.unterminated import line_may_stay_unterminated
+from pairline.engine.ruleset import run_design_rules
+from pairline.engine.units import length_text, si_format
+
+# Rules a change of terminators or bias can move; the others (stubs, ground offsets, length and rate) it cannot.
+COVERED_RULES = frozenset(
+    {
+        "load.unit_loads",
+        "load.driver",
+        "termination.placement",
+        "termination.value",
+        "termination.rc",
+        "termination.may_omit",
+        "bias.idle_level",
+        "signal.dc_level",
+        "power.resistor",
+        "signal.integrity",
+        "signal.confirms",
+    }
+)
+_SIZING_ROUNDS = 4  # terminator <-> bias agreement settles in two or three
+
+
+@dataclass(frozen=True, slots=True)
+class PlanChange:
+    """One change from the plan to the advised plan: terminators at one place, or the bias network."""
+
+    part: str  # "terminator" or "bias"
+    where: str  # "the far end (1000 m)", "400 m", "bias network"
+    removed: tuple[TerminationSpec, ...]  # terminators taken out
+    added: tuple[TerminationSpec, ...]  # terminators put in
+    bias_before: BiasSpec | None
+    bias_after: BiasSpec | None
+    before_text: str
+    after_text: str
+    text: str  # the change as an instruction, lower-case: "change the terminator at ... from 120 Ω to 130 Ω"
+    why: str
+    rule_ids: tuple[str, ...] = ()  # the rules it moves on its own (re-checked)
+
+
+def apply_changes(plan: BusPlan, changes: Sequence[PlanChange]) -> BusPlan:
+    """The plan with the changes made: listed terminators out (one occurrence each), added ones in after the
+    kept ones, the bias network as the last bias change leaves it."""
+    terminations = list(plan.terminations)
+    bias = plan.bias
+    added: list[TerminationSpec] = []
+    for change in changes:
+        for spec in change.removed:
+            terminations.remove(spec)
+        added.extend(change.added)
+        if change.part == "bias":
+            bias = change.bias_after
+    return plan.model_copy(update={"terminations": terminations + added, "bias": bias})
+
+
+def with_plan(bus: Bus, plan: BusPlan) -> Bus:
+    return Bus(plan=plan, cable=bus.cable, driver=bus.driver)
+
+
+# --- designs ---------------------------------------------------------------------------------------------------
+
+
+def _ohm(value: float) -> str:
+    return si_format(value, "Ω")
+
+
+def _term_text(t: TerminationSpec) -> str:
+    return _ohm(t.resistance_ohm) + (
+        f" + {si_format(t.capacitance_f, 'F')}" if t.kind == "rc" and t.capacitance_f else ""
+    )
+
+
+def _rc_spec(bus: Bus, end_m: float, resistance_ohm: float, old_c: float | None) -> TerminationSpec | None:
+    """An RC terminator whose capacitor's whole tolerance band suits the round trip and the bit; None if none."""
+    c_lo, c_hi = rc_capacitance_window_f(bus, resistance_ohm)
+    if c_lo > c_hi:
+        return None
+    c = old_c if old_c is not None and c_lo <= old_c <= c_hi else preferred_at_or_above(c_lo)
+    if c > c_hi:
+        return None
+    return TerminationSpec(position_m=end_m, kind="rc", resistance_ohm=resistance_ohm, capacitance_f=c)
+
+
+def _holds_at_end(bus: Bus, term: TerminationSpec) -> bool:
+    """The plan's terminator matches its end (termination.value HOLDS) and, if RC, its capacitor suits the window."""
+    if gamma_verdict(bus, term.resistance_ohm, lumped_load_ohm(bus, term.position_m)) is not Verdict.HOLDS:
+        return False
+    if term.kind == "rc":
+        c_lo, c_hi = rc_capacitance_window_f(bus, term.resistance_ohm)
+        return term.capacitance_f is not None and c_lo <= term.capacitance_f <= c_hi
+    return True
+
+
+def _terminator_changes(bus: Bus, kind: str, original: Bus) -> list[PlanChange] | None:
+    """Terminator changes for one design kind, on a bus that already carries the design's bias network.
+
+    kind "plan": keep each end's terminator that holds, unless the design changes what is lumped at that end (a
+    bias moved to or from it: the terminator was sized for what was there), else a corrected one of the plan's
+    kind where it fits;
+    "parallel" / "rc": every end that needs one gets that kind; "none": no terminators (only where the line may
+    stay unterminated). None when the kind cannot be built (no RC capacitor suits the bus)."""
+    plan = bus.plan
+    ends = ends_to_terminate_m(bus) if kind != "none" else ()
+    at_end: dict[float, list[TerminationSpec]] = {0.0: [], plan.trunk_length_m: []}
+    loose: list[TerminationSpec] = []
+    for t in plan.terminations:
+        end = nearest_end_m(bus, t.position_m)
+        (at_end[end] if end is not None else loose).append(t)
+    changes: list[PlanChange] = []
+    for end, present in at_end.items():
+        where = end_name(bus, end)
+        if end not in ends:
+            if present:
+                unwanted = kind != "none" and end not in required_ends_m(bus)
+                reason = (
+                    "the driver's low output impedance ends the line there"
+                    if unwanted
+                    else "the line may stay unterminated"
+                )
+                changes.append(_removal(present, where, reason))
+            continue
+        same_loads = math.isclose(lumped_load_ohm(bus, end), lumped_load_ohm(original, end), rel_tol=1e-9)
+        if kind == "plan" and len(present) == 1 and same_loads and _holds_at_end(bus, present[0]):
+            continue
+        r = terminator_value_ohm(bus, end)
+        want_rc = kind == "rc" or (kind == "plan" and any(t.kind == "rc" for t in present))
+        new = (
+            _rc_spec(bus, end, r, next((t.capacitance_f for t in present if t.kind == "rc"), None)) if want_rc else None
+        )
+        if new is None:
+            if kind == "rc":
+                return None
+            new = TerminationSpec(position_m=end, kind="parallel", resistance_ohm=r)
+        if len(present) == 1 and present[0] == new:
+            continue
+        changes.append(_replacement(present, new, where))
+    for t in loose:
+        changes.append(
+            _removal([t], length_text(t.position_m), "a terminator away from the cable ends only loads the driver")
+        )
+    return changes
+
+
+def _removal(present: list[TerminationSpec], where: str, reason: str) -> PlanChange:
+    listed = " and ".join(_term_text(t) for t in present)
+    return PlanChange(
+        "terminator",
+        where,
+        tuple(present),
+        (),
+        None,
+        None,
+        listed,
+        "none",
+        f"remove the {listed} terminator{'s' if len(present) > 1 else ''} at {where}",
+        reason,
+    )
+
+
+def _replacement(present: list[TerminationSpec], new: TerminationSpec, where: str) -> PlanChange:
+    after = _term_text(new)
+    if not present:
+        text = f"fit a {after} {'RC ' if new.kind == 'rc' else ''}terminator at {where}"
+        why = "the line needs a terminator there: three round trips outlast half a bit"
+    elif len(present) > 1:
+        text = f"keep one {after} terminator at {where} instead of the plan's {len(present)}"
+        why = "more than one terminator at an end loads it below the cable's impedance"
+    elif present[0].kind != new.kind:
+        old = present[0]
+        text = (
+            f"replace the RC terminator at {where} ({_term_text(old)}) with a plain {_ohm(new.resistance_ohm)} resistor"
+            if old.kind == "rc"
+            else f"replace the {_term_text(old)} terminator at {where} with an RC terminator ({after})"
+        )
+        why = (
+            "no capacitor suits both the round trip and the bit, or the bias needs the terminator's DC path"
+            if old.kind == "rc"
+            else "with RC terminators the bias network sees only the receivers, so a weak one holds the idle bus"
+        )
+    else:
+        text = f"change the terminator at {where} from {_term_text(present[0])} to {after}"
+        why = "so the end matches the cable with what else is lumped there (R_T || R_P = Z0)" + (
+            ", its capacitor inside the window the round trip and the bit leave" if new.kind == "rc" else ""
+        )
+    before = " and ".join(_term_text(t) for t in present) or "none"
+    return PlanChange("terminator", where, tuple(present), (new,), None, None, before, after, text, why)
+
+
+def _bias_change(plan: BusPlan, bias: BiasSpec | None, supply_v: float) -> PlanChange | None:
+    old = plan.bias
+    if old == bias:
+        return None
+    if bias is None:
+        before = bias_text(old.pull_up_ohm, old.pull_down_ohm, supply_v, old.position_m) if old else "none"
+        return PlanChange(
+            "bias",
+            "bias network",
+            (),
+            (),
+            old,
+            None,
+            before,
+            "none",
+            "remove the bias network",
+            "no bias network fits this bus: see bias.idle_level",
+        )
+    after = bias_text(bias.pull_up_ohm, bias.pull_down_ohm, supply_v, bias.position_m)
+    why = (
+        "the weakest standard pair that idles every receiver at 200 mV or more at the worst corner of the "
+        "tolerances, sized with the terminators"
+    )
+    if old is None:
+        return PlanChange("bias", "bias network", (), (), None, bias, "none", after, f"add failsafe bias: {after}", why)
+    before = bias_text(old.pull_up_ohm, old.pull_down_ohm, supply_v, old.position_m)
+    moved = old.position_m != bias.position_m
+    text = (
+        f"move the bias network from {length_text(old.position_m)} to {length_text(bias.position_m)} and make it "
+        f"{_ohm(bias.pull_up_ohm)} / {_ohm(bias.pull_down_ohm)}"
+        if moved
+        else f"change the bias resistors from {_ohm(old.pull_up_ohm)} / {_ohm(old.pull_down_ohm)} to "
+        f"{_ohm(bias.pull_up_ohm)} / {_ohm(bias.pull_down_ohm)}"
+    )
+    return PlanChange("bias", "bias network", (), (), old, bias, before, after, text, why)
+
+
+@dataclass(frozen=True, slots=True)
+class Design:
+    """A candidate: its changes, the plan they make, and that plan's design-rule findings."""
+
+    changes: tuple[PlanChange, ...]
+    plan: BusPlan
+    findings: tuple[Finding, ...]
+    bias_ohm: float
+    order: int  # preference of the bias position (the plan's first)
+    moved: bool  # the bias network leaves the place the plan gives it
+
+    @property
+    def breaks(self) -> int:
+        return sum(f.verdict is Verdict.BREAKS for f in self.findings)
+
+    def key(self) -> tuple[int, int, int, int, int, int, float]:
+        """Fewest breaks; among those, fewest in the loading rules (an idle level failsafe receivers can rescue,
+        a loading limit they cannot); then fewest tight; then the bias left where the plan has it (changing
+        resistor values is easier on site than moving a network to another device); fewest changes; the bias
+        where the plan has it, else at the driver, where its supply is; the weakest bias."""
+        load = sum(f.verdict is Verdict.BREAKS for f in self.findings if f.rule_id.startswith("load."))
+        tight = sum(f.verdict is Verdict.TIGHT for f in self.findings)
+        return (self.breaks, load, tight, int(self.moved), len(self.changes), self.order, -self.bias_ohm)
+
+
+def _design(bus: Bus, kind: str, bias: BiasSpec | None, order: int) -> Design | None:
+    plan = bus.plan
+    biased = with_plan(bus, plan.model_copy(update={"bias": bias}))
+    terminators = _terminator_changes(biased, kind, bus)
+    if terminators is None:
+        return None
+    bias_change = _bias_change(plan, bias, bias_supply_v(biased))
+    changes = tuple(terminators + ([bias_change] if bias_change else []))
+    advised = apply_changes(plan, changes)
+    findings = run_design_rules(with_plan(bus, advised))
+    moved = plan.bias is not None and bias is not None and bias.position_m != plan.bias.position_m
+    return Design(changes, advised, findings, bias.pull_up_ohm if bias else 0.0, order, moved)
+
+
+def _bias_value_ohm(sizing: BiasSizing, tier: int) -> float:
+    """Tier 0: the weakest E24 part that holds at the worst corner; 1: the weakest E24 part that holds with
+    nominal parts; 2: the weakest E96 (1 %) part that does. 0 when there is none. A bus that holds with a
+    weaker part than a plan may name gets the weakest it may."""
+    limit = sizing.corner_max_ohm if tier == 0 else sizing.nominal_max_ohm
+    if limit <= 0.0:
+        return 0.0
+    return preferred_at_or_below(min(limit, MAX_BIAS_OHM), E96 if tier == 2 else E24)
+
+
+def _sized_bias(bus: Bus, kind: str, position_m: float, tier: int) -> BiasSpec | None:
+    """The bias at a position sized jointly with the terminators of a design kind: alternate terminator
+    correction and bias sizing until the values agree."""
+    plan = bus.plan
+    supply = plan.bias.supply_v if plan.bias is not None else None
+    bias: BiasSpec | None = None
+    for _ in range(_SIZING_ROUNDS):
+        biased = with_plan(bus, plan.model_copy(update={"bias": bias}))
+        terminators = _terminator_changes(biased, kind, bus)
+        if terminators is None:
+            return None
+        unbiased = with_plan(bus, apply_changes(plan, terminators).model_copy(update={"bias": None}))
+        r = _bias_value_ohm(size_bias(unbiased, position_m, supply if supply is not None else plan.supply_v), tier)
+        if r <= 0.0 or (tier > 0 and r < bias_min_ohm(unbiased)):
+            return None  # the nominal tiers only serve when they fit the room; below it the load rules break
+        new = BiasSpec(position_m=position_m, pull_up_ohm=r, pull_down_ohm=r, supply_v=supply)
+        if new == bias:
+            break
+        bias = new
+    return bias
+
+
+def bias_positions(plan: BusPlan) -> list[float]:
+    """Where a bias network may go, most preferred first: where the plan has it, at the driver, then at the
+    device nearest each cable end and nearest the middle. A bias network needs a device's supply, so every place
+    is a device's place."""
+    places = [plan.bias.position_m] if plan.bias is not None else []
+    devices = [plan.driver.position_m] + [n.position_m for n in plan.nodes]
+    places.append(plan.driver.position_m)
+    for target in (0.0, plan.trunk_length_m, 0.5 * plan.trunk_length_m):
+        places.append(min(devices, key=lambda p: abs(p - target)))
+    return list(dict.fromkeys(places))
+
+
+def best_design(bus: Bus) -> Design:
+    """The design the advice takes (see the module docstring for the order of preference)."""
+    plan = bus.plan
+    wants_bias = plan.standard == "rs485" or plan.bias is not None
+    kinds = ["plan", "parallel", "rc"] + (["none"] if line_may_stay_unterminated(bus) else [])
+    has_rc = any(t.kind == "rc" for t in plan.terminations)
+    best: Design | None = None
+    seen: set[tuple[str, BiasSpec | None]] = set()
+
+    def consider(kind: str, bias: BiasSpec | None, order: int) -> None:
+        nonlocal best
+        if (kind, bias) in seen:
+            return
+        seen.add((kind, bias))
+        d = _design(bus, kind, bias, order)
+        if d is not None and (best is None or d.key() < best.key()):
+            best = d
+
+    for kind in kinds:
+        if best is not None and best.key()[:3] == (0, 0, 0):
+            break
+        if kind == "parallel" and not has_rc:
+            continue  # the "plan" kind already built parallel terminators
+        if plan.bias is not None or not wants_bias:
+            consider(kind, plan.bias, 0)
+        if not wants_bias:
+            continue
+        consider(kind, None, 99)
+        for tier in range(3):
+            if tier and best is not None and best.breaks == 0:
+                break
+            for order, position in enumerate(bias_positions(plan), start=1):
+                bias = _sized_bias(bus, kind, position, tier)
+                if bias is not None:
+                    consider(kind, bias, order)
+    assert best is not None  # the "plan" kind always builds
+    return best

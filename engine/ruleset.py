@@ -1,0 +1,74 @@
+"""Every rule, run once on a bus: the findings in report order and the simulation the signal rule ran.
+
+The rules that depend on the terminators and the bias network (DESIGN_RULES) are cheap closed forms and DC
+solves; the advice re-runs them on every design it weighs. The simulation runs once per plan checked.
+"""
+
+import functools
+from collections.abc import Callable
+from dataclasses import dataclass
+
+from pairline.engine.bus import Bus
+from pairline.engine.findings import Finding
+from pairline.engine.rules.bias import check_failsafe_bias
+from pairline.engine.rules.common_mode import check_common_mode
+from pairline.engine.rules.length_rate import check_length_vs_rate
+from pairline.engine.rules.loads import check_driver_load, check_unit_loads
+from pairline.engine.rules.power import check_resistor_power
+from pairline.engine.rules.rc_termination import check_ac_termination
+from pairline.engine.rules.signal import Simulation, check_signal_integrity, simulate_bus
+from pairline.engine.rules.stubs import check_stubs
+from pairline.engine.rules.termination import check_termination
+from pairline.engine.rules.unterminated import check_unterminated
+from pairline.engine.rules.voltage import check_receiver_voltage
+
+RuleCheck = Callable[[Bus], list[Finding]]
+
+RULES: tuple[RuleCheck, ...] = (
+    check_unit_loads,
+    check_driver_load,
+    check_stubs,
+    check_termination,
+    check_unterminated,
+    check_ac_termination,
+    check_receiver_voltage,
+    check_failsafe_bias,
+    check_common_mode,
+    check_length_vs_rate,
+    check_resistor_power,
+    check_signal_integrity,
+)
+# Weighed for their verdicts only, so the bias rule skips its fix sentence here.
+DESIGN_RULES: tuple[RuleCheck, ...] = (
+    check_unit_loads,
+    check_driver_load,
+    check_termination,
+    check_unterminated,
+    check_ac_termination,
+    check_receiver_voltage,
+    functools.partial(check_failsafe_bias, with_fix=False),
+    check_resistor_power,
+)
+SIGNAL_RULE_IDS = frozenset({"signal.integrity", "signal.confirms"})
+
+
+@dataclass(frozen=True, slots=True)
+class RuleRun:
+    """One pass of every rule over one bus."""
+
+    bus: Bus
+    findings: tuple[Finding, ...]
+    simulation: Simulation
+
+
+def run_rules(bus: Bus) -> RuleRun:
+    """Every rule in RULES order; the signal rule from one simulation, which the run keeps."""
+    simulation = simulate_bus(bus)
+    findings = [f for rule in RULES[:-1] for f in rule(bus)]
+    findings += check_signal_integrity(bus, simulation)
+    return RuleRun(bus=bus, findings=tuple(findings), simulation=simulation)
+
+
+def run_design_rules(bus: Bus) -> tuple[Finding, ...]:
+    """The rules a change of terminators or bias can move (no simulation), for their verdicts and values."""
+    return tuple(f for rule in DESIGN_RULES for f in rule(bus))

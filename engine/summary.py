@@ -1,0 +1,236 @@
+"""The summary of a checked plan, read off the advised plan's own findings, and its bill of materials.
+
+Nothing here asks a rule again: terminators and bias are the advised plan's parts, their ratings the power
+findings' figures, the idle level the bias finding's value, the stub limits the stub findings' limits, the
+highest bit rate the smallest "max_bit_rate_bps" figure any finding states, the longest path at any rate the
+loss finding's "max_path_m", and the spare capacity engine.capacity's one answer.
+"""
+
+import dataclasses
+import math
+from dataclasses import dataclass
+
+from pairline.engine.advice import Advice
+from pairline.engine.bus import Bus
+from pairline.engine.capacity import Capacity
+from pairline.engine.dc import bias_supply_v
+from pairline.engine.design import PlanChange
+from pairline.engine.findings import Finding
+from pairline.engine.plan import BusPlan, TerminationSpec
+from pairline.engine.rules.margins import LENGTH_ALLOWANCE, long_run_factor
+from pairline.engine.rules.power import rating_text
+from pairline.engine.units import length_text, si_format
+
+CAPACITOR_RATING = "≥ 25 V"  # twice the 12 V the pair can see in a common-mode fault (TIA-485-A range)
+
+
+@dataclass(frozen=True, slots=True)
+class TerminatorAdvice:
+    position_m: float
+    kind: str  # "parallel" or "rc"
+    resistance_ohm: float
+    capacitance_f: float | None
+    power_rating_w: float
+
+
+@dataclass(frozen=True, slots=True)
+class BiasAdvice:
+    position_m: float
+    pull_up_ohm: float
+    pull_down_ohm: float
+    supply_v: float
+    idle_v: float  # lowest idle V_AB over the receivers with the advised terminators, cable included
+    idle_corner_v: float  # the same at the worst corner of the tolerances
+    power_rating_w: float  # for each resistor
+
+
+@dataclass(frozen=True, slots=True)
+class BomItem:
+    item: str
+    value: str
+    quantity: int
+    rating: str
+    note: str
+
+
+@dataclass(frozen=True, slots=True)
+class PlanSummary:
+    terminators: tuple[TerminatorAdvice, ...]
+    bias: BiasAdvice | None
+    bias_note: str  # why there is no bias network when one was wanted; else ""
+    max_stub_m: dict[str, float]
+    capacity: Capacity
+    max_bit_rate_bps: float  # highest rate the length and stub rules allow for the longest path
+    max_path_m: float  # the longest path the cable's loss allows at any bit rate
+    path_m: float  # the plan's longest signal path
+    rate_note: str  # both limits stated when the path is beyond max_path_m; else ""
+    bom: tuple[BomItem, ...]
+
+    @property
+    def spare_unit_loads(self) -> float:
+        return self.capacity.spare_unit_loads
+
+    @property
+    def further_nodes(self) -> dict[str, int]:
+        return self.capacity.further_nodes
+
+
+def _by_position(plan: BusPlan) -> list[TerminationSpec]:
+    """The plan's terminators along the trunk, as a reader looks for them."""
+    return sorted(plan.terminations, key=lambda t: t.position_m)
+
+
+def _power(findings: tuple[Finding, ...], prefix: str) -> float:
+    """The rating the power rule gives a family of parts (every part of one family is rated alike)."""
+    return next(
+        (f.figure("rating_w") or 0.0 for f in findings if f.rule_id == "power.resistor" and prefix in f.title), 0.0
+    )
+
+
+def summarise(original: Bus, advice: Advice, capacity: Capacity) -> PlanSummary:
+    """The summary of the advised plan, read off its findings (see the module docstring)."""
+    findings = advice.findings
+    plan = advice.plan
+    term_w = _power(findings, "terminator")
+    terminators = tuple(
+        TerminatorAdvice(t.position_m, t.kind, t.resistance_ohm, t.capacitance_f, term_w) for t in _by_position(plan)
+    )
+    bias = None
+    bias_note = ""
+    idle = next(f for f in findings if f.rule_id == "bias.idle_level")
+    if plan.bias is not None:
+        b = plan.bias
+        bias = BiasAdvice(
+            b.position_m,
+            b.pull_up_ohm,
+            b.pull_down_ohm,
+            bias_supply_v(advice.run.bus),
+            idle.value or 0.0,
+            idle.figure("corner_v") or 0.0,
+            _power(findings, "bias"),
+        )
+    elif plan.standard == "rs485" or original.plan.bias is not None:
+        unmet = next((u for u in advice.unmet if u.rule_id == "bias.idle_level"), None)
+        bias_note = "none advised: " + (unmet.text if unmet else idle.fix)
+    rates = [r for f in findings if (r := f.figure("max_bit_rate_bps")) is not None]
+    loss = next(f for f in findings if f.rule_id == "length.loss")
+    path_m = next(f.value for f in findings if f.rule_id == "length.rate_rule") or 0.0
+    max_path_m = loss.figure("max_path_m") or math.inf
+    rate_note = ""
+    if path_m > max_path_m:
+        rate_note = (
+            f"the longest path, {length_text(path_m)}, is beyond the {length_text(max_path_m)} the cable's loss "
+            "allows at any bit rate (length.loss): shorten it or split the bus with a repeater"
+        )
+    summary = PlanSummary(
+        terminators=terminators,
+        bias=bias,
+        bias_note=bias_note,
+        max_stub_m={f.node: f.limit for f in findings if f.rule_id == "stub.length" and f.node and f.limit},
+        capacity=capacity,
+        max_bit_rate_bps=min(rates, default=math.inf),
+        max_path_m=max_path_m,
+        path_m=path_m,
+        rate_note=rate_note,
+        bom=(),
+    )
+    return dataclasses.replace(summary, bom=bill_of_materials(original, advice, summary))
+
+
+# --- bill of materials ---------------------------------------------------------------------------------------
+
+
+def _change_note(changes: tuple[PlanChange, ...], part: str, added: object) -> str:
+    """How the advice arrived at a part: as in the plan, or the change that brought it."""
+    for c in changes:
+        if c.part == part and (added in c.added or (part == "bias" and c.bias_after is not None)):
+            return f"{c.text} ({', '.join(c.rule_ids) or 'see the change list'})"
+    return "as in the plan"
+
+
+def bill_of_materials(original: Bus, advice: Advice, summary: PlanSummary) -> tuple[BomItem, ...]:
+    """Terminators, capacitors and bias resistors of the advised plan; the cable with its spare; the transceivers
+    by class."""
+    plan = advice.plan
+    items: list[BomItem] = []
+    groups: dict[tuple[float, str], list[float]] = {}
+    for spec, t in zip(_by_position(plan), summary.terminators, strict=True):
+        groups.setdefault((t.resistance_ohm, _change_note(advice.changes, "terminator", spec)), []).append(t.position_m)
+    rating = rating_text(summary.terminators[0].power_rating_w) if summary.terminators else ""
+    for (r, note), where in groups.items():
+        items.append(
+            BomItem(
+                "Terminator resistor (across A and B)",
+                si_format(r, "Ω"),
+                len(where),
+                rating,
+                "at " + " and ".join(length_text(p) for p in where) + f"; {note}",
+            )
+        )
+    caps: dict[float, list[float]] = {}
+    for t in summary.terminators:
+        if t.kind == "rc" and t.capacitance_f is not None:
+            caps.setdefault(t.capacitance_f, []).append(t.position_m)
+    for c, where in caps.items():
+        items.append(
+            BomItem(
+                "Terminator capacitor (in series with its resistor)",
+                si_format(c, "F"),
+                len(where),
+                CAPACITOR_RATING,
+                "at " + " and ".join(length_text(p) for p in where) + "; twice the 12 V common-mode fault level",
+            )
+        )
+    b = summary.bias
+    if b is not None:
+        note = _change_note(advice.changes, "bias", None)
+        idle = (
+            f"at {length_text(b.position_m)}; every receiver idles at >= {b.idle_v * 1e3:.0f} mV "
+            f"({b.idle_corner_v * 1e3:.0f} mV at the worst corner of the tolerances); {note}"
+        )
+        for item, r in (
+            (f"Bias pull-up resistor ({b.supply_v:g} V to A)", b.pull_up_ohm),
+            ("Bias pull-down resistor (B to ground)", b.pull_down_ohm),
+        ):
+            items.append(BomItem(item, si_format(r, "Ω"), 1, rating_text(b.power_rating_w), idle))
+    items.append(_cable_item(advice.run.bus))
+    items += _transceiver_items(advice.run.bus)
+    return tuple(items)
+
+
+def _cable_item(bus: Bus) -> BomItem:
+    """The cable to order: trunk plus every stub, with the spare a run as built needs."""
+    plan = bus.plan
+    stubs_m = plan.driver.stub_length_m + sum(n.stub_length_m for n in plan.nodes)
+    drawn_m = plan.trunk_length_m + stubs_m
+    return BomItem(
+        f"Cable: {bus.cable.label}",
+        f"{math.ceil(round(drawn_m * long_run_factor(), 6)):.0f} m",  # round first: 100 m x 1.1 is 110 m, not 111
+        1,
+        f"Z0 {bus.cable.z0_ohm:g} Ω",
+        f"trunk {plan.trunk_length_m:.4g} m + stubs {stubs_m:.3g} m = {drawn_m:.4g} m, plus "
+        f"{LENGTH_ALLOWANCE:.0%} spare for routing, service loops and terminations (common practice)",
+    )
+
+
+def _transceiver_items(bus: Bus) -> list[BomItem]:
+    """The driver's part, then the nodes' parts counted per class (role and unit-load rating)."""
+    plan = bus.plan
+    standard = "TIA-485-A" if plan.standard == "rs485" else "TIA/EIA-422-B"
+    items = [
+        BomItem(
+            f"Driver transceiver: {bus.driver.label}",
+            f"{bus.driver.unit_loads:.3g} UL",
+            1,
+            standard,
+            f"'{plan.driver.name}'",
+        )
+    ]
+    classes: dict[tuple[str, float], list[str]] = {}
+    for n in plan.nodes:
+        classes.setdefault((n.role, n.unit_loads), []).append(n.name)
+    for (role, ul), names in sorted(classes.items()):
+        shown = ", ".join(f"'{name}'" for name in names[:6]) + (f" and {len(names) - 6} more" if len(names) > 6 else "")
+        item = "Transceiver (may drive; the driver's class)" if role == "transceiver" else "Receiver"
+        items.append(BomItem(item, f"{ul:.3g} UL", len(names), standard, shown))
+    return items
