@@ -52,7 +52,7 @@ def create_app(
     seed once beforehand (`pairline seed`) and start with `load_samples=False`. A store opened here from a path
     or URL is closed when the app shuts down.
     """
-    from pairline.server.routes import api, pages
+    from pairline.server.routes import api, field, pages
 
     settings = settings or Settings()
     owned = not isinstance(db, PlanStore)
@@ -89,6 +89,7 @@ def create_app(
         seed_samples(store, samples_dir)
     app.mount("/static", StaticFiles(directory=STATIC_DIR), name="static")
     app.include_router(api.router)
+    app.include_router(field.router)
     app.include_router(pages.router)
     app.openapi = lambda: plan_openapi(app)  # type: ignore[method-assign]
 

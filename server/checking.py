@@ -7,6 +7,9 @@ hash of its content for `draft_cache_ttl_s`. Values are bytes: the page data as 
 hit returns identical bytes and costs the server nothing but the copy. One check runs per key at a time: a
 second request for the same plan waits for the first rather than simulating it again.
 
+A capture checked against a saved plan never changes either: its result page and JSON twin are cached by capture
+id and engine version, kept as soon as the capture is saved.
+
 A plan whose estimated check time is over the limit is refused before simulating (server.cost); one that runs
 past the limit or out of memory is refused the same way, and for a saved plan that refusal is cached too, so
 a shared link to it does not cost a worker a full time limit on every view.
@@ -42,6 +45,10 @@ class CheckRefused(BusInputError):
 
 def saved_key(plan_id: str, receiver: str | None) -> str:
     return f"saved:{plan_id}:{ENGINE_VERSION}:{receiver or ''}"
+
+
+def capture_key(capture_id: str) -> str:
+    return f"capture:{capture_id}:{ENGINE_VERSION}"
 
 
 def html_key(key: str) -> str:
@@ -109,6 +116,24 @@ class Checker:
             return self._data(f"advised:{saved.id}:{ENGINE_VERSION}", None, REFUSAL_TTL_S, plan, job)[0]
         ttl = self.settings.draft_cache_ttl_s
         return self._data(draft_key(plan, f"advised:{parent_id or ''}"), ttl, ttl, plan, job)[0]
+
+    def keep_capture(self, capture_id: str, page: Page) -> None:
+        """Cache a saved capture's JSON twin and page, just made."""
+        key = capture_key(capture_id)
+        self.cache.put(key, page[0])
+        if page[1] is not None:
+            self.cache.put(html_key(key), page[1])
+
+    def capture_page(self, capture_id: str, make: Callable[[], Page]) -> Page:
+        """A saved capture's JSON twin and page: from the cache, else made by `make` (one at a time per capture)
+        and kept."""
+        key = capture_key(capture_id)
+        with self._one_at_a_time(key):
+            body, html = self.cache.get(key), self.cache.get(html_key(key))
+            if body is None or html is None:
+                body, html = make()
+                self.keep_capture(capture_id, (body, html))
+        return body, html
 
     def _data(self, key: str, ttl_s: float | None, refusal_ttl_s: float, plan: BusPlan, job: Job) -> Page:
         """The JSON under key, checked by job when absent (one check per key at a time), and the HTML that check

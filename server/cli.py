@@ -1,5 +1,6 @@
 """Command line: `pairline check PLAN.json [--json]`, `pairline check --sample NAME`, `pairline samples`,
-`pairline advise PLAN.json [-o OUT.json]`, `pairline serve [--host] [--port] [--db]` and `pairline seed [--db]`.
+`pairline advise PLAN.json [-o OUT.json]`, `pairline serve [--host] [--port] [--db]`, `pairline seed [--db]` and
+`pairline field PLAN.json CAPTURE.csv` (server/fieldcli.py).
 
 Exit status of check: 0 when no rule breaks, 1 when at least one rule breaks; of advise: 0 when the advised plan
 breaks no rule, 1 when some rule cannot be met with terminators and bias alone (each said why). Both exit 2 when
@@ -501,6 +502,9 @@ def build_parser() -> argparse.ArgumentParser:
     )
     seed.add_argument("--db", default=None, metavar="PATH|URL", help=DB_HELP)
     seed.set_defaults(run=run_seed)
+    from pairline.server.fieldcli import add_field_command  # it builds on this module's readers and formats
+
+    add_field_command(commands)
     return parser
 
 

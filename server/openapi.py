@@ -96,22 +96,15 @@ FORM_BODY: dict[str, Any] = {
         },
     }
 }
-IMPORT_BODY: dict[str, Any] = {
-    "requestBody": {
-        "required": True,
-        "content": {
-            "multipart/form-data": {
-                "schema": {
-                    "type": "object",
-                    "properties": {
-                        "plan_file": {"type": "string", "format": "binary"},
-                        "plan_text": {"type": "string"},
-                    },
-                }
-            }
-        },
-    }
-}
+
+
+def multipart_body(properties: dict[str, Any]) -> dict[str, Any]:
+    """A form with a file upload among its fields, as an operation's requestBody."""
+    schema = {"type": "object", "properties": properties}
+    return {"requestBody": {"required": True, "content": {"multipart/form-data": {"schema": schema}}}}
+
+
+IMPORT_BODY = multipart_body({"plan_file": {"type": "string", "format": "binary"}, "plan_text": {"type": "string"}})
 
 
 def plan_openapi(app: FastAPI) -> dict[str, Any]:

@@ -1,8 +1,12 @@
-"""Saving a plan: the one path every save takes (API, editor, checked draft, import).
+"""Saving a plan, or a capture checked against a saved plan: the one path every save takes (API, editor, checked
+draft, import, field check).
 
-A save is refused when the plan is too costly to check here (a link that could never show its results), and
-when the client address is over its save quota or rate (429 with Retry-After).
+A plan's save is refused when the plan is too costly to check here (a link that could never show its results).
+Any save is refused when the client address is over its save quota or rate (429 with Retry-After): plans and
+captures count alike.
 """
+
+from typing import Any
 
 from fastapi import Request
 from pairline.engine import ENGINE_VERSION
@@ -24,10 +28,27 @@ def client_address(request: Request) -> str:
 def save_checked_plan(request: Request, plan: BusPlan, parent: str | None) -> tuple[str, str | None]:
     """Save a validated plan; returns its new id and the parent it links to (None when `parent` is unknown).
     Raises CheckRefused (422) or RequestRefused (429)."""
-    settings = request.app.state.settings
-    problems = cost_problems(plan, settings.check_time_limit_s)
+    problems = cost_problems(plan, request.app.state.settings.check_time_limit_s)
     if problems:
         raise CheckRefused(problems)
+    client = admit_save(request)
+    store: PlanStore = request.app.state.store
+    parent_id = parent if parent and store.get_plan(parent) else None
+    plan_id = store.save_plan(plan_to_dict(plan), engine_version=ENGINE_VERSION, parent_id=parent_id, client=client)
+    return plan_id, parent_id
+
+
+def save_capture(request: Request, plan_id: str, capture: dict[str, Any]) -> str:
+    """Save a capture (its text and settings) checked against the saved plan `plan_id`; returns its new id.
+    Raises RequestRefused (429)."""
+    client = admit_save(request)
+    store: PlanStore = request.app.state.store
+    return store.save_capture(plan_id, capture, engine_version=ENGINE_VERSION, client=client)
+
+
+def admit_save(request: Request) -> str:
+    """The client address, when it may save once more now; RequestRefused (429) with the wait otherwise."""
+    settings = request.app.state.settings
     limiter: SaveLimiter = request.app.state.save_limiter
     client = client_address(request)
     wait_s = limiter.admit(client)
@@ -44,7 +65,4 @@ def save_checked_plan(request: Request, plan: BusPlan, parent: str | None) -> tu
             ),
             wait_s,
         )
-    store: PlanStore = request.app.state.store
-    parent_id = parent if parent and store.get_plan(parent) else None
-    plan_id = store.save_plan(plan_to_dict(plan), engine_version=ENGINE_VERSION, parent_id=parent_id, client=client)
-    return plan_id, parent_id
+    return client

@@ -29,7 +29,10 @@ from pairline.engine.plan import BusInputError, Problem
 
 T = TypeVar("T")
 GRACE_S = 2.0  # beyond the time limit before a worker that does not answer is killed
-JOB_MODULES = ["pairline.server.jobs"]  # imported once in the fork server, so every worker starts warm
+JOB_MODULES = [
+    "pairline.server.jobs",
+    "pairline.server.fieldjobs",
+]  # imported once in the fork server: workers start warm
 # one BLAS thread per worker: the pool, not numpy, decides how many cores checks use
 SINGLE_THREAD_ENV = {"OPENBLAS_NUM_THREADS": "1", "OMP_NUM_THREADS": "1", "MKL_NUM_THREADS": "1"}
 

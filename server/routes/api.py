@@ -22,8 +22,8 @@ router = APIRouter(prefix="/api")
 JSON_TYPES = ("application/json",)
 
 
-async def plan_body(request: Request, read: Callable[[Any], BusPlan] = load_plan) -> BusPlan:
-    """The request's JSON body, read as a bus plan by `read`. Raises RequestRefused (415) or BusInputError (422)."""
+def require_json(request: Request, what: str) -> None:
+    """Refuse (415) a body not sent as application/json; `what` names it in the message ("plan")."""
     media_type = request.headers.get("content-type", "").split(";")[0].strip().lower()
     if media_type not in JSON_TYPES:
         raise RequestRefused(
@@ -33,9 +33,14 @@ async def plan_body(request: Request, read: Callable[[Any], BusPlan] = load_plan
                 "Content-Type",
                 media_type or None,
                 {"choices": list(JSON_TYPES)},
-                f"The plan was sent as '{media_type or 'nothing'}'; send it as application/json.",
+                f"The {what} was sent as '{media_type or 'nothing'}'; send it as application/json.",
             ),
         )
+
+
+async def plan_body(request: Request, read: Callable[[Any], BusPlan] = load_plan) -> BusPlan:
+    """The request's JSON body, read as a bus plan by `read`. Raises RequestRefused (415) or BusInputError (422)."""
+    require_json(request, "plan")
     try:
         doc = load_json(await request.body(), request.app.state.settings.max_json_depth)
     except JsonInputError as exc:

@@ -4,6 +4,9 @@ Saved plans are immutable rows keyed by a random id, each with its parent, the e
 the client address that saved it and its size. Editing saves a new row whose `parent_id` names the plan it came
 from, so a shared URL always shows exactly what was shared. Results are not stored with the plan: they are
 recomputed on view, and may be kept a while in the results cache, which every process using the store sees.
+
+A scope capture checked against a saved plan is stored the same way: immutable, under its own random id, beside
+the plan it was held against, as the file's text and the settings it was read with (never the fit's result).
 """
 
 import json
@@ -30,6 +33,15 @@ class SavedPlan:
 
 
 @dataclass(frozen=True, slots=True)
+class SavedCapture:
+    id: str
+    plan_id: str  # the saved plan it was held against
+    capture: dict[str, Any]  # the capture file's text (capture_csv) and the settings it was read with
+    engine_version: str
+    created_at: str  # ISO 8601, UTC, to the second
+
+
+@dataclass(frozen=True, slots=True)
 class SampleEntry:
     slug: str
     plan_id: str
@@ -38,15 +50,17 @@ class SampleEntry:
 
 @dataclass(frozen=True, slots=True)
 class SaveCount:
-    """How much one client saved in a time window: the number of plans, their stored size, the first save."""
+    """How much one client saved in a time window: the number of plans and captures, their stored size, the first
+    save."""
 
     saves: int
-    plan_bytes: int  # UTF-8 bytes of the stored plan documents
+    stored_bytes: int  # UTF-8 bytes of the stored plan and capture documents
     first_at: datetime | None = None  # the earliest save in the window; None when there is none
 
 
 def new_plan_id() -> str:
-    """A random share id: 96 bits from the OS's secure generator, not derived from any other id."""
+    """A random share id, of a plan or a capture: 96 bits from the OS's secure generator, not derived from any
+    other id."""
     return secrets.token_urlsafe(ID_BYTES)
 
 
@@ -72,7 +86,7 @@ class StoreError(RuntimeError):
 
 
 class PlanStore(ABC):
-    """Saved plans, the sample list, per-client save counts and a shared results cache.
+    """Saved plans and their captures, the sample list, per-client save counts and a shared results cache.
 
     Every method is safe to call from several threads, and from several processes sharing one database.
     """
@@ -105,9 +119,19 @@ class PlanStore(ABC):
         """Ids of the plans saved as edited copies of `plan_id`, oldest first."""
 
     @abstractmethod
+    def save_capture(
+        self, plan_id: str, capture: dict[str, Any], *, engine_version: str, client: str | None = None
+    ) -> str:
+        """Store a capture held against the saved plan `plan_id` and return its new id."""
+
+    @abstractmethod
+    def get_capture(self, plan_id: str, capture_id: str) -> SavedCapture | None:
+        """The capture saved against `plan_id`, or None for an unknown id or one saved against another plan."""
+
+    @abstractmethod
     def saves_since(self, client: str, since: datetime) -> SaveCount:
-        """How many plans `client` saved at or after `since` (timezone-aware), their bytes and the first one's
-        time."""
+        """How many plans and captures `client` saved at or after `since` (timezone-aware), their bytes and the
+        first one's time."""
 
     @abstractmethod
     def put_sample(self, slug: str, plan: dict[str, Any], *, engine_version: str, position: int) -> str:

@@ -55,6 +55,17 @@ _MIGRATIONS = (
             "CREATE INDEX results_cache_expiry ON results_cache (expires_at)",
         ),
     ),
+    Migration(
+        5,
+        "scope captures of saved plans",
+        (
+            "CREATE TABLE captures ("
+            " id TEXT PRIMARY KEY, plan_id TEXT NOT NULL REFERENCES plans(id), capture_json TEXT NOT NULL,"
+            " engine_version TEXT NOT NULL, created_at {timestamp} NOT NULL, client TEXT,"
+            " capture_bytes INTEGER NOT NULL{row_order})",
+            "CREATE INDEX captures_client_time ON captures (client, created_at)",
+        ),
+    ),
 )
 
 _WORDS: dict[Dialect, dict[str, str]] = {

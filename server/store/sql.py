@@ -16,6 +16,7 @@ from pairline.server.store.base import (
     PlanStore,
     SampleEntry,
     SaveCount,
+    SavedCapture,
     SavedPlan,
     StoreError,
     canonical_json,
@@ -108,24 +109,31 @@ class SqlStore(PlanStore):
         self, tx: Transaction, plan: dict[str, Any], engine_version: str, parent_id: str | None, client: str | None
     ) -> str:
         text = canonical_json(plan)
-        row = (
-            text,
-            str(plan.get("title") or ""),
-            parent_id,
-            engine_version,
-            self._time_param(self._now()),
-            client,
-            len(text.encode("utf-8")),
-        )
+        row = {"plan_json": text, "title": str(plan.get("title") or ""), "parent_id": parent_id}
+        return self._insert_new(tx, "plans", row | self._saved_by(engine_version, client, text, "plan_bytes"))
+
+    def _saved_by(self, engine_version: str, client: str | None, text: str, size_column: str) -> dict[str, Any]:
+        """The columns every saved row has: engine version, time, client address and stored size."""
+        moment = self._time_param(self._now())
+        return {
+            "engine_version": engine_version,
+            "created_at": moment,
+            "client": client,
+            size_column: len(text.encode()),
+        }
+
+    def _insert_new(self, tx: Transaction, table: str, row: dict[str, Any]) -> str:
+        """Insert one immutable row of `table` (its columns named by code, never by input) under a fresh random id."""
+        columns = ", ".join(["id", *row])
+        placeholders = ", ".join("?" * (len(row) + 1))
         while True:
-            plan_id = new_plan_id()
+            new_id = new_plan_id()
             inserted = tx.execute(
-                "INSERT INTO plans (id, plan_json, title, parent_id, engine_version, created_at, client, plan_bytes)"
-                " VALUES (?, ?, ?, ?, ?, ?, ?, ?) ON CONFLICT (id) DO NOTHING",
-                (plan_id, *row),
+                f"INSERT INTO {table} ({columns}) VALUES ({placeholders}) ON CONFLICT (id) DO NOTHING",
+                (new_id, *row.values()),
             )
             if inserted.rowcount == 1:  # 0 on an id collision: astronomically rare, draw again
-                return plan_id
+                return new_id
 
     def get_plan(self, plan_id: str) -> SavedPlan | None:
         if not looks_like_plan_id(plan_id):
@@ -148,13 +156,40 @@ class SqlStore(PlanStore):
         return [r[0] for r in rows]
 
     def saves_since(self, client: str, since: datetime) -> SaveCount:
+        moment = self._time_param(since)
         with self._transaction(write=False) as tx:
             saves, size, first = tx.execute(
-                "SELECT COUNT(*), COALESCE(SUM(plan_bytes), 0), MIN(created_at) FROM plans"
-                " WHERE client = ? AND created_at >= ?",
-                (client, self._time_param(since)),
+                "SELECT COUNT(*), COALESCE(SUM(size), 0), MIN(created_at) FROM ("
+                " SELECT plan_bytes AS size, created_at FROM plans WHERE client = ? AND created_at >= ?"
+                " UNION ALL"
+                " SELECT capture_bytes, created_at FROM captures WHERE client = ? AND created_at >= ?) saved",
+                (client, moment, client, moment),
             ).fetchone()
         return SaveCount(int(saves), int(size), None if first is None else self._time_value(first))
+
+    # --- captures -----------------------------------------------------------------------------------------
+
+    def save_capture(
+        self, plan_id: str, capture: dict[str, Any], *, engine_version: str, client: str | None = None
+    ) -> str:
+        text = canonical_json(capture)
+        row = {"plan_id": plan_id, "capture_json": text} | self._saved_by(engine_version, client, text, "capture_bytes")
+        with self._transaction(write=True) as tx:
+            return self._insert_new(tx, "captures", row)
+
+    def get_capture(self, plan_id: str, capture_id: str) -> SavedCapture | None:
+        if not (looks_like_plan_id(plan_id) and looks_like_plan_id(capture_id)):
+            return None
+        with self._transaction(write=False) as tx:
+            row = tx.execute(
+                "SELECT id, plan_id, capture_json, engine_version, created_at FROM captures"
+                " WHERE id = ? AND plan_id = ?",
+                (capture_id, plan_id),
+            ).fetchone()
+        if row is None:
+            return None
+        created = self._time_value(row[4]).astimezone(UTC).isoformat(timespec="seconds")
+        return SavedCapture(row[0], row[1], json.loads(row[2]), row[3], created)
 
     # --- samples ------------------------------------------------------------------------------------------
 

@@ -134,6 +134,47 @@ def test_saves_are_counted_per_client_since_a_time_with_their_bytes(open_test_st
     assert store.saves_since("192.0.2.1", since_start) == SaveCount(0, 0, None)
 
 
+CAPTURE = {"capture_csv": "Time (s),A-B (V)\n0,-1.2\n1e-9,1.2\n", "at": "a", "probe_attenuation": 10.0}
+
+
+def test_captures_read_back_unchanged_under_their_own_id_and_only_with_their_plan(open_test_store):
+    clock = FakeClock()
+    clock.now_s = T0 + 0.25
+    store = open_test_store(clock)
+    plan_id = store.save_plan(PLAN, engine_version="0.1.0")
+    other_plan = store.save_plan(PLAN, engine_version="0.1.0")
+    first = store.save_capture(plan_id, CAPTURE, engine_version="0.2.0", client="203.0.113.5")
+    second = store.save_capture(plan_id, CAPTURE | {"at": "µ-node Ω"}, engine_version="0.2.0")
+    assert first != second and looks_like_plan_id(first) and looks_like_plan_id(second)
+    saved = open_test_store().get_capture(plan_id, first)
+    assert (saved.id, saved.plan_id, saved.capture, saved.engine_version) == (first, plan_id, CAPTURE, "0.2.0")
+    # Source: T0 = 1 800 000 000 s after 1970-01-01T00:00Z is 2027-01-15T08:00:00Z (Unix time, by hand).
+    assert saved.created_at == "2027-01-15T08:00:00+00:00"
+    assert store.get_capture(plan_id, second).capture["at"] == "µ-node Ω"
+    assert store.get_capture(other_plan, first) is None  # a capture opens only under the plan it was held against
+    assert store.get_capture(plan_id, plan_id) is None
+    assert store.get_capture(plan_id, "nope") is None
+    assert store.get_plan(first) is None  # capture ids are not plan ids
+
+
+def test_captures_count_as_saves_with_their_bytes(open_test_store):
+    clock = FakeClock()
+    store = open_test_store(clock)
+    plan_id = store.save_plan(PLAN, engine_version="t", client="203.0.113.5")
+    clock.now_s = T0 + 60.0
+    store.save_capture(plan_id, CAPTURE, engine_version="t", client="203.0.113.5")
+    store.save_capture(plan_id, CAPTURE, engine_version="t", client="2001:db8::1")
+    # Source: the stored documents are compact JSON with sorted keys, counted in UTF-8 bytes (RFC 3629).
+    plan_bytes = len(json.dumps(PLAN, sort_keys=True, ensure_ascii=False, separators=(",", ":")).encode())
+    capture_bytes = len(json.dumps(CAPTURE, sort_keys=True, ensure_ascii=False, separators=(",", ":")).encode())
+    since_start = datetime.fromtimestamp(T0, UTC)
+    minute_later = datetime.fromtimestamp(T0 + 60.0, UTC)
+    counted = store.saves_since("203.0.113.5", since_start)
+    assert counted == SaveCount(2, plan_bytes + capture_bytes, since_start)
+    assert store.saves_since("203.0.113.5", minute_later) == SaveCount(1, capture_bytes, minute_later)
+    assert store.saves_since("2001:db8::1", since_start) == SaveCount(1, capture_bytes, minute_later)
+
+
 def test_cache_values_replace_and_expire(open_test_store):
     clock = FakeClock()
     store = open_test_store(clock)
@@ -197,7 +238,7 @@ def test_migrations_are_recorded_once_even_when_processes_start_together(open_te
 def test_a_database_from_a_newer_pairline_is_refused(open_test_store):
     store = open_test_store()
     raw(store, "INSERT INTO schema_migrations (version, name, applied_at) VALUES (?, ?, ?)", (99, "future", "x"))
-    with pytest.raises(StoreError, match="schema version 99.*up to 4"):
+    with pytest.raises(StoreError, match=f"schema version 99.*up to {NEWEST}"):
         open_test_store()
 
 
