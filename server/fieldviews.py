@@ -21,7 +21,7 @@ from pairline.server.fieldplot import overlay_plot
 from pairline.server.jobs import Page
 from pairline.server.quantities import UnitSystem, length_text, length_unit, number_text
 from pairline.server.rendering import PageAt, page_json, render_page
-from pairline.server.store import CaptureEntry, SavedCapture, SavedPlan
+from pairline.server.store import CaptureEntry, SavedCapture
 from pairline.server.views import json_safe
 from pairline.server.wording import counted, date_text
 
@@ -167,16 +167,19 @@ def saved_capture_data(saved: SavedCapture) -> dict[str, Any]:
     }
 
 
-def capture_list_data(saved: SavedPlan, entries: list[CaptureEntry], total: int) -> dict[str, Any]:
+def capture_list_data(
+    plan_id: str, entries: list[CaptureEntry], total: int, plan_doc: dict[str, Any]
+) -> dict[str, Any]:
     """The captures saved with a plan as its page lists them: the newest (store.captures_of), each with its save
-    time, where it was probed and its link, and how many more there are. A capture's verdict is on its own page:
-    telling it here would mean fitting every capture listed."""
-    units: UnitSystem = "imperial" if saved.plan.get("display_units") == "imperial" else "metric"
-    driver = saved.plan.get("driver")
+    time, where it was probed (in the units and names of `plan_doc`, the saved plan) and its link, and how many
+    more there are. A capture's verdict is on its own page: telling it here would mean fitting every capture
+    listed."""
+    units: UnitSystem = "imperial" if plan_doc.get("display_units") == "imperial" else "metric"
+    driver = plan_doc.get("driver")
     driver_name = str(driver.get("name")) if isinstance(driver, dict) else ""
     items = []
     for entry in entries:
-        url = capture_url(saved.id, entry.id)
+        url = capture_url(plan_id, entry.id)
         at, position_m = entry.at, entry.at_position_m
         items.append(
             {
@@ -200,7 +203,7 @@ def capture_list_data(saved: SavedPlan, entries: list[CaptureEntry], total: int)
         "not_listed": not_listed,
         "not_listed_text": f"{counted(not_listed, 'older capture is', 'older captures are')} not listed here; "
         "each still opens at its own link.",
-        "add_url": f"/plans/{saved.id}/field",
+        "add_url": f"/plans/{plan_id}/field",
     }
 
 

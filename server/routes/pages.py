@@ -229,12 +229,12 @@ def plan_page(
     captures saved with it read afresh."""
     plan_id, as_json = _split(ref)
     receiver = receiver or None
-    saved = store.get_plan(plan_id)
-    if saved is None:
-        return not_found(request)
-    captures = capture_list_data(saved, *store.captures_of(plan_id, CAPTURE_LIST_LIMIT))
     body = checker.cached_json(plan_id, receiver) if as_json else checker.cached_html(plan_id, receiver)
+    saved = None
     if body is None:
+        saved = store.get_plan(plan_id)
+        if saved is None:
+            return not_found(request)
         try:
             body = _checked_plan_page(request, checker, store, saved, receiver, as_json)
         except BusInputError as exc:
@@ -245,6 +245,10 @@ def plan_page(
             state.problems = exc.problems
             title = "This saved plan needs changes before it can be checked here"
             return render(request, "editor.html", editor_data(state, title=title, saved_from=saved), status_code=422)
+    listed, total = store.captures_of(plan_id, CAPTURE_LIST_LIMIT)
+    if listed and saved is None:  # a cached page: its plan is read only when the list words places in its terms
+        saved = store.get_plan(plan_id)
+    captures = capture_list_data(plan_id, listed, total, saved.plan if saved else {})
     body = with_capture_list(body, as_json, captures, request.app.state.templates)
     return Response(body, media_type="application/json" if as_json else "text/html; charset=utf-8")
 
