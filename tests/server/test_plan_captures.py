@@ -106,5 +106,6 @@ def test_the_list_shows_the_newest_fifty_and_counts_the_rest_in_the_plans_units(
     assert [r.attrs["id"] for r in rows] == [f"capture-{i}" for i in ids[::-1][:50]]
     assert "a point on the trunk at 100 ft" in rows[0].text()
     assert page.by_id("captures-not-listed").text().startswith("2 older captures are not listed")
-    twin = client.get(f"/plans/{plan_id}.json").json()["captures"]
+    twin = client.get(f"/plans/{plan_id}.json").json()["captures"]  # from the cache: the plan is read for its units
     assert (len(twin["listed"]), twin["total"], twin["not_listed"]) == (50, 52, 2)
+    assert twin["listed"][0]["probe_text"] == "a point on the trunk at 100 ft"
