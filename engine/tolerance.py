@@ -57,6 +57,7 @@ from pairline.engine.metrics import (
 )
 from pairline.engine.solve import NetworkVariants, Topology, build_topology, with_cable
 from pairline.engine.transient import ACCURACY, StepResponses, edge_duration_s, step_responses, variant_step_responses
+from pairline.engine.units import si_format
 from pairline.engine.waveform import default_pattern, pattern_duration_s, pattern_memory_bits, pattern_offsets_s
 
 VARIANTS_PER_BATCH = 32  # variants solved at once, at most
@@ -395,7 +396,7 @@ def _text(ranges: tuple[ToleranceRange, ...], ends: np.ndarray, rise_s: float) -
             continue
         factor = r.high if e > 0 else r.low
         if r.key == "rise_time":
-            parts.append(f"{r.label} {factor * rise_s * 1e9:.3g} ns")
+            parts.append(f"{r.label} {si_format(factor * rise_s, 's')}")
         else:
             parts.append(f"{r.label} {100.0 * (factor - 1.0):+.0f} %")
     return ", ".join(parts) or "nominal"

@@ -24,6 +24,7 @@ as HOLDS here, with the rule's own finding still beside it. The termination conf
 simulated verdict only when the bus has no terminators; with terminators fitted its what-if is advice (HOLDS).
 """
 
+import dataclasses
 from dataclasses import dataclass
 
 import numpy as np
@@ -85,16 +86,16 @@ class Simulation:
     metrics: tuple[ReceiverMetrics, ...]  # every receiver, plan order, from the primary driver
     worst: tuple[tuple[SignalJudgement, str], ...]  # every receiver, plan order: its worst judgement and driver
     fixes: tuple[ComputedFix, ...]  # re-simulated fixes for receivers the primary driver breaks
-    tolerance: ToleranceReport  # the primary driver's pattern over the component tolerances
+    tolerance: ToleranceReport | None  # the primary driver's pattern over the tolerances (None: not analysed)
 
     def judgement(self, receiver: str) -> tuple[SignalJudgement, str]:
         return next(item for item in self.worst if item[0].receiver == receiver)
 
 
-def simulate_bus(bus: Bus) -> Simulation:
+def simulate_bus(bus: Bus, *, tolerance: bool = True) -> Simulation:
     """Simulate every node that may drive (drivers_to_simulate), judge each receiver by its worst case, find
-    re-simulated fixes for the receivers the primary driver breaks, and run the primary driver's pattern over the
-    component tolerances (engine.tolerance)."""
+    re-simulated fixes for the receivers the primary driver breaks, and (tolerance) run the primary driver's
+    pattern over the component tolerances (with_tolerance)."""
     drivers = drivers_to_simulate(bus)
     primary = bus.plan.driver.name
     steps = step_responses(bus, drivers, max_time_s=pattern_duration_s(bus, bus.plan.test_pattern))
@@ -122,8 +123,16 @@ def simulate_bus(bus: Bus) -> Simulation:
         metrics=metrics,
         worst=tuple(out[n.name] for n in bus.plan.nodes),
         fixes=tuple(compute_fixes(bus, failing)) if failing else (),
-        tolerance=analyse_tolerances(bus, pattern=bits, nominal=(primary_step, metrics)),
+        tolerance=analyse_tolerances(bus, pattern=bits, nominal=(primary_step, metrics)) if tolerance else None,
     )
+
+
+def with_tolerance(bus: Bus, sim: Simulation) -> Simulation:
+    """The simulation with its tolerance analysis (engine.tolerance), from the edge responses it holds."""
+    if sim.tolerance is not None:
+        return sim
+    report = analyse_tolerances(bus, pattern=sim.bits, nominal=(sim.step, sim.metrics))
+    return dataclasses.replace(sim, tolerance=report)
 
 
 def _severity(j: SignalJudgement) -> tuple[int, float]:
@@ -176,9 +185,10 @@ def check_signal_integrity(bus: Bus, simulation: Simulation | None = None) -> li
     primary = bus.plan.driver.name
     findings = []
     fixes_by_node: dict[str, str] = {}
-    for node, (j, driver), corner in zip(bus.plan.nodes, sim.worst, sim.tolerance.receivers, strict=True):
+    corners = sim.tolerance.receivers if sim.tolerance is not None else (None,) * len(sim.worst)
+    for node, (j, driver), corner in zip(bus.plan.nodes, sim.worst, corners, strict=True):
         verdict, reasons = banded(j, corner)
-        by_corner = verdict is Verdict.TIGHT
+        tight_corner = corner if corner is not None and verdict is Verdict.TIGHT else None
         m = j.metrics
         driven_by = "" if driver == primary else f" (worst case: '{driver}' driving)"
         detail = (
@@ -197,11 +207,12 @@ def check_signal_integrity(bus: Bus, simulation: Simulation | None = None) -> li
             steps.append(f"shorten its {length_text(node.stub_length_m)} stub")
         steps.append(termination_step(bus))
         fix = ""
-        if by_corner:
+        if tight_corner is not None:
             fix = (
                 f"'{node.name}' passes with nominal parts but breaks at its worst tolerance corner "
-                f"({corner.worst_corner}); {corner.dominant} moves its margin most ({corner.dominant_shift_v:+.2f} V). "
-                f"Specify parts held closer in {corner.dominant}, or widen the margin: "
+                f"({tight_corner.worst_corner}); {tight_corner.dominant} moves its margin most "
+                f"({tight_corner.dominant_shift_v:+.2f} V). Narrow the range of the {tight_corner.dominant} (parts "
+                "specified closer), or widen the margin: "
                 + ", ".join(steps)
                 + f", or lower the bit rate below {si_format(1.0 / m.bit_time_s, 'bit/s')}; then re-check."
             )
@@ -214,8 +225,10 @@ def check_signal_integrity(bus: Bus, simulation: Simulation | None = None) -> li
                     + ", and lower the bit rate together, then re-check."
                 )
         fixes_by_node[node.name] = fix
-        quantity, value, limit, unit, limit_kind = corner_headline(corner.worst) if by_corner else headline(j)
-        where = " at the worst tolerance corner" if by_corner else driven_by
+        quantity, value, limit, unit, limit_kind = (
+            corner_headline(tight_corner.worst) if tight_corner is not None else headline(j)
+        )
+        where = " at the worst tolerance corner" if tight_corner is not None else driven_by
         findings.append(
             Finding(
                 rule_id="signal.integrity",
@@ -240,10 +253,12 @@ def check_signal_integrity(bus: Bus, simulation: Simulation | None = None) -> li
     return findings
 
 
-def banded(j: SignalJudgement, corner: ReceiverTolerance) -> tuple[Verdict, tuple[str, ...]]:
+def banded(j: SignalJudgement, corner: ReceiverTolerance | None) -> tuple[Verdict, tuple[str, ...]]:
     """The receiver's verdict in the tolerance band (engine.rules.margins.band_verdict) and its reasons: BREAKS as
     judged with nominal parts; TIGHT when only its worst tolerance corner breaks (the corner's reasons); else
-    HOLDS."""
+    HOLDS. Without a corner (tolerances not analysed) the nominal judgement."""
+    if corner is None:
+        return j.verdict, j.reasons
     at_corner = level_breaks(corner.worst)
     verdict = band_verdict(j.verdict is not Verdict.BREAKS, not at_corner)
     if verdict is not Verdict.TIGHT:
@@ -259,7 +274,9 @@ def corner_headline(levels: SampledLevels) -> tuple[str, float, float, str, str]
     return "lowest sampled level", levels.min_sample_v, th, "V", "min"
 
 
-def _corner_text(t: ReceiverTolerance) -> str:
+def _corner_text(t: ReceiverTolerance | None) -> str:
+    if t is None:
+        return "Tolerance corners not analysed (signal.tolerance)."
     w = t.worst
     text = (
         f"Worst tolerance corner ({t.worst_corner}): margin {w.margin_v:+.2f} V, eye {w.eye_height_v:.2f} V; "

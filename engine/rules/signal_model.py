@@ -20,6 +20,10 @@ _MODEL_SOURCE = (
     "transients of the same buses"
 )
 _TOLERANCE_SOURCE = "Library classes' tolerances (engine/library.py), each with its own source, or the plan's"
+_NOT_ANALYSED = (
+    "Not analysed in this quick check: another finding is already tight or breaks, and a tolerance corner can only "
+    "make a holding receiver tight, so the verdict is the full check's; the full check lists each receiver's corner."
+)
 
 
 def model_text(bus: Bus) -> str:
@@ -75,8 +79,23 @@ def model_finding(bus: Bus) -> Finding:
     )
 
 
-def tolerance_finding(report: ToleranceReport, rise_time_s: float) -> Finding:
-    """Rule "signal.tolerance": the ranges of the worst case and the tolerance that dominates."""
+def tolerance_finding(report: ToleranceReport | None, rise_time_s: float) -> Finding:
+    """Rule "signal.tolerance": the ranges of the worst case and the tolerance that dominates; or, when the
+    tolerances were not analysed (engine.ruleset.run_rules, quick), that they were not."""
+    if report is None:
+        return Finding(
+            rule_id="signal.tolerance",
+            title="Worst case over component tolerances",
+            verdict=Verdict.HOLDS,
+            value=None,
+            limit=None,
+            unit="V",
+            limit_kind="none",
+            node=None,
+            criterion=_NOT_ANALYSED,
+            source=_TOLERANCE_SOURCE,
+            detail=_NOT_ANALYSED,
+        )
     ranges = []
     for r in report.ranges:
         if r.key == "rise_time":
