@@ -40,14 +40,16 @@ class PlanReport:
 def check_plan(plan: BusPlan | dict[str, Any], *, simulate_advice: bool = True) -> PlanReport:
     """Run every rule on a plan, advise, and summarise. A dict is validated first; input that cannot be modelled
     raises BusInputError. simulate_advice=False is the quick form for a verdict while typing (engine.advice.advise):
-    the same findings, advised plan, change list and spare capacity, without simulating the advised plan."""
+    the same verdict, advised plan, change list and spare capacity, without simulating the advised plan, and with
+    the tolerance corners analysed only when the verdict needs them (engine.ruleset.run_rules, quick): when another
+    finding is tight or breaks already, receivers tight only at their worst corner read as holding."""
     if not isinstance(plan, BusPlan):
         plan = load_plan(plan)
     problems = cross_field_problems(plan_to_dict(plan))
     if problems:
         raise BusInputError(problems)
     bus = build_bus(plan)
-    run = run_rules(bus)
+    run = run_rules(bus, quick=not simulate_advice)
     advice = advise(run, simulate=simulate_advice)
     capacity = receiver_capacity(advice.run.bus, advice.findings)
     findings = verified_findings(run, advice)

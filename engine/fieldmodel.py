@@ -35,7 +35,14 @@ from pairline.engine.plan import (
     TerminationSpec,
     resolve_cable,
 )
-from pairline.engine.solve import build_topology, driver_terminal_spectra, receiver_spectra, solve_network
+from pairline.engine.solve import (
+    build_topology,
+    driver_pin_probe,
+    node_probe,
+    probe_points,
+    probe_spectra,
+    solve_network,
+)
 from pairline.engine.waveform import default_pattern, edge_duration_s, step_responses
 
 PROBE_NAME = "scope probe"
@@ -220,10 +227,8 @@ def probe_transfer(plan: BusPlan, inst: Installed, setup: FieldSetup, s: np.ndar
     topo = build_topology(bus)
     driver = (bus.plan.driver.name,)
     net = solve_network(bus, s, topo, driver)
-    if setup.at == bus.plan.driver.name:
-        return np.asarray(driver_terminal_spectra(net, driver)[0])
-    index = topo.receiver_names.index(setup.at)
-    return np.asarray(receiver_spectra(net, driver, np.array([index]))[0, 0])
+    probe = driver_pin_probe() if setup.at == bus.plan.driver.name else node_probe(setup.at)
+    return np.asarray(probe_spectra(net, driver, probe_points(bus, topo, [probe]))[0, 0, 0])
 
 
 @dataclass(frozen=True, slots=True)

@@ -5,11 +5,8 @@ Verdict of one receiver (metrics from engine.metrics, threshold +/-200 mV of TIA
   falls back through the threshold after crossing it (threshold_recrossings: a false extra edge), when the
   inner eye at the sampling instant is under 2 x threshold (the 1s and 0s do not both clear the undefined
   band), or when the level has not settled beyond the threshold by the sampling instant.
-- TIGHT when it passes but with little margin (common practice for receivers in electrically noisy plant):
-  the smallest sampled level clears the threshold by less than another 200 mV, the eye is open for less
-  than half a bit, edge jitter exceeds 10 % of a bit, or the level settles in the last quarter-bit before
-  the sampling instant.
-- HOLDS otherwise.
+- HOLDS otherwise. The tight band is not judged here: a receiver that holds with nominal parts but breaks at
+  its worst tolerance corner is TIGHT (engine.rules.signal.banded, engine.tolerance).
 
 A fix is one parameter changed until the failing receivers stop breaking, found by re-simulating the changed
 bus: bisection over a continuous parameter (a stub length, a terminator value, the bit rate; MAX_BISECTIONS
@@ -19,7 +16,6 @@ are computed from the whole bus's step response), which keeps a fix to a few ten
 of one check share a budget of re-simulations (resimulation_budget).
 """
 
-import dataclasses
 import math
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
@@ -27,35 +23,17 @@ from dataclasses import dataclass
 from pairline.engine.bus import Bus, build_bus
 from pairline.engine.findings import Verdict
 from pairline.engine.library import TRANSCEIVERS
-from pairline.engine.metrics import (
-    RECEIVER_THRESHOLD_V,
-    ReceiverMetrics,
-    arrival_time_s,
-    pattern_metrics,
-    propagation_delay_s,
-    receiver_metrics,
-)
+from pairline.engine.metrics import ReceiverMetrics, SampledLevels, receiver_metrics
 from pairline.engine.plan import BusPlan, DeviceSpec, TerminationSpec
 from pairline.engine.rules.cable_ends import end_name, nearest_end_m, required_ends_m
 from pairline.engine.rules.preferred import nearest_preferred, preferred_at_or_below
 from pairline.engine.units import si_format
-from pairline.engine.waveform import (
-    DEFAULT_PATTERN_BITS,
-    StepResponses,
-    default_pattern,
-    edge_duration_s,
-    simulate_pattern,
-    step_responses,
-)
+from pairline.engine.waveform import StepResponses, default_pattern, pattern_duration_s, step_responses
 
 MAX_BISECTIONS = 5
 MAX_STUB_CANDIDATES = 2
 MAX_RESIMULATIONS = 32
 MAX_RESIMULATIONS_LARGE = 12
-TIGHT_EXTRA_MARGIN_V = 0.2  # sampled level at least this far beyond the threshold for HOLDS (common practice)
-TIGHT_EYE_WIDTH_UI = 0.5
-TIGHT_JITTER_UI = 0.1
-TIGHT_SETTLE_MARGIN_UI = 0.25
 STANDARD_RATES_BPS = (
     1200.0,
     2400.0,
@@ -98,49 +76,29 @@ class ComputedFix:
     simulations: int  # re-simulations spent finding it
 
 
-def judge_metrics(m: ReceiverMetrics) -> SignalJudgement:
-    """HOLDS / TIGHT / BREAKS of one receiver from its metrics (criteria in the module docstring)."""
+def level_breaks(m: ReceiverMetrics | SampledLevels) -> list[str]:
+    """Why the levels over the sampling windows break (criteria in the module docstring): none when they hold."""
     th = m.threshold_v
-    breaks: list[str] = []
-    tight: list[str] = []
+    breaks = []
     if m.sample_errors > 0:
         breaks.append(f"{m.sample_errors} sampled bit(s) not beyond ±{th * 1e3:.0f} mV (lowest {m.min_sample_v:.2f} V)")
+    if m.eye_height_v < 2.0 * th:
+        breaks.append(f"eye closed: inner eye {m.eye_height_v:.2f} V at the sampling instant, needs ≥ {2 * th:.1f} V")
+    return breaks
+
+
+def judge_metrics(m: ReceiverMetrics) -> SignalJudgement:
+    """HOLDS or BREAKS of one receiver from its metrics (criteria in the module docstring)."""
+    th = m.threshold_v
+    breaks = level_breaks(m)
     if m.threshold_recrossings > 0:
         breaks.append(
             f"falls back through the ±{th * 1e3:.0f} mV threshold {m.threshold_recrossings} time(s) after an edge "
             f"(ringback {m.undershoot_v:.2f} V): a false extra edge"
         )
-    if m.eye_height_v < 2.0 * th:
-        breaks.append(f"eye closed: inner eye {m.eye_height_v:.2f} V at the sampling instant, needs ≥ {2 * th:.1f} V")
     if not math.isfinite(m.settle_time_s) or m.settle_margin_s < 0.0:
         breaks.append("not settled beyond the threshold by the sampling instant")
-    if not breaks:
-        if m.min_sample_v < th + TIGHT_EXTRA_MARGIN_V:
-            tight.append(
-                f"lowest sampled level {m.min_sample_v:.2f} V clears the threshold by under "
-                f"{TIGHT_EXTRA_MARGIN_V * 1e3:.0f} mV"
-            )
-        if m.eye_width_ui < TIGHT_EYE_WIDTH_UI:
-            tight.append(f"eye open for only {m.eye_width_ui:.0%} of a bit")
-        if m.jitter_ui > TIGHT_JITTER_UI:
-            tight.append(f"edge jitter {m.jitter_ui:.0%} of a bit")
-        if m.settle_margin_s < TIGHT_SETTLE_MARGIN_UI * m.bit_time_s:
-            tight.append(f"settles only {si_format(max(m.settle_margin_s, 0.0), 's')} before the sampling instant")
-    verdict = Verdict.BREAKS if breaks else Verdict.TIGHT if tight else Verdict.HOLDS
-    return SignalJudgement(m.receiver, verdict, tuple(breaks or tight), m)
-
-
-def pattern_duration_s(bus: Bus, pattern: str | None) -> float:
-    """How long the pattern (None: at most the default PRBS length) lasts at the plan's bit rate."""
-    return (len(pattern) if pattern else DEFAULT_PATTERN_BITS) / bus.plan.bit_rate_bps
-
-
-def one_driver(steps: StepResponses, name: str) -> StepResponses:
-    """The edge responses of one driver out of a batch computed for several."""
-    i = steps.driver_names.index(name)
-    return dataclasses.replace(
-        steps, driver_names=(name,), v_diff_v=steps.v_diff_v[i : i + 1], v_final_v=steps.v_final_v[i : i + 1]
-    )
+    return SignalJudgement(m.receiver, Verdict.BREAKS if breaks else Verdict.HOLDS, tuple(breaks), m)
 
 
 def judge_bus(
@@ -166,20 +124,7 @@ def judge_bus(
         step = step_responses(bus, [driver], max_time_s=pattern_duration_s(bus, bits), receiver_names=watched)
     if bits is None:
         bits = default_pattern(step, bit_time_s)
-    if receivers is None:
-        every = receiver_metrics(bus, driver_name=driver, pattern=bits, step=step)
-        return {m.receiver: judge_metrics(m) for m in every}
-    names = list(receivers)
-    index = [step.receiver_names.index(n) for n in names]
-    wave = simulate_pattern(bus, bits, driver, receiver_names=names, step=step)
-    metrics = pattern_metrics(
-        wave,
-        propagation_delay_s(step)[0][index],
-        arrival_time_s(step)[0][index],
-        abs(step.v_final_v[0][index]),
-        edge_duration_s(step.rise_time_s),
-        RECEIVER_THRESHOLD_V,
-    )
+    metrics = receiver_metrics(bus, driver_name=driver, pattern=bits, step=step, receiver_names=watched)
     return {m.receiver: judge_metrics(m) for m in metrics}
 
 

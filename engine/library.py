@@ -22,6 +22,9 @@ class CableClass:
     skin_effect_onset_hz: float  # above it series R grows as sqrt(f / onset)
     dielectric_loss_tangent: float
     source: str
+    z0_tolerance: float = 0.10  # +/- fraction of z0_ohm
+    velocity_factor_tolerance: float = 0.05  # +/- fraction of velocity_factor
+    tolerance_source: str = "Z0 +/- 10 % and velocity factor +/- 5 % for a generic RS-485 pair: from memory"
 
 
 Failsafe = Literal["none", "open_short", "idle_bus"]
@@ -53,6 +56,19 @@ class TransceiverClass:
     isolated: bool = False
     isolation_rating_vrms: float | None = None  # 1-minute withstand (UL 1577 V_ISO)
     isolation_grade: IsolationGrade | None = None
+    rise_time_min_s: float = 0.0  # fastest edge of the class (0: FAST_EDGE_RANGE x rise_time_s)
+    rise_time_max_s: float = 0.0  # slowest edge of the class (0: FAST_EDGE_RANGE x rise_time_s)
+
+    @property
+    def edge_range_source(self) -> str:
+        """Where the class's fastest and slowest edges come from."""
+        return dict(self.sources).get("edge range", FAST_EDGE_SOURCE)
+
+    def rise_time_range_s(self) -> tuple[float, float]:
+        """(fastest, slowest) 10-90 % edge of the class: its own figures, else FAST_EDGE_RANGE of its typical."""
+        lo = self.rise_time_min_s or FAST_EDGE_RANGE[0] * self.rise_time_s
+        hi = self.rise_time_max_s or FAST_EDGE_RANGE[1] * self.rise_time_s
+        return lo, hi
 
     @property
     def choice_label(self) -> str:
@@ -69,6 +85,27 @@ def unit_load_fraction(unit_loads: float) -> str:
     """1 -> "1", 0.5 -> "1/2", 0.125 -> "1/8"; other ratings as decimals."""
     fractions = {1.0: "1", 0.5: "1/2", 0.25: "1/4", 0.125: "1/8"}
     return fractions.get(unit_loads, f"{unit_loads:g}")
+
+
+# Tolerances for the worst-case analysis (engine.tolerance). Each class below may state its own.
+RESISTOR_TOLERANCE = 0.05
+RESISTOR_TOLERANCE_SOURCE = "E24 resistors, +/- 5 % (IEC 60063 preferred-number series: E24 5 %, E48 2 %, E96 1 %)"
+FAST_EDGE_RANGE = (3.0 / 25.0, 40.0 / 25.0)  # fastest and slowest edge over the typical one
+FAST_EDGE_SOURCE = (
+    "min/typ/max 10-90 % edges of 3 / 25 / 40 ns (54 ohm || 100 pF) in the switching tables of RS-485 driver "
+    "data sheets, applied to the class as 0.12x to 1.6x its typical edge"
+)
+SLEW_EDGE_SOURCE = "slew-limited drivers of this class switch in roughly 250 to 2000 ns: from memory"
+INPUT_CAPACITANCE_RANGE = (0.4, 1.5)  # of each node's stated input capacitance
+INPUT_CAPACITANCE_SOURCE = (
+    "receiver input capacitance 8 pF at 6 MHz to 20 pF at 1 MHz in RS-485 receiver tables; taken as 0.4x to "
+    "1.5x the node's stated value: common practice"
+)
+UNIT_LOAD_RANGE = (0.5, 1.0)  # of each node's unit-load rating: a rating is a maximum
+UNIT_LOAD_SOURCE = (
+    "a unit-load rating is the most a receiver may draw (TIA/EIA-485-A, 1 mA at 12 V per unit load); parts "
+    "draw about half to all of it: from memory"
+)
 
 
 def _c_per_m(z0_ohm: float, velocity_factor: float) -> float:
@@ -116,6 +153,8 @@ CABLES: dict[str, CableClass] = {
             skin_effect_onset_hz=171.5e3,
             dielectric_loss_tangent=1.75e-3,
             source="TIA/EIA-568 Cat-5e (Z0 100 Ω); loss fitted to D. Glisic, EE Times 2008; 9.38 Ω/100 m, VF 0.69",
+            z0_tolerance=0.15,
+            tolerance_source="Z0 100 Ω ± 15 % (TIA/EIA-568 Cat-5e); velocity factor ± 5 %: from memory",
         ),
         CableClass(
             key="tia422-reference",
@@ -138,6 +177,10 @@ CABLES: dict[str, CableClass] = {
             skin_effect_onset_hz=268e3,
             dielectric_loss_tangent=0.002,
             source="RS-485 accepts 120 ± 30 Ω (Intersil high-speed RS-485 tutorial); ASTM B258 24 AWG",
+            tolerance_source=(
+                "Z0 150 Ω ± 10 % (135 to 165 Ω, PROFIBUS Specification, Normative Parts 2:1997, 4.1.2.3, type A "
+                "cable); velocity factor ± 5 %: from memory"
+            ),
         ),
     )
 }
@@ -172,15 +215,31 @@ _IDLE_WINDOW = {"failsafe": "idle_bus", "threshold_low_v": -0.200, "threshold_hi
 _OPEN_WINDOW = {"failsafe": "open_short"}
 
 
+# Fastest and slowest edge of a class, with where they come from (engine.tolerance); the rest take FAST_EDGE_RANGE.
+_EDGES_3NS = (2e-9, 5e-9, "edges of 2 to 5 ns for the very fast class: from memory")
+_EDGES_10NS = (3e-9, 16e-9, FAST_EDGE_SOURCE + " (the fastest edge, 3 ns, the same as the tables')")
+_EDGES_1200NS = (250e-9, 2000e-9, SLEW_EDGE_SOURCE)
+_EDGES_2500NS = (500e-9, 4000e-9, "slew-limited drivers of this class switch in roughly 0.5 to 4 µs: from memory")
+
+
 def _class(
-    key: str, label: str, rise_time_s: float, unit_loads: float, rate_bps: float, edge_source: str, **more: Any
+    key: str,
+    label: str,
+    rise_time_s: float,
+    unit_loads: float,
+    rate_bps: float,
+    edge_source: str,
+    edges: tuple[float, float, str] = (0.0, 0.0, FAST_EDGE_SOURCE),
+    **more: Any,
 ) -> TransceiverClass:
     """A class on the common 5 V figures (4 V behind 40 Ω, 2.5 V common mode, 20 pF, -7..+12 V), with its
-    sources named value by value; `more` sets the receiver's failsafe, isolation or common-mode range."""
+    sources named value by value; `edges` its fastest and slowest edge (0: FAST_EDGE_RANGE) and their source;
+    `more` sets the receiver's failsafe, isolation or common-mode range."""
     failsafe = more.get("failsafe", "none")
     sources = {
         "unit loads": _S_UNIT_LOAD,
         "edge": edge_source,
+        "edge range": edges[2],
         "driver output": _S_OUTPUT,
         "output common mode": _S_OUTPUT_CM,
         "failsafe and thresholds": {"none": _S_PLAIN, "open_short": _S_OPEN_SHORT, "idle_bus": _S_IDLE_FAILSAFE}[
@@ -201,6 +260,8 @@ def _class(
         unit_loads=unit_loads,
         max_bit_rate_bps=rate_bps,
         sources=tuple(sources.items()),
+        rise_time_min_s=edges[0],
+        rise_time_max_s=edges[1],
         **more,
     )
 
@@ -230,12 +291,14 @@ STANDARD_MINIMUM = TransceiverClass(
 TRANSCEIVERS: dict[str, TransceiverClass] = {
     t.key: t
     for t in (
-        _class("edge-3ns", "Very fast edge, 3 ns (20–50 Mbit/s class)", 3e-9, 1.0, 50e6, _S_EDGE),
-        _class("edge-10ns", "Fast edge, 10 ns (10 Mbit/s class)", 10e-9, 1.0, 10e6, _S_EDGE),
+        _class("edge-3ns", "Very fast edge, 3 ns (20–50 Mbit/s class)", 3e-9, 1.0, 50e6, _S_EDGE, _EDGES_3NS),
+        _class("edge-10ns", "Fast edge, 10 ns (10 Mbit/s class)", 10e-9, 1.0, 10e6, _S_EDGE, _EDGES_10NS),
         _class("edge-25ns", "Edge 25 ns (5 Mbit/s class)", 25e-9, 0.5, 5e6, _S_EDGE),
         _class("edge-100ns", "Edge 100 ns (1 Mbit/s class)", 100e-9, 0.25, 1e6, _S_EDGE),
-        _class("slew-1200ns", "Slew-limited, 1.2 µs (250 kbit/s class)", 1.2e-6, 0.125, 250e3, _S_SLEW),
-        _class("slew-2500ns", "Slew-limited, 2.5 µs (115.2 kbit/s class)", 2.5e-6, 0.125, 115.2e3, _S_SLEW),
+        _class("slew-1200ns", "Slew-limited, 1.2 µs (250 kbit/s class)", 1.2e-6, 0.125, 250e3, _S_SLEW, _EDGES_1200NS),
+        _class(
+            "slew-2500ns", "Slew-limited, 2.5 µs (115.2 kbit/s class)", 2.5e-6, 0.125, 115.2e3, _S_SLEW, _EDGES_2500NS
+        ),
         _class(
             "failsafe-full-fast",
             "Idle-bus failsafe, fast edge 10 ns",
@@ -243,6 +306,7 @@ TRANSCEIVERS: dict[str, TransceiverClass] = {
             1.0,
             10e6,
             _S_EDGE,
+            _EDGES_10NS,
             **_IDLE_WINDOW,
         ),
         _class(
@@ -261,6 +325,7 @@ TRANSCEIVERS: dict[str, TransceiverClass] = {
             0.125,
             250e3,
             _S_SLEW,
+            _EDGES_1200NS,
             **_IDLE_WINDOW,
         ),
         _class(
@@ -279,6 +344,7 @@ TRANSCEIVERS: dict[str, TransceiverClass] = {
             0.125,
             250e3,
             _S_SLEW,
+            _EDGES_1200NS,
             isolated=True,
             isolation_rating_vrms=2500.0,
             isolation_grade="basic",
@@ -303,6 +369,7 @@ TRANSCEIVERS: dict[str, TransceiverClass] = {
             0.125,
             250e3,
             _S_SLEW,
+            _EDGES_1200NS,
             common_mode_min_v=-25.0,
             common_mode_max_v=25.0,
             **_IDLE_WINDOW,

@@ -1,50 +1,75 @@
 """Signal verdict inputs at every receiver: levels, overshoot, ringback, false threshold crossings, settling,
-eye opening, propagation delay and jitter, read from the pattern waveforms.
+the margin over a sampling window, eye opening, delay and jitter, read from the pattern waveforms.
 
 Conventions (all differential, V_AB):
 - The receiver decides 1 at V >= +threshold and 0 at V <= -threshold; between lies the undefined band
   (+/-200 mV for TIA-485-A and TIA-422-B receivers, the default `threshold_v`).
-- Each receiver is judged in its own time frame: bit n's window runs from the moment edge n starts to arrive
-  there (n T_bit + t_a, t_a the step response's 2 % crossing) to the moment edge n + 1 does, so ringing is
-  charged to the bit that caused it. A UART-style receiver samples half a bit after the 50 % crossing it
-  synchronised on (n T_bit + t_50 + T_bit / 2). propagation_delay_s is t_50 minus the driver ramp's own
-  50 % point. A window that the pattern's end cuts short is left out.
-  The "driven side" of window n is s_n = +1 for a 1 bit, -1 for a 0.
-- amplitude_v: the settled level |V| after a long run of equal bits (exact DC solve), one polarity: the
-  differential signal swings between -amplitude_v and +amplitude_v, so a settled eye is 2 x amplitude_v.
+- Each receiver is read in its own frame (engine.transient): bit n's window is [n T, (n + 1) T) after the
+  receiver's path delay, so ringing is charged to the bit that caused it. The driven side of bit n is
+  s_n = +1 for a 1, -1 for a 0.
+- Crossing: when s_n V rises through 0 V in an edge's window, for good: the last rise through 0 V before the
+  level first clears 2 x ACCURACY of the settled level (engine.transient), so a touch of 0 V smaller than the
+  waveforms' own error, which a slow or RC-terminated edge can show, is no crossing. Delay (propagation_delay_s,
+  DELAY_DEFINITION): the median over the pattern's edges of the receiver's 0 V crossing minus the driver's own
+  (n T + T_e / 2); jitter_s: the spread (max - min) of those crossings.
+- Sampling (SamplingWindow): a UART samples each bit at its start edge as its input shows it plus centre_ui of a
+  bit (8/16 by default: mid-bit on the 16x clock), and the phase is uncertain by a sample clock either way, so
+  the level must hold over centre +/- half_width_ui (2/16 by default, 0.375 to 0.625 of the bit). The start edge
+  is taken at the receiver's median 0 V crossing. Sources: mid-bit sampling at 8 of 16 sample clocks after the
+  start edge and majority voting over samples 7, 8 and 9, Microchip "UART start detection and data sampling" and
+  TI MSPM0 G-series TRM (SLAU846A), UART oversampling; the +/-2/16 window width: common practice.
+- min_sample_v: the lowest s_n V over the sampling window of any bit; margin_v = min_sample_v - threshold;
+  sample_errors: bits whose window dips below the threshold.
+- amplitude_v: the settled level |V| after a long run of equal bits (exact DC solve), one polarity.
 - overshoot_v: how far s_n V rises above the settled level, worst over the pattern.
 - undershoot_v: ringback: after s_n V has reached the settled level inside a window, how far it then drops
   below it (0 when the approach is monotonic).
 - threshold_recrossings: times, over the pattern, that s_n V falls back below +threshold after having
-  passed it inside the same window: each can make the receiver output a false extra bit.
+  passed it inside the same window: each can make the receiver output a false extra bit. A fall counts once it
+  goes below the threshold by more than the waveform's accuracy (engine.transient.ACCURACY of the swing).
 - settle_time_s: worst time from a window's start (the edge's arrival) until s_n V stays at or above the
   threshold up to the sampling instant; inf if it is not there at the sampling instant. settle_margin_s is
-  the sampling instant minus that, in the same frame.
+  the sampling instant minus that.
 - eye_height_v: at the sampling instant, min over 1 bits minus max over 0 bits of V (inner eye).
 - eye_width_s: the contiguous span around the sampling instant in which every 1 bit is >= +threshold and
   every 0 bit <= -threshold.
-- jitter_s: peak-to-peak spread of the 0 V crossing times of all edges (data-dependent jitter / ISI).
-- sample_errors: sampled bits not on their driven side beyond the threshold.
 """
 
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
 
 import numpy as np
 from pairline.engine.bus import Bus
+from pairline.engine.transient import ACCURACY
 from pairline.engine.waveform import (
     DEFAULT_PATTERN_BITS,
+    LocalPatterns,
     StepResponses,
-    Waveforms,
     default_pattern,
-    edge_duration_s,
-    simulate_pattern,
+    local_patterns,
     step_responses,
 )
 
 RECEIVER_THRESHOLD_V = 0.2  # TIA/EIA-485-A and TIA/EIA-422-B receiver input sensitivity, +/-200 mV
 RECEIVERS_PER_PASS = 16  # receivers whose pattern waveforms are held at once (small blocks stay in cache)
-ARRIVAL_FRACTION = 0.02  # of the settled level: an edge has started to arrive
 DRIVERS_PER_PASS = 8  # drivers whose step responses are held at once
+DELAY_DEFINITION = (
+    "from the driver's 0 V crossing to the receiver's 0 V crossing (the rise through 0 V that goes on to clear "
+    f"{2 * ACCURACY:.0%} of the settled level), median over the pattern's edges"
+)
+
+
+@dataclass(frozen=True, slots=True)
+class SamplingWindow:
+    """Where in each bit a receiver's level must hold, in bits after its start edge (module docstring)."""
+
+    centre_ui: float = 0.5
+    half_width_ui: float = 0.125
+
+
+def plan_window(bus: Bus) -> SamplingWindow:
+    """The plan's sampling window (its defaults when the plan does not set one)."""
+    spec = bus.plan.sampling_window
+    return SamplingWindow(spec.centre_ui, spec.half_width_ui)
 
 
 @dataclass(frozen=True, slots=True)
@@ -60,8 +85,8 @@ class ReceiverMetrics:
     undershoot_v: float
     threshold_recrossings: int
     settle_time_s: float
-    settle_margin_s: float  # half a bit minus settle_time_s (negative: not settled when sampled)
-    min_sample_v: float  # smallest s_n V at the sampling instants (below threshold: a wrong or undefined bit)
+    settle_margin_s: float  # sampling instant minus settle_time_s (negative: not settled when sampled)
+    min_sample_v: float  # lowest s_n V over the sampling windows (below threshold: a wrong or undefined bit)
     sample_errors: int
     eye_height_v: float
     eye_width_s: float
@@ -71,33 +96,43 @@ class ReceiverMetrics:
     jitter_ui: float  # jitter_s / T_bit
     bit_time_s: float
     threshold_v: float
+    sampling_centre_ui: float = 0.5
+    sampling_half_width_ui: float = 0.125
+
+    @property
+    def margin_v(self) -> float:
+        """How far the lowest level over the sampling windows clears the threshold (negative: it does not)."""
+        return self.min_sample_v - self.threshold_v
+
+
+@dataclass(frozen=True, slots=True)
+class SampledLevels:
+    """A receiver's levels over the sampling windows alone (as a tolerance case is judged, engine.tolerance)."""
+
+    min_sample_v: float  # lowest level on the driven side over every bit's window
+    sample_errors: int  # bits whose window dips below the threshold
+    eye_height_v: float  # at the sampling instant: lowest 1 plus lowest 0 (driven sides)
+    threshold_v: float
+
+    @property
+    def margin_v(self) -> float:
+        return self.min_sample_v - self.threshold_v
 
 
 def crossing_time_s(step: StepResponses, fraction: float) -> np.ndarray:
-    """Per driver and receiver, (n_drivers, n_receivers): first time the step response reaches `fraction` of its
-    settled level (inf if it never does). Linear interpolation between samples."""
+    """Per driver and probe, (n_drivers, n_probes): first absolute time the step response reaches `fraction` of
+    its settled level (inf if it never does). Linear interpolation between samples."""
     level = fraction * step.v_final_v[..., None]
     above = np.where(step.v_final_v[..., None] >= 0, step.v_diff_v >= level, step.v_diff_v <= level)
-    first = np.argmax(above, axis=-1)  # (n_d, n_rx)
+    first = np.argmax(above, axis=-1)  # (n_d, n_p)
     prev = np.clip(first - 1, 0, None)
     v0 = np.take_along_axis(step.v_diff_v, prev[..., None], -1)[..., 0]
     v1 = np.take_along_axis(step.v_diff_v, first[..., None], -1)[..., 0]
     t0, t1 = step.time_s[prev], step.time_s[first]
     with np.errstate(divide="ignore", invalid="ignore"):
         frac = np.where(v1 != v0, (level[..., 0] - v0) / (v1 - v0), 0.0)
-    t_cross = t0 + np.clip(frac, 0.0, 1.0) * (t1 - t0)
+    t_cross = step.start_s + t0 + np.clip(frac, 0.0, 1.0) * (t1 - t0)
     return np.asarray(np.where(np.any(above, axis=-1), t_cross, np.inf))
-
-
-def propagation_delay_s(step: StepResponses) -> np.ndarray:
-    """Per driver and receiver, (n_drivers, n_receivers): the step response's 50 % crossing minus the driver
-    ramp's own 50 % point T_e / 2."""
-    return np.asarray(crossing_time_s(step, 0.5) - 0.5 * edge_duration_s(step.rise_time_s))
-
-
-def arrival_time_s(step: StepResponses) -> np.ndarray:
-    """Per driver and receiver: when an edge starts to arrive, the step response's ARRIVAL_FRACTION crossing."""
-    return crossing_time_s(step, ARRIVAL_FRACTION)
 
 
 def receiver_metrics(
@@ -107,182 +142,238 @@ def receiver_metrics(
     pattern: str | None = None,
     threshold_v: float = RECEIVER_THRESHOLD_V,
     step: StepResponses | None = None,
+    receiver_names: "tuple[str, ...] | list[str] | None" = None,
+    window: SamplingWindow | None = None,
 ) -> tuple[ReceiverMetrics, ...]:
-    """Metrics at every receiver (plan node order) for one driver and a bit pattern (see simulate_pattern).
+    """Metrics at every receiver (plan node order; or the named ones) for one driver and a bit pattern.
 
+    pattern None: the plan's test pattern, else the default PRBS. step: the driver's StepResponses to reuse
+    (covering the pattern or settled, holding the receivers). window None: the plan's sampling window.
     Receivers are processed RECEIVERS_PER_PASS at a time, so memory stays bounded on large buses.
-    step: the driver's StepResponses to reuse (covering the pattern or settled).
     """
-    names = (bus.plan.driver.name,) if driver_name is None else (driver_name,)
+    name = bus.plan.driver.name if driver_name is None else driver_name
     bits = pattern if pattern is not None else bus.plan.test_pattern
-    if step is None or step.driver_names[:1] != names:
+    t_bit = 1.0 / bus.plan.bit_rate_bps
+    wanted = list(receiver_names) if receiver_names is not None else [n.name for n in bus.plan.nodes]
+    if step is None or name not in step.driver_names or not set(wanted) <= set(step.receiver_names):
         n_bits = len(bits) if bits is not None else DEFAULT_PATTERN_BITS
-        step = step_responses(bus, names, max_time_s=n_bits / bus.plan.bit_rate_bps)
+        step = step_responses(bus, [name], max_time_s=n_bits * t_bit, receiver_names=receiver_names)
+    one = step.for_driver(name)
     if bits is None:
-        bits = default_pattern(step, 1.0 / bus.plan.bit_rate_bps)
-    delays = propagation_delay_s(step)[0]
-    arrivals = arrival_time_s(step)[0]
-    amplitudes = np.abs(step.v_final_v[0])
-    edge_s = edge_duration_s(step.rise_time_s)
+        bits = default_pattern(one, t_bit)
+    sampling = plan_window(bus) if window is None else window
     out: list[ReceiverMetrics] = []
-    all_rx = step.receiver_names
-    for r0 in range(0, len(all_rx), RECEIVERS_PER_PASS):
-        chunk = slice(r0, r0 + RECEIVERS_PER_PASS)
-        wave = simulate_pattern(bus, bits, driver_name, receiver_names=all_rx[chunk], step=step)
-        out.extend(pattern_metrics(wave, delays[chunk], arrivals[chunk], amplitudes[chunk], edge_s, threshold_v))
+    for r0 in range(0, len(wanted), RECEIVERS_PER_PASS):
+        local = local_patterns(one, bits, t_bit, wanted[r0 : r0 + RECEIVERS_PER_PASS])
+        out.extend(pattern_metrics(local, threshold_v, sampling))
     return tuple(out)
 
 
-def pattern_metrics(
-    wave: Waveforms,
-    delay_s: np.ndarray,
-    arrival_s: np.ndarray,
-    amplitude_v: np.ndarray,
-    edge_s: float,
-    threshold_v: float = RECEIVER_THRESHOLD_V,
-) -> list[ReceiverMetrics]:
-    """Metrics of every receiver in a Waveforms, vectorised over receivers; conventions in the module docstring.
-
-    delay_s, arrival_s, amplitude_v: (n_receivers,) propagation delays, arrival times and settled levels from
-    the step response; edge_s: the driver ramp's 0-100 % duration.
-    """
-    t_bit = wave.bit_time_s
-    n_rx, n_off = wave.v_diff_v.shape[0], wave.offsets_s.size
-    n_bits = len(wave.bits)
-    level = np.where(np.frombuffer(wave.bits.encode(), dtype=np.uint8) == ord("1"), 1.0, -1.0)
-    shift = np.where(np.isfinite(arrival_s), arrival_s, 0.0)
-    # re-bin into receiver windows: the grid repeats every bit, so window n of receiver r is a contiguous run
-    start = np.searchsorted(wave.time_s, shift, side="left")
-    n_win = int(max(1, (n_bits * n_off - start.max()) // n_off))
-    start = np.minimum(start, n_bits * n_off - n_win * n_off)
-    rows = np.arange(n_rx)[:, None]
-    v = wave.v_diff_v[rows, start[:, None] + np.arange(n_win * n_off)[None, :]].reshape(n_rx, n_win, n_off)
-    tau = wave.time_s[start[:, None] + np.arange(n_off)[None, :]] - shift[:, None]  # (n_rx, n_off) local offsets
-    lv = level[:n_win]
-    edge = np.r_[False, lv[1:] != lv[:-1]]
-    amp = amplitude_v[:, None, None]
-
-    # sampling instant: half a bit after the 50 % crossing the receiver synchronised on, interpolated
-    t_half = np.where(np.isfinite(delay_s), delay_s + 0.5 * edge_s, shift)
-    t_sample = np.clip(t_half - shift + 0.5 * t_bit, tau[:, 0], tau[:, -1])  # (n_rx,) local
-    i_mid = np.clip(np.array([np.searchsorted(t, ts) for t, ts in zip(tau, t_sample, strict=True)]) - 1, 0, n_off - 2)
-    t0 = np.take_along_axis(tau, i_mid[:, None], 1)
-    t1 = np.take_along_axis(tau, i_mid[:, None] + 1, 1)
-    w = ((t_sample[:, None] - t0) / (t1 - t0))[:, :, None]  # (n_rx, 1, 1)
-    v0 = np.take_along_axis(v, i_mid[:, None, None] * np.ones((1, n_win, 1), dtype=int), 2)
-    v1 = np.take_along_axis(v, i_mid[:, None, None] * np.ones((1, n_win, 1), dtype=int) + 1, 2)
-    v_mid = (v0 * (1.0 - w) + v1 * w)[..., 0]  # (n_rx, n_win)
-    sv_mid = lv[None, :] * v_mid
-
-    # the window ends where the next edge arrives; the transform's low-pass lets that edge lean back by a few
-    # hundredths of its ramp, so the last 10 % of a ramp-time is left to the next window
-    inside = (tau < t_bit - 0.1 * edge_s)[:, None, :]
-    sv_raw = lv[None, :, None] * v
-    sv = np.where(inside, sv_raw, np.inf)
-    valid = sv >= threshold_v
-    entered = np.maximum.accumulate(valid, axis=2)
-    recross = np.count_nonzero(entered[..., 1:] & valid[..., :-1] & ~valid[..., 1:], axis=(1, 2))
-    reached = np.maximum.accumulate(sv >= amp, axis=2) & inside
-    undershoot = np.maximum(0.0, np.where(reached, amp - sv, 0.0).max(axis=(1, 2)))
-    overshoot = np.maximum(0.0, np.where(inside, sv_raw - amp, 0.0).max(axis=(1, 2)))
-
-    # settling: in edge windows, the last invalid sample before the sampling instant
-    col = np.arange(n_off)[None, None, :]
-    bad = ~valid[:, edge, :] & (col <= i_mid[:, None, None])
-    last_bad = np.where(bad.any(axis=2), n_off - 1 - np.argmax(bad[..., ::-1], axis=2), -1).max(axis=1, initial=-1)
-    settle = np.where(last_bad < 0, 0.0, np.take_along_axis(tau, np.clip(last_bad + 1, 0, n_off - 1)[:, None], 1)[:, 0])
-    settle = np.where((sv_mid[:, edge] < threshold_v).any(axis=1), np.inf, settle)
-
-    ones, zeros = lv > 0, lv < 0
-    eye_height = np.where(
-        ones.any() and zeros.any(),
-        v_mid[:, ones].min(axis=1, initial=np.inf) - v_mid[:, zeros].max(axis=1, initial=-np.inf),
-        2.0 * np.abs(v_mid).min(axis=1),
-    )
-
-    # jitter: the 0 V crossing of each edge window (driven-side voltage turning positive)
-    pos = sv_raw[:, edge, :] >= 0.0
-    first = np.argmax(pos, axis=2)  # (n_rx, n_edges)
-    has = pos.any(axis=2) & (first > 0)
-    k = np.clip(first, 1, n_off - 1)
-    ta = np.take_along_axis(tau[:, None, :], (k - 1)[..., None], 2)[..., 0]
-    tb = np.take_along_axis(tau[:, None, :], k[..., None], 2)[..., 0]
-    va = np.take_along_axis(sv_raw[:, edge, :], (k - 1)[..., None], 2)[..., 0]
-    vb = np.take_along_axis(sv_raw[:, edge, :], k[..., None], 2)[..., 0]
+def _crossings(local: LocalPatterns, sv: np.ndarray, edge: np.ndarray, clear_v: np.ndarray) -> np.ndarray:
+    """Local time of the 0 V crossing in each edge window, (n_rx, n_edges): the last rise through 0 V before the
+    level first reaches clear_v (n_rx,) on the driven side; inf where it never does."""
+    u = local.offsets_s
+    rows = sv[:, edge, :]
+    cleared = rows >= clear_v[:, None, None]
+    first_clear = np.argmax(cleared, axis=2)
+    below = (rows < 0.0) & (np.arange(u.size) < first_clear[..., None])
+    last_below = np.where(below.any(axis=2), u.size - 1 - np.argmax(below[..., ::-1], axis=2), -1)
+    first = last_below + 1
+    k = np.clip(first, 1, u.size - 1)
+    va = np.take_along_axis(rows, (k - 1)[..., None], 2)[..., 0]
+    vb = np.take_along_axis(rows, k[..., None], 2)[..., 0]
     with np.errstate(divide="ignore", invalid="ignore"):
-        t_cross = np.where(vb != va, ta - va * (tb - ta) / (vb - va), ta)
-    hi = np.where(has, t_cross, -np.inf).max(axis=1, initial=-np.inf)
-    lo = np.where(has, t_cross, np.inf).min(axis=1, initial=np.inf)
-    jitter = np.where(has.sum(axis=1) >= 2, hi - lo, 0.0)
+        t = np.where(vb != va, u[k - 1] - va * (u[k] - u[k - 1]) / (vb - va), u[k])
+    t = np.where(first == 0, u[0], t)
+    bits_idx = np.flatnonzero(edge)
+    return np.asarray(np.where(cleared.any(axis=2), bits_idx[None, :] * local.bit_time_s + t, np.inf))
 
-    widths = _eye_width_s(tau, v, lv, threshold_v, t_bit, t_sample)
+
+def pattern_metrics(
+    local: LocalPatterns, threshold_v: float = RECEIVER_THRESHOLD_V, window: SamplingWindow | None = None
+) -> list[ReceiverMetrics]:
+    """Metrics of every receiver in a LocalPatterns, vectorised over receivers; conventions in the module
+    docstring."""
+    sampling = SamplingWindow() if window is None else window
+    t_bit = local.bit_time_s
+    v = local.v_diff_v  # (n_rx, n_bits, n_off)
+    n_rx, n_bits, n_off = v.shape
+    u = local.offsets_s
+    level = np.where(np.frombuffer(local.bits.encode(), dtype=np.uint8) == ord("1"), 1.0, -1.0)
+    edge = np.r_[False, level[1:] != level[:-1]]
+    amp = np.abs(local.v_final_v)[:, None, None]
+    sv = level[None, :, None] * v
+
+    # crossings: delay and jitter; the sampling phase is the median crossing within its bit
+    cross = _crossings(local, sv, edge, 2.0 * ACCURACY * amp[:, 0, 0])  # (n_rx, n_edges) local
+    within = cross - np.flatnonzero(edge)[None, :] * t_bit
+    finite = np.isfinite(within)
+    has = finite.any(axis=1)
+    known = np.where(finite, within, np.nan)
+    with np.errstate(all="ignore"):
+        phase = np.where(has, np.nanmedian(np.where(has[:, None], known, 0.0), axis=1), 0.5 * local.edge_s)
+        spread = np.where(
+            finite.sum(axis=1) >= 2,
+            np.nanmax(known, axis=1, initial=-np.inf) - np.nanmin(known, axis=1, initial=np.inf),
+            0.0,
+        )
+    delay = np.where(has, local.start_s + phase - 0.5 * local.edge_s, np.inf)
+
+    # levels along each bit from its sampling phase: S[r, n, j] = s_n V(n T + phase + tau_rj), tau in [0, T): the
+    # offsets rotated to start at the phase, read from bit n or n + 1 as they are (no interpolation)
+    centre, half = sampling.centre_ui * t_bit, sampling.half_width_ui * t_bit
+    n_s = n_bits - 1  # the last bit's window runs past the pattern
+    k = np.minimum(np.searchsorted(u, phase), n_off)  # (n_rx,) the first offset at or after the phase
+    flat = v.reshape(n_rx, -1)
+    ends = np.column_stack([u[k - 1] - phase, u[np.minimum(k, n_off - 1)] - phase + t_bit])  # one past each end
+    ends[:, 0] = np.where(k > 0, ends[:, 0], u[-1] - t_bit - phase)
+    marks = np.array([centre - half, centre, centre + half])
+    extra_tau = np.concatenate([np.repeat(marks[None], n_rx, 0), ends], axis=1)  # (n_rx, 5)
+    at = np.arange(n_s)[None, :, None] * t_bit + phase[:, None, None] + extra_tau[:, None, :]
+    extra = level[None, :n_s, None] * _interp_rows(at.reshape(n_rx, -1), local.local_time_s(), flat).reshape(
+        n_rx, n_s, 5
+    )
+    s_marks = extra[..., :3]  # (n_rx, n_s, 3): window start, centre, window end
+    tau = np.empty((n_rx, n_off + 2))
+    s_rows = np.empty((n_rx, n_s, n_off + 2))
+    window_min = s_marks.min(axis=2)  # (n_rx, n_s)
+    for r in range(n_rx):
+        rotated = np.concatenate([u[k[r] :], u[: k[r]] + t_bit]) - phase[r]
+        tau[r] = np.concatenate([ends[r, :1], rotated, ends[r, 1:]])
+        s_rows[r, :, 1:-1] = level[:n_s, None] * flat[r, k[r] : k[r] + n_s * n_off].reshape(n_s, n_off)
+        a_r = int(np.searchsorted(tau[r], centre - half, side="left"))
+        b_r = int(np.searchsorted(tau[r], centre + half, side="right"))
+        if b_r > a_r:
+            window_min[r] = np.minimum(window_min[r], s_rows[r, :, a_r:b_r].min(axis=1))
+    s_rows[:, :, 0] = extra[..., 3]
+    s_rows[:, :, -1] = extra[..., 4]
+    min_sample = window_min.min(axis=1)
+    errors = np.count_nonzero(window_min < threshold_v, axis=1)
+    at_centre = s_marks[..., 1]  # (n_rx, n_s)
+    ones, zeros = level[:n_s] > 0, level[:n_s] < 0
+    if ones.any() and zeros.any():
+        eye_height = at_centre[:, ones].min(axis=1) + at_centre[:, zeros].min(axis=1)
+    else:
+        eye_height = 2.0 * at_centre.min(axis=1)
+    j_c = np.clip(np.array([np.searchsorted(t, centre) for t in tau]), 1, tau.shape[1] - 2)
+    widths = np.where(at_centre.min(axis=1) < threshold_v, 0.0, _eye_width_s(tau, s_rows.min(axis=1), threshold_v, j_c))
+
+    # settling: in each edge bit, the last rise through the threshold before the sampling instant (interpolated)
+    settle = np.zeros(n_rx)
+    edges_s = np.flatnonzero(edge[:n_s])
+    for r in range(n_rx):
+        upto = int(j_c[r]) + 1
+        rows_r = s_rows[r, edges_s, :upto]  # (n_edges, upto)
+        bad = rows_r < threshold_v
+        if not bad.any():
+            continue
+        last = np.where(bad.any(axis=1), upto - 1 - np.argmax(bad[:, ::-1], axis=1), -1)
+        i = np.clip(last, 0, upto - 2)
+        s0, s1 = rows_r[np.arange(i.size), i], s_rows[r, edges_s, i + 1]
+        t0, t1 = tau[r, i], tau[r, i + 1]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            rise = np.where(s1 != s0, t0 + (threshold_v - s0) / (s1 - s0) * (t1 - t0), t1)
+        settle[r] = np.where(last < 0, 0.0, rise).max(initial=0.0)
+    settle = phase + settle
+    failed_at_centre = s_marks[:, edge[:n_s], 1] < threshold_v
+    settle = np.where(failed_at_centre.any(axis=1), np.inf, settle)
+
+    # overshoot, ringback and false crossings inside each bit's own window
+    overshoot = np.maximum(0.0, (sv - amp).max(axis=(1, 2)))
+    peak = np.abs(v).max(axis=(1, 2))
+    reaches = sv >= amp
+    first_reach = np.argmax(reaches, axis=2)  # (n_rx, n_bits)
+    after_min = np.minimum.accumulate(sv[..., ::-1], axis=2)[..., ::-1]  # lowest level from each sample on
+    dip = amp[..., 0] - np.take_along_axis(after_min, first_reach[..., None], 2)[..., 0]
+    undershoot = np.maximum(0.0, np.where(reaches.any(axis=2), dip, 0.0).max(axis=1))
+    recross = _recrossings(sv, threshold_v, threshold_v - 2.0 * ACCURACY * amp[..., 0])
+
     out = []
     for r in range(n_rx):
-        width = float(widths[r])
-        a = float(amplitude_v[r])
+        a = float(amp[r, 0, 0])
         out.append(
             ReceiverMetrics(
-                receiver=wave.receiver_names[r],
-                driver=wave.driver_name,
+                receiver=local.receiver_names[r],
+                driver=local.driver_name,
                 amplitude_v=a,
-                peak_v=float(np.abs(wave.v_diff_v[r]).max()),
+                peak_v=float(peak[r]),
                 overshoot_v=float(overshoot[r]),
                 overshoot_ratio=float(overshoot[r]) / a if a > 0 else float("inf"),
                 undershoot_v=float(undershoot[r]),
                 threshold_recrossings=int(recross[r]),
                 settle_time_s=float(settle[r]),
-                settle_margin_s=float(t_sample[r] - settle[r]),
-                min_sample_v=float(sv_mid[r].min()),
-                sample_errors=int(np.count_nonzero(sv_mid[r] < threshold_v)),
+                settle_margin_s=float(phase[r] + centre - settle[r]),
+                min_sample_v=float(min_sample[r]),
+                sample_errors=int(errors[r]),
                 eye_height_v=float(eye_height[r]),
-                eye_width_s=width,
-                eye_width_ui=width / t_bit,
-                propagation_delay_s=float(delay_s[r]),
-                jitter_s=float(jitter[r]),
-                jitter_ui=float(jitter[r]) / t_bit,
+                eye_width_s=float(widths[r]),
+                eye_width_ui=float(widths[r]) / t_bit,
+                propagation_delay_s=float(delay[r]),
+                jitter_s=float(spread[r]),
+                jitter_ui=float(spread[r]) / t_bit,
                 bit_time_s=t_bit,
                 threshold_v=threshold_v,
+                sampling_centre_ui=sampling.centre_ui,
+                sampling_half_width_ui=sampling.half_width_ui,
             )
         )
     return out
 
 
-def _eye_width_s(
-    tau: np.ndarray, v: np.ndarray, level: np.ndarray, threshold_v: float, t_bit: float, t_sample: np.ndarray
-) -> np.ndarray:
-    """Per receiver, (n_rx,): the contiguous span around the sampling instant where all 1s are >= +threshold
-    and all 0s <= -threshold. tau (n_rx, n_off) local offsets, v (n_rx, n_win, n_off), t_sample (n_rx,).
+def _recrossings(sv: np.ndarray, threshold_v: float, below_v: np.ndarray) -> np.ndarray:
+    """Per row, (n_rows,): falls of sv (n_rows, n_windows, n_off) from >= threshold_v to below below_v (n_rows, 1),
+    counted once each (hysteresis), within each window. Only windows that go below after being above are walked."""
+    hi = sv >= threshold_v
+    lo = sv < below_v[..., None]
+    n_off = sv.shape[2]
+    first_hi = np.where(hi.any(axis=2), np.argmax(hi, axis=2), n_off)
+    last_lo = np.where(lo.any(axis=2), n_off - 1 - np.argmax(lo[..., ::-1], axis=2), -1)
+    out = np.zeros(sv.shape[0], dtype=int)
+    for r, n in zip(*np.nonzero(first_hi < last_lo), strict=True):
+        state = np.where(hi[r, n], 1, np.where(lo[r, n], -1, 0))
+        held = state[state != 0]  # the band between is no change of state
+        out[r] += int(np.count_nonzero((held[:-1] == 1) & (held[1:] == -1)))
+    return out
 
-    The eye of bit n may reach into window n + 1 (until the next edge has crossed the band there), so the
-    right side continues over the next window with bit n's level.
-    """
-    n_rx, n_off = tau.shape
 
-    def open_at(rows: np.ndarray, lv: np.ndarray) -> np.ndarray:  # rows (n_rx, n, n_off) -> (n_rx, n_off)
-        ones, zeros = lv > 0, lv < 0
-        low_of_ones = rows[:, ones].min(axis=1) if ones.any() else np.full((n_rx, n_off), np.inf)
-        high_of_zeros = rows[:, zeros].max(axis=1) if zeros.any() else np.full((n_rx, n_off), -np.inf)
-        return np.asarray((low_of_ones >= threshold_v) & (high_of_zeros <= -threshold_v))
+def _interp_rows(at: np.ndarray, grid: np.ndarray, values: np.ndarray) -> np.ndarray:
+    """Linear interpolation of each row of values (n_rows, n_grid) at its own times at (n_rows, n_at); ends held."""
+    idx = np.clip(np.searchsorted(grid, at, side="right") - 1, 0, grid.size - 2)
+    t0, t1 = grid[idx], grid[idx + 1]
+    w = np.clip((at - t0) / (t1 - t0), 0.0, 1.0)
+    v0 = np.take_along_axis(values, idx, 1)
+    v1 = np.take_along_axis(values, idx + 1, 1)
+    return np.asarray(v0 + (v1 - v0) * w)
 
-    several = v.shape[1] > 1
-    here = open_at(v[:, :-1], level[:-1]) if several else open_at(v, level)
-    after = open_at(v[:, 1:], level[:-1]) if several else np.zeros((n_rx, n_off), dtype=bool)
-    rows = np.arange(n_rx)
-    col = np.arange(n_off)[None, :]
-    mid = np.clip(np.count_nonzero(tau < t_sample[:, None], axis=1), 0, n_off - 1)[:, None]
-    last_left = np.where(~here & (col < mid), col, -1).max(axis=1)
-    t_left = np.where(last_left >= 0, tau[rows, np.clip(last_left + 1, 0, n_off - 1)], 0.0)
-    first_right = np.where(~here & (col >= mid), col, n_off).min(axis=1)
-    t_right_here = tau[rows, np.clip(first_right - 1, 0, n_off - 1)]
-    first_after = np.where(~after, col, n_off).min(axis=1)
-    t_right_after = np.where(
-        first_after < n_off,
-        t_bit + np.where(first_after > 0, tau[rows, np.clip(first_after - 1, 0, n_off - 1)], 0.0),
-        2.0 * t_bit,
-    )
-    t_right = np.where(first_right < n_off, t_right_here, t_right_after)
-    width = np.minimum(t_bit, np.maximum(0.0, t_right - t_left))
-    return np.asarray(np.where(here[rows, mid[:, 0]], width, 0.0))
+
+def _eye_width_s(tau: np.ndarray, worst: np.ndarray, threshold_v: float, j_c: np.ndarray) -> np.ndarray:
+    """Per row, (n_rows,): the contiguous span around tau[r, j_c] where the worst driven-side level over all bits,
+    worst (n_rows, n_tau), is at or above the threshold, its ends interpolated linearly; 0 when closed there."""
+    n_rows, n_tau = worst.shape
+    rows = np.arange(n_rows)
+    col = np.arange(n_tau)[None, :]
+    below = worst < threshold_v
+    left = np.where(below & (col < j_c[:, None]), col, -1).max(axis=1)  # last closed sample left of the centre
+    right = np.where(below & (col > j_c[:, None]), col, n_tau).min(axis=1)
+    li, ri = np.clip(left, 0, n_tau - 2), np.clip(right, 1, n_tau - 1)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        t_left = np.where(
+            left >= 0,
+            tau[rows, li]
+            + (threshold_v - worst[rows, li])
+            / (worst[rows, li + 1] - worst[rows, li])
+            * (tau[rows, li + 1] - tau[rows, li]),
+            tau[:, 0],
+        )
+        t_right = np.where(
+            right < n_tau,
+            tau[rows, ri - 1]
+            + (worst[rows, ri - 1] - threshold_v)
+            / (worst[rows, ri - 1] - worst[rows, ri])
+            * (tau[rows, ri] - tau[rows, ri - 1]),
+            tau[:, -1],
+        )
+    return np.asarray(np.minimum(t_right - t_left, tau[:, -2] - tau[:, 0]))
 
 
 def driver_metrics(
@@ -301,12 +392,8 @@ def driver_metrics(
     for d0 in range(0, len(names), DRIVERS_PER_PASS):
         group = names[d0 : d0 + DRIVERS_PER_PASS]
         steps = step_responses(bus, group, max_time_s=n_bits / bus.plan.bit_rate_bps)
-        for i, name in enumerate(group):
-            one = replace(
-                steps,
-                driver_names=(name,),
-                v_diff_v=steps.v_diff_v[i : i + 1],
-                v_final_v=steps.v_final_v[i : i + 1],
+        for name in group:
+            out[name] = receiver_metrics(
+                bus, driver_name=name, pattern=pattern, threshold_v=threshold_v, step=steps.for_driver(name)
             )
-            out[name] = receiver_metrics(bus, driver_name=name, pattern=pattern, threshold_v=threshold_v, step=one)
     return out

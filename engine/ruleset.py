@@ -9,7 +9,7 @@ from collections.abc import Callable
 from dataclasses import dataclass
 
 from pairline.engine.bus import Bus
-from pairline.engine.findings import Finding
+from pairline.engine.findings import Finding, Verdict
 from pairline.engine.rules.bias import check_failsafe_bias
 from pairline.engine.rules.common_mode import check_common_mode
 from pairline.engine.rules.ground_wiring import check_ground_wiring
@@ -17,7 +17,7 @@ from pairline.engine.rules.length_rate import check_length_vs_rate
 from pairline.engine.rules.loads import check_driver_load, check_unit_loads
 from pairline.engine.rules.power import check_resistor_power
 from pairline.engine.rules.rc_termination import check_ac_termination
-from pairline.engine.rules.signal import Simulation, check_signal_integrity, simulate_bus
+from pairline.engine.rules.signal import Simulation, check_signal_integrity, simulate_bus, with_tolerance
 from pairline.engine.rules.stubs import check_stubs
 from pairline.engine.rules.termination import check_termination
 from pairline.engine.rules.unterminated import check_unterminated
@@ -63,10 +63,20 @@ class RuleRun:
     simulation: Simulation
 
 
-def run_rules(bus: Bus) -> RuleRun:
-    """Every rule in RULES order; the signal rule from one simulation, which the run keeps."""
-    simulation = simulate_bus(bus)
+def run_rules(bus: Bus, *, quick: bool = False) -> RuleRun:
+    """Every rule in RULES order; the signal rule from one simulation, which the run keeps.
+
+    quick: the tolerance corners (engine.tolerance, the signal rule's tight band) are analysed only when the
+    verdict needs them, when every other finding and every receiver's nominal waveform holds: a corner can only
+    make a holding receiver tight, so the verdict is always that of the full run."""
+    simulation = simulate_bus(bus, tolerance=not quick)
     findings = [f for rule in RULES[:-1] for f in rule(bus)]
+    if (
+        quick
+        and all(f.verdict is Verdict.HOLDS for f in findings)
+        and all(j.verdict is Verdict.HOLDS for j, _ in simulation.worst)
+    ):
+        simulation = with_tolerance(bus, simulation)
     findings += check_signal_integrity(bus, simulation)
     return RuleRun(bus=bus, findings=tuple(findings), simulation=simulation)
 

@@ -2,7 +2,8 @@
 
 Model (differential mode, see engine/line.py for the cable):
 - The trunk runs from 0 to trunk_length_m. Every position where something attaches (node, driver,
-  terminator, bias, the two ends) is a junction; between neighbouring junctions lies a trunk segment.
+  terminator, bias, the two ends, any probed trunk point) is a junction; between neighbouring junctions lies a
+  trunk segment.
 - Each node hangs on its own stub of the same cable as the trunk, ending in its receiver input: its device's
   differential input resistance, 24 kOhm per unit load across the pair (engine.devices), in parallel with the
   device's input capacitance. A stub of length 0 puts the load on the trunk.
@@ -15,7 +16,10 @@ Model (differential mode, see engine/line.py for the cable):
   group on its own view (engine.bus.talker_groups). Nodes not driving load the bus as receivers; the primary
   driver, when another node drives, loads the bus with its own device's receiver.
 
-Method, linear in the number of junctions K for every frequency at once:
+Probes read the bus at a receiver input (a plan node, at the end of its stub), at any trunk position, or at the
+driving node's own pins (the source end of its stub, where a scope at the driver's connector sits).
+
+Method, linear in the number of junctions K for every Laplace point s at once:
 1. Stub input admittances Y_in = (tanh/Z0 + Y_L) / (1 + Z0 tanh Y_L) give the shunt admittance at each junction.
 2. Two sweeps along the trunk give, at each junction, the admittance looking left (YL) and right (YR)
    into the rest of the trunk (input admittance of a loaded line, recursively).
@@ -27,20 +31,29 @@ Method, linear in the number of junctions K for every frequency at once:
    V_J / V_oc = sech / ((1 + Z0 tanh Y_J) + R_s (tanh/Z0 + Y_J)); the source end sits at
    V_e / V_oc = (1 + Z0 tanh Y_J) / (same denominator).
 All arithmetic uses tanh, sech and tanh(x)/x forms that stay finite at DC and on very lossy lines.
+
+Delay-normalised transfers: every sech(gamma l) is carried as sech(gamma l) exp(s l / v), so a probe's transfer
+comes out multiplied by exp(s tau), tau its geometric path delay from the driver (driver stub, trunk, probe
+stub at the cable's speed v). Under a damped transform (large Re s) the plain transfer of a long path would
+underflow; the normalised one stays of order one, and the time-domain solver reads each probe in its own frame
+starting at tau. At a large real s the normalised transfer tends to the amplitude of the wave front that
+arrives at tau: every later reflection carries exp(-s (tau_i - tau)) and dies out (front_gain).
+
+Variants (tolerance analysis): the cable and every load may carry a leading axis of n_v variants of the same
+layout; everything then runs batched over it (NetworkVariants).
 """
 
-from dataclasses import dataclass
+from collections.abc import Sequence
+from dataclasses import dataclass, replace
 
 import numpy as np
 from numpy.typing import ArrayLike
 from pairline.engine.bus import Bus
-from pairline.engine.line import (
-    SectionTerms,
-    section_terms,
-    series_impedance_ohm_per_m,
-    shunt_admittance_siemens_per_m,
-)
-from pairline.engine.plan import BusInputError, Problem
+from pairline.engine.line import _tanh_and_tanhc, series_impedance_ohm_per_m, shunt_admittance_siemens_per_m
+from pairline.engine.plan import BusInputError, Problem, ResolvedCable
+from pairline.engine.units import propagation_velocity_m_per_s
+
+DRIVER_PIN = "driver pin"  # label of the probe at the driving node's own terminals
 
 
 @dataclass(frozen=True, slots=True)
@@ -59,6 +72,33 @@ class BusResponse:
 
 
 @dataclass(frozen=True, slots=True)
+class Probe:
+    """A point where the bus is read: a plan node's receiver input, a trunk position, or the driver's pins.
+
+    kind: "node" (the node's receiver input at the end of its stub; its own pins while it drives),
+    "junction" (the trunk at position_m) or "driver_pin" (the driving node's terminals, at the source end of
+    its stub). name: the label shown for it.
+    """
+
+    kind: str
+    name: str
+    node: str | None = None
+    position_m: float | None = None
+
+
+def node_probe(name: str) -> Probe:
+    return Probe("node", name, node=name)
+
+
+def junction_probe(position_m: float) -> Probe:
+    return Probe("junction", f"trunk at {position_m:g} m", position_m=float(position_m))
+
+
+def driver_pin_probe() -> Probe:
+    return Probe("driver_pin", DRIVER_PIN)
+
+
+@dataclass(frozen=True, slots=True)
 class Topology:
     """The bus as junctions, trunk segments and branches (each a stub ending in a load)."""
 
@@ -73,10 +113,15 @@ class Topology:
     receiver_branch: np.ndarray  # (n_receivers,) branch index of each plan node
     receiver_names: tuple[str, ...]
     driver_branch: dict[str, int]  # name -> branch index of every node that may drive
+    termination_branch: np.ndarray  # (n_terminations,) branch index of each plan terminator
+    bias_branches: tuple[int, ...]  # branch index of each bias network, in plan order
 
 
-def build_topology(bus: Bus) -> Topology:
-    """Junctions, segments and branches of the bus (branch 0 is the primary driver's own receiver)."""
+def build_topology(bus: Bus, probe_positions_m: Sequence[float] = ()) -> Topology:
+    """Junctions, segments and branches of the bus (branch 0 is the primary driver's own receiver).
+
+    probe_positions_m: further trunk positions to make junctions of (probes there; nothing attached).
+    """
     plan = bus.plan
     stub: list[float] = []
     pos: list[float] = []
@@ -106,16 +151,17 @@ def build_topology(bus: Bus) -> Topology:
         receiver_branch.append(b)
         if node.may_drive and plan.standard == "rs485":
             driver_branch[node.name] = b
+    terminations = []
     for term in plan.terminations:
         if term.kind == "rc" and term.capacitance_f is not None:
-            add(term.position_m, 0.0, 0.0, 0.0, term.resistance_ohm, term.capacitance_f)
+            terminations.append(add(term.position_m, 0.0, 0.0, 0.0, term.resistance_ohm, term.capacitance_f))
         else:
-            add(term.position_m, 0.0, 1.0 / term.resistance_ohm, 0.0)
-    for bias in plan.bias:
-        add(bias.position_m, 0.0, 1.0 / (bias.pull_up_ohm + bias.pull_down_ohm), 0.0)
+            terminations.append(add(term.position_m, 0.0, 1.0 / term.resistance_ohm, 0.0))
+    bias = tuple(add(b.position_m, 0.0, 1.0 / (b.pull_up_ohm + b.pull_down_ohm), 0.0) for b in plan.bias)
 
     positions = np.asarray(pos)
-    junctions = np.unique(np.concatenate([positions, [0.0, plan.trunk_length_m]]))
+    extra = np.asarray(list(probe_positions_m), dtype=float)
+    junctions = np.unique(np.concatenate([positions, extra, [0.0, plan.trunk_length_m]]))
     return Topology(
         junction_position_m=junctions,
         segment_length_m=np.diff(junctions),
@@ -128,6 +174,8 @@ def build_topology(bus: Bus) -> Topology:
         receiver_branch=np.asarray(receiver_branch, dtype=int),
         receiver_names=tuple(n.name for n in plan.nodes),
         driver_branch=driver_branch,
+        termination_branch=np.asarray(terminations, dtype=int),
+        bias_branches=bias,
     )
 
 
@@ -154,104 +202,201 @@ def resolve_driver_names(bus: Bus, driver_names: "tuple[str, ...] | list[str] | 
     return names
 
 
-def _load_admittance(
-    g_siemens: np.ndarray, c_f: np.ndarray, rc_ohm: np.ndarray, rc_f: np.ndarray, s: np.ndarray
-) -> np.ndarray:
-    """Admittance of loads, (n_loads, n_s): G + s C, plus s C_t / (1 + s R_t C_t) for RC terminators."""
-    s_row = s[None, :]
-    y = g_siemens[:, None] + c_f[:, None] * s_row
-    rc = rc_f > 0
-    if np.any(rc):
-        c_t = rc_f[rc][:, None]
-        y[rc] += s_row * c_t / (1.0 + s_row * rc_ohm[rc][:, None] * c_t)
-    return np.asarray(y)
+@dataclass(frozen=True, slots=True)
+class ProbePoints:
+    """Probes resolved against a topology: each reads a plan node (receiver index), a junction, or the pins."""
+
+    probes: tuple[Probe, ...]
+    receiver: np.ndarray  # (n_p,) plan node index, -1 when not a node probe
+    junction: np.ndarray  # (n_p,) junction index, -1 when not a junction probe
+
+
+def probe_points(bus: Bus, topo: Topology, probes: Sequence[Probe]) -> ProbePoints:
+    """Where each probe reads; a node that is not on the bus or a position off the trunk raises BusInputError."""
+    names = topo.receiver_names
+    rx, junction = [], []
+    for i, p in enumerate(probes):
+        if p.kind == "node":
+            if p.node not in names:
+                raise BusInputError(
+                    [
+                        Problem(
+                            f"probes.{i}.node",
+                            "Probed node",
+                            p.node,
+                            {"choices": list(names)},
+                            f"'{p.node}' is not a node of this bus; nodes are {', '.join(names)}.",
+                        )
+                    ]
+                )
+            rx.append(names.index(p.node))
+            junction.append(-1)
+        elif p.kind == "junction":
+            x = float(p.position_m if p.position_m is not None else -1.0)
+            k = int(np.searchsorted(topo.junction_position_m, x))
+            off_trunk = not 0.0 <= x <= bus.plan.trunk_length_m
+            if off_trunk or k >= topo.junction_position_m.size or topo.junction_position_m[k] != x:
+                raise BusInputError(
+                    [
+                        Problem(
+                            f"probes.{i}.position_m",
+                            "Probed trunk position",
+                            p.position_m,
+                            {"min": 0.0, "max": bus.plan.trunk_length_m, "unit": "m"},
+                            f"A trunk probe must sit on the trunk, 0 to {bus.plan.trunk_length_m:g} m; "
+                            f"got {p.position_m}.",
+                        )
+                    ]
+                )
+            rx.append(-1)
+            junction.append(k)
+        else:
+            rx.append(-1)
+            junction.append(-1)
+    return ProbePoints(tuple(probes), np.asarray(rx, dtype=int), np.asarray(junction, dtype=int))
+
+
+@dataclass(frozen=True, slots=True)
+class NetworkVariants:
+    """n_v variants of one layout (tolerance analysis): a cable per variant and every load per variant."""
+
+    cables: tuple[ResolvedCable, ...]  # (n_v,)
+    conductance_siemens: np.ndarray  # (n_v, n_b)
+    capacitance_f: np.ndarray  # (n_v, n_b)
+    series_rc_ohm: np.ndarray  # (n_v, n_b)
+    series_rc_f: np.ndarray  # (n_v, n_b)
+    source_ohm: np.ndarray  # (n_v,)
+
+
+def nominal_variant(bus: Bus, topo: Topology) -> NetworkVariants:
+    """The plan itself as a single variant."""
+    return NetworkVariants(
+        cables=(bus.cable,),
+        conductance_siemens=topo.branch_conductance_siemens[None, :],
+        capacitance_f=topo.branch_capacitance_f[None, :],
+        series_rc_ohm=topo.branch_series_rc_ohm[None, :],
+        series_rc_f=topo.branch_series_rc_f[None, :],
+        source_ohm=np.array([bus.driver.source_ohm]),
+    )
+
+
+def _load_admittance(g: np.ndarray, c: np.ndarray, rc_ohm: np.ndarray, rc_f: np.ndarray, s: np.ndarray) -> np.ndarray:
+    """Admittance of loads, (n_v, n_loads, n_s): G + s C, plus s C_t / (1 + s R_t C_t) for RC terminators."""
+    s_row = s[None, None, :]
+    y = g[..., None] + c[..., None] * s_row
+    rc = rc_f[..., None]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        series = s_row * rc / (1.0 + s_row * rc_ohm[..., None] * rc)
+    return np.asarray(y + np.where(rc > 0, series, 0.0))
+
+
+@dataclass(frozen=True, slots=True)
+class _Sections:
+    """Delay-normalised terms of line sections, (n_v, n_lengths, n_s) each."""
+
+    sech_advanced: np.ndarray  # sech(gamma l) exp(s l / v)
+    z_tanh_ohm: np.ndarray  # Z0 tanh(gamma l)
+    y_tanh_siemens: np.ndarray  # tanh(gamma l) / Z0
+
+
+def _sections(z: np.ndarray, y: np.ndarray, s: np.ndarray, speed: np.ndarray, length_m: np.ndarray) -> _Sections:
+    """z, y: (n_v, n_s) per-metre Z', Y'; speed (n_v,) m/s; lengths (n_len,). Uses exp(-2 gamma l): no overflow."""
+    length = length_m[None, :, None]
+    gamma = np.sqrt(z * y)[:, None, :]
+    x = gamma * length
+    _, tc = _tanh_and_tanhc(x)
+    excess = (gamma - s[None, None, :] / speed[:, None, None]) * length  # attenuation and dispersion beyond the delay
+    log_sech_advanced = np.log(2.0) - excess - np.log1p(np.exp(-2.0 * x))
+    return _Sections(
+        sech_advanced=np.exp(log_sech_advanced),
+        z_tanh_ohm=z[:, None, :] * length * tc,
+        y_tanh_siemens=y[:, None, :] * length * tc,
+    )
 
 
 @dataclass(frozen=True, slots=True)
 class Network:
     """The passive bus (every node a load) solved at Laplace points s: what any driver needs.
 
-    Junction-major layout, (n_junctions, n_s): the sweeps walk contiguous rows. Stub terms are kept per
-    distinct kind of branch (stub_of maps a branch to its row).
+    Junction-major layout, (K, n_v, n_s): the sweeps walk contiguous rows. Stub terms are kept per distinct
+    kind of branch (stub_of maps a branch to its row). Every sech carries exp(s l / v) (module docstring).
     """
 
     topology: Topology
-    source_ohm: float
+    s: np.ndarray  # (n_s,)
+    speed_m_per_s: np.ndarray  # (n_v,)
+    source_ohm: np.ndarray  # (n_v,)
     stub_of: np.ndarray  # (n_b,) row of each branch's kind (stub length and load) in the stub tables
-    stub_sech: np.ndarray  # (n_kinds, n_s) sech(gamma l)
-    stub_z_tanh_ohm: np.ndarray  # (n_kinds, n_s) Z0 tanh(gamma l)
-    stub_y_tanh_siemens: np.ndarray  # (n_kinds, n_s) tanh(gamma l) / Z0
-    driver_y_branch: dict[str, np.ndarray]  # name -> (n_s,) admittance into the driver's branch when passive
-    y_shunt: np.ndarray  # (K, n_s)
-    y_left: np.ndarray  # (K, n_s) looking left into the trunk, own shunt excluded
-    y_right: np.ndarray  # (K, n_s)
-    ratio_right: np.ndarray  # (K - 1, n_s) V_{k+1} / V_k with the driver on the left of segment k
-    ratio_left: np.ndarray  # (K - 1, n_s) V_k / V_{k+1} with the driver on the right
-    rx_stub: np.ndarray  # (n_receivers, n_s) V_receiver / V_junction
-
-
-def _rows(terms: SectionTerms) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-    """(n_s, n) section terms as contiguous (n, n_s) rows: sech, log sech, Z0 tanh, tanh / Z0."""
-    return (
-        np.ascontiguousarray(terms.sech_term.T),
-        np.ascontiguousarray(terms.log_sech_term.T),
-        np.ascontiguousarray(terms.z_tanh_ohm.T),
-        np.ascontiguousarray(terms.y_tanh_siemens.T),
-    )
+    stub_sech: np.ndarray  # (n_kinds, n_v, n_s) sech(gamma l) exp(s l / v)
+    stub_z_tanh_ohm: np.ndarray  # (n_kinds, n_v, n_s) Z0 tanh(gamma l)
+    stub_y_tanh_siemens: np.ndarray  # (n_kinds, n_v, n_s) tanh(gamma l) / Z0
+    branch_y: np.ndarray  # (n_kinds, n_v, n_s) admittance into each kind of branch when passive
+    y_shunt: np.ndarray  # (K, n_v, n_s)
+    y_left: np.ndarray  # (K, n_v, n_s) looking left into the trunk, own shunt excluded
+    y_right: np.ndarray  # (K, n_v, n_s)
+    ratio_right: np.ndarray  # (K - 1, n_v, n_s) V_{k+1} / V_k exp(s l_k / v), driver on the left of segment k
+    ratio_left: np.ndarray  # (K - 1, n_v, n_s) V_k / V_{k+1} exp(s l_k / v), driver on the right
+    rx_stub: np.ndarray  # (n_kinds, n_v, n_s) V_load / V_junction exp(s l_stub / v)
 
 
 def solve_network(
-    bus: Bus, s: ArrayLike, topo: Topology | None = None, driver_names: "tuple[str, ...] | None" = None
+    bus: Bus,
+    s: ArrayLike,
+    topo: Topology | None = None,
+    driver_names: "tuple[str, ...] | None" = None,
+    variants: NetworkVariants | None = None,
 ) -> Network:
     """Steps 1-3 of the module docstring: branch admittances, both sweeps, outward voltage ratios.
 
-    driver_names: the drivers the network will be asked about (None: every node that may drive).
+    driver_names: the drivers the network will be asked about (None: every node that may drive); the sweeps
+    only cover what they need. variants: n_v variants of cable and loads (None: the plan itself, n_v = 1).
     """
     topo = build_topology(bus) if topo is None else topo
+    var = nominal_variant(bus, topo) if variants is None else variants
     s_arr = np.atleast_1d(np.asarray(s, dtype=complex))
     n_s = s_arr.size
-    z = series_impedance_ohm_per_m(bus.cable, s_arr)
-    y = shunt_admittance_siemens_per_m(bus.cable, s_arr)
+    z = np.stack([series_impedance_ohm_per_m(c, s_arr) for c in var.cables])  # (n_v, n_s)
+    y = np.stack([shunt_admittance_siemens_per_m(c, s_arr) for c in var.cables])
+    speed = np.array([propagation_velocity_m_per_s(c.velocity_factor) for c in var.cables])
+    n_v = speed.size
     k_count = topo.junction_position_m.size
 
-    # 1. branches: identical ones (same stub length and load, as on most real buses) share one computation;
-    # then the shunt admittance per junction
-    params = np.column_stack(
-        [
-            np.round(topo.branch_stub_m, 9),
-            topo.branch_conductance_siemens,
-            topo.branch_capacitance_f,
-            topo.branch_series_rc_ohm,
-            topo.branch_series_rc_f,
-        ]
-    )
-    kinds, kind_of = np.unique(params, axis=0, return_inverse=True)
+    # 1. branches: identical ones (same stub length and load in every variant) share one computation
+    loads = [var.conductance_siemens, var.capacitance_f, var.series_rc_ohm, var.series_rc_f]
+    params = np.column_stack([np.round(topo.branch_stub_m, 9)] + [a.T for a in loads])
+    _, first, kind_of = np.unique(params, axis=0, return_index=True, return_inverse=True)
     kind_of = kind_of.ravel()
-    sech_k, _, zt_k, yt_k = _rows(section_terms(z, y, kinds[:, 0]))
-    y_load_k = _load_admittance(kinds[:, 1], kinds[:, 2], kinds[:, 3], kinds[:, 4], s_arr)
-    y_branch_k = (yt_k + y_load_k) / (1.0 + zt_k * y_load_k)  # (n_kinds, n_s) into each kind of branch
-    rx_stub_k = sech_k / (1.0 + zt_k * y_load_k)  # (n_kinds, n_s) V_load / V_junction
+    stub_len, stub_kind = np.unique(np.round(topo.branch_stub_m[first], 9), return_inverse=True)
+    stubs = _sections(z, y, s_arr, speed, stub_len)
+    g_k, c_k, rc_ohm_k, rc_f_k = (a[:, first] for a in loads)
+    y_load = _load_admittance(g_k, c_k, rc_ohm_k, rc_f_k, s_arr)  # (n_v, n_kinds, n_s)
+    zt_k = stubs.z_tanh_ohm[:, stub_kind]
+    yt_k = stubs.y_tanh_siemens[:, stub_kind]
+    inv_k = 1.0 / (1.0 + zt_k * y_load)
+    branch_y = np.ascontiguousarray(np.moveaxis((yt_k + y_load) * inv_k, 1, 0))  # (n_kinds, n_v, n_s)
+    rx_stub = np.ascontiguousarray(np.moveaxis(stubs.sech_advanced[:, stub_kind] * inv_k, 1, 0))
+    y_shunt = np.zeros((k_count, n_v, n_s), dtype=complex)
     order = np.argsort(topo.branch_junction, kind="stable")
     bj = topo.branch_junction[order]
     starts = np.flatnonzero(np.r_[True, bj[1:] != bj[:-1]])
-    y_shunt = np.zeros((k_count, n_s), dtype=complex)
-    y_shunt[bj[starts]] = y_branch_k[kind_of[order[starts]]]
+    y_shunt[bj[starts]] = branch_y[kind_of[order[starts]]]
     for e in np.setdiff1d(np.arange(order.size), starts):  # further branches sharing a junction
-        y_shunt[bj[e]] += y_branch_k[kind_of[order[e]]]
-    names = tuple(topo.driver_branch) if driver_names is None else driver_names
-    driver_y = {name: y_branch_k[kind_of[topo.driver_branch[name]]] for name in names}
-    rx_stub = rx_stub_k[kind_of[topo.receiver_branch]]
+        y_shunt[bj[e]] += branch_y[kind_of[order[e]]]
 
     # 2-3. sweeps along the trunk, with the voltage ratio across every segment on the way
     seg_len, seg_of = np.unique(np.round(topo.segment_length_m, 9), return_inverse=True)
-    sech, _, zt, yt = _rows(section_terms(z, y, seg_len))
-    y_left = np.zeros((k_count, n_s), dtype=complex)
-    y_right = np.zeros((k_count, n_s), dtype=complex)
-    ratio_left = np.empty((k_count - 1, n_s), dtype=complex)
-    ratio_right = np.empty((k_count - 1, n_s), dtype=complex)
-    beyond = np.empty(n_s, dtype=complex)
-    inv = np.empty(n_s, dtype=complex)
+    seg = _sections(z, y, s_arr, speed, seg_len)
+    sech = np.ascontiguousarray(np.moveaxis(seg.sech_advanced, 1, 0))  # (n_len, n_v, n_s)
+    zt = np.ascontiguousarray(np.moveaxis(seg.z_tanh_ohm, 1, 0))
+    yt = np.ascontiguousarray(np.moveaxis(seg.y_tanh_siemens, 1, 0))
+    y_left = np.zeros((k_count, n_v, n_s), dtype=complex)
+    y_right = np.zeros((k_count, n_v, n_s), dtype=complex)
+    ratio_left = np.empty((k_count - 1, n_v, n_s), dtype=complex)
+    ratio_right = np.empty((k_count - 1, n_v, n_s), dtype=complex)
+    beyond = np.empty((n_v, n_s), dtype=complex)
+    inv = np.empty((n_v, n_s), dtype=complex)
     # only the parts the drivers need: left of the rightmost driver, right of the leftmost
+    names = tuple(topo.driver_branch) if driver_names is None else driver_names
     driver_junctions = topo.branch_junction[[topo.driver_branch[name] for name in names]]
     for k in range(int(driver_junctions.max())):
         u = seg_of[k]
@@ -273,12 +418,14 @@ def solve_network(
         np.multiply(sech[u], inv, out=ratio_right[k])  # V_{k+1} / V_k
     return Network(
         topology=topo,
-        source_ohm=bus.driver.source_ohm,
+        s=s_arr,
+        speed_m_per_s=speed,
+        source_ohm=np.asarray(var.source_ohm, dtype=float),
         stub_of=kind_of,
-        stub_sech=sech_k,
-        stub_z_tanh_ohm=zt_k,
-        stub_y_tanh_siemens=yt_k,
-        driver_y_branch=driver_y,
+        stub_sech=np.ascontiguousarray(np.moveaxis(stubs.sech_advanced[:, stub_kind], 1, 0)),
+        stub_z_tanh_ohm=np.ascontiguousarray(np.moveaxis(zt_k, 1, 0)),
+        stub_y_tanh_siemens=np.ascontiguousarray(np.moveaxis(yt_k, 1, 0)),
+        branch_y=branch_y,
         y_shunt=y_shunt,
         y_left=y_left,
         y_right=y_right,
@@ -289,14 +436,15 @@ def solve_network(
 
 
 def _junction_voltages(net: Network, name: str) -> tuple[np.ndarray, np.ndarray]:
-    """Step 4 for one driver: V_junction / V_oc at every junction, (K, n_s), and at the driver's own terminal."""
+    """Step 4 for one driver: V_junction / V_oc exp(s tau_J) at every junction, (K, n_v, n_s), and V / V_oc at
+    the driver's own terminal, (n_v, n_s)."""
     topo = net.topology
     b = topo.driver_branch[name]
     j = topo.branch_junction[b]
     u = net.stub_of[b]
-    y_j = net.y_shunt[j] - net.driver_y_branch[name] + net.y_left[j] + net.y_right[j]
+    y_j = net.y_shunt[j] - net.branch_y[u] + net.y_left[j] + net.y_right[j]
     near = 1.0 + net.stub_z_tanh_ohm[u] * y_j
-    denom = near + net.source_ohm * (net.stub_y_tanh_siemens[u] + y_j)
+    denom = near + net.source_ohm[:, None] * (net.stub_y_tanh_siemens[u] + y_j)
     v_j = net.stub_sech[u] / denom
     v_junction = np.empty_like(net.y_shunt)
     v_junction[j] = v_j
@@ -309,39 +457,89 @@ def _junction_voltages(net: Network, name: str) -> tuple[np.ndarray, np.ndarray]
     return v_junction, np.asarray(near / denom)
 
 
-def receiver_spectra(net: Network, driver_names: tuple[str, ...], receivers: np.ndarray | None = None) -> np.ndarray:
-    """Step 4: V_receiver / V_open_circuit for each driver, (n_drivers, n_receivers, n_s), frequency last.
+def probe_delays_s(net: Network, driver_names: tuple[str, ...], points: ProbePoints) -> np.ndarray:
+    """Geometric path delay from each driver to each probe, (n_v, n_drivers, n_p): the driver's stub, the trunk
+    between the junctions and the probe's stub, at the cable's speed; 0 at the driver's own pins."""
+    topo = net.topology
+    x = topo.junction_position_m
+    node, at_junction = points.receiver >= 0, points.junction >= 0
+    rx_branch = topo.receiver_branch[points.receiver[node]]
+    out = np.zeros((len(driver_names), len(points.probes)))
+    for i, name in enumerate(driver_names):
+        b = topo.driver_branch[name]
+        to_junction = topo.branch_stub_m[b] + np.abs(x - x[topo.branch_junction[b]])  # (K,)
+        to_node = to_junction[topo.branch_junction[rx_branch]] + topo.branch_stub_m[rx_branch]
+        out[i, node] = np.where(rx_branch == b, 0.0, to_node)
+        out[i, at_junction] = to_junction[points.junction[at_junction]]
+    return np.asarray(out[None, :, :] / net.speed_m_per_s[:, None, None])
 
-    receivers: indices (plan node order) of the receivers wanted; None = all.
+
+def probe_spectra(
+    net: Network, driver_names: tuple[str, ...], points: ProbePoints, *, advanced: bool = False
+) -> np.ndarray:
+    """V_probe / V_open_circuit for each driver, (n_v, n_drivers, n_p, n_s), Laplace points last.
+
+    advanced: leave each probe's transfer multiplied by exp(s tau), tau = probe_delays_s (module docstring).
     """
     topo = net.topology
-    pick = np.arange(topo.receiver_branch.size) if receivers is None else np.asarray(receivers, dtype=int)
-    rx_branch = topo.receiver_branch[pick]
+    n_v, n_s = net.y_shunt.shape[1:]
+    node = points.receiver >= 0
+    at_junction = points.junction >= 0
+    rx_branch = topo.receiver_branch[points.receiver[node]]
     rx_junction = topo.branch_junction[rx_branch]
-    rx_stub = net.rx_stub if receivers is None else net.rx_stub[pick]
-    out = np.empty((len(driver_names), rx_branch.size, net.y_shunt.shape[1]), dtype=complex)
+    rx_stub = net.rx_stub[net.stub_of[rx_branch]]  # (n_nodes, n_v, n_s)
+    out = np.empty((len(driver_names), len(points.probes), n_v, n_s), dtype=complex)
     for i, name in enumerate(driver_names):
         v_junction, v_terminal = _junction_voltages(net, name)
-        np.multiply(v_junction[rx_junction], rx_stub, out=out[i])
-        own = rx_branch == topo.driver_branch[name]
-        if np.any(own):
-            out[i][own] = v_terminal
+        rows = out[i]
+        if node.all():
+            np.take(v_junction, rx_junction, axis=0, out=rows)
+            rows *= rx_stub
+        else:
+            rows[node] = v_junction[rx_junction] * rx_stub
+            rows[at_junction] = v_junction[points.junction[at_junction]]
+        own = np.flatnonzero(node)[rx_branch == topo.driver_branch[name]]
+        rows[own] = v_terminal
+        rows[~node & ~at_junction] = v_terminal
+    out = np.moveaxis(out, 2, 0)  # (n_v, n_drivers, n_p, n_s)
+    if not advanced:
+        out *= np.exp(-net.s[None, None, None, :] * probe_delays_s(net, driver_names, points)[..., None])
     return out
 
 
-def driver_terminal_spectra(net: Network, driver_names: tuple[str, ...]) -> np.ndarray:
-    """V / V_open_circuit at each driver's own terminal (the end of its stub, behind the source), (n_drivers, n_s)."""
-    return np.stack([_junction_voltages(net, name)[1] for name in driver_names])
+def front_gain(
+    bus: Bus,
+    topo: Topology,
+    driver_names: tuple[str, ...],
+    points: ProbePoints,
+    s_real: float,
+    variants: NetworkVariants | None = None,
+) -> np.ndarray:
+    """Amplitude of the wave front reaching each probe, per volt of open-circuit drive, (n_v, n_drivers, n_p): the
+    delay-normalised transfer at one large real Laplace point s_real (module docstring). A front that the cable
+    or a capacitance has rounded within about 1 / s_real reads as the part of it that is still sharp then.
+
+    The cable's dielectric loss is left out here: its constant-phase model lets the highest frequencies run
+    slightly ahead of v, which at a real s would read as gain rather than as the small advance it is; its loss
+    at that scale, omega tan(delta) / (2 v), is under 1e-4 Np/m for the library cables, so a front loses nothing
+    measurable to it over a bus."""
+    var = nominal_variant(bus, topo) if variants is None else variants
+    cables = tuple(replace(c, dielectric_loss_tangent=0.0) for c in var.cables)
+    net = solve_network(bus, np.array([s_real]), topo, driver_names, replace(var, cables=cables))
+    return np.asarray(probe_spectra(net, driver_names, points, advanced=True)[..., 0].real)
 
 
-def junction_spectra(net: Network, driver_names: tuple[str, ...]) -> np.ndarray:
-    """V_junction / V_open_circuit at every trunk junction for each driver, (n_drivers, K, n_s)."""
-    return np.stack([_junction_voltages(net, name)[0] for name in driver_names])
+def _receiver_points(topo: Topology) -> ProbePoints:
+    n = len(topo.receiver_names)
+    probes = tuple(node_probe(name) for name in topo.receiver_names)
+    return ProbePoints(probes, np.arange(n), np.full(n, -1))
 
 
 def transfer_at(bus: Bus, s: ArrayLike, driver_names: tuple[str, ...], topo: Topology | None = None) -> np.ndarray:
     """V_receiver / V_open_circuit at Laplace points s, (n_drivers, n_s, n_receivers). See the module docstring."""
-    return np.swapaxes(receiver_spectra(solve_network(bus, s, topo, driver_names), driver_names), 1, 2)
+    topo = build_topology(bus) if topo is None else topo
+    net = solve_network(bus, s, topo, driver_names)
+    return np.swapaxes(probe_spectra(net, driver_names, _receiver_points(topo))[0], 1, 2)
 
 
 def solve_bus(
@@ -376,13 +574,18 @@ def solve_bus(
         )
     topo = build_topology(bus)
     net = solve_network(bus, 2j * np.pi * f, topo, names)
+    junctions = None
+    if with_junctions:
+        k = topo.junction_position_m.size
+        points = ProbePoints(tuple(junction_probe(x) for x in topo.junction_position_m), np.full(k, -1), np.arange(k))
+        junctions = np.swapaxes(probe_spectra(net, names, points)[0], 1, 2)
     return BusResponse(
         frequency_hz=f,
         driver_names=names,
         receiver_names=topo.receiver_names,
-        transfer=np.swapaxes(receiver_spectra(net, names), 1, 2),
+        transfer=np.swapaxes(probe_spectra(net, names, _receiver_points(topo))[0], 1, 2),
         junction_position_m=topo.junction_position_m,
-        junction_transfer=np.swapaxes(junction_spectra(net, names), 1, 2) if with_junctions else None,
+        junction_transfer=junctions,
     )
 
 
@@ -390,3 +593,9 @@ def dc_transfer(bus: Bus, driver_names: "tuple[str, ...] | list[str] | None" = N
     """DC V_receiver / V_open_circuit, (n_drivers, n_receivers), real: the settled level after an edge."""
     names = resolve_driver_names(bus, driver_names)
     return transfer_at(bus, np.zeros(1), names)[:, 0, :].real
+
+
+def with_cable(cable: ResolvedCable, z0_ohm: float, velocity_factor: float) -> ResolvedCable:
+    """The cable with another Z0 and velocity factor (C' follows as 1 / (Z0 v))."""
+    c_per_m = 1.0 / (z0_ohm * propagation_velocity_m_per_s(velocity_factor))
+    return replace(cable, z0_ohm=z0_ohm, velocity_factor=velocity_factor, capacitance_f_per_m=c_per_m)

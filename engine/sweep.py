@@ -162,7 +162,8 @@ def _margin_at(swept: Bus, criterion: str, bit_s: np.ndarray, threshold_v: float
         step = step_responses(swept)
         if criterion == "eye":
             v_final = float(step.v_final_v[0, 0])
-            return _worst_eye_half_v(step.time_s, step.v_diff_v[0, 0], v_final, bit_s) - threshold_v
+            time_s = step.start_s[0, 0] + step.time_s
+            return _worst_eye_half_v(time_s, step.v_diff_v[0, 0], v_final, bit_s) - threshold_v
         rise_s = float(crossing_time_s(step, 0.9)[0, 0] - crossing_time_s(step, 0.1)[0, 0])
     loss_ok = TIA422_MAX_LOSS - _far_end_loss(swept)
     # both must hold: margin is the smaller, in relative terms

@@ -1,6 +1,11 @@
 """Page data of field checks: the capture form (with what was typed and every message beside its input) and
 the result page, each one plain dict rendered by its template or returned as its JSON twin. A saved capture's
-page is the result page with its link, its save time and its file to download."""
+page is the result page with its link, its save time and its file to download.
+
+A saved plan's page lists the captures saved with it. Its checked part never changes and is cached; the list
+grows with every capture, so it is never cached with it: each view reads the list from the store and fills it
+into the cached page's slot, and into its JSON twin as `captures`.
+"""
 
 import json
 from typing import Any
@@ -16,13 +21,15 @@ from pairline.server.fieldplot import overlay_plot
 from pairline.server.jobs import Page
 from pairline.server.quantities import UnitSystem, length_text, length_unit, number_text
 from pairline.server.rendering import PageAt, page_json, render_page
-from pairline.server.store import SavedCapture
+from pairline.server.store import CaptureEntry, SavedCapture
 from pairline.server.views import json_safe
-from pairline.server.wording import date_text
+from pairline.server.wording import counted, date_text
 
 REGION_LABELS = {"edge": "First edge", "reflections": "Reflections", "settled": "Settled level"}
 SENT_CHOICES = (("edge", "one edge"), ("pattern", "the plan's bit pattern"), ("bits", "the bits typed beside"))
 SIGNAL_CHOICES = (("auto", "by the number of columns"), ("differential", "A-B"), ("lines", "A and B to ground"))
+CAPTURE_LIST_LIMIT = 50  # captures a plan's page lists, newest first; the rest are counted
+CAPTURE_LIST_SLOT = b"<!--capture-list-->"  # where plan.html leaves room for the list
 
 
 def _unit_choices(table: dict[str, float], what: str) -> tuple[tuple[str, str], ...]:
@@ -117,7 +124,7 @@ def field_result_data(plan: BusPlan, plan_id: str | None, request: FieldRequest,
         "title": f"Field check of “{plan.title or 'Untitled bus'}”",
         "plan_id": plan_id,
         "plan_url": f"/plans/{plan_id}" if plan_id else None,
-        "probe_text": _probe_text(plan, request, units),
+        "probe_text": probe_text(request.at, request.at_position_m, plan.driver.name, units),
         "sent_text": _sent_text(result),
         "capture_text": (
             f"{result.samples} samples every {si_format(result.sample_interval_s, 's')} "
@@ -160,6 +167,54 @@ def saved_capture_data(saved: SavedCapture) -> dict[str, Any]:
     }
 
 
+def capture_list_data(
+    plan_id: str, entries: list[CaptureEntry], total: int, plan_doc: dict[str, Any]
+) -> dict[str, Any]:
+    """The captures saved with a plan as its page lists them: the newest (store.captures_of), each with its save
+    time, where it was probed (in the units and names of `plan_doc`, the saved plan) and its link, and how many
+    more there are. A capture's verdict is on its own page: telling it here would mean fitting every capture
+    listed."""
+    units: UnitSystem = "imperial" if plan_doc.get("display_units") == "imperial" else "metric"
+    driver = plan_doc.get("driver")
+    driver_name = str(driver.get("name")) if isinstance(driver, dict) else ""
+    items = []
+    for entry in entries:
+        url = capture_url(plan_id, entry.id)
+        at, position_m = entry.at, entry.at_position_m
+        items.append(
+            {
+                "id": entry.id,
+                "url": url,
+                "json_url": url + ".json",
+                "created_at": entry.created_at,
+                "created_text": date_text(entry.created_at),
+                "at": at,
+                "at_position_m": position_m,
+                "probe_text": probe_text(at, position_m, driver_name, units),
+            }
+        )
+    not_listed = total - len(items)
+    return {
+        "note": "Anyone who has this plan's link can check a scope capture against it, and see every capture "
+        "checked against it here; a saved capture never changes.",
+        "caption": f"{counted(total, 'capture', 'captures')} saved with this plan, newest first",
+        "listed": items,
+        "total": total,
+        "not_listed": not_listed,
+        "not_listed_text": f"{counted(not_listed, 'older capture is', 'older captures are')} not listed here; "
+        "each still opens at its own link.",
+        "add_url": f"/plans/{plan_id}/field",
+    }
+
+
+def with_capture_list(body: bytes, as_json: bool, captures: dict[str, Any], env: Environment) -> bytes:
+    """A saved plan's page, or its JSON twin, as cached, with its capture list put in (as `captures`)."""
+    if as_json:  # the twin is one JSON object: the list joins it as its last member
+        return body[: body.rindex(b"}")] + b',"captures":' + page_json(captures) + b"}"
+    fragment = env.get_template("_partials/captures.html").render(data=captures)
+    return body.replace(CAPTURE_LIST_SLOT, fragment.encode("utf-8"), 1)
+
+
 def field_pages(env: Environment, result: dict[str, Any], saved: SavedCapture | None, base_url: str) -> Page:
     """The result's JSON twin, and for a saved capture its page too (rendered at its own link)."""
     if saved is None:
@@ -179,11 +234,12 @@ def _value_text(value: float | None, unit: str, units: UnitSystem, none: str) ->
     return si_format(value, unit)
 
 
-def _probe_text(plan: BusPlan, request: FieldRequest, units: UnitSystem) -> str:
-    if request.at_position_m is not None:
-        return f"a point on the trunk at {length_text(request.at_position_m, units)}"
-    at = request.at or plan.driver.name
-    return f"the driver's terminal ({at})" if at == plan.driver.name else f"node '{at}'"
+def probe_text(at: str | None, at_position_m: float | None, driver_name: str, units: UnitSystem) -> str:
+    """Where a capture was taken, in words: a point on the trunk, the driver's terminal, or a node."""
+    if at_position_m is not None:
+        return f"a point on the trunk at {length_text(at_position_m, units)}"
+    at = at or driver_name
+    return f"the driver's terminal ({at})" if at == driver_name else f"node '{at}'"
 
 
 def _sent_text(result: FieldCheck) -> str:

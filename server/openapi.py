@@ -15,7 +15,10 @@ _REF = "#/components/schemas/{model}"
 DESCRIPTION = (
     "Check an RS-485 / RS-422 bus plan (POST /api/check), save it for a link (POST /api/plans), read it back "
     "(GET /api/plans/{id}). Every page has a JSON twin at its path plus .json. Refusals answer with one envelope: "
-    "the status and every problem with its field, value and allowed range."
+    "the status and every problem with its field, value and allowed range. POST /api/check gives the full "
+    "check's verdict; it analyses the component tolerance corners only when that verdict needs them, so while "
+    "another finding is tight or failing, a receiver that is tight only at its worst tolerance corner is listed on "
+    "the saved plan's page alone."
 )
 PROBLEM_SCHEMA: dict[str, Any] = {
     "type": "object",

@@ -1,24 +1,20 @@
-"""Simulator benchmark (a script, not a test): python tests/bench_sim.py
+"""Simulator benchmark (a script, not a test): PYTHONPATH=. python tests/bench_sim.py [--quick]
 
-Times, on invented buses of 32, 128 and 256 receivers:
-- full check: engine.check.check_plan, every rule including the signal rule (its waveforms, the what-if
-  without terminators, the stub comparison and any computed fixes), the summary and the bill of materials;
+Times, on invented buses of 32, 128 and 256 receivers (constant-R cable, so that ngspice models the same line):
+- full check: engine.check.check_plan, every rule including the signal rule (its waveforms for every driver, the
+  worst tolerance corner of every receiver, the what-if without terminators, the stub comparison, any computed
+  fixes), the summary and the bill of materials;
 - waveforms: step responses plus the bit-pattern waveforms and metrics at every receiver (receiver_metrics);
-- signal: check_signal_integrity alone (it is part of the full check);
-- sweep: engine.sweep.length_rate_curve for the plan's cable and driver (criterion "eye"; it does not depend
-  on the number of receivers);
-- web view (32 receivers): what one plan page costs the engine: check_plan, one simulate_pattern for the
-  worst receiver, and the length-rate sweep;
-and, for 32 nodes that may all drive, the any-node-drives worst case (step responses for all 33 drivers and
-metrics for each). The same 32-receiver bus goes through ngspice (LTRA lines, one edge) in the same run; the
-engine's edge response over that window is compared with it point by point (ngspice uses its lumped RLC
-ladder there: with 65 sections, many under a metre long, T lines and LTRA slow to a crawl).
+- tolerance analysis of the 32-receiver bus: corners only, and 1000 Monte Carlo variants;
+and, in the same run, ngspice on the same buses (one driver edge over the window the reflections need, its
+lumped RLC ladder of sections under 1/160 of the edge: T lines and LTRA crawl on dozens of sub-metre sections),
+with its own transient analysis time ("rusage trantime": in-process, no start-up or file I/O) and wall time;
+the engine's edge response is compared with it on ngspice's own time points.
 
-Each time is the best of a few runs (other work on the machine only slows a run down). Peak memory:
-tracemalloc (Python allocations, numpy included) per case, and the process's max RSS.
-Targets: full check of 256 receivers < 300 ms and < 200 MB; web view of 32 receivers < 150 ms (server time,
-so the engine's share must be well under it); any-node-drives 32 nodes < 1 s; 32 receivers >= 50x faster
-than ngspice with agreement inside 2 %.
+Each time is the best of a few runs (other work on the machine only slows a run down). Peak memory: tracemalloc
+(Python allocations, numpy included) per case, and the process's max RSS.
+Targets: full check of 32 and of 128 receivers >= 100x faster than ngspice's analysis of the same bus; full check
+of 256 receivers < 300 ms and < 200 MB; tolerance analysis of 32 receivers: corners < 300 ms, 1000 variants < 2 s.
 """
 
 from __future__ import annotations
@@ -26,6 +22,7 @@ from __future__ import annotations
 import os
 import platform
 import resource
+import sys
 import time
 import tracemalloc
 from collections.abc import Callable
@@ -33,18 +30,16 @@ from pathlib import Path
 from typing import Any
 
 import numpy as np
-from pairline.engine.bus import Bus, build_bus
+from pairline.engine.bus import build_bus
 from pairline.engine.check import check_plan
-from pairline.engine.fixes import one_driver
 from pairline.engine.metrics import receiver_metrics
 from pairline.engine.plan import load_plan
-from pairline.engine.rules.signal import check_signal_integrity
-from pairline.engine.sweep import length_rate_curve
-from pairline.engine.waveform import simulate_pattern, step_responses
+from pairline.engine.tolerance import analyse_tolerances
+from pairline.engine.waveform import step_responses
 
-from tests.engine.spice_netlist import ngspice_path, resample, step_waveforms
+from tests.engine.spice_netlist import ngspice_path, step_waveforms
 
-# Constant-R cable (no skin effect or dielectric loss) so that ngspice's LTRA models the same line.
+# Constant-R cable (no skin effect or dielectric loss) so that ngspice models the same line.
 CABLE = {"class_key": None, "z0_ohm": 120.0, "velocity_factor": 0.78, "resistance_ohm_per_m": 0.0842}
 
 
@@ -93,17 +88,6 @@ def measure(fn: Callable[[], Any], repeats: int = 3) -> tuple[float, float, Any]
     return best, peak / 1e6, result
 
 
-def waveforms_and_metrics(bus: Bus) -> Any:
-    return receiver_metrics(bus)
-
-
-def any_node_drives(bus: Bus) -> Any:
-    """Edge responses of every possible driver in one batch, then pattern metrics for each."""
-    drivers = bus.drivers_possible
-    steps = step_responses(bus, drivers, max_time_s=127 / bus.plan.bit_rate_bps)
-    return [receiver_metrics(bus, driver_name=name, step=one_driver(steps, name)) for name in drivers]
-
-
 def machine() -> str:
     model = "unknown CPU"
     try:
@@ -116,52 +100,37 @@ def machine() -> str:
     return f"{model}; nproc {os.cpu_count()}; Python {platform.python_version()}; numpy {np.__version__}"
 
 
-def web_view(plan: Any) -> Any:
-    """One plan page's engine work: check_plan, the worst receiver's pattern waveform, the length-rate sweep."""
-    report = check_plan(plan)
-    worst_rx = min((f for f in report.findings if f.rule_id == "signal.integrity"), key=lambda f: f.value or 0.0).node
-    return report, simulate_pattern(report.bus, receiver_names=[worst_rx]), length_rate_curve(report.bus)
-
-
 def main() -> None:
+    quick = "--quick" in sys.argv  # no ngspice at 128 receivers, fewer repeats
     rows: list[tuple[str, float, float]] = []
     print(f"machine: {machine()}")
     print(f"load average at start: {' '.join(f'{x:.2f}' for x in os.getloadavg())}")
+    full: dict[int, float] = {}
     for n in (32, 128, 256):
         plan = load_plan(plan_doc(n))
         bus = build_bus(plan)
-        t_full, m_full, _ = measure(lambda plan=plan: check_plan(plan), repeats=5)
-        t_wave, m_wave, _ = measure(lambda bus=bus: waveforms_and_metrics(bus))
-        t_sig, m_sig, _ = measure(lambda bus=bus: check_signal_integrity(bus))
-        rows.append((f"{n} rx: full check (check_plan incl. signal rule)", t_full, m_full))
-        rows.append((f"{n} rx:   of which signal rule (waveforms, what-ifs, fixes)", t_sig, m_sig))
+        t_full, m_full, _ = measure(lambda plan=plan: check_plan(plan), repeats=2 if quick else 3)
+        t_wave, m_wave, _ = measure(lambda bus=bus: receiver_metrics(bus), repeats=2)
+        full[n] = t_full
+        rows.append((f"{n} rx: full check (check_plan incl. signal rule and corners)", t_full, m_full))
         rows.append((f"{n} rx: waveforms + metrics, every receiver", t_wave, m_wave))
-    plan32 = load_plan(plan_doc(32))
-    bus32 = build_bus(plan32)
-    t_sweep, m_sweep, _ = measure(lambda: length_rate_curve(bus32), repeats=5)
-    rows.append(("length-rate sweep (length_rate_curve, eye)", t_sweep, m_sweep))
-    t_web, m_web, _ = measure(lambda: web_view(plan32), repeats=5)
-    rows.append(("32 rx: web view (check_plan + simulate_pattern + sweep)", t_web, m_web))
+    bus32 = build_bus(load_plan(plan_doc(32)))
+    t_corners, m_corners, _ = measure(lambda: analyse_tolerances(bus32, variants=0), repeats=2)
+    rows.append(("32 rx: tolerance analysis, corners only", t_corners, m_corners))
+    t_mc, m_mc, _ = measure(lambda: analyse_tolerances(bus32, variants=1000, seed=1), repeats=1)
+    rows.append(("32 rx: tolerance analysis, corners + 1000 Monte Carlo variants", t_mc, m_mc))
 
-    bus_any = build_bus(load_plan(plan_doc(32, transceivers=True)))
-    t_any, m_any, _ = measure(lambda: any_node_drives(bus_any), repeats=2)
-    rows.append(("32 nodes, any node drives (33 drivers): waveforms + metrics", t_any, m_any))
-    t_any_sig, m_any_sig, _ = measure(lambda: check_signal_integrity(bus_any), repeats=2)
-    rows.append(("32 nodes, any node drives: signal rule (worst case per receiver)", t_any_sig, m_any_sig))
-
-    window_s = 4e-6  # the edge and seven one-way trips of the 128 m trunk
-    t_step, m_step, ours = measure(lambda: step_responses(bus32, max_time_s=window_s), repeats=5)
-    rows.append(("32 rx: engine edge response (same window as ngspice)", t_step, m_step))
-    spice_line = None
+    spice: dict[int, tuple[float, float, float]] = {}
     if ngspice_path() is not None:
-        # 65 line sections, many under a metre: T lines multiply breakpoints and LTRA crawls on short
-        # sections, so this run uses the lumped RLC ladder (sections under 1/160 of the edge).
-        spice = step_waveforms(bus32, window_s, line_model="ladder")
-        inside = ours.time_s <= window_s
-        ref = resample(spice, ours.time_s[inside])
-        err = np.abs(ours.v_diff_v[0][:, inside] - ref).max(axis=1) / np.ptp(spice.v_diff_v, axis=1)
-        rows.append(("32 rx: ngspice transient, same bus and window", spice.elapsed_s, float("nan")))
-        spice_line = (spice.elapsed_s, float(err.max()))
+        for n in (32,) if quick else (32, 128):
+            bus = build_bus(load_plan(plan_doc(n)))
+            window_s = 4e-6 if n == 32 else 10e-6  # the edge and several one-way trips of the trunk
+            ref = step_waveforms(bus, window_s, line_model="ladder", max_step_s=bus.driver.rise_time_s / 80)
+            ours = step_responses(bus, max_time_s=window_s).at(ref.time_s)[0]
+            err = (np.abs(ours - ref.v_diff_v).max(axis=1) / np.ptp(np.c_[ref.v_diff_v, np.zeros(n)], axis=1)).max()
+            spice[n] = (ref.analysis_s, ref.elapsed_s, float(err))
+            rows.append((f"{n} rx: ngspice transient analysis (in-process time)", ref.analysis_s, float("nan")))
+            rows.append((f"{n} rx: ngspice run (wall, incl. start-up and output)", ref.elapsed_s, float("nan")))
 
     width = max(len(r[0]) for r in rows)
     print(f"{'case':<{width}}  {'time':>10}  {'peak traced':>12}")
@@ -169,26 +138,18 @@ def main() -> None:
         mem = "" if m != m else f"{m:9.1f} MB"
         print(f"{name:<{width}}  {t * 1e3:8.1f} ms  {mem:>12}")
     print(f"max RSS of this process: {resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024:.0f} MB")
-
-    def row(prefix: str) -> tuple[float, float]:
-        return next((t, m) for name, t, m in rows if name.startswith(prefix))
-
-    full32, _ = row("32 rx: full")
-    full256, mem256 = row("256 rx: full")
-    t_any_full = max(t for name, t, _ in rows if name.startswith("32 nodes"))
+    mem256 = next(m for name, _, m in rows if name.startswith("256 rx: full"))
     print()
     print("targets:")
-    print(f"  256 rx full check: {full256 * 1e3:.0f} ms (< 300 ms), peak traced {mem256:.0f} MB (< 200 MB)")
-    print(f"  32 rx web view (engine share): {t_web * 1e3:.0f} ms (< 150 ms server time)")
-    print(f"  32 rx full check: {full32 * 1e3:.0f} ms; length-rate sweep: {t_sweep * 1e3:.0f} ms")
-    print(f"  any node drives, 32 nodes: {t_any_full * 1e3:.0f} ms (< 1000 ms)")
-    if spice_line is not None:
-        t_spice, err = spice_line
-        print(f"  ngspice / engine edge response (32 rx): {t_spice / t_step:7.0f}x (>= 50x)")
-        print(f"  ngspice / full check incl. waveforms (32 rx): {t_spice / full32:7.0f}x")
-        print(f"  worst disagreement with ngspice: {100 * err:.2f} % of the swing (<= 2 %)")
-    else:
+    for n, (analysis_s, wall_s, err) in spice.items():
+        print(
+            f"  {n} rx: ngspice analysis / full check = {analysis_s / full[n]:6.0f}x (>= 100x; wall "
+            f"{wall_s / full[n]:.0f}x); worst disagreement {100 * err:.2f} % of the swing on its time points"
+        )
+    if not spice:
         print("  ngspice not installed: comparison skipped")
+    print(f"  256 rx full check: {full[256] * 1e3:.0f} ms (< 300 ms), peak traced {mem256:.0f} MB (< 200 MB)")
+    print(f"  32 rx tolerance corners: {t_corners * 1e3:.0f} ms (< 300 ms); 1000 variants: {t_mc:.2f} s (< 2 s)")
 
 
 if __name__ == "__main__":

@@ -30,7 +30,11 @@ from pairline.engine.plan.model import (
     DriverSpec,
     GroundingSpec,
     NodeSpec,
+    PlanHead,
+    ProbeSpec,
+    SamplingWindowSpec,
     TerminationSpec,
+    ToleranceSpec,
 )
 from pairline.engine.plan.problems import BusInputError, Problem, allowed_of, field_info
 
@@ -67,9 +71,13 @@ __all__ = [
     "DriverSpec",
     "GroundingSpec",
     "NodeSpec",
+    "PlanHead",
     "Problem",
+    "ProbeSpec",
     "ResolvedCable",
+    "SamplingWindowSpec",
     "TerminationSpec",
+    "ToleranceSpec",
     "allowed_of",
     "cross_field_problems",
     "current_document",

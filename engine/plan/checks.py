@@ -7,7 +7,7 @@ from collections.abc import Callable, Mapping
 from typing import Any
 
 from pairline.engine.library import CABLES, STANDARD_MINIMUM, TRANSCEIVERS, TransceiverClass
-from pairline.engine.plan.model import DEFAULT_DEVICE, MAX_NODES, MIN_TRUNK_M, BusPlan, CableSpec
+from pairline.engine.plan.model import DEFAULT_DEVICE, MAX_NODES, MAX_TRUNK_M, MIN_TRUNK_M, BusPlan, CableSpec
 from pairline.engine.plan.problems import (
     Problem,
     allowed_of,
@@ -18,6 +18,7 @@ from pairline.engine.plan.problems import (
     short,
     value_text,
 )
+from pairline.engine.units import si_format
 from pydantic import BaseModel
 
 PastEnd = Callable[[str, str, float | None], None]
@@ -62,7 +63,8 @@ def past_end_check(data: dict[str, Any], problems: list[Problem]) -> PastEnd:
 
 
 def shared_problems(data: dict[str, Any], past_end: PastEnd) -> list[Problem]:
-    """Checks both format versions share: names, node and terminator positions, RC capacitors, the cable class."""
+    """Checks both format versions share: names, node and terminator positions, RC capacitors, probes, the
+    tolerances' edge range, the cable class."""
     problems: list[Problem] = []
     driver = sub(data, "driver")
     past_end("driver.position_m", "Driver position", num(driver, "position_m", 0.0))
@@ -100,6 +102,50 @@ def shared_problems(data: dict[str, Any], past_end: PastEnd) -> list[Problem]:
                     f"Terminator {i + 1} is an RC terminator and needs a capacitance; allowed 1 pF to 100 µF.",
                 )
             )
+    length = num(data, "trunk_length_m")
+    for i, probe in enumerate(items(data, "probes")):
+        if not isinstance(probe, dict):
+            continue
+        kind = probe.get("kind", "node")
+        node_names = [n.get("name") for n in items(data, "nodes") if isinstance(n, dict)]
+        if kind == "node" and probe.get("node") not in node_names:
+            problems.append(
+                Problem(
+                    f"probes.{i}.node",
+                    f"Probe {i + 1} node",
+                    short(probe.get("node")),
+                    {"choices": [n for n in node_names if isinstance(n, str)]},
+                    f"Probe {i + 1} names node {short(probe.get('node'))!r}, which is not a node of this bus; "
+                    f"choose one of the nodes (the driver's pins are probe kind 'driver_pin').",
+                )
+            )
+        if kind == "junction":
+            position = num(probe, "position_m")
+            if position is None:
+                problems.append(
+                    Problem(
+                        f"probes.{i}.position_m",
+                        f"Probe {i + 1} trunk position",
+                        None,
+                        {"min": 0.0, "max": length, "unit": "m"},
+                        f"Probe {i + 1} reads the trunk and needs a position; allowed 0 to "
+                        f"{length if length is not None else MAX_TRUNK_M:g} m.",
+                    )
+                )
+            past_end(f"probes.{i}.position_m", f"Probe {i + 1} trunk position", position)
+    tolerances = sub(data, "tolerances")
+    fastest, slowest = num(tolerances, "rise_time_min_s"), num(tolerances, "rise_time_max_s")
+    if fastest is not None and slowest is not None and fastest > slowest:
+        problems.append(
+            Problem(
+                "tolerances.rise_time_max_s",
+                "Slowest driver edge",
+                slowest,
+                {"min": fastest, "unit": "s"},
+                f"The slowest driver edge ({si_format(slowest, 's')}) is faster than the fastest "
+                f"(tolerances.rise_time_min_s, {si_format(fastest, 's')}); it must be at least that.",
+            )
+        )
     fields = ("z0_ohm", "velocity_factor", "resistance_ohm_per_m")
     problems += class_problems(data, "cable", "class_key", "pair-24awg-120", "Cable class", CABLES, CableSpec, fields)
     return problems

@@ -27,7 +27,6 @@ from pairline.engine.plan.model import (
     MAX_NODES,
     MAX_STUB_M,
     MAX_TRUNK_M,
-    PATTERN_CHARS,
     BiasSpec,
     Name,
     PlanHead,
@@ -78,14 +77,6 @@ class BusPlanV1(PlanHead):
     nodes: list[NodeSpecV1] = Field(min_length=1, max_length=MAX_NODES, title="Nodes")
     terminations: list[TerminationSpec] = Field(default_factory=list, max_length=16, title="Terminations")
     bias: BiasSpec | None = Field(None, title="Failsafe bias")
-    test_pattern: str | None = Field(
-        None,
-        min_length=2,
-        max_length=PATTERN_CHARS,
-        pattern=r"^[01]+$",
-        title="Bit pattern",
-        description="0s and 1s; default a pseudo-random run",
-    )
 
 
 def cross_field_problems_v1(data: dict[str, Any]) -> list[Problem]:

@@ -220,6 +220,46 @@ class BiasSpec(_Strict):
     supply_v: float | None = _f("Bias supply", "V", ge=1.0, le=15.0, default=None)
 
 
+class SamplingWindowSpec(_Strict):
+    """Where in each bit a receiver's level must hold, in bits after the start edge its input shows."""
+
+    centre_ui: float = _f("Sampling instant", "bit", ge=0.1, le=0.9, default=0.5, description="UART: mid-bit")
+    half_width_ui: float = _f(
+        "Sampling window half-width", "bit", ge=0.0, le=0.4, default=0.125, description="UART: 2/16 of a bit"
+    )
+
+
+class ProbeSpec(_Strict):
+    """A point to show the waveform at: a node's receiver input, a trunk position, or the driver's pins."""
+
+    kind: Literal["node", "junction", "driver_pin"] = Field("node", title="Probe")
+    node: str | None = Field(None, max_length=MAX_NAME_CHARS, title="Probed node")
+    position_m: float | None = _f("Probed trunk position", "m", ge=0.0, le=MAX_TRUNK_M, default=None)
+
+
+class ToleranceSpec(_Strict):
+    """Component tolerances for the worst-case analysis; each left empty takes the library class's own."""
+
+    z0_tolerance: float | None = _f("Cable Z0 tolerance", "", ge=0.0, le=0.5, default=None, description="± fraction")
+    velocity_factor_tolerance: float | None = _f(
+        "Velocity factor tolerance", "", ge=0.0, le=0.3, default=None, description="± fraction"
+    )
+    terminator_tolerance: float | None = _f("Terminator tolerance", "", ge=0.0, le=0.5, default=None)
+    bias_tolerance: float | None = _f("Bias resistor tolerance", "", ge=0.0, le=0.5, default=None)
+    rise_time_min_s: float | None = _f("Fastest driver edge", "s", ge=0.1e-9, le=20e-6, default=None)
+    rise_time_max_s: float | None = _f("Slowest driver edge", "s", ge=0.1e-9, le=20e-6, default=None)
+    input_capacitance_tolerance: float | None = _f(
+        "Receiver capacitance tolerance", "", ge=0.0, le=1.0, default=None, description="± fraction"
+    )
+    unit_loads_min_ratio: float | None = _f(
+        "Lightest receiver load", "", gt=0.0, le=1.0, default=None, description="fraction of the unit-load rating"
+    )
+    monte_carlo_variants: int = Field(
+        0, ge=0, le=10_000, title="Monte Carlo variants", description="0: corners only (the Monte Carlo is slow)"
+    )
+    seed: int = Field(1, ge=0, le=2**31 - 1, title="Random seed")
+
+
 class GroundingSpec(_Strict):
     """How the signal ground and the shield are wired (engine.rules.common_mode uses it)."""
 
@@ -239,8 +279,8 @@ class GroundingSpec(_Strict):
 
 
 class PlanHead(_Strict):
-    """The fields every format version shares, in the order a document states them; each version's model adds
-    its own after them and states its format_version."""
+    """The fields every format version shares; each version's model adds its own after them and states its
+    format_version."""
 
     format: Literal["pairline-bus-plan"] = Field(PLAN_FORMAT, title="Format")
     format_version: int = Field(title="Format version")
@@ -252,6 +292,20 @@ class PlanHead(_Strict):
     supply_v: float = _f("Supply voltage", "V", ge=1.5, le=15.0, default=5.0)
     trunk_length_m: float = _f("Trunk length", "m", ge=MIN_TRUNK_M, le=MAX_TRUNK_M)
     cable: CableSpec = Field(default_factory=CableSpec, title="Cable")
+    test_pattern: str | None = Field(
+        None,
+        min_length=2,
+        max_length=PATTERN_CHARS,
+        pattern=r"^[01]+$",
+        title="Bit pattern",
+        description="0s and 1s; default a pseudo-random run",
+    )
+    sampling_window: SamplingWindowSpec = Field(default_factory=SamplingWindowSpec, title="Sampling window")
+    probes: list[ProbeSpec] = Field(default_factory=list, max_length=16, title="Probes")
+    probe_signal: Literal["pattern", "step"] = Field(
+        "pattern", title="Probe signal", description="the bit pattern, or a single step 0 -> high"
+    )
+    tolerances: ToleranceSpec = Field(default_factory=ToleranceSpec, title="Tolerances")
 
 
 class BusPlan(PlanHead):
@@ -262,14 +316,6 @@ class BusPlan(PlanHead):
     terminations: list[TerminationSpec] = Field(default_factory=list, max_length=16, title="Terminations")
     bias: list[BiasSpec] = Field(default_factory=list, max_length=MAX_BIAS_NETWORKS, title="Failsafe bias networks")
     grounding: GroundingSpec = Field(default_factory=GroundingSpec, title="Ground and shield wiring")
-    test_pattern: str | None = Field(
-        None,
-        min_length=2,
-        max_length=PATTERN_CHARS,
-        pattern=r"^[01]+$",
-        title="Bit pattern",
-        description="0s and 1s; default a pseudo-random run",
-    )
 
     def talkers(self) -> list[str]:
         """Names of every node that may drive: the primary driver, then (RS-485) the nodes that may drive."""

@@ -4,8 +4,12 @@ whether the simulation confirms or overrides the rules of thumb for stubs and fo
 Rule "signal.integrity": one finding per receiver (plan order). The waveforms are the bit pattern of the plan
 (or the default PRBS) driven by the primary driver; on an RS-485 bus with transceiver nodes every node that
 may drive is simulated (up to 33; on larger buses a sample of 12 holding the usual worst cases, see
-drivers_to_simulate) and each receiver gets its worst case, naming the driver. Verdict criteria are those
-of engine.fixes.judge_metrics (threshold +/-200 mV, TIA-485-A / TIA-422-B receiver sensitivity).
+drivers_to_simulate) and each receiver gets its worst case, naming the driver. A waveform breaks by the
+criteria of engine.fixes.judge_metrics (threshold +/-200 mV, TIA-485-A / TIA-422-B receiver sensitivity). The
+tight band is that of every rule (engine.rules.margins): BREAKS when the waveform breaks with nominal parts,
+TIGHT when it holds with nominal parts but breaks at the receiver's worst tolerance corner (engine.tolerance:
+the primary driver's pattern with the cable, resistors, driver edge and receiver loads at the ends of their
+published tolerances), HOLDS when even that corner holds.
 
 Rule "signal.confirms": the rules of thumb judge the layout without a waveform; the simulation settles it.
 - "stub.length": the stubs the rule flags (TIGHT or BREAKS) are set to zero in one more simulation; the
@@ -20,18 +24,22 @@ as HOLDS here, with the rule's own finding still beside it. The termination conf
 simulated verdict only when the bus has no terminators; with terminators fitted its what-if is advice (HOLDS).
 """
 
+import dataclasses
 from dataclasses import dataclass
 
 import numpy as np
 from pairline.engine.bus import Bus, build_bus, talker_groups
 from pairline.engine.findings import Finding, Verdict, worst
-from pairline.engine.fixes import ComputedFix, SignalJudgement, compute_fixes, judge_bus, one_driver, pattern_duration_s
-from pairline.engine.metrics import ReceiverMetrics
+from pairline.engine.fixes import ComputedFix, SignalJudgement, compute_fixes, judge_bus, level_breaks
+from pairline.engine.metrics import ReceiverMetrics, SampledLevels
 from pairline.engine.rules.cable_ends import end_name, required_ends_m, terminator_value_ohm
+from pairline.engine.rules.margins import band_verdict
+from pairline.engine.rules.signal_model import model_finding, tolerance_finding
 from pairline.engine.rules.stubs import check_stubs
 from pairline.engine.rules.unterminated import line_may_stay_unterminated
+from pairline.engine.tolerance import ReceiverTolerance, ToleranceReport, analyse_tolerances
 from pairline.engine.units import length_text, si_format
-from pairline.engine.waveform import StepResponses, default_pattern, step_responses
+from pairline.engine.waveform import StepResponses, default_pattern, pattern_duration_s, step_responses
 
 MAX_STUB_CONFIRMS = 8  # flagged stubs reported one by one; the rest summarised
 MAX_WATCHED = 8  # receivers judged in a second (what-if) simulation on large buses
@@ -39,12 +47,12 @@ MAX_DRIVERS_ALL = 33  # every possible driver is simulated up to this many (32 t
 MAX_DRIVERS_SAMPLED = 12  # beyond, a sample of this many (drivers_to_simulate)
 _SOURCE = (
     "Simulated waveforms (reflection simulation of the whole bus); receiver threshold ±200 mV from TIA/EIA-485-A "
-    "and TIA/EIA-422-B; margins: common practice"
+    "and TIA/EIA-422-B; tolerance band from the parts' published tolerances (signal.tolerance)"
 )
 _CRITERION = (
-    "BREAKS: a sampled bit not beyond ±200 mV, a fall back through the threshold after an edge, inner eye < 0.4 V, "
-    "or not settled by the sampling instant. TIGHT: under 200 mV beyond the threshold, eye open < 50 % of a bit, "
-    "jitter > 10 % of a bit, or settling in the last quarter-bit."
+    "BREAKS: with nominal parts, a bit not beyond ±200 mV somewhere in its sampling window, a fall back through "
+    "the threshold after an edge, inner eye < 0.4 V, or not settled by the sampling instant. TIGHT: none of these "
+    "with nominal parts, but one of them at the receiver's worst tolerance corner."
 )
 
 
@@ -78,14 +86,16 @@ class Simulation:
     metrics: tuple[ReceiverMetrics, ...]  # every receiver, plan order, from the primary driver
     worst: tuple[tuple[SignalJudgement, str], ...]  # every receiver, plan order: its worst judgement and driver
     fixes: tuple[ComputedFix, ...]  # re-simulated fixes for receivers the primary driver breaks
+    tolerance: ToleranceReport | None  # the primary driver's pattern over the tolerances (None: not analysed)
 
     def judgement(self, receiver: str) -> tuple[SignalJudgement, str]:
         return next(item for item in self.worst if item[0].receiver == receiver)
 
 
-def simulate_bus(bus: Bus) -> Simulation:
-    """Simulate every node that may drive (drivers_to_simulate), judge each receiver by its worst case, and find
-    re-simulated fixes for the receivers the primary driver breaks."""
+def simulate_bus(bus: Bus, *, tolerance: bool = True) -> Simulation:
+    """Simulate every node that may drive (drivers_to_simulate), judge each receiver by its worst case, find
+    re-simulated fixes for the receivers the primary driver breaks, and (tolerance) run the primary driver's
+    pattern over the component tolerances (with_tolerance)."""
     drivers = drivers_to_simulate(bus)
     primary = bus.plan.driver.name
     duration_s = pattern_duration_s(bus, bus.plan.test_pattern)
@@ -94,13 +104,13 @@ def simulate_bus(bus: Bus) -> Simulation:
     for view, names in talker_groups(bus, drivers):
         steps = step_responses(view, names, max_time_s=duration_s)
         views.update({name: (view, steps) for name in names})
-    primary_step = one_driver(views[primary][1], primary)
+    primary_step = views[primary][1].for_driver(primary)
     bits = bus.plan.test_pattern or default_pattern(primary_step, 1.0 / bus.plan.bit_rate_bps)
     out: dict[str, tuple[SignalJudgement, str]] = {}
     from_primary: dict[str, SignalJudgement] = {}
     for name in drivers:
         view, steps = views[name]
-        step = primary_step if name == primary else one_driver(steps, name)
+        step = primary_step if name == primary else steps.for_driver(name)
         judged = judge_bus(view, driver_name=name, step=step, pattern=bits if name == primary else None)
         if name == primary:
             from_primary = judged
@@ -111,14 +121,24 @@ def simulate_bus(bus: Bus) -> Simulation:
             if old is None or _severity(j) > _severity(old[0]):
                 out[rx] = (j, name)
     failing = [rx for rx, (j, d) in out.items() if j.verdict is Verdict.BREAKS and d == primary]
+    metrics = tuple(from_primary[n.name].metrics for n in bus.plan.nodes)
     return Simulation(
         driver_name=primary,
         bits=bits,
         step=primary_step,
-        metrics=tuple(from_primary[n.name].metrics for n in bus.plan.nodes),
+        metrics=metrics,
         worst=tuple(out[n.name] for n in bus.plan.nodes),
         fixes=tuple(compute_fixes(bus, failing)) if failing else (),
+        tolerance=analyse_tolerances(bus, pattern=bits, nominal=(primary_step, metrics)) if tolerance else None,
     )
+
+
+def with_tolerance(bus: Bus, sim: Simulation) -> Simulation:
+    """The simulation with its tolerance analysis (engine.tolerance), from the edge responses it holds."""
+    if sim.tolerance is not None:
+        return sim
+    report = analyse_tolerances(bus, pattern=sim.bits, nominal=(sim.step, sim.metrics))
+    return dataclasses.replace(sim, tolerance=report)
 
 
 def _severity(j: SignalJudgement) -> tuple[int, float]:
@@ -163,37 +183,46 @@ def headline(j: SignalJudgement) -> tuple[str, float, float, str, str]:
 
 
 def check_signal_integrity(bus: Bus, simulation: Simulation | None = None) -> list[Finding]:
-    """Rule "signal.integrity" (one finding per receiver) and rule "signal.confirms" (stubs, termination);
-    simulation: what simulate_bus(bus) returned, when the caller has it already."""
+    """Rules "signal.integrity" (one finding per receiver: BREAKS when its nominal waveform breaks for some driver,
+    TIGHT when only its worst tolerance corner does), "signal.model" and "signal.tolerance" (what was assumed),
+    and "signal.confirms" (stubs, termination); simulation: what simulate_bus(bus) returned, when the caller has
+    it already."""
     sim = simulation if simulation is not None else simulate_bus(bus)
     primary = bus.plan.driver.name
     findings = []
     fixes_by_node: dict[str, str] = {}
-    for node, (j, driver) in zip(bus.plan.nodes, sim.worst, strict=True):
+    corners = sim.tolerance.receivers if sim.tolerance is not None else (None,) * len(sim.worst)
+    for node, (j, driver), corner in zip(bus.plan.nodes, sim.worst, corners, strict=True):
+        verdict, reasons = banded(j, corner)
+        tight_corner = corner if corner is not None and verdict is Verdict.TIGHT else None
         m = j.metrics
         driven_by = "" if driver == primary else f" (worst case: '{driver}' driving)"
         detail = (
             f"Driver '{driver}', {si_format(1.0 / m.bit_time_s, 'bit/s')}: settled level ±{m.amplitude_v:.2f} V, "
             f"peak {m.peak_v:.2f} V, overshoot {m.overshoot_v:.2f} V, ringback {m.undershoot_v:.2f} V, "
-            f"{m.threshold_recrossings} threshold re-crossing(s), eye {m.eye_height_v:.2f} V "
-            f"(from the 0s' -V to the 1s' +V) × {m.eye_width_ui:.0%} of a bit, "
-            f"delay {si_format(m.propagation_delay_s, 's')}, "
-            f"jitter {m.jitter_ui:.0%} of a bit."
+            f"{m.threshold_recrossings} threshold re-crossing(s), lowest level over the sampling window "
+            f"{m.min_sample_v:.2f} V (margin {m.margin_v:+.2f} V), eye {m.eye_height_v:.2f} V "
+            f"(from the 0s' -V to the 1s' +V) × {m.eye_width_ui:.0%} of a bit at ±{m.threshold_v * 1e3:.0f} mV, "
+            f"delay {si_format(m.propagation_delay_s, 's')} (0 V crossings), jitter {m.jitter_ui:.0%} of a bit. "
+            + _corner_text(corner)
         )
-        if j.reasons:
-            detail = "; ".join(j.reasons) + ". " + detail
+        if reasons:
+            detail = "; ".join(reasons) + ". " + detail
         steps = []
         if node.stub_length_m > 0.0:
             steps.append(f"shorten its {length_text(node.stub_length_m)} stub")
         steps.append(termination_step(bus))
         fix = ""
-        if j.verdict is Verdict.TIGHT:
+        if tight_corner is not None:
             fix = (
-                f"Margin at '{node.name}'{driven_by} is small ({'; '.join(j.reasons)}). To widen it: "
+                f"'{node.name}' passes with nominal parts but breaks at its worst tolerance corner "
+                f"({tight_corner.worst_corner}); {tight_corner.dominant} moves its margin most "
+                f"({tight_corner.dominant_shift_v:+.2f} V). Narrow the range of the {tight_corner.dominant} (parts "
+                "specified closer), or widen the margin: "
                 + ", ".join(steps)
                 + f", or lower the bit rate below {si_format(1.0 / m.bit_time_s, 'bit/s')}; then re-check."
             )
-        if j.verdict is Verdict.BREAKS:
+        elif j.verdict is Verdict.BREAKS:
             fix = fix_text(sim.fixes) if driver == primary else ""
             if not fix:
                 fix = (
@@ -202,12 +231,15 @@ def check_signal_integrity(bus: Bus, simulation: Simulation | None = None) -> li
                     + ", and lower the bit rate together, then re-check."
                 )
         fixes_by_node[node.name] = fix
-        quantity, value, limit, unit, limit_kind = headline(j)
+        quantity, value, limit, unit, limit_kind = (
+            corner_headline(tight_corner.worst) if tight_corner is not None else headline(j)
+        )
+        where = " at the worst tolerance corner" if tight_corner is not None else driven_by
         findings.append(
             Finding(
                 rule_id="signal.integrity",
-                title=f"Simulated waveform: {quantity}{driven_by}",
-                verdict=j.verdict,
+                title=f"Simulated waveform: {quantity}{where}",
+                verdict=verdict,
                 value=value,
                 limit=limit,
                 unit=unit,
@@ -219,10 +251,46 @@ def check_signal_integrity(bus: Bus, simulation: Simulation | None = None) -> li
                 detail=detail,
             )
         )
+    findings.append(model_finding(bus))
+    findings.append(tolerance_finding(sim.tolerance, bus.driver.rise_time_s))
     from_primary = {j.receiver: j for j, d in sim.worst if d == primary} or None
     findings += confirm_stub_rule(bus, from_primary, fixes_by_node)
     findings.append(confirm_termination_rule(bus, from_primary))
     return findings
+
+
+def banded(j: SignalJudgement, corner: ReceiverTolerance | None) -> tuple[Verdict, tuple[str, ...]]:
+    """The receiver's verdict in the tolerance band (engine.rules.margins.band_verdict) and its reasons: BREAKS as
+    judged with nominal parts; TIGHT when only its worst tolerance corner breaks (the corner's reasons); else
+    HOLDS. Without a corner (tolerances not analysed) the nominal judgement."""
+    if corner is None:
+        return j.verdict, j.reasons
+    at_corner = level_breaks(corner.worst)
+    verdict = band_verdict(j.verdict is not Verdict.BREAKS, not at_corner)
+    if verdict is not Verdict.TIGHT:
+        return verdict, j.reasons
+    return verdict, tuple(f"at the worst tolerance corner ({corner.worst_corner}) {r}" for r in at_corner)
+
+
+def corner_headline(levels: SampledLevels) -> tuple[str, float, float, str, str]:
+    """headline() of a tolerance corner: its lowest sampled level, or its eye when that is what breaks."""
+    th = levels.threshold_v
+    if levels.sample_errors == 0 and levels.eye_height_v < 2.0 * th:
+        return "inner eye height", levels.eye_height_v, 2.0 * th, "V", "min"
+    return "lowest sampled level", levels.min_sample_v, th, "V", "min"
+
+
+def _corner_text(t: ReceiverTolerance | None) -> str:
+    if t is None:
+        return "Tolerance corners not analysed (signal.tolerance)."
+    w = t.worst
+    text = (
+        f"Worst tolerance corner ({t.worst_corner}): margin {w.margin_v:+.2f} V, eye {w.eye_height_v:.2f} V; "
+        f"dominant tolerance: {t.dominant} ({t.dominant_shift_v:+.2f} V)."
+    )
+    if t.p1_margin_v is not None and t.p1_eye_height_v is not None:
+        text += f" Monte Carlo 1st percentile: margin {t.p1_margin_v:+.2f} V, eye {t.p1_eye_height_v:.2f} V."
+    return text
 
 
 def confirm_stub_rule(

@@ -12,6 +12,7 @@ from fastapi.responses import JSONResponse, RedirectResponse, Response
 from pairline.engine.plan import BusInputError, BusPlan, Problem, current_document, load_plan, plan_to_dict
 from pairline.server.checking import Checker, CheckRefused
 from pairline.server.errors import RequestRefused, not_found
+from pairline.server.fieldviews import CAPTURE_LIST_LIMIT, capture_list_data, with_capture_list
 from pairline.server.forms import (
     MAX_FORM_FIELDS,
     FormState,
@@ -27,7 +28,7 @@ from pairline.server.json_input import JsonInputError, load_json
 from pairline.server.node_table import read_node_table, with_pasted_rows
 from pairline.server.openapi import FORM_BODY, IMPORT_BODY
 from pairline.server.quantities import UnitSystem
-from pairline.server.rendering import page_at, render
+from pairline.server.rendering import page_at, page_json, render, render_bytes
 from pairline.server.saving import save_checked_plan
 from pairline.server.store import PlanStore, SavedPlan
 from pairline.server.views import editor_data, lineage_data, start_data
@@ -236,38 +237,50 @@ def _receiver_names(saved: SavedPlan) -> set[str]:
 def plan_page(
     request: Request, ref: str, store: StoreDep, checker: CheckerDep, receiver: str | None = None
 ) -> Response:
-    """A saved plan, checked: straight from the results cache when it holds this plan, view and format."""
+    """A saved plan, checked (straight from the results cache when it holds this plan, view and format), with the
+    captures saved with it read afresh."""
     plan_id, as_json = _split(ref)
     receiver = receiver or None
-    media_type = "application/json" if as_json else "text/html; charset=utf-8"
-    cached = checker.cached_json(plan_id, receiver) if as_json else checker.cached_html(plan_id, receiver)
-    if cached is not None:
-        return Response(cached, media_type=media_type)
-    saved = store.get_plan(plan_id)
-    if saved is None:
-        return not_found(request)
-    try:
-        plan = load_plan(saved.plan)
-        known = receiver if receiver in _receiver_names(saved) else None
-        parent = store.get_plan(saved.parent_id) if saved.parent_id else None
-        extra = {"lineage": lineage_data(parent)}
-        if receiver == known:  # the view every request with these options gets, cached as bytes
+    body = checker.cached_json(plan_id, receiver) if as_json else checker.cached_html(plan_id, receiver)
+    saved = None
+    if body is None:
+        saved = store.get_plan(plan_id)
+        if saved is None:
+            return not_found(request)
+        try:
+            body = _checked_plan_page(request, checker, store, saved, receiver, as_json)
+        except BusInputError as exc:
+            # Saved under an older engine or looser limits that accepted it; the editor shows what to change.
             if as_json:
-                body = checker.saved_json(saved, plan, known, extra)
-            else:
-                body = checker.saved_html(saved, plan, known, extra, page_at(request))
-            return Response(body, media_type=media_type)
-        data = json.loads(checker.saved_json(saved, plan, None, extra))
-    except BusInputError as exc:
-        # Saved under an older engine or looser limits that accepted it; show it in the editor with what to change.
+                raise
+            state = form_from_plan(saved.plan, parent_id=saved.id)
+            state.problems = _editor_problems(saved.plan) or exc.problems
+            title = "This saved plan needs changes before it can be checked here"
+            return render(request, "editor.html", editor_data(state, title=title, saved_from=saved), status_code=422)
+    listed, total = store.captures_of(plan_id, CAPTURE_LIST_LIMIT)
+    if listed and saved is None:  # a cached page: its plan is read only when the list words places in its terms
+        saved = store.get_plan(plan_id)
+    captures = capture_list_data(plan_id, listed, total, saved.plan if saved else {})
+    body = with_capture_list(body, as_json, captures, request.app.state.templates)
+    return Response(body, media_type="application/json" if as_json else "text/html; charset=utf-8")
+
+
+def _checked_plan_page(
+    request: Request, checker: Checker, store: PlanStore, saved: SavedPlan, receiver: str | None, as_json: bool
+) -> bytes:
+    """A saved plan's page or JSON twin, checked or from the cache; raises BusInputError for a plan the engine
+    now refuses."""
+    plan = load_plan(saved.plan)
+    known = receiver if receiver in _receiver_names(saved) else None
+    parent = store.get_plan(saved.parent_id) if saved.parent_id else None
+    extra = {"lineage": lineage_data(parent)}
+    if receiver == known:  # the view every request with these options gets, cached as bytes
         if as_json:
-            raise
-        state = form_from_plan(saved.plan, parent_id=saved.id)
-        state.problems = _editor_problems(saved.plan) or exc.problems
-        title = "This saved plan needs changes before it can be checked here"
-        return render(request, "editor.html", editor_data(state, title=title, saved_from=saved), status_code=422)
+            return checker.saved_json(saved, plan, known, extra)
+        return checker.saved_html(saved, plan, known, extra, page_at(request))
+    data = json.loads(checker.saved_json(saved, plan, None, extra))
     data["waveforms"]["chosen_unknown"] = receiver
-    return page(request, "plan.html", data, as_json)
+    return page_json(data) if as_json else render_bytes(request, "plan.html", data)
 
 
 @router.get("/plans/{ref}/advised")

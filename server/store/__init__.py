@@ -14,6 +14,7 @@ from pathlib import Path
 from pairline.server.store.base import (
     ID_BYTES,
     ID_CHARS,
+    CaptureEntry,
     PlanStore,
     SampleEntry,
     SaveCount,
@@ -32,6 +33,7 @@ URL_SCHEMES = ("postgresql://", "postgres://")
 __all__ = [
     "ID_BYTES",
     "ID_CHARS",
+    "CaptureEntry",
     "PlanStore",
     "SampleEntry",
     "SaveCount",

@@ -42,6 +42,17 @@ class SavedCapture:
 
 
 @dataclass(frozen=True, slots=True)
+class CaptureEntry:
+    """A saved capture as a plan's list shows it: without its file."""
+
+    id: str
+    plan_id: str
+    at: str | None  # where it was probed: a node's or the driver's name, or None for the driver or a trunk point
+    at_position_m: float | None  # or the point on the trunk
+    created_at: str  # ISO 8601, UTC, to the second
+
+
+@dataclass(frozen=True, slots=True)
 class SampleEntry:
     slug: str
     plan_id: str
@@ -127,6 +138,10 @@ class PlanStore(ABC):
     @abstractmethod
     def get_capture(self, plan_id: str, capture_id: str) -> SavedCapture | None:
         """The capture saved against `plan_id`, or None for an unknown id or one saved against another plan."""
+
+    @abstractmethod
+    def captures_of(self, plan_id: str, limit: int) -> tuple[list[CaptureEntry], int]:
+        """The newest `limit` captures saved against `plan_id`, newest first, and how many it has in all."""
 
     @abstractmethod
     def saves_since(self, client: str, since: datetime) -> SaveCount:

@@ -66,6 +66,18 @@ _MIGRATIONS = (
             "CREATE INDEX captures_client_time ON captures (client, created_at)",
         ),
     ),
+    Migration(
+        6,
+        "captures listed by plan with where each was probed",
+        (
+            # A plan's page lists its captures with where each was probed. The index holds all the list reads,
+            # so listing never reads a capture's file (SQLite would walk a large file to reach a column after it).
+            "ALTER TABLE captures ADD COLUMN probe_at TEXT",
+            "ALTER TABLE captures ADD COLUMN probe_position_m {float}",
+            "UPDATE captures SET probe_at = {capture_at}, probe_position_m = {capture_at_position_m}",
+            "CREATE INDEX captures_plan_list ON captures (plan_id, created_at, id, probe_at, probe_position_m)",
+        ),
+    ),
 )
 
 _WORDS: dict[Dialect, dict[str, str]] = {
@@ -77,6 +89,8 @@ _WORDS: dict[Dialect, dict[str, str]] = {
         "utf8_bytes_of_plan_json": "length(CAST(plan_json AS BLOB))",
         "bytes": "BLOB",
         "float": "REAL",
+        "capture_at": "json_extract(capture_json, '$.at')",
+        "capture_at_position_m": "json_extract(capture_json, '$.at_position_m')",
     },
     "postgresql": {
         "adopt": "",
@@ -86,6 +100,8 @@ _WORDS: dict[Dialect, dict[str, str]] = {
         "utf8_bytes_of_plan_json": "octet_length(plan_json)",
         "bytes": "BYTEA",
         "float": "DOUBLE PRECISION",
+        "capture_at": "capture_json::jsonb ->> 'at'",
+        "capture_at_position_m": "(capture_json::jsonb ->> 'at_position_m')::double precision",
     },
 }
 

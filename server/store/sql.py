@@ -13,6 +13,7 @@ from datetime import UTC, datetime
 from typing import Any, Protocol
 
 from pairline.server.store.base import (
+    CaptureEntry,
     PlanStore,
     SampleEntry,
     SaveCount,
@@ -145,8 +146,7 @@ class SqlStore(PlanStore):
             ).fetchone()
         if row is None:
             return None
-        created = self._time_value(row[5]).astimezone(UTC).isoformat(timespec="seconds")
-        return SavedPlan(row[0], json.loads(row[1]), row[2], row[3], row[4], created)
+        return SavedPlan(row[0], json.loads(row[1]), row[2], row[3], row[4], self._created_text(row[5]))
 
     def children_of(self, plan_id: str) -> list[str]:
         with self._transaction(write=False) as tx:
@@ -173,7 +173,9 @@ class SqlStore(PlanStore):
         self, plan_id: str, capture: dict[str, Any], *, engine_version: str, client: str | None = None
     ) -> str:
         text = canonical_json(capture)
-        row = {"plan_id": plan_id, "capture_json": text} | self._saved_by(engine_version, client, text, "capture_bytes")
+        at, position_m = capture.get("at"), capture.get("at_position_m")
+        row = {"plan_id": plan_id, "capture_json": text, "probe_at": at, "probe_position_m": position_m}
+        row |= self._saved_by(engine_version, client, text, "capture_bytes")
         with self._transaction(write=True) as tx:
             return self._insert_new(tx, "captures", row)
 
@@ -188,8 +190,21 @@ class SqlStore(PlanStore):
             ).fetchone()
         if row is None:
             return None
-        created = self._time_value(row[4]).astimezone(UTC).isoformat(timespec="seconds")
-        return SavedCapture(row[0], row[1], json.loads(row[2]), row[3], created)
+        return SavedCapture(row[0], row[1], json.loads(row[2]), row[3], self._created_text(row[4]))
+
+    def captures_of(self, plan_id: str, limit: int) -> tuple[list[CaptureEntry], int]:
+        with self._transaction(write=False) as tx:
+            total = int(tx.execute("SELECT COUNT(*) FROM captures WHERE plan_id = ?", (plan_id,)).fetchone()[0])
+            rows = tx.execute(
+                "SELECT id, probe_at, probe_position_m, created_at FROM captures WHERE plan_id = ?"
+                " ORDER BY created_at DESC, rowid DESC LIMIT ?",
+                (plan_id, limit),
+            ).fetchall()
+        return [CaptureEntry(r[0], plan_id, r[1], r[2], self._created_text(r[3])) for r in rows], total
+
+    def _created_text(self, stored: Any) -> str:
+        """A stored save time as ISO 8601 text, in UTC, to the second."""
+        return self._time_value(stored).astimezone(UTC).isoformat(timespec="seconds")
 
     # --- samples ------------------------------------------------------------------------------------------
 

@@ -1,5 +1,5 @@
-"""The field check in a real browser: choose a capture file, compare, read the result; both pages pass the
-accessibility scan and fit a phone."""
+"""The field check in a real browser: choose a capture file, compare, read the result, find it listed on the
+plan's page; each page passes the accessibility scan, and the form fits a phone."""
 
 import pytest
 
@@ -44,6 +44,13 @@ def test_choose_a_capture_compare_and_read_the_difference(browser, base_url, axe
         # the capture is saved with the plan: the result has its own link, shown whole for sharing
         assert page.url.startswith(plan_url + "/captures/")
         assert page.locator("#share-url").input_value() == page.url
+        errors_found += _serious(page, axe_script)
+        # and the plan's own page lists it at once, linked
+        capture_url = page.url
+        page.goto(plan_url)
+        listed = page.locator("#capture-list tbody tr a")
+        assert listed.count() == 1 and listed.first.get_attribute("href") == capture_url.removeprefix(base_url)
+        assert "Anyone who has this plan's link" in page.locator("#captures-note").inner_text()
         assert errors_found + _serious(page, axe_script) == []
     finally:
         context.close()

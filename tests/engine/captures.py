@@ -12,6 +12,7 @@ from dataclasses import dataclass
 
 import numpy as np
 from pairline.engine.bus import Bus
+from pairline.engine.solve import driver_pin_probe, node_probe
 
 from tests.engine.spice_netlist import bus_netlist, run_netlist
 
@@ -31,8 +32,9 @@ def spice_edge(bus: Bus, probe: str, stop_time_s: float, *, max_step_s: float | 
     v = bus.driver.open_circuit_v
     ramp_s = bus.driver.rise_time_s / 0.8
     points = [(0.0, -v), (ramp_s, v)]
-    text, _ = bus_netlist(bus, stop_time_s=stop_time_s, source_points=points, probes=(probe,), max_step_s=max_step_s)
-    wave = run_netlist(text, (probe,))
+    at = driver_pin_probe() if probe == bus.plan.driver.name else node_probe(probe)
+    text, nodes = bus_netlist(bus, stop_time_s=stop_time_s, source_points=points, probes=[at], max_step_s=max_step_s)
+    wave = run_netlist(text, tuple(nodes))
     return Trace(wave.time_s, wave.v_diff_v[0], float(wave.v_diff_v[0, 0]))
 
 

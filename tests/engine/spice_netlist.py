@@ -22,22 +22,25 @@ part of the product. The netlist models the same differential mode as the engine
 
 ngspice is run as `ngspice -b` with a `.control` block that writes the receiver voltages with `wrdata`. LTRA
 interpolates its past waveforms linearly (LININTERP): with its default quadratic interpolation the time step
-collapsed on one netlist (a terminated chain with stubs, 2.4 µs into a 3 µs run) and the run never ended; at a
-step of 1/25 of the edge the two differ far below the agreement asked.
+collapsed on one netlist (a terminated chain with stubs, 2.4 µs into a 3 µs run) and the run never ended; at the
+steps used here the two differ far below the agreement asked.
 """
 
 from __future__ import annotations
 
 import math
 import os
+import re
 import shutil
 import subprocess
 import tempfile
+from collections.abc import Sequence
 from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
 from pairline.engine.bus import Bus
+from pairline.engine.solve import Probe, node_probe
 from pairline.engine.units import SPEED_OF_LIGHT_M_PER_S
 
 NGSPICE = "ngspice"
@@ -61,6 +64,7 @@ class SpiceWaveforms:
     v_diff_v: np.ndarray  # (n_receivers, n_t)
     netlist: str
     elapsed_s: float  # wall time of the ngspice run
+    analysis_s: float  # ngspice's own transient analysis time (its "rusage trantime"), nan for an operating point
 
 
 @dataclass(frozen=True, slots=True)
@@ -73,7 +77,7 @@ class _Section:
 class _Circuit:
     """Spice node names and elements for one bus, built once per driver."""
 
-    def __init__(self, bus: Bus, driver_name: str | None) -> None:
+    def __init__(self, bus: Bus, driver_name: str | None, extra_positions_m: list[float]) -> None:
         plan = bus.plan
         self.bus = bus
         self.driver_name = driver_name or plan.driver.name
@@ -84,6 +88,7 @@ class _Circuit:
         positions = {0.0, plan.trunk_length_m, plan.driver.position_m}
         positions.update(n.position_m for n in plan.nodes)
         positions.update(t.position_m for t in plan.terminations)
+        positions.update(extra_positions_m)
         positions.update(b.position_m for b in plan.bias)
         self.trunk_positions = sorted(positions)
         self.trunk_node = {p: f"t{i}" for i, p in enumerate(self.trunk_positions)}
@@ -173,20 +178,22 @@ def bus_netlist(
     max_step_s: float | None = None,
     line_model: str = "ltra",
     output_path: str = "out.txt",
-    probes: tuple[str, ...] | None = None,
+    probes: Sequence[Probe] | None = None,
 ) -> tuple[str, dict[str, str]]:
-    """The bus as an ngspice netlist; returns (netlist text, receiver name -> spice node).
+    """The bus as an ngspice netlist; returns (netlist text, probe label -> spice node).
 
     `source_points` are PWL (time, open-circuit volts) corners of the driver; default one rising edge 0 ->
     open_circuit_v starting at t = 0 and ramping linearly for rise_time_s / 0.8.
     stop_time_s None: a DC operating point instead, the source at its last PWL value.
-    `probes`: the voltages written, by node name (the driving node's name is its own terminal, behind the
-    source resistance); default every receiver in plan order.
+    probes: what to write out (engine.solve.Probe: a node's input, a trunk position, the driver's pins);
+    default every node.
     """
     plan = bus.plan
     drv = bus.driver
     ramp_s = drv.rise_time_s / 0.8
-    circuit = _Circuit(bus, driver_name)
+    probes = [node_probe(n.name) for n in plan.nodes] if probes is None else list(probes)
+    extra = [p.position_m for p in probes if p.kind == "junction" and p.position_m is not None]
+    circuit = _Circuit(bus, driver_name, extra)
     lines = circuit.lines
     # Primary driver: a source when it drives, else its receiver's load.
     primary_end = circuit.stub_end("drv", plan.driver.position_m, plan.driver.stub_length_m)
@@ -232,9 +239,16 @@ def bus_netlist(
         lines.append(f"VS vs 0 PWL({pwl})")
         analysis = [f".tran {_fmt(max_step_s)} {_fmt(stop_time_s)} 0 {_fmt(max_step_s)}"]
     lines.append(f"RS vs {circuit.driver_node} {_fmt(max(drv.source_ohm, 1e-6))}")
-    lines += _line_elements(bus, circuit.sections, line_model, max_section_delay_s=ramp_s / 160.0)
-    spice_nodes = dict(circuit.receiver_nodes) | {circuit.driver_name: circuit.driver_node}
-    written = " ".join(f"v({spice_nodes[name]})" for name in (probes or tuple(n.name for n in plan.nodes)))
+    lines += _line_elements(bus, circuit.sections, line_model, ramp_s / 160.0)
+    probe_nodes = {}
+    for p in probes:
+        if p.kind == "node" and p.node is not None:
+            probe_nodes[p.name] = circuit.receiver_nodes[p.node]
+        elif p.kind == "junction" and p.position_m is not None:
+            probe_nodes[p.name] = circuit.trunk_node[p.position_m]
+        else:
+            probe_nodes[p.name] = circuit.driver_node
+    wanted = " ".join(f"v({node})" for node in probe_nodes.values())
     text = "\n".join(
         [
             f"* pairline reference transient, driver {circuit.driver_name}",
@@ -246,14 +260,15 @@ def bus_netlist(
             "set wr_vecnames",
             "option numdgt=12",
             "op" if stop_time_s is None else "run",
-            f"wrdata {output_path} {written}",
+            *([] if stop_time_s is None else ["rusage trantime"]),
+            f"wrdata {output_path} {wanted}",
             "quit",
             ".endc",
             ".end",
             "",
         ]
     )
-    return text, dict(circuit.receiver_nodes)
+    return text, probe_nodes
 
 
 def run_netlist(netlist: str, receiver_names: tuple[str, ...], timeout_s: float = 300.0) -> SpiceWaveforms:
@@ -282,7 +297,9 @@ def run_netlist(netlist: str, receiver_names: tuple[str, ...], timeout_s: float 
     v = data[:, 1:].T
     # ngspice may repeat a time point at breakpoints; keep the last value of each.
     keep = np.append(np.diff(time_s) > 0.0, True)
-    return SpiceWaveforms(time_s[keep], receiver_names, v[:, keep], netlist, elapsed_s)
+    found = re.search(r"Transient time\s*=\s*([0-9.eE+-]+)", proc.stdout)
+    analysis_s = float(found.group(1)) if found else float("nan")
+    return SpiceWaveforms(time_s[keep], receiver_names, v[:, keep], netlist, elapsed_s, analysis_s)
 
 
 def step_waveforms(
@@ -291,12 +308,19 @@ def step_waveforms(
     *,
     driver_name: str | None = None,
     line_model: str = "ltra",
-    probes: tuple[str, ...] | None = None,
+    probes: Sequence[Probe] | None = None,
+    max_step_s: float | None = None,
 ) -> SpiceWaveforms:
-    """Voltages (receivers, or the named probes) for one rising edge 0 -> open_circuit_v of the driver, ramp
-    starting at t = 0."""
-    text, _ = bus_netlist(bus, stop_time_s=stop_time_s, driver_name=driver_name, line_model=line_model, probes=probes)
-    return run_netlist(text, probes or tuple(n.name for n in bus.plan.nodes))
+    """Probe voltages (default every node) for one rising edge 0 -> open_circuit_v of the driver from t = 0."""
+    text, nodes = bus_netlist(
+        bus,
+        stop_time_s=stop_time_s,
+        driver_name=driver_name,
+        line_model=line_model,
+        probes=probes,
+        max_step_s=max_step_s,
+    )
+    return run_netlist(text, tuple(nodes))
 
 
 def pattern_waveforms(
@@ -308,28 +332,29 @@ def pattern_waveforms(
     start_s: float = 0.0,
     repeats: int = 1,
     line_model: str = "ltra",
-    probes: tuple[str, ...] | None = None,
+    probes: Sequence[Probe] | None = None,
+    max_step_s: float | None = None,
 ) -> SpiceWaveforms:
-    """Voltages (receivers, or the named probes) for a bit pattern (1 -> +V, 0 -> -V), each bit's ramp starting
-    start_s + k * bit_time_s after t = 0 and the line at rest at the first bit's level; the pattern is repeated
-    `repeats` times."""
+    """Probe voltages for a bit pattern (1 -> +V, 0 -> -V), each bit's ramp starting start_s + k * bit_time_s
+    after t = 0 and the line at rest at the first bit's level; the pattern is repeated `repeats` times."""
     v = bus.driver.open_circuit_v
     seq = bits * repeats
     levels = [v if b == "1" else -v for b in seq]
     points = _pwl_points(levels, bit_time_s, bus.driver.rise_time_s / 0.8, start_s)
     stop = start_s + len(seq) * bit_time_s
-    text, _ = bus_netlist(
-        bus, stop_time_s=stop, driver_name=driver_name, source_points=points, line_model=line_model, probes=probes
+    text, nodes = bus_netlist(
+        bus,
+        stop_time_s=stop,
+        driver_name=driver_name,
+        source_points=points,
+        line_model=line_model,
+        probes=probes,
+        max_step_s=max_step_s,
     )
-    return run_netlist(text, probes or tuple(n.name for n in bus.plan.nodes))
+    return run_netlist(text, tuple(nodes))
 
 
-def dc_levels(bus: Bus, *, driver_name: str | None = None) -> np.ndarray:
-    """Settled receiver voltages (n_receivers,) for the driver at +open_circuit_v: an ngspice operating point."""
-    text, _ = bus_netlist(bus, stop_time_s=None, driver_name=driver_name)
-    return run_netlist(text, tuple(n.name for n in bus.plan.nodes)).v_diff_v[:, -1]
-
-
-def resample(wave: SpiceWaveforms, time_s: np.ndarray) -> np.ndarray:
-    """ngspice's adaptive time points interpolated linearly onto another grid; (n_receivers, len(time_s))."""
-    return np.stack([np.interp(time_s, wave.time_s, row) for row in wave.v_diff_v])
+def dc_levels(bus: Bus, *, driver_name: str | None = None, probes: Sequence[Probe] | None = None) -> np.ndarray:
+    """Settled probe voltages (n_probes,) for the driver at +open_circuit_v: an ngspice operating point."""
+    text, nodes = bus_netlist(bus, stop_time_s=None, driver_name=driver_name, probes=probes)
+    return run_netlist(text, tuple(nodes)).v_diff_v[:, -1]

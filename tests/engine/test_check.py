@@ -46,6 +46,8 @@ ALL_RULE_IDS = {
     "length.loss",
     "power.resistor",
     "signal.integrity",
+    "signal.model",
+    "signal.tolerance",
     "signal.confirms",
 }
 
@@ -318,3 +320,37 @@ def test_length_text_metric_and_imperial():
     assert length_text(0.45) == "45 cm"
     assert length_text(100.0, "imperial") == "328 ft (100 m)"
     assert length_text(0.23, "imperial") == "9.06 in (23 cm)"
+
+
+def _slow_edges_doc(stub_m: float) -> dict:
+    """Two receivers on 20 m, slew-limited driver class (0.5 to 4 µs edges) pushed to 380 kbit/s."""
+    return {
+        "bit_rate_bps": 380e3,
+        "trunk_length_m": 20.0,
+        "driver": {"transceiver": "slew-2500ns"},
+        "nodes": [{"name": f"n{i}", "position_m": 10.0 * (i + 1), "stub_length_m": stub_m} for i in range(2)],
+        "terminations": [{"position_m": 0.0, "resistance_ohm": 120.0}, {"position_m": 20.0, "resistance_ohm": 120.0}],
+        "bias": {"position_m": 0.0, "pull_up_ohm": 560.0, "pull_down_ohm": 560.0},
+    }
+
+
+def test_the_quick_check_keeps_the_full_checks_verdict_with_or_without_the_tolerance_corners():
+    # Source: the band convention of every rule (engine.rules.margins): a tolerance corner can only turn a holding
+    # receiver tight. At its class's slowest edge (4 µs 10-90 %, a 5 µs ramp, longer than the 2.6 µs bit) a lone
+    # bit does not reach its level, so the only problem of this bus is its slow-edge corner: the quick check
+    # analyses the corners and is tight as the full check is.
+    corner_only = _slow_edges_doc(0.3)
+    full, quick = check_plan(corner_only), check_plan(corner_only, simulate_advice=False)
+    assert full.verdict is quick.verdict is Verdict.TIGHT
+    tight = [f for f in quick.findings if f.verdict is not Verdict.HOLDS]
+    assert {f.rule_id for f in tight} == {"signal.integrity"}
+    assert all("driver edge 4 µs" in f.fix for f in tight)
+    # With 60 m stubs some other rule fails as well; the quick check then leaves the corners out, and its verdict
+    # is still the full check's.
+    stubbed = _slow_edges_doc(60.0)
+    full, quick = check_plan(stubbed), check_plan(stubbed, simulate_advice=False)
+    assert any(f.verdict is not Verdict.HOLDS and f.rule_id != "signal.integrity" for f in quick.findings)
+    assert full.verdict is quick.verdict
+    assert full.simulation.tolerance is not None and quick.simulation.tolerance is None
+    note = next(f for f in quick.findings if f.rule_id == "signal.tolerance")
+    assert "Not analysed" in note.detail

@@ -58,6 +58,7 @@ def test_every_class_names_a_source_for_every_value(key):
     wanted = {
         "unit loads",
         "edge",
+        "edge range",
         "driver output",
         "output common mode",
         "failsafe and thresholds",
@@ -77,6 +78,8 @@ def test_every_class_meets_the_standard(key):
     assert -0.2 <= t.threshold_low_v < t.threshold_high_v <= 0.2
     # Source: TI SLLA628: a transition of at most 30 % of a bit at the class's rate.
     assert t.rise_time_s <= 0.3 / t.max_bit_rate_bps * (1 + 1e-9)
+    lo, hi = t.rise_time_range_s()
+    assert lo < t.rise_time_s < hi  # the typical edge inside the class's fastest and slowest
 
 
 # --- a device's values ------------------------------------------------------------------------------------------

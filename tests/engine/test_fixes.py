@@ -7,8 +7,10 @@ import pytest
 from pairline.engine.bus import build_bus
 from pairline.engine.findings import Verdict
 from pairline.engine.fixes import compute_fixes, judge_bus, judge_metrics
-from pairline.engine.metrics import ReceiverMetrics
+from pairline.engine.metrics import ReceiverMetrics, SampledLevels
 from pairline.engine.plan import load_plan
+from pairline.engine.rules.signal import banded
+from pairline.engine.tolerance import ReceiverTolerance
 from pairline.engine.units import SPEED_OF_LIGHT_M_PER_S
 
 CLEAN = ReceiverMetrics(
@@ -45,11 +47,22 @@ def test_eye_under_twice_the_threshold_breaks():
     assert judge_metrics(dataclasses.replace(CLEAN, eye_height_v=0.41)).verdict is not Verdict.BREAKS
 
 
-def test_recrossing_breaks_and_small_margin_is_tight():
+def test_recrossing_breaks():
     # Source: TIA/EIA-485-A ±200 mV threshold; a fall back through it is a false edge.
     assert judge_metrics(dataclasses.replace(CLEAN, threshold_recrossings=1)).verdict is Verdict.BREAKS
-    # common practice: another 200 mV beyond the threshold as noise margin.
-    assert judge_metrics(dataclasses.replace(CLEAN, min_sample_v=0.35)).verdict is Verdict.TIGHT
+
+
+def test_tight_band_is_the_worst_tolerance_corner():
+    # Source: TIA/EIA-485-A ±200 mV threshold: a sampled level of 0.35 V holds, 0.15 V does not; the band rule
+    # of every rule (nominal inside, corner beyond: tight) is the house convention.
+    nominal = judge_metrics(dataclasses.replace(CLEAN, min_sample_v=0.35))
+    corner = ReceiverTolerance("rx", CLEAN, SampledLevels(0.15, 1, 3.8, 0.2), "", None, None, "cable Z0", -0.2)
+    verdict, reasons = banded(nominal, corner)
+    assert verdict is Verdict.TIGHT
+    assert "worst tolerance corner" in reasons[0]
+    assert banded(nominal, dataclasses.replace(corner, worst=SampledLevels(1.9, 0, 3.8, 0.2)))[0] is Verdict.HOLDS
+    broken = judge_metrics(dataclasses.replace(CLEAN, threshold_recrossings=1))
+    assert banded(broken, corner)[0] is Verdict.BREAKS
 
 
 def _stub_bus(stub_m: float, rate_bps: float = 1e6, edge: str = "edge-25ns", **extra):

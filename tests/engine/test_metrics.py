@@ -1,12 +1,12 @@
-"""Receiver metrics against closed forms: matched line, lattice-diagram ringing, DC levels."""
+"""Receiver metrics against closed forms: matched line, lattice-diagram ringing, DC levels, the sampling window."""
 
 import numpy as np
 import pytest
 from pairline.engine.bus import build_bus
-from pairline.engine.metrics import RECEIVER_THRESHOLD_V, driver_metrics, propagation_delay_s, receiver_metrics
+from pairline.engine.metrics import RECEIVER_THRESHOLD_V, SamplingWindow, driver_metrics, receiver_metrics
 from pairline.engine.plan import load_plan
 from pairline.engine.units import SPEED_OF_LIGHT_M_PER_S
-from pairline.engine.waveform import edge_duration_s, prbs_bits, step_responses
+from pairline.engine.waveform import edge_duration_s, prbs_bits
 
 from tests.engine.lines import VF, probed_line
 
@@ -27,31 +27,59 @@ def test_receiver_threshold_is_200_mv():
     assert pytest.approx(0.2) == RECEIVER_THRESHOLD_V
 
 
+def test_default_window_is_the_uart_mid_bit_and_two_sixteenths():
+    # Source: UART 16x oversampling, bit sampled 8 of 16 sample clocks after its start edge, majority of samples
+    # 7, 8, 9 (Microchip "UART start detection and data sampling"; TI SLAU846A); +/-2/16 of a bit: common practice.
+    window = SamplingWindow()
+    assert window.centre_ui == pytest.approx(8 / 16)
+    assert window.half_width_ui == pytest.approx(2 / 16)
+
+
 def test_matched_line_has_a_clean_wide_open_eye():
     # Source: closed form, source = load = Z0: V_far = V_oc / 2 = 1 V, no reflection (Johnson & Graham,
     # High-Speed Digital Design, ch. 4); a bit swings -1 V -> +1 V, so the inner eye is 2 V high.
     far = receiver_metrics(_line(120.0, 120.0))[1]
     assert far.amplitude_v == pytest.approx(1.0, rel=1e-6)
-    assert far.overshoot_v == pytest.approx(0.0, abs=0.005)  # volts
-    assert far.undershoot_v == pytest.approx(0.0, abs=0.005)  # volts
+    assert far.overshoot_v == pytest.approx(0.0, abs=0.002)  # volts
+    assert far.undershoot_v == pytest.approx(0.0, abs=0.002)  # volts
     assert far.threshold_recrossings == 0
     assert far.sample_errors == 0
-    assert far.eye_height_v == pytest.approx(2.0, abs=1e-3)  # volts
-    assert far.jitter_s == pytest.approx(0.0, abs=T_E / 8)  # one stored sample
-    # Source: closed form, the ramp from -1 V reaches +0.2 V after 60 % of its 0-100 % time (linear edge),
-    # counted from the edge's arrival; one stored sample (T_e / 8) allowed.
-    assert far.settle_time_s == pytest.approx(0.6 * T_E, abs=T_E / 8)
-    # Source: closed form, the eye is open except while the ramp crosses the +/-200 mV band (20 % of T_e).
-    assert far.eye_width_s == pytest.approx(far.bit_time_s - 0.2 * T_E, abs=T_E / 4)
+    assert far.eye_height_v == pytest.approx(2.0, abs=2e-3)  # volts
+    assert far.min_sample_v == pytest.approx(1.0, abs=2e-3)  # volts
+    assert far.margin_v == pytest.approx(0.8, abs=2e-3)  # volts
+    assert far.jitter_s == pytest.approx(0.0, abs=T_E / 100)
+    # Source: closed form, the eye is open except while a ramp crosses the +/-200 mV band, 20 % of T_e each edge.
+    assert far.eye_width_s == pytest.approx(far.bit_time_s - 0.2 * T_E, abs=T_E / 100)
+    # Source: closed form, the ramp from -1 V reaches +0.2 V 60 % into its 0-100 % time, counted from its start;
+    # the sampling instant is half a bit after the 0 V crossing (50 % of the ramp).
+    assert far.settle_time_s == pytest.approx(0.6 * T_E, abs=T_E / 100)
+    assert far.settle_margin_s == pytest.approx(0.5 * T_E + 0.5 * far.bit_time_s - 0.6 * T_E, abs=T_E / 100)
 
 
-def test_propagation_delay_is_the_line_delay():
-    # Source: definition of velocity factor, t = l / (VF c0); on a matched line the far end's 50 % point
-    # trails the driver's by exactly that.
-    step = step_responses(_line(120.0, 120.0))
-    delays = propagation_delay_s(step)[0]
-    assert delays[0] == pytest.approx(0.0, abs=T_E / 50)
-    assert delays[1] == pytest.approx(DELAY_S, abs=T_E / 50)
+def test_delay_is_from_the_drivers_0v_crossing_to_the_receivers():
+    # Source: definition of velocity factor, t = l / (VF c0); on a matched line the far end's 0 V crossing (the
+    # middle of its -V -> +V ramp) trails the driver's by exactly that.
+    near, far = receiver_metrics(_line(120.0, 120.0))
+    assert near.propagation_delay_s == pytest.approx(0.0, abs=T_E / 200)
+    assert far.propagation_delay_s == pytest.approx(DELAY_S, abs=T_E / 200)
+
+
+def test_a_dip_inside_the_sampling_window_fails_what_the_mid_bit_sample_passes():
+    # Source: lattice diagram (Johnson & Graham, High-Speed Digital Design, ch. 4): R_s = 10 ohm (G_S = -11/13) on
+    # 120 ohm, open far end: a -2 V -> +2 V edge gives far-end plateaus of 2 round trips each, 5.385, -0.865,
+    # 4.422 V ... (-2 + 2 x 3.692, 0.568, 3.211 V). A bit of 9 one-way delays puts the UART's mid-bit sample on
+    # the 4.422 V plateau (a pass), while its +/-2/16 window reaches back into the -0.865 V one (a fail).
+    bus = probed_line(10.0, None, bit_rate_bps=1.0 / (9.0 * DELAY_S))
+    far = receiver_metrics(bus, pattern="011")[1]
+    assert far.sample_errors == 1
+    assert far.min_sample_v == pytest.approx(-0.865, abs=0.01)  # volts
+    assert far.margin_v < 0.0
+    # Source: same diagram; at the instant alone (no window) the 1 sits on the 4.422 V plateau and the 0 before
+    # it at rest, -2 V, so nothing fails and the inner eye there is 4.422 + 2 V.
+    point = receiver_metrics(bus, pattern="011", window=SamplingWindow(0.5, 0.0))[1]
+    assert point.sample_errors == 0
+    assert point.eye_height_v == pytest.approx(4.422 + 2.0, abs=0.01)  # volts
+    assert far.eye_height_v == pytest.approx(4.422 + 2.0, abs=0.01)  # volts: the same instant
 
 
 def test_open_line_overshoot_and_ringback_follow_the_lattice_diagram():
@@ -64,23 +92,24 @@ def test_open_line_overshoot_and_ringback_follow_the_lattice_diagram():
     assert far.overshoot_v == pytest.approx(2.0, abs=0.01)  # volts
     assert far.undershoot_v == pytest.approx(1.0, abs=0.01)  # volts
     assert far.threshold_recrossings == 0
-    assert far.eye_height_v == pytest.approx(4.0, abs=1e-3)  # volts, settled: +/- 2 V
+    assert far.eye_height_v == pytest.approx(4.0, abs=2e-3)  # volts, settled: +/- 2 V
 
 
 def test_ringing_back_through_the_threshold_counts_false_bits():
     # Source: lattice diagram as above with R_s = 10 ohm (G_S = -110/130), open end: far-end step plateaus
     # 3.692, 0.568, 3.211, 0.975, 2.867, 1.266 V ...; a -2 V -> +2 V bit gives 5.38, -0.86, 4.42, -0.05, 3.73,
     # 0.53 V: twice per edge the signal falls back below +0.2 V, each a possible false bit.
-    bits = prbs_bits() + "1"  # the last window is cut short by the line delay: no edge in it
+    bits = prbs_bits()
     far = receiver_metrics(_line(10.0, bit_rate_bps=10e3), pattern=bits)[1]
     assert far.threshold_recrossings == 2 * _edges(bits)
     assert far.overshoot_v == pytest.approx(2 * 3.692 - 2 - 2.0, abs=0.01)  # volts
 
 
 def test_sampled_levels_follow_the_dc_divider():
-    # Source: closed form, DC divider V_oc R_L / (R_s + R_L) = 2 * 360 / 400 = 1.8 V for a settled bit.
-    far = receiver_metrics(_line(40.0, 360.0))[1]
-    assert far.min_sample_v == pytest.approx(1.8, abs=1e-3)  # volts
+    # Source: closed form, DC divider V_oc R_L / (R_s + R_L) = 2 * 360 / 400 = 1.8 V for a settled bit; at
+    # 10 kbit/s the ringing (x 1/4 per 0.95 us round trip) is long gone by the window's start.
+    far = receiver_metrics(_line(40.0, 360.0, bit_rate_bps=10e3))[1]
+    assert far.min_sample_v == pytest.approx(1.8, abs=2e-3)  # volts
     assert far.sample_errors == 0
     assert far.settle_margin_s > 0
 
@@ -105,8 +134,8 @@ def test_every_driver_gets_metrics_equal_to_its_own_run():
     alone = receiver_metrics(bus, driver_name="far")
     for a, b in zip(both["far"], alone, strict=True):
         assert a.receiver == b.receiver
-        assert a.eye_height_v == pytest.approx(b.eye_height_v, abs=1e-6)  # volts
-        assert a.overshoot_v == pytest.approx(b.overshoot_v, abs=1e-6)  # volts
+        assert a.eye_height_v == pytest.approx(b.eye_height_v, abs=2e-3)  # volts
+        assert a.overshoot_v == pytest.approx(b.overshoot_v, abs=2e-3)  # volts
     # Source: closed form, the far node drives through its own terminal into the 120 ohm terminator, with the
     # listening primary driver's receiver (2 x 12 kOhm / 0.25 UL across the pair, TIA-485-A unit load per line)
     # across the lossless line: V = V_oc R / (40 + R), R = 120 || 96 kOhm.

@@ -1,73 +1,78 @@
-"""Edge responses and bit-pattern waveforms: closed forms (matched line, open line, lattice diagram)."""
+"""Edge responses and bit-pattern waveforms: closed forms (matched line, open line, lattice diagram), at any time."""
 
 import numpy as np
 import pytest
 from pairline.engine.bus import build_bus
 from pairline.engine.plan import BusInputError, load_plan
-from pairline.engine.solve import dc_transfer
+from pairline.engine.solve import dc_transfer, driver_pin_probe, junction_probe, node_probe
 from pairline.engine.units import SPEED_OF_LIGHT_M_PER_S
-from pairline.engine.waveform import edge_duration_s, prbs_bits, simulate_pattern, step_responses
+from pairline.engine.waveform import (
+    edge_duration_s,
+    pattern_at,
+    prbs_bits,
+    simulate_pattern,
+    step_responses,
+)
 
 from tests.engine.lines import VF, probed_line
 
-
-def _at(resp, receiver, t_s):
-    return np.interp(t_s, resp.time_s, resp.v_diff_v[0, receiver])
+T_E = edge_duration_s(10e-9)
 
 
 def _delay_s(length_m=100.0):
     return length_m / (VF * SPEED_OF_LIGHT_M_PER_S)
 
 
-def test_matched_line_shows_no_reflection():
-    # Source: closed form, source and load both equal to Z0: the far end sees V/2 once, delayed by l / v, and
-    # nothing after (Johnson & Graham, High-Speed Digital Design, ch. 4, matched termination).
+def _ramp(t_s, start_s, height_v):
+    return height_v * np.clip((t_s - start_s) / T_E, 0.0, 1.0)
+
+
+def test_matched_line_is_the_ramp_delayed_at_every_instant():
+    # Source: closed form, source and load both equal to Z0: each point of the line sees V_oc / 2 once, delayed by
+    # x / v, and nothing after (Johnson & Graham, High-Speed Digital Design, ch. 4, matched termination).
     bus = probed_line(source_ohm=120.0, far_ohm=120.0)
-    resp = step_responses(bus)
-    t_e = edge_duration_s(10e-9)
-    ideal = 1.0 * np.clip((resp.time_s - _delay_s()) / t_e, 0.0, 1.0)
-    away = np.abs(resp.time_s - _delay_s()) > 0.5 * t_e  # away from the arrival's ramp corners
-    away &= np.abs(resp.time_s - _delay_s() - t_e) > 0.5 * t_e
-    np.testing.assert_allclose(resp.v_diff_v[0, 1, away], ideal[away], atol=1e-3)  # volts, of a 1 V step
-    # the low-pass only rounds the ramp's corners: within 1.5 % of the step anywhere
-    np.testing.assert_allclose(resp.v_diff_v[0, 1], ideal, atol=0.015)
+    probes = [driver_pin_probe(), junction_probe(40.0), node_probe("far")]
+    resp = step_responses(bus, probes=probes)
+    t = np.linspace(0.0, 3.0 * _delay_s(), 30_001)  # 0.16 ns apart: every ramp corner is approached closely
+    ours = resp.at(t)[0]
+    for k, x_m in enumerate((0.0, 40.0, 100.0)):
+        # 0.2 % of the 1 V swing, corners included
+        np.testing.assert_allclose(ours[k], _ramp(t, _delay_s(x_m), 1.0), atol=0.002, err_msg=probes[k].name)
     assert resp.settled
 
 
 def test_open_line_doubles_the_incident_wave_after_one_delay():
     # Source: closed form, open end reflects +1: V_far = 2 V_oc Z0 / (Z0 + R_s) (Johnson & Graham,
     # High-Speed Digital Design, ch. 4); before one delay nothing has arrived.
-    bus = probed_line(source_ohm=40.0)
-    resp = step_responses(bus)
+    resp = step_responses(probed_line(source_ohm=40.0))
     incident_v = 2.0 * 120.0 / (120.0 + 40.0)
-    t_e = edge_duration_s(10e-9)
-    assert _at(resp, 1, 0.9 * _delay_s()) == pytest.approx(0.0, abs=1e-4)  # volts
-    assert _at(resp, 1, _delay_s() + 1.5 * t_e) == pytest.approx(2.0 * incident_v, abs=1e-3)  # volts
-    assert _at(resp, 0, 0.5 * _delay_s()) == pytest.approx(incident_v, abs=1e-3)  # volts
+    near, far = resp.at(np.array([0.5 * _delay_s(), 0.9 * _delay_s(), _delay_s() + T_E, 1.9 * _delay_s()]))[0]
+    assert far[1] == pytest.approx(0.0, abs=1e-6)  # volts
+    assert far[2] == pytest.approx(2.0 * incident_v, abs=2e-3)  # volts, at the ramp's end
+    assert far[3] == pytest.approx(2.0 * incident_v, abs=2e-3)  # volts
+    assert near[0] == pytest.approx(incident_v, abs=2e-3)  # volts
 
 
-@pytest.mark.parametrize(("source_ohm", "far_ohm"), [(40.0, 360.0), (10.0, 30.0), (300.0, None)])
-def test_lattice_levels_round_trip_by_round_trip(source_ohm, far_ohm):
+@pytest.mark.parametrize(("source_ohm", "far_ohm"), [(40.0, 360.0), (10.0, 30.0), (300.0, None), (10.0, None)])
+def test_lattice_waveform_at_every_instant(source_ohm, far_ohm):
     # Source: lattice (Bergeron) diagram of a lossless line between mismatched source and load
     # (Johnson & Graham, High-Speed Digital Design, ch. 4): incident V_oc Z0 / (Z0 + R_s), reflections
-    # G_L = (R_L - Z0) / (R_L + Z0) and G_S = (R_s - Z0) / (R_s + Z0); each round trip multiplies by G_L G_S.
-    bus = probed_line(source_ohm=source_ohm, far_ohm=far_ohm)
-    resp = step_responses(bus)
+    # G_L = (R_L - Z0) / (R_L + Z0) and G_S = (R_s - Z0) / (R_s + Z0); each arrival is the driver's ramp.
+    resp = step_responses(probed_line(source_ohm=source_ohm, far_ohm=far_ohm))
     z0, v_oc, t_d = 120.0, 2.0, _delay_s()
     g_l = 1.0 if far_ohm is None else (far_ohm - z0) / (far_ohm + z0)
     g_s = (source_ohm - z0) / (source_ohm + z0)
     incident = v_oc * z0 / (z0 + source_ohm)
-    t_e = edge_duration_s(10e-9)
-    far = near = 0.0
-    near = incident
-    for k in range(6):
+    t = np.linspace(0.0, 24.0 * t_d, 200_001)
+    far = np.zeros_like(t)
+    near = _ramp(t, 0.0, incident)
+    for k in range(12):
         wave = incident * (g_l * g_s) ** k
-        far += wave * (1.0 + g_l)
-        # plateau after the k-th arrival at the far end, before the next one
-        assert _at(resp, 1, (2 * k + 1) * t_d + 1.5 * t_e) == pytest.approx(far, abs=1e-3), k  # volts
-        # the near end moves when the reflected wave returns, one delay later
-        assert _at(resp, 0, (2 * k + 1) * t_d - 0.5 * t_e) == pytest.approx(near, abs=1e-3), k  # volts
-        near += wave * g_l * (1.0 + g_s)
+        far += _ramp(t, (2 * k + 1) * t_d, wave * (1.0 + g_l))
+        near += _ramp(t, (2 * k + 2) * t_d, wave * g_l * (1.0 + g_s))
+    ours = resp.at(t)[0]
+    for got, want in ((ours[0], near), (ours[1], far)):
+        np.testing.assert_allclose(got, want, atol=0.004 * np.ptp(want))  # 0.4 % of the swing, corners included
     # Source: closed form, DC divider V_oc R_L / (R_s + R_L); settled level from the exact DC solve
     dc = v_oc if far_ohm is None else v_oc * far_ohm / (source_ohm + far_ohm)
     np.testing.assert_allclose(resp.v_final_v[0], dc, rtol=1e-6)
@@ -83,21 +88,18 @@ def test_long_lossy_line_settles_to_the_resistive_divider():
     assert resp.v_final_v[0, 1] / 2.0 == pytest.approx(0.373, abs=0.001)
     assert resp.settled
     # the computed response ends on the DC level (the transform and the DC solve agree)
-    assert resp.v_diff_v[0, 1, -1] == pytest.approx(resp.v_final_v[0, 1], abs=2.0 * 1e-4)  # volts
+    assert resp.v_diff_v[0, 1, -1] == pytest.approx(resp.v_final_v[0, 1], abs=2.0 * 1e-3)  # volts
 
 
 def test_pattern_is_the_superposition_of_edges():
     # Source: linearity (superposition): bits 0,0,1,1 = rest at -V, then one 2V rising edge at 2 T_bit.
     bus = probed_line(source_ohm=40.0, far_ohm=200.0)
     step = step_responses(bus)
-    wave = simulate_pattern(bus, "0011")
+    wave = simulate_pattern(bus, "0011", step=step)
     t_bit = wave.bit_time_s
-    v_final = step.v_final_v[0]
-    for r in range(2):
-        expected = -v_final[r] + 2.0 * np.interp(wave.time_s - 2 * t_bit, step.time_s, step.v_diff_v[0, r])
-        expected[wave.time_s < 2 * t_bit] = -v_final[r]
-        np.testing.assert_allclose(wave.v_diff_v[r], expected, atol=1e-3 * 2.0)  # volts, 0.1 % of V_oc
-    np.testing.assert_allclose(wave.sample_times_s, (np.arange(4) + 0.5) * t_bit, rtol=1e-12)
+    expected = -step.v_final_v[0][:, None] + 2.0 * step.at(wave.time_s - 2 * t_bit)[0]
+    np.testing.assert_allclose(wave.v_diff_v, expected, atol=2e-3 * 2.0)  # volts, 0.1 % of V_oc per side
+    np.testing.assert_allclose(pattern_at(step, "0011", t_bit, wave.time_s), expected, atol=1e-12)
 
 
 def test_slow_rate_with_fast_edges_on_a_long_line_stays_small_and_settles():
@@ -114,11 +116,9 @@ def test_slow_rate_with_fast_edges_on_a_long_line_stays_small_and_settles():
     wave = simulate_pattern(bus)
     # the bus settles within one bit, so the shortest default PRBS (order 5, 2^5 - 1 bits) holds every case
     assert wave.bits == prbs_bits(31, order=5)
-    # design budget of engine/waveform.py (MAX_OFFSETS), not a physical value: 833 us / 2 ns would be 400 000
-    assert wave.offsets_s.size <= 600
-    mid = np.searchsorted(wave.time_s, wave.sample_times_s)
     levels = np.where(np.array(list(wave.bits)) == "1", 1.0, -1.0)
-    np.testing.assert_allclose(wave.v_diff_v[1, mid], levels * 0.373 * 2.0, atol=0.002 * 2.0)  # volts
+    at_far = np.interp(wave.sample_times_s, wave.time_s, wave.v_diff_v[1])
+    np.testing.assert_allclose(at_far, levels * 0.373 * 2.0, atol=0.002 * 2.0)  # volts
 
 
 def test_fast_rate_short_terminated_bus_samples_at_the_dc_levels():
@@ -128,9 +128,9 @@ def test_fast_rate_short_terminated_bus_samples_at_the_dc_levels():
     wave = simulate_pattern(bus, "0101100111010")
     levels = np.where(np.array(list(wave.bits)) == "1", 1.0, -1.0)
     near = np.interp(wave.sample_times_s, wave.time_s, wave.v_diff_v[0])
-    np.testing.assert_allclose(near, levels, atol=0.01)  # volts
+    np.testing.assert_allclose(near, levels, atol=0.004)  # volts
     far = np.interp(wave.sample_times_s[:-1] + _delay_s(10.0), wave.time_s, wave.v_diff_v[1])
-    np.testing.assert_allclose(far, levels[:-1], atol=0.01)  # volts
+    np.testing.assert_allclose(far, levels[:-1], atol=0.004)  # volts
 
 
 def test_every_driver_in_one_batch_equals_each_alone():
@@ -140,9 +140,8 @@ def test_every_driver_in_one_batch_equals_each_alone():
     bus = build_bus(load_plan(doc))
     both = step_responses(bus, ["driver", "far"])
     alone = step_responses(bus, ["far"])
-    np.testing.assert_allclose(
-        np.interp(alone.time_s, both.time_s, both.v_diff_v[1, 0]), alone.v_diff_v[0, 0], atol=1e-3
-    )
+    t = np.linspace(0.0, 2e-6, 4001)
+    np.testing.assert_allclose(both.for_driver("far").at(t), alone.at(t), atol=2e-3)  # volts
     np.testing.assert_allclose(both.v_final_v, 2.0 * dc_transfer(bus, ["driver", "far"]), rtol=1e-12)
 
 
@@ -152,9 +151,28 @@ def test_watched_receivers_alone_equal_their_rows_of_the_whole_bus():
     every = step_responses(bus)
     far = step_responses(bus, receiver_names=["far"])
     assert far.receiver_names == ("far",)
-    np.testing.assert_array_equal(far.time_s, every.time_s)
-    np.testing.assert_allclose(far.v_diff_v[0, 0], every.v_diff_v[0, 1], atol=1e-12)  # volts
+    t = np.linspace(0.0, 3e-6, 3001)
+    np.testing.assert_allclose(far.at(t)[0, 0], every.at(t)[0, 1], atol=2e-3)  # volts
     np.testing.assert_allclose(far.v_final_v[0, 0], every.v_final_v[0, 1], rtol=1e-12)
+
+
+def test_driver_pin_behind_its_stub_sees_the_stub_return():
+    # Source: lattice diagram at the driver's pins: a 10 m stub of Z0 into a matched trunk (two Z0 ends, Z0 / 2):
+    # the pins first see V_oc Z0 / (Z0 + R_s), then after a stub round trip the reflection G = (Z0/2 - Z0) /
+    # (Z0/2 + Z0) = -1/3 of it, re-reflected at the source by G_S (Johnson & Graham, High-Speed Digital Design,
+    # ch. 4). R_s = Z0, so G_S = 0 and the pins settle there.
+    doc = probed_line(source_ohm=120.0, far_ohm=120.0).plan.model_dump(mode="json")
+    doc["driver"].update(position_m=50.0, stub_length_m=10.0)
+    doc["terminations"].append({"position_m": 0.0, "resistance_ohm": 120.0})
+    resp = step_responses(build_bus(load_plan(doc)), probes=[driver_pin_probe(), junction_probe(50.0)])
+    round_trip = 2.0 * _delay_s(10.0)
+    t = np.linspace(0.0, 2.0 * round_trip, 4001)
+    pin = _ramp(t, 0.0, 1.0) + _ramp(t, round_trip, -1.0 / 3.0)
+    # Source: same diagram, the trunk junction sees the stub's wave transmitted with 1 + G = 2/3, one stub delay on
+    junction = _ramp(t, 0.5 * round_trip, 2.0 / 3.0)
+    ours = resp.at(t)[0]
+    np.testing.assert_allclose(ours[0], pin, atol=0.004)  # volts, of a 1 V swing
+    np.testing.assert_allclose(ours[1], junction, atol=0.004)  # volts
 
 
 @pytest.mark.parametrize("order", [4, 5, 6, 7, 9])
@@ -200,20 +218,21 @@ def test_bad_inputs_are_clear_errors():
     with pytest.raises(BusInputError) as err:
         simulate_pattern(bus, "0101", driver_name="far")
     assert err.value.problems[0].field == "driver_name"
+    with pytest.raises(BusInputError) as err:
+        step_responses(bus, probes=[junction_probe(150.0)])
+    assert err.value.problems[0].field == "probes.0.position_m"
 
 
 def test_lossless_ringing_that_never_decays_is_not_called_settled():
     # Source: lattice diagram, 0-ohm driver (G_S = -1) and open end (G_L = +1): |G_S G_L| = 1, so the
     # ringing never decays (Johnson & Graham, High-Speed Digital Design, ch. 4).
-    bus = probed_line(source_ohm=0.0)
-    resp = step_responses(bus, max_time_s=100e-6)
+    resp = step_responses(probed_line(source_ohm=0.0), max_time_s=20e-6)
     assert not resp.settled
 
 
 def test_slow_edge_on_a_short_line_settles():
     # Source: common practice, a line whose delay is far below the edge (TSB-89 "electrically short") shows no
     # ringing; the response settles on the DC divider well inside the run.
-    bus = probed_line(source_ohm=40.0, length_m=12.0, rise_s=2.5e-6)
-    resp = step_responses(bus)
+    resp = step_responses(probed_line(source_ohm=40.0, length_m=12.0, rise_s=2.5e-6))
     assert resp.settled
     np.testing.assert_allclose(resp.v_diff_v[0, :, -1], resp.v_final_v[0], atol=2e-3)  # volts

@@ -16,6 +16,7 @@ from pairline.server.store import (
     SaveCount,
     SqliteStore,
     StoreError,
+    canonical_json,
     looks_like_plan_id,
     open_store,
 )
@@ -175,6 +176,31 @@ def test_captures_count_as_saves_with_their_bytes(open_test_store):
     assert store.saves_since("2001:db8::1", since_start) == SaveCount(1, capture_bytes, minute_later)
 
 
+def test_a_plans_captures_are_listed_newest_first_without_their_file_and_capped(open_test_store):
+    clock = FakeClock()
+    store = open_test_store(clock)
+    plan_id = store.save_plan(PLAN, engine_version="t")
+    other_plan = store.save_plan(PLAN, engine_version="t")
+    assert store.captures_of(plan_id, 50) == ([], 0)
+    ids = []
+    places = [{"at": "a"}, {"at": None, "at_position_m": 12.5}, {"at": "c"}, {"at": "c"}]
+    for k, place in enumerate(places):
+        clock.now_s = T0 + 60.0 * min(k, 2)  # the last two saved within the same microsecond
+        ids.append(store.save_capture(plan_id, CAPTURE | place, engine_version="t"))
+    store.save_capture(other_plan, CAPTURE, engine_version="t")
+    listed, total = open_test_store().captures_of(plan_id, 3)
+    assert total == 4
+    assert [c.id for c in listed] == [ids[3], ids[2], ids[1]]  # ties keep the order they were saved in
+    assert all(c.plan_id == plan_id for c in listed)
+    assert (listed[0].at, listed[0].at_position_m) == ("c", None)
+    assert (listed[2].at, listed[2].at_position_m) == (None, 12.5)
+    # Source: T0 + 60 s is 2027-01-15T08:01:00Z (Unix time, by hand).
+    assert listed[2].created_at == "2027-01-15T08:01:00+00:00"
+    assert [c.id for c in store.captures_of(plan_id, 50)[0]] == ids[::-1]
+    assert store.captures_of(other_plan, 50)[1] == 1
+    assert store.captures_of("nope", 50) == ([], 0)
+
+
 def test_cache_values_replace_and_expire(open_test_store):
     clock = FakeClock()
     store = open_test_store(clock)
@@ -242,15 +268,62 @@ def test_a_database_from_a_newer_pairline_is_refused(open_test_store):
         open_test_store()
 
 
-def test_plans_are_indexed_by_parent(open_test_store):
-    store = open_test_store()
+def _index_definitions(store: PlanStore, table: str) -> list[str]:
     if isinstance(store, SqliteStore):
-        found = raw(
-            store, "SELECT sql FROM sqlite_master WHERE type = 'index' AND tbl_name = 'plans' AND sql IS NOT NULL"
-        )
+        sql = "SELECT sql FROM sqlite_master WHERE type = 'index' AND tbl_name = ? AND sql IS NOT NULL"
     else:
-        found = raw(store, "SELECT indexdef FROM pg_indexes WHERE tablename = 'plans'")
-    assert any("(parent_id)" in definition for (definition,) in found)
+        sql = "SELECT indexdef FROM pg_indexes WHERE tablename = ?"
+    return [definition for (definition,) in raw(store, sql, (table,))]
+
+
+def test_plans_are_indexed_by_parent_and_captures_by_plan(open_test_store):
+    store = open_test_store()
+    assert any("(parent_id)" in definition for definition in _index_definitions(store, "plans"))
+    assert any("(plan_id, created_at, id," in definition for definition in _index_definitions(store, "captures"))
+
+
+@pytest.mark.parametrize("kind", ["sqlite", "postgresql"])
+def test_captures_saved_before_the_list_existed_are_listed_with_where_they_were_probed(kind, tmp_path, request):
+    if kind == "sqlite":
+        target: object = tmp_path / "plans.db"
+        newest: type[PlanStore] = SqliteStore
+    else:
+        target = request.getfixturevalue("postgres_url")
+        from pairline.server.store.postgres import PostgresStore
+
+        newest = PostgresStore
+    before = type("Before", (newest,), {"migrations": newest.migrations[:5]})  # type: ignore[attr-defined]
+    old = before(target)
+    plan_id = old.save_plan(PLAN, engine_version="t")
+    on_trunk = CAPTURE | {"at": None, "at_position_m": 12.5}
+    for capture_id, capture, moment in (("oldcaptureoldcap", CAPTURE, T0), ("oldcapturetrunk1", on_trunk, T0 + 1)):
+        raw(  # a capture row as the schema before the list stored it
+            old,
+            "INSERT INTO captures (id, plan_id, capture_json, engine_version, created_at, client, capture_bytes)"
+            " VALUES (?, ?, ?, ?, ?, ?, ?)",
+            (
+                capture_id,
+                plan_id,
+                canonical_json(capture),
+                "t",
+                old._time_param(datetime.fromtimestamp(moment, UTC)),
+                None,
+                1,
+            ),
+        )
+    old.close()
+    store = newest(target)  # type: ignore[call-arg]
+    try:
+        assert store.schema_version() == NEWEST
+        listed, total = store.captures_of(plan_id, 50)
+        assert total == 2
+        assert [(c.id, c.at, c.at_position_m) for c in listed] == [
+            ("oldcapturetrunk1", None, 12.5),
+            ("oldcaptureoldcap", "a", None),
+        ]
+        assert store.get_capture(plan_id, "oldcaptureoldcap").capture == CAPTURE
+    finally:
+        store.close()
 
 
 def test_sqlite_runs_in_write_ahead_log_mode(tmp_path):
