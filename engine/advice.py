@@ -101,6 +101,7 @@ def advise(run: RuleRun, *, simulate: bool = True) -> Advice:
             break
         # The simulation broke what the design rules could not see: try the next kind of terminators, and give
         # no advice rather than advice that leaves more broken.
+        assert design is not None  # changes came from it
         skip.add(design.kind)
         design = best_design(bus, frozenset(skip))
     return Advice(

@@ -430,7 +430,7 @@ def best_design(bus: Bus, skip: frozenset[str] = frozenset()) -> Design | None:
         for tier in range(3):
             if tier and best is not None and best.breaks == 0:
                 break
-            places = [(p,) for p in bias_positions(plan)]
+            places: list[tuple[float, ...]] = [(p,) for p in bias_positions(plan)]
             if len(own) > 1:
                 places.insert(0, tuple(b.position_m for b in own))  # the plan's networks, resized together
             for order, positions in enumerate(places, start=1):

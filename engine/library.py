@@ -211,8 +211,8 @@ _S_REINFORCED = (
     "5 kVrms 1-minute withstand with reinforced insulation to IEC 60747-17 (V_IOTM 7071 Vpk = 5 kVrms x sqrt 2, "
     "TI SLLSF22H); reinforced: one system equal to double insulation (TI blog 'Our isolators are certified')"
 )
-_IDLE_WINDOW = {"failsafe": "idle_bus", "threshold_low_v": -0.200, "threshold_high_v": -0.010}
-_OPEN_WINDOW = {"failsafe": "open_short"}
+_IDLE_WINDOW: dict[str, Any] = {"failsafe": "idle_bus", "threshold_low_v": -0.200, "threshold_high_v": -0.010}
+_OPEN_WINDOW: dict[str, Any] = {"failsafe": "open_short"}
 
 
 # Fastest and slowest edge of a class, with where they come from (engine.tolerance); the rest take FAST_EDGE_RANGE.

@@ -188,8 +188,8 @@ def bill_of_materials(original: Bus, advice: Advice, summary: PlanSummary) -> tu
             )
         )
     networks: dict[tuple[float, float, float, str], list[float]] = {}
-    for spec, b in zip(sorted(plan.bias, key=lambda b: b.position_m), summary.bias, strict=True):
-        note = _change_note(advice.changes, "bias", spec)
+    for network, b in zip(sorted(plan.bias, key=lambda b: b.position_m), summary.bias, strict=True):
+        note = _change_note(advice.changes, "bias", network)
         networks.setdefault((b.pull_up_ohm, b.pull_down_ohm, b.supply_v, note), []).append(b.position_m)
     for (up, down, supply_v, note), where in networks.items():
         b = summary.bias[0]

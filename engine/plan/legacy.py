@@ -102,7 +102,8 @@ def upgrade_v1(v1: dict[str, Any]) -> dict[str, Any]:
     values kept where version 2 has them, so the editor can show it with version 2's field names."""
     doc = {key: value for key, value in v1.items() if key not in ("format_version", "driver", "nodes", "bias")}
     doc["format_version"] = 2
-    drv = v1.get("driver") if isinstance(v1.get("driver"), dict) else {}
+    raw_driver, raw_nodes = v1.get("driver"), v1.get("nodes")
+    drv: dict[str, Any] = raw_driver if isinstance(raw_driver, dict) else {}
     key = drv.get("transceiver", DEFAULT_DEVICE)
     base = TRANSCEIVERS.get(key, STANDARD_MINIMUM) if isinstance(key, str) else STANDARD_MINIMUM
     driven = {k: drv[k] for k in _DRIVER_VALUES if drv.get(k) is not None}
@@ -116,7 +117,7 @@ def upgrade_v1(v1: dict[str, Any]) -> dict[str, Any]:
     }
     rs422 = v1.get("standard") == "rs422"
     nodes = []
-    for n in v1.get("nodes") if isinstance(v1.get("nodes"), list) else []:
+    for n in raw_nodes if isinstance(raw_nodes, list) else []:
         if not isinstance(n, dict):
             nodes.append(n)
             continue

@@ -377,11 +377,11 @@ def check_failsafe_bias(bus: Bus, *, with_fix: bool = True) -> list[Finding]:
     names, levels_v = idle_levels_v(bus)
     _, corner_v = idle_levels_v(idle_corner_bus(bus))
     # A receiver its failsafe covers unbiased stays covered: bias only lifts the pair further towards a 1.
-    covered = np.array([n.covered for n in needs])
-    ok = covered | (levels_v >= thresholds)
-    ok_corner = covered | (corner_v >= thresholds)
+    covered_mask = np.array([n.covered for n in needs])
+    ok = covered_mask | (levels_v >= thresholds)
+    ok_corner = covered_mask | (corner_v >= thresholds)
     verdict = band_verdict(bool(ok.all()), bool(ok_corner.all()))
-    candidates = np.flatnonzero(~covered)
+    candidates = np.flatnonzero(~covered_mask)
     if candidates.size == 0:
         candidates = np.arange(len(needs))
     k = int(candidates[np.argmin(levels_v[candidates] - thresholds[candidates])])
