@@ -270,6 +270,7 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
             "summary": _summary_data(summary, units),
             "advice": advice_data(report, units, plan_id),
             "waveforms": waveforms,
+            "probes": _probes_data(checked, units),
             "curve": {
                 "bit_rate_bps": sweep.bit_rate_bps,
                 "max_length_m": sweep.max_length_m,
@@ -393,6 +394,22 @@ def _waveforms_data(
         "plots": plots,
         "note": checked.simulation_note,
     }
+
+
+def _probes_data(checked: CheckedPlan, units: UnitSystem) -> list[dict[str, Any]]:
+    """The waveform at each of the plan's own probes (plan.probes): the bit pattern or a single step."""
+    wf = checked.probes
+    if wf is None:
+        return []
+    signal = f"the bit pattern {wf.bits}" if wf.bits else "a single step from 0 V to high at 0 s"
+    return [
+        {
+            "probe": in_plan_units(name, units),
+            "signal": signal,
+            "svg": waveform_plot(wf.time_s, wf.v_diff_v[k], (), in_plan_units(name, units), wf.bit_time_s),
+        }
+        for k, name in enumerate(wf.receiver_names)
+    ]
 
 
 def _signal_finding(fd: "dict[str, Any] | None") -> dict[str, Any]:
