@@ -52,6 +52,11 @@ TOP = (
     FieldSpec("supply_v", "Transceiver supply", "voltage", required=True),
     FieldSpec("trunk_length_m", "Trunk length", "length"),
     FieldSpec("test_pattern", "Test bit pattern", hint="0s and 1s; blank for a built-in pseudo-random run"),
+    FieldSpec(
+        "probe_signal",
+        "Signal at the probes",
+        choices=(("pattern", "the bit pattern"), ("step", "a single step from 0 V to high")),
+    ),
     FieldSpec("notes", "Notes"),
 )
 CABLE = (
@@ -93,8 +98,45 @@ BIAS = (
     FieldSpec("pull_down_ohm", "Pull-down (B to ground)", "resistance"),
     FieldSpec("supply_v", "Bias supply", "voltage", hint="blank: the transceiver supply"),
 )
-GROUPS: dict[str, tuple[FieldSpec, ...]] = {"": TOP, "cable": CABLE, "driver": DRIVER, "bias": BIAS}
-ROWS: dict[str, tuple[FieldSpec, ...]] = {"nodes": NODE, "terminations": TERMINATION}
+SAMPLING = (
+    FieldSpec(
+        "centre_ui", "Sampling instant", "plain", hint="bits after the start edge; a UART's is 0.5", placeholder="0.5"
+    ),
+    FieldSpec(
+        "half_width_ui", "Window half-width", "plain", hint="bits either side; 2/16 for a UART", placeholder="0.125"
+    ),
+)
+_OF_CLASS = "blank: the class's"
+TOLERANCES = (
+    FieldSpec("z0_tolerance", "Cable Z0 ±", "plain", hint="e.g. 10 %; " + _OF_CLASS),
+    FieldSpec("velocity_factor_tolerance", "Velocity factor ±", "plain", hint=_OF_CLASS),
+    FieldSpec("terminator_tolerance", "Terminators ±", "plain", hint="blank: 5 % (E24)"),
+    FieldSpec("bias_tolerance", "Bias resistors ±", "plain", hint="blank: 5 % (E24)"),
+    FieldSpec("rise_time_min_s", "Fastest driver edge", "time", hint=_OF_CLASS),
+    FieldSpec("rise_time_max_s", "Slowest driver edge", "time", hint=_OF_CLASS),
+    FieldSpec("input_capacitance_tolerance", "Receiver capacitance ±", "plain", hint="blank: 0.4x to 1.5x"),
+    FieldSpec("unit_loads_min_ratio", "Lightest receiver load", "plain", hint="of its rating; blank: 0.5"),
+    FieldSpec("monte_carlo_variants", "Monte Carlo variants", "plain", hint="0: corners only", placeholder="0"),
+    FieldSpec("seed", "Random seed", "plain", placeholder="1"),
+)
+PROBE = (
+    FieldSpec(
+        "kind",
+        "Probe at",
+        choices=(("node", "a node's input"), ("junction", "a trunk point"), ("driver_pin", "the driver's pins")),
+    ),
+    FieldSpec("node", "Node"),
+    FieldSpec("position_m", "Trunk position", "length"),
+)
+GROUPS: dict[str, tuple[FieldSpec, ...]] = {
+    "": TOP,
+    "cable": CABLE,
+    "driver": DRIVER,
+    "bias": BIAS,
+    "sampling_window": SAMPLING,
+    "tolerances": TOLERANCES,
+}
+ROWS: dict[str, tuple[FieldSpec, ...]] = {"nodes": NODE, "terminations": TERMINATION, "probes": PROBE}
 # Selects always carry a value, so they do not count when deciding whether a row is blank.
 _ROW_CHOICE_KEYS = {"role", "kind"}
 
@@ -119,6 +161,7 @@ class FormState:
     parent_id: str | None = None
     problems: list[Problem] = field(default_factory=list)
     chosen_units: UnitSystem | None = None  # the system picked to keep with the plan, when it differs
+    n_probes: int = 0
 
 
 @dataclass(slots=True)
@@ -162,7 +205,7 @@ def form_from_plan(plan: Mapping[str, Any], units: UnitSystem | None = None, par
                 put(f"{group}.{i}.{spec.key}", spec, row if isinstance(row, Mapping) else {})
         counts[group] = len(rows[:MAX_FORM_ROWS])
     values.setdefault("standard", "rs485")
-    return FormState(values, counts["nodes"], counts["terminations"], system, parent_id)
+    return FormState(values, counts["nodes"], counts["terminations"], system, parent_id, n_probes=counts["probes"])
 
 
 STARTER_RATE_BPS = 115_200.0
@@ -203,7 +246,7 @@ def starter_plan(units: UnitSystem) -> dict[str, Any]:
     }
 
 
-_ROW_NAME = re.compile(r"^(nodes|terminations)\.(\d{1,6})\.(\w+)$")
+_ROW_NAME = re.compile(r"^(nodes|terminations|probes)\.(\d{1,6})\.(\w+)$")
 
 
 def parse_form(form: Mapping[str, str]) -> ParsedForm:
@@ -270,7 +313,10 @@ def parse_form(form: Mapping[str, str]) -> ParsedForm:
             raw = raw_rows[index]
             if raw.get("remove"):
                 continue
-            if all(not raw.get(s.key, "").strip() for s in specs if s.key not in _ROW_CHOICE_KEYS):
+            needs_nothing = group == "probes" and raw.get("kind") == "driver_pin"  # the pins need no place
+            if not needs_nothing and all(
+                not raw.get(s.key, "").strip() for s in specs if s.key not in _ROW_CHOICE_KEYS
+            ):
                 blank += 1
                 continue
             rows.append(raw)
@@ -286,7 +332,9 @@ def parse_form(form: Mapping[str, str]) -> ParsedForm:
     if doc.get("test_pattern") == "":
         doc.pop("test_pattern")
     parent = form.get("parent_id") or None
-    state = FormState(values, counts["nodes"], counts["terminations"], shown, parent, list(problems), chosen)
+    state = FormState(
+        values, counts["nodes"], counts["terminations"], shown, parent, list(problems), chosen, counts["probes"]
+    )
     return ParsedForm(doc, state, problems, action)
 
 
@@ -326,7 +374,7 @@ def with_units(state: FormState, doc: Mapping[str, Any], units: UnitSystem) -> F
     for path, text in state.values.items():
         if path not in fresh.values or (fresh.values[path] == "" and text):
             fresh.values[path] = text
-    fresh.n_nodes, fresh.n_terminations = state.n_nodes, state.n_terminations
+    fresh.n_nodes, fresh.n_terminations, fresh.n_probes = state.n_nodes, state.n_terminations, state.n_probes
     return fresh
 
 

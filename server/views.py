@@ -27,7 +27,7 @@ from pairline.server.findings_view import (
     group_problems,
     holding_rules,
 )
-from pairline.server.forms import BIAS, CABLE, DRIVER, NODE, TERMINATION, TOP, FormState
+from pairline.server.forms import BIAS, CABLE, DRIVER, NODE, PROBE, SAMPLING, TERMINATION, TOLERANCES, TOP, FormState
 from pairline.server.messages import problem_message, value_text
 from pairline.server.plots import curve_plot, eye_plot, waveform_plot
 from pairline.server.quantities import UnitSystem, format_quantity, length_unit
@@ -85,7 +85,7 @@ def bom_rows(bom: Any, units: UnitSystem) -> list[dict[str, Any]]:
 
 def _field_meta(units: UnitSystem) -> dict[str, dict[str, dict[str, Any]]]:
     groups = {"plan": TOP, "cable": CABLE, "driver": DRIVER, "nodes": NODE, "terminations": TERMINATION}
-    groups["bias"] = BIAS
+    groups |= {"bias": BIAS, "sampling_window": SAMPLING, "tolerances": TOLERANCES, "probes": PROBE}
     return {
         name: {
             s.key: {
@@ -117,7 +117,11 @@ def _class_defaults(units: UnitSystem) -> dict[str, dict[str, dict[str, str]]]:
     }
 
 
-TABLES = {"nodes": "node-rows", "terminations": "termination-rows"}  # whole-table problems link to the table
+TABLES = {
+    "nodes": "node-rows",
+    "terminations": "termination-rows",
+    "probes": "probe-rows",
+}  # whole-table problems link to the table
 
 
 def editor_data(state: FormState, *, title: str, saved_from: SavedPlan | None = None) -> dict[str, Any]:
@@ -151,6 +155,7 @@ def editor_data(state: FormState, *, title: str, saved_from: SavedPlan | None = 
         "values": state.values,
         "n_nodes": state.n_nodes,
         "n_terminations": state.n_terminations,
+        "n_probes": state.n_probes,
         "parent_id": state.parent_id,
         "saved_from": saved_from.id if saved_from else None,
         "errors": by_field,
@@ -158,6 +163,8 @@ def editor_data(state: FormState, *, title: str, saved_from: SavedPlan | None = 
         "fields": _field_meta(state.units),
         "node_columns": [s.key for s in NODE],
         "termination_columns": [s.key for s in TERMINATION],
+        "probe_columns": [s.key for s in PROBE],
+        "tolerance_keys": [s.key for s in TOLERANCES],
         "node_table": state.values.get("node_table", ""),
         "class_defaults": _class_defaults(state.units),
         "cables": {k: json_safe(c) for k, c in CABLES.items()},

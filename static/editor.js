@@ -52,7 +52,7 @@
     button.addEventListener("click", function (event) {
       event.preventDefault();
       const tableId = button.getAttribute("data-add-row");
-      const group = tableId === "node-rows" ? "nodes" : "terminations";
+      const group = { "node-rows": "nodes", "termination-rows": "terminations", "probe-rows": "probes" }[tableId];
       const row = addRow(tableId, group, nextIndex(document.getElementById(tableId).tBodies[0], group));
       saveDraft();
       const first = row.querySelector("input[type=text]");
