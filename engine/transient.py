@@ -41,7 +41,8 @@ is coarsened to fit a sample count, only split when it would not fit in memory):
 3. Later levels, each TAIL_FACTOR x longer and as coarse as the previous level's last quiet span allows (what the
    coarser grid would get wrong there: the previous samples blurred to its width, plus its interpolation error),
    until every probe is within `tolerance` of its settled level (exact DC solve) over the second half of a level
-   past 6 one-way delays, or max_time_s is covered.
+   past 6 one-way delays, or max_time_s is covered. A level spans at least twice the time before it: where
+   MAX_LEVEL_VALUES (memory) allows no finer spacing for that, the level takes the finest that fits.
 Every sample of a level is kept where that level is used: finest first, each coarser one after the finer ends.
 """
 
@@ -391,7 +392,8 @@ def step_responses(
             if _relative(_coarsening_error(x[..., late], dt, extra, dt_next), ptp).max() <= ACCURACY:
                 break
             dt_next /= 2.0
-        dt_next = max(dt_next, dt)
+        # at least doubling the span within the memory budget, even where that is coarser than the check asked
+        dt_next = max(dt_next, dt, 4.0 * end / budget)
         new_end = min(TAIL_FACTOR * end, 0.5 * budget * dt_next)
         n = _fft_size(2.0 * new_end / dt_next, MIN_SAMPLES)
         lo, hi = int(np.floor(end / dt_next)) + 1, int(np.floor(new_end / dt_next + 1e-9)) + 1

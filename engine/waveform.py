@@ -348,13 +348,14 @@ def plan_probes(bus: Bus) -> list[Probe]:
     return out
 
 
-def probe_waveforms(bus: Bus, probes: "list[Probe] | None" = None) -> Waveforms:
+def probe_waveforms(bus: Bus, probes: "list[Probe] | None" = None, pattern: str | None = None) -> Waveforms:
     """What a scope would show at the plan's probes (plan_probes) for the plan's probe signal: the bit pattern
-    (simulate_pattern), or a single step from 0 V to high (plan.probe_signal "step"; bits then "", one edge at 0).
-    Probes: a node's receiver input, a trunk position, or the driver's pins behind its stub."""
+    (simulate_pattern; pattern None: the plan's, else the default), or a single step from 0 V to high
+    (plan.probe_signal "step"; bits then "", one edge at 0). Probes: a node's receiver input, a trunk position, or
+    the driver's pins behind its stub."""
     chosen = plan_probes(bus) if probes is None else probes
     if bus.plan.probe_signal == "pattern":
-        return simulate_pattern(bus, probes=chosen)
+        return simulate_pattern(bus, pattern, probes=chosen)
     step = step_responses(bus, probes=chosen)
     grid = np.unique((step.start_s[0][:, None] + step.time_s[None, :]).ravel())
     return Waveforms(

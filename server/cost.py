@@ -9,8 +9,14 @@ response itself costs one network solve per Laplace point. So the unavoidable wo
     work = (drivers + 1) x [receivers x (memory_bits x edge_points + pattern_bits x points_per_bit)
                             + laplace_points x (receivers + terminators)]
 
-(the + 1 is the page's own simulation from the primary driver). Fixes found by re-simulating come on top,
-so `SECONDS_PER_UNIT` (with the fraction of edge points a waveform keeps) is set at 80 % of the smallest ratio of
+(the + 1 is the page's own simulation from the primary driver). The worst case over component tolerances
+(engine.tolerance) solves the primary driver's edge again for each tolerance corner: at least 13 networks on the
+grid of the driver's own edge and 2 on the grid of the fastest edge its class may have,
+
+    tolerance work = (receivers + terminators) x (13 x laplace_points(edge) + 2 x laplace_points(fastest edge)).
+
+Fixes found by re-simulating, the advised plan's own check and the receivers' sampled levels come on top, so
+`SECONDS_PER_UNIT` (with the fraction of edge points a waveform keeps) is set at 80 % of the smallest ratio of
 measured check time to this work over the spread of plans in tests/bench_cost.py (8 to 512 nodes, 0 to 32
 transceivers, 0.5 ns to 500 ns edges, 50 bit/s to 2 Mbit/s) on a 2-core machine: there the estimate stays below
 every measured check, so a plan estimated over the limit would not have finished within it. An engine that gets
@@ -22,12 +28,13 @@ import math
 from collections.abc import Callable
 from dataclasses import dataclass
 
-from pairline.engine.devices import resolve_device
-from pairline.engine.plan import BusPlan, Problem, resolve_cable
+from pairline.engine.bus import build_bus
+from pairline.engine.plan import BusPlan, Problem
 from pairline.engine.rules.signal import MAX_DRIVERS_ALL, MAX_DRIVERS_SAMPLED
+from pairline.engine.tolerance import tolerance_ranges
 from pairline.engine.units import delay_s, si_format
 
-SECONDS_PER_UNIT = 6.0e-8  # measured lower bound, see the module docstring
+SECONDS_PER_UNIT = 5.1e-7  # measured lower bound, see the module docstring
 DEFAULT_PATTERN_BITS = 127  # the longest built-in pseudo-random pattern (PRBS-7)
 EDGE_POINTS_PER_EDGE = 8  # edge response points per 0-100 % edge time
 FIRST_LEVEL_EDGES = 512  # edge times the finest time step covers at most
@@ -37,6 +44,8 @@ KEPT_FRACTION = 0.05  # of the edge response's points within a bit, those a patt
 WAVEFORM_VALUES = 6_000_000  # receivers x bits x points of one pattern simulation, before points thin out
 SETTLING_DELAYS = 6  # an edge is remembered for about six trunk delays
 SLOWEST_RISE_S = 20e-6  # the plan model's largest rise time
+NOMINAL_GRID_CORNERS = 13  # tolerance corners with distinct networks on the driver's own edge (engine.tolerance)
+FASTEST_GRID_CORNERS = 2  # at least: the fastest edge alone, and one receiver's worst corner
 
 
 @dataclass(frozen=True, slots=True)
@@ -52,6 +61,7 @@ class CheckWork:
     rise_time_s: float  # 10-90 %
     bit_time_s: float
     settle_s: float  # how long an edge is remembered
+    fastest_edge_ratio: float  # the fastest edge of the tolerance range over the driver's own
 
     @property
     def drivers(self) -> int:
@@ -63,9 +73,11 @@ class CheckWork:
 
 
 def check_work(plan: BusPlan) -> CheckWork:
-    cable, driver = resolve_cable(plan.cable), resolve_device(plan.driver.device, plan.default_device)
+    bus = build_bus(plan)
+    cable, driver = bus.cable, bus.driver
     longest_stub_m = max([n.stub_length_m for n in plan.nodes] + [plan.driver.stub_length_m])
     edge_s = driver.rise_time_s / 0.8
+    fastest = min(1.0, next(r.low for r in tolerance_ranges(bus) if r.key == "rise_time"))
     return CheckWork(
         transceivers=sum(n.may_drive for n in plan.nodes),
         standard=plan.standard,
@@ -76,7 +88,17 @@ def check_work(plan: BusPlan) -> CheckWork:
         rise_time_s=driver.rise_time_s,
         bit_time_s=1.0 / plan.bit_rate_bps,
         settle_s=edge_s + SETTLING_DELAYS * delay_s(plan.trunk_length_m + 2.0 * longest_stub_m, cable.velocity_factor),
+        fastest_edge_ratio=fastest,
     )
+
+
+def _laplace_points(work: CheckWork, edge_s: float) -> float:
+    """Laplace points of one edge response for a driver edge of edge_s (0-100 %)."""
+    step_s = edge_s / EDGE_POINTS_PER_EDGE
+    horizon_s = min(work.settle_s, work.pattern_bits * work.bit_time_s)
+    first_level_s = min(FIRST_LEVEL_EDGES * edge_s, max(32 * edge_s, horizon_s))
+    later_levels = max(0.0, math.log(max(horizon_s / first_level_s, 1.0), 4))
+    return first_level_s / step_s + 1024 * later_levels
 
 
 def estimated_check_s(work: CheckWork) -> float:
@@ -90,14 +112,15 @@ def estimated_check_s(work: CheckWork) -> float:
         max(2 * POINTS_PER_BIT_MIN + 1, WAVEFORM_VALUES / (work.receivers * bits)),
         POINTS_PER_BIT_MIN + KEPT_FRACTION * edge_points,
     )
-    horizon_s = min(work.settle_s, bits * work.bit_time_s)
-    first_level_s = min(FIRST_LEVEL_EDGES * work.edge_s, max(32 * work.edge_s, horizon_s))
-    later_levels = max(0.0, math.log(max(horizon_s / first_level_s, 1.0), 4))
-    laplace_points = first_level_s / step_s + 1024 * later_levels
-    per_driver = work.receivers * (memory_bits * edge_points + bits * per_bit) + laplace_points * (
-        work.receivers + work.terminators
+    loads = work.receivers + work.terminators
+    per_driver = (
+        work.receivers * (memory_bits * edge_points + bits * per_bit) + _laplace_points(work, work.edge_s) * loads
     )
-    return SECONDS_PER_UNIT * (work.drivers + 1) * per_driver
+    tolerance = loads * (
+        NOMINAL_GRID_CORNERS * _laplace_points(work, work.edge_s)
+        + FASTEST_GRID_CORNERS * _laplace_points(work, work.fastest_edge_ratio * work.edge_s)
+    )
+    return SECONDS_PER_UNIT * ((work.drivers + 1) * per_driver + tolerance)
 
 
 def cost_problems(plan: BusPlan, limit_s: float) -> list[Problem]:

@@ -70,6 +70,11 @@ TOP = (
     FieldSpec("trunk_length_m", "Trunk length", "length"),
     FieldSpec("default_device", "Default device class", choices=DEVICE_CLASSES, hint="every node that names no class"),
     FieldSpec("test_pattern", "Test bit pattern", hint="0s and 1s; blank for a built-in pseudo-random run"),
+    FieldSpec(
+        "probe_signal",
+        "Signal at the probes",
+        choices=(("pattern", "the bit pattern"), ("step", "a single step from 0 V to high")),
+    ),
     FieldSpec("notes", "Notes"),
 )
 CABLE = (
@@ -169,9 +174,46 @@ GROUNDING = (
         choices=(("none", "no shield, or not stated"), ("one_end", "one end"), ("both_ends", "both ends")),
     ),
 )
-GROUPS: dict[str, tuple[FieldSpec, ...]] = {"": TOP, "cable": CABLE, "driver": DRIVER, "grounding": GROUNDING}
-ROWS: dict[str, tuple[FieldSpec, ...]] = {"nodes": NODE, "terminations": TERMINATION, "bias": BIAS}
 MAX_FORM_FIELDS = MAX_FORM_ROWS * (len(NODE) + 1) + 1000  # every node row with its device open, plus the rest
+SAMPLING = (
+    FieldSpec(
+        "centre_ui", "Sampling instant", "plain", hint="bits after the start edge; a UART's is 0.5", placeholder="0.5"
+    ),
+    FieldSpec(
+        "half_width_ui", "Window half-width", "plain", hint="bits either side; 2/16 for a UART", placeholder="0.125"
+    ),
+)
+_OF_CLASS = "blank: the class's"
+TOLERANCES = (
+    FieldSpec("z0_tolerance", "Cable Z0 ±", "plain", hint="e.g. 10 %; " + _OF_CLASS),
+    FieldSpec("velocity_factor_tolerance", "Velocity factor ±", "plain", hint=_OF_CLASS),
+    FieldSpec("terminator_tolerance", "Terminators ±", "plain", hint="blank: 5 % (E24)"),
+    FieldSpec("bias_tolerance", "Bias resistors ±", "plain", hint="blank: 5 % (E24)"),
+    FieldSpec("rise_time_min_s", "Fastest driver edge", "time", hint=_OF_CLASS),
+    FieldSpec("rise_time_max_s", "Slowest driver edge", "time", hint=_OF_CLASS),
+    FieldSpec("input_capacitance_tolerance", "Receiver capacitance ±", "plain", hint="blank: 0.4x to 1.5x"),
+    FieldSpec("unit_loads_min_ratio", "Lightest receiver load", "plain", hint="of its rating; blank: 0.5"),
+    FieldSpec("monte_carlo_variants", "Monte Carlo variants", "plain", hint="0: corners only", placeholder="0"),
+    FieldSpec("seed", "Random seed", "plain", placeholder="1"),
+)
+PROBE = (
+    FieldSpec(
+        "kind",
+        "Probe at",
+        choices=(("node", "a node's input"), ("junction", "a trunk point"), ("driver_pin", "the driver's pins")),
+    ),
+    FieldSpec("node", "Node"),
+    FieldSpec("position_m", "Trunk position", "length"),
+)
+GROUPS: dict[str, tuple[FieldSpec, ...]] = {
+    "": TOP,
+    "cable": CABLE,
+    "driver": DRIVER,
+    "grounding": GROUNDING,
+    "sampling_window": SAMPLING,
+    "tolerances": TOLERANCES,
+}
+ROWS: dict[str, tuple[FieldSpec, ...]] = {"nodes": NODE, "terminations": TERMINATION, "bias": BIAS, "probes": PROBE}
 
 
 def spec_for(path: str) -> FieldSpec | None:
@@ -197,6 +239,7 @@ class FormState:
     chosen_units: UnitSystem | None = None  # the system picked to keep with the plan, when it differs
     n_bias: int = 0
     open_devices: set[str] = field(default_factory=set)  # device prefixes ("nodes.3.device") shown open
+    n_probes: int = 0
 
 
 @dataclass(slots=True)
@@ -269,7 +312,15 @@ def form_from_plan(plan: Mapping[str, Any], units: UnitSystem | None = None, par
         for spec in GROUPS[group]:
             if spec.choices and not values.get(_path(group, spec.key)):
                 values[_path(group, spec.key)] = spec.choices[0][0]
-    return FormState(values, counts["nodes"], counts["terminations"], system, parent_id, n_bias=counts["bias"])
+    return FormState(
+        values,
+        counts["nodes"],
+        counts["terminations"],
+        system,
+        parent_id,
+        n_bias=counts["bias"],
+        n_probes=counts["probes"],
+    )
 
 
 STARTER_RATE_BPS = 115_200.0
@@ -312,7 +363,7 @@ def starter_plan(units: UnitSystem) -> dict[str, Any]:
     }
 
 
-_ROW_NAME = re.compile(r"^(nodes|terminations|bias)\.(\d{1,6})\.([\w.]+)$")
+_ROW_NAME = re.compile(r"^(nodes|terminations|bias|probes)\.(\d{1,6})\.([\w.]+)$")
 _DEVICE_VALUES_ACTION = re.compile(r"^device_values:((?:driver|nodes\.\d{1,6})\.device)$")
 
 
@@ -405,8 +456,10 @@ def parse_form(form: Mapping[str, str]) -> ParsedForm:
             raw = raw_rows[index]
             if raw.get("remove"):
                 continue
-            # Selects always carry a value, so they do not count when deciding whether a row is blank.
-            if all(not raw.get(s.key, "").strip() for s in specs if not s.choices):
+            # Selects always carry a value, so they do not count when deciding whether a row is blank; the driver's
+            # pins need no place.
+            needs_nothing = group == "probes" and raw.get("kind") == "driver_pin"
+            if not needs_nothing and all(not raw.get(s.key, "").strip() for s in specs if not s.choices):
                 blank += 1
                 continue
             rows.append(raw)
@@ -432,6 +485,7 @@ def parse_form(form: Mapping[str, str]) -> ParsedForm:
         list(problems),
         chosen,
         n_bias=counts["bias"],
+        n_probes=counts["probes"],
     )
     opened = _DEVICE_VALUES_ACTION.match(action)
     if opened:
@@ -457,7 +511,7 @@ def _label_for(path: str, spec: FieldSpec, row_name: str = "") -> str:
     """The label of an input in messages, as the plan validator words it: "Node 4 ('d') ground offset"."""
     m = _ROW_NAME.match(path)
     if m:
-        what = {"nodes": "Node", "terminations": "Terminator", "bias": "Bias network"}[m.group(1)]
+        what = {"nodes": "Node", "terminations": "Terminator", "bias": "Bias network", "probes": "Probe"}[m.group(1)]
         named = f" ('{row_name}')" if row_name and what == "Node" else ""
         return f"{what} {int(m.group(2)) + 1}{named} {spec.label.lower()}"
     group = path.split(".")[0] if "." in path else ""
@@ -478,6 +532,7 @@ def with_units(state: FormState, doc: Mapping[str, Any], units: UnitSystem) -> F
             fresh.values[path] = text
     fresh.n_nodes, fresh.n_terminations, fresh.n_bias = state.n_nodes, state.n_terminations, state.n_bias
     fresh.open_devices = state.open_devices
+    fresh.n_probes = state.n_probes
     return fresh
 
 

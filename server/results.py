@@ -20,7 +20,7 @@ from pairline.engine.rules.length_rate import (
     loss_limit_length_m,
 )
 from pairline.engine.sweep import LengthRateCurve, length_rate_curve
-from pairline.engine.waveform import Waveforms, simulate_pattern
+from pairline.engine.waveform import Waveforms, probe_waveforms, simulate_pattern
 
 __all__ = [
     "CheckedPlan",
@@ -38,6 +38,7 @@ class CheckedPlan:
     report: PlanReport
     metrics: tuple[ReceiverMetrics, ...]  # every receiver, plan order
     waveforms: Waveforms | None  # only the receivers drawn: the worst, then the chosen one
+    probes: Waveforms | None  # what a scope shows at the plan's own probes (plan.probes); None when it names none
     curve: LengthRateCurve  # simulated: the longest trunk per bit rate for this cable and driver
     rule_bit_rate_bps: np.ndarray  # (n_points,) the report's two length rules, for comparison
     rule_max_length_m: np.ndarray  # (n_points,)
@@ -88,6 +89,7 @@ def check_and_simulate(plan: BusPlan, chosen_receiver: str | None = None) -> Che
         report=report,
         metrics=metrics,
         waveforms=waveforms,
+        probes=probe_waveforms(bus, pattern=sim.bits) if plan.probes else None,
         curve=length_rate_curve(bus),
         rule_bit_rate_bps=rule_rates_bps,
         rule_max_length_m=rule_lengths_m,

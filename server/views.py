@@ -38,7 +38,10 @@ from pairline.server.forms import (
     GROUNDING,
     NODE,
     NODE_COLUMNS,
+    PROBE,
+    SAMPLING,
     TERMINATION,
+    TOLERANCES,
     TOP,
     FieldSpec,
     FormState,
@@ -108,6 +111,9 @@ def _field_meta(units: UnitSystem) -> dict[str, dict[str, dict[str, Any]]]:
         "bias": BIAS,
         "grounding": GROUNDING,
         "device": (DEVICE_PICKER, *DEVICE),
+        "sampling_window": SAMPLING,
+        "tolerances": TOLERANCES,
+        "probes": PROBE,
     }
     return {
         name: {
@@ -165,7 +171,7 @@ def _open_devices(state: FormState, errors: Mapping[str, str]) -> list[str]:
 
 
 # whole-table problems link to the table
-TABLES = {"nodes": "node-rows", "terminations": "termination-rows", "bias": "bias-rows"}
+TABLES = {"nodes": "node-rows", "terminations": "termination-rows", "bias": "bias-rows", "probes": "probe-rows"}
 
 
 def editor_data(state: FormState, *, title: str, saved_from: SavedPlan | None = None) -> dict[str, Any]:
@@ -200,6 +206,7 @@ def editor_data(state: FormState, *, title: str, saved_from: SavedPlan | None = 
         "n_nodes": state.n_nodes,
         "n_terminations": state.n_terminations,
         "n_bias": state.n_bias,
+        "n_probes": state.n_probes,
         "parent_id": state.parent_id,
         "saved_from": saved_from.id if saved_from else None,
         "errors": by_field,
@@ -210,6 +217,8 @@ def editor_data(state: FormState, *, title: str, saved_from: SavedPlan | None = 
         "open_devices": _open_devices(state, by_field),
         "termination_columns": [s.key for s in TERMINATION],
         "bias_columns": [s.key for s in BIAS],
+        "probe_columns": [s.key for s in PROBE],
+        "tolerance_keys": [s.key for s in TOLERANCES],
         "node_table": state.values.get("node_table", ""),
         "class_defaults": _class_defaults(state.units),
         "cables": {k: json_safe(c) for k, c in CABLES.items()},
@@ -327,6 +336,7 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
             "summary": _summary_data(summary, units),
             "advice": advice_data(report, units, plan_id),
             "waveforms": waveforms,
+            "probes": _probes_data(checked, units),
             "curve": {
                 "bit_rate_bps": sweep.bit_rate_bps,
                 "max_length_m": sweep.max_length_m,
@@ -477,6 +487,22 @@ def _waveforms_data(
         "plots": plots,
         "note": checked.simulation_note,
     }
+
+
+def _probes_data(checked: CheckedPlan, units: UnitSystem) -> list[dict[str, Any]]:
+    """The waveform at each of the plan's own probes (plan.probes): the bit pattern or a single step."""
+    wf = checked.probes
+    if wf is None:
+        return []
+    signal = f"the bit pattern {wf.bits}" if wf.bits else "a single step from 0 V to high at 0 s"
+    return [
+        {
+            "probe": in_plan_units(name, units),
+            "signal": signal,
+            "svg": waveform_plot(wf.time_s, wf.v_diff_v[k], (), in_plan_units(name, units), wf.bit_time_s),
+        }
+        for k, name in enumerate(wf.receiver_names)
+    ]
 
 
 def _signal_finding(fd: "dict[str, Any] | None") -> dict[str, Any]:

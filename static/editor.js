@@ -54,7 +54,12 @@
     button.addEventListener("click", function (event) {
       event.preventDefault();
       const tableId = button.getAttribute("data-add-row");
-      const group = { "node-rows": "nodes", "termination-rows": "terminations", "bias-rows": "bias" }[tableId];
+      const group = {
+        "node-rows": "nodes",
+        "termination-rows": "terminations",
+        "bias-rows": "bias",
+        "probe-rows": "probes",
+      }[tableId];
       const row = addRow(tableId, group, nextIndex(document.getElementById(tableId).tBodies[0], group));
       saveDraft();
       const first = row.querySelector("input[type=text]");

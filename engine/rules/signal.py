@@ -45,6 +45,7 @@ MAX_STUB_CONFIRMS = 8  # flagged stubs reported one by one; the rest summarised
 MAX_WATCHED = 8  # receivers judged in a second (what-if) simulation on large buses
 MAX_DRIVERS_ALL = 33  # every possible driver is simulated up to this many (32 transceivers + the driver)
 MAX_DRIVERS_SAMPLED = 12  # beyond, a sample of this many (drivers_to_simulate)
+PROBE_DRIVER_VALUES = 2048  # drivers x receivers whose edge responses are solved and held at once
 _SOURCE = (
     "Simulated waveforms (reflection simulation of the whole bus); receiver threshold ±200 mV from TIA/EIA-485-A "
     "and TIA/EIA-422-B; tolerance band from the parts' published tolerances (signal.tolerance)"
@@ -96,30 +97,31 @@ def simulate_bus(bus: Bus, *, tolerance: bool = True) -> Simulation:
     """Simulate every node that may drive (drivers_to_simulate), judge each receiver by its worst case, find
     re-simulated fixes for the receivers the primary driver breaks, and (tolerance) run the primary driver's
     pattern over the component tolerances (with_tolerance)."""
-    drivers = drivers_to_simulate(bus)
+    drivers = drivers_to_simulate(bus)  # the primary driver first
     primary = bus.plan.driver.name
     duration_s = pattern_duration_s(bus, bus.plan.test_pattern)
-    # Talkers of one device share a simulation; each group drives with its own device's output and edge.
-    views = {}
-    for view, names in talker_groups(bus, drivers):
-        steps = step_responses(view, names, max_time_s=duration_s)
-        views.update({name: (view, steps) for name in names})
-    primary_step = views[primary][1].for_driver(primary)
-    bits = bus.plan.test_pattern or default_pattern(primary_step, 1.0 / bus.plan.bit_rate_bps)
+    per_group = max(1, PROBE_DRIVER_VALUES // len(bus.plan.nodes))  # drivers whose edges are solved together
     out: dict[str, tuple[SignalJudgement, str]] = {}
     from_primary: dict[str, SignalJudgement] = {}
-    for name in drivers:
-        view, steps = views[name]
-        step = primary_step if name == primary else steps.for_driver(name)
-        judged = judge_bus(view, driver_name=name, step=step, pattern=bits if name == primary else None)
-        if name == primary:
-            from_primary = judged
-        for rx, j in judged.items():
-            if rx == name:  # a node does not listen to itself: its own receiver is not judged while it drives
-                continue
-            old = out.get(rx)
-            if old is None or _severity(j) > _severity(old[0]):
-                out[rx] = (j, name)
+    # Talkers of one device share a simulation; each group drives with its own device's output and edge. The
+    # primary driver's group comes first, the primary first in it, so its pattern is known before the others.
+    for view, names in talker_groups(bus, drivers):
+        for g0 in range(0, len(names), per_group):
+            steps = step_responses(view, names[g0 : g0 + per_group], max_time_s=duration_s)
+            for name in steps.driver_names:
+                step = steps.for_driver(name)
+                if name == primary:
+                    primary_step = step
+                    bits = bus.plan.test_pattern or default_pattern(step, 1.0 / bus.plan.bit_rate_bps)
+                judged = judge_bus(view, driver_name=name, step=step, pattern=bits if name == primary else None)
+                if name == primary:
+                    from_primary = judged
+                for rx, j in judged.items():
+                    if rx == name:  # a node does not listen to itself: its own receiver is not judged while it drives
+                        continue
+                    old = out.get(rx)
+                    if old is None or _severity(j) > _severity(old[0]):
+                        out[rx] = (j, name)
     failing = [rx for rx, (j, d) in out.items() if j.verdict is Verdict.BREAKS and d == primary]
     metrics = tuple(from_primary[n.name].metrics for n in bus.plan.nodes)
     return Simulation(

@@ -157,13 +157,15 @@ async def submit_plan(request: Request, store: StoreDep, checker: CheckerDep) ->
             return render(request, "editor.html", editor_data(state, title=_editor_title(state)), status_code=422)
         state = with_pasted_rows(state, len(parsed.doc["nodes"]), table.rows, bool(fields.get("node_table_replace")))
         return render(request, "editor.html", editor_data(state, title=_editor_title(state)))
-    if parsed.action in ("add_node", "add_termination", "add_bias", "device_values", "units", "edit"):
+    if parsed.action in ("add_node", "add_termination", "add_bias", "add_probe", "device_values", "units", "edit"):
         if parsed.action == "add_node":
             state.n_nodes += 1
         elif parsed.action == "add_termination":
             state.n_terminations += 1
         elif parsed.action == "add_bias":
             state.n_bias += 1
+        elif parsed.action == "add_probe":
+            state.n_probes += 1
         elif parsed.action == "units":
             state = with_units(state, parsed.doc, parsed.doc["display_units"])
         state.problems = []

@@ -10,6 +10,7 @@ from pairline.engine.waveform import (
     edge_duration_s,
     pattern_at,
     prbs_bits,
+    probe_waveforms,
     simulate_pattern,
     step_responses,
 )
@@ -236,3 +237,18 @@ def test_slow_edge_on_a_short_line_settles():
     resp = step_responses(probed_line(source_ohm=40.0, length_m=12.0, rise_s=2.5e-6))
     assert resp.settled
     np.testing.assert_allclose(resp.v_diff_v[0, :, -1], resp.v_final_v[0], atol=2e-3)  # volts
+
+
+def test_the_plans_probes_show_a_single_step_where_it_asks():
+    # Source: closed form, as for the matched line above: a single step 0 -> V_oc (plan.probe_signal "step") reads
+    # V_oc / 2 at every point once the ramp has passed it, delayed by x / v (Johnson & Graham, ch. 4).
+    doc = probed_line(source_ohm=120.0, far_ohm=120.0).plan.model_dump(mode="json")
+    doc["probes"] = [{"kind": "driver_pin"}, {"kind": "junction", "position_m": 40.0}, {"kind": "node", "node": "far"}]
+    doc["probe_signal"] = "step"
+    bus = build_bus(load_plan(doc))
+    waves = probe_waveforms(bus)
+    assert waves.receiver_names == ("driver pin", "trunk at 40 m", "far")
+    assert waves.bits == ""
+    for k, x_m in enumerate((0.0, 40.0, 100.0)):
+        expected = _ramp(waves.time_s, _delay_s(x_m), 1.0)
+        np.testing.assert_allclose(waves.v_diff_v[k], expected, atol=0.002, err_msg=waves.receiver_names[k])  # volts

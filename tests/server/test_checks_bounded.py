@@ -48,6 +48,14 @@ def costliest_plan() -> dict:
     }
 
 
+def costly_plan(nodes: int = 64) -> dict:
+    """The costliest plan cut to a few nodes, spread over the same trunk: over the limit, but each of fewer bits,
+    fewer transceivers or fewer nodes alone brings its estimate within it."""
+    doc = costliest_plan()
+    doc["nodes"] = [node | {"position_m": 4000.0 * (k + 1) / nodes} for k, node in enumerate(doc["nodes"][:nodes])]
+    return doc
+
+
 @pytest.fixture(scope="module")
 def client(tmp_path_factory):
     app = create_app(tmp_path_factory.mktemp("db") / "plans.db", load_samples=False)
@@ -68,23 +76,25 @@ def test_the_costliest_plan_is_refused_before_simulating_naming_what_to_change(c
     head = assert_problem(resp, field="")
     assert head["allowed"] == {"max": 30.0, "unit": "s"} and "30 s" in head["message"]
     fields = {p["field"]: p for p in resp.json()["problems"]}
+    assert fields["nodes"]["allowed"]["max_length"] < 512
+    fields = {p["field"]: p for p in client.post("/api/check", json=costly_plan()).json()["problems"]}
     assert fields["test_pattern"]["value"] == 512 and fields["test_pattern"]["allowed"]["max_length"] < 512
     assert fields["nodes.0.may_drive"]["value"] == 32 and fields["nodes.0.may_drive"]["allowed"]["max"] < 32
-    assert fields["nodes"]["allowed"]["max_length"] < 512
+    assert fields["nodes"]["allowed"]["max_length"] < 64
     # the editor shows the same refusal as form errors beside the inputs, keeping what was typed
-    saved = client.post("/api/plans", json=costliest_plan())
+    saved = client.post("/api/plans", json=costly_plan())
     assert_problem(saved, field="test_pattern")
 
 
 def test_each_suggested_change_alone_brings_the_estimate_within_the_limit():
-    plan = load_plan(costliest_plan())
+    plan = load_plan(costly_plan())
     work = check_work(plan)
     limit_s = 30.0
     problems = {p.field: p for p in cost_problems(plan, limit_s)}
-    fewer_bits = dict(costliest_plan(), test_pattern="01" * (problems["test_pattern"].allowed["max_length"] // 2))
+    fewer_bits = dict(costly_plan(), test_pattern="01" * (problems["test_pattern"].allowed["max_length"] // 2))
     assert estimated_check_s(check_work(load_plan(fewer_bits))) <= limit_s
     most = problems["nodes.0.may_drive"].allowed["max"]
-    doc = costliest_plan()
+    doc = costly_plan()
     for k, node in enumerate(doc["nodes"]):
         node["may_drive"] = k < most
     assert estimated_check_s(check_work(load_plan(doc))) <= limit_s
@@ -152,8 +162,8 @@ def test_the_editor_shows_a_refusal_beside_the_inputs(client, monkeypatch):
     form |= {"driver.device.class_key": "custom", "driver.device.rise_time_s": "0.5 ns"}
     form |= {"bit_rate_bps": "50", "trunk_length_m": "4000", "terminations.1.position_m": "4000"}
     form |= {"driver.device.open_circuit_v": "5", "driver.device.source_ohm": "30"}
-    rows = {f"nodes.{i}.{k}": v for i in range(5, 400) for k, v in (("name", f"x{i}"), ("position_m", str(i * 10)))}
-    roles = {f"nodes.{i}.may_drive": "true" if i < 32 else "false" for i in range(400)}
+    rows = {f"nodes.{i}.{k}": v for i in range(5, 64) for k, v in (("name", f"x{i}"), ("position_m", str(i * 60)))}
+    roles = {f"nodes.{i}.may_drive": "true" if i < 32 else "false" for i in range(64)}
     monkeypatch.setattr(client.app.state.pool, "run", no_worker)
     resp = client.post("/plans", data=form | rows | roles | {"action": "check"})
     assert resp.status_code == 422

@@ -52,6 +52,27 @@ def test_a_plan_survives_the_form_in_either_unit_system(units):
     assert back["display_units"] == units
 
 
+def test_the_signal_analysis_settings_survive_the_form():
+    analysis = {
+        "probes": [
+            {"kind": "junction", "position_m": 150.0},
+            {"kind": "node", "node": "pump-2"},
+            {"kind": "driver_pin"},
+        ],
+        "probe_signal": "step",
+        "sampling_window": {"centre_ui": 0.6, "half_width_ui": 0.1},
+        "tolerances": {"z0_tolerance": 0.2, "rise_time_min_s": 2e-9, "monte_carlo_variants": 200, "seed": 7},
+    }
+    plan = load_plan(PLAN | analysis)
+    state = form_from_plan(plan_to_dict(plan))
+    assert state.n_probes == 3 and state.values["tolerances.rise_time_min_s"] == "2 ns"
+    parsed = parse_form(_form(state))
+    assert parsed.problems == []
+    back = load_plan(parsed.doc)
+    assert (back.probes, back.probe_signal, back.sampling_window) == (plan.probes, "step", plan.sampling_window)
+    assert back.tolerances == plan.tolerances
+
+
 def test_input_names_are_the_plan_paths():
     state = form_from_plan(PLAN)
     assert state.values["nodes.1.name"] == "pump-2"

@@ -167,6 +167,16 @@ def test_chosen_receiver_adds_its_waveform(client, saved_id):
     assert unknown["waveforms"]["chosen_unknown"] == "nobody"
 
 
+def test_the_plans_own_probes_are_drawn_on_its_page(client):
+    probes = [{"kind": "driver_pin"}, {"kind": "junction", "position_m": 25.0}, {"kind": "node", "node": "right"}]
+    plan_id = client.post("/api/plans", json=PLAN_DOC | {"probes": probes, "probe_signal": "step"}).json()["id"]
+    data = client.get(f"/plans/{plan_id}.json").json()
+    assert [p["probe"] for p in data["probes"]] == ["driver pin", "trunk at 25 m", "right"]
+    assert all("single step" in p["signal"] for p in data["probes"])
+    dom = parse_html(client.get(f"/plans/{plan_id}").text)
+    assert dom.by_id("probes") is not None
+
+
 @pytest.mark.parametrize("path", ["/", "/plans/new", "/plans/{id}", "/plans/{id}/edit"])
 def test_every_page_has_a_json_twin(client, saved_id, path):
     url = path.format(id=saved_id)
