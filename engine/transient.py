@@ -46,6 +46,7 @@ is coarsened to fit a sample count, only split when it would not fit in memory):
 Every sample of a level is kept where that level is used: finest first, each coarser one after the finer ends.
 """
 
+from collections.abc import Sequence
 from dataclasses import dataclass, replace
 
 import numpy as np
@@ -485,7 +486,13 @@ def _chosen_probes(
     all_names = [n.name for n in bus.plan.nodes]
     if receiver_names is None:
         return [node_probe(n) for n in all_names]
-    unknown = [n for n in receiver_names if n not in all_names]
+    require_known_receivers(receiver_names, all_names, "a node of this bus", "nodes")
+    return [node_probe(n) for n in receiver_names]
+
+
+def require_known_receivers(wanted: Sequence[str], known: Sequence[str], what: str, plural: str) -> None:
+    """Raise BusInputError naming the first wanted receiver that is not among the known names."""
+    unknown = [n for n in wanted if n not in known]
     if unknown:
         raise BusInputError(
             [
@@ -493,9 +500,8 @@ def _chosen_probes(
                     "receiver_names",
                     "Receivers",
                     unknown[0],
-                    {"choices": all_names},
-                    f"'{unknown[0]}' is not a node of this bus; nodes are {', '.join(all_names)}.",
+                    {"choices": list(known)},
+                    f"'{unknown[0]}' is not {what}; {plural} are {', '.join(known)}.",
                 )
             ]
         )
-    return [node_probe(n) for n in receiver_names]

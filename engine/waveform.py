@@ -20,7 +20,13 @@ import numpy as np
 from pairline.engine.bus import Bus
 from pairline.engine.plan import BusInputError, Problem
 from pairline.engine.solve import Probe, driver_pin_probe, junction_probe, node_probe, resolve_driver_names
-from pairline.engine.transient import StepResponses, edge_duration_s, longest_delay_s, step_responses
+from pairline.engine.transient import (
+    StepResponses,
+    edge_duration_s,
+    longest_delay_s,
+    require_known_receivers,
+    step_responses,
+)
 
 __all__ = [
     "DEFAULT_PATTERN_BITS",
@@ -129,19 +135,7 @@ class LocalPatterns:
 def _receiver_index(step: StepResponses, wanted: "tuple[str, ...] | list[str] | None") -> np.ndarray:
     if wanted is None:
         return np.arange(len(step.receiver_names))
-    unknown = [n for n in wanted if n not in step.receiver_names]
-    if unknown:
-        raise BusInputError(
-            [
-                Problem(
-                    "receiver_names",
-                    "Receivers",
-                    unknown[0],
-                    {"choices": list(step.receiver_names)},
-                    f"'{unknown[0]}' is not a probe of this simulation; probes are {', '.join(step.receiver_names)}.",
-                )
-            ]
-        )
+    require_known_receivers(wanted, step.receiver_names, "a probe of this simulation", "probes")
     return np.array([step.receiver_names.index(n) for n in wanted], dtype=int)
 
 
