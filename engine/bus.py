@@ -3,11 +3,35 @@ take."""
 
 import dataclasses
 import math
-from collections.abc import Mapping
-from dataclasses import dataclass
+from collections.abc import Callable, Hashable, Mapping
+from dataclasses import dataclass, field
+from typing import Any, TypeVar
 
 from pairline.engine.devices import ResolvedDevice, ResolvedDriver, driver_of, resolve_devices
 from pairline.engine.plan import BusPlan, NodeSpec, ResolvedCable, resolve_cable
+
+T = TypeVar("T")
+
+
+class LayoutMemo:
+    """Values derived from one layout (the nodes, the primary driver and every node's device), each computed once
+    and shared by every view of that layout: with_plan's other terminators or bias, talker_bus's other talkers,
+    and the tolerance corners that keep the devices. A check weighs many such views (the advice's designs, the
+    corners of each rule), and most of what they derive is the same. A key names everything else its value
+    depends on (the standard, the terminators, the cable); the memo lives as long as the buses that share it."""
+
+    __slots__ = ("_values",)
+
+    def __init__(self) -> None:
+        self._values: dict[Hashable, Any] = {}
+
+    def get(self, key: Hashable, make: Callable[[], T]) -> T:
+        """The value under key, made by make() the first time."""
+        if key in self._values:
+            return self._values[key]  # type: ignore[no-any-return]
+        value = make()
+        self._values[key] = value
+        return value
 
 
 @dataclass(frozen=True, slots=True)
@@ -16,6 +40,7 @@ class Bus:
     cable: ResolvedCable
     driver: ResolvedDriver  # the talker this view is driven by: the primary driver unless talker_bus chose another
     devices: Mapping[str, ResolvedDevice]  # every node's device by name, the primary driver's included
+    memo: LayoutMemo = field(default_factory=LayoutMemo, compare=False, repr=False)  # shared by this layout's views
 
     @property
     def nodes(self) -> list[NodeSpec]:
@@ -44,9 +69,12 @@ class Bus:
         """The slowest edge of any node that may drive: what the bit-fraction budget is held against."""
         return max(self._rises(), default=self.driver.rise_time_s)
 
-    def _rises(self) -> list[float]:
-        rises = [self.devices[name].rise_time_s for name in self.drivers_possible]
-        return [r for r in rises if math.isfinite(r)]
+    def _rises(self) -> tuple[float, ...]:
+        def rises() -> tuple[float, ...]:
+            every = [self.devices[name].rise_time_s for name in self.drivers_possible]
+            return tuple(r for r in every if math.isfinite(r))
+
+        return self.memo.get(("rises", self.plan.standard), rises)
 
 
 def build_bus(plan: BusPlan) -> Bus:

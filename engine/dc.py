@@ -47,10 +47,14 @@ def receiver_loads_ohm(bus: Bus) -> list[float]:
 
 def listener_devices(bus: Bus) -> list[ResolvedDevice]:
     """The device of every listener, in listener_elements order."""
-    names = [n.name for n in bus.plan.nodes]
-    if bus.plan.standard == "rs485":
-        names.append(bus.plan.driver.name)
-    return [bus.devices[name] for name in names]
+
+    def devices() -> tuple[ResolvedDevice, ...]:
+        names = [n.name for n in bus.plan.nodes]
+        if bus.plan.standard == "rs485":
+            names.append(bus.plan.driver.name)
+        return tuple(bus.devices[name] for name in names)
+
+    return list(bus.memo.get(("listener_devices", bus.plan.standard), devices))
 
 
 def network_supply_v(bus: Bus, bias: BiasSpec) -> float:
@@ -167,19 +171,32 @@ def _thomas_v(link_siemens: np.ndarray, diag: np.ndarray, rhs: np.ndarray) -> np
 
 def receiver_elements(bus: Bus) -> list[DcElement]:
     """Every plan node as a receiver load (a node that may drive listens like a receiver while it does not)."""
-    return [
-        DcElement(n.name, n.position_m, n.stub_length_m, bus.devices[n.name].budget_input_ohm) for n in bus.plan.nodes
-    ]
+    return list(_receivers(bus))
+
+
+def _receivers(bus: Bus) -> tuple[DcElement, ...]:
+    def receivers() -> tuple[DcElement, ...]:
+        return tuple(
+            DcElement(n.name, n.position_m, n.stub_length_m, bus.devices[n.name].budget_input_ohm)
+            for n in bus.plan.nodes
+        )
+
+    return bus.memo.get("receiver_elements", receivers)
 
 
 def listener_elements(bus: Bus) -> list[DcElement]:
     """Every receiver listening while the bus idles: the nodes and, on RS-485, the primary driver's own receiver
     (on RS-422 the single driver has none)."""
-    listeners = receiver_elements(bus)
-    d = bus.plan.driver
-    if bus.plan.standard == "rs485":
-        listeners.append(DcElement(d.name, d.position_m, d.stub_length_m, bus.driver_device.budget_input_ohm))
-    return listeners
+    return list(_listeners(bus))
+
+
+def _listeners(bus: Bus) -> tuple[DcElement, ...]:
+    def listeners() -> tuple[DcElement, ...]:
+        d = bus.plan.driver
+        own = (DcElement(d.name, d.position_m, d.stub_length_m, bus.driver_device.budget_input_ohm),)
+        return _receivers(bus) + (own if bus.plan.standard == "rs485" else ())
+
+    return bus.memo.get(("listener_elements", bus.plan.standard), listeners)
 
 
 def terminator_elements(bus: Bus) -> list[DcElement]:
@@ -206,11 +223,17 @@ def fixed_load_elements(bus: Bus) -> list[DcElement]:
 
 def idle_levels_v(bus: Bus) -> tuple[tuple[str, ...], np.ndarray]:
     """Idle V_AB at every listener (listener_elements) with every driver off: the bias networks the only sources."""
-    listeners = listener_elements(bus)
-    elements = [*listeners, *fixed_load_elements(bus)]
-    sources_v = np.array([[e.source_v] for e in elements])
-    v = solve_dc_v(elements, bus.plan.trunk_length_m, bus.cable.resistance_ohm_per_m, sources_v)
-    return tuple(r.name for r in listeners), v[: len(listeners), 0]
+    listeners = _listeners(bus)
+    loads = tuple(fixed_load_elements(bus))
+
+    def solve() -> tuple[tuple[str, ...], np.ndarray]:
+        elements = [*listeners, *loads]
+        sources_v = np.array([[e.source_v] for e in elements])
+        v = solve_dc_v(elements, bus.plan.trunk_length_m, bus.cable.resistance_ohm_per_m, sources_v)
+        return tuple(r.name for r in listeners), _read_only(v[: len(listeners), 0])
+
+    key = ("idle_levels_v", bus.plan.standard, loads, bus.plan.trunk_length_m, bus.cable.resistance_ohm_per_m)
+    return bus.memo.get(key, solve)
 
 
 def bias_view(bus: Bus, position_m: float) -> tuple[float, np.ndarray]:
@@ -218,12 +241,31 @@ def bias_view(bus: Bus, position_m: float) -> tuple[float, np.ndarray]:
     every listener (listener_elements order), with the plan's bias networks left out. Both come from one ladder
     solve with a 1 V source there, so a bias of supply V_S behind 2 R_B at that point idles listener k at
     V_k = V_S t_k R_in / (2 R_B + R_in) (superposition: the rest of the network is passive)."""
-    listeners = listener_elements(bus)
-    probe = DcElement("probe", position_m, 0.0, _PROBE_OHM, 1.0)
-    elements = [*listeners, *terminator_elements(bus), probe]
-    sources_v = np.array([[e.source_v] for e in elements])
-    v = solve_dc_v(elements, bus.plan.trunk_length_m, bus.cable.resistance_ohm_per_m, sources_v)[:, 0]
-    v_point = float(v[-1])
-    current_a = (1.0 - v_point) / _PROBE_OHM
-    r_in = v_point / current_a if current_a > 0.0 else math.inf
-    return r_in, np.asarray(v[: len(listeners)] / v_point, dtype=float)
+    listeners = _listeners(bus)
+    terminators = tuple(terminator_elements(bus))
+
+    def solve() -> tuple[float, np.ndarray]:
+        probe = DcElement("probe", position_m, 0.0, _PROBE_OHM, 1.0)
+        elements = [*listeners, *terminators, probe]
+        sources_v = np.array([[e.source_v] for e in elements])
+        v = solve_dc_v(elements, bus.plan.trunk_length_m, bus.cable.resistance_ohm_per_m, sources_v)[:, 0]
+        v_point = float(v[-1])
+        current_a = (1.0 - v_point) / _PROBE_OHM
+        r_in = v_point / current_a if current_a > 0.0 else math.inf
+        return r_in, _read_only(np.asarray(v[: len(listeners)] / v_point, dtype=float))
+
+    key = (
+        "bias_view",
+        bus.plan.standard,
+        terminators,
+        position_m,
+        bus.plan.trunk_length_m,
+        bus.cable.resistance_ohm_per_m,
+    )
+    return bus.memo.get(key, solve)
+
+
+def _read_only(values: np.ndarray) -> np.ndarray:
+    """A solve's result as kept in the layout memo: shared by its callers, so no caller may change it."""
+    values.flags.writeable = False
+    return values

@@ -10,6 +10,7 @@ from dataclasses import dataclass
 
 from pairline.engine.bus import Bus
 from pairline.engine.findings import Finding, Verdict
+from pairline.engine.plan import BusPlan
 from pairline.engine.rules.bias import check_failsafe_bias
 from pairline.engine.rules.common_mode import check_common_mode
 from pairline.engine.rules.ground_wiring import check_ground_wiring
@@ -82,5 +83,13 @@ def run_rules(bus: Bus, *, quick: bool = False) -> RuleRun:
 
 
 def run_design_rules(bus: Bus) -> tuple[Finding, ...]:
-    """The rules a change of terminators or bias can move (no simulation), for their verdicts and values."""
-    return tuple(f for rule in DESIGN_RULES for f in rule(bus))
+    """The rules a change of terminators or bias can move (no simulation), for their verdicts and values. Run
+    once per plan of a layout: the design search, the advice's change list and the verified fixes weigh many
+    plans, often the same (engine.bus.LayoutMemo)."""
+    key = ("design_rules", _plan_key(bus.plan), bus.cable, bus.driver)
+    return bus.memo.get(key, lambda: tuple(f for rule in DESIGN_RULES for f in rule(bus)))
+
+
+def _plan_key(plan: BusPlan) -> tuple[object, ...]:
+    """Everything of a plan but its nodes (the layout memo's own), hashable."""
+    return tuple((name, tuple(value) if isinstance(value, list) else value) for name, value in plan if name != "nodes")

@@ -98,6 +98,10 @@ class ListenerNeed:
 def listener_needs(bus: Bus) -> list[ListenerNeed]:
     """Every listener (engine.dc.listener_elements order) with what its failsafe covers on this bus unbiased."""
     state = unbiased_state(bus)
+    return list(bus.memo.get(("listener_needs", bus.plan.standard, state), lambda: _listener_needs(bus, state)))
+
+
+def _listener_needs(bus: Bus, state: str) -> tuple[ListenerNeed, ...]:
     out = []
     for element, device in zip(listener_elements(bus), listener_devices(bus), strict=True):
         covered = covers(device, state)
@@ -110,7 +114,7 @@ def listener_needs(bus: Bus) -> list[ListenerNeed]:
             if device.failsafe == "open_short":
                 why = "a failsafe for open or shorted inputs only, which the terminators across the pair defeat"
         out.append(ListenerNeed(element.name, device, covered, why))
-    return out
+    return tuple(out)
 
 
 def names_text(names: "list[str] | tuple[str, ...]") -> str:

@@ -119,7 +119,10 @@ def corner_bus(
         factor = 1 + driver_output * SUPPLY_TOLERANCE
         driver = dataclasses.replace(driver, open_circuit_v=driver.open_circuit_v * factor)
         devices = scaled_outputs(devices, factor)
-    return Bus(plan=plan.model_copy(update=update) if update else plan, cable=cable, driver=driver, devices=devices)
+    corner = plan.model_copy(update=update) if update else plan
+    if devices is bus.devices:  # the same layout: its derived values are shared (engine.bus.LayoutMemo)
+        return Bus(plan=corner, cable=cable, driver=driver, devices=devices, memo=bus.memo)
+    return Bus(plan=corner, cable=cable, driver=driver, devices=devices)
 
 
 def band_verdict(nominal_inside: bool, corner_inside: bool) -> Verdict:

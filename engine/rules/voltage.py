@@ -88,11 +88,17 @@ def talker_levels(bus: Bus) -> TalkerLevels:
 
     Each talker drives with its own device's output (open-circuit voltage and source resistance) from the end of
     its stub, while the primary driver listens with its own receiver. Two cases per talker: its source on
-    (driver share) and the bias supplies on (bias share).
+    (driver share) and the bias supplies on (bias share). Solved once per layout, loads and cable (engine.bus.
+    LayoutMemo).
     """
+    loads = tuple(fixed_load_elements(bus))
+    key = ("talker_levels", bus.plan.standard, loads, bus.plan.trunk_length_m, bus.cable.resistance_ohm_per_m)
+    return bus.memo.get(key, lambda: _solve_talker_levels(bus, loads))
+
+
+def _solve_talker_levels(bus: Bus, loads: tuple[DcElement, ...]) -> TalkerLevels:
     d = bus.plan.driver
     receivers = receiver_elements(bus)
-    loads = fixed_load_elements(bus)
     elements = [DcElement(d.name, d.position_m, d.stub_length_m, bus.driver_device.source_ohm), *receivers, *loads]
     talkers = [0] + [1 + i for i, n in enumerate(bus.plan.nodes) if n.may_drive]
     if bus.plan.standard != "rs485":
@@ -121,6 +127,8 @@ def talker_levels(bus: Bus) -> TalkerLevels:
             driver_share[t, j - 1] = np.nan
             bias_share[t, j - 1] = np.nan
     devices = [bus.devices[r.name] for r in receivers]
+    for shares in (driver_share, bias_share):
+        shares.flags.writeable = False  # kept in the layout memo, shared by every caller
     return TalkerLevels(
         tuple(elements[j].name for j in talkers),
         tuple(r.name for r in receivers),
