@@ -165,18 +165,19 @@ def pattern_offsets_s(
     """The offsets refined for every probe of the step's first driver (to share with variants of the bus), to
     `tolerance` of each probe's peak-to-peak."""
     rows = np.arange(len(step.receiver_names))
-    return _offsets(step, rows, bit_time_s, pattern_memory_bits(step, bit_time_s, len(bits)), tolerance)
+    return _offsets(step, rows, bit_time_s, pattern_memory_bits(step, bit_time_s, len(bits)), tolerance)[0]
 
 
 def _offsets(
     step: StepResponses, rows: np.ndarray, bit_time_s: float, n_mem: int, tolerance: float = REFINE_TOLERANCE
-) -> np.ndarray:
-    """Offsets within a bit (module docstring), common to the probes `rows`."""
+) -> tuple[np.ndarray, np.ndarray | None]:
+    """Offsets within a bit (module docstring), common to the probes `rows`; and D at them, (n_rows, n_mem,
+    n_off), when the refinement evaluated every row at once (else None)."""
     t = step.time_s
     uniform = np.arange(UNIFORM_OFFSETS) * (bit_time_s / UNIFORM_OFFSETS)
     cand = np.unique(np.concatenate([np.mod(t[t < n_mem * bit_time_s], bit_time_s), uniform]))
     if cand.size <= 2 * UNIFORM_OFFSETS:
-        return cand
+        return cand, None
     fixed = np.isin(cand, uniform)
     v = step.v_diff_v[0][rows]
     ptp = np.maximum(np.ptp(v, axis=-1), np.abs(step.v_final_v[0][rows])) + 1e-30
@@ -188,7 +189,8 @@ def _offsets(
         vals = _deviation_at(step, block, (lags + cand[None, :]).ravel()).reshape(block.size * n_mem, cand.size)
         tol = np.repeat(tolerance * ptp[r0 : r0 + per_block], n_mem)
         keep |= _refine(cand, vals, fixed, tol)
-    return np.asarray(cand[keep])
+    at_kept = vals[:, keep].reshape(rows.size, n_mem, -1) if 0 < rows.size <= per_block else None
+    return np.asarray(cand[keep]), at_kept
 
 
 def _refine(cand: np.ndarray, vals: np.ndarray, fixed: np.ndarray, tol: np.ndarray) -> np.ndarray:
@@ -231,9 +233,10 @@ def local_patterns(
     rows = _receiver_index(step, receiver_names) if rows is None else np.asarray(rows, dtype=int)
     n_bits = len(bits)
     n_mem = pattern_memory_bits(step, bit_time_s, n_bits)
-    offsets = _offsets(step, rows, bit_time_s, n_mem) if offsets_s is None else offsets_s
-    d_mem = _deviation_at(step, rows, (np.arange(n_mem)[:, None] * bit_time_s + offsets[None, :]).ravel())
-    d_mem = d_mem.reshape(rows.size, n_mem, offsets.size)
+    offsets, d_mem = _offsets(step, rows, bit_time_s, n_mem) if offsets_s is None else (offsets_s, None)
+    if d_mem is None:  # the refinement's own values serve when it evaluated every row at once
+        d_mem = _deviation_at(step, rows, (np.arange(n_mem)[:, None] * bit_time_s + offsets[None, :]).ravel())
+        d_mem = d_mem.reshape(rows.size, n_mem, offsets.size)
     b = np.array([1.0 if c == "1" else 0.0 for c in bits])
     edges = 2.0 * np.diff(b, prepend=b[0])  # (n_bits,) in units of one 0 -> V_oc step; the first bit at rest
     # the convolution along the bit index: shifted adds for a short memory, else by FFT over bits (exact to
