@@ -20,7 +20,10 @@ END_TOLERANCE_CAP_M = 1.0
 
 def end_tolerance_m(bus: Bus) -> float:
     """How far from a cable end a terminator may sit and still count as at the end: min(1 m, stub limit)."""
-    return min(END_TOLERANCE_CAP_M, max_stub_length_m(bus.fastest_rise_time_s, bus.cable.velocity_factor))
+    return bus.memo.get(
+        ("end_tolerance_m", bus.plan.standard, bus.cable.velocity_factor),
+        lambda: min(END_TOLERANCE_CAP_M, max_stub_length_m(bus.fastest_rise_time_s, bus.cable.velocity_factor)),
+    )
 
 
 def nearest_end_m(bus: Bus, position_m: float) -> float | None:
@@ -54,9 +57,14 @@ def lumped_load_ohm(bus: Bus, position_m: float) -> float:
     """Receivers (and the bias network) within the end tolerance of a position, in parallel: R_P."""
     tol = end_tolerance_m(bus)
     plan = bus.plan
-    loads = [bus.devices[n.name].budget_input_ohm for n in plan.nodes if abs(n.position_m - position_m) <= tol]
-    if plan.standard == "rs485" and abs(plan.driver.position_m - position_m) <= tol:
-        loads.append(bus.driver_device.budget_input_ohm)
+
+    def receivers() -> tuple[float, ...]:
+        near = [bus.devices[n.name].budget_input_ohm for n in plan.nodes if abs(n.position_m - position_m) <= tol]
+        if plan.standard == "rs485" and abs(plan.driver.position_m - position_m) <= tol:
+            near.append(bus.driver_device.budget_input_ohm)
+        return tuple(near)
+
+    loads = [*bus.memo.get(("receivers_near", plan.standard, tol, position_m), receivers)]
     loads += [b.pull_up_ohm + b.pull_down_ohm for b in plan.bias if abs(b.position_m - position_m) <= tol]
     return parallel_ohm(*loads)
 

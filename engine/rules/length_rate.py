@@ -99,6 +99,11 @@ def loss_limited_rate_bps(bus: Bus, length_m: float, limit_db: float = LOSS_LIMI
     """Highest bit rate at which the attenuation at f = rate over length_m stays within limit_db (bisection in
     log f), clamped to the plan's range of rates: continuous in the length. The plateau is a length limit no
     rate changes; it is stated apart (plateau_length_m)."""
+    key = ("loss_limited_rate_bps", bus.cable, length_m, limit_db)
+    return bus.memo.get(key, lambda: _loss_limited_rate_bps(bus, length_m, limit_db))
+
+
+def _loss_limited_rate_bps(bus: Bus, length_m: float, limit_db: float) -> float:
     if line_loss_db(bus, MAX_RATE_BPS, length_m) <= limit_db:
         return MAX_RATE_BPS
     if line_loss_db(bus, MIN_RATE_BPS, length_m) > limit_db:

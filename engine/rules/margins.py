@@ -30,7 +30,7 @@ Tolerances (each rule states which it applies, and in which direction):
 import dataclasses
 from typing import Literal
 
-from pairline.engine.bus import Bus
+from pairline.engine.bus import Bus, LayoutMemo
 from pairline.engine.dc import network_supply_v
 from pairline.engine.devices import scaled_outputs
 from pairline.engine.findings import Verdict
@@ -114,15 +114,15 @@ def corner_bus(
     if cable_resistance:
         factor = cable_loop_factor() if cable_resistance > 0 else 1.0 / cable_loop_factor()
         cable = dataclasses.replace(cable, resistance_ohm_per_m=cable.resistance_ohm_per_m * factor)
-    driver, devices = bus.driver, bus.devices
+    driver, devices, memo = bus.driver, bus.devices, bus.memo  # the same layout shares its derived values
     if driver_output:
         factor = 1 + driver_output * SUPPLY_TOLERANCE
         driver = dataclasses.replace(driver, open_circuit_v=driver.open_circuit_v * factor)
-        devices = scaled_outputs(devices, factor)
-    corner = plan.model_copy(update=update) if update else plan
-    if devices is bus.devices:  # the same layout: its derived values are shared (engine.bus.LayoutMemo)
-        return Bus(plan=corner, cable=cable, driver=driver, devices=devices, memo=bus.memo)
-    return Bus(plan=corner, cable=cable, driver=driver, devices=devices)
+        # the devices at a supply corner are a layout of their own, made and memoised once per layout
+        devices, memo = bus.memo.get(("driver_output", factor), lambda: (scaled_outputs(devices, factor), LayoutMemo()))
+    return Bus(
+        plan=plan.model_copy(update=update) if update else plan, cable=cable, driver=driver, devices=devices, memo=memo
+    )
 
 
 def band_verdict(nominal_inside: bool, corner_inside: bool) -> Verdict:

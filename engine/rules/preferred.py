@@ -1,5 +1,6 @@
 """Resistor and capacitor values one can buy: the IEC 60063 preferred-number series, and how to pick from them."""
 
+import functools
 import math
 
 # IEC 60063 E24 and E6 series (mantissas of one decade).
@@ -26,10 +27,15 @@ def in_series(value: float, series: tuple[float, ...] = E24) -> bool:
     return any(abs(c / value - 1.0) < 1e-9 for c in _candidates(value, series))
 
 
-def _candidates(value: float, series: tuple[float, ...]) -> list[float]:
+def _candidates(value: float, series: tuple[float, ...]) -> tuple[float, ...]:
     """The series values of value's decade and the next decade's first, rounded to 6 significant digits."""
-    decade = 10.0 ** math.floor(math.log10(value))
-    return [float(f"{m * decade:.6g}") for m in series] + [float(f"{10.0 * decade:.6g}")]
+    return _decade(math.floor(math.log10(value)), series)
+
+
+@functools.lru_cache(maxsize=128)
+def _decade(exponent: int, series: tuple[float, ...]) -> tuple[float, ...]:
+    decade = 10.0**exponent
+    return tuple(float(f"{m * decade:.6g}") for m in series) + (float(f"{10.0 * decade:.6g}"),)
 
 
 def nearest_preferred(value: float, series: tuple[float, ...] = E24) -> float:

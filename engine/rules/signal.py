@@ -194,6 +194,7 @@ def check_signal_integrity(bus: Bus, simulation: Simulation | None = None) -> li
     findings = []
     fixes_by_node: dict[str, str] = {}
     corners = sim.tolerance.receivers if sim.tolerance is not None else (None,) * len(sim.worst)
+    at_the_ends = termination_step(bus)
     for node, (j, driver), corner in zip(bus.plan.nodes, sim.worst, corners, strict=True):
         verdict, reasons = banded(j, corner)
         tight_corner = corner if corner is not None and verdict is Verdict.TIGHT else None
@@ -213,7 +214,7 @@ def check_signal_integrity(bus: Bus, simulation: Simulation | None = None) -> li
         steps = []
         if node.stub_length_m > 0.0:
             steps.append(f"shorten its {length_text(node.stub_length_m)} stub")
-        steps.append(termination_step(bus))
+        steps.append(at_the_ends)
         fix = ""
         if tight_corner is not None:
             fix = (
