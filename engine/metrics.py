@@ -211,7 +211,7 @@ def pattern_metrics(
     has = finite.any(axis=1)
     known = np.where(finite, within, np.nan)
     with np.errstate(all="ignore"):
-        phase = np.where(has, np.nanmedian(np.where(has[:, None], known, 0.0), axis=1), 0.5 * local.edge_s)
+        phase = np.where(has, _row_nanmedian(np.where(has[:, None], known, 0.0)), 0.5 * local.edge_s)
         spread = np.where(
             finite.sum(axis=1) >= 2,
             np.nanmax(known, axis=1, initial=-np.inf) - np.nanmin(known, axis=1, initial=np.inf),
@@ -279,12 +279,13 @@ def pattern_metrics(
     settle = np.where(failed_at_centre.any(axis=1), np.inf, settle)
 
     # overshoot, ringback and false crossings inside each bit's own window
-    overshoot = np.maximum(0.0, (sv - amp).max(axis=(1, 2)))
-    peak = np.abs(v).max(axis=(1, 2))
+    # (rounding is monotonic, so the largest of x - a is the largest x less a, and so on)
+    overshoot = np.maximum(0.0, sv.max(axis=(1, 2)) - amp[:, 0, 0])
+    peak = np.maximum(v.max(axis=(1, 2)), -v.min(axis=(1, 2)))
     reaches = sv >= amp
     first_reach = np.argmax(reaches, axis=2)  # (n_rx, n_bits)
-    after_min = np.minimum.accumulate(sv[..., ::-1], axis=2)[..., ::-1]  # lowest level from each sample on
-    dip = amp[..., 0] - np.take_along_axis(after_min, first_reach[..., None], 2)[..., 0]
+    after_reach = np.arange(n_off) >= first_reach[..., None]
+    dip = amp[..., 0] - np.where(after_reach, sv, np.inf).min(axis=2)  # the lowest level once it has reached it
     undershoot = np.maximum(0.0, np.where(reaches.any(axis=2), dip, 0.0).max(axis=1))
     recross = _recrossings(sv, threshold_v, threshold_v - 2.0 * ACCURACY * amp[..., 0])
 
@@ -318,6 +319,19 @@ def pattern_metrics(
             )
         )
     return out
+
+
+def _row_nanmedian(x: np.ndarray) -> np.ndarray:
+    """The median of each row's values that are not NaN, (n_rows,): the middle one, or the mean of the middle two
+    (as np.nanmedian, without its masked-array path); NaN for a row of none."""
+    if x.shape[1] == 0:
+        return np.full(x.shape[0], np.nan)
+    ordered = np.sort(x, axis=1)  # NaN last
+    count = np.count_nonzero(~np.isnan(x), axis=1)
+    rows = np.arange(x.shape[0])
+    low = ordered[rows, np.maximum((count - 1) // 2, 0)]
+    high = ordered[rows, count // 2]
+    return np.asarray(np.where(count % 2 == 1, low, (low + high) / 2.0))
 
 
 def _recrossings(sv: np.ndarray, threshold_v: float, below_v: np.ndarray) -> np.ndarray:
