@@ -234,19 +234,21 @@ def pattern_metrics(
         n_rx, n_s, 5
     )
     s_marks = extra[..., :3]  # (n_rx, n_s, 3): window start, centre, window end
+    rows = np.arange(n_rx)[:, None]
+    along = np.arange(n_off)[None, :]
+    # each receiver's offsets rotated to start at its phase; its levels read from bit n at offsets k.. and from
+    # bit n + 1 at those before k (one contiguous run of the flattened pattern from offset k of bit 0 on)
     tau = np.empty((n_rx, n_off + 2))
+    tau[:, 1:-1] = np.concatenate([u, u + t_bit])[k[:, None] + along] - phase[:, None]
+    tau[:, 0], tau[:, -1] = ends[:, 0], ends[:, 1]
     s_rows = np.empty((n_rx, n_s, n_off + 2))
-    window_min = s_marks.min(axis=2)  # (n_rx, n_s)
-    for r in range(n_rx):
-        rotated = np.concatenate([u[k[r] :], u[: k[r]] + t_bit]) - phase[r]
-        tau[r] = np.concatenate([ends[r, :1], rotated, ends[r, 1:]])
-        s_rows[r, :, 1:-1] = level[:n_s, None] * flat[r, k[r] : k[r] + n_s * n_off].reshape(n_s, n_off)
-        a_r = int(np.searchsorted(tau[r], centre - half, side="left"))
-        b_r = int(np.searchsorted(tau[r], centre + half, side="right"))
-        if b_r > a_r:
-            window_min[r] = np.minimum(window_min[r], s_rows[r, :, a_r:b_r].min(axis=1))
+    run = flat[rows, k[:, None] + np.arange(n_s * n_off)[None, :]].reshape(n_rx, n_s, n_off)
+    s_rows[:, :, 1:-1] = level[None, :n_s, None] * run
     s_rows[:, :, 0] = extra[..., 3]
     s_rows[:, :, -1] = extra[..., 4]
+    # the rows of tau ascend, so a count of those below a time is where it sorts in
+    inside = (tau >= centre - half) & (tau <= centre + half)  # (n_rx, n_off + 2): the window's own samples
+    window_min = np.minimum(s_marks.min(axis=2), np.where(inside[:, None, :], s_rows, np.inf).min(axis=2))
     min_sample = window_min.min(axis=1)
     errors = np.count_nonzero(window_min < threshold_v, axis=1)
     at_centre = s_marks[..., 1]  # (n_rx, n_s)
@@ -255,25 +257,23 @@ def pattern_metrics(
         eye_height = at_centre[:, ones].min(axis=1) + at_centre[:, zeros].min(axis=1)
     else:
         eye_height = 2.0 * at_centre.min(axis=1)
-    j_c = np.clip(np.array([np.searchsorted(t, centre) for t in tau]), 1, tau.shape[1] - 2)
+    j_c = np.clip(np.count_nonzero(tau < centre, axis=1), 1, tau.shape[1] - 2)
     widths = np.where(at_centre.min(axis=1) < threshold_v, 0.0, _eye_width_s(tau, s_rows.min(axis=1), threshold_v, j_c))
 
     # settling: in each edge bit, the last rise through the threshold before the sampling instant (interpolated)
-    settle = np.zeros(n_rx)
     edges_s = np.flatnonzero(edge[:n_s])
-    for r in range(n_rx):
-        upto = int(j_c[r]) + 1
-        rows_r = s_rows[r, edges_s, :upto]  # (n_edges, upto)
-        bad = rows_r < threshold_v
-        if not bad.any():
-            continue
-        last = np.where(bad.any(axis=1), upto - 1 - np.argmax(bad[:, ::-1], axis=1), -1)
-        i = np.clip(last, 0, upto - 2)
-        s0, s1 = rows_r[np.arange(i.size), i], s_rows[r, edges_s, i + 1]
-        t0, t1 = tau[r, i], tau[r, i + 1]
-        with np.errstate(divide="ignore", invalid="ignore"):
-            rise = np.where(s1 != s0, t0 + (threshold_v - s0) / (s1 - s0) * (t1 - t0), t1)
-        settle[r] = np.where(last < 0, 0.0, rise).max(initial=0.0)
+    at_edges = s_rows[:, edges_s, :]  # (n_rx, n_edges, n_off + 2)
+    upto = j_c + 1  # (n_rx,) samples up to the sampling instant
+    before = np.arange(n_off + 2)[None, None, :] < upto[:, None, None]
+    bad = (at_edges < threshold_v) & before
+    last = np.where(bad.any(axis=2), n_off + 1 - np.argmax(bad[..., ::-1], axis=2), -1)  # (n_rx, n_edges)
+    i = np.clip(last, 0, (upto - 2)[:, None])
+    s0 = np.take_along_axis(at_edges, i[..., None], 2)[..., 0]
+    s1 = np.take_along_axis(at_edges, i[..., None] + 1, 2)[..., 0]
+    t0, t1 = np.take_along_axis(tau, i, 1), np.take_along_axis(tau, i + 1, 1)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        rise = np.where(s1 != s0, t0 + (threshold_v - s0) / (s1 - s0) * (t1 - t0), t1)
+    settle = np.where(last < 0, 0.0, rise).max(axis=1, initial=0.0)
     settle = phase + settle
     failed_at_centre = s_marks[:, edge[:n_s], 1] < threshold_v
     settle = np.where(failed_at_centre.any(axis=1), np.inf, settle)
