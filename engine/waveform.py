@@ -186,14 +186,32 @@ def _offsets(
     keep = fixed.copy()
     for r0 in range(0, rows.size, per_block):
         block = rows[r0 : r0 + per_block]
-        vals = _deviation_at(step, block, (lags + cand[None, :]).ravel()).reshape(block.size * n_mem, cand.size)
+        vals = _Deviations(step, block, lags, cand)
         tol = np.repeat(tolerance * ptp[r0 : r0 + per_block], n_mem)
         keep |= _refine(cand, vals, fixed, tol)
-    at_kept = vals[:, keep].reshape(rows.size, n_mem, -1) if 0 < rows.size <= per_block else None
+    at_kept = vals.at(np.flatnonzero(keep)).reshape(rows.size, n_mem, -1) if 0 < rows.size <= per_block else None
     return np.asarray(cand[keep]), at_kept
 
 
-def _refine(cand: np.ndarray, vals: np.ndarray, fixed: np.ndarray, tol: np.ndarray) -> np.ndarray:
+class _Deviations:
+    """D of some probes at every lag plus each candidate offset, (n_rows * n_mem, n_cand), each candidate's column
+    evaluated the first time the refinement reads it: bisection reads only some of them."""
+
+    def __init__(self, step: StepResponses, rows: np.ndarray, lags: np.ndarray, cand: np.ndarray):
+        self.step, self.rows, self.lags, self.cand = step, rows, lags, cand
+        self.values = np.empty((rows.size * lags.size, cand.size))
+        self.known = np.zeros(cand.size, dtype=bool)
+
+    def at(self, columns: np.ndarray) -> np.ndarray:
+        missing = np.unique(columns[~self.known[columns]])
+        if missing.size:
+            local_s = (self.lags + self.cand[None, missing]).ravel()
+            self.values[:, missing] = _deviation_at(self.step, self.rows, local_s).reshape(-1, missing.size)
+            self.known[missing] = True
+        return self.values[:, columns]
+
+
+def _refine(cand: np.ndarray, vals: _Deviations, fixed: np.ndarray, tol: np.ndarray) -> np.ndarray:
     """Bisect between kept candidates wherever linear interpolation misses a row by more than its tolerance."""
     keep = fixed.copy()
     keep[[0, -1]] = True
@@ -207,7 +225,7 @@ def _refine(cand: np.ndarray, vals: np.ndarray, fixed: np.ndarray, tol: np.ndarr
             break
         mid = (left + right) // 2
         w = (cand[mid] - cand[left]) / (cand[right] - cand[left])
-        err = (np.abs(vals[:, mid] - (vals[:, left] * (1.0 - w) + vals[:, right] * w)) / tol[:, None]).max(axis=0)
+        err = (np.abs(vals.at(mid) - (vals.at(left) * (1.0 - w) + vals.at(right) * w)) / tol[:, None]).max(axis=0)
         if not np.any(err > 1.0):
             break
         keep[mid[err > 1.0]] = True
