@@ -234,7 +234,6 @@ def pattern_metrics(
         n_rx, n_s, 5
     )
     s_marks = extra[..., :3]  # (n_rx, n_s, 3): window start, centre, window end
-    rows = np.arange(n_rx)[:, None]
     along = np.arange(n_off)[None, :]
     # each receiver's offsets rotated to start at its phase; its levels read from bit n at offsets k.. and from
     # bit n + 1 at those before k (one contiguous run of the flattened pattern from offset k of bit 0 on)
@@ -242,13 +241,17 @@ def pattern_metrics(
     tau[:, 1:-1] = np.concatenate([u, u + t_bit])[k[:, None] + along] - phase[:, None]
     tau[:, 0], tau[:, -1] = ends[:, 0], ends[:, 1]
     s_rows = np.empty((n_rx, n_s, n_off + 2))
-    run = flat[rows, k[:, None] + np.arange(n_s * n_off)[None, :]].reshape(n_rx, n_s, n_off)
+    run = np.stack([flat[r, k[r] : k[r] + n_s * n_off] for r in range(n_rx)]).reshape(n_rx, n_s, n_off)
     s_rows[:, :, 1:-1] = level[None, :n_s, None] * run
     s_rows[:, :, 0] = extra[..., 3]
     s_rows[:, :, -1] = extra[..., 4]
-    # the rows of tau ascend, so a count of those below a time is where it sorts in
-    inside = (tau >= centre - half) & (tau <= centre + half)  # (n_rx, n_off + 2): the window's own samples
-    window_min = np.minimum(s_marks.min(axis=2), np.where(inside[:, None, :], s_rows, np.inf).min(axis=2))
+    # the rows of tau ascend, so a count of those below a time is where it sorts in: the window's own samples
+    # are a_r <= j < b_r
+    a = np.count_nonzero(tau < centre - half, axis=1)
+    b = np.count_nonzero(tau <= centre + half, axis=1)
+    window_min = s_marks.min(axis=2)  # (n_rx, n_s)
+    for row in np.flatnonzero(b > a):
+        window_min[row] = np.minimum(window_min[row], s_rows[row, :, a[row] : b[row]].min(axis=1))
     min_sample = window_min.min(axis=1)
     errors = np.count_nonzero(window_min < threshold_v, axis=1)
     at_centre = s_marks[..., 1]  # (n_rx, n_s)

@@ -315,6 +315,49 @@ def _sections(z: np.ndarray, y: np.ndarray, s: np.ndarray, speed: np.ndarray, le
 
 
 @dataclass(frozen=True, slots=True)
+class Branching:
+    """What a solve needs of the layout whatever its Laplace points: branches alike in every variant (same stub
+    length and load) grouped into kinds, the distinct stub and trunk-segment lengths, and which junctions carry
+    more than one branch. Made once (branching) for the several solves of one edge response."""
+
+    first: np.ndarray  # (n_kinds,) a branch of each kind
+    kind_of: np.ndarray  # (n_b,) each branch's kind
+    stub_len_m: np.ndarray  # (n_stub_lengths,) distinct stub lengths
+    stub_kind: np.ndarray  # (n_kinds,) each kind's stub length, as an index into stub_len_m
+    shunt_junction: np.ndarray  # (n_b,) the junction of each branch, branches ordered by junction
+    shunt_kind: np.ndarray  # (n_b,) the kind of each branch in that order
+    starts: np.ndarray  # positions in that order where a new junction begins
+    further: np.ndarray  # the other positions: further branches on a junction already counted
+    seg_len_m: np.ndarray  # (n_segment_lengths,) distinct trunk segment lengths
+    seg_of: np.ndarray  # (K - 1,) each segment's length, as an index into seg_len_m
+
+
+def branching(topo: Topology, var: NetworkVariants) -> Branching:
+    """The layout's Branching for these variants' loads (the cables do not enter it)."""
+    loads = [var.conductance_siemens, var.capacitance_f, var.series_rc_ohm, var.series_rc_f]
+    params = np.column_stack([np.round(topo.branch_stub_m, 9)] + [a.T for a in loads])
+    _, first, kind_of = np.unique(params, axis=0, return_index=True, return_inverse=True)
+    kind_of = kind_of.ravel()
+    stub_len, stub_kind = np.unique(np.round(topo.branch_stub_m[first], 9), return_inverse=True)
+    order = np.argsort(topo.branch_junction, kind="stable")
+    bj = topo.branch_junction[order]
+    starts = np.flatnonzero(np.r_[True, bj[1:] != bj[:-1]])
+    seg_len, seg_of = np.unique(np.round(topo.segment_length_m, 9), return_inverse=True)
+    return Branching(
+        first=first,
+        kind_of=kind_of,
+        stub_len_m=stub_len,
+        stub_kind=stub_kind,
+        shunt_junction=bj,
+        shunt_kind=kind_of[order],
+        starts=starts,
+        further=np.setdiff1d(np.arange(order.size), starts),
+        seg_len_m=seg_len,
+        seg_of=seg_of,
+    )
+
+
+@dataclass(frozen=True, slots=True)
 class Network:
     """The passive bus (every node a load) solved at Laplace points s: what any driver needs.
 
@@ -345,14 +388,17 @@ def solve_network(
     topo: Topology | None = None,
     driver_names: "tuple[str, ...] | None" = None,
     variants: NetworkVariants | None = None,
+    kinds: Branching | None = None,
 ) -> Network:
     """Steps 1-3 of the module docstring: branch admittances, both sweeps, outward voltage ratios.
 
     driver_names: the drivers the network will be asked about (None: every node that may drive); the sweeps
     only cover what they need. variants: n_v variants of cable and loads (None: the plan itself, n_v = 1).
+    kinds: branching(topo, variants), when the caller solves the same layout more than once.
     """
     topo = build_topology(bus) if topo is None else topo
     var = nominal_variant(bus, topo) if variants is None else variants
+    kinds = branching(topo, var) if kinds is None else kinds
     s_arr = np.atleast_1d(np.asarray(s, dtype=complex))
     n_s = s_arr.size
     z = np.stack([series_impedance_ohm_per_m(c, s_arr) for c in var.cables])  # (n_v, n_s)
@@ -363,12 +409,9 @@ def solve_network(
 
     # 1. branches: identical ones (same stub length and load in every variant) share one computation
     loads = [var.conductance_siemens, var.capacitance_f, var.series_rc_ohm, var.series_rc_f]
-    params = np.column_stack([np.round(topo.branch_stub_m, 9)] + [a.T for a in loads])
-    _, first, kind_of = np.unique(params, axis=0, return_index=True, return_inverse=True)
-    kind_of = kind_of.ravel()
-    stub_len, stub_kind = np.unique(np.round(topo.branch_stub_m[first], 9), return_inverse=True)
-    stubs = _sections(z, y, s_arr, speed, stub_len)
-    g_k, c_k, rc_ohm_k, rc_f_k = (a[:, first] for a in loads)
+    stub_kind = kinds.stub_kind
+    stubs = _sections(z, y, s_arr, speed, kinds.stub_len_m)
+    g_k, c_k, rc_ohm_k, rc_f_k = (a[:, kinds.first] for a in loads)
     y_load = _load_admittance(g_k, c_k, rc_ohm_k, rc_f_k, s_arr)  # (n_v, n_kinds, n_s)
     zt_k = stubs.z_tanh_ohm[:, stub_kind]
     yt_k = stubs.y_tanh_siemens[:, stub_kind]
@@ -376,16 +419,14 @@ def solve_network(
     branch_y = np.ascontiguousarray(np.moveaxis((yt_k + y_load) * inv_k, 1, 0))  # (n_kinds, n_v, n_s)
     rx_stub = np.ascontiguousarray(np.moveaxis(stubs.sech_advanced[:, stub_kind] * inv_k, 1, 0))
     y_shunt = np.zeros((k_count, n_v, n_s), dtype=complex)
-    order = np.argsort(topo.branch_junction, kind="stable")
-    bj = topo.branch_junction[order]
-    starts = np.flatnonzero(np.r_[True, bj[1:] != bj[:-1]])
-    y_shunt[bj[starts]] = branch_y[kind_of[order[starts]]]
-    for e in np.setdiff1d(np.arange(order.size), starts):  # further branches sharing a junction
-        y_shunt[bj[e]] += branch_y[kind_of[order[e]]]
+    bj, starts = kinds.shunt_junction, kinds.starts
+    y_shunt[bj[starts]] = branch_y[kinds.shunt_kind[starts]]
+    for e in kinds.further:  # further branches sharing a junction
+        y_shunt[bj[e]] += branch_y[kinds.shunt_kind[e]]
 
     # 2-3. sweeps along the trunk, with the voltage ratio across every segment on the way
-    seg_len, seg_of = np.unique(np.round(topo.segment_length_m, 9), return_inverse=True)
-    seg = _sections(z, y, s_arr, speed, seg_len)
+    seg_of = kinds.seg_of
+    seg = _sections(z, y, s_arr, speed, kinds.seg_len_m)
     sech = np.ascontiguousarray(np.moveaxis(seg.sech_advanced, 1, 0))  # (n_len, n_v, n_s)
     zt = np.ascontiguousarray(np.moveaxis(seg.z_tanh_ohm, 1, 0))
     yt = np.ascontiguousarray(np.moveaxis(seg.y_tanh_siemens, 1, 0))
@@ -421,7 +462,7 @@ def solve_network(
         s=s_arr,
         speed_m_per_s=speed,
         source_ohm=np.asarray(var.source_ohm, dtype=float),
-        stub_of=kind_of,
+        stub_of=kinds.kind_of,
         stub_sech=np.ascontiguousarray(np.moveaxis(stubs.sech_advanced[:, stub_kind], 1, 0)),
         stub_z_tanh_ohm=np.ascontiguousarray(np.moveaxis(zt_k, 1, 0)),
         stub_y_tanh_siemens=np.ascontiguousarray(np.moveaxis(yt_k, 1, 0)),
@@ -514,6 +555,7 @@ def front_gain(
     points: ProbePoints,
     s_real: float,
     variants: NetworkVariants | None = None,
+    kinds: Branching | None = None,
 ) -> np.ndarray:
     """Amplitude of the wave front reaching each probe, per volt of open-circuit drive, (n_v, n_drivers, n_p): the
     delay-normalised transfer at one large real Laplace point s_real (module docstring). A front that the cable
@@ -525,7 +567,7 @@ def front_gain(
     measurable to it over a bus."""
     var = nominal_variant(bus, topo) if variants is None else variants
     cables = tuple(replace(c, dielectric_loss_tangent=0.0) for c in var.cables)
-    net = solve_network(bus, np.array([s_real]), topo, driver_names, replace(var, cables=cables))
+    net = solve_network(bus, np.array([s_real]), topo, driver_names, replace(var, cables=cables), kinds)
     return np.asarray(probe_spectra(net, driver_names, points, advanced=True)[..., 0].real)
 
 

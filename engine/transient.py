@@ -54,13 +54,16 @@ from pairline.engine.bus import Bus
 from pairline.engine.line import propagation_constant_per_m
 from pairline.engine.plan import BusInputError, Problem
 from pairline.engine.solve import (
+    Branching,
     NetworkVariants,
     Probe,
     ProbePoints,
     Topology,
+    branching,
     build_topology,
     front_gain,
     node_probe,
+    nominal_variant,
     probe_delays_s,
     probe_points,
     probe_spectra,
@@ -169,10 +172,11 @@ class _Levels:
         front: np.ndarray,
         t_edges_s: np.ndarray,
         grid_edge_s: float,
+        kinds: Branching,
         variants: NetworkVariants | None = None,
         network_of: np.ndarray | None = None,
     ):
-        self.bus, self.topo, self.names, self.points = bus, topo, names, points
+        self.bus, self.topo, self.names, self.points, self.kinds = bus, topo, names, points, kinds
         self.front = front  # (n_v, n_d, n_p) per volt of drive
         self.t_edges = np.asarray(t_edges_s, dtype=float)  # (n_v,) each variant's ramp
         self.t_edge = grid_edge_s  # the ramp the grids are chosen for (the fastest)
@@ -202,7 +206,7 @@ class _Levels:
             spectra = np.empty((n_v, len(group), n_p, s.size), dtype=complex)
             for p0 in range(0, s.size, self.points_per_solve):
                 part = slice(p0, p0 + self.points_per_solve)
-                net = solve_network(self.bus, s[part], self.topo, group, self.variants)
+                net = solve_network(self.bus, s[part], self.topo, group, self.variants, self.kinds)
                 spectra[..., part] = probe_spectra(net, group, self.points, advanced=True)[self.network_of]
             spectra -= self.front[:, d0 : d0 + len(group), :, None]
             spectra *= x_edge[:, None, None, :]
@@ -345,12 +349,13 @@ def step_responses(
     points = probe_points(bus, topo, chosen)
     v_oc = bus.driver.open_circuit_v
     t_edge = edge_duration_s(bus.driver.rise_time_s)
-    dc = solve_network(bus, np.zeros(1), topo, names)
+    kinds = branching(topo, nominal_variant(bus, topo))  # shared by every solve below
+    dc = solve_network(bus, np.zeros(1), topo, names, kinds=kinds)
     v_final = v_oc * probe_spectra(dc, names, points)[0, ..., 0].real
     start = probe_delays_s(dc, names, points)[0]
     dt_min = t_edge / MAX_SAMPLES_PER_EDGE
-    front = front_gain(bus, topo, names, points, np.pi * FINE_LOWPASS / dt_min)
-    levels = _Levels(bus, topo, names, points, front, np.array([t_edge]), t_edge)
+    front = front_gain(bus, topo, names, points, np.pi * FINE_LOWPASS / dt_min, kinds=kinds)
+    levels = _Levels(bus, topo, names, points, front, np.array([t_edge]), t_edge, kinds)
 
     horizon = t_edge + 6.0 * longest_delay_s(bus)  # settled is only declared past this
     round_trip = t_edge + 2.0 * longest_delay_s(bus)
@@ -447,12 +452,13 @@ def variant_step_responses(
     v_oc = bus.driver.open_circuit_v
     t_edges = np.asarray(rise_times_s, dtype=float) / 0.8
     grid_edge = edge_duration_s(grid.rise_time_s)
-    dc = solve_network(bus, np.zeros(1), topo, names, variants)
+    kinds = branching(topo, variants)  # shared by every solve below
+    dc = solve_network(bus, np.zeros(1), topo, names, variants, kinds)
     v_final = v_oc * probe_spectra(dc, names, points)[..., 0].real[network_of]  # (n_v, 1, n_p)
     start = probe_delays_s(dc, names, points)[network_of]
     dt_min = grid_edge / MAX_SAMPLES_PER_EDGE
-    front = front_gain(bus, topo, names, points, np.pi * FINE_LOWPASS / dt_min, variants)[network_of]
-    levels = _Levels(bus, topo, names, points, front, t_edges, grid_edge, variants, network_of)
+    front = front_gain(bus, topo, names, points, np.pi * FINE_LOWPASS / dt_min, variants, kinds)[network_of]
+    levels = _Levels(bus, topo, names, points, front, t_edges, grid_edge, kinds, variants, network_of)
     values = np.concatenate(
         [
             levels.total(levels.remainder(dt, n, first, end), np.arange(first, end) * dt)
