@@ -4,13 +4,13 @@ The rules that depend on the terminators and the bias network (DESIGN_RULES) are
 solves; the advice re-runs them on every design it weighs. The simulation runs once per plan checked.
 """
 
+import dataclasses
 import functools
 from collections.abc import Callable
 from dataclasses import dataclass
 
 from pairline.engine.bus import Bus
 from pairline.engine.findings import Finding, Verdict
-from pairline.engine.plan import BusPlan
 from pairline.engine.rules.bias import check_failsafe_bias
 from pairline.engine.rules.common_mode import check_common_mode
 from pairline.engine.rules.ground_wiring import check_ground_wiring
@@ -42,6 +42,7 @@ RULES: tuple[RuleCheck, ...] = (
     check_signal_integrity,
 )
 # Weighed for their verdicts only, so the bias rule skips its fix sentence here.
+_BIAS_WITHOUT_FIX = functools.partial(check_failsafe_bias, with_fix=False)
 DESIGN_RULES: tuple[RuleCheck, ...] = (
     check_unit_loads,
     check_driver_load,
@@ -49,7 +50,7 @@ DESIGN_RULES: tuple[RuleCheck, ...] = (
     check_unterminated,
     check_ac_termination,
     check_receiver_voltage,
-    functools.partial(check_failsafe_bias, with_fix=False),
+    _BIAS_WITHOUT_FIX,
     check_resistor_power,
 )
 SIGNAL_RULE_IDS = frozenset({"signal.integrity", "signal.confirms"})
@@ -71,7 +72,11 @@ def run_rules(bus: Bus, *, quick: bool = False) -> RuleRun:
     verdict needs them, when every other finding and every receiver's nominal waveform holds: a corner can only
     make a holding receiver tight, so the verdict is always that of the full run."""
     simulation = simulate_bus(bus, tolerance=not quick)
-    findings = [f for rule in RULES[:-1] for f in rule(bus)]
+    by_rule = {rule: rule(bus) for rule in RULES[:-1]}
+    findings = [f for found in by_rule.values() for f in found]
+    # the design rules' findings for this plan are among these: the advice weighs the plan as one of its designs
+    by_rule[_BIAS_WITHOUT_FIX] = [dataclasses.replace(f, fix="") for f in by_rule[check_failsafe_bias]]
+    bus.memo.get(_design_key(bus), lambda: tuple(f for rule in DESIGN_RULES for f in by_rule[rule]))
     if (
         quick
         and all(f.verdict is Verdict.HOLDS for f in findings)
@@ -86,10 +91,11 @@ def run_design_rules(bus: Bus) -> tuple[Finding, ...]:
     """The rules a change of terminators or bias can move (no simulation), for their verdicts and values. Run
     once per plan of a layout: the design search, the advice's change list and the verified fixes weigh many
     plans, often the same (engine.bus.LayoutMemo)."""
-    key = ("design_rules", _plan_key(bus.plan), bus.cable, bus.driver)
-    return bus.memo.get(key, lambda: tuple(f for rule in DESIGN_RULES for f in rule(bus)))
+    return bus.memo.get(_design_key(bus), lambda: tuple(f for rule in DESIGN_RULES for f in rule(bus)))
 
 
-def _plan_key(plan: BusPlan) -> tuple[object, ...]:
-    """Everything of a plan but its nodes (the layout memo's own), hashable."""
-    return tuple((name, tuple(value) if isinstance(value, list) else value) for name, value in plan if name != "nodes")
+def _design_key(bus: Bus) -> tuple[object, ...]:
+    """The design rules' key in the layout memo: everything of the plan but its nodes (the memo's own), the cable
+    and the driver, hashable."""
+    plan = tuple((name, tuple(v) if isinstance(v, list) else v) for name, v in bus.plan if name != "nodes")
+    return ("design_rules", plan, bus.cable, bus.driver)
