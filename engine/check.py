@@ -153,10 +153,11 @@ def devices_to_list(bus: Bus) -> list[dict[str, Any]]:
     ]
 
 
-def advice_to_dict(advice: Advice) -> dict[str, Any]:
-    """The advised plan (a plan document like any other), its change list and its own check."""
+def advice_to_dict(advice: Advice, *, with_findings: bool = True) -> dict[str, Any]:
+    """The advised plan (a plan document like any other), its change list and its own check: its verdict and
+    counts, and (with_findings) every finding."""
     findings = advice.findings
-    return {
+    out = {
         "plan": plan_to_dict(advice.plan),
         "changes": [change_to_dict(c) for c in advice.changes],
         "verdict": advice.verdict.value,
@@ -166,12 +167,15 @@ def advice_to_dict(advice: Advice) -> dict[str, Any]:
             {"rule_id": u.rule_id, "nodes": list(u.nodes), "why": u.why, "remedies": list(u.remedies), "text": u.text}
             for u in advice.unmet
         ],
-        "findings": [finding_to_dict(f) for f in findings],
     }
+    if with_findings:
+        out["findings"] = [finding_to_dict(f) for f in findings]
+    return out
 
 
-def report_to_dict(report: PlanReport) -> dict[str, Any]:
-    """The report as plain JSON types: strings, finite floats or null, ints, lists and dicts."""
+def report_to_dict(report: PlanReport, *, advice_findings: bool = True) -> dict[str, Any]:
+    """The report as plain JSON types: strings, finite floats or null, ints, lists and dicts. advice_findings
+    False leaves out the advised plan's own findings (its verdict and counts stay)."""
     s = report.summary
     counts = {v.value: sum(1 for f in report.findings if f.verdict is v) for v in Verdict}
     return {
@@ -240,7 +244,7 @@ def report_to_dict(report: PlanReport) -> dict[str, Any]:
                 for b in s.bom
             ],
         },
-        "advice": advice_to_dict(report.advice),
+        "advice": advice_to_dict(report.advice, with_findings=advice_findings),
     }
 
 

@@ -560,7 +560,8 @@ def _summary_data(summary: Any, units: UnitSystem) -> dict[str, Any]:
 
 
 def check_data(report: Any) -> dict[str, Any]:
-    """A checked plan without simulated pictures (the JSON API's check and the editor's live verdict)."""
+    """A checked plan without simulated pictures (the JSON API's check and the editor's live verdict): the report
+    without the advised plan's own findings (its verdict, counts and changes stay; a saved plan's page has them)."""
     plan: BusPlan = report.plan
     units: UnitSystem = plan.display_units
     anchors = {n.name: node_anchor(i) for i, n in enumerate(plan.nodes)} | {plan.driver.name: "driver"}
@@ -585,7 +586,7 @@ def check_data(report: Any) -> dict[str, Any]:
             "danger": danger_data(plan),
         }
     )
-    data["report"] = report_to_dict(report)
+    data["report"] = report_to_dict(report, advice_findings=False)
     return data
 
 

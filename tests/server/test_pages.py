@@ -237,6 +237,17 @@ def test_json_api_checks_saves_and_reads_plans(client):
     assert client.get("/api/plans/doesnotexist0000").status_code == 404
 
 
+def test_json_api_check_answers_the_report_without_the_advised_plans_findings(client):
+    # common practice: the live verdict reads the plan's own findings; the advised plan's are on the saved page
+    body = client.post("/api/check", json=PLAN_DOC).json()
+    report = body["report"]
+    assert report["findings"] and all(f["rule_id"] and f["verdict"] for f in report["findings"])
+    assert sum(body["counts"].values()) == len(report["findings"])
+    advice = report["advice"]
+    assert "findings" not in advice and advice["verdict"] in ("holds", "tight", "breaks")
+    assert sum(advice["counts"].values()) > 0 and "changes" in advice and advice["plan"]["nodes"]
+
+
 def test_json_api_errors_use_one_envelope(client):
     problem = assert_problem(
         client.post("/api/check", json=PLAN_DOC | {"trunk_length_m": 5000}), field="trunk_length_m"
