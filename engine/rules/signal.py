@@ -28,7 +28,7 @@ import dataclasses
 from dataclasses import dataclass
 
 import numpy as np
-from pairline.engine.bus import Bus, build_bus, talker_groups
+from pairline.engine.bus import Bus, build_bus, talker_groups, with_plan
 from pairline.engine.findings import Finding, Verdict, worst
 from pairline.engine.fixes import ComputedFix, SignalJudgement, compute_fixes, judge_bus, level_breaks
 from pairline.engine.metrics import ReceiverMetrics, SampledLevels
@@ -437,7 +437,7 @@ def confirm_termination_rule(bus: Bus, judged: dict[str, SignalJudgement] | None
     if not plan.terminations:
         judged = judged if judged is not None else judge_bus(bus)
     else:
-        judged = judge_bus(build_bus(plan.model_copy(update={"terminations": []})), receivers=_watch_list(bus, judged))
+        judged = judge_bus(with_plan(bus, plan.model_copy(update={"terminations": []})), receivers=_watch_list(bus, judged))
     worst_rx = max(judged.values(), key=_severity)
     sim = worst_rx.verdict
     m = worst_rx.metrics
