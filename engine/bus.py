@@ -77,6 +77,13 @@ class Bus:
         return self.memo.get(("rises", self.plan.standard), rises)
 
 
+def view_key(bus: Bus) -> tuple[object, ...]:
+    """What tells apart the views of one layout (LayoutMemo): everything of the plan but its nodes (the layout's
+    own), the cable and the driver; hashable."""
+    plan = tuple((name, tuple(v) if isinstance(v, list) else v) for name, v in bus.plan if name != "nodes")
+    return (plan, bus.cable, bus.driver)
+
+
 def build_bus(plan: BusPlan) -> Bus:
     devices = resolve_devices(plan)
     return Bus(plan=plan, cable=resolve_cable(plan.cable), driver=driver_of(devices[plan.driver.name]), devices=devices)

@@ -22,7 +22,7 @@ import math
 from collections.abc import Sequence
 from dataclasses import dataclass
 
-from pairline.engine.bus import Bus, with_plan
+from pairline.engine.bus import Bus, view_key, with_plan
 from pairline.engine.dc import network_supply_v
 from pairline.engine.findings import Finding, Verdict
 from pairline.engine.plan import MAX_BIAS_OHM, BiasSpec, BusPlan, TerminationSpec
@@ -135,6 +135,14 @@ def _holds_at_end(bus: Bus, term: TerminationSpec) -> bool:
 
 
 def _terminator_changes(bus: Bus, kind: str, original: Bus) -> list[PlanChange] | None:
+    """_terminator_changes_for, worked out once per design kind and bias networks: the design search asks again
+    for each bias position and tier it sizes."""
+    key = ("terminator_changes", kind, tuple(bus.plan.bias), view_key(original))
+    found = bus.memo.get(key, lambda: _terminator_changes_for(bus, kind, original))
+    return None if found is None else list(found)
+
+
+def _terminator_changes_for(bus: Bus, kind: str, original: Bus) -> tuple[PlanChange, ...] | None:
     """Terminator changes for one design kind, on a bus that already carries the design's bias network.
 
     kind "plan": keep each end's terminator that holds, unless the design changes what is lumped at that end (a
@@ -181,7 +189,7 @@ def _terminator_changes(bus: Bus, kind: str, original: Bus) -> list[PlanChange] 
         changes.append(
             _removal([t], length_text(t.position_m), "a terminator away from the cable ends only loads the driver")
         )
-    return changes
+    return tuple(changes)
 
 
 def _removal(present: list[TerminationSpec], where: str, reason: str) -> PlanChange:

@@ -9,7 +9,7 @@ import functools
 from collections.abc import Callable
 from dataclasses import dataclass
 
-from pairline.engine.bus import Bus
+from pairline.engine.bus import Bus, view_key
 from pairline.engine.findings import Finding, Verdict
 from pairline.engine.rules.bias import check_failsafe_bias
 from pairline.engine.rules.common_mode import check_common_mode
@@ -76,7 +76,7 @@ def run_rules(bus: Bus, *, quick: bool = False) -> RuleRun:
     findings = [f for found in by_rule.values() for f in found]
     # the design rules' findings for this plan are among these: the advice weighs the plan as one of its designs
     by_rule[_BIAS_WITHOUT_FIX] = [dataclasses.replace(f, fix="") for f in by_rule[check_failsafe_bias]]
-    bus.memo.get(_design_key(bus), lambda: tuple(f for rule in DESIGN_RULES for f in by_rule[rule]))
+    bus.memo.get(("design_rules", view_key(bus)), lambda: tuple(f for rule in DESIGN_RULES for f in by_rule[rule]))
     if (
         quick
         and all(f.verdict is Verdict.HOLDS for f in findings)
@@ -91,11 +91,4 @@ def run_design_rules(bus: Bus) -> tuple[Finding, ...]:
     """The rules a change of terminators or bias can move (no simulation), for their verdicts and values. Run
     once per plan of a layout: the design search, the advice's change list and the verified fixes weigh many
     plans, often the same (engine.bus.LayoutMemo)."""
-    return bus.memo.get(_design_key(bus), lambda: tuple(f for rule in DESIGN_RULES for f in rule(bus)))
-
-
-def _design_key(bus: Bus) -> tuple[object, ...]:
-    """The design rules' key in the layout memo: everything of the plan but its nodes (the memo's own), the cable
-    and the driver, hashable."""
-    plan = tuple((name, tuple(v) if isinstance(v, list) else v) for name, v in bus.plan if name != "nodes")
-    return ("design_rules", plan, bus.cable, bus.driver)
+    return bus.memo.get(("design_rules", view_key(bus)), lambda: tuple(f for rule in DESIGN_RULES for f in rule(bus)))

@@ -27,7 +27,7 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from pairline.engine.bus import Bus, with_plan
+from pairline.engine.bus import Bus, view_key, with_plan
 from pairline.engine.dc import (
     bias_supply_v,
     bias_view,
@@ -187,6 +187,13 @@ def size_bias(bus: Bus, position_m: float, supply_v: float | None = None) -> Bia
     """
     supply = bias_supply_v(bus) if supply_v is None else supply_v
     bare = without_bias(bus) if bus.plan.bias else bus
+    # sized once per layout, terminators and place: the design search asks again as it iterates
+    return bare.memo.get(
+        ("size_bias", view_key(bare), position_m, supply), lambda: _size_bias(bare, position_m, supply)
+    )
+
+
+def _size_bias(bare: Bus, position_m: float, supply: float) -> BiasSizing:
     needs = listener_needs(bare)
     need = np.array([not n.covered for n in needs])
     if not need.any():

@@ -437,7 +437,9 @@ def confirm_termination_rule(bus: Bus, judged: dict[str, SignalJudgement] | None
     if not plan.terminations:
         judged = judged if judged is not None else judge_bus(bus)
     else:
-        judged = judge_bus(with_plan(bus, plan.model_copy(update={"terminations": []})), receivers=_watch_list(bus, judged))
+        judged = judge_bus(
+            with_plan(bus, plan.model_copy(update={"terminations": []})), receivers=_watch_list(bus, judged)
+        )
     worst_rx = max(judged.values(), key=_severity)
     sim = worst_rx.verdict
     m = worst_rx.metrics
