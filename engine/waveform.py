@@ -139,17 +139,25 @@ def _receiver_index(step: StepResponses, wanted: "tuple[str, ...] | list[str] | 
     return np.array([step.receiver_names.index(n) for n in wanted], dtype=int)
 
 
-def _deviation_at(step: StepResponses, rows: np.ndarray, local_s: np.ndarray) -> np.ndarray:
+def _deviation_at(
+    step: StepResponses, rows: np.ndarray, local_s: np.ndarray, dev: np.ndarray | None = None
+) -> np.ndarray:
     """D = step - v_final of driver 0 at probes `rows` and local times (n_rows, n_times); D = -v_final before 0
-    and, past the last sample, 0 when settled (else the last deviation)."""
+    and, past the last sample, 0 when settled (else the last deviation). dev: D at the samples, (n_rows, n_t),
+    when the caller holds it."""
     t = step.time_s
     idx = np.clip(np.searchsorted(t, local_s, side="right") - 1, 0, t.size - 2)
     w = np.clip((local_s - t[idx]) / (t[idx + 1] - t[idx]), 0.0, 1.0)
-    dev = step.v_diff_v[0][rows] - step.v_final_v[0][rows, None]
+    dev = _deviation(step, rows) if dev is None else dev
     out = dev[:, idx] * (1.0 - w) + dev[:, idx + 1] * w
     out[:, local_s > t[-1]] = 0.0 if step.settled else dev[:, -1:]
     out[:, local_s < 0.0] = -step.v_final_v[0][rows, None]
     return np.asarray(out)
+
+
+def _deviation(step: StepResponses, rows: np.ndarray) -> np.ndarray:
+    """D = step - v_final of driver 0 at probes `rows` at the step's own samples, (n_rows, n_t)."""
+    return np.asarray(step.v_diff_v[0][rows] - step.v_final_v[0][rows, None])
 
 
 def pattern_memory_bits(step: StepResponses, bit_time_s: float, n_bits: int) -> int:
@@ -199,6 +207,7 @@ class _Deviations:
 
     def __init__(self, step: StepResponses, rows: np.ndarray, lags: np.ndarray, cand: np.ndarray):
         self.step, self.rows, self.lags, self.cand = step, rows, lags, cand
+        self.dev = _deviation(step, rows)
         self.values = np.empty((rows.size * lags.size, cand.size))
         self.known = np.zeros(cand.size, dtype=bool)
 
@@ -206,7 +215,8 @@ class _Deviations:
         missing = np.unique(columns[~self.known[columns]])
         if missing.size:
             local_s = (self.lags + self.cand[None, missing]).ravel()
-            self.values[:, missing] = _deviation_at(self.step, self.rows, local_s).reshape(-1, missing.size)
+            at_s = _deviation_at(self.step, self.rows, local_s, self.dev)
+            self.values[:, missing] = at_s.reshape(-1, missing.size)
             self.known[missing] = True
         return self.values[:, columns]
 
