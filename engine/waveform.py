@@ -275,8 +275,9 @@ def local_patterns(
             v[:, m:, :] += edges[None, : n_bits - m, None] * d_mem[:, m : m + 1, :]
     else:
         n_fft = 1 << int(np.ceil(np.log2(n_bits + n_mem - 1)))
-        along_bits = np.ascontiguousarray(np.swapaxes(d_mem, 1, 2))  # (n_rows, n_off, n_mem): transforms run on rows
-        spectrum = np.fft.rfft(along_bits, n=n_fft, axis=-1) * np.fft.rfft(edges, n=n_fft)
+        along_bits = np.zeros((rows.size, offsets.size, n_fft))  # transforms run on contiguous, zero-padded rows
+        along_bits[..., :n_mem] = np.swapaxes(d_mem, 1, 2)
+        spectrum = np.fft.rfft(along_bits, axis=-1) * np.fft.rfft(edges, n=n_fft)
         v = np.ascontiguousarray(np.swapaxes(np.fft.irfft(spectrum, n=n_fft, axis=-1)[..., :n_bits], 1, 2))
     v_final = step.v_final_v[0][rows]
     v += (2.0 * b - 1.0)[None, :, None] * v_final[:, None, None]
