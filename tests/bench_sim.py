@@ -88,6 +88,16 @@ def measure(fn: Callable[[], Any], repeats: int = 3) -> tuple[float, float, Any]
     return best, peak / 1e6, result
 
 
+class Rows(list[tuple[str, float, float]]):
+    """The measured cases, each printed as it is measured (a long run still shows what it has)."""
+
+    def append(self, row: tuple[str, float, float]) -> None:
+        super().append(row)
+        name, t, m = row
+        mem = "" if m != m else f"{m:9.1f} MB"
+        print(f"{name:<66}  {t * 1e3:10.1f} ms  {mem:>12}", flush=True)
+
+
 def machine() -> str:
     model = "unknown CPU"
     try:
@@ -102,7 +112,7 @@ def machine() -> str:
 
 def main() -> None:
     quick = "--quick" in sys.argv  # no ngspice at 128 receivers, fewer repeats
-    rows: list[tuple[str, float, float]] = []
+    rows = Rows()
     print(f"machine: {machine()}")
     print(f"load average at start: {' '.join(f'{x:.2f}' for x in os.getloadavg())}")
     full: dict[int, float] = {}
@@ -125,18 +135,15 @@ def main() -> None:
         for n in (32,) if quick else (32, 128):
             bus = build_bus(load_plan(plan_doc(n)))
             window_s = 4e-6 if n == 32 else 10e-6  # the edge and several one-way trips of the trunk
-            ref = step_waveforms(bus, window_s, line_model="ladder", max_step_s=bus.driver.rise_time_s / 80)
+            ref = step_waveforms(
+                bus, window_s, line_model="ladder", max_step_s=bus.driver.rise_time_s / 80, timeout_s=7200.0
+            )
             ours = step_responses(bus, max_time_s=window_s).at(ref.time_s)[0]
             err = (np.abs(ours - ref.v_diff_v).max(axis=1) / np.ptp(np.c_[ref.v_diff_v, np.zeros(n)], axis=1)).max()
             spice[n] = (ref.analysis_s, ref.elapsed_s, float(err))
             rows.append((f"{n} rx: ngspice transient analysis (in-process time)", ref.analysis_s, float("nan")))
             rows.append((f"{n} rx: ngspice run (wall, incl. start-up and output)", ref.elapsed_s, float("nan")))
 
-    width = max(len(r[0]) for r in rows)
-    print(f"{'case':<{width}}  {'time':>10}  {'peak traced':>12}")
-    for name, t, m in rows:
-        mem = "" if m != m else f"{m:9.1f} MB"
-        print(f"{name:<{width}}  {t * 1e3:8.1f} ms  {mem:>12}")
     print(f"max RSS of this process: {resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024:.0f} MB")
     mem256 = next(m for name, _, m in rows if name.startswith("256 rx: full"))
     print()

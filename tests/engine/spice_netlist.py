@@ -310,6 +310,7 @@ def step_waveforms(
     line_model: str = "ltra",
     probes: Sequence[Probe] | None = None,
     max_step_s: float | None = None,
+    timeout_s: float = 300.0,
 ) -> SpiceWaveforms:
     """Probe voltages (default every node) for one rising edge 0 -> open_circuit_v of the driver from t = 0."""
     text, nodes = bus_netlist(
@@ -320,7 +321,7 @@ def step_waveforms(
         probes=probes,
         max_step_s=max_step_s,
     )
-    return run_netlist(text, tuple(nodes))
+    return run_netlist(text, tuple(nodes), timeout_s)
 
 
 def pattern_waveforms(
