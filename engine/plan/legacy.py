@@ -39,6 +39,7 @@ from pairline.engine.plan.model import (
     TerminationSpec,
     _f,
     _Strict,
+    ground_offset_field,
 )
 from pairline.engine.plan.problems import Problem, short
 from pydantic import Field
@@ -67,14 +68,7 @@ class NodeSpecV1(_Strict):
     # down to a millionth of a unit load (12 GΩ), an ideal probe that draws nothing
     unit_loads: float = _f("Unit loads", "UL", ge=1e-6, le=32.0, default=1.0)
     input_capacitance_f: float = _f("Input capacitance", "F", ge=0.0, le=2e-9, default=20e-12)
-    ground_offset_v: float = _f(
-        "Ground offset",
-        "V",
-        ge=-10_000.0,
-        le=10_000.0,
-        default=0.0,
-        description="this node's ground relative to the driver's ground",
-    )
+    ground_offset_v: float = ground_offset_field()
 
 
 class BusPlanV1(PlanHead):

@@ -50,6 +50,18 @@ def _f(
     return Field(default, title=title, ge=ge, gt=gt, le=le, description=description, json_schema_extra={"unit": unit})
 
 
+def ground_offset_field() -> Any:
+    """A node's local ground against the driver's, in both format versions."""
+    return _f(
+        "Ground offset",
+        "V",
+        ge=-10_000.0,
+        le=10_000.0,
+        default=0.0,
+        description="this node's local ground relative to the driver's ground",
+    )
+
+
 # The smallest non-zero magnitude a field of each unit may hold. Anything smaller (down to subnormal numbers
 # such as 5e-324) is no physical quantity, only a typing slip or a probe: 1 mm of cable, 1 mV, 1 mΩ, 1 fF,
 # a millionth of a dimensionless ratio.
@@ -196,14 +208,7 @@ class NodeSpec(_Strict):
     stub_length_m: float = _f("Stub length", "m", ge=0.0, le=MAX_STUB_M, default=0.0)
     device: DeviceRef = Field(None, title="Device", description="none: the plan's default class")
     may_drive: bool = Field(False, title="May drive", description="an RS-485 half-duplex node that also talks")
-    ground_offset_v: float = _f(
-        "Ground offset",
-        "V",
-        ge=-10_000.0,
-        le=10_000.0,
-        default=0.0,
-        description="this node's local ground relative to the driver's ground",
-    )
+    ground_offset_v: float = ground_offset_field()
     drives_pair: Literal["return", "transmit"] | None = Field(
         None,
         title="Pair it drives",

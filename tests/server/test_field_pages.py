@@ -195,9 +195,12 @@ def test_the_json_api_takes_json_only(client, plan_id):
 def test_a_fit_over_the_time_limit_is_refused_naming_the_capture(tmp_path):
     from pairline.server.settings import Settings
 
+    # The plan is saved under the usual limit (a save refuses a plan whose check would not fit its own limit);
+    # the server that fits the capture has the short one.
+    with TestClient(create_app(tmp_path / "plans.db", load_samples=False)) as saver:
+        plan_id = saver.post("/api/plans", json=PLAN_DOC).json()["id"]
     app = create_app(tmp_path / "plans.db", load_samples=False, settings=Settings(check_time_limit_s=0.05))
     with TestClient(app) as c:
-        plan_id = c.post("/api/plans", json=PLAN_DOC).json()["id"]
         capture = capture_text("far_missing", seed=34)
         problem = _assert_problem(c.post(f"/api/plans/{plan_id}/field", json={"capture_csv": capture}), "capture_csv")
         assert "longer than the 0.05 s" in problem["message"]

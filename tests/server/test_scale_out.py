@@ -109,7 +109,7 @@ def test_two_processes_on_one_database_keep_every_acknowledged_save(postgres_url
 
 
 def test_two_processes_on_one_database_share_the_results_cache_and_the_save_quota(postgres_url, tmp_path):
-    costly, cheap = sample_plan("vineyard-row-probes"), sample_plan("pump-house-long-stub")
+    costly, cheap = sample_plan("vineyard-row-probes"), sample_plan("workshop-to-store-ground-offset")
     quota = {"PAIRLINE_SAVES_PER_MINUTE": "3"}
     # b's time limit is below the costly plan's estimated check time, so b can never check that plan itself.
     with two_servers(postgres_url, tmp_path, (quota, quota | {"PAIRLINE_CHECK_TIME_LIMIT_S": "0.1"})) as (a, b):
