@@ -17,7 +17,7 @@ from pairline.engine.capacity import Capacity, receiver_capacity
 from pairline.engine.design import PlanChange
 from pairline.engine.devices import FAILSAFE_STATES, UNIT_LOAD_TEXT, ResolvedDevice, covers
 from pairline.engine.findings import Finding, Verdict, worst
-from pairline.engine.plan import BusInputError, BusPlan, cross_field_problems, load_plan, plan_to_dict
+from pairline.engine.plan import BusInputError, BusPlan, Problem, cross_field_problems, load_plan, plan_to_dict
 from pairline.engine.rules.signal import Simulation
 from pairline.engine.ruleset import RULES, run_rules
 from pairline.engine.summary import BiasAdvice, BomItem, PlanSummary, TerminatorAdvice, summarise
@@ -45,6 +45,8 @@ def check_plan(plan: BusPlan | dict[str, Any], *, simulate_advice: bool = True) 
     finding is tight or breaks already, receivers tight only at their worst corner read as holding."""
     if not isinstance(plan, BusPlan):
         plan = load_plan(plan)
+    if not plan.is_one_bus:
+        raise BusInputError([_not_one_bus(plan)])
     problems = cross_field_problems(plan_to_dict(plan))
     if problems:
         raise BusInputError(problems)
@@ -63,6 +65,19 @@ def check_plan(plan: BusPlan | dict[str, Any], *, simulate_advice: bool = True) 
         summary=summarise(bus, advice, capacity),
         verdict=worst([f.verdict for f in findings]),
         engine_version=ENGINE_VERSION,
+    )
+
+
+def _not_one_bus(plan: BusPlan) -> Problem:
+    """A plan of several parts goes to engine.network.check_network, which checks each part with check_plan."""
+    field = "four_wire" if plan.four_wire is not None else "segments"
+    return Problem(
+        field,
+        "Plan shape",
+        {"segments": len(plan.segments), "repeaters": len(plan.repeaters), "four_wire": plan.four_wire is not None},
+        {"rule": "one bus here; a plan of segments or pairs is checked part by part (engine.network.check_network)"},
+        "This plan has several parts (segments joined by repeaters, or a four-wire pair set); it is checked part by "
+        "part as a whole plan, not as one bus.",
     )
 
 

@@ -88,6 +88,20 @@ def field_setup(
     at None with no position: the driver's terminal. sent "pattern": the plan's test pattern, else the pattern
     the plan page simulates; "bits": the typed bits at the plan's bit rate; "edge": one rising edge.
     """
+    if not plan.is_one_bus:
+        raise BusInputError(
+            [
+                Problem(
+                    "plan",
+                    "Plan shape",
+                    {"segments": len(plan.segments), "four_wire": plan.four_wire is not None},
+                    {"rule": "a capture is compared with one bus"},
+                    "A scope capture is compared with one bus; this plan has several parts (segments joined by "
+                    "repeaters, or a four-wire pair set). Save the segment or pair the capture was taken on as a "
+                    "plan of its own and check the capture against that.",
+                )
+            ]
+        )
     problems: list[Problem] = []
     names = [plan.driver.name] + [n.name for n in plan.nodes]
     if at_position_m is not None:

@@ -28,7 +28,7 @@ from pairline.engine.plan import BusInputError, BusPlan, Problem, plan_to_dict
 from pairline.server.cache import ResultCache
 from pairline.server.cost import cost_problems, over_limit_problems
 from pairline.server.jobs import Page, advised_editor, checked_plan_page, checked_report, templates
-from pairline.server.rendering import PageAt, render_page
+from pairline.server.rendering import PageAt, page_template, render_page
 from pairline.server.settings import Settings
 from pairline.server.store import SavedPlan, canonical_json
 from pairline.server.workers import CheckOverLimit, CheckPool
@@ -94,7 +94,8 @@ class Checker:
             job = (checked_plan_page, (plan_to_dict(plan), saved, receiver, extra, at))
             body, found = self._data(key, None, REFUSAL_TTL_S, plan, job)
             if found is None:  # checked earlier, for its JSON twin
-                found = render_page(templates(), "plan.html", json.loads(body), at)
+                data = json.loads(body)
+                found = render_page(templates(), page_template(data), data, at)
                 self.cache.put(html_key(key), found)
         return found
 

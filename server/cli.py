@@ -20,6 +20,7 @@ from typing import Any, TextIO
 from pairline.engine.check import PlanReport, check_plan, report_to_dict
 from pairline.engine.devices import UNIT_LOAD_TEXT
 from pairline.engine.findings import Finding, Verdict, worst
+from pairline.engine.network import NetworkReport, advised_plan, advised_verdict, check_network, network_to_dict
 from pairline.engine.plan import BusInputError, Problem, load_plan, plan_to_dict
 from pairline.engine.rules.power import rating_text
 from pairline.engine.units import length_text, si_format
@@ -173,7 +174,7 @@ def problems_envelope(problems: Sequence[Problem]) -> dict[str, Any]:
 _LIMIT_SIGN = {"max": "≤ ", "min": "≥ ", "none": "for reference: "}
 
 
-def _finding_line(f: Finding, indent: str) -> list[str]:
+def finding_lines(f: Finding, indent: str) -> list[str]:
     head = f"{indent}[{_MARK[f.verdict]}] " + (f"node '{f.node}': " if f.node else "") + f.title
     if f.value is not None:
         head += f": {quantity_text(f.value, f.unit)}"
@@ -264,16 +265,36 @@ def advice_head(report: PlanReport) -> str:
 def report_text(report: PlanReport, path: str = "") -> str:
     """The readable report: the plan in one line, the verdict with how many more receivers fit, verdict per rule
     and per node, fixes, the advice's change list, the summary."""
-    plan, bus, s = report.plan, report.bus, report.summary
-    counts = {v: sum(1 for f in report.findings if f.verdict is v) for v in Verdict}
+    plan, bus = report.plan, report.bus
     out = [
         f"Pairline check: {plan.title or '(untitled plan)'}" + (f"  [{path}]" if path else ""),
         f"  {plan.standard.upper().replace('RS', 'RS-')}, {quantity_text(plan.bit_rate_bps, 'bit/s')}, trunk "
         f"{plan.trunk_length_m:g} m, {len(plan.nodes)} node(s); cable: {bus.cable.label}; driver: {bus.driver.label}",
         f"  {UNIT_LOAD_TEXT}.",
         "",
-        f"Overall: {report.verdict.value.upper()}  ({counts[Verdict.HOLDS]} holds, {counts[Verdict.TIGHT]} tight, "
-        f"{counts[Verdict.BREAKS]} breaks)",
+        *report_body(report, "Overall"),
+        "",
+        SAFETY_NOTE,
+    ]
+    text = "\n".join(out)
+    return lengths_in_feet(text) if plan.display_units == "imperial" else text
+
+
+def verdict_line(head: str, verdict: Verdict, findings: Sequence[Finding]) -> str:
+    """ "Overall: HOLDS  (12 holds, 0 tight, 0 breaks)"."""
+    counts = {v: sum(1 for f in findings if f.verdict is v) for v in Verdict}
+    return (
+        f"{head}: {verdict.value.upper()}  ({counts[Verdict.HOLDS]} holds, {counts[Verdict.TIGHT]} tight, "
+        f"{counts[Verdict.BREAKS]} breaks)"
+    )
+
+
+def report_body(report: PlanReport, head: str) -> list[str]:
+    """One bus's verdict line (headed `head`), how many more receivers fit, verdict per rule and per node, fixes,
+    the advice's change list and the summary."""
+    plan, s = report.plan, report.summary
+    out = [
+        verdict_line(head, report.verdict, report.findings),
         capacity_line(report),
         advice_head(report),
         "",
@@ -291,10 +312,10 @@ def report_text(report: PlanReport, path: str = "") -> str:
             label += f" ({len(per_node)} node(s), {sum(f.verdict is not Verdict.HOLDS for f in per_node)} not holding)"
         out.append(label)
         for f in whole:
-            out += _finding_line(f, "    ")
+            out += finding_lines(f, "    ")
         for f in per_node:
             if f.verdict is not Verdict.HOLDS:
-                out += _finding_line(f, "    ")
+                out += finding_lines(f, "    ")
     out += ["", "By node"]
     names = [plan.driver.name] + [n.name for n in plan.nodes]
     holding = []
@@ -330,9 +351,7 @@ def report_text(report: PlanReport, path: str = "") -> str:
         out.append("  Bill of materials:")
         for item in s.bom:
             out.append(f"    {item.quantity} x {item.item}, {item.value}, {item.rating}: {item.note}")
-    out += ["", SAFETY_NOTE]
-    text = "\n".join(out)
-    return lengths_in_feet(text) if plan.display_units == "imperial" else text
+    return out
 
 
 # "<number> m" as the engine writes a length; not m inside units such as mΩ/m, m·bit/s or 10^8 m.
@@ -351,7 +370,8 @@ def run_check(args: argparse.Namespace, out: TextIO, err: TextIO) -> int:
     try:
         path = str(sample_file(args.sample)) if args.sample else args.plan
         document = read_plan_document(path)
-        report = check_plan(load_plan(document))
+        plan = load_plan(document)
+        report: PlanReport | NetworkReport = check_plan(plan) if plan.is_one_bus else check_network(plan)
     except UnknownSampleError as exc:
         problem = Problem("sample", "Sample bus", exc.name, {"choices": exc.allowed}, str(exc))
         if args.json:
@@ -371,10 +391,14 @@ def run_check(args: argparse.Namespace, out: TextIO, err: TextIO) -> int:
             file=err,
         )
         return EXIT_INVALID
+    from pairline.server.networktext import network_text  # it builds on this module's formats
+
+    shown = args.sample or args.plan
     if args.json:
-        print(json.dumps(report_to_dict(report), indent=2, ensure_ascii=False, allow_nan=False), file=out)
+        data = report_to_dict(report) if isinstance(report, PlanReport) else network_to_dict(report)
+        print(json.dumps(data, indent=2, ensure_ascii=False, allow_nan=False), file=out)
     else:
-        print(report_text(report, args.sample or args.plan), file=out)
+        print(report_text(report, shown) if isinstance(report, PlanReport) else network_text(report, shown), file=out)
     return EXIT_BREAKS if report.verdict is Verdict.BREAKS else EXIT_OK
 
 
@@ -407,24 +431,31 @@ def advise_text(report: PlanReport, path: str = "") -> str:
 def run_advise(args: argparse.Namespace, out: TextIO, err: TextIO) -> int:
     """Write the advised plan (to -o, else standard output) and print the change list (to standard output when
     the plan goes to a file, else to standard error, so the plan can be piped on)."""
+    from pairline.server.networktext import network_advise_text  # it builds on this module's formats
+
     try:
-        report = check_plan(load_plan(read_plan_document(args.plan)))
+        plan = load_plan(read_plan_document(args.plan))
+        report: PlanReport | NetworkReport = check_plan(plan) if plan.is_one_bus else check_network(plan)
     except (PlanFileError, BusInputError) as exc:
         print(problems_text(exc.problems), file=err)
         return EXIT_INVALID
-    document = json.dumps(plan_to_dict(report.advice.plan), indent=2, ensure_ascii=False) + "\n"
+    if isinstance(report, PlanReport):
+        advised, text, verdict = report.advice.plan, advise_text(report, args.plan), report.advice.verdict
+    else:
+        advised, text, verdict = advised_plan(report), network_advise_text(report, args.plan), advised_verdict(report)
+    document = json.dumps(plan_to_dict(advised), indent=2, ensure_ascii=False) + "\n"
     if args.output:
         try:
             Path(args.output).write_text(document, encoding="utf-8")
         except OSError as exc:
             print(f"pairline advise: cannot write {args.output}: {exc.strerror or type(exc).__name__}.", file=err)
             return EXIT_INVALID
-        print(advise_text(report, args.plan), file=out)
+        print(text, file=out)
         print(f"\nAdvised plan written to {args.output}.", file=out)
     else:
         print(document, end="", file=out)
-        print(advise_text(report, args.plan), file=err)
-    return EXIT_BREAKS if report.advice.verdict is Verdict.BREAKS else EXIT_OK
+        print(text, file=err)
+    return EXIT_BREAKS if verdict is Verdict.BREAKS else EXIT_OK
 
 
 def run_serve(args: argparse.Namespace, out: TextIO, err: TextIO) -> int:

@@ -31,6 +31,7 @@ from dataclasses import dataclass
 from pairline.engine.bus import build_bus
 from pairline.engine.plan import BusPlan, Problem
 from pairline.engine.rules.signal import MAX_DRIVERS_ALL, MAX_DRIVERS_SAMPLED
+from pairline.engine.segments import plan_parts
 from pairline.engine.tolerance import tolerance_ranges
 from pairline.engine.units import delay_s, si_format
 
@@ -124,7 +125,10 @@ def estimated_check_s(work: CheckWork) -> float:
 
 
 def cost_problems(plan: BusPlan, limit_s: float) -> list[Problem]:
-    """[] when the plan's estimated check fits the limit; else what makes it costly and what would fit."""
+    """[] when the plan's estimated check fits the limit; else what makes it costly and what would fit. A plan of
+    several parts costs the sum of its parts' checks (engine.network)."""
+    if not plan.is_one_bus:
+        return _parts_problems(plan, limit_s, "would take at least {estimate:.0f} s")
     work = check_work(plan)
     estimate_s = estimated_check_s(work)
     if estimate_s <= limit_s:
@@ -139,7 +143,35 @@ def over_limit_problems(plan: BusPlan, limit: str, time_limit_s: float, memory_l
         if limit == "memory"
         else f"took longer than {time_limit_s:g} s"
     )
+    if not plan.is_one_bus:
+        return _parts_problems(plan, time_limit_s, what, always=True)
     return refusal_problems(plan, check_work(plan), time_limit_s, what)
+
+
+def _parts_problems(plan: BusPlan, limit_s: float, what: str, *, always: bool = False) -> list[Problem]:
+    """The refusal of a plan of several parts: the head names every part's share; the changes are those of the
+    costliest part with the rest of the budget, on the fields of the plan's own trunk (the master's segment or
+    the transmit pair), where the part's fields are the plan's."""
+    parts = plan_parts(plan)
+    works = [check_work(p.plan) for p in parts]
+    estimates = [estimated_check_s(w) for w in works]
+    total = sum(estimates)
+    if total <= limit_s and not always:
+        return []
+    k = max(range(len(parts)), key=lambda i: estimates[i])
+    shares = ", ".join(f"{p.label} {e:.0f} s" for p, e in zip(parts, estimates, strict=True))
+    head = Problem(
+        "",
+        "Simulation size",
+        round(total, 1),
+        {"max": limit_s, "unit": "s"},
+        f"Checking this plan {what.format(estimate=total)}, over the {limit_s:g} s a check may take: its parts "
+        f"take {shares}. Make {parts[k].label} smaller or its pattern shorter.",
+    )
+    room_s = limit_s - (total - estimates[k])
+    own = parts[k].feeder is None and parts[k].kind != "return_pair"
+    changes = _changes(parts[k].plan, works[k], room_s) if own and room_s > 0 else []
+    return [head, *(c for c in changes if c.field in ("test_pattern", "") or c.field.startswith("driver."))]
 
 
 def refusal_problems(plan: BusPlan, work: CheckWork, limit_s: float, what: str) -> list[Problem]:

@@ -19,7 +19,7 @@ from collections.abc import Mapping
 from dataclasses import dataclass, field, replace
 from typing import Any
 
-from pairline.engine.library import CABLES, TRANSCEIVERS
+from pairline.engine.library import TRANSCEIVERS
 from pairline.engine.plan import (
     DEFAULT_DEVICE,
     PLAN_FORMAT,
@@ -30,200 +30,67 @@ from pairline.engine.plan import (
     current_document,
     load_plan,
 )
+from pairline.server.form_fields import (
+    BIAS,
+    CABLE,
+    CUSTOM_CABLE,
+    CUSTOM_DEVICE,
+    DEVICE,
+    DEVICE_CLASSES,
+    DEVICE_PICKER,
+    DRIVER,
+    GROUNDING,
+    GROUPS,
+    MAX_FORM_FIELDS,
+    MAX_FORM_ROWS,
+    NODE,
+    NODE_COLUMNS,
+    PROBE,
+    ROW_NAME,
+    ROWS,
+    SAMPLING,
+    SEGMENT_ROWS,
+    TERMINATION,
+    TOLERANCES,
+    TOP,
+    FieldSpec,
+    row_specs,
+    spec_for,
+)
 from pairline.server.json_input import JsonInputError, load_json
 from pairline.server.messages import field_allowed, not_a_number_message, range_text
-from pairline.server.quantities import Bare, QuantityError, UnitSystem, bare_unit, format_quantity, parse_quantity
+from pairline.server.quantities import QuantityError, UnitSystem, format_quantity, parse_quantity
 
-MAX_FORM_ROWS = 512
-
-
-@dataclass(frozen=True, slots=True)
-class FieldSpec:
-    key: str  # the plan attribute, last part of the dotted path
-    label: str
-    kind: str | None = None  # quantity kind (server.quantities.KINDS); None for text and choices
-    bare: Bare | None = None  # overrides the kind's bare unit
-    choices: tuple[tuple[str, str], ...] = ()  # (value, label) for a select
-    hint: str = ""
-    placeholder: str = ""  # what a blank input means (the plan's default)
-    required: bool = False  # a cleared input is an error, not a silent default
-    boolean: bool = False  # a yes / no select: "true" and "false" become JSON true and false
-
-    def unit_label(self, units: UnitSystem) -> str:
-        return bare_unit(self.kind, units, self.bare).label if self.kind else ""
-
-
-def _choices(library: Mapping[str, Any], custom: str) -> tuple[tuple[str, str], ...]:
-    return (*((key, item.label) for key, item in library.items()), ("", custom))
-
-
-CUSTOM_DEVICE = "custom"  # the device picker's choice for a device of its own values (class_key null)
-DEVICE_CLASSES = tuple((key, t.choice_label) for key, t in TRANSCEIVERS.items())
-_YES_NO = (("false", "no"), ("true", "yes"))
-
-
-TOP = (
-    FieldSpec("title", "Plan title"),
-    FieldSpec("standard", "Standard", choices=(("rs485", "RS-485 (multipoint)"), ("rs422", "RS-422 (one driver)"))),
-    FieldSpec("bit_rate_bps", "Bit rate", "rate", hint="e.g. 115.2k, 1M"),
-    FieldSpec("supply_v", "Transceiver supply", "voltage", required=True),
-    FieldSpec("trunk_length_m", "Trunk length", "length"),
-    FieldSpec("default_device", "Default device class", choices=DEVICE_CLASSES, hint="every node that names no class"),
-    FieldSpec("test_pattern", "Test bit pattern", hint="0s and 1s; blank for a built-in pseudo-random run"),
-    FieldSpec(
-        "probe_signal",
-        "Signal at the probes",
-        choices=(("pattern", "the bit pattern"), ("step", "a single step from 0 V to high")),
-    ),
-    FieldSpec("notes", "Notes"),
-)
-CABLE = (
-    FieldSpec("class_key", "Cable class", choices=_choices(CABLES, "Custom cable (enter all values)")),
-    FieldSpec("z0_ohm", "Impedance Z0", "resistance"),
-    FieldSpec("velocity_factor", "Velocity factor", "plain", hint="0.3 to 1, or a percentage"),
-    FieldSpec("resistance_ohm_per_m", "Conductor resistance", "resistance_per_length", hint="per conductor"),
-    FieldSpec("capacitance_f_per_m", "Capacitance", "capacitance_per_length"),
-    FieldSpec("skin_effect_onset_hz", "Skin-effect onset", "frequency"),
-    FieldSpec("dielectric_loss_tangent", "Loss tangent", "plain"),
-)
-# A device: the class picker, then the values that may override the class (engine.plan.DEVICE_VALUES).
-DEVICE_PICKER = FieldSpec(
-    "class_key",
-    "Device",
-    choices=(("", "the plan's default class"), *DEVICE_CLASSES, (CUSTOM_DEVICE, "Custom (its own values)")),
-)
-DEVICE = (
-    FieldSpec("unit_loads", "Unit loads", "plain", hint="1, 1/2, 1/4, 1/8"),
-    FieldSpec(
-        "failsafe",
-        "Receiver failsafe",
-        choices=(
-            ("", "as the class"),
-            ("none", "none"),
-            ("open_short", "open or shorted inputs"),
-            ("idle_bus", "idle bus"),
-        ),
-    ),
-    FieldSpec("threshold_low_v", "Low threshold", "voltage", hint="reads 0 at or below; e.g. -200 mV"),
-    FieldSpec("threshold_high_v", "High threshold", "voltage", hint="reads 1 at or above; e.g. -10 mV"),
-    FieldSpec("open_circuit_v", "Driver open-circuit output", "voltage"),
-    FieldSpec("source_ohm", "Driver source resistance", "resistance"),
-    FieldSpec("output_54_ohm_v", "Driver minimum into 54 Ω", "voltage", hint="instead of the two above"),
-    FieldSpec("rise_time_s", "Edge time (10–90 %)", "time", hint="e.g. 100 ns, 1.2 µs"),
-    FieldSpec("input_capacitance_f", "Input C", "capacitance"),
-    FieldSpec("common_mode_min_v", "Common-mode range from", "voltage"),
-    FieldSpec("common_mode_max_v", "Common-mode range to", "voltage"),
-    FieldSpec("isolated", "Galvanically isolated", choices=(("", "as the class"), *_YES_NO), boolean=True),
-    FieldSpec("isolation_rating_vrms", "Isolation rating (Vrms)", "voltage", hint="1-minute withstand"),
-    FieldSpec(
-        "isolation_grade",
-        "Isolation grade",
-        choices=(("", "as the class"), ("basic", "basic"), ("reinforced", "reinforced")),
-    ),
-)
-
-
-def _device_fields(prefix: str) -> tuple[FieldSpec, ...]:
-    """The picker and the device values under a prefix ("device."), as fields of their group or row."""
-    return tuple(replace(s, key=prefix + s.key) for s in (DEVICE_PICKER, *DEVICE))
-
-
-DRIVER = (
-    FieldSpec("name", "Driver name", required=True),
-    FieldSpec("position_m", "Position on trunk", "length", required=True),
-    FieldSpec("stub_length_m", "Stub length", "length", placeholder="0"),
-    *_device_fields("device."),
-)
-NODE_COLUMNS = (
-    FieldSpec("name", "Name"),
-    FieldSpec("position_m", "Position", "length"),
-    FieldSpec("stub_length_m", "Stub", "length", placeholder="0"),
-    replace(DEVICE_PICKER, key="device.class_key"),
-    FieldSpec("may_drive", "May drive", choices=_YES_NO, boolean=True),
-    FieldSpec("ground_offset_v", "Ground offset", "voltage", placeholder="0"),
-)
-NODE = (*NODE_COLUMNS, *_device_fields("device.")[1:])
-TERMINATION = (
-    FieldSpec("position_m", "Position", "length"),
-    FieldSpec("kind", "Kind", choices=(("parallel", "parallel R"), ("rc", "series R–C (AC)"))),
-    FieldSpec("resistance_ohm", "Resistance", "resistance"),
-    FieldSpec("capacitance_f", "Capacitance", "capacitance", bare=Bare("nF", 1e-9, True), hint="RC only"),
-)
-BIAS = (
-    FieldSpec("position_m", "Position", "length"),
-    FieldSpec("pull_up_ohm", "Pull-up (A to supply)", "resistance"),
-    FieldSpec("pull_down_ohm", "Pull-down (B to ground)", "resistance"),
-    FieldSpec("supply_v", "Bias supply", "voltage", placeholder="the transceiver supply"),
-)
-GROUNDING = (
-    FieldSpec(
-        "signal_ground",
-        "Signal-ground conductor",
-        choices=(("none", "none"), ("conductor", "a conductor beside the pair")),
-    ),
-    FieldSpec(
-        "ground_conductor_ohm_per_m",
-        "Its resistance",
-        "resistance_per_length",
-        hint="blank: like one conductor of the pair",
-    ),
-    FieldSpec("ground_series_ohm", "Series resistor at each node", "resistance", placeholder="100 Ω"),
-    FieldSpec(
-        "shield",
-        "Shield earthed at",
-        choices=(("none", "no shield, or not stated"), ("one_end", "one end"), ("both_ends", "both ends")),
-    ),
-)
-MAX_FORM_FIELDS = MAX_FORM_ROWS * (len(NODE) + 1) + 1000  # every node row with its device open, plus the rest
-SAMPLING = (
-    FieldSpec(
-        "centre_ui", "Sampling instant", "plain", hint="bits after the start edge; a UART's is 0.5", placeholder="0.5"
-    ),
-    FieldSpec(
-        "half_width_ui", "Window half-width", "plain", hint="bits either side; 2/16 for a UART", placeholder="0.125"
-    ),
-)
-_OF_CLASS = "blank: the class's"
-TOLERANCES = (
-    FieldSpec("z0_tolerance", "Cable Z0 ±", "plain", hint="e.g. 10 %; " + _OF_CLASS),
-    FieldSpec("velocity_factor_tolerance", "Velocity factor ±", "plain", hint=_OF_CLASS),
-    FieldSpec("terminator_tolerance", "Terminators ±", "plain", hint="blank: 5 % (E24)"),
-    FieldSpec("bias_tolerance", "Bias resistors ±", "plain", hint="blank: 5 % (E24)"),
-    FieldSpec("rise_time_min_s", "Fastest driver edge", "time", hint=_OF_CLASS),
-    FieldSpec("rise_time_max_s", "Slowest driver edge", "time", hint=_OF_CLASS),
-    FieldSpec("input_capacitance_tolerance", "Receiver capacitance ±", "plain", hint="blank: 0.4x to 1.5x"),
-    FieldSpec("unit_loads_min_ratio", "Lightest receiver load", "plain", hint="of its rating; blank: 0.5"),
-    FieldSpec("monte_carlo_variants", "Monte Carlo variants", "plain", hint="0: corners only", placeholder="0"),
-    FieldSpec("seed", "Random seed", "plain", placeholder="1"),
-)
-PROBE = (
-    FieldSpec(
-        "kind",
-        "Probe at",
-        choices=(("node", "a node's input"), ("junction", "a trunk point"), ("driver_pin", "the driver's pins")),
-    ),
-    FieldSpec("node", "Node"),
-    FieldSpec("position_m", "Trunk position", "length"),
-)
-GROUPS: dict[str, tuple[FieldSpec, ...]] = {
-    "": TOP,
-    "cable": CABLE,
-    "driver": DRIVER,
-    "grounding": GROUNDING,
-    "sampling_window": SAMPLING,
-    "tolerances": TOLERANCES,
-}
-ROWS: dict[str, tuple[FieldSpec, ...]] = {"nodes": NODE, "terminations": TERMINATION, "bias": BIAS, "probes": PROBE}
-
-
-def spec_for(path: str) -> FieldSpec | None:
-    """The field spec of a dotted path such as `nodes.3.stub_length_m` or `driver.device.rise_time_s`."""
-    parts = path.split(".")
-    if len(parts) >= 3 and parts[0] in ROWS and parts[1].isdigit():
-        key = ".".join(parts[2:])
-        return next((f for f in ROWS[parts[0]] if f.key == key), None)
-    group, key = (parts[0], ".".join(parts[1:])) if parts[0] in GROUPS and len(parts) > 1 else ("", path)
-    return next((f for f in GROUPS.get(group, ()) if f.key == key), None)
+__all__ = [
+    "BIAS",
+    "CABLE",
+    "CUSTOM_DEVICE",
+    "DEVICE",
+    "DEVICE_CLASSES",
+    "DEVICE_PICKER",
+    "DRIVER",
+    "GROUNDING",
+    "GROUPS",
+    "MAX_FORM_FIELDS",
+    "MAX_FORM_ROWS",
+    "NODE",
+    "NODE_COLUMNS",
+    "PROBE",
+    "ROWS",
+    "SAMPLING",
+    "TERMINATION",
+    "TOLERANCES",
+    "TOP",
+    "FieldSpec",
+    "FormState",
+    "ParsedForm",
+    "form_from_plan",
+    "merge_problems",
+    "parse_form",
+    "plan_from_body",
+    "spec_for",
+    "with_units",
+]
 
 
 @dataclass(slots=True)
@@ -240,6 +107,20 @@ class FormState:
     n_bias: int = 0
     open_devices: set[str] = field(default_factory=set)  # device prefixes ("nodes.3.device") shown open
     n_probes: int = 0
+    rows: dict[str, int] = field(default_factory=dict)  # rows of the other tables: segments, repeaters, ...
+
+    def count(self, group: str) -> int:
+        """The rows shown in a table ("nodes", "segments.1.bias", "repeaters")."""
+        own = {"nodes": self.n_nodes, "terminations": self.n_terminations, "bias": self.n_bias, "probes": self.n_probes}
+        return own[group] if group in own else self.rows.get(group, 0)
+
+    def add_row(self, group: str) -> None:
+        """One more (blank) row in a table."""
+        if group in ("nodes", "terminations", "bias", "probes"):
+            name = "n_nodes" if group == "nodes" else f"n_{group}"
+            setattr(self, name, getattr(self, name) + 1)
+        else:
+            self.rows[group] = self.rows.get(group, 0) + 1
 
 
 @dataclass(slots=True)
@@ -281,7 +162,27 @@ def _text(spec: FieldSpec, source: Any, units: UnitSystem) -> str:
         return "true" if raw else "false"
     if spec.key == "class_key" and isinstance(source, Mapping) and "class_key" not in source:
         return "pair-24awg-120"
+    if spec.key == "cable.class_key":  # a further segment's cable: blank is the plan's
+        cable = _raw(source, "cable")
+        return "" if cable is None else CUSTOM_CABLE if raw is None else str(raw)
     return "" if raw is None else str(raw)
+
+
+def row_tables(plan: Mapping[str, Any]) -> list[tuple[str, list[Any]]]:
+    """Every table of rows in a plan document: (its group, its rows), each further segment's own tables after the
+    segments ("segments.0.nodes")."""
+    out = []
+    for group in ROWS:
+        head, _, key = group.partition(".")
+        holder = plan.get(head) if key else plan
+        rows = holder.get(key or head) if isinstance(holder, Mapping) else None
+        out.append((group, rows if isinstance(rows, list) else []))
+        if group == "segments":
+            for i, seg in enumerate(out[-1][1][:MAX_FORM_ROWS]):
+                for key in SEGMENT_ROWS:
+                    nested = seg.get(key) if isinstance(seg, Mapping) else None
+                    out.append((f"segments.{i}.{key}", nested if isinstance(nested, list) else []))
+    return out
 
 
 def form_from_plan(plan: Mapping[str, Any], units: UnitSystem | None = None, parent_id: str | None = None) -> FormState:
@@ -296,9 +197,8 @@ def form_from_plan(plan: Mapping[str, Any], units: UnitSystem | None = None, par
         for spec in specs:
             values[_path(group, spec.key)] = _text(spec, source, system)
     counts = {}
-    for group, specs in ROWS.items():
-        rows = plan.get(group)
-        rows = rows if isinstance(rows, list) else []
+    for group, rows in row_tables(plan):
+        specs = row_specs(group) or ()
         for i, row in enumerate(rows[:MAX_FORM_ROWS]):
             for spec in specs:
                 values[f"{group}.{i}.{spec.key}"] = _text(spec, row, system)
@@ -306,8 +206,9 @@ def form_from_plan(plan: Mapping[str, Any], units: UnitSystem | None = None, par
     values.setdefault("standard", "rs485")
     if not values.get("default_device"):
         values["default_device"] = DEFAULT_DEVICE
-    for i in range(counts["nodes"]):
-        values[f"nodes.{i}.may_drive"] = values[f"nodes.{i}.may_drive"] or "false"
+    for group in (g for g in counts if g.endswith("nodes")):
+        for i in range(counts[group]):
+            values[f"{group}.{i}.may_drive"] = values[f"{group}.{i}.may_drive"] or "false"
     for group in ("", "grounding"):
         for spec in GROUPS[group]:
             if spec.choices and not values.get(_path(group, spec.key)):
@@ -320,6 +221,7 @@ def form_from_plan(plan: Mapping[str, Any], units: UnitSystem | None = None, par
         parent_id,
         n_bias=counts["bias"],
         n_probes=counts["probes"],
+        rows={g: n for g, n in counts.items() if g not in ("nodes", "terminations", "bias", "probes")},
     )
 
 
@@ -363,8 +265,9 @@ def starter_plan(units: UnitSystem) -> dict[str, Any]:
     }
 
 
-_ROW_NAME = re.compile(r"^(nodes|terminations|bias|probes)\.(\d{1,6})\.([\w.]+)$")
-_DEVICE_VALUES_ACTION = re.compile(r"^device_values:((?:driver|nodes\.\d{1,6})\.device)$")
+_DEVICE_VALUES_ACTION = re.compile(
+    r"^device_values:((?:driver|(?:segments\.\d{1,3}\.)?nodes\.\d{1,6}|repeaters\.\d{1,6})\.device)$"
+)
 
 
 def _put(target: dict[str, Any], key: str, value: Any) -> None:
@@ -374,6 +277,23 @@ def _put(target: dict[str, Any], key: str, value: Any) -> None:
         _put(target.setdefault(head, {}), rest, value)
     else:
         target[head] = value
+
+
+def _cable_from_picker(segment: dict[str, Any], plan_cable: Any) -> None:
+    """A further segment's cable as the form gave it turned into the plan's: the picker's blank choice with no
+    values is the plan's cable (no cable), blank with values is values on the plan's cable class, "custom" a cable
+    of its own values (class_key null)."""
+    cable = segment.get("cable")
+    if not isinstance(cable, dict):
+        return
+    pick = cable.pop("class_key", None)
+    if pick in (None, "") and not cable:
+        segment.pop("cable")
+    elif pick == CUSTOM_CABLE:
+        segment["cable"] = {"class_key": None, **cable}
+    else:
+        plan_key = plan_cable.get("class_key") if isinstance(plan_cable, dict) else None
+        segment["cable"] = {"class_key": pick or plan_key, **cable}
 
 
 def _device_from_picker(part: dict[str, Any]) -> None:
@@ -443,35 +363,64 @@ def parse_form(form: Mapping[str, str]) -> ParsedForm:
         if group:
             doc[group] = target
 
+    raw_tables: dict[str, dict[int, dict[str, str]]] = {}
+    for name, text in form.items():
+        m = ROW_NAME.match(name)
+        if m:
+            raw_tables.setdefault(m.group(1), {}).setdefault(int(m.group(2)), {})[m.group(3)] = str(text)
     counts: dict[str, int] = {}
-    for group, specs in ROWS.items():
-        raw_rows: dict[int, dict[str, str]] = {}
-        for name, text in form.items():
-            m = _ROW_NAME.match(name)
-            if m and m.group(1) == group:
-                raw_rows.setdefault(int(m.group(2)), {})[m.group(3)] = str(text)
-        rows = []
-        blank = 0  # blank rows come back after the filled ones, so their numbering matches the messages
+
+    def kept(group: str, raw_rows: dict[int, dict[str, str]], filled: Any = None) -> list[tuple[int, dict[str, str]]]:
+        """The rows not removed and not blank, with their index as sent; blank rows are counted for re-rendering
+        after the filled ones, so their numbering matches the messages."""
+        rows, blank = [], 0
         for index in sorted(raw_rows)[:MAX_FORM_ROWS]:
             raw = raw_rows[index]
             if raw.get("remove"):
                 continue
             # Selects always carry a value, so they do not count when deciding whether a row is blank; the driver's
-            # pins need no place.
-            needs_nothing = group == "probes" and raw.get("kind") == "driver_pin"
-            if not needs_nothing and all(not raw.get(s.key, "").strip() for s in specs if not s.choices):
+            # pins need no place; a segment with rows of its own is not blank.
+            needs_nothing = (group == "probes" and raw.get("kind") == "driver_pin") or bool(filled and filled(index))
+            if not needs_nothing and all(
+                not raw.get(s.key, "").strip() for s in row_specs(group) or () if not s.choices
+            ):
                 blank += 1
                 continue
-            rows.append(raw)
+            rows.append((index, raw))
+        counts[group] = min(len(rows) + blank, MAX_FORM_ROWS)
+        return rows
+
+    def table(group: str, rows: list[tuple[int, dict[str, str]]], name_as: str = "") -> list[dict[str, Any]]:
         items = []
-        for i, raw in enumerate(rows):
+        for i, (_, raw) in enumerate(rows):
             item: dict[str, Any] = {}
-            for spec in specs:
+            for spec in row_specs(name_as or group) or ():
                 read(f"{group}.{i}.{spec.key}", spec, item, raw.get(spec.key, ""), raw.get("name", "").strip())
             _device_from_picker(item)
             items.append(item)
-        doc[group] = items
-        counts[group] = min(len(items) + blank, MAX_FORM_ROWS)
+        return items
+
+    for group in ROWS:
+        if group == "segments":
+
+            def filled(index: int) -> bool:
+                return any(raw_tables.get(f"segments.{index}.{key}") for key in SEGMENT_ROWS)
+
+            rows = kept(group, raw_tables.get(group, {}), filled)
+            segments = table(group, rows)
+            for i, ((index, _), segment) in enumerate(zip(rows, segments, strict=True)):
+                _cable_from_picker(segment, doc.get("cable"))
+                for key in SEGMENT_ROWS:
+                    nested = kept(f"segments.{i}.{key}", raw_tables.get(f"segments.{index}.{key}", {}))
+                    segment[key] = table(f"segments.{i}.{key}", nested, key)
+            doc["segments"] = segments
+            continue
+        head, _, key = group.partition(".")
+        holder = doc.setdefault(head, {}) if key else doc
+        holder[key or head] = table(group, kept(group, raw_tables.get(group, {})))
+    four_wire = doc.get("four_wire") or {}
+    if not any(four_wire.get(k) for k in ("master", "return_terminations", "return_bias")):
+        doc.pop("four_wire", None)
 
     if doc.get("test_pattern") == "":
         doc.pop("test_pattern")
@@ -486,6 +435,7 @@ def parse_form(form: Mapping[str, str]) -> ParsedForm:
         chosen,
         n_bias=counts["bias"],
         n_probes=counts["probes"],
+        rows={g: n for g, n in counts.items() if g not in ("nodes", "terminations", "bias", "probes")},
     )
     opened = _DEVICE_VALUES_ACTION.match(action)
     if opened:
@@ -507,13 +457,28 @@ def _empty_problem(path: str, spec: FieldSpec, units: UnitSystem) -> Problem:
     return Problem(path, label, "", allowed, message)
 
 
+_ROW_WORDS = {
+    "nodes": "Node",
+    "terminations": "Terminator",
+    "bias": "Bias network",
+    "probes": "Probe",
+    "segments": "Segment",
+    "repeaters": "Repeater",
+    "four_wire.return_terminations": "Return-pair terminator",
+    "four_wire.return_bias": "Return-pair bias network",
+}
+
+
 def _label_for(path: str, spec: FieldSpec, row_name: str = "") -> str:
-    """The label of an input in messages, as the plan validator words it: "Node 4 ('d') ground offset"."""
-    m = _ROW_NAME.match(path)
+    """The label of an input in messages, as the plan validator words it: "Node 4 ('d') ground offset",
+    "Segment 1 node 2 position"."""
+    m = ROW_NAME.match(path)
     if m:
-        what = {"nodes": "Node", "terminations": "Terminator", "bias": "Bias network", "probes": "Probe"}[m.group(1)]
-        named = f" ('{row_name}')" if row_name and what == "Node" else ""
-        return f"{what} {int(m.group(2)) + 1}{named} {spec.label.lower()}"
+        within, _, group = m.group(1).rpartition(".") if m.group(1).startswith("segments.") else ("", "", m.group(1))
+        what = _ROW_WORDS[group]
+        named = f" ('{row_name}')" if row_name and what in ("Node", "Segment", "Repeater") else ""
+        label = f"{what} {int(m.group(2)) + 1}{named} {spec.label.lower()}"
+        return f"Segment {int(within.split('.')[1]) + 1} {label[0].lower()}{label[1:]}" if within else label
     group = path.split(".")[0] if "." in path else ""
     return f"{group.capitalize()} {spec.label.lower()}" if group else spec.label
 
@@ -533,6 +498,7 @@ def with_units(state: FormState, doc: Mapping[str, Any], units: UnitSystem) -> F
     fresh.n_nodes, fresh.n_terminations, fresh.n_bias = state.n_nodes, state.n_terminations, state.n_bias
     fresh.open_devices = state.open_devices
     fresh.n_probes = state.n_probes
+    fresh.rows = dict(state.rows)
     return fresh
 
 

@@ -59,3 +59,8 @@ def page_json(data: dict[str, Any]) -> bytes:
 
 def render(request: Request, template: str, data: dict[str, Any], status_code: int = 200) -> HTMLResponse:
     return HTMLResponse(render_bytes(request, template, data), status_code=status_code)
+
+
+def page_template(data: dict[str, Any]) -> str:
+    """The template of a checked plan's page: one bus, or a plan of several parts."""
+    return "network.html" if data.get("page") == "network" else "plan.html"

@@ -12,6 +12,7 @@ from pairline.engine.bus import Bus
 from pairline.engine.check import PlanReport, check_plan, report_to_dict
 from pairline.engine.findings import Finding, Verdict
 from pairline.engine.metrics import ReceiverMetrics
+from pairline.engine.network import NetworkReport, check_network
 from pairline.engine.plan import BusPlan
 from pairline.engine.rules.length_rate import (
     LENGTH_RATE_PRODUCT_M_BPS,
@@ -23,9 +24,11 @@ from pairline.engine.sweep import LengthRateCurve, length_rate_curve
 from pairline.engine.waveform import Waveforms, probe_waveforms, simulate_pattern
 
 __all__ = [
+    "CheckedNetwork",
     "CheckedPlan",
     "PlanReport",
     "check_and_simulate",
+    "check_network_and_simulate",
     "check_only",
     "quick_check",
     "report_to_dict",
@@ -75,7 +78,26 @@ def worst_receiver(
 def check_and_simulate(plan: BusPlan, chosen_receiver: str | None = None) -> CheckedPlan:
     """Run every rule (which simulates the plan once), draw the shown receivers from that simulation, and sweep
     length against rate."""
-    report = check_plan(plan)
+    return pictured(check_plan(plan), chosen_receiver)
+
+
+@dataclass(frozen=True, slots=True)
+class CheckedNetwork:
+    report: NetworkReport
+    parts: tuple[CheckedPlan, ...]  # each part's report with its pictures, in the report's order
+
+
+def check_network_and_simulate(plan: BusPlan, chosen_receiver: str | None = None) -> CheckedNetwork:
+    """Every part of a plan of several checked (engine.network) and pictured as a bus of its own; the chosen
+    receiver is drawn in the part it belongs to."""
+    report = check_network(plan)
+    return CheckedNetwork(report, tuple(pictured(p.report, chosen_receiver) for p in report.parts))
+
+
+def pictured(report: PlanReport, chosen_receiver: str | None = None) -> CheckedPlan:
+    """A checked bus with what its page draws: the worst receiver's waveforms (and the chosen one's), the plan's
+    probes and the length-against-rate curve, from the simulation the check ran."""
+    plan = report.plan
     bus: Bus = report.bus
     sim = report.simulation
     metrics = sim.metrics

@@ -28,6 +28,7 @@ from pairline.server.findings_view import (
     group_problems,
     holding_rules,
 )
+from pairline.server.form_fields import FOUR_WIRE, REPEATER, REPEATER_COLUMNS, SEGMENT, SEGMENT_ROWS
 from pairline.server.forms import (
     BIAS,
     CABLE,
@@ -114,6 +115,9 @@ def _field_meta(units: UnitSystem) -> dict[str, dict[str, dict[str, Any]]]:
         "sampling_window": SAMPLING,
         "tolerances": TOLERANCES,
         "probes": PROBE,
+        "segments": SEGMENT,
+        "repeaters": REPEATER,
+        "four_wire": FOUR_WIRE,
     }
     return {
         name: {
@@ -158,7 +162,11 @@ def _open_devices(state: FormState, errors: Mapping[str, str]) -> list[str]:
     """The device prefixes whose values the editor shows open: every device (the driver's, a node's) that is
     custom, has a value typed, has a problem, or was asked open. A node's closed values are not sent at all; the
     driver's are, folded."""
-    prefixes = ["driver.device"] + [f"nodes.{i}.device" for i in range(state.n_nodes)]
+    prefixes = (
+        ["driver.device"]
+        + [f"nodes.{i}.device" for i in range(state.n_nodes)]
+        + [f"{g}.{i}.device" for g in _node_tables(state) for i in range(state.count(g))]
+    )
     values = state.values
     return [
         prefix
@@ -170,8 +178,50 @@ def _open_devices(state: FormState, errors: Mapping[str, str]) -> list[str]:
     ]
 
 
+def _node_tables(state: FormState) -> list[str]:
+    """The other tables whose rows carry a device: the repeaters and each further segment's nodes."""
+    return ["repeaters"] + [f"segments.{i}.nodes" for i in range(state.count("segments"))]
+
+
+def _uses_four_wire(state: FormState) -> bool:
+    values = state.values
+    return bool(values.get("four_wire.master")) or any(
+        values.get(path) for path in values if path.endswith(".drives_pair")
+    )
+
+
+def _topology_data(state: FormState) -> dict[str, Any]:
+    """The editor's segments, repeaters and four-wire return pair: each table's rows and columns."""
+    four_wire = _uses_four_wire(state)
+    return {
+        "node_columns": [s.key for s in NODE_COLUMNS] + (["drives_pair"] if four_wire else []),
+        "four_wire": four_wire,
+        "segment_fields": [s.key for s in SEGMENT],
+        "segments": [
+            {
+                "index": i,
+                "prefix": f"segments.{i}",
+                "counts": {k: state.count(f"segments.{i}.{k}") for k in SEGMENT_ROWS},
+            }
+            for i in range(state.count("segments"))
+        ],
+        "n_repeaters": state.count("repeaters"),
+        "repeater_columns": [s.key for s in REPEATER_COLUMNS],
+        "n_return_terminations": state.count("four_wire.return_terminations"),
+        "n_return_bias": state.count("four_wire.return_bias"),
+    }
+
+
 # whole-table problems link to the table
-TABLES = {"nodes": "node-rows", "terminations": "termination-rows", "bias": "bias-rows", "probes": "probe-rows"}
+TABLES = {
+    "nodes": "node-rows",
+    "terminations": "termination-rows",
+    "bias": "bias-rows",
+    "probes": "probe-rows",
+    "segments": "segment-list",
+    "repeaters": "repeater-rows",
+    "four_wire": "four-wire",
+}
 
 
 def editor_data(state: FormState, *, title: str, saved_from: SavedPlan | None = None) -> dict[str, Any]:
@@ -212,7 +262,6 @@ def editor_data(state: FormState, *, title: str, saved_from: SavedPlan | None = 
         "errors": by_field,
         "problems": general,
         "fields": _field_meta(state.units),
-        "node_columns": [s.key for s in NODE_COLUMNS],
         "device_values": [s.key for s in DEVICE],
         "open_devices": _open_devices(state, by_field),
         "termination_columns": [s.key for s in TERMINATION],
@@ -224,7 +273,7 @@ def editor_data(state: FormState, *, title: str, saved_from: SavedPlan | None = 
         "cables": {k: json_safe(c) for k, c in CABLES.items()},
         "transceivers": {k: json_safe(t) for k, t in TRANSCEIVERS.items()},
         "engine_version": ENGINE_VERSION,
-    }
+    } | _topology_data(state)
 
 
 def start_data(

@@ -6,6 +6,8 @@ import math
 import re
 from collections.abc import Mapping
 
+from pairline.engine.network import NetworkReport
+from pairline.engine.segments import PlanPart
 from pairline.engine.units import si_format
 from pairline.server.quantities import UnitSystem, length_text, number_text
 
@@ -87,3 +89,24 @@ def counts_text(counts: Mapping[str, int]) -> str:
             else counted(counts["holds"], "check holds", "checks hold")
         )
     return " · ".join(parts)
+
+
+def shape_text(report: NetworkReport) -> str:
+    """ "2 segments joined by 1 repeater" or "four-wire: a transmit pair and a return pair"."""
+    plan = report.plan
+    if plan.four_wire is not None:
+        pairs = "a transmit pair and a return pair" if len(report.parts) > 1 else "a transmit pair (no slave replies)"
+        return f"four-wire with {pairs}; master '{plan.driver.name}'"
+    count = len(report.parts)
+    return f"{count} segments joined by {len(plan.repeaters)} repeater(s)"
+
+
+def driven_text(part: PlanPart) -> str:
+    """Who drives a part: "driven by the master 'plc'", "driven by repeater 'gate'", "replies from 'valve-8' ..."."""
+    driver = part.plan.driver.name
+    if part.kind == "return_pair":
+        talkers = [driver] + [n.name for n in part.plan.nodes if n.may_drive]
+        return f"replies from {len(talkers)} slave(s) to the master's receiver"
+    if part.feeder is not None:
+        return f"driven by repeater '{part.feeder}'"
+    return f"driven by the master '{driver}'"

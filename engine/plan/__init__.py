@@ -1,8 +1,8 @@
-"""The bus plan: one versioned JSON document (format version 2), validated by one pydantic model.
+"""The bus plan: one versioned JSON document (format version 3), validated by one pydantic model.
 
 The same model validates plan files, the JSON API, the CLI and saved plans; the web form's field names are
-the dotted paths of this model. Version-1 documents are read by their own schema and upgraded on load
-(engine.plan.legacy). Bad input raises `BusInputError` listing every problem at once, each with its field
+the dotted paths of this model. Version-1 and version-2 documents are read by their own schemas and upgraded on
+load (engine.plan.legacy). Bad input raises `BusInputError` listing every problem at once, each with its field
 path, value and allowed range. Pydantic is used in this package only.
 """
 
@@ -24,7 +24,6 @@ from pairline.engine.plan.model import (
     PLAN_FORMAT,
     PLAN_FORMAT_VERSION,
     BiasSpec,
-    BusPlan,
     CableSpec,
     DeviceSpec,
     DriverSpec,
@@ -37,6 +36,15 @@ from pairline.engine.plan.model import (
     ToleranceSpec,
 )
 from pairline.engine.plan.problems import BusInputError, Problem, allowed_of, field_info
+from pairline.engine.plan.topology import (
+    MAIN_SEGMENT,
+    MAX_SEGMENTS,
+    REPEATER_DELAY_SOURCE,
+    BusPlan,
+    FourWireSpec,
+    RepeaterSpec,
+    SegmentSpec,
+)
 
 UNIT_LOAD_OHM = 12_000.0  # one unit load, per line: 12 V / 1 mA (TIA-485-A)
 
@@ -69,6 +77,12 @@ __all__ = [
     "CableSpec",
     "DeviceSpec",
     "DriverSpec",
+    "FourWireSpec",
+    "MAIN_SEGMENT",
+    "MAX_SEGMENTS",
+    "REPEATER_DELAY_SOURCE",
+    "RepeaterSpec",
+    "SegmentSpec",
     "GroundingSpec",
     "NodeSpec",
     "PlanHead",

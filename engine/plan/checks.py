@@ -3,111 +3,41 @@ reported alongside the field checks: positions past the trunk end, names used tw
 its capacitor, unknown cable or device classes, a threshold window that is not a window, isolation without a
 rating, a node that may drive on an RS-422 line, a node of its own values that may drive without an edge time."""
 
-from collections.abc import Callable, Mapping
+from collections.abc import Mapping
 from typing import Any
 
 from pairline.engine.library import CABLES, STANDARD_MINIMUM, TRANSCEIVERS, TransceiverClass
-from pairline.engine.plan.model import DEFAULT_DEVICE, MAX_NODES, MAX_TRUNK_M, MIN_TRUNK_M, BusPlan, CableSpec
+from pairline.engine.plan.model import DEFAULT_DEVICE, MAX_TRUNK_M, CableSpec
 from pairline.engine.plan.problems import (
     Problem,
     allowed_of,
     field_info,
-    finite_float,
     range_text,
     row_label,
     short,
     value_text,
 )
+from pairline.engine.plan.raw import PastEnd, items, named_rows, num, past_end_check, sub, trunks
+from pairline.engine.plan.topology import BusPlan
+from pairline.engine.plan.topology_checks import topology_problems
 from pairline.engine.units import si_format
 from pydantic import BaseModel
 
-PastEnd = Callable[[str, str, float | None], None]
-
-
-def num(obj: Any, key: str, default: float | None = None) -> float | None:
-    """A finite number from a raw dict, or the default when absent or not a number (field checks report it)."""
-    raw = obj.get(key, default) if isinstance(obj, dict) else default
-    if isinstance(raw, bool) or not isinstance(raw, int | float):
-        return None
-    return finite_float(raw)
-
-
-def sub(obj: dict[str, Any], key: str) -> dict[str, Any]:
-    raw = obj.get(key)
-    return raw if isinstance(raw, dict) else {}
-
-
-def items(obj: Any, key: str) -> list[Any]:
-    raw = obj.get(key) if isinstance(obj, dict) else None
-    return raw if isinstance(raw, list) and len(raw) <= MAX_NODES else []
-
-
-def past_end_check(data: dict[str, Any], problems: list[Problem]) -> PastEnd:
-    """A function that reports a position past the trunk end."""
-    length = num(data, "trunk_length_m")
-
-    def past_end(path: str, label: str, position_m: float | None) -> None:
-        if length is not None and length >= MIN_TRUNK_M and position_m is not None and position_m > length:
-            problems.append(
-                Problem(
-                    path,
-                    label,
-                    position_m,
-                    {"min": 0.0, "max": length, "unit": "m"},
-                    f"{label} is at {position_m:g} m, past the trunk end at {length:g} m "
-                    f"(trunk_length_m); allowed 0 to {length:g} m.",
-                )
-            )
-
-    return past_end
+__all__ = ["DEVICE_CHOICES", "class_problems", "cross_field_problems", "items", "num", "past_end_check"]
 
 
 def shared_problems(data: dict[str, Any], past_end: PastEnd) -> list[Problem]:
-    """Checks both format versions share: names, node and terminator positions, RC capacitors, probes, the
+    """Checks every format version shares: names, node and terminator positions, RC capacitors, probes, the
     tolerances' edge range, the cable class."""
-    problems: list[Problem] = []
-    driver = sub(data, "driver")
-    past_end("driver.position_m", "Driver position", num(driver, "position_m", 0.0))
-    driver_name = driver.get("name", "driver")
-    names: dict[str, str] = {driver_name: "the driver"} if isinstance(driver_name, str) else {}
-    for i, node in enumerate(items(data, "nodes")):
-        if not isinstance(node, dict):
-            continue
-        name = node.get("name")
-        shown = f" ('{name}')" if isinstance(name, str) else ""
-        past_end(f"nodes.{i}.position_m", f"Node {i + 1}{shown} position", num(node, "position_m"))
-        if isinstance(name, str) and name in names:
-            problems.append(
-                Problem(
-                    f"nodes.{i}.name",
-                    f"Node {i + 1} name",
-                    name,
-                    {"rule": "unique among the driver and all nodes"},
-                    f"Node {i + 1} name '{name}' is already used by {names[name]}; every node needs its own name.",
-                )
-            )
-        elif isinstance(name, str):
-            names[name] = f"node {i + 1}"
-    for i, term in enumerate(items(data, "terminations")):
-        if not isinstance(term, dict):
-            continue
-        past_end(f"terminations.{i}.position_m", f"Terminator {i + 1} position", num(term, "position_m"))
-        if term.get("kind") == "rc" and term.get("capacitance_f") is None:
-            problems.append(
-                Problem(
-                    f"terminations.{i}.capacitance_f",
-                    f"Terminator {i + 1} capacitance",
-                    None,
-                    {"min": 1e-12, "max": 100e-6, "unit": "F"},
-                    f"Terminator {i + 1} is an RC terminator and needs a capacitance; allowed 1 pF to 100 µF.",
-                )
-            )
+    problems: list[Problem] = name_problems(data)
+    past_end("driver.position_m", "Driver position", num(sub(data, "driver"), "position_m", 0.0))
+    problems += trunk_problems(data, "", "", past_end)
     length = num(data, "trunk_length_m")
     for i, probe in enumerate(items(data, "probes")):
         if not isinstance(probe, dict):
             continue
         kind = probe.get("kind", "node")
-        node_names = [n.get("name") for n in items(data, "nodes") if isinstance(n, dict)]
+        node_names = [name for path, name, _ in named_rows(data) if ".nodes." in f".{path}" and name is not None]
         if kind == "node" and probe.get("node") not in node_names:
             problems.append(
                 Problem(
@@ -146,8 +76,73 @@ def shared_problems(data: dict[str, Any], past_end: PastEnd) -> list[Problem]:
                 f"(tolerances.rise_time_min_s, {si_format(fastest, 's')}); it must be at least that.",
             )
         )
-    fields = ("z0_ohm", "velocity_factor", "resistance_ohm_per_m")
-    problems += class_problems(data, "cable", "class_key", "pair-24awg-120", "Cable class", CABLES, CableSpec, fields)
+    problems += class_problems(
+        data, "cable", "class_key", "pair-24awg-120", "Cable class", CABLES, CableSpec, _CABLE_VALUES
+    )
+    return problems
+
+
+_CABLE_VALUES = ("z0_ohm", "velocity_factor", "resistance_ohm_per_m")  # what a cable of its own values must state
+
+
+def name_problems(data: dict[str, Any]) -> list[Problem]:
+    """Every node and repeater has its own name: a node belongs to one segment only."""
+    problems: list[Problem] = []
+    seen: dict[str, tuple[str, str]] = {}
+    for path, name, what in named_rows(data):
+        if name is None:
+            continue
+        if name in seen:
+            other_path, other = seen[name]
+            label = what[0].upper() + what[1:] + " name"
+            problems.append(
+                Problem(
+                    path,
+                    label,
+                    name,
+                    {"rule": "unique among the driver, every segment's nodes and the repeaters", "used_by": other_path},
+                    f"{label} '{name}' is already used by {other} ({other_path}); every node belongs to one segment "
+                    "and needs its own name.",
+                )
+            )
+        else:
+            seen[name] = (path, what)
+    return problems
+
+
+def within(label_prefix: str, what: str) -> str:
+    """ "Segment 1 ('store') node 2 position" from "Segment 1 ('store') " and "Node 2 position"."""
+    return f"{label_prefix}{what[0].lower()}{what[1:]}" if label_prefix else what
+
+
+def trunk_problems(data: dict[str, Any], prefix: str, label_prefix: str, past_end: PastEnd) -> list[Problem]:
+    """One trunk's rows (the plan's own, or a further segment's at `prefix`): node and terminator positions on it,
+    an RC terminator's capacitor."""
+    problems: list[Problem] = []
+    for i, node in enumerate(items(data, "nodes")):
+        if isinstance(node, dict):
+            name = node.get("name")
+            shown = f" ('{name}')" if isinstance(name, str) else ""
+            past_end(
+                f"{prefix}nodes.{i}.position_m",
+                within(label_prefix, f"Node {i + 1}{shown} position"),
+                num(node, "position_m"),
+            )
+    for i, term in enumerate(items(data, "terminations")):
+        if not isinstance(term, dict):
+            continue
+        label = within(label_prefix, f"Terminator {i + 1}")
+        past_end(f"{prefix}terminations.{i}.position_m", f"{label} position", num(term, "position_m"))
+        if term.get("kind") == "rc" and term.get("capacitance_f") is None:
+            problems.append(
+                Problem(
+                    f"{prefix}terminations.{i}.capacitance_f",
+                    f"{label} capacitance",
+                    None,
+                    {"min": 1e-12, "max": 100e-6, "unit": "F"},
+                    f"{label} is an RC terminator and needs a capacitance; allowed 1 pF to 100 µF.",
+                )
+            )
     return problems
 
 
@@ -160,12 +155,13 @@ def class_problems(
     library: Mapping[str, Any],
     model: type[BaseModel],
     custom_fields: tuple[str, ...],
+    prefix: str = "",
 ) -> list[Problem]:
     """A part that names a library class (the cable, a format-1 driver): the class is known, or with no class
-    (null) the values a custom part needs are given."""
+    (null) the values a custom part needs are given. prefix: where `data` sits in the plan ("segments.1.")."""
     given = sub(data, part)
     key = given.get(key_field, default_key)
-    path = f"{part}.{key_field}"
+    path = f"{prefix}{part}.{key_field}"
     if isinstance(key, str) and key not in library:
         return [
             Problem(
@@ -179,7 +175,9 @@ def class_problems(
         ]
     if key is not None:
         return []
-    return [missing_custom(part, model.model_fields[k], k, path) for k in custom_fields if given.get(k) is None]
+    return [
+        missing_custom(f"{prefix}{part}", model.model_fields[k], k, path) for k in custom_fields if given.get(k) is None
+    ]
 
 
 def missing_custom(prefix: str, info: Any, key: str, class_field: str, why: str = "", label: str = "") -> Problem:
@@ -196,37 +194,64 @@ DEVICE_CHOICES: list[str | None] = [*sorted(TRANSCEIVERS), None]
 
 
 def cross_field_problems(data: dict[str, Any]) -> list[Problem]:
-    """Every cross-field problem of a version-2 document (see the module docstring)."""
+    """Every cross-field problem of a version-3 document (see the module docstring); a version-2 document is one
+    with none of version 3's additions."""
     problems: list[Problem] = []
     past_end = past_end_check(data, problems)
     problems += shared_problems(data, past_end)
     standard = data.get("standard", "rs485")
-    for i, bias in enumerate(items(data, "bias")):
-        if isinstance(bias, dict):
-            past_end(f"bias.{i}.position_m", f"Bias network {i + 1} position", num(bias, "position_m", 0.0))
+    four_wire = isinstance(data.get("four_wire"), dict)
     default_key = data.get("default_device", DEFAULT_DEVICE)
     if not isinstance(default_key, str) or default_key not in TRANSCEIVERS:
         problems.append(_unknown_class("default_device", "Default device class", default_key, own_values=False))
         default_key = None
     problems += _device_problems(data, "driver.device", sub(data, "driver").get("device"), default_key, True)
-    for i, node in enumerate(items(data, "nodes")):
-        if not isinstance(node, dict):
-            continue
-        talks = node.get("may_drive") is True
-        if standard == "rs422" and talks:
-            problems.append(rs422_talker_problem(i, node, "may_drive", True, False, "may drive"))
-        talks = talks and standard == "rs485"
-        problems += _device_problems(data, f"nodes.{i}.device", node.get("device"), default_key, talks)
-    return problems
+    for prefix, trunk, label in trunks(data):
+        label_prefix = f"{label} " if label else ""
+        if prefix:
+            ends = past_end_check(trunk, problems, f"{prefix}trunk_length_m")
+            problems += trunk_problems(trunk, prefix, label_prefix, ends)
+            if isinstance(trunk.get("cable"), dict):
+                problems += class_problems(
+                    trunk,
+                    "cable",
+                    "class_key",
+                    "pair-24awg-120",
+                    "Cable class",
+                    CABLES,
+                    CableSpec,
+                    _CABLE_VALUES,
+                    prefix,
+                )
+        else:
+            ends = past_end
+        for i, bias in enumerate(items(trunk, "bias")):
+            if isinstance(bias, dict):
+                label = within(label_prefix, f"Bias network {i + 1} position")
+                ends(f"{prefix}bias.{i}.position_m", label, num(bias, "position_m", 0.0))
+        for i, node in enumerate(items(trunk, "nodes")):
+            if not isinstance(node, dict):
+                continue
+            talks = node.get("may_drive") is True
+            if standard == "rs422" and talks and not four_wire:
+                problems.append(rs422_talker_problem(i, node, "may_drive", True, False, "may drive", prefix))
+            talks = talks and (standard == "rs485" or four_wire)
+            problems += _device_problems(data, f"{prefix}nodes.{i}.device", node.get("device"), default_key, talks)
+    for i, rep in enumerate(items(data, "repeaters")):
+        if isinstance(rep, dict):
+            problems += _device_problems(data, f"repeaters.{i}.device", rep.get("device"), default_key, True)
+    return problems + topology_problems(data)
 
 
-def rs422_talker_problem(i: int, node: dict[str, Any], key: str, value: Any, allowed: Any, says: str) -> Problem:
+def rs422_talker_problem(
+    i: int, node: dict[str, Any], key: str, value: Any, allowed: Any, says: str, prefix: str = ""
+) -> Problem:
     """Node i would drive an RS-422 line, which has one driver: "Node 3 ('pump') may drive, but ..."."""
     name = node.get("name")
     shown = f" ('{name}')" if isinstance(name, str) else ""
     label = f"Node {i + 1}{shown} {key.replace('_', ' ')}"
     return Problem(
-        f"nodes.{i}.{key}",
+        f"{prefix}nodes.{i}.{key}",
         label,
         value,
         {"choices": [allowed], "because": "standard is rs422"},

@@ -1,4 +1,8 @@
-"""Format version 1, read and upgraded: plans saved before devices, bias lists and grounding open unchanged.
+"""Format versions 1 and 2, read and upgraded: plans saved before devices, bias lists and grounding (version 1)
+and before segments, repeaters and four-wire pairs (version 2) open unchanged.
+
+A version-2 document is one bus: validated by its own schema (BusPlanV2, the fields version 3 shares with it), then
+restated as version 3 with the same meaning (version 3 only adds fields, each empty by default).
 
 A version-1 document is validated by its own schema (so its problems name the fields it has), then upgraded to
 version 2 with the same meaning:
@@ -16,6 +20,7 @@ from typing import Any, Literal
 from pairline.engine.library import STANDARD_MINIMUM, TRANSCEIVERS
 from pairline.engine.plan.checks import (
     class_problems,
+    cross_field_problems,
     items,
     num,
     past_end_check,
@@ -29,13 +34,14 @@ from pairline.engine.plan.model import (
     MAX_TRUNK_M,
     BiasSpec,
     Name,
+    OneBus,
     PlanHead,
     TerminationSpec,
     _f,
     _Strict,
     ground_offset_field,
 )
-from pairline.engine.plan.problems import Problem
+from pairline.engine.plan.problems import Problem, short
 from pydantic import Field
 
 _DRIVER_VALUES = ("rise_time_s", "open_circuit_v", "source_ohm")
@@ -130,3 +136,31 @@ def upgrade_v1(v1: dict[str, Any]) -> dict[str, Any]:
     bias = v1.get("bias")
     doc["bias"] = [bias] if bias else []
     return doc
+
+
+class BusPlanV2(OneBus):
+    format_version: Literal[2] = Field(2, title="Format version")
+
+
+def cross_field_problems_v2(data: dict[str, Any]) -> list[Problem]:
+    """The cross-field checks of a version-2 document: version 3's on a plan of one bus, and no field of version 3
+    inside a node (the schemas share the node)."""
+    problems = cross_field_problems(data)
+    for i, node in enumerate(items(data, "nodes")):
+        if isinstance(node, dict) and "drives_pair" in node:
+            problems.append(
+                Problem(
+                    f"nodes.{i}.drives_pair",
+                    f"Node {i + 1} pair it drives",
+                    short(node["drives_pair"]),
+                    {"rule": "a field of plan format 3 (four-wire plans)"},
+                    f"Node {i + 1} states drives_pair, a field of plan format 3 for four-wire plans; set "
+                    "format_version to 3 with a four_wire return pair, or remove it.",
+                )
+            )
+    return problems
+
+
+def upgrade_v2(v2: dict[str, Any]) -> dict[str, Any]:
+    """A version-2 document as version 3: the same fields, the same meaning (version 3's additions are empty)."""
+    return v2 | {"format_version": 3}

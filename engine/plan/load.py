@@ -1,18 +1,26 @@
-"""Reading a plan document: the version it states decides the schema; a version-1 document is upgraded to
-version 2 (engine.plan.legacy). Bad input raises BusInputError listing every problem at once: field checks and
-cross-field checks both run, so the user sees the whole list in one go."""
+"""Reading a plan document: the version it states decides the schema; version-1 and version-2 documents are
+upgraded to version 3 (engine.plan.legacy). Bad input raises BusInputError listing every problem at once: field
+checks and cross-field checks both run, so the user sees the whole list in one go."""
 
 from typing import Any, TypeVar
 
 from pairline.engine.plan.checks import cross_field_problems
-from pairline.engine.plan.legacy import BusPlanV1, cross_field_problems_v1, upgrade_v1
-from pairline.engine.plan.model import DEFAULT_DEVICE, FORMAT_VERSIONS, BusPlan
+from pairline.engine.plan.legacy import (
+    BusPlanV1,
+    BusPlanV2,
+    cross_field_problems_v1,
+    cross_field_problems_v2,
+    upgrade_v1,
+    upgrade_v2,
+)
+from pairline.engine.plan.model import DEFAULT_DEVICE, FORMAT_VERSIONS
 from pairline.engine.plan.problems import BusInputError, Problem, problem_from_pydantic, short
+from pairline.engine.plan.topology import BusPlan
 from pydantic import BaseModel, ValidationError
 
 
 def load_plan(data: Any) -> BusPlan:
-    """Validate a plan document (a dict from JSON) of either format version; the plan comes back as version 2.
+    """Validate a plan document (a dict from JSON) of any format version; the plan comes back as version 3.
     A document that states no version is version 1 (every document written before version 2 was)."""
     if not isinstance(data, dict):
         raise BusInputError(
@@ -21,8 +29,11 @@ def load_plan(data: Any) -> BusPlan:
     version = data.get("format_version", 1)
     if version == 1 and not isinstance(version, bool):
         v1 = _validated(BusPlanV1, data, cross_field_problems_v1)
-        return _validated(BusPlan, upgrade_v1(v1.model_dump(mode="json")), cross_field_problems)
+        return _validated(BusPlan, upgrade_v2(upgrade_v1(v1.model_dump(mode="json"))), cross_field_problems)
     if version == 2 and not isinstance(version, bool):
+        v2 = _validated(BusPlanV2, with_default_classes(data), cross_field_problems_v2)
+        return BusPlan.model_validate(upgrade_v2(v2.model_dump(mode="json")))
+    if version == 3 and not isinstance(version, bool):
         return _validated(BusPlan, with_default_classes(data), cross_field_problems)
     raise BusInputError(
         [
@@ -55,14 +66,15 @@ def _validated(model: type[M], data: dict[str, Any], checks: Any) -> M:
 
 
 def current_document(data: Any) -> Any:
-    """A plan document in the current format: a version-1 document upgraded (engine.plan.legacy), whether it
-    validates or not, so the editor shows it under version 2's field names; anything else as it is."""
-    if (
-        isinstance(data, dict)
-        and data.get("format_version", 1) == 1
-        and not isinstance(data.get("format_version"), bool)
-    ):
-        return upgrade_v1(data)
+    """A plan document in the current format: a version-1 or version-2 document upgraded (engine.plan.legacy),
+    whether it validates or not, so the editor shows it under version 3's field names; anything else as it is."""
+    if not isinstance(data, dict) or isinstance(data.get("format_version"), bool):
+        return data
+    version = data.get("format_version", 1)
+    if version == 1:
+        return upgrade_v2(upgrade_v1(data))
+    if version == 2:
+        return upgrade_v2(data)
     return data
 
 
@@ -77,15 +89,21 @@ def with_default_classes(data: dict[str, Any]) -> dict[str, Any]:
             return part | {"device": {"class_key": default, **device}}
         return part
 
-    out = dict(data)
+    def filled_nodes(part: Any) -> Any:
+        if isinstance(part, dict) and isinstance(part.get("nodes"), list):
+            return part | {"nodes": [filled(n) for n in part["nodes"]]}
+        return part
+
+    out: dict[str, Any] = filled_nodes(dict(data))
     if "driver" in out:
         out["driver"] = filled(out["driver"])
-    if isinstance(out.get("nodes"), list):
-        out["nodes"] = [filled(n) for n in out["nodes"]]
+    for key, fill in (("segments", filled_nodes), ("repeaters", filled)):
+        if isinstance(out.get(key), list):
+            out[key] = [fill(part) for part in out[key]]
     return out
 
 
 def plan_to_dict(plan: BusPlan) -> dict[str, Any]:
-    """The plan as its version-2 JSON document (defaults included, so a saved file states every value; a device
+    """The plan as its version-3 JSON document (defaults included, so a saved file states every value; a device
     with nothing overridden is written as its class key)."""
     return plan.model_dump(mode="json")

@@ -1,10 +1,10 @@
-"""The bus plan, format version 2: one pydantic model that files, the JSON API, the CLI, the form and saved
-plans all validate through. Every physical field carries its SI unit in its name.
+"""The parts of a bus plan, and the fields of one bus (one trunk and what hangs on it) that format versions 2 and 3
+share. Every physical field carries its SI unit in its name.
 
-Version 2 gives every node its own device (a library transceiver class, or its own values), any number of
-failsafe bias networks along the trunk, and the ground and shield wiring. Later additions (segments,
-repeaters, branches, a second pair) go in as further optional fields and lists of their own; a reader of
-this version ignores nothing silently, since unknown fields are rejected by name.
+Version 2 gave every node its own device (a library transceiver class, or its own values), any number of
+failsafe bias networks along the trunk, and the ground and shield wiring. Version 3 (engine.plan.topology) adds
+segments joined by repeaters and a four-wire return pair as further optional fields and lists; a reader of a
+version ignores nothing silently, since unknown fields are rejected by name.
 """
 
 from typing import Annotated, Any, Literal
@@ -22,8 +22,8 @@ from pydantic import (
 from pydantic_core import PydanticCustomError
 
 PLAN_FORMAT: Literal["pairline-bus-plan"] = "pairline-bus-plan"
-PLAN_FORMAT_VERSION: Literal[2] = 2
-FORMAT_VERSIONS = (1, 2)
+PLAN_FORMAT_VERSION: Literal[3] = 3
+FORMAT_VERSIONS = (1, 2, 3)
 MAX_NODES = 512
 MAX_TRUNK_M = 4000.0
 MIN_TRUNK_M = 0.1  # a bench bus; shorter is no cable run
@@ -209,6 +209,11 @@ class NodeSpec(_Strict):
     device: DeviceRef = Field(None, title="Device", description="none: the plan's default class")
     may_drive: bool = Field(False, title="May drive", description="an RS-485 half-duplex node that also talks")
     ground_offset_v: float = ground_offset_field()
+    drives_pair: Literal["return", "transmit"] | None = Field(
+        None,
+        title="Pair it drives",
+        description="four-wire plans only: a slave drives the return pair (empty: the return pair)",
+    )
 
 
 class TerminationSpec(_Strict):
@@ -313,8 +318,9 @@ class PlanHead(_Strict):
     tolerances: ToleranceSpec = Field(default_factory=ToleranceSpec, title="Tolerances")
 
 
-class BusPlan(PlanHead):
-    format_version: Literal[2] = Field(PLAN_FORMAT_VERSION, title="Format version")
+class OneBus(PlanHead):
+    """One bus: a trunk, its driver, nodes, terminators, bias and ground wiring (all of a version-2 plan)."""
+
     default_device: str = Field(DEFAULT_DEVICE, title="Default device class")
     driver: DriverSpec = Field(default_factory=DriverSpec, title="Driver")
     nodes: list[NodeSpec] = Field(min_length=1, max_length=MAX_NODES, title="Nodes")

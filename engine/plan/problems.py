@@ -128,27 +128,49 @@ def submodel(annotation: Any) -> type[BaseModel] | None:
     return None
 
 
-_ROWS = {"nodes": "Node", "terminations": "Terminator", "bias": "Bias network"}
+_ROWS = {
+    "nodes": "Node",
+    "terminations": "Terminator",
+    "bias": "Bias network",
+    "segments": "Segment",
+    "repeaters": "Repeater",
+}
+_RETURN_ROWS = {"return_terminations": "terminations", "return_bias": "bias"}
+
+
+def _lower_first(text: str) -> str:
+    return text[:1].lower() + text[1:]
+
+
+def _row(data: Any, key: Any, index: int) -> Any:
+    try:
+        return data[key][index]
+    except (KeyError, IndexError, TypeError):
+        return None
 
 
 def row_label(loc: tuple[int | str, ...], data: Any, title: str) -> str:
-    """A label for a field: "Node 4 ('pump') stub length", "Bias network 2 pull-up resistor", "Trunk length"."""
+    """A label for a field: "Node 4 ('pump') stub length", "Bias network 2 pull-up resistor", "Trunk length",
+    "Segment 1 ('store') node 2 ('door') position", "Return-pair terminator 1 position"."""
+    if len(loc) >= 4 and loc[0] == "segments" and isinstance(loc[1], int) and loc[2] in _ROWS:
+        segment = row_label(loc[:2], data, title)
+        return f"{segment} {_lower_first(row_label(loc[2:], _row(data, 'segments', loc[1]), title))}"
+    if len(loc) >= 3 and loc[0] == "four_wire" and loc[1] in _RETURN_ROWS:
+        key = _RETURN_ROWS[str(loc[1])]
+        raw = data.get("four_wire") if isinstance(data, dict) else None
+        inner = row_label((key, *loc[2:]), {key: raw.get(loc[1]) if isinstance(raw, dict) else None}, title)
+        return f"Return-pair {_lower_first(inner)}"
     if len(loc) >= 2 and loc[0] in _ROWS and isinstance(loc[1], int):
         what = _ROWS[str(loc[0])]
-        name = ""
-        try:
-            raw = data[loc[0]][loc[1]]
-            if loc[0] == "nodes" and isinstance(raw, dict) and isinstance(raw.get("name"), str):
-                name = f" ('{raw['name']}')"
-        except (KeyError, IndexError, TypeError):
-            pass
+        raw = _row(data, loc[0], loc[1])
+        name = f" ('{raw['name']}')" if isinstance(raw, dict) and isinstance(raw.get("name"), str) else ""
         if len(loc) == 2:
             return f"{what} {loc[1] + 1}{name}"
         first = what.split()[0]
-        word = title[0].lower() + title[1:] if not title.startswith(first) else title[len(first) + 1 :]
+        word = _lower_first(title) if not title.startswith(first) else title[len(first) + 1 :]
         return f"{what} {loc[1] + 1}{name} {word}"
     if len(loc) >= 2 and loc[0] == "driver" and loc[1] == "device" and not title.startswith("Driver"):
-        return f"Driver {title[0].lower() + title[1:]}"
+        return f"Driver {_lower_first(title)}"
     return title
 
 

@@ -3,6 +3,7 @@
 import csv
 import io
 import json
+import re
 import unicodedata
 from typing import Annotated, Any
 from urllib.parse import quote
@@ -28,7 +29,7 @@ from pairline.server.json_input import JsonInputError, load_json
 from pairline.server.node_table import read_node_table, with_pasted_rows
 from pairline.server.openapi import FORM_BODY, IMPORT_BODY
 from pairline.server.quantities import UnitSystem
-from pairline.server.rendering import page_at, page_json, render, render_bytes
+from pairline.server.rendering import page_at, page_json, page_template, render, render_bytes
 from pairline.server.saving import save_checked_plan
 from pairline.server.store import PlanStore, SavedPlan
 from pairline.server.views import editor_data, lineage_data, start_data
@@ -157,15 +158,24 @@ async def submit_plan(request: Request, store: StoreDep, checker: CheckerDep) ->
             return render(request, "editor.html", editor_data(state, title=_editor_title(state)), status_code=422)
         state = with_pasted_rows(state, len(parsed.doc["nodes"]), table.rows, bool(fields.get("node_table_replace")))
         return render(request, "editor.html", editor_data(state, title=_editor_title(state)))
-    if parsed.action in ("add_node", "add_termination", "add_bias", "add_probe", "device_values", "units", "edit"):
-        if parsed.action == "add_node":
-            state.n_nodes += 1
-        elif parsed.action == "add_termination":
-            state.n_terminations += 1
-        elif parsed.action == "add_bias":
-            state.n_bias += 1
-        elif parsed.action == "add_probe":
-            state.n_probes += 1
+    adding = ADD_ROW.match(parsed.action)
+    if adding or parsed.action in (
+        "add_node",
+        "add_termination",
+        "add_bias",
+        "add_probe",
+        "device_values",
+        "units",
+        "edit",
+    ):
+        if adding:
+            state.add_row(adding.group(1))
+        elif parsed.action.startswith("add_"):
+            state.add_row(
+                {"add_node": "nodes", "add_termination": "terminations", "add_bias": "bias", "add_probe": "probes"}[
+                    parsed.action
+                ]
+            )
         elif parsed.action == "units":
             state = with_units(state, parsed.doc, parsed.doc["display_units"])
         state.problems = []
@@ -195,7 +205,14 @@ async def submit_plan(request: Request, store: StoreDep, checker: CheckerDep) ->
         "parent_id": await run_in_threadpool(_parent, store, state.parent_id),
         "fields": draft_fields(state),
     }
-    return render(request, "plan.html", data)
+    return render(request, page_template(data), data)
+
+
+# "Add a row" to any table the editor shows ("add_row:segments.1.nodes"); "add_row:segments" adds a segment.
+ADD_ROW = re.compile(
+    r"^add_row:((?:segments\.\d{1,3}\.)?(?:nodes|terminations|bias)|segments|repeaters"
+    r"|four_wire\.return_terminations|four_wire\.return_bias)$"
+)
 
 
 def _editor_problems(doc: Any) -> list[Problem]:
@@ -231,8 +248,10 @@ async def _save_draft(request: Request, fields: dict[str, str]) -> Response:
 
 
 def _receiver_names(saved: SavedPlan) -> set[str]:
-    nodes = saved.plan.get("nodes")
-    return {n["name"] for n in nodes if isinstance(n, dict) and isinstance(n.get("name"), str)} if nodes else set()
+    """Every node's name, the further segments' included."""
+    tables = [saved.plan] + [s for s in saved.plan.get("segments") or [] if isinstance(s, dict)]
+    nodes = [n for t in tables for n in t.get("nodes") or []]
+    return {n["name"] for n in nodes if isinstance(n, dict) and isinstance(n.get("name"), str)}
 
 
 @router.get("/plans/{ref}")
@@ -281,8 +300,10 @@ def _checked_plan_page(
             return checker.saved_json(saved, plan, known, extra)
         return checker.saved_html(saved, plan, known, extra, page_at(request))
     data = json.loads(checker.saved_json(saved, plan, None, extra))
-    data["waveforms"]["chosen_unknown"] = receiver
-    return page_json(data) if as_json else render_bytes(request, "plan.html", data)
+    for shown in [data, *(p["data"] for p in data.get("parts", []))]:
+        if "waveforms" in shown:
+            shown["waveforms"]["chosen_unknown"] = receiver
+    return page_json(data) if as_json else render_bytes(request, page_template(data), data)
 
 
 @router.get("/plans/{ref}/advised")

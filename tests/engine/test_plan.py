@@ -149,7 +149,7 @@ def test_a_custom_talker_states_its_edge_and_a_driver_its_output_one_way():
     assert "one way" in _problems(doc)["driver.device.output_54_ohm_v"].message
 
 
-def test_a_format_1_plan_opens_as_format_2_with_the_same_meaning():
+def test_a_format_1_plan_opens_as_format_3_with_the_same_meaning():
     v1 = {
         "bit_rate_bps": 9600,
         "trunk_length_m": 100.0,
@@ -162,7 +162,7 @@ def test_a_format_1_plan_opens_as_format_2_with_the_same_meaning():
     }
     plan = load_plan(v1)
     doc = plan_to_dict(plan)
-    assert (doc["format_version"], doc["default_device"]) == (2, "edge-25ns")
+    assert (doc["format_version"], doc["default_device"]) == (3, "edge-25ns")
     assert plan.nodes[0].may_drive and not plan.nodes[1].may_drive and len(plan.bias) == 1
     # Format 1 drove every node that may drive like the driver's class and its values: the node keeps them.
     assert plan.nodes[0].device.rise_time_s == 40e-9 and plan.nodes[0].device.unit_loads == 0.125

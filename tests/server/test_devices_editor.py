@@ -105,14 +105,14 @@ def test_bias_networks_and_ground_wiring_from_the_form_reach_the_plan(client):
     assert shield.find("option", value="one_end").attrs.get("selected") is not None
 
 
-def test_a_format_1_plan_comes_back_as_format_2_in_the_twin_and_the_download(client):
+def test_a_format_1_plan_comes_back_as_the_newest_format_in_the_twin_and_the_download(client):
     store = client.app.state.store
     from pairline.engine import ENGINE_VERSION
 
     v1 = PLAN_DOC | {"format_version": 1, "bias": {"position_m": 0.0, "pull_up_ohm": 620.0, "pull_down_ohm": 620.0}}
     plan_id = store.save_plan(v1, engine_version=ENGINE_VERSION, parent_id=None, client="test")
     twin = client.get(f"/plans/{plan_id}.json").json()
-    assert twin["plan"]["format_version"] == 2 and twin["plan"]["bias"][0]["pull_up_ohm"] == 620.0
+    assert twin["plan"]["format_version"] == 3 and twin["plan"]["bias"][0]["pull_up_ohm"] == 620.0
     download = json.loads(client.get(f"/plans/{plan_id}/download").content)
     assert download == twin["plan"]
     edit = parse_html(client.get(f"/plans/{plan_id}/edit").text)
