@@ -363,8 +363,11 @@ def bill_of_materials(request: Request, ref: str, store: StoreDep, checker: Chec
     out = io.StringIO()
     writer = csv.writer(out)
     writer.writerow(["item", "value", "quantity", "rating", "note"])
-    for row in data["summary"]["bom"]:
-        writer.writerow([row["item"], row["value"], row["quantity"], row["rating"], row["note"]])
+    # A plan of segments or pairs lists each part's own materials under the part's label.
+    parts = [("", data)] if "summary" in data else [(f"{p['label']}: ", p["data"]) for p in data["parts"]]
+    for label, part in parts:
+        for row in part["summary"]["bom"]:
+            writer.writerow([label + row["item"], row["value"], row["quantity"], row["rating"], row["note"]])
     return Response(
         (UTF8_BOM + out.getvalue()).encode("utf-8"),
         media_type="text/csv; charset=utf-8",

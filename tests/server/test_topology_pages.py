@@ -3,6 +3,8 @@ segment or pair; the editor lays out segments, repeaters and the four-wire retur
 and loses nothing of a plan opened in it."""
 
 import copy
+import csv
+import io
 import json
 from collections import Counter
 
@@ -104,6 +106,16 @@ def test_the_json_twin_holds_the_whole_report(client, saved):
     assert [p["name"] for p in data["report"]["parts"]] == ["main", "store"]
     assert [p["name"] for p in data["parts"]] == ["main", "store"]
     assert data["verdict"] == data["report"]["verdict"]
+
+
+@pytest.mark.parametrize("plan", ["segments", "four_wire"])
+def test_the_bill_of_materials_lists_each_parts_materials_under_its_label(client, saved, plan):
+    data = client.get(f"/plans/{saved[plan]}.json").json()
+    resp = client.get(f"/plans/{saved[plan]}/bom.csv")
+    assert resp.status_code == 200 and resp.headers["content-type"].startswith("text/csv")
+    items = [row[0] for row in csv.reader(io.StringIO(resp.text.lstrip("\ufeff")))][1:]
+    expected = [f"{p['label']}: {row['item']}" for p in data["parts"] for row in p["data"]["summary"]["bom"]]
+    assert len(data["parts"]) == 2 and items == expected
 
 
 def test_a_four_wire_page_shows_both_pairs(client, saved):
