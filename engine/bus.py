@@ -8,7 +8,7 @@ from dataclasses import dataclass, field
 from typing import Any, TypeVar
 
 from pairline.engine.devices import ResolvedDevice, ResolvedDriver, driver_of, resolve_devices
-from pairline.engine.plan import BusPlan, NodeSpec, ResolvedCable, resolve_cable
+from pairline.engine.plan import BranchSpec, BusPlan, NodeSpec, ResolvedCable, resolve_cable
 
 T = TypeVar("T")
 
@@ -35,11 +35,57 @@ class LayoutMemo:
 
 
 @dataclass(frozen=True, slots=True)
+class BranchLayout:
+    """Where the branches of a trunk really run. The plan a Bus carries shows every node on a branch as what it is
+    electrically to the rules: a node at the branch's junction whose stub is its whole run from the trunk (the way
+    along the branch plus its own stub). The solver (engine.solve) lays out the real tree from this layout: each
+    branch a line of the trunk's cable from its junction, each such node on it at its distance along."""
+
+    branches: tuple[BranchSpec, ...]
+    along_m: Mapping[str, tuple[str, float]]  # node name -> (its branch's name, its distance along the branch)
+
+    def place(self, node: NodeSpec) -> tuple[BranchSpec, float, float] | None:
+        """(branch, distance along it, own stub) of a node of the bus's plan that hangs on a branch, or None for a
+        trunk node. A node a what-if moved off its junction is on the trunk; one whose run a what-if shortened
+        below its distance along the branch sits at the end of that run, with no stub of its own."""
+        if node.name not in self.along_m:
+            return None
+        name, along = self.along_m[node.name]
+        branch = next(b for b in self.branches if b.name == name)
+        if node.position_m != branch.junction_position_m:
+            return None
+        along = min(along, node.stub_length_m)
+        return branch, along, node.stub_length_m - along
+
+
+NO_BRANCHES = BranchLayout((), {})
+
+
+def on_trunk(plan: BusPlan) -> tuple[BusPlan, BranchLayout]:
+    """The plan as the rules see it (BranchLayout) and the layout of its branches."""
+    if not plan.branches:
+        return plan, NO_BRANCHES
+    junction = {b.name: b.junction_position_m for b in plan.branches}
+    along: dict[str, tuple[str, float]] = {}
+    nodes = []
+    for n in plan.nodes:
+        if n.branch is None:
+            nodes.append(n)
+            continue
+        along[n.name] = (n.branch, n.position_m)
+        run = n.position_m + n.stub_length_m
+        nodes.append(n.model_copy(update={"branch": None, "position_m": junction[n.branch], "stub_length_m": run}))
+    flat = plan.model_copy(update={"nodes": nodes, "branches": []})
+    return flat, BranchLayout(tuple(plan.branches), along)
+
+
+@dataclass(frozen=True, slots=True)
 class Bus:
-    plan: BusPlan
+    plan: BusPlan  # branch nodes as their runs from the trunk (BranchLayout)
     cable: ResolvedCable
     driver: ResolvedDriver  # the talker this view is driven by: the primary driver unless talker_bus chose another
     devices: Mapping[str, ResolvedDevice]  # every node's device by name, the primary driver's included
+    layout: BranchLayout = NO_BRANCHES  # the branches as wired
     memo: LayoutMemo = field(default_factory=LayoutMemo, compare=False, repr=False)  # shared by this layout's views
 
     @property
@@ -84,9 +130,18 @@ def view_key(bus: Bus) -> tuple[object, ...]:
     return (plan, bus.cable, bus.driver)
 
 
-def build_bus(plan: BusPlan) -> Bus:
-    devices = resolve_devices(plan)
-    return Bus(plan=plan, cable=resolve_cable(plan.cable), driver=driver_of(devices[plan.driver.name]), devices=devices)
+def build_bus(plan: BusPlan, layout: BranchLayout | None = None) -> Bus:
+    """The bus of a plan; a plan with branches is seen on its trunk (on_trunk). layout: the branches of the bus
+    this plan was derived from (a what-if of its nodes), when the plan itself states none."""
+    flat, own = on_trunk(plan)
+    devices = resolve_devices(flat)
+    return Bus(
+        plan=flat,
+        cable=resolve_cable(flat.cable),
+        driver=driver_of(devices[flat.driver.name]),
+        devices=devices,
+        layout=own if layout is None or plan.branches else layout,
+    )
 
 
 def with_plan(bus: Bus, plan: BusPlan) -> Bus:
@@ -100,7 +155,9 @@ def with_plan(bus: Bus, plan: BusPlan) -> Bus:
     if same:
         return dataclasses.replace(bus, plan=plan)
     devices = resolve_devices(plan)
-    return Bus(plan=plan, cable=bus.cable, driver=driver_of(devices[plan.driver.name]), devices=devices)
+    return Bus(
+        plan=plan, cable=bus.cable, driver=driver_of(devices[plan.driver.name]), devices=devices, layout=bus.layout
+    )
 
 
 def talker_bus(bus: Bus, name: str) -> Bus:

@@ -6,6 +6,7 @@ full) -> verified fixes (engine.verify) -> capacity and summary (engine.capacity
 solved twice: the server renders from the PlanReport.
 """
 
+import dataclasses
 import math
 from dataclasses import dataclass
 from typing import Any
@@ -53,6 +54,9 @@ def check_plan(plan: BusPlan | dict[str, Any], *, simulate_advice: bool = True) 
     bus = build_bus(plan)
     run = run_rules(bus, quick=not simulate_advice)
     advice = advise(run, simulate=simulate_advice)
+    if plan.branches:  # the advice edits terminators and bias only: put them on the plan as wired
+        advised = {"terminations": advice.plan.terminations, "bias": advice.plan.bias}
+        advice = dataclasses.replace(advice, plan=plan.model_copy(update=advised))
     capacity = receiver_capacity(advice.run.bus, advice.findings)
     findings = verified_findings(run, advice)
     return PlanReport(

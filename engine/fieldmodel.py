@@ -102,6 +102,20 @@ def field_setup(
                 )
             ]
         )
+    if plan.branches:
+        raise BusInputError(
+            [
+                Problem(
+                    "branches",
+                    "Plan shape",
+                    len(plan.branches),
+                    {"rule": "a capture is compared with a trunk without branches"},
+                    "A scope capture is compared with a trunk and its stubs; this plan has branches, whose "
+                    "differences the fit does not model yet. Compare the capture with the plan's trunk alone, "
+                    "each branch's nodes moved onto it as stubs of the branch's run.",
+                )
+            ]
+        )
     problems: list[Problem] = []
     names = [plan.driver.name] + [n.name for n in plan.nodes]
     if at_position_m is not None:

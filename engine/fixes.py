@@ -151,7 +151,7 @@ class _Trial:
         if self.count >= resimulation_budget(self.bus):
             return False
         self.count += 1
-        judged = judge_bus(build_bus(plan), driver_name=self.driver_name, receivers=self.failing)
+        judged = judge_bus(build_bus(plan, self.bus.layout), driver_name=self.driver_name, receivers=self.failing)
         return all(j.verdict is not Verdict.BREAKS for j in judged.values())
 
 

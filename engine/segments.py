@@ -139,6 +139,7 @@ def _segments(plan: BusPlan) -> tuple[PlanPart, ...]:
                     "cable": seg.cable if seg.cable is not None else plan.cable,
                     "driver": driver,
                     "nodes": [*_rebased(seg.nodes, reference_v), *_upstream_ports(plan, seg.name, reference_v)],
+                    "branches": list(seg.branches),
                     "terminations": list(seg.terminations),
                     "bias": list(seg.bias),
                     "grounding": seg.grounding,

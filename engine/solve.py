@@ -100,10 +100,18 @@ def driver_pin_probe() -> Probe:
 
 @dataclass(frozen=True, slots=True)
 class Topology:
-    """The bus as junctions, trunk segments and branches (each a stub ending in a load)."""
+    """The bus as junctions, trunk segments, lines (the plan's branches, each a run of cable from a trunk junction)
+    and branches (each a stub ending in a load).
 
-    junction_position_m: np.ndarray  # (K,)
-    segment_length_m: np.ndarray  # (K - 1,)
+    Junctions 0 .. K_t - 1 lie on the trunk, in order; each line's junctions follow, outward from its trunk
+    junction, the last at the line's far end."""
+
+    junction_position_m: np.ndarray  # (K_t,) trunk junctions
+    segment_length_m: np.ndarray  # (K_t - 1,)
+    line_junction: np.ndarray  # (n_lines,) the trunk junction each line leaves from
+    line_start: np.ndarray  # (n_lines + 1,) each line's first junction; line i holds [line_start[i], line_start[i + 1])
+    line_along_m: np.ndarray  # (K - K_t,) each line junction's distance along its line
+    line_edge_m: np.ndarray  # (K - K_t,) each line junction's distance from the one before it (or the trunk)
     branch_junction: np.ndarray  # (n_b,) int
     branch_stub_m: np.ndarray  # (n_b,)
     branch_conductance_siemens: np.ndarray  # (n_b,) resistive part of the load (receivers, bias, parallel R)
@@ -116,15 +124,44 @@ class Topology:
     termination_branch: np.ndarray  # (n_terminations,) branch index of each plan terminator
     bias_branches: tuple[int, ...]  # branch index of each bias network, in plan order
 
+    @property
+    def n_junctions(self) -> int:
+        return int(self.junction_position_m.size + self.line_along_m.size)
+
+    def line_of(self, junction: int) -> int:
+        """The line a junction lies on, -1 for the trunk."""
+        return (
+            int(np.searchsorted(self.line_start, junction, side="right")) - 1
+            if junction >= self.junction_position_m.size
+            else -1
+        )
+
+    def distance_m(self, junction: int) -> np.ndarray:
+        """Cable length from one junction to every junction, (K,), along the tree."""
+        k_t = self.junction_position_m.size
+        line = np.searchsorted(self.line_start, np.arange(k_t, self.n_junctions), side="right") - 1
+        trunk_x = np.concatenate([self.junction_position_m, self.junction_position_m[self.line_junction[line]]])
+        along = np.concatenate([np.zeros(k_t), self.line_along_m])
+        own = np.concatenate([np.full(k_t, -1), line])
+        here = own[junction]
+        out = along[junction] + np.abs(trunk_x - trunk_x[junction]) + along
+        if here >= 0:
+            same = own == here
+            out[same] = np.abs(along[same] - along[junction])
+        return np.asarray(out)
+
 
 def build_topology(bus: Bus, probe_positions_m: Sequence[float] = ()) -> Topology:
-    """Junctions, segments and branches of the bus (branch 0 is the primary driver's own receiver).
+    """Junctions, segments, lines and branches of the bus (branch 0 is the primary driver's own receiver).
 
-    probe_positions_m: further trunk positions to make junctions of (probes there; nothing attached).
+    probe_positions_m: further trunk positions to make junctions of (probes there; nothing attached). The plan's
+    branches become lines (engine.bus.BranchLayout), their nodes' stubs hang on them.
     """
     plan = bus.plan
     stub: list[float] = []
     pos: list[float] = []
+    on_line: dict[int, tuple[int, float]] = {}  # stub branch -> (line, distance along it)
+    lines = bus.layout.branches
     cond: list[float] = []
     cap: list[float] = []
     rc_r: list[float] = []
@@ -147,7 +184,11 @@ def build_topology(bus: Bus, probe_positions_m: Sequence[float] = ()) -> Topolog
     receiver_branch = []
     for node in plan.nodes:
         device = bus.devices[node.name]
-        b = add(node.position_m, node.stub_length_m, 1.0 / device.differential_input_ohm, device.input_capacitance_f)
+        where = bus.layout.place(node)
+        own_stub = node.stub_length_m if where is None else where[2]
+        b = add(node.position_m, own_stub, 1.0 / device.differential_input_ohm, device.input_capacitance_f)
+        if where is not None:
+            on_line[b] = (lines.index(where[0]), where[1])
         receiver_branch.append(b)
         if node.may_drive and plan.standard == "rs485":
             driver_branch[node.name] = b
@@ -161,11 +202,33 @@ def build_topology(bus: Bus, probe_positions_m: Sequence[float] = ()) -> Topolog
 
     positions = np.asarray(pos)
     extra = np.asarray(list(probe_positions_m), dtype=float)
-    junctions = np.unique(np.concatenate([positions, extra, [0.0, plan.trunk_length_m]]))
+    on_trunk = np.array([b not in on_line for b in range(len(pos))], dtype=bool)
+    line_x = [line.junction_position_m for line in lines]
+    junctions = np.unique(np.concatenate([positions[on_trunk], extra, line_x, [0.0, plan.trunk_length_m]]))
+    branch_junction = np.searchsorted(junctions, positions)
+    # each line: its junctions outward (every node's distance along it and its far end; 0 is the trunk junction)
+    line_start, line_along, line_edge = [junctions.size], [], []
+    for i, line in enumerate(lines):
+        stops = np.unique([line.length_m, *(a for b, (j, a) in on_line.items() if j == i)])
+        stops = stops[stops > 0.0]
+        for b, (j, a) in on_line.items():
+            if j == i:
+                branch_junction[b] = (
+                    np.searchsorted(junctions, line.junction_position_m)
+                    if a <= 0.0
+                    else line_start[-1] + np.searchsorted(stops, a)
+                )
+        line_along += list(stops)
+        line_edge += list(np.diff(stops, prepend=0.0))
+        line_start.append(line_start[-1] + stops.size)
     return Topology(
         junction_position_m=junctions,
         segment_length_m=np.diff(junctions),
-        branch_junction=np.searchsorted(junctions, positions),
+        line_junction=np.searchsorted(junctions, np.asarray(line_x, dtype=float)).astype(int),
+        line_start=np.asarray(line_start, dtype=int),
+        line_along_m=np.asarray(line_along, dtype=float),
+        line_edge_m=np.asarray(line_edge, dtype=float),
+        branch_junction=branch_junction,
         branch_stub_m=np.asarray(stub),
         branch_conductance_siemens=np.asarray(cond),
         branch_capacitance_f=np.asarray(cap),
@@ -328,8 +391,9 @@ class Branching:
     shunt_kind: np.ndarray  # (n_b,) the kind of each branch in that order
     starts: np.ndarray  # positions in that order where a new junction begins
     further: np.ndarray  # the other positions: further branches on a junction already counted
-    seg_len_m: np.ndarray  # (n_segment_lengths,) distinct trunk segment lengths
-    seg_of: np.ndarray  # (K - 1,) each segment's length, as an index into seg_len_m
+    seg_len_m: np.ndarray  # (n_segment_lengths,) distinct lengths of trunk segments and line edges
+    seg_of: np.ndarray  # (K_t - 1,) each trunk segment's length, as an index into seg_len_m
+    line_seg_of: np.ndarray  # (K - K_t,) each line edge's length (into its junction), as an index into seg_len_m
 
 
 def branching(topo: Topology, var: NetworkVariants) -> Branching:
@@ -342,7 +406,9 @@ def branching(topo: Topology, var: NetworkVariants) -> Branching:
     order = np.argsort(topo.branch_junction, kind="stable")
     bj = topo.branch_junction[order]
     starts = np.flatnonzero(np.r_[True, bj[1:] != bj[:-1]])
-    seg_len, seg_of = np.unique(np.round(topo.segment_length_m, 9), return_inverse=True)
+    edges = np.round(np.concatenate([topo.segment_length_m, topo.line_edge_m]), 9)
+    seg_len, every_seg = np.unique(edges, return_inverse=True)
+    n_trunk = topo.segment_length_m.size
     return Branching(
         first=first,
         kind_of=kind_of,
@@ -353,7 +419,8 @@ def branching(topo: Topology, var: NetworkVariants) -> Branching:
         starts=starts,
         further=np.setdiff1d(np.arange(order.size), starts),
         seg_len_m=seg_len,
-        seg_of=seg_of,
+        seg_of=every_seg[:n_trunk],
+        line_seg_of=every_seg[n_trunk:],
     )
 
 
@@ -380,6 +447,12 @@ class Network:
     ratio_right: np.ndarray  # (K - 1, n_v, n_s) V_{k+1} / V_k exp(s l_k / v), driver on the left of segment k
     ratio_left: np.ndarray  # (K - 1, n_v, n_s) V_k / V_{k+1} exp(s l_k / v), driver on the right
     rx_stub: np.ndarray  # (n_kinds, n_v, n_s) V_load / V_junction exp(s l_stub / v)
+    # lines, row g - K_t for line junction g; "down" looks away from the trunk, "up" toward it
+    y_down: np.ndarray  # (K - K_t, n_v, n_s) admittance beyond g, away from the trunk, own shunt excluded
+    ratio_down: np.ndarray  # (K - K_t, n_v, n_s) V_g / V_(the junction before g) exp(s l / v)
+    y_up: np.ndarray  # (K - K_t, n_v, n_s) looking from g toward the trunk (lines with a driver on them only)
+    ratio_up: np.ndarray  # (K - K_t, n_v, n_s) V_(the junction before g) / V_g exp(s l / v), likewise
+    line_y: np.ndarray  # (n_lines, n_v, n_s) admittance into each line at its trunk junction
 
 
 def solve_network(
@@ -405,7 +478,8 @@ def solve_network(
     y = np.stack([shunt_admittance_siemens_per_m(c, s_arr) for c in var.cables])
     speed = np.array([propagation_velocity_m_per_s(c.velocity_factor) for c in var.cables])
     n_v = speed.size
-    k_count = topo.junction_position_m.size
+    k_count = topo.n_junctions
+    k_trunk = topo.junction_position_m.size
 
     # 1. branches: identical ones (same stub length and load in every variant) share one computation
     loads = [var.conductance_siemens, var.capacitance_f, var.series_rc_ohm, var.series_rc_f]
@@ -424,21 +498,49 @@ def solve_network(
     for e in kinds.further:  # further branches sharing a junction
         y_shunt[bj[e]] += branch_y[kinds.shunt_kind[e]]
 
-    # 2-3. sweeps along the trunk, with the voltage ratio across every segment on the way
+    # 2-3. sweeps along the lines, then along the trunk, with the voltage ratio across every section on the way
     seg_of = kinds.seg_of
     seg = _sections(z, y, s_arr, speed, kinds.seg_len_m)
     sech = np.ascontiguousarray(np.moveaxis(seg.sech_advanced, 1, 0))  # (n_len, n_v, n_s)
     zt = np.ascontiguousarray(np.moveaxis(seg.z_tanh_ohm, 1, 0))
     yt = np.ascontiguousarray(np.moveaxis(seg.y_tanh_siemens, 1, 0))
-    y_left = np.zeros((k_count, n_v, n_s), dtype=complex)
-    y_right = np.zeros((k_count, n_v, n_s), dtype=complex)
-    ratio_left = np.empty((k_count - 1, n_v, n_s), dtype=complex)
-    ratio_right = np.empty((k_count - 1, n_v, n_s), dtype=complex)
+    n_line_k = k_count - k_trunk
+    y_down = np.zeros((n_line_k, n_v, n_s), dtype=complex)
+    ratio_down = np.empty((n_line_k, n_v, n_s), dtype=complex)
+    y_up = np.zeros((n_line_k, n_v, n_s), dtype=complex)
+    ratio_up = np.ones((n_line_k, n_v, n_s), dtype=complex)
+    line_y = np.empty((topo.line_junction.size, n_v, n_s), dtype=complex)
+
+    def into(u: int, beyond: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Admittance into a section of length index u loaded by `beyond`, and V_far / V_near exp(s l / v)."""
+        inv = 1.0 / (1.0 + zt[u] * beyond)
+        return (yt[u] + beyond) * inv, sech[u] * inv
+
+    line_seg = kinds.line_seg_of
+    for i in range(topo.line_junction.size):  # outward from each line's far end
+        first, stop = topo.line_start[i] - k_trunk, topo.line_start[i + 1] - k_trunk
+        for g in range(stop - 1, first - 1, -1):
+            admittance, ratio_down[g] = into(line_seg[g], y_shunt[k_trunk + g] + y_down[g])
+            if g > first:
+                y_down[g - 1] = admittance
+            else:
+                line_y[i] = admittance
+        y_shunt[topo.line_junction[i]] += line_y[i]
+    y_left = np.zeros((k_trunk, n_v, n_s), dtype=complex)
+    y_right = np.zeros((k_trunk, n_v, n_s), dtype=complex)
+    ratio_left = np.empty((k_trunk - 1, n_v, n_s), dtype=complex)
+    ratio_right = np.empty((k_trunk - 1, n_v, n_s), dtype=complex)
     beyond = np.empty((n_v, n_s), dtype=complex)
     inv = np.empty((n_v, n_s), dtype=complex)
-    # only the parts the drivers need: left of the rightmost driver, right of the leftmost
+    # only the parts the drivers need: left of the rightmost driver, right of the leftmost (a driver on a line
+    # needs the trunk on both sides of its line's junction)
     names = tuple(topo.driver_branch) if driver_names is None else driver_names
     driver_junctions = topo.branch_junction[[topo.driver_branch[name] for name in names]]
+    line_of = [topo.line_of(int(j)) for j in driver_junctions]
+    driver_lines = sorted(set(line_of) - {-1})
+    driver_junctions = np.array(
+        [j if i < 0 else topo.line_junction[i] for j, i in zip(driver_junctions, line_of, strict=True)]
+    )
     for k in range(int(driver_junctions.max())):
         u = seg_of[k]
         np.add(y_shunt[k], y_left[k], out=beyond)
@@ -448,7 +550,7 @@ def solve_network(
         beyond += yt[u]
         np.multiply(beyond, inv, out=y_left[k + 1])
         np.multiply(sech[u], inv, out=ratio_left[k])  # V_k / V_{k+1}
-    for k in range(k_count - 2, int(driver_junctions.min()) - 1, -1):
+    for k in range(k_trunk - 2, int(driver_junctions.min()) - 1, -1):
         u = seg_of[k]
         np.add(y_shunt[k + 1], y_right[k + 1], out=beyond)
         np.multiply(zt[u], beyond, out=inv)
@@ -457,6 +559,13 @@ def solve_network(
         beyond += yt[u]
         np.multiply(beyond, inv, out=y_right[k])
         np.multiply(sech[u], inv, out=ratio_right[k])  # V_{k+1} / V_k
+    for i in driver_lines:  # toward the trunk along each line a driver is on
+        first, stop = topo.line_start[i] - k_trunk, topo.line_start[i + 1] - k_trunk
+        j = topo.line_junction[i]
+        behind = y_shunt[j] - line_y[i] + y_left[j] + y_right[j]
+        for g in range(first, stop):
+            y_up[g], ratio_up[g] = into(line_seg[g], behind)
+            behind = y_shunt[k_trunk + g] + y_up[g]
     return Network(
         topology=topo,
         s=s_arr,
@@ -473,6 +582,11 @@ def solve_network(
         ratio_right=ratio_right,
         ratio_left=ratio_left,
         rx_stub=rx_stub,
+        y_down=y_down,
+        ratio_down=ratio_down,
+        y_up=y_up,
+        ratio_up=ratio_up,
+        line_y=line_y,
     )
 
 
@@ -481,34 +595,63 @@ def _junction_voltages(net: Network, name: str) -> tuple[np.ndarray, np.ndarray]
     the driver's own terminal, (n_v, n_s)."""
     topo = net.topology
     b = topo.driver_branch[name]
-    j = topo.branch_junction[b]
+    j = int(topo.branch_junction[b])
     u = net.stub_of[b]
-    y_j = net.y_shunt[j] - net.branch_y[u] + net.y_left[j] + net.y_right[j]
+    k_trunk = topo.junction_position_m.size
+    own_line = topo.line_of(j)
+    if own_line < 0:
+        y_j = net.y_shunt[j] - net.branch_y[u] + net.y_left[j] + net.y_right[j]
+    else:
+        y_j = net.y_shunt[j] - net.branch_y[u] + net.y_up[j - k_trunk] + net.y_down[j - k_trunk]
     near = 1.0 + net.stub_z_tanh_ohm[u] * y_j
     denom = near + net.source_ohm[:, None] * (net.stub_y_tanh_siemens[u] + y_j)
     v_j = net.stub_sech[u] / denom
     v_junction = np.empty_like(net.y_shunt)
     v_junction[j] = v_j
-    if j + 1 < v_junction.shape[0]:
-        np.cumprod(net.ratio_right[j:], axis=0, out=v_junction[j + 1 :])
-        v_junction[j + 1 :] *= v_j
+    v_trunk = v_junction[:k_trunk]
+    if own_line >= 0:  # along the driver's line: outward to its end, inward to its trunk junction
+        first, stop = topo.line_start[own_line], topo.line_start[own_line + 1]
+        _outward(net.ratio_down[j + 1 - k_trunk : stop - k_trunk], v_j, v_junction[j + 1 : stop])
+        inward = np.cumprod(net.ratio_up[first - k_trunk : j + 1 - k_trunk][::-1], axis=0) * v_j
+        v_junction[first:j] = inward[:-1][::-1]
+        j = int(topo.line_junction[own_line])
+        v_junction[j] = inward[-1]
+    v_j = v_junction[j]
+    if j + 1 < k_trunk:
+        np.cumprod(net.ratio_right[j:], axis=0, out=v_trunk[j + 1 :])
+        v_trunk[j + 1 :] *= v_j
     if j > 0:
-        np.cumprod(net.ratio_left[j - 1 :: -1], axis=0, out=v_junction[j - 1 :: -1])
-        v_junction[:j] *= v_j
+        np.cumprod(net.ratio_left[j - 1 :: -1], axis=0, out=v_trunk[j - 1 :: -1])
+        v_trunk[:j] *= v_j
+    for i in range(topo.line_junction.size):
+        if i != own_line:
+            first, stop = topo.line_start[i], topo.line_start[i + 1]
+            _outward(
+                net.ratio_down[first - k_trunk : stop - k_trunk],
+                v_junction[topo.line_junction[i]],
+                v_junction[first:stop],
+            )
     return v_junction, np.asarray(near / denom)
 
 
+def _outward(ratios: np.ndarray, v_start: np.ndarray, out: np.ndarray) -> None:
+    """Voltages along a run of sections outward from a junction at v_start: out[i] = v_start prod(ratios[:i + 1])."""
+    if ratios.shape[0]:
+        np.cumprod(ratios, axis=0, out=out)
+        out *= v_start
+
+
 def probe_delays_s(net: Network, driver_names: tuple[str, ...], points: ProbePoints) -> np.ndarray:
-    """Geometric path delay from each driver to each probe, (n_v, n_drivers, n_p): the driver's stub, the trunk
-    between the junctions and the probe's stub, at the cable's speed; 0 at the driver's own pins."""
+    """Geometric path delay from each driver to each probe, (n_v, n_drivers, n_p): the driver's stub, the cable
+    between the junctions (along the trunk and the lines) and the probe's stub, at the cable's speed; 0 at the
+    driver's own pins."""
     topo = net.topology
-    x = topo.junction_position_m
     node, at_junction = points.receiver >= 0, points.junction >= 0
     rx_branch = topo.receiver_branch[points.receiver[node]]
     out = np.zeros((len(driver_names), len(points.probes)))
     for i, name in enumerate(driver_names):
         b = topo.driver_branch[name]
-        to_junction = topo.branch_stub_m[b] + np.abs(x - x[topo.branch_junction[b]])  # (K,)
+        to_junction = topo.branch_stub_m[b] + topo.distance_m(int(topo.branch_junction[b]))  # (K,)
         to_node = to_junction[topo.branch_junction[rx_branch]] + topo.branch_stub_m[rx_branch]
         out[i, node] = np.where(rx_branch == b, 0.0, to_node)
         out[i, at_junction] = to_junction[points.junction[at_junction]]

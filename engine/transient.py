@@ -144,9 +144,11 @@ def edge_duration_s(rise_time_s: float) -> float:
 
 
 def longest_delay_s(bus: Bus) -> float:
-    """One-way delay of the trunk plus the longest stub twice: an upper bound on any single path."""
+    """One-way delay of the trunk plus the longest stub or branch twice: an upper bound on any single path."""
     plan = bus.plan
     stubs = [n.stub_length_m for n in plan.nodes] + [plan.driver.stub_length_m]
+    own = [p for p in map(bus.layout.place, plan.nodes) if p is not None]  # (branch, along, own stub)
+    stubs += [b.length_m + max((s for c, _, s in own if c is b), default=0.0) for b in bus.layout.branches]
     return delay_s(plan.trunk_length_m + 2.0 * max(stubs), bus.cable.velocity_factor)
 
 
@@ -184,7 +186,7 @@ class _Levels:
         self.network_of = np.zeros(self.t_edges.size, dtype=int) if network_of is None else network_of  # (n_v,)
         self.v_oc = bus.driver.open_circuit_v
         n_u = 1 if variants is None else len(variants.cables)
-        sizes = (5 * topo.junction_position_m.size + 3 * topo.branch_stub_m.size) * n_u
+        sizes = (5 * topo.n_junctions + 3 * topo.branch_stub_m.size) * n_u
         self.points_per_solve = max(16, NETWORK_BUDGET_VALUES // sizes)
 
     def remainder(self, dt: float, n: int, lo: int, hi: int) -> np.ndarray:

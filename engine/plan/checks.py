@@ -120,7 +120,7 @@ def trunk_problems(data: dict[str, Any], prefix: str, label_prefix: str, past_en
     an RC terminator's capacitor."""
     problems: list[Problem] = []
     for i, node in enumerate(items(data, "nodes")):
-        if isinstance(node, dict):
+        if isinstance(node, dict) and node.get("branch") is None:  # a branch's node: along the branch
             name = node.get("name")
             shown = f" ('{name}')" if isinstance(name, str) else ""
             past_end(

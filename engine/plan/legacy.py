@@ -144,20 +144,25 @@ class BusPlanV2(OneBus):
 
 def cross_field_problems_v2(data: dict[str, Any]) -> list[Problem]:
     """The cross-field checks of a version-2 document: version 3's on a plan of one bus, and no field of version 3
-    inside a node (the schemas share the node)."""
+    inside a node (the schemas share the node): no pair it drives, no branch."""
     problems = cross_field_problems(data)
+    later = {
+        "drives_pair": ("pair it drives", "four-wire plans", "a four_wire return pair"),
+        "branch": ("branch", "branches", "its branches"),
+    }
     for i, node in enumerate(items(data, "nodes")):
-        if isinstance(node, dict) and "drives_pair" in node:
-            problems.append(
-                Problem(
-                    f"nodes.{i}.drives_pair",
-                    f"Node {i + 1} pair it drives",
-                    short(node["drives_pair"]),
-                    {"rule": "a field of plan format 3 (four-wire plans)"},
-                    f"Node {i + 1} states drives_pair, a field of plan format 3 for four-wire plans; set "
-                    "format_version to 3 with a four_wire return pair, or remove it.",
+        for key, (what, plans, needs) in later.items():
+            if isinstance(node, dict) and key in node:
+                problems.append(
+                    Problem(
+                        f"nodes.{i}.{key}",
+                        f"Node {i + 1} {what}",
+                        short(node[key]),
+                        {"rule": f"a field of plan format 3 ({plans})"},
+                        f"Node {i + 1} states {key}, a field of plan format 3 for {plans}; set format_version to 3 "
+                        f"with {needs}, or remove it.",
+                    )
                 )
-            )
     return problems
 
 

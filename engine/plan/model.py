@@ -204,8 +204,17 @@ class DriverSpec(_Strict):
 
 class NodeSpec(_Strict):
     name: Name = Field(title="Node name")
-    position_m: float = _f("Position", "m", ge=0.0, le=MAX_TRUNK_M)
+    position_m: float = _f(
+        "Position",
+        "m",
+        ge=0.0,
+        le=MAX_TRUNK_M,
+        description="on the trunk; on a branch, measured along it from its junction",
+    )
     stub_length_m: float = _f("Stub length", "m", ge=0.0, le=MAX_STUB_M, default=0.0)
+    branch: Name | None = Field(
+        None, title="Branch", description="plan format 3: the branch the node hangs on; none: the trunk"
+    )
     device: DeviceRef = Field(None, title="Device", description="none: the plan's default class")
     may_drive: bool = Field(False, title="May drive", description="an RS-485 half-duplex node that also talks")
     ground_offset_v: float = ground_offset_field()

@@ -5,11 +5,14 @@
   terminators, bias and ground wiring. A repeater joins two segments: its upstream port hangs on the segment
   toward the master (a node there, which on RS-485 also drives the replies back), its downstream port drives
   the other segment (that segment's driver). The segments form a tree rooted at the master's segment.
+- Branches. A trunk (the plan's own or a further segment's) may carry branches: a run of its cable from a junction
+  on it, with nodes along it (a node names its branch; its position is then measured along the branch). A plan
+  with branches is still one bus per trunk; the simulation solves the tree as wired.
 - A four-wire (full-duplex) pair set. The master (the plan's driver) drives the transmit pair to every slave's
   receiver; the slaves that may drive reply on the return pair to the master's receiver. The plan's terminators
   and bias are the transmit pair's; `four_wire` holds the return pair's.
 
-A plan that uses neither is exactly a version-2 plan; version-2 and version-1 documents load as such
+A plan that uses none of these is exactly a version-2 plan; version-2 and version-1 documents load as such
 (engine.plan.legacy). engine.segments derives the stand-alone bus of each segment or pair.
 """
 
@@ -37,6 +40,8 @@ from pydantic import Field
 
 MAX_SEGMENTS = 16
 MAX_REPEATERS = MAX_SEGMENTS - 1
+MAX_BRANCHES = 32  # per trunk
+MIN_BRANCH_M = 0.1
 MAIN_SEGMENT = "main"
 # A repeater's delay when the plan states none: one receiver's and one driver's propagation delay in series, about
 # 320 ns and 65 ns at their worst in a common 5 V transceiver's switching table (from memory), rounded up.
@@ -47,6 +52,16 @@ REPEATER_DELAY_SOURCE = (
 )
 
 
+class BranchSpec(_Strict):
+    """A branch off a trunk: a run of the trunk's cable from a junction on it (a T, a spur into a side room;
+    several from one junction make a star), with nodes along it. It carries no terminator or bias: those sit on
+    the trunk."""
+
+    name: Name = Field(title="Branch name")
+    junction_position_m: float = _f("Branch junction", "m", ge=0.0, le=MAX_TRUNK_M, description="on the trunk")
+    length_m: float = _f("Branch length", "m", ge=MIN_BRANCH_M, le=MAX_TRUNK_M, description="junction to its far end")
+
+
 class SegmentSpec(_Strict):
     """A further trunk, joined to the others by a repeater: its own cable, nodes, terminators, bias and grounds."""
 
@@ -54,6 +69,7 @@ class SegmentSpec(_Strict):
     trunk_length_m: float = _f("Segment trunk length", "m", ge=MIN_TRUNK_M, le=MAX_TRUNK_M)
     cable: CableSpec | None = Field(None, title="Segment cable", description="none: the plan's cable")
     nodes: list[NodeSpec] = Field(default_factory=list, max_length=MAX_NODES, title="Nodes")
+    branches: list[BranchSpec] = Field(default_factory=list, max_length=MAX_BRANCHES, title="Branches")
     terminations: list[TerminationSpec] = Field(default_factory=list, max_length=16, title="Terminations")
     bias: list[BiasSpec] = Field(default_factory=list, max_length=MAX_BIAS_NETWORKS, title="Failsafe bias networks")
     grounding: GroundingSpec = Field(default_factory=GroundingSpec, title="Ground and shield wiring")
@@ -111,6 +127,7 @@ class FourWireSpec(_Strict):
 class BusPlan(OneBus):
     format_version: Literal[3] = Field(PLAN_FORMAT_VERSION, title="Format version")
     segment_name: Name = Field(MAIN_SEGMENT, title="Segment name", description="the master's segment (this trunk)")
+    branches: list[BranchSpec] = Field(default_factory=list, max_length=MAX_BRANCHES, title="Branches")
     segments: list[SegmentSpec] = Field(default_factory=list, max_length=MAX_SEGMENTS - 1, title="Further segments")
     repeaters: list[RepeaterSpec] = Field(default_factory=list, max_length=MAX_REPEATERS, title="Repeaters")
     four_wire: FourWireSpec | None = Field(None, title="Four-wire return pair")

@@ -1,5 +1,6 @@
 """Cross-field checks of what format 3 adds (engine.plan.topology), on the raw document: segments joined into a tree
-by repeaters that sit on their segments, and a four-wire plan with its master and no crossed pair."""
+by repeaters that sit on their segments, branches that leave their trunk from a point on it and carry their
+nodes within their length, and a four-wire plan with its master and no crossed pair."""
 
 from typing import Any
 
@@ -12,7 +13,89 @@ from pairline.engine.plan.topology import MAIN_SEGMENT
 
 def topology_problems(data: dict[str, Any]) -> list[Problem]:
     """Every problem of the segments, the repeaters and the four-wire pair (none for a plan of one bus)."""
-    return _segment_problems(data) + _repeater_problems(data) + _four_wire_problems(data)
+    return _segment_problems(data) + _repeater_problems(data) + _branch_problems(data) + _four_wire_problems(data)
+
+
+def _branch_problems(data: dict[str, Any]) -> list[Problem]:
+    """Each trunk's branches: unique names, a junction on the trunk; a node names a branch of its own trunk and sits
+    within that branch's length. A four-wire plan has no branch."""
+    problems: list[Problem] = []
+    for prefix, trunk, label in trunks(data):
+        where = f"{label} " if label else ""
+        past_end = past_end_check(trunk, problems, f"{prefix}trunk_length_m")
+        lengths: dict[str, float | None] = {}
+        for i, branch in enumerate(items(trunk, "branches")):
+            if not isinstance(branch, dict):
+                continue
+            name = branch.get("name")
+            shown = f"{where}Branch {i + 1}" + (f" ('{name}')" if isinstance(name, str) else "")
+            shown = shown[0].upper() + shown[1:]
+            past_end(
+                f"{prefix}branches.{i}.junction_position_m", f"{shown} junction", num(branch, "junction_position_m")
+            )
+            if not isinstance(name, str):
+                continue
+            if name in lengths:
+                problems.append(
+                    Problem(
+                        f"{prefix}branches.{i}.name",
+                        f"{shown} name",
+                        name,
+                        {"rule": "unique among the branches of one trunk"},
+                        f"{shown} name '{name}' is already used by another branch of this trunk; every branch needs "
+                        "its own name (its nodes name it).",
+                    )
+                )
+                continue
+            lengths[name] = num(branch, "length_m")
+        for i, node in enumerate(items(trunk, "nodes")):
+            branch_name = node.get("branch") if isinstance(node, dict) else None
+            if branch_name is None or not isinstance(node, dict):
+                continue
+            node_name = node.get("name")
+            shown = f"{where}Node {i + 1}" + (f" ('{node_name}')" if isinstance(node_name, str) else "")
+            shown = shown[0].upper() + shown[1:]
+            if branch_name not in lengths:
+                choices = list(lengths)
+                allowed = (
+                    f"one of {', '.join(repr(c) for c in choices)}" if choices else "none: this trunk has no branch"
+                )
+                problems.append(
+                    Problem(
+                        f"{prefix}nodes.{i}.branch",
+                        f"{shown} branch",
+                        short(branch_name),
+                        {"choices": [None, *choices]},
+                        f"{shown} hangs on branch {short(branch_name)!r}, which is not a branch of its trunk; allowed "
+                        f"{allowed}, or empty for the trunk itself.",
+                    )
+                )
+                continue
+            length, position = lengths[branch_name], num(node, "position_m")
+            if length is not None and position is not None and position > length:
+                problems.append(
+                    Problem(
+                        f"{prefix}nodes.{i}.position_m",
+                        f"{shown} position",
+                        position,
+                        {"min": 0.0, "max": length, "unit": "m"},
+                        f"{shown} is {position:g} m along branch '{branch_name}', past that branch's end at "
+                        f"{length:g} m; allowed 0 to {length:g} m (a node's position on a branch is measured "
+                        "along it from its junction).",
+                    )
+                )
+    if isinstance(data.get("four_wire"), dict) and items(data, "branches"):
+        problems.append(
+            Problem(
+                "branches",
+                "Branches",
+                len(items(data, "branches")),
+                {"rule": "no branches on a four-wire plan"},
+                "A four-wire plan is checked here as two straight pairs: lay its slaves along the trunk (each on "
+                "its stub), or remove the four_wire return pair to keep the branches.",
+            )
+        )
+    return problems
 
 
 def _main_name(data: dict[str, Any]) -> str | None:

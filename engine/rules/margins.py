@@ -121,7 +121,12 @@ def corner_bus(
         # the devices at a supply corner are a layout of their own, made and memoised once per layout
         devices, memo = bus.memo.get(("driver_output", factor), lambda: (scaled_outputs(devices, factor), LayoutMemo()))
     return Bus(
-        plan=plan.model_copy(update=update) if update else plan, cable=cable, driver=driver, devices=devices, memo=memo
+        plan=plan.model_copy(update=update) if update else plan,
+        cable=cable,
+        driver=driver,
+        devices=devices,
+        layout=bus.layout,
+        memo=memo,
     )
 
 

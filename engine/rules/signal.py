@@ -334,7 +334,7 @@ def confirm_stub_rule(
     driver = plan.driver
     if driver.name in flagged:
         driver = driver.model_copy(update={"stub_length_m": 0.0})
-    bare = judge_bus(build_bus(plan.model_copy(update={"nodes": nodes, "driver": driver})))
+    bare = judge_bus(build_bus(plan.model_copy(update={"nodes": nodes, "driver": driver}), bus.layout))
     out = []
     # Receivers whose verdict improves once the flagged stubs are gone: the stubs' reflections harm them, wherever
     # they sit (a long drop rings on the trunk and can break a neighbour while its own node reads cleanly).

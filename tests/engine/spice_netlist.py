@@ -11,6 +11,8 @@ part of the product. The netlist models the same differential mode as the engine
   crawl; use the ladder there (the benchmark does).
   (`line_model="ladder"` instead cascades lossless `T` sections with the series resistance lumped between
   them, a check on LTRA itself.)
+- a branch is a chain of the same sections from its trunk junction through the points its nodes hang on to its
+  open far end;
 - each receiver is its two line networks in series across the pair, 2 x 12 kOhm / UL (TIA-485-A defines the
   unit load per line), in parallel with its device's input capacitance, at the end of its stub;
 - a parallel terminator is R; an "rc" terminator is R in series with C;
@@ -90,11 +92,37 @@ class _Circuit:
         positions.update(t.position_m for t in plan.terminations)
         positions.update(extra_positions_m)
         positions.update(b.position_m for b in plan.bias)
+        positions.update(b.junction_position_m for b in bus.layout.branches)
         self.trunk_positions = sorted(positions)
         self.trunk_node = {p: f"t{i}" for i, p in enumerate(self.trunk_positions)}
         for i in range(len(self.trunk_positions) - 1):
             a, b = self.trunk_positions[i], self.trunk_positions[i + 1]
             self.sections.append(_Section(self.trunk_node[a], self.trunk_node[b], b - a))
+        # each branch: a chain of sections from its trunk junction through its nodes' points to its far end
+        self.taps: dict[str, tuple[str, float]] = {}  # node on a branch -> (spice node along it, own stub)
+        placed = [(n.name, bus.layout.place(n)) for n in plan.nodes]
+        for i, branch in enumerate(bus.layout.branches):
+            mine = [(name, where[1], where[2]) for name, where in placed if where is not None and where[0] is branch]
+            stops = sorted({branch.length_m, *(a for _, a, _ in mine)})
+            spice = {0.0: self.trunk_node[branch.junction_position_m]}
+            before = 0.0
+            for k, x in enumerate(s for s in stops if s > 0.0):
+                spice[x] = f"b{i}_{k}"
+                self.sections.append(_Section(spice[before], spice[x], x - before))
+                before = x
+            for name, along, own in mine:
+                self.taps[name] = (spice[along], own)
+
+    def node_end(self, tag: str, name: str, position_m: float, stub_length_m: float) -> str:
+        """The end of a node's stub, on the trunk or on its branch."""
+        if name not in self.taps:
+            return self.stub_end(tag, position_m, stub_length_m)
+        tap, own = self.taps[name]
+        if own <= 0.0:
+            return tap
+        end = f"s_{tag}"
+        self.sections.append(_Section(tap, end, own))
+        return end
 
     def stub_end(self, tag: str, position_m: float, stub_length_m: float) -> str:
         tap = self.trunk_node[position_m]
@@ -206,7 +234,7 @@ def bus_netlist(
     known = {plan.driver.name}
     for i, node in enumerate(plan.nodes):
         known.add(node.name)
-        end = circuit.stub_end(f"n{i}", node.position_m, node.stub_length_m)
+        end = circuit.node_end(f"n{i}", node.name, node.position_m, node.stub_length_m)
         circuit.receiver_nodes[node.name] = end
         if node.name == circuit.driver_name:
             if not node.may_drive:
