@@ -78,3 +78,18 @@ def four_wire(standard: str = "rs422", **changes: Any) -> dict[str, Any]:
     }
     doc.update(copy.deepcopy(changes))
     return doc
+
+
+def with_spur(**changes: Any) -> dict[str, Any]:
+    """The two-segment plan with a 40 m spur off the master's segment at 150 m (two nodes along it) and a 12 m
+    branch off the store segment at 250 m (one node at its end)."""
+    doc = two_segments()
+    doc["branches"] = [{"name": "side-room", "junction_position_m": 150.0, "length_m": 40.0}]
+    doc["nodes"] += [
+        {"name": "s1", "branch": "side-room", "position_m": 20.0, "stub_length_m": 0.5},
+        {"name": "s2", "branch": "side-room", "position_m": 40.0},
+    ]
+    doc["segments"][0]["branches"] = [{"name": "loft", "junction_position_m": 250.0, "length_m": 12.0}]
+    doc["segments"][0]["nodes"].append({"name": "l1", "branch": "loft", "position_m": 12.0})
+    doc.update(copy.deepcopy(changes))
+    return doc
