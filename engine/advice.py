@@ -121,6 +121,8 @@ def covered_breaks(findings: Sequence[Finding]) -> int:
 _NOT_COVERED = {
     "stub.length": "Terminators and bias do not shorten a stub: its reflection depends on its length and the "
     "driver's edge.",
+    "stub.branch": "Terminators and bias on the trunk do not shorten a branch: its open end reflects the edge "
+    "whatever the trunk's ends carry.",
     "common_mode.range": "Terminators and bias do not change a ground offset.",
     "length.rate_rule": "Terminators and bias do not change the path length or the bit rate.",
     "length.loss": "Terminators and bias do not change the cable's loss over the path.",

@@ -110,6 +110,7 @@ def finding_to_dict(finding: Finding) -> dict[str, Any]:
         "detail": finding.detail,
         "limit_kind": finding.limit_kind,
         "figures": {name: _json_float(value) for name, value in finding.figures},
+        "branch": finding.branch,
     }
 
 

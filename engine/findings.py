@@ -43,6 +43,7 @@ class Finding:
     # Further named numbers the rule worked out, in SI units by their names (e.g. ("max_bit_rate_bps", 8.3e4)):
     # what a summary reads instead of asking the rule again.
     figures: tuple[tuple[str, float], ...] = ()
+    branch: str | None = None  # the branch the finding concerns (engine.plan BranchSpec), if any
 
     def figure(self, name: str) -> float | None:
         """One of the finding's named figures, or None when the rule gave none by that name."""

@@ -12,6 +12,7 @@ from dataclasses import dataclass
 from pairline.engine.bus import Bus, view_key
 from pairline.engine.findings import Finding, Verdict
 from pairline.engine.rules.bias import check_failsafe_bias
+from pairline.engine.rules.branches import check_branches
 from pairline.engine.rules.common_mode import check_common_mode
 from pairline.engine.rules.ground_wiring import check_ground_wiring
 from pairline.engine.rules.length_rate import check_length_vs_rate
@@ -83,6 +84,8 @@ def run_rules(bus: Bus, *, quick: bool = False) -> RuleRun:
         and all(j.verdict is Verdict.HOLDS for j, _ in simulation.worst)
     ):
         simulation = with_tolerance(bus, simulation)
+    after_stubs = sum(1 for f in findings if f.rule_id in ("load.unit_loads", "load.driver", "stub.length"))
+    findings[after_stubs:after_stubs] = check_branches(bus, simulation)
     findings += check_signal_integrity(bus, simulation)
     return RuleRun(bus=bus, findings=tuple(findings), simulation=simulation)
 

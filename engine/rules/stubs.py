@@ -88,6 +88,12 @@ def check_stubs(bus: Bus) -> list[Finding]:
             needed = rise_time_needed_s(length * long_run_factor(), vf)  # holds as built, 10 % longer
             keep = limit / long_run_factor()  # so the stub holds as built, 10 % longer included
             fix = f"Shorten the stub of node '{name}' to <= {_length_text(keep)}"
+            if name in bus.layout.along_m:
+                branch = bus.layout.along_m[name][0]
+                fix = (
+                    f"Shorten the run to node '{name}' (its way along branch '{branch}' and its own stub) to "
+                    f"<= {_length_text(keep)}"
+                )
             if needed <= slowest_ok_s:
                 fix += f", or use a driver with >= {si_format(needed, 's')} rise time."
             else:

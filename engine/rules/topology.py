@@ -27,6 +27,7 @@ pairs.return_idle. A four-wire plan whose slaves never reply leaves the return p
 
 from collections.abc import Sequence
 
+from pairline.engine.bus import on_trunk
 from pairline.engine.devices import resolve_device
 from pairline.engine.findings import Finding, Verdict
 from pairline.engine.library import CABLES
@@ -67,7 +68,7 @@ def arrival_times_s(plan: BusPlan, parts: Sequence[PlanPart]) -> dict[str, tuple
         speed = propagation_velocity_m_per_s(resolve_cable(p.cable).velocity_factor)
         slow = (1.0 + LENGTH_ALLOWANCE) / (1.0 - _vf_tolerance(p))
         t0, t0_corner = at_driver[p.driver.name]
-        for node in p.nodes:
+        for node in on_trunk(p)[0].nodes:  # a branch's node: its run from the junction
             run_s = (p.driver.stub_length_m + abs(node.position_m - p.driver.position_m) + node.stub_length_m) / speed
             arrival = (t0 + run_s, t0_corner + run_s * slow)
             if node.name in repeaters:

@@ -109,4 +109,3 @@ def test_each_segment_carries_its_own_branches():
     assert [b.name for b in parts["main"].branches] == ["side-room"]
     assert [b.name for b in parts["store"].branches] == ["loft"]
     assert next(n for n in parts["store"].nodes if n.name == "l1").branch == "loft"
-
