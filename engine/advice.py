@@ -14,8 +14,10 @@ from pairline.engine.dc import bias_supply_v
 from pairline.engine.design import COVERED_RULES, PlanChange, apply_changes, best_design, bias_positions
 from pairline.engine.findings import Finding, Verdict, worst
 from pairline.engine.plan import BusPlan, DeviceSpec, NodeSpec
+from pairline.engine.repeaters import isolated_split, split_for_length, split_for_unit_loads
 from pairline.engine.rules.bias import bias_min_ohm, failsafe_step, listener_needs, size_bias, without_bias
 from pairline.engine.rules.loads import RS485_UNIT_LOAD_BUDGET, bias_unit_loads
+from pairline.engine.rules.margins import long_run_factor
 from pairline.engine.ruleset import RuleRun, run_design_rules, run_rules
 from pairline.engine.units import length_text
 
@@ -168,8 +170,25 @@ def _unmet(advised: RuleRun, *, search: bool = True, held_back: bool = False) ->
             )
         else:
             why = f"With the advised terminators and bias, {rule_id} still breaks."
+        proposal = _repeater_proposal(advised.bus, rule_id, found)
+        if proposal:
+            remedies = [r for r in remedies if r != _REPEATER] + [proposal]
         out.append(Unmet(rule_id, nodes, why, tuple(remedies)))
     return tuple(out)
+
+
+def _repeater_proposal(bus: Bus, rule_id: str, found: Sequence[Finding]) -> str:
+    """Where a repeater would meet a rule that terminators and bias cannot (engine.repeaters), or ""."""
+    if rule_id == "load.unit_loads":
+        return split_for_unit_loads(bus, sum(bias_unit_loads(b.pull_up_ohm, b.pull_down_ohm) for b in bus.plan.bias))
+    if rule_id in ("length.rate_rule", "length.loss"):
+        worst_path = max(found, key=lambda f: f.value or 0.0)
+        why = "the rule allows at this rate" if rule_id == "length.rate_rule" else "the cable's loss allows"
+        return split_for_length(bus, worst_path.value or 0.0, (worst_path.limit or 0.0) / long_run_factor(), why)
+    if rule_id == "common_mode.range":
+        limit = min(f.limit for f in found if f.limit is not None)
+        return isolated_split(bus, {n.name: n.ground_offset_v for n in bus.plan.nodes}, limit)
+    return ""
 
 
 def _bias_unmet(bus: Bus, *, search: bool = True) -> tuple[str, list[str]]:

@@ -67,14 +67,17 @@ def max_bit_rate_for_stubs_bps(bus: Bus) -> float:
 
 
 def check_stubs(bus: Bus) -> list[Finding]:
-    """Rule "stub.length": one finding per node (and the driver), stub vs 0.1 * t_r * VF * c0."""
+    """Rule "stub.length": one finding per node (and the driver), stub vs 0.1 * t_r * VF * c0. A node on a branch is
+    held by its own stub off the branch; the branch as a whole is rule stub.branch's (engine.rules.branches)."""
     vf = bus.cable.velocity_factor
     rise = bus.fastest_rise_time_s
     limit = max_stub_length_m(rise, vf)
     bit_s = 1.0 / bus.plan.bit_rate_bps
     slowest_ok_s = MAX_TRANSITION_BIT_FRACTION * bit_s
     findings = []
-    for name, length in stub_lengths_m(bus).items():
+    along = {name: a for name, (_, a) in bus.layout.along_m.items()}
+    for name, run in stub_lengths_m(bus).items():
+        length = max(0.0, run - along.get(name, 0.0))  # a branch's node: its own stub off the branch
         verdict = stub_verdict(length, limit)
         detail = (
             f"Rise time {si_format(rise, 's')}, velocity factor {vf:g}: limit {length_text(limit)}. HOLDS to "
@@ -88,12 +91,9 @@ def check_stubs(bus: Bus) -> list[Finding]:
             needed = rise_time_needed_s(length * long_run_factor(), vf)  # holds as built, 10 % longer
             keep = limit / long_run_factor()  # so the stub holds as built, 10 % longer included
             fix = f"Shorten the stub of node '{name}' to <= {_length_text(keep)}"
-            if name in bus.layout.along_m:
+            if name in along:
                 branch = bus.layout.along_m[name][0]
-                fix = (
-                    f"Shorten the run to node '{name}' (its way along branch '{branch}' and its own stub) to "
-                    f"<= {_length_text(keep)}"
-                )
+                fix = f"Shorten the stub of node '{name}' off branch '{branch}' to <= {_length_text(keep)}"
             if needed <= slowest_ok_s:
                 fix += f", or use a driver with >= {si_format(needed, 's')} rise time."
             else:

@@ -37,13 +37,14 @@ def _all_findings(report) -> list:
 
 
 def _verdict(report, key: str) -> Verdict | None:
-    """A key "rule@node" names the report's own findings; "part/rule@node" one part's (a segment, or a pair)."""
+    """A key "rule@node" names the report's own findings ("rule@branch" a branch's); "part/rule@node" one part's (a
+    segment, or a pair)."""
     part, _, rest = key.rpartition("/")
     rule_id, _, node = rest.partition("@")
     findings = report.findings
     if part:
         findings = next(p.report.findings for p in report.parts if p.part.name == part)
-    found = [f.verdict for f in findings if f.rule_id == rule_id and (not node or f.node == node)]
+    found = [f.verdict for f in findings if f.rule_id == rule_id and (not node or node in (f.node, f.branch))]
     return worst(found) if found else None
 
 

@@ -95,10 +95,13 @@ def test_a_fix_for_a_slower_edge_is_offered_only_within_30_percent_of_a_bit():
     assert "rise time" not in found.fix
 
 
-def test_a_branch_node_s_stub_rule_is_about_its_run():
-    report = check_plan(load_plan(_plan(8.0, (8.0,))))
+def test_a_branch_node_s_stub_rule_holds_its_own_stub_off_the_branch():
+    report = check_plan(load_plan(_plan(1.5, (1.0,), own_stub_m=0.3)))
     (stub,) = [f for f in report.findings if f.rule_id == "stub.length" and f.node == "on-0"]
-    assert stub.value == pytest.approx(8.0) and "run to node 'on-0'" in stub.fix
+    assert stub.value == pytest.approx(0.3) and stub.verdict is Verdict.HOLDS
+    report = check_plan(load_plan(_plan(4.0, (1.0,), own_stub_m=3.0)))
+    (stub,) = [f for f in report.findings if f.rule_id == "stub.length" and f.node == "on-0"]
+    assert stub.verdict is Verdict.BREAKS and "stub of node 'on-0' off branch 'spur'" in stub.fix
 
 
 def test_the_advice_says_terminators_do_not_shorten_a_branch():
