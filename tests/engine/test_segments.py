@@ -31,9 +31,10 @@ DEVICES = ["slew-2500ns", "edge-100ns", "failsafe-eighth-slew", "isolated-eighth
 
 @st.composite
 def segmented_plans(draw):
-    """A random plan of 2 or 3 segments (a chain or a fork from the master's), and, written by hand from the same
-    numbers, each segment as a format-2 plan of its own: its driver (the master, or the repeater's downstream
-    port), its nodes (ground offsets restated against its driver) and a node for each repeater it feeds."""
+    """A random plan of 2 or 3 segments (a chain or a fork from the master's), some with a spur, and, written by
+    hand from the same numbers, each segment as a plan of its own (format 2, or 3 when it has a spur): its driver
+    (the master, or the repeater's downstream port), its nodes (ground offsets restated against its driver) and a
+    node for each repeater it feeds."""
     n_seg = draw(st.integers(2, 3))
     names = ["main", "east", "west"][:n_seg]
     lengths = [draw(st.sampled_from([60.0, 150.0, 400.0])) for _ in names]
@@ -54,6 +55,22 @@ def segmented_plans(draw):
             }
             for k in range(count)
         ]
+    branches: dict[str, list[dict]] = {name: [] for name in names}
+    for s, name in enumerate(names):  # some segments carry a spur with a node at its end
+        if draw(st.booleans()):
+            spur_m = draw(st.sampled_from([4.0, 25.0]))
+            branches[name] = [{"name": f"{name}-spur", "junction_position_m": lengths[s] / 2, "length_m": spur_m}]
+            nodes[name].append(
+                {
+                    "name": f"{name}-far",
+                    "branch": f"{name}-spur",
+                    "position_m": spur_m,
+                    "stub_length_m": 0.5,
+                    "device": draw(st.sampled_from(DEVICES)),
+                    "may_drive": draw(st.booleans()),
+                    "ground_offset_v": earth[name],
+                }
+            )
     fork = n_seg == 3 and draw(st.booleans())
     repeaters = []
     for s in range(1, n_seg):
@@ -91,6 +108,7 @@ def segmented_plans(draw):
         "trunk_length_m": lengths[0],
         "driver": {"name": "master", "position_m": 0.0},
         "nodes": nodes["main"],
+        "branches": branches["main"],
         "terminations": ends(lengths[0]) if terminated else [],
         "bias": bias,
         "segments": [
@@ -98,6 +116,7 @@ def segmented_plans(draw):
                 "name": name,
                 "trunk_length_m": lengths[s],
                 "nodes": nodes[name],
+                "branches": branches[name],
                 "terminations": ends(lengths[s]) if terminated else [],
                 "bias": bias,
             }
@@ -137,7 +156,8 @@ def segmented_plans(draw):
             device, position, stub = port(feeder, feeder["downstream_position_m"], 0.0)
             driver = {"name": feeder["name"], "position_m": position, "stub_length_m": stub, "device": device}
         alone[name] = head | {
-            "format_version": 2,
+            "format_version": 3 if branches[name] else 2,
+            **({"branches": branches[name]} if branches[name] else {}),
             "title": f"Random segments (segment {name})",
             "trunk_length_m": lengths[s],
             "driver": driver,
