@@ -4,6 +4,8 @@ Model (differential mode, see engine/line.py for the cable):
 - The trunk runs from 0 to trunk_length_m. Every position where something attaches (node, driver,
   terminator, bias, the two ends, any probed trunk point) is a junction; between neighbouring junctions lies a
   trunk segment.
+- A branch of the plan (engine.bus.BranchLayout) is a line of the same cable from a trunk junction to its open
+  far end; the points its nodes hang on are junctions along it. The whole is a tree: trunk, lines, stubs.
 - Each node hangs on its own stub of the same cable as the trunk, ending in its receiver input: its device's
   differential input resistance, 24 kOhm per unit load across the pair (engine.devices), in parallel with the
   device's input capacitance. A stub of length 0 puts the load on the trunk.
@@ -27,6 +29,10 @@ Method, linear in the number of junctions K for every Laplace point s at once:
    V_next / V_here = sech / (1 + Z0 tanh Y_next), Y_next = everything beyond (Pozar, table 4.1 ABCD).
    These ratios do not depend on where the driver sits (the sweeps exclude each junction's own shunt), so
    every driver reuses the same sweeps: a cumulative product outward from its junction, O(K) per driver.
+   Lines first: a sweep from each line's far end gives the admittance into it at its trunk junction, a shunt
+   there like a stub's, and the voltage ratio outward along it. A line with a driver on it also gets the sweep
+   inward, from the rest of the tree (trunk, other lines) seen at its junction: voltages then run along the line
+   to the trunk, along the trunk both ways, and out along every other line.
 4. The driver's stub with its Thevenin source closes the chain:
    V_J / V_oc = sech / ((1 + Z0 tanh Y_J) + R_s (tanh/Z0 + Y_J)); the source end sits at
    V_e / V_oc = (1 + Z0 tanh Y_J) / (same denominator).
