@@ -27,9 +27,12 @@ def test_a_plan_with_branches_round_trips():
     assert load_plan(plan_to_dict(plan)) == plan
 
 
-def test_every_older_sample_states_no_branch():
+def test_a_plan_that_states_no_branch_has_none():
     for path in sorted(SAMPLES.glob("*.json")):
-        plan = load_plan(json.loads(path.read_text(encoding="utf-8")))
+        doc = json.loads(path.read_text(encoding="utf-8"))
+        if "branches" in json.dumps(doc):
+            continue
+        plan = load_plan(doc)
         assert plan.branches == [] and all(s.branches == [] for s in plan.segments), path.name
         assert all(n.branch is None for n in plan.nodes), path.name
 
