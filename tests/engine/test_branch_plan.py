@@ -6,6 +6,7 @@ from pathlib import Path
 
 import pytest
 from pairline.engine.bus import build_bus
+from pairline.engine.fieldmodel import field_setup
 from pairline.engine.plan import BusInputError, load_plan, plan_to_dict
 from pairline.engine.segments import plan_parts
 
@@ -112,3 +113,12 @@ def test_each_segment_carries_its_own_branches():
     assert [b.name for b in parts["main"].branches] == ["side-room"]
     assert [b.name for b in parts["store"].branches] == ["loft"]
     assert next(n for n in parts["store"].nodes if n.name == "l1").branch == "loft"
+
+
+def test_a_scope_capture_is_not_compared_with_a_plan_of_branches():
+    doc = with_spur()
+    doc.pop("segments"), doc.pop("repeaters")
+    with pytest.raises(BusInputError) as err:
+        field_setup(load_plan(doc))
+    (problem,) = err.value.problems
+    assert problem.field == "branches" and problem.value == 1 and "branches" in problem.message
