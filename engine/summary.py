@@ -208,16 +208,21 @@ def bill_of_materials(original: Bus, advice: Advice, summary: PlanSummary) -> tu
 
 
 def _cable_item(bus: Bus) -> BomItem:
-    """The cable to order: trunk plus every stub, with the spare a run as built needs."""
+    """The cable to order: trunk plus every branch and stub, with the spare a run as built needs. A branch's node
+    counts its own stub only; the branch it hangs on is counted once, whole."""
     plan = bus.plan
-    stubs_m = plan.driver.stub_length_m + sum(n.stub_length_m for n in plan.nodes)
-    drawn_m = plan.trunk_length_m + stubs_m
+    placed = {n.name: bus.layout.place(n) for n in plan.nodes}
+    own = [p[2] if p is not None else n.stub_length_m for n, p in zip(plan.nodes, placed.values(), strict=True)]
+    stubs_m = plan.driver.stub_length_m + sum(own)
+    branches_m = sum(b.length_m for b in bus.layout.branches)
+    drawn_m = plan.trunk_length_m + branches_m + stubs_m
+    parts = f"trunk {plan.trunk_length_m:.4g} m + " + (f"branches {branches_m:.4g} m + " if branches_m else "")
     return BomItem(
         f"Cable: {bus.cable.label}",
         f"{math.ceil(round(drawn_m * long_run_factor(), 6)):.0f} m",  # round first: 100 m x 1.1 is 110 m, not 111
         1,
         f"Z0 {bus.cable.z0_ohm:g} Ω",
-        f"trunk {plan.trunk_length_m:.4g} m + stubs {stubs_m:.3g} m = {drawn_m:.4g} m, plus "
+        f"{parts}stubs {stubs_m:.3g} m = {drawn_m:.4g} m, plus "
         f"{LENGTH_ALLOWANCE:.0%} spare for routing, service loops and terminations (common practice)",
     )
 

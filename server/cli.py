@@ -21,7 +21,7 @@ from pairline.engine.check import PlanReport, check_plan, report_to_dict
 from pairline.engine.devices import UNIT_LOAD_TEXT
 from pairline.engine.findings import Finding, Verdict, worst
 from pairline.engine.network import NetworkReport, advised_plan, advised_verdict, check_network, network_to_dict
-from pairline.engine.plan import BusInputError, Problem, load_plan, plan_to_dict
+from pairline.engine.plan import BusInputError, BusPlan, Problem, load_plan, plan_to_dict
 from pairline.engine.rules.power import rating_text
 from pairline.engine.units import length_text, si_format
 from pairline.server.json_input import JsonInputError, load_json
@@ -270,6 +270,7 @@ def report_text(report: PlanReport, path: str = "") -> str:
         f"Pairline check: {plan.title or '(untitled plan)'}" + (f"  [{path}]" if path else ""),
         f"  {plan.standard.upper().replace('RS', 'RS-')}, {quantity_text(plan.bit_rate_bps, 'bit/s')}, trunk "
         f"{plan.trunk_length_m:g} m, {len(plan.nodes)} node(s); cable: {bus.cable.label}; driver: {bus.driver.label}",
+        *branch_lines(plan),
         f"  {UNIT_LOAD_TEXT}.",
         "",
         *report_body(report, "Overall"),
@@ -278,6 +279,18 @@ def report_text(report: PlanReport, path: str = "") -> str:
     ]
     text = "\n".join(out)
     return lengths_in_feet(text) if plan.display_units == "imperial" else text
+
+
+def branch_lines(plan: BusPlan, indent: str = "  ") -> list[str]:
+    """One line per branch: where it leaves the trunk, its length, and its nodes with their distances along it."""
+    out = []
+    for b in plan.branches:
+        on = [f"'{n.name}' at {n.position_m:g} m" for n in plan.nodes if n.branch == b.name]
+        out.append(
+            f"{indent}branch '{b.name}': {b.length_m:g} m from the trunk at {b.junction_position_m:g} m; "
+            + (", ".join(on) if on else "no node on it")
+        )
+    return out
 
 
 def verdict_line(head: str, verdict: Verdict, findings: Sequence[Finding]) -> str:

@@ -1,4 +1,4 @@
-"""SVG coordinates of the bus drawing: the trunk to scale, stubs, nodes, terminators, bias and the driver.
+"""SVG coordinates of the bus drawing: the trunk to scale, stubs, branches, nodes, terminators, bias and the driver.
 
 Positions along the trunk are to scale. Stubs hang below the trunk, each drawn exactly proportional to its
 length: on the trunk's scale when that keeps the longest stub within a hand's breadth of the drawing, otherwise
@@ -55,6 +55,7 @@ class NodeMark:
     label_x: float = 0.0  # where the slanted name starts (on the common name line)
     label_y: float = 0.0
     reason: str = ""  # the rule ids that set the verdict, when it is not "holds"
+    branch_x: float | None = None  # a branch's node: where its branch runs; its own stub goes across from there
 
 
 @dataclass(frozen=True, slots=True)
@@ -106,6 +107,7 @@ class BusDrawing:
     bias: tuple[PartMark, ...]  # one per bias network
     driver: NodeMark
     caption: str
+    branches: tuple[NodeMark, ...] = ()  # each branch as a line down from its junction, its name on the name line
 
 
 @dataclass(frozen=True, slots=True)
@@ -145,14 +147,23 @@ def node_anchor(index: int) -> str:
 
 
 def bus_drawing(
-    plan: BusPlan, node_verdicts: Mapping[str, str], units: UnitSystem, node_reasons: Mapping[str, str] | None = None
+    plan: BusPlan,
+    node_verdicts: Mapping[str, str],
+    units: UnitSystem,
+    node_reasons: Mapping[str, str] | None = None,
+    branch_verdicts: Mapping[str, str] | None = None,
 ) -> BusDrawing:
     """Lay out the bus. `node_verdicts` maps node (and driver) names to their worst verdict value,
-    `node_reasons` to the rule ids that set it."""
+    `node_reasons` to the rule ids that set it; `branch_verdicts` maps branch names to theirs.
+
+    A branch hangs straight down from its junction like a stub, on the stubs' scale; its nodes sit along it at
+    their distances, each on its own stub drawn across to the right on the same scale."""
     reasons = node_reasons or {}
     length_m = plan.trunk_length_m
     px_per_m = (WIDTH_PX - LEFT_PX - RIGHT_PX) / length_m
-    longest_stub_m = max([n.stub_length_m for n in plan.nodes] + [plan.driver.stub_length_m])
+    along = {b.name: b for b in plan.branches}
+    runs = [b.length_m for b in plan.branches] + [n.position_m for n in plan.nodes if n.branch in along]
+    longest_stub_m = max([n.stub_length_m for n in plan.nodes] + [plan.driver.stub_length_m] + runs)
     stub_bar: ScaleBar | None = None
     stub_px_per_m = px_per_m
     if longest_stub_m <= 0 or STUB_MIN_PX <= longest_stub_m * px_per_m <= STUB_MAX_PX:
@@ -213,8 +224,9 @@ def bus_drawing(
         for (kind, x, text, title), lane, (start, _) in zip(parts, lanes, spans, strict=True)
     ]
 
-    nodes = [
-        NodeMark(
+    nodes = []
+    for i, node in enumerate(plan.nodes):
+        mark = NodeMark(
             name=node.name,
             label=_short(node.name),
             x=x_of(node.position_m, length_m),
@@ -226,11 +238,34 @@ def bus_drawing(
             anchor=node_anchor(i),
             reason=reasons.get(node.name, ""),
         )
-        for i, node in enumerate(plan.nodes)
+        if node.branch in along:  # down its branch, then across on its own stub
+            x_branch = x_of(along[node.branch].junction_position_m, length_m)
+            y = trunk_y + node.position_m * stub_px_per_m
+            mark = replace(
+                mark, x=x_branch + node.stub_length_m * stub_px_per_m, stub_top_y=y, stub_bottom_y=y, branch_x=x_branch
+            )
+        nodes.append(mark)
+    branch_verdicts = branch_verdicts or {}
+    branches = [
+        NodeMark(
+            name=b.name,
+            label=f"{_short(b.name)} (branch)",
+            x=x_of(b.junction_position_m, length_m),
+            stub_top_y=trunk_y,
+            stub_bottom_y=trunk_y + b.length_m * stub_px_per_m,
+            verdict=branch_verdicts.get(b.name, "unchecked"),
+            role="branch",
+            stub_text=_length_text(b.length_m, units),
+            anchor=f"branch-{k + 1}",
+            reason="stub.branch" if branch_verdicts.get(b.name, "holds") != "holds" else "",
+        )
+        for k, b in enumerate(plan.branches)
     ]
-    # Names start on one line below the deepest marker, so slanted names run parallel and never cross.
-    name_y = max([n.stub_bottom_y for n in nodes], default=trunk_y) + MARK_PX + 14.0
-    nodes = _place_labels(nodes, name_y)
+    # Names start on one line below the deepest marker, so slanted names run parallel and never cross; a
+    # branch's name takes its place on that line like a node's.
+    name_y = max([n.stub_bottom_y for n in [*nodes, *branches]], default=trunk_y) + MARK_PX + 14.0
+    placed = _place_labels([*nodes, *branches], name_y)
+    nodes, branches = placed[: len(nodes)], placed[len(nodes) :]
     if stub_bar is not None:
         stub_bar = replace(stub_bar, y_top=trunk_y, y_bottom=trunk_y + stub_bar.y_bottom)
     driver_mark = marks[0]
@@ -247,12 +282,17 @@ def bus_drawing(
     )
     terminators = tuple(m for m in marks if m.kind == "terminator")
     bias = tuple(m for m in marks if m.kind == "bias")
-    longest_label = max((len(n.label) for n in nodes if n.show_label), default=4)
+    longest_label = max((len(n.label) for n in [*nodes, *branches] if n.show_label), default=4)
     height = name_y + LABEL_ANGLE_SIN * CHAR_PX * longest_label + 12.0
     caption = (
         f"Trunk {_length_text(length_m, units)} drawn to scale; the driver ({drv.name}), terminators and bias sit "
         f"above it, nodes hang below on their stubs. {caption_scale}"
     )
+    if branches:
+        caption += (
+            " Each branch hangs from its junction on the stubs' scale, its nodes along it at their distances, each "
+            "on its own stub drawn across."
+        )
     if any(not n.show_label for n in nodes):
         caption += " Where nodes crowd, some names are left out; point at a marker for its name, or see the table."
     return BusDrawing(
@@ -271,6 +311,7 @@ def bus_drawing(
         bias=bias,
         driver=driver,
         caption=caption,
+        branches=tuple(branches),
     )
 
 

@@ -42,6 +42,7 @@ def finding_data(f: Any, index: int, units: UnitSystem, node_anchors: Mapping[st
         "limit_kind": kind,
         "limit_text": limit_text(f.limit, f.unit, kind, units),
         "node": f.node,
+        "branch": getattr(f, "branch", None),
         "node_anchor": node_anchors.get(f.node, "") if f.node else "",
         "limit_note": TIGHT_NOTE if f.verdict == Verdict.TIGHT else "",
         "criterion": in_plan_units(f.criterion, units),

@@ -119,6 +119,7 @@ DRIVER = (
 )
 NODE_COLUMNS = (
     FieldSpec("name", "Name"),
+    FieldSpec("branch", "Branch", hint="blank: on the trunk; a branch's name: on it, its position along the branch"),
     FieldSpec("position_m", "Position", "length"),
     FieldSpec("stub_length_m", "Stub", "length", placeholder="0"),
     replace(DEVICE_PICKER, key="device.class_key"),
@@ -137,6 +138,11 @@ TERMINATION = (
     FieldSpec("kind", "Kind", choices=(("parallel", "parallel R"), ("rc", "series R–C (AC)"))),
     FieldSpec("resistance_ohm", "Resistance", "resistance"),
     FieldSpec("capacitance_f", "Capacitance", "capacitance", bare=Bare("nF", 1e-9, True), hint="RC only"),
+)
+BRANCH = (
+    FieldSpec("name", "Branch name"),
+    FieldSpec("junction_position_m", "Leaves the trunk at", "length"),
+    FieldSpec("length_m", "Length", "length", hint="junction to its far end"),
 )
 BIAS = (
     FieldSpec("position_m", "Position", "length"),
@@ -226,7 +232,7 @@ REPEATER_COLUMNS = (
 )
 REPEATER = (*REPEATER_COLUMNS, *_device_fields("device.")[1:])
 FOUR_WIRE = (FieldSpec("master", "Master", hint="the plan's driver; blank: a two-wire plan"),)
-SEGMENT_ROWS = ("nodes", "terminations", "bias")  # the rows each further segment holds, like the plan's own
+SEGMENT_ROWS = ("nodes", "branches", "terminations", "bias")  # the rows each further segment holds, like the plan's
 GROUPS: dict[str, tuple[FieldSpec, ...]] = {
     "": TOP,
     "cable": CABLE,
@@ -238,6 +244,7 @@ GROUPS: dict[str, tuple[FieldSpec, ...]] = {
 }
 ROWS: dict[str, tuple[FieldSpec, ...]] = {
     "nodes": NODE,
+    "branches": BRANCH,
     "terminations": TERMINATION,
     "bias": BIAS,
     "probes": PROBE,
@@ -248,7 +255,7 @@ ROWS: dict[str, tuple[FieldSpec, ...]] = {
 }
 # A row's input name: its table (a further segment's own tables carry the segment's index), its index, its key.
 ROW_NAME = re.compile(
-    r"^((?:segments\.\d{1,3}\.)?(?:nodes|terminations|bias)|probes|segments|repeaters"
+    r"^((?:segments\.\d{1,3}\.)?(?:nodes|branches|terminations|bias)|probes|segments|repeaters"
     r"|four_wire\.return_terminations|four_wire\.return_bias)\.(\d{1,6})\.([\w.]+)$"
 )
 

@@ -122,11 +122,12 @@ def network_drawing(
                 "driver",
             )
         ]
+        junction = {b.name: b.junction_position_m for b in plan.branches}
         for node in plan.nodes:
             kind = "port" if node.name in repeaters else "node"
             marks.append(
                 Mark(
-                    x(starts[k] + node.position_m),
+                    x(starts[k] + junction.get(node.branch or "", node.position_m)),  # a branch's node: its junction
                     node.name,
                     _short(node.name),
                     verdicts[k].get(node.name, "holds"),

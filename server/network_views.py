@@ -39,7 +39,7 @@ def _prefixed(data: dict[str, Any], pid: str) -> dict[str, Any]:
         node["anchor"] = pid + node["anchor"]
         for f in node["findings"]:
             f["anchor"] = pid + f["anchor"]
-    for mark in data["drawing"]["nodes"]:
+    for mark in [*data["drawing"]["nodes"], *data["drawing"]["branches"]]:
         mark["anchor"] = pid + mark["anchor"]
     for plot in data["waveforms"].get("plots", []):
         plot["signal"]["anchor"] = pid + plot["signal"]["anchor"] if plot["signal"]["anchor"] else ""

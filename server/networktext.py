@@ -8,6 +8,7 @@ from pairline.engine.network import NetworkReport, PartReport, advised_verdict
 from pairline.server.cli import (
     SAFETY_NOTE,
     advice_head,
+    branch_lines,
     capacity_line,
     change_lines,
     finding_lines,
@@ -53,6 +54,7 @@ def network_text(report: NetworkReport, path: str = "") -> str:
         out.append("")
     for part_report in report.parts:
         out.append(part_head(part_report))
+        out += branch_lines(part_report.report.plan)
         out += ["  " + line if line else "" for line in report_body(part_report.report, "Verdict")]
         out.append("")
     out.append(SAFETY_NOTE)

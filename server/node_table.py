@@ -28,6 +28,7 @@ ALIASES: dict[str, tuple[str, ...]] = {
     "name": ("node", "node name", "id"),
     "position_m": ("position", "pos", "distance", "at", "location", "position on trunk"),
     "stub_length_m": ("stub", "stub length", "drop", "drop length"),
+    "branch": ("spur", "on branch"),
     "device.class_key": ("device", "device class", "class", "transceiver"),
     "may_drive": ("may drive", "drives", "talker"),
     "device.unit_loads": ("unit loads", "unit load", "ul", "load", "loads"),

@@ -28,7 +28,7 @@ from pairline.server.findings_view import (
     group_problems,
     holding_rules,
 )
-from pairline.server.form_fields import FOUR_WIRE, REPEATER, REPEATER_COLUMNS, SEGMENT, SEGMENT_ROWS
+from pairline.server.form_fields import BRANCH, FOUR_WIRE, REPEATER, REPEATER_COLUMNS, SEGMENT, SEGMENT_ROWS
 from pairline.server.forms import (
     BIAS,
     CABLE,
@@ -108,6 +108,7 @@ def _field_meta(units: UnitSystem) -> dict[str, dict[str, dict[str, Any]]]:
         "cable": CABLE,
         "driver": DRIVER,
         "nodes": NODE,
+        "branches": BRANCH,
         "terminations": TERMINATION,
         "bias": BIAS,
         "grounding": GROUNDING,
@@ -216,6 +217,7 @@ def _topology_data(state: FormState) -> dict[str, Any]:
 TABLES = {
     "nodes": "node-rows",
     "terminations": "termination-rows",
+    "branches": "branch-rows",
     "bias": "bias-rows",
     "probes": "probe-rows",
     "segments": "segment-list",
@@ -265,6 +267,8 @@ def editor_data(state: FormState, *, title: str, saved_from: SavedPlan | None = 
         "device_values": [s.key for s in DEVICE],
         "open_devices": _open_devices(state, by_field),
         "termination_columns": [s.key for s in TERMINATION],
+        "branch_columns": [s.key for s in BRANCH],
+        "n_branches": state.count("branches"),
         "bias_columns": [s.key for s in BIAS],
         "probe_columns": [s.key for s in PROBE],
         "tolerance_keys": [s.key for s in TOLERANCES],
@@ -300,9 +304,13 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
     ordered = sorted(report.findings, key=lambda f: (_SEVERITY[f.verdict.value], f.rule_id))
     findings = [finding_data(f, i, units, anchors) for i, f in enumerate(ordered)]
     per_node: dict[str, list[dict[str, Any]]] = {}
+    on_branch = {b.name: [n.name for n in plan.nodes if n.branch == b.name] for b in plan.branches}
     for fd in findings:
         if fd["node"]:
             per_node.setdefault(fd["node"], []).append(fd)
+        for name in on_branch.get(fd["branch"] or "", []):  # a branch's finding is its nodes' too
+            per_node.setdefault(name, []).append(fd)
+    junction = {b.name: b.junction_position_m for b in plan.branches}
     node_verdicts = {name: worst([Verdict(fd["verdict"]) for fd in items]).value for name, items in per_node.items()}
     node_rules = {
         name: deciding_rules(items, node_verdicts[name]) for name, items in per_node.items()
@@ -314,7 +322,10 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
             "index": i,
             "anchor": node_anchor(i),
             "name": n.name,
-            "position_text": quantity_text(n.position_m, "m", units),
+            "position_text": quantity_text(n.position_m, "m", units)
+            if n.branch is None
+            else f"{quantity_text(n.position_m, 'm', units)} along branch '{n.branch}' (from "
+            f"{quantity_text(junction[n.branch], 'm', units)})",
             "stub_text": quantity_text(n.stub_length_m, "m", units),
             "max_stub_text": quantity_text(summary.max_stub_m.get(n.name), "m", units)
             if n.name in summary.max_stub_m
@@ -411,6 +422,11 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
                 node_verdicts | {plan.driver.name: node_verdicts.get(plan.driver.name, "holds")},
                 units,
                 {name: ", ".join(rules) for name, rules in node_rules.items()},
+                {
+                    f.branch: f.verdict.value
+                    for f in sorted(report.findings, key=lambda f: -_SEVERITY[f.verdict.value])
+                    if f.branch
+                },
             ),
             "cautions": cautions_data(plan),
             "verdict_words": VERDICT_TEXT,

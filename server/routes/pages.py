@@ -210,7 +210,7 @@ async def submit_plan(request: Request, store: StoreDep, checker: CheckerDep) ->
 
 # "Add a row" to any table the editor shows ("add_row:segments.1.nodes"); "add_row:segments" adds a segment.
 ADD_ROW = re.compile(
-    r"^add_row:((?:segments\.\d{1,3}\.)?(?:nodes|terminations|bias)|segments|repeaters"
+    r"^add_row:((?:segments\.\d{1,3}\.)?(?:nodes|branches|terminations|bias)|segments|repeaters"
     r"|four_wire\.return_terminations|four_wire\.return_bias)$"
 )
 
