@@ -50,8 +50,8 @@ def _branch_problems(data: dict[str, Any]) -> list[Problem]:
             lengths[name] = num(branch, "length_m")
         for i, node in enumerate(items(trunk, "nodes")):
             branch_name = node.get("branch") if isinstance(node, dict) else None
-            if branch_name is None or not isinstance(node, dict):
-                continue
+            if not isinstance(branch_name, str) or not isinstance(node, dict):
+                continue  # on the trunk, or not a name (the field check reports that)
             node_name = node.get("name")
             shown = f"{where}Node {i + 1}" + (f" ('{node_name}')" if isinstance(node_name, str) else "")
             shown = shown[0].upper() + shown[1:]

@@ -122,3 +122,12 @@ def test_a_scope_capture_is_not_compared_with_a_plan_of_branches():
         field_setup(load_plan(doc))
     (problem,) = err.value.problems
     assert problem.field == "branches" and problem.value == 1 and "branches" in problem.message
+
+
+@pytest.mark.parametrize("value", [["side-room"], {"name": "side-room"}, 7])
+def test_a_branch_that_is_not_a_name_is_refused_naming_the_field(value):
+    # found by the API fuzz: a list where the branch's name belongs once reached the cross-field checks
+    doc = with_spur()
+    doc["segments"][0]["nodes"][2]["branch"] = value
+    found = _problems(doc)
+    assert "segments.0.nodes.2.branch" in found
