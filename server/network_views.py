@@ -39,6 +39,10 @@ def _prefixed(data: dict[str, Any], pid: str) -> dict[str, Any]:
         node["anchor"] = pid + node["anchor"]
         for f in node["findings"]:
             f["anchor"] = pid + f["anchor"]
+    for branch in data["branches"]:
+        branch["anchor"] = pid + branch["anchor"]
+        for f in branch["findings"]:
+            f["anchor"] = pid + f["anchor"]
     for mark in [*data["drawing"]["nodes"], *data["drawing"]["branches"]]:
         mark["anchor"] = pid + mark["anchor"]
     for plot in data["waveforms"].get("plots", []):

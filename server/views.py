@@ -391,6 +391,7 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
             "problem_groups": problem_groups,
             "holding_rules": holding_rules(findings),
             "nodes": nodes,
+            "branches": branches_data(plan, list(zip(ordered, findings, strict=True)), units),
             "devices": _devices_data(report.bus),
             "unit_load_text": UNIT_LOAD_TEXT,
             "summary": _summary_data(summary, units),
@@ -435,6 +436,31 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
     )
     data["report"] = report_to_dict(report)  # already JSON-safe: the same JSON as `pairline check --json`
     return data
+
+
+def branches_data(plan: BusPlan, findings: list[tuple[Any, dict[str, Any]]], units: UnitSystem) -> list[dict[str, Any]]:
+    """Each branch of the trunk: its junction, its length, its nodes, and the verdict of the findings about it
+    (each finding beside its page data)."""
+    rows = []
+    for k, b in enumerate(plan.branches):
+        own = [fd for f, fd in findings if f.branch == b.name]
+        verdict = worst([Verdict(fd["verdict"]) for fd in own]).value if own else "holds"
+        rows.append(
+            {
+                "anchor": f"branch-{k + 1}",
+                "name": b.name,
+                "junction_text": quantity_text(b.junction_position_m, "m", units),
+                "length_text": quantity_text(b.length_m, "m", units),
+                "nodes": [n.name for n in plan.nodes if n.branch == b.name],
+                "verdict": verdict,
+                "findings": [
+                    {"anchor": fd["anchor"], "rule_id": fd["rule_id"]}
+                    for fd in own
+                    if fd["verdict"] == verdict and verdict != "holds"
+                ],
+            }
+        )
+    return rows
 
 
 def _devices_data(bus: Any) -> list[dict[str, Any]]:

@@ -80,8 +80,86 @@ def test_the_plan_page_says_where_each_branch_node_is_and_draws_the_branch(clien
     row = dom.by_id("node-3")  # ink-cyan, the third node
     assert "5 m along branch 'ink-room' (from 35 m)" in row.text()
     assert "breaks" in row.attrs["class"]  # the branch breaks, and with it its nodes' worst verdict
-    branch = next(g for g in dom.find_all("g") if "branch" in g.attrs.get("class", "").split())
+    branch = next(a for a in dom.find_all("a") if "branch" in a.attrs.get("class", "").split())
     assert "verdict-breaks" in branch.attrs["class"] and "stub.branch" in branch.find_all("title")[0].text()
+    # The branch carries a node's breaks marker (a square) and links to its row in the branch table.
+    assert branch.find_all("rect", **{"class": "mark"}) and branch.attrs["href"] == "#branch-1"
+
+
+def test_the_plan_page_lists_each_branch_with_its_junction_length_nodes_and_verdict(client, saved):
+    dom = parse_html(client.get(f"/plans/{saved['sample']}").text)
+    row = dom.by_id("branch-1")
+    cells = [c.text().strip() for c in row.find_all("td")]
+    # The sample as written: 'ink-room' leaves the trunk at 35 m and runs 14 m, three sensors along it.
+    assert row.find_all("th")[0].text().strip() == "ink-room"
+    assert cells[:3] == ["35 m", "14 m", "ink-cyan, ink-magenta, ink-yellow"]
+    assert "breaks" in cells[3] and "stub.branch" in cells[3]
+
+
+def test_a_page_of_segments_lists_each_segment_s_branches_under_its_own_ids(client, saved):
+    dom = parse_html(client.get(f"/plans/{saved['segments']}").text)
+    # with_spur: 'side-room' (40 m at 150 m) on the master's trunk, 'loft' (12 m at 250 m) on the store segment.
+    side, loft = dom.by_id("p1-branch-1"), dom.by_id("p2-branch-1")
+    assert side is not None and loft is not None
+    assert [c.text().strip() for c in side.find_all("td")][:3] == ["150 m", "40 m", "s1, s2"]
+    assert [c.text().strip() for c in loft.find_all("td")][:3] == ["250 m", "12 m", "l1"]
+
+
+def test_the_svg_draws_the_branch_in_proportion_to_the_plan(client, saved):
+    dom = parse_html(client.get(f"/plans/{saved['sample']}").text)
+    svg = dom.find_all("svg", **{"class": "bus-svg"})[0]
+    (run,) = svg.find_all("line", **{"class": "branch-line"})
+    drawn_px = float(run.attrs["y2"]) - float(run.attrs["y1"])
+    bar = svg.find_all("g", **{"class": "stub-bar"})[0]
+    upright = bar.find_all("line")[0]
+    bar_px = float(upright.attrs["y2"]) - float(upright.attrs["y1"])
+    bar_m = float(bar.find_all("text")[0].text().split()[0])
+    # Source: a scale drawing, the branch on the stubs' scale that the bar shows: 14 m of branch against the
+    # bar's 10 m (the largest 1-2-5 length within the 14 m longest run) is 1.4 times the bar.
+    assert bar_m == 10.0
+    assert drawn_px / bar_px == pytest.approx(14.0 / 10.0, rel=1e-3)
+
+
+def test_a_feet_plan_shows_branch_lengths_in_feet_and_words_a_node_past_its_branch_end_in_feet(client):
+    doc = _sample() | {"display_units": "imperial"}
+    plan_id = client.post("/api/plans", json=doc).json()["id"]
+    fields = _form(parse_html(client.get(f"/plans/{plan_id}/edit").text))
+    # Source: 1 ft = 0.3048 m exactly: 35 m = 114.829 ft, 14 m = 45.9318 ft.
+    assert fields["branches.0.junction_position_m"] == "114.829" and fields["branches.0.length_m"] == "45.9318"
+    fields |= {"nodes.4.position_m": "50", "action": "check"}
+    resp = client.post("/plans", data=fields)
+    assert resp.status_code == 422
+    dom = parse_html(resp.text)
+    error = dom.by_id("e-nodes.4.position_m").text()
+    # 50 ft = 15.24 m, past the 14 m (45.9 ft) branch: the value typed and the allowed range, both in feet.
+    assert "50 ft (15.2 m) along branch 'ink-room'" in error and "allowed 0 ft to 45.9 ft (14 m)" in error
+    assert _form(dom)["nodes.4.position_m"] == "50"
+
+
+def test_a_branch_length_that_is_not_a_number_lands_beside_its_field(client, saved):
+    fields = _form(parse_html(client.get(f"/plans/{saved['sample']}/edit").text))
+    fields |= {"branches.0.length_m": "fourteen", "action": "check"}
+    resp = client.post("/plans", data=fields)
+    assert resp.status_code == 422
+    dom = parse_html(resp.text)
+    error = dom.by_id("e-branches.0.length_m").text()
+    # The model's bounds for a branch: 0.1 m to 4000 m.
+    assert "Branch 1 ('ink-room') length is 'fourteen'" in error and "allowed 0.1 m to 4000 m" in error
+    assert _form(dom)["branches.0.length_m"] == "fourteen"
+
+
+def test_a_branch_row_is_added_and_removed_without_a_script(client, saved):
+    fields = _form(parse_html(client.get(f"/plans/{saved['segments']}/edit").text))
+    dom = parse_html(client.post("/plans", data=fields | {"action": "add_row:segments.0.branches"}).text)
+    assert dom.find_all("input", name="segments.0.branches.1.name")  # a blank second branch row of the segment
+    fields = _form(dom) | {"branches.0.remove": "1", "action": "check"}
+    for key in [k for k in fields if k.endswith(".branch") and fields[k] == "side-room"]:
+        fields[key] = ""
+        fields[key.replace(".branch", ".position_m")] = "150"
+    resp = client.post("/plans", data=fields | {"action": "save"}, follow_redirects=False)
+    assert resp.status_code == 303, resp.text[:300]
+    again = client.get(resp.headers["location"] + ".json").json()["plan"]
+    assert again["branches"] == [] and [b["name"] for b in again["segments"][0]["branches"]] == ["loft"]
 
 
 def test_the_drawing_draws_the_branch_and_its_nodes_to_the_stubs_scale():
