@@ -7,6 +7,7 @@ from pathlib import Path
 
 import pytest
 from pairline.engine.check import check_plan
+from pairline.engine.network import check_network
 from pairline.engine.plan import load_plan, plan_to_dict
 from pairline.server.cli import main
 from pairline.server.diagram import bus_drawing
@@ -199,3 +200,42 @@ def test_a_pasted_node_table_may_name_each_node_s_branch():
     )
     assert table.problems == []
     assert [r.get("branch", "") for r in table.rows] == ["ink-room", ""]
+
+
+def test_the_cli_lists_each_segment_s_branches_and_a_feet_plan_s_in_feet(capsys, tmp_path):
+    spur = tmp_path / "spur.json"
+    spur.write_text(json.dumps(with_spur()), encoding="utf-8")
+    main(["check", str(spur)])
+    out = capsys.readouterr().out
+    assert "branch 'side-room': 40 m from the trunk at 150 m; 's1' at 20 m, 's2' at 40 m" in out
+    assert "branch 'loft': 12 m from the trunk at 250 m; 'l1' at 12 m" in out
+    assert out.index("branch 'side-room'") < out.index("Segment 'store'") < out.index("branch 'loft'")
+    feet = tmp_path / "feet.json"
+    feet.write_text(json.dumps(_sample() | {"display_units": "imperial"}), encoding="utf-8")
+    main(["check", str(feet)])
+    out = capsys.readouterr().out
+    # Source: 1 ft = 0.3048 m exactly: 14 m = 45.9 ft, 35 m = 115 ft, 5 m = 16.4 ft (three figures).
+    assert "branch 'ink-room': 45.9 ft (14 m) from the trunk at 115 ft (35 m); 'ink-cyan' at 16.4 ft (5 m)" in out
+
+
+def test_each_segment_s_cable_counts_its_own_branches_once():
+    parts = check_network(load_plan(with_spur())).parts
+    cables = [next(i for i in p.report.summary.bom if i.item.startswith("Cable")) for p in parts]
+    # Hand sums, with 10 % spare (common practice), rounded up to the metre:
+    # main: trunk 300 m + branch 40 m + stubs a1 0.5, a2 0.5, s1 0.5 (s2, the driver and the repeater's port 0)
+    #   = 341.5 m, x 1.1 = 375.65 -> 376 m;
+    # store: trunk 400 m + branch 12 m + stubs b1 1, b2 1 (l1 and the repeater's port 0) = 414 m,
+    #   x 1.1 = 455.4 -> 456 m.
+    assert [c.value for c in cables] == ["376 m", "456 m"]
+    assert "branches 40 m" in cables[0].note and "stubs 1.5 m" in cables[0].note
+    assert "branches 12 m" in cables[1].note and "stubs 2 m" in cables[1].note
+
+
+def test_branches_at_one_junction_each_count_whole_in_the_cable():
+    doc = _sample()
+    doc["branches"].append({"name": "store-room", "junction_position_m": 35.0, "length_m": 8.0})
+    doc["nodes"].append({"name": "store-1", "branch": "store-room", "position_m": 3.0, "stub_length_m": 0.5})
+    (cable,) = [i for i in check_plan(load_plan(doc)).summary.bom if i.item.startswith("Cable")]
+    # Hand sum: the sample's 76 m (trunk 60, branch 14, stubs 2.0) + the second branch 8 m + its node's 0.5 m stub
+    # = 84.5 m; with 10 % spare (common practice) 92.95 m, ordered as 93 m.
+    assert cable.value == "93 m" and "branches 22 m" in cable.note and "stubs 2.5 m" in cable.note
