@@ -104,6 +104,7 @@ def network_data(
         [p["anchor"] for p in parts],
         _repeaters(plan),
         units,
+        [{b["name"]: b["verdict"] for b in p["data"]["branches"]} for p in parts],
     )
     data: dict[str, Any] = json_safe(
         {

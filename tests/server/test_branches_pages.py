@@ -9,9 +9,11 @@ import pytest
 from pairline.engine.check import check_plan
 from pairline.engine.network import check_network
 from pairline.engine.plan import load_plan, plan_to_dict
+from pairline.engine.segments import plan_parts
 from pairline.server.cli import main
 from pairline.server.diagram import bus_drawing
 from pairline.server.forms import form_from_plan, parse_form
+from pairline.server.network_diagram import FIRST_ROW_Y_PX, LEFT_PX, RIGHT_PX, ROW_PX, WIDTH_PX, network_drawing
 from pairline.server.node_table import read_node_table
 
 from tests.engine.topology_plans import with_spur
@@ -239,3 +241,30 @@ def test_branches_at_one_junction_each_count_whole_in_the_cable():
     # Hand sum: the sample's 76 m (trunk 60, branch 14, stubs 2.0) + the second branch 8 m + its node's 0.5 m stub
     # = 84.5 m; with 10 % spare (common practice) 92.95 m, ordered as 93 m.
     assert cable.value == "93 m" and "branches 22 m" in cable.note and "stubs 2.5 m" in cable.note
+
+
+def test_the_overview_of_segments_hangs_each_branch_below_its_junction_to_the_runs_scale():
+    plan = load_plan(with_spur())
+    parts = plan_parts(plan)
+    repeaters = {"gate": ("main", 300.0, 0.0, False)}
+    d = network_drawing(parts, [{}, {}], ["holds", "holds"], ["part-1", "part-2"], repeaters, "metric")
+    # Hand layout: the store segment starts where the repeater sits, 300 m along the run, so the run spans
+    # 300 + 400 = 700 m over the drawing's width; 'side-room' (40 m at 150 m) and 'loft' (12 m at 250 m of the
+    # store's trunk, 550 m along the run) hang that many metres below their junctions, s1 20 m down its branch.
+    scale = (WIDTH_PX - LEFT_PX - RIGHT_PX) / 700.0
+    main, store = d.rows
+    (side,) = main.branches
+    (loft,) = store.branches
+    assert side.x == pytest.approx(LEFT_PX + 150.0 * scale) and side.length_px == pytest.approx(40.0 * scale)
+    assert loft.x == pytest.approx(LEFT_PX + 550.0 * scale) and loft.length_px == pytest.approx(12.0 * scale)
+    s1 = next(m for m in main.marks if m.name == "s1")
+    assert s1.x == pytest.approx(side.x) and s1.dy == pytest.approx(20.0 * scale)
+    # The store's row moves down by the master's branch, so the branch never reaches it.
+    assert store.y == pytest.approx(FIRST_ROW_Y_PX + ROW_PX + 40.0 * scale)
+    assert "Branches hang below their junctions to the same scale" in d.caption
+    # Each row's length is written in the middle of its widest stretch free of branches: the master's either side
+    # of the branch at its middle (75 m or 225 m), the store's between 300 m and 550 m along the run.
+    assert main.length_x == pytest.approx(LEFT_PX + 75.0 * scale) or main.length_x == pytest.approx(
+        LEFT_PX + 225.0 * scale
+    )
+    assert store.length_x == pytest.approx(LEFT_PX + 425.0 * scale)
