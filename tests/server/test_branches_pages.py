@@ -45,6 +45,13 @@ def saved(client):
     return ids
 
 
+def _checked_with(client, plan_id: str, changes: dict[str, str]):
+    """The editor's form of a saved plan with `changes` typed in, sent to check: the answer's status and page."""
+    fields = _form(parse_html(client.get(f"/plans/{plan_id}/edit").text)) | changes | {"action": "check"}
+    resp = client.post("/plans", data=fields)
+    return resp.status_code, parse_html(resp.text)
+
+
 def test_the_editor_page_round_trips_through_the_browser_form(client, saved):
     # What the page's own form sends, saved again, is the same plan.
     dom = parse_html(client.get(f"/plans/{saved['segments']}/edit").text)
@@ -58,22 +65,17 @@ def test_the_editor_page_round_trips_through_the_browser_form(client, saved):
 
 
 def test_a_node_on_an_unknown_branch_lands_beside_its_field_with_the_text_kept(client, saved):
-    fields = _form(parse_html(client.get(f"/plans/{saved['sample']}/edit").text))
-    fields |= {"nodes.2.branch": "ink-rom", "action": "check"}
-    resp = client.post("/plans", data=fields)
-    assert resp.status_code == 422
-    dom = parse_html(resp.text)
+    status, dom = _checked_with(client, saved["sample"], {"nodes.2.branch": "ink-rom"})
+    assert status == 422
     error = dom.by_id("e-nodes.2.branch")
     assert error is not None and "'ink-rom'" in error.text() and "'ink-room'" in error.text()
     assert _form(dom)["nodes.2.branch"] == "ink-rom"  # what was typed comes back
 
 
 def test_a_branch_past_the_trunk_end_names_the_trunk_length(client, saved):
-    fields = _form(parse_html(client.get(f"/plans/{saved['sample']}/edit").text))
-    fields |= {"branches.0.junction_position_m": "75", "action": "check"}
-    resp = client.post("/plans", data=fields)
-    assert resp.status_code == 422
-    error = parse_html(resp.text).by_id("e-branches.0.junction_position_m")
+    status, dom = _checked_with(client, saved["sample"], {"branches.0.junction_position_m": "75"})
+    assert status == 422
+    error = dom.by_id("e-branches.0.junction_position_m")
     assert error is not None and "60 m" in error.text()
 
 
@@ -129,10 +131,8 @@ def test_a_feet_plan_shows_branch_lengths_in_feet_and_words_a_node_past_its_bran
     fields = _form(parse_html(client.get(f"/plans/{plan_id}/edit").text))
     # Source: 1 ft = 0.3048 m exactly: 35 m = 114.829 ft, 14 m = 45.9318 ft.
     assert fields["branches.0.junction_position_m"] == "114.829" and fields["branches.0.length_m"] == "45.9318"
-    fields |= {"nodes.4.position_m": "50", "action": "check"}
-    resp = client.post("/plans", data=fields)
-    assert resp.status_code == 422
-    dom = parse_html(resp.text)
+    status, dom = _checked_with(client, plan_id, {"nodes.4.position_m": "50"})
+    assert status == 422
     error = dom.by_id("e-nodes.4.position_m").text()
     # 50 ft = 15.24 m, past the 14 m (45.9 ft) branch: the value typed and the allowed range, both in feet.
     assert "50 ft (15.2 m) along branch 'ink-room'" in error and "allowed 0 ft to 45.9 ft (14 m)" in error
@@ -140,11 +140,8 @@ def test_a_feet_plan_shows_branch_lengths_in_feet_and_words_a_node_past_its_bran
 
 
 def test_a_branch_length_that_is_not_a_number_lands_beside_its_field(client, saved):
-    fields = _form(parse_html(client.get(f"/plans/{saved['sample']}/edit").text))
-    fields |= {"branches.0.length_m": "fourteen", "action": "check"}
-    resp = client.post("/plans", data=fields)
-    assert resp.status_code == 422
-    dom = parse_html(resp.text)
+    status, dom = _checked_with(client, saved["sample"], {"branches.0.length_m": "fourteen"})
+    assert status == 422
     error = dom.by_id("e-branches.0.length_m").text()
     # The model's bounds for a branch: 0.1 m to 4000 m.
     assert "Branch 1 ('ink-room') length is 'fourteen'" in error and "allowed 0.1 m to 4000 m" in error
