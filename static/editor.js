@@ -58,6 +58,7 @@
         "node-rows": "nodes",
         "termination-rows": "terminations",
         "bias-rows": "bias",
+        "branch-rows": "branches",
         "probe-rows": "probes",
       }[tableId];
       const row = addRow(tableId, group, nextIndex(document.getElementById(tableId).tBodies[0], group));
@@ -182,7 +183,8 @@
     });
     const draft = {
       values: values, checked: checked,
-      nodes: rowIndices("nodes"), terminations: rowIndices("terminations"), bias: rowIndices("bias")
+      nodes: rowIndices("nodes"), terminations: rowIndices("terminations"), bias: rowIndices("bias"),
+      branches: rowIndices("branches")
     };
     try { sessionStorage.setItem(draftKey, JSON.stringify(draft)); } catch (e) { /* storage full or off */ }
   }
@@ -199,7 +201,8 @@
     let draft = null;
     try { draft = JSON.parse(sessionStorage.getItem(draftKey) || "null"); } catch (e) { draft = null; }
     if (!draft) return;
-    [["node-rows", "nodes"], ["termination-rows", "terminations"], ["bias-rows", "bias"]].forEach(function (pair) {
+    [["node-rows", "nodes"], ["termination-rows", "terminations"], ["bias-rows", "bias"], ["branch-rows", "branches"]]
+      .forEach(function (pair) {
       const wanted = draft[pair[1]] || [];
       const present = rowIndices(pair[1]);
       const tbody = document.getElementById(pair[0]).tBodies[0];
