@@ -137,6 +137,9 @@ def test_a_feet_plan_shows_branch_lengths_in_feet_and_words_a_node_past_its_bran
     # 50 ft = 15.24 m, past the 14 m (45.9 ft) branch: the value typed and the allowed range, both in feet.
     assert "50 ft (15.2 m) along branch 'ink-room'" in error and "allowed 0 ft to 45.9 ft (14 m)" in error
     assert _form(dom)["nodes.4.position_m"] == "50"
+    # The checked page of the feet plan words the branch's fix in feet, short lengths included (53 cm = 1.74 ft).
+    page = client.get(f"/plans/{plan_id}").text
+    assert "each node on a stub of &lt;= 1.74 ft (53 cm)" in page and "&lt;= 53 cm" not in page
 
 
 def test_a_branch_length_that_is_not_a_number_lands_beside_its_field(client, saved):
@@ -215,6 +218,8 @@ def test_the_cli_lists_each_segment_s_branches_and_a_feet_plan_s_in_feet(capsys,
     out = capsys.readouterr().out
     # Source: 1 ft = 0.3048 m exactly: 14 m = 45.9 ft, 35 m = 115 ft, 5 m = 16.4 ft (three figures).
     assert "branch 'ink-room': 45.9 ft (14 m) from the trunk at 115 ft (35 m); 'ink-cyan' at 16.4 ft (5 m)" in out
+    # Short lengths the rules write in cm are restated too: 53 cm / 0.3048 m per ft = 1.74 ft.
+    assert "each node on a stub of <= 1.74 ft (53 cm)" in out and "<= 53 cm" not in out
 
 
 def test_each_segment_s_cable_counts_its_own_branches_once():
