@@ -146,6 +146,10 @@ def node_anchor(index: int) -> str:
     return f"node-{index + 1}"
 
 
+def branch_anchor(index: int) -> str:
+    return f"branch-{index + 1}"
+
+
 def bus_drawing(
     plan: BusPlan,
     node_verdicts: Mapping[str, str],
@@ -256,7 +260,7 @@ def bus_drawing(
             verdict=branch_verdicts.get(b.name, "unchecked"),
             role="branch",
             stub_text=_length_text(b.length_m, units),
-            anchor=f"branch-{k + 1}",
+            anchor=branch_anchor(k),
             reason="stub.branch" if branch_verdicts.get(b.name, "holds") != "holds" else "",
         )
         for k, b in enumerate(plan.branches)

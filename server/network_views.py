@@ -35,6 +35,7 @@ def _prefixed(data: dict[str, Any], pid: str) -> dict[str, Any]:
     for fd in data["findings"]:
         fd["anchor"] = pid + fd["anchor"]
         fd["node_anchor"] = pid + fd["node_anchor"] if fd["node_anchor"] else ""
+        fd["branch_anchor"] = pid + fd["branch_anchor"] if fd["branch_anchor"] else ""
     for node in data["nodes"]:
         node["anchor"] = pid + node["anchor"]
         for f in node["findings"]:

@@ -20,7 +20,7 @@ from pairline.engine.plan import BusPlan, Problem, plan_to_dict
 from pairline.engine.rules.power import rating_text
 from pairline.engine.units import si_format
 from pairline.server.cautions import cautions_data, danger_data
-from pairline.server.diagram import bus_drawing, node_anchor
+from pairline.server.diagram import branch_anchor, bus_drawing, node_anchor
 from pairline.server.findings_view import (
     capacity_data,
     deciding_rules,
@@ -303,6 +303,9 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
     anchors = {n.name: node_anchor(i) for i, n in enumerate(plan.nodes)} | {plan.driver.name: "driver"}
     ordered = sorted(report.findings, key=lambda f: (_SEVERITY[f.verdict.value], f.rule_id))
     findings = [finding_data(f, i, units, anchors) for i, f in enumerate(ordered)]
+    branch_anchors = {b.name: branch_anchor(k) for k, b in enumerate(plan.branches)}
+    for fd in findings:
+        fd["branch_anchor"] = branch_anchors.get(fd["branch"] or "", "")
     per_node: dict[str, list[dict[str, Any]]] = {}
     on_branch = {b.name: [n.name for n in plan.nodes if n.branch == b.name] for b in plan.branches}
     for fd in findings:
@@ -447,7 +450,7 @@ def branches_data(plan: BusPlan, findings: list[tuple[Any, dict[str, Any]]], uni
         verdict = worst([Verdict(fd["verdict"]) for fd in own]).value if own else "holds"
         rows.append(
             {
-                "anchor": f"branch-{k + 1}",
+                "anchor": branch_anchor(k),
                 "name": b.name,
                 "junction_text": quantity_text(b.junction_position_m, "m", units),
                 "length_text": quantity_text(b.length_m, "m", units),

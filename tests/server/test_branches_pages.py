@@ -99,6 +99,10 @@ def test_the_plan_page_lists_each_branch_with_its_junction_length_nodes_and_verd
     assert row.find_all("th")[0].text().strip() == "ink-room"
     assert cells[:3] == ["35 m", "14 m", "ink-cyan, ink-magenta, ink-yellow"]
     assert "breaks" in cells[3] and "stub.branch" in cells[3]
+    # The finding about the branch says which branch, linking to its row; the row links back to the finding.
+    finding = next(li for li in dom.find_all("li") if li.attrs.get("data-rule") == "stub.branch")
+    assert [a.attrs["href"] for a in finding.find_all("a")][:1] == ["#branch-1"]
+    assert row.find_all("a")[0].attrs["href"] == "#" + finding.attrs["id"]
 
 
 def test_a_page_of_segments_lists_each_segment_s_branches_under_its_own_ids(client, saved):
