@@ -112,6 +112,8 @@ def test_a_page_of_segments_lists_each_segment_s_branches_under_its_own_ids(clie
     assert side is not None and loft is not None
     assert [c.text().strip() for c in side.find_all("td")][:3] == ["150 m", "40 m", "s1, s2"]
     assert [c.text().strip() for c in loft.find_all("td")][:3] == ["250 m", "12 m", "l1"]
+    overview = dom.find_all("svg", **{"class": "bus-svg"})[0]
+    assert len(overview.find_all("line", **{"class": "branch-line"})) == 2  # both branches in the overview too
 
 
 def test_the_svg_draws_the_branch_in_proportion_to_the_plan(client, saved):
