@@ -276,3 +276,12 @@ def test_the_overview_of_segments_hangs_each_branch_below_its_junction_to_the_ru
         LEFT_PX + 225.0 * scale
     )
     assert store.length_x == pytest.approx(LEFT_PX + 425.0 * scale)
+
+
+def test_a_segment_s_branch_past_its_trunk_end_lands_beside_its_field_named_in_one_sentence(client, saved):
+    status, dom = _checked_with(client, saved["segments"], {"segments.0.branches.0.junction_position_m": "450"})
+    assert status == 422
+    error = dom.by_id("e-segments.0.branches.0.junction_position_m").text()
+    # with_spur: the store segment's trunk is 400 m long.
+    assert "Segment 1 ('store') branch 1 ('loft') junction is at 450 m, past the trunk end at 400 m" in error
+    assert "allowed 0 m to 400 m" in error
