@@ -286,7 +286,8 @@ def bus_drawing(
     )
     terminators = tuple(m for m in marks if m.kind == "terminator")
     bias = tuple(m for m in marks if m.kind == "bias")
-    longest_label = max((len(n.label) for n in [*nodes, *branches] if n.show_label), default=4)
+    # a branch's name follows its verdict marker along the slant, two characters on
+    longest_label = max([len(n.label) for n in nodes if n.show_label] + [len(b.label) + 2 for b in branches], default=4)
     height = name_y + LABEL_ANGLE_SIN * CHAR_PX * longest_label + 12.0
     caption = (
         f"Trunk {_length_text(length_m, units)} drawn to scale; the driver ({drv.name}), terminators and bias sit "
