@@ -26,6 +26,7 @@ from pairline.engine.rules.power import rating_text
 from pairline.engine.units import length_text, si_format
 from pairline.server.json_input import JsonInputError, load_json
 from pairline.server.samples import UnknownSampleError, sample_file, sample_files, seed_samples
+from pairline.server.wording import METRIC_LENGTH, metres_of
 
 EXIT_OK = 0
 EXIT_BREAKS = 1
@@ -367,13 +368,14 @@ def report_body(report: PlanReport, head: str) -> list[str]:
     return out
 
 
-# "<number> m" as the engine writes a length; not m inside units such as mΩ/m, m·bit/s or 10^8 m.
-_METRES_IN_TEXT = re.compile(r"(?<![\w.^/])(\d+(?:\.\d+)?) m(?![\w·/^])")
+# "<number> m" (cm, mm) as the engine writes a length; not m inside units such as mΩ/m, m·bit/s or 10^8 m.
+_METRES_IN_TEXT = re.compile(r"(?<![\w.^/])" + METRIC_LENGTH)
 
 
 def lengths_in_feet(text: str) -> str:
-    """Every "<number> m" in a report restated for an imperial plan: feet first, the metres in brackets."""
-    return _METRES_IN_TEXT.sub(lambda m: length_text(float(m.group(1)), "imperial"), text)
+    """Every "<number> m" (cm, mm) in a report restated for an imperial plan: feet (or inches) first, the metric
+    length in brackets."""
+    return _METRES_IN_TEXT.sub(lambda m: length_text(metres_of(m), "imperial"), text)
 
 
 # --- commands ---------------------------------------------------------------------------------------------

@@ -146,6 +146,10 @@ def node_anchor(index: int) -> str:
     return f"node-{index + 1}"
 
 
+def branch_anchor(index: int) -> str:
+    return f"branch-{index + 1}"
+
+
 def bus_drawing(
     plan: BusPlan,
     node_verdicts: Mapping[str, str],
@@ -256,7 +260,7 @@ def bus_drawing(
             verdict=branch_verdicts.get(b.name, "unchecked"),
             role="branch",
             stub_text=_length_text(b.length_m, units),
-            anchor=f"branch-{k + 1}",
+            anchor=branch_anchor(k),
             reason="stub.branch" if branch_verdicts.get(b.name, "holds") != "holds" else "",
         )
         for k, b in enumerate(plan.branches)
@@ -282,7 +286,8 @@ def bus_drawing(
     )
     terminators = tuple(m for m in marks if m.kind == "terminator")
     bias = tuple(m for m in marks if m.kind == "bias")
-    longest_label = max((len(n.label) for n in [*nodes, *branches] if n.show_label), default=4)
+    # a branch's name follows its verdict marker along the slant, two characters on
+    longest_label = max([len(n.label) for n in nodes if n.show_label] + [len(b.label) + 2 for b in branches], default=4)
     height = name_y + LABEL_ANGLE_SIN * CHAR_PX * longest_label + 12.0
     caption = (
         f"Trunk {_length_text(length_m, units)} drawn to scale; the driver ({drv.name}), terminators and bias sit "

@@ -459,6 +459,7 @@ def _empty_problem(path: str, spec: FieldSpec, units: UnitSystem) -> Problem:
 
 _ROW_WORDS = {
     "nodes": "Node",
+    "branches": "Branch",
     "terminations": "Terminator",
     "bias": "Bias network",
     "probes": "Probe",
@@ -476,7 +477,7 @@ def _label_for(path: str, spec: FieldSpec, row_name: str = "") -> str:
     if m:
         within, _, group = m.group(1).rpartition(".") if m.group(1).startswith("segments.") else ("", "", m.group(1))
         what = _ROW_WORDS[group]
-        named = f" ('{row_name}')" if row_name and what in ("Node", "Segment", "Repeater") else ""
+        named = f" ('{row_name}')" if row_name and what in ("Node", "Branch", "Segment", "Repeater") else ""
         label = f"{what} {int(m.group(2)) + 1}{named} {spec.label.lower()}"
         return f"Segment {int(within.split('.')[1]) + 1} {label[0].lower()}{label[1:]}" if within else label
     group = path.split(".")[0] if "." in path else ""

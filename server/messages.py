@@ -76,6 +76,7 @@ def not_a_number_message(label: str, text: str, path: str, spec: "FieldSpec", un
 
 
 _PAST_END = "past the trunk end"
+_PAST_BRANCH_END = re.compile(r"along branch '(.*)', past that branch's end")
 
 
 def problem_message(problem: Problem, units: UnitSystem) -> str:
@@ -102,6 +103,13 @@ def problem_message(problem: Problem, units: UnitSystem) -> str:
         return (
             f"{problem.label} is {value:g} {unit}, too small to be physical; allowed 0 or at least {floor} in size, "
             f"within {allowed_words}."
+        )
+    branch = _PAST_BRANCH_END.search(problem.message)
+    if branch:
+        end = value_text(float(allowed["max"]), unit, units, spec)
+        return (
+            f"{problem.label} is {shown} along branch '{branch.group(1)}', past that branch's end at {end}; allowed "
+            f"{allowed_words} (a node's position on a branch is measured along it from its junction)."
         )
     if _PAST_END in problem.message:
         end = value_text(float(allowed["max"]), unit, units, spec)

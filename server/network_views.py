@@ -35,9 +35,14 @@ def _prefixed(data: dict[str, Any], pid: str) -> dict[str, Any]:
     for fd in data["findings"]:
         fd["anchor"] = pid + fd["anchor"]
         fd["node_anchor"] = pid + fd["node_anchor"] if fd["node_anchor"] else ""
+        fd["branch_anchor"] = pid + fd["branch_anchor"] if fd["branch_anchor"] else ""
     for node in data["nodes"]:
         node["anchor"] = pid + node["anchor"]
         for f in node["findings"]:
+            f["anchor"] = pid + f["anchor"]
+    for branch in data["branches"]:
+        branch["anchor"] = pid + branch["anchor"]
+        for f in branch["findings"]:
             f["anchor"] = pid + f["anchor"]
     for mark in [*data["drawing"]["nodes"], *data["drawing"]["branches"]]:
         mark["anchor"] = pid + mark["anchor"]
@@ -100,6 +105,7 @@ def network_data(
         [p["anchor"] for p in parts],
         _repeaters(plan),
         units,
+        [{b["name"]: b["verdict"] for b in p["data"]["branches"]} for p in parts],
     )
     data: dict[str, Any] = json_safe(
         {

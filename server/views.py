@@ -20,7 +20,7 @@ from pairline.engine.plan import BusPlan, Problem, plan_to_dict
 from pairline.engine.rules.power import rating_text
 from pairline.engine.units import si_format
 from pairline.server.cautions import cautions_data, danger_data
-from pairline.server.diagram import bus_drawing, node_anchor
+from pairline.server.diagram import branch_anchor, bus_drawing, node_anchor
 from pairline.server.findings_view import (
     capacity_data,
     deciding_rules,
@@ -303,6 +303,9 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
     anchors = {n.name: node_anchor(i) for i, n in enumerate(plan.nodes)} | {plan.driver.name: "driver"}
     ordered = sorted(report.findings, key=lambda f: (_SEVERITY[f.verdict.value], f.rule_id))
     findings = [finding_data(f, i, units, anchors) for i, f in enumerate(ordered)]
+    branch_anchors = {b.name: branch_anchor(k) for k, b in enumerate(plan.branches)}
+    for fd in findings:
+        fd["branch_anchor"] = branch_anchors.get(fd["branch"] or "", "")
     per_node: dict[str, list[dict[str, Any]]] = {}
     on_branch = {b.name: [n.name for n in plan.nodes if n.branch == b.name] for b in plan.branches}
     for fd in findings:
@@ -391,6 +394,7 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
             "problem_groups": problem_groups,
             "holding_rules": holding_rules(findings),
             "nodes": nodes,
+            "branches": branches_data(plan, list(zip(ordered, findings, strict=True)), units),
             "devices": _devices_data(report.bus),
             "unit_load_text": UNIT_LOAD_TEXT,
             "summary": _summary_data(summary, units),
@@ -435,6 +439,31 @@ def plan_data(checked: CheckedPlan, saved: SavedPlan | None, chosen_receiver: st
     )
     data["report"] = report_to_dict(report)  # already JSON-safe: the same JSON as `pairline check --json`
     return data
+
+
+def branches_data(plan: BusPlan, findings: list[tuple[Any, dict[str, Any]]], units: UnitSystem) -> list[dict[str, Any]]:
+    """Each branch of the trunk: its junction, its length, its nodes, and the verdict of the findings about it
+    (each finding beside its page data)."""
+    rows = []
+    for k, b in enumerate(plan.branches):
+        own = [fd for f, fd in findings if f.branch == b.name]
+        verdict = worst([Verdict(fd["verdict"]) for fd in own]).value if own else "holds"
+        rows.append(
+            {
+                "anchor": branch_anchor(k),
+                "name": b.name,
+                "junction_text": quantity_text(b.junction_position_m, "m", units),
+                "length_text": quantity_text(b.length_m, "m", units),
+                "nodes": [n.name for n in plan.nodes if n.branch == b.name],
+                "verdict": verdict,
+                "findings": [
+                    {"anchor": fd["anchor"], "rule_id": fd["rule_id"]}
+                    for fd in own
+                    if fd["verdict"] == verdict and verdict != "holds"
+                ],
+            }
+        )
+    return rows
 
 
 def _devices_data(bus: Any) -> list[dict[str, Any]]:

@@ -25,9 +25,16 @@ def quantity_text(value: float | None, unit: str, units: UnitSystem) -> str:
     return f"{number_text(value)} {unit}".strip()
 
 
-# "<number> m" as a length: not inside a word or formula ("10^8 m·bit/s", "Ω/m" and "mV" stay as they are),
-# nor already in brackets after feet ("4000 ft (1200 m)").
-_METRES_IN_TEXT = re.compile(r"(?<![\w.^/])(?<!ft \()(\d+(?:\.\d+)?(?:[eE][-+]?\d+)?) m(?![\w·/^])")
+# "<number> m" (or cm, mm: the engine writes short lengths so) as a length: not inside a word or formula
+# ("10^8 m·bit/s", "Ω/m", "mV" and "mm²" stay as they are), nor already in brackets after feet ("4000 ft (1200 m)").
+METRIC_LENGTH = r"(\d+(?:\.\d+)?(?:[eE][-+]?\d+)?) (m|cm|mm)(?![\w·/^²])"
+_METRES_IN_TEXT = re.compile(r"(?<![\w.^/])(?<!ft \()" + METRIC_LENGTH)
+_IN_METRES = {"m": 1.0, "cm": 1e-2, "mm": 1e-3}
+
+
+def metres_of(match: re.Match[str]) -> float:
+    """The length in metres of a METRIC_LENGTH match ("53 cm" -> 0.53)."""
+    return float(match.group(1)) * _IN_METRES[match.group(2)]
 
 
 # A source that states metres with feet in brackets ("1200 m (4000 ft)"), read feet first in an imperial plan.
@@ -39,7 +46,7 @@ def lengths_in_text(text: str, units: UnitSystem, keep_metres: bool = False) -> 
     with `keep_metres`, feet are followed by the engine's metres in brackets."""
 
     def restate(m: re.Match[str]) -> str:
-        shown = length_text(float(m.group(1)), units)
+        shown = length_text(metres_of(m), units)
         return f"{shown} ({m.group(0)})" if keep_metres and units == "imperial" else shown
 
     if units == "imperial":

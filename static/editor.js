@@ -58,6 +58,7 @@
         "node-rows": "nodes",
         "termination-rows": "terminations",
         "bias-rows": "bias",
+        "branch-rows": "branches",
         "probe-rows": "probes",
       }[tableId];
       const row = addRow(tableId, group, nextIndex(document.getElementById(tableId).tBodies[0], group));
@@ -133,8 +134,16 @@
     shape("line", { x1: x0, y1: 34, x2: x1, y2: 34, class: "trunk" });
     shape("text", { x: x0, y: 80 }, "0");
     shape("text", { x: x1, y: 80, "text-anchor": "end" }, readable(length) + " " + preview.dataset.unit);
+    // A node on a branch is sketched at its branch's junction on the trunk.
+    const junctions = {};
+    form.querySelectorAll("input[name^='branches.'][name$='.name']").forEach(function (input) {
+      const at = form.elements[input.name.slice(0, -".name".length) + ".junction_position_m"];
+      if (input.value.trim() && at) junctions[input.value.trim()] = lengthValue(at.value);
+    });
     form.querySelectorAll("input[name$='.position_m']").forEach(function (input) {
-      const p = lengthValue(input.value);
+      const branch = form.elements[input.name.slice(0, -".position_m".length) + ".branch"];
+      const onBranch = input.name.indexOf("nodes.") === 0 && branch && branch.value.trim();
+      const p = onBranch ? junctions[branch.value.trim()] : lengthValue(input.value);
       if (isNaN(p)) return;
       const outside = p < 0 || p > length;
       const px = x(Math.min(Math.max(p, 0), length));
@@ -174,7 +183,8 @@
     });
     const draft = {
       values: values, checked: checked,
-      nodes: rowIndices("nodes"), terminations: rowIndices("terminations"), bias: rowIndices("bias")
+      nodes: rowIndices("nodes"), terminations: rowIndices("terminations"), bias: rowIndices("bias"),
+      branches: rowIndices("branches")
     };
     try { sessionStorage.setItem(draftKey, JSON.stringify(draft)); } catch (e) { /* storage full or off */ }
   }
@@ -191,7 +201,8 @@
     let draft = null;
     try { draft = JSON.parse(sessionStorage.getItem(draftKey) || "null"); } catch (e) { draft = null; }
     if (!draft) return;
-    [["node-rows", "nodes"], ["termination-rows", "terminations"], ["bias-rows", "bias"]].forEach(function (pair) {
+    [["node-rows", "nodes"], ["termination-rows", "terminations"], ["bias-rows", "bias"], ["branch-rows", "branches"]]
+      .forEach(function (pair) {
       const wanted = draft[pair[1]] || [];
       const present = rowIndices(pair[1]);
       const tbody = document.getElementById(pair[0]).tBodies[0];

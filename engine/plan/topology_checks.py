@@ -28,7 +28,7 @@ def _branch_problems(data: dict[str, Any]) -> list[Problem]:
             if not isinstance(branch, dict):
                 continue
             name = branch.get("name")
-            shown = f"{where}Branch {i + 1}" + (f" ('{name}')" if isinstance(name, str) else "")
+            shown = f"{where}branch {i + 1}" + (f" ('{name}')" if isinstance(name, str) else "")
             shown = shown[0].upper() + shown[1:]
             past_end(
                 f"{prefix}branches.{i}.junction_position_m", f"{shown} junction", num(branch, "junction_position_m")
@@ -53,7 +53,7 @@ def _branch_problems(data: dict[str, Any]) -> list[Problem]:
             if not isinstance(branch_name, str) or not isinstance(node, dict):
                 continue  # on the trunk, or not a name (the field check reports that)
             node_name = node.get("name")
-            shown = f"{where}Node {i + 1}" + (f" ('{node_name}')" if isinstance(node_name, str) else "")
+            shown = f"{where}node {i + 1}" + (f" ('{node_name}')" if isinstance(node_name, str) else "")
             shown = shown[0].upper() + shown[1:]
             if branch_name not in lengths:
                 choices = list(lengths)

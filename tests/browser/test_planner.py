@@ -144,3 +144,20 @@ def test_print_hall_sample_as_drawn_worst_receiver_and_plan_label_inside_the_plo
     # Source: the sample's driver stub, 0.1 m.
     assert driver == "line-encoder (driver, stub 0.1 m)"
     page.locator("figure.curve").screenshot(path=str(artifacts / "length-rate-curve.png"))
+
+
+def test_a_branch_row_is_added_in_place_and_its_node_sketched_at_the_junction(page, base_url):
+    page.goto(f"{base_url}/plans/new")
+    page.fill("input[name='trunk_length_m']", "400")
+    page.click("button[data-add-row='branch-rows']")
+    assert page.url.endswith("/plans/new")  # no round trip
+    page.fill("input[name='branches.0.name']", "loft")
+    page.fill("input[name='branches.0.junction_position_m']", "100")
+    page.fill("input[name='branches.0.length_m']", "30")
+    page.fill("input[name='nodes.0.name']", "hatch")
+    page.fill("input[name='nodes.0.branch']", "loft")
+    page.fill("input[name='nodes.0.position_m']", "25")
+    # The sketch spans x 40 to 900 for the 400 m trunk: the junction at 100 m is at 40 + 860 x 100 / 400 = 255,
+    # where a node 25 m along the branch is sketched (its trunk place), not at 25 m (93.75).
+    cx = page.locator("#live-preview circle").first.get_attribute("cx")
+    assert float(cx) == 255.0
