@@ -59,7 +59,13 @@ from pairline.engine.metrics import (
 from pairline.engine.solve import NetworkVariants, Topology, build_topology, with_cable
 from pairline.engine.transient import ACCURACY, StepResponses, edge_duration_s, step_responses, variant_step_responses
 from pairline.engine.units import si_format
-from pairline.engine.waveform import default_pattern, pattern_duration_s, pattern_memory_bits, pattern_offsets_s
+from pairline.engine.waveform import (
+    default_pattern,
+    edge_matrix,
+    pattern_duration_s,
+    pattern_memory_bits,
+    pattern_offsets_s,
+)
 
 VARIANTS_PER_BATCH = 32  # variants solved at once, at most
 BATCH_VALUES = 4_000_000  # variant x probe x sample values of the edge responses held at once
@@ -302,9 +308,7 @@ def _sampled_levels(
     edges = 2.0 * np.diff(b.astype(float), prepend=float(b[0]))
     n_bits = len(bits)
     n_mem = pattern_memory_bits(step, t_bit, n_bits)
-    toeplitz = np.zeros((n_bits, n_mem))  # (n_bits, n_mem): edges[n - m]
-    for m in range(n_mem):
-        toeplitz[m:, m] = edges[: n_bits - m]
+    toeplitz = edge_matrix(edges, n_mem)  # (n_bits, n_mem): edges[n - m]
     t = step.time_s
     u = phase_s[:, None] + tau_ui * t_bit  # (n_rx, n_tau) local time after bit n's start
     shift = np.floor(u / t_bit).astype(int)
