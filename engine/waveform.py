@@ -211,7 +211,7 @@ class _Deviations:
     def __init__(self, step: StepResponses, rows: np.ndarray, lags: np.ndarray, cand: np.ndarray):
         self.step, self.rows, self.lags, self.cand = step, rows, lags, cand
         self.dev = _deviation(step, rows)
-        self.values = np.empty((rows.size * lags.size, cand.size))
+        self.by_column = np.empty((cand.size, rows.size * lags.size))  # a candidate's values are one row here
         self.known = np.zeros(cand.size, dtype=bool)
 
     def at(self, columns: np.ndarray) -> np.ndarray:
@@ -219,9 +219,9 @@ class _Deviations:
         if missing.size:
             local_s = (self.lags + self.cand[None, missing]).ravel()
             at_s = _deviation_at(self.step, self.rows, local_s, self.dev)
-            self.values[:, missing] = at_s.reshape(-1, missing.size)
+            self.by_column[missing] = at_s.reshape(-1, missing.size).T
             self.known[missing] = True
-        return self.values[:, columns]
+        return np.asarray(self.by_column[columns].T)
 
 
 def _refine(cand: np.ndarray, vals: _Deviations, fixed: np.ndarray, tol: np.ndarray) -> np.ndarray:
