@@ -27,11 +27,12 @@ class LayoutMemo:
 
     def get(self, key: Hashable, make: Callable[[], T]) -> T:
         """The value under key, made by make() the first time."""
-        if key in self._values:
+        try:
             return self._values[key]  # type: ignore[no-any-return]
-        value = make()
-        self._values[key] = value
-        return value
+        except KeyError:
+            value = make()
+            self._values[key] = value
+            return value
 
 
 @dataclass(frozen=True, slots=True)
@@ -87,6 +88,7 @@ class Bus:
     devices: Mapping[str, ResolvedDevice]  # every node's device by name, the primary driver's included
     layout: BranchLayout = NO_BRANCHES  # the branches as wired
     memo: LayoutMemo = field(default_factory=LayoutMemo, compare=False, repr=False)  # shared by this layout's views
+    view: "ViewKey | None" = field(default=None, init=False, compare=False, repr=False)  # view_key, once made
 
     @property
     def nodes(self) -> list[NodeSpec]:
@@ -123,11 +125,32 @@ class Bus:
         return self.memo.get(("rises", self.plan.standard), rises)
 
 
-def view_key(bus: Bus) -> tuple[object, ...]:
+class ViewKey:
+    """A view's key in the LayoutMemo, its hash taken once: the parts hold the plan's nested models, whose hash
+    is worked out afresh on every dictionary look-up."""
+
+    __slots__ = ("_hash", "parts")
+
+    def __init__(self, parts: tuple[object, ...]) -> None:
+        self.parts = parts
+        self._hash = hash(parts)
+
+    def __hash__(self) -> int:
+        return self._hash
+
+    def __eq__(self, other: object) -> bool:
+        return self is other or (isinstance(other, ViewKey) and self._hash == other._hash and self.parts == other.parts)
+
+
+def view_key(bus: Bus) -> ViewKey:
     """What tells apart the views of one layout (LayoutMemo): everything of the plan but its nodes (the layout's
-    own), the cable and the driver; hashable."""
-    plan = tuple((name, tuple(v) if isinstance(v, list) else v) for name, v in bus.plan if name != "nodes")
-    return (plan, bus.cable, bus.driver)
+    own), the cable and the driver; hashable. Made once per view."""
+    key = bus.view
+    if key is None:
+        plan = tuple((name, tuple(v) if isinstance(v, list) else v) for name, v in bus.plan if name != "nodes")
+        key = ViewKey((plan, bus.cable, bus.driver))
+        object.__setattr__(bus, "view", key)  # a frozen view keeps what it was made with; its key follows from that
+    return key
 
 
 def build_bus(plan: BusPlan, layout: BranchLayout | None = None) -> Bus:

@@ -105,10 +105,11 @@ def solve_dc_cases_v(
     algorithm in O(n), batched over the cases. The stub end's voltage then follows from the element's current.
     """
     n_cases = resistance_ohm.shape[0]
-    positions = np.unique(np.array([0.0, trunk_length_m] + [e.position_m for e in elements]))
+    where_m = np.array([(e.position_m, e.stub_m) for e in elements]).reshape(-1, 2)
+    positions = np.unique(np.r_[0.0, trunk_length_m, where_m[:, 0]])
     n = positions.size
-    at = np.searchsorted(positions, [e.position_m for e in elements])
-    stub_ohm = np.array([loop_resistance_ohm(e.stub_m, resistance_ohm_per_m) for e in elements])
+    at = np.searchsorted(positions, where_m[:, 0])
+    stub_ohm = 2.0 * resistance_ohm_per_m * where_m[:, 1]  # each stub's loop_resistance_ohm
     branch_ohm = np.maximum(resistance_ohm, _MIN_BRANCH_OHM) + stub_ohm
     branch_siemens = np.where(np.isinf(branch_ohm), 0.0, 1.0 / branch_ohm)  # (n_cases, n_elements)
     # Internally trunk points come first, (n, n_cases), so each sweep step reads one contiguous row.

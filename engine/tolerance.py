@@ -28,7 +28,8 @@ half the change of the driver's 0-100 % edge: a ramp crosses 0 V at its middle.
 
 Grids: every variant is simulated on the grid chosen for the nominal bus driven by an edge at least as sharp as its
 own (its edge factor rounded down to a power of two, or the class's fastest), so each keeps the accuracy of
-engine.transient while variants with the nominal edge or slower share the nominal grid.
+engine.transient while variants with the nominal edge or slower share the nominal grid. A variant with every part
+nominal and a grid's own edge is that grid's run: its levels are read off it, not solved again.
 """
 
 from dataclasses import dataclass, replace
@@ -59,7 +60,13 @@ from pairline.engine.metrics import (
 from pairline.engine.solve import NetworkVariants, Topology, build_topology, with_cable
 from pairline.engine.transient import ACCURACY, StepResponses, edge_duration_s, step_responses, variant_step_responses
 from pairline.engine.units import si_format
-from pairline.engine.waveform import default_pattern, pattern_duration_s, pattern_memory_bits, pattern_offsets_s
+from pairline.engine.waveform import (
+    default_pattern,
+    edge_matrix,
+    pattern_duration_s,
+    pattern_memory_bits,
+    pattern_offsets_s,
+)
 
 VARIANTS_PER_BATCH = 32  # variants solved at once, at most
 BATCH_VALUES = 4_000_000  # variant x probe x sample values of the edge responses held at once
@@ -302,9 +309,7 @@ def _sampled_levels(
     edges = 2.0 * np.diff(b.astype(float), prepend=float(b[0]))
     n_bits = len(bits)
     n_mem = pattern_memory_bits(step, t_bit, n_bits)
-    toeplitz = np.zeros((n_bits, n_mem))  # (n_bits, n_mem): edges[n - m]
-    for m in range(n_mem):
-        toeplitz[m:, m] = edges[: n_bits - m]
+    toeplitz = edge_matrix(edges, n_mem)  # (n_bits, n_mem): edges[n - m]
     t = step.time_s
     u = phase_s[:, None] + tau_ui * t_bit  # (n_rx, n_tau) local time after bit n's start
     shift = np.floor(u / t_bit).astype(int)
@@ -315,17 +320,17 @@ def _sampled_levels(
     k = np.clip(np.searchsorted(t, at, side="right") - 1, 0, t.size - 2)
     w = np.clip((at - t[k]) / (t[k + 1] - t[k]), 0.0, 1.0)
     late = at > t[-1]
-    flat = k.reshape(n_rx, -1)
+    flat = (k + np.arange(n_rx)[:, None, None] * t.size).reshape(n_rx, -1)  # into a variant's rows, flattened
     ones, zeros = level[:n_s] > 0, level[:n_s] < 0
     out = np.empty((3, variants.size, n_rx))
     for i, v in enumerate(variants):
-        final = step.v_final_v[0, v * n_rx : (v + 1) * n_rx]
-        dev = step.v_diff_v[0, v * n_rx : (v + 1) * n_rx] - final[:, None]  # (n_rx, n_t)
-        d0 = np.take_along_axis(dev, flat, 1).reshape(k.shape)
-        d = d0 + (np.take_along_axis(dev, flat + 1, 1).reshape(k.shape) - d0) * w
-        d = np.where(late, 0.0 if step.settled else dev[:, -1, None, None], d)
+        final = step.v_final_v[0, v * n_rx : (v + 1) * n_rx, None]
+        rows = step.v_diff_v[0, v * n_rx : (v + 1) * n_rx].ravel()  # (n_rx * n_t,); D = rows - final
+        d0 = (rows[flat] - final).reshape(k.shape)
+        d = d0 + ((rows[flat + 1] - final).reshape(k.shape) - d0) * w
+        d = np.where(late, 0.0 if step.settled else (rows[t.size - 1 :: t.size, None] - final)[..., None], d)
         wave = np.einsum("nm,rmj->rnj", toeplitz, d)  # (n_rx, n_bits, n_tau): the edges' sum in bit n'
-        wave += level[None, :, None] * final[:, None, None]
+        wave += level[None, :, None] * final[..., None]
         driven = level[None, :n_s, None] * np.take_along_axis(wave, bit, axis=1)  # (n_rx, n_s, n_tau)
         window_min = driven.min(axis=2)
         centre = driven[..., 1]
@@ -356,6 +361,12 @@ def _simulate(
     bucket = np.array([_grid_factor(x, min(grids)) for x in f.rise_time])
     for factor, grid in grids.items():
         members = np.flatnonzero(bucket == factor)
+        # the grid run is itself the variant with nominal parts and the grid's edge: its levels are read off it
+        own = members[(f.rise_time[members] == factor) & _nominal_parts(f, members)]
+        if own.size:
+            phase = phase_s + 0.5 * t_edge * (factor - 1.0)
+            out[:, own] = _sampled_levels(grid.step, np.zeros(1, int), phase, grid.tau_ui, bits, t_bit, threshold_v)
+            members = np.setdiff1d(members, own)
         per_batch = int(np.clip(BATCH_VALUES // (n_rx * grid.step.time_s.size), 1, VARIANTS_PER_BATCH))
         for v0 in range(0, members.size, per_batch):
             part = members[v0 : v0 + per_batch]
@@ -369,6 +380,16 @@ def _simulate(
                 phase = phase_s + 0.5 * t_edge * (edge - 1.0)
                 out[:, part[same]] = _sampled_levels(step, same, phase, grid.tau_ui, bits, t_bit, threshold_v)
     return out
+
+
+def _nominal_parts(f: _Factors, members: np.ndarray) -> np.ndarray:
+    """Which of the variants `members` have every part but the driver's edge at its nominal value, (n_members,)."""
+    nominal = np.ones(members.size, dtype=bool)
+    for key in _Factors.__slots__:
+        if key != "rise_time":
+            factor = np.asarray(getattr(f, key))[members]
+            nominal &= np.all(factor == 1.0, axis=1) if factor.ndim == 2 else factor == 1.0
+    return nominal
 
 
 def _grid_factor(edge_factor: float, fastest: float) -> float:

@@ -6,7 +6,8 @@ Probe p is read in its own frame (local time u = t - tau_p, engine.transient), w
 [n T_bit, (n + 1) T_bit). With D(u) = step(u) - v_final (zero once settled) and b_{-1} = b_0:
     v(n T_bit + u) = v_final (2 b_n - 1) + sum_{m >= 0} 2 (b_{n-m} - b_{n-m-1}) D(m T_bit + u).
 That is a convolution along the bit index at offsets u within a bit, common to every probe: one matrix product
-per block of probes (or an FFT over bits when the memory is long), no further solve.
+per probe with the edges' Toeplitz matrix when short (or shifted adds, or an FFT over bits when the memory is
+long), no further solve.
 
 Offsets: every sample of the edge response folded into one bit (so the ramp's corners, at local 0 and T_e, are
 offsets exactly), refined to those where linear interpolation between neighbours would miss some probe's D at some
@@ -35,6 +36,7 @@ __all__ = [
     "Waveforms",
     "default_pattern",
     "edge_duration_s",
+    "edge_matrix",
     "local_patterns",
     "longest_delay_s",
     "pattern_at",
@@ -54,6 +56,7 @@ MIN_DEFAULT_ORDER, MAX_DEFAULT_ORDER = 5, 7
 REFINE_TOLERANCE = 1e-3  # of each probe's peak-to-peak: linear interpolation error allowed between offsets
 UNIFORM_OFFSETS = 32  # per bit, always present
 REFINE_BUDGET_VALUES = 2_000_000  # lag x offset values examined at once while refining
+DIRECT_PRODUCT_VALUES = 1 << 18  # bits x lags x offsets of one probe's direct product (one BLAS thread), at most
 MEMORY_FRACTION = 0.01  # of V_oc: an edge's tail below this no longer shapes an eye or a threshold crossing
 
 
@@ -208,7 +211,7 @@ class _Deviations:
     def __init__(self, step: StepResponses, rows: np.ndarray, lags: np.ndarray, cand: np.ndarray):
         self.step, self.rows, self.lags, self.cand = step, rows, lags, cand
         self.dev = _deviation(step, rows)
-        self.values = np.empty((rows.size * lags.size, cand.size))
+        self.by_column = np.empty((cand.size, rows.size * lags.size))  # a candidate's values are one row here
         self.known = np.zeros(cand.size, dtype=bool)
 
     def at(self, columns: np.ndarray) -> np.ndarray:
@@ -216,9 +219,9 @@ class _Deviations:
         if missing.size:
             local_s = (self.lags + self.cand[None, missing]).ravel()
             at_s = _deviation_at(self.step, self.rows, local_s, self.dev)
-            self.values[:, missing] = at_s.reshape(-1, missing.size)
+            self.by_column[missing] = at_s.reshape(-1, missing.size).T
             self.known[missing] = True
-        return self.values[:, columns]
+        return np.asarray(self.by_column[columns].T)
 
 
 def _refine(cand: np.ndarray, vals: _Deviations, fixed: np.ndarray, tol: np.ndarray) -> np.ndarray:
@@ -235,7 +238,8 @@ def _refine(cand: np.ndarray, vals: _Deviations, fixed: np.ndarray, tol: np.ndar
             break
         mid = (left + right) // 2
         w = (cand[mid] - cand[left]) / (cand[right] - cand[left])
-        err = (np.abs(vals.at(mid) - (vals.at(left) * (1.0 - w) + vals.at(right) * w)) / tol[:, None]).max(axis=0)
+        at = vals.at(np.concatenate([left, mid, right])).reshape(-1, 3, mid.size)
+        err = (np.abs(at[:, 1] - (at[:, 0] * (1.0 - w) + at[:, 2] * w)) / tol[:, None]).max(axis=0)
         if not np.any(err > 1.0):
             break
         keep[mid[err > 1.0]] = True
@@ -244,6 +248,13 @@ def _refine(cand: np.ndarray, vals: _Deviations, fixed: np.ndarray, tol: np.ndar
     keep[np.clip(kept - 1, 0, None)] = True
     keep[np.clip(kept + 1, None, cand.size - 1)] = True
     return keep
+
+
+def edge_matrix(edges: np.ndarray, n_mem: int) -> np.ndarray:
+    """The convolution along the bit index as a matrix, (n_bits, n_mem): entry (n, m) is edges[n - m], 0 before the
+    first bit; times D at lags 0 .. n_mem - 1 it sums the edges' responses in each bit."""
+    lag = np.arange(edges.size)[:, None] - np.arange(n_mem)[None, :]
+    return np.asarray(np.where(lag >= 0, edges[np.maximum(lag, 0)], 0.0))
 
 
 def local_patterns(
@@ -267,9 +278,12 @@ def local_patterns(
         d_mem = d_mem.reshape(rows.size, n_mem, offsets.size)
     b = np.array([1.0 if c == "1" else 0.0 for c in bits])
     edges = 2.0 * np.diff(b, prepend=b[0])  # (n_bits,) in units of one 0 -> V_oc step; the first bit at rest
-    # the convolution along the bit index: shifted adds for a short memory, else by FFT over bits (exact to
-    # rounding); either way no temporaries beyond the output's size
-    if n_mem <= 8:
+    # the convolution along the bit index: a product with the edges' Toeplitz matrix while each probe's product is
+    # small, shifted adds for a short memory, else by FFT over bits (exact to rounding); no temporaries beyond
+    # the output's size
+    if n_bits * n_mem * offsets.size <= DIRECT_PRODUCT_VALUES:
+        v = np.matmul(edge_matrix(edges, n_mem), d_mem)  # (n_rx, n_bits, n_off)
+    elif n_mem <= 8:
         v = edges[None, :, None] * d_mem[:, :1, :]
         for m in range(1, n_mem):
             v[:, m:, :] += edges[None, : n_bits - m, None] * d_mem[:, m : m + 1, :]

@@ -22,12 +22,14 @@ copper's warm corner is left to the DC level rule, which computes the level itse
 The exact DC level at each receiver is what rule "signal.dc_level" checks.
 """
 
+import functools
 import math
 
 import numpy as np
 from pairline.engine.bus import Bus
 from pairline.engine.findings import Finding, Verdict
 from pairline.engine.line import propagation_constant_per_m
+from pairline.engine.plan import ResolvedCable
 from pairline.engine.rules.margins import band_verdict, long_run_factor
 from pairline.engine.units import length_text
 
@@ -56,7 +58,11 @@ def attenuation_np_per_m(bus: Bus, frequency_hz: float) -> float:
 
     Source: D. M. Pozar, Microwave Engineering, 4th ed., eq. 2.5 (engine.line.propagation_constant_per_m).
     """
-    return float(propagation_constant_per_m(bus.cable, frequency_hz).real[0])
+    return _attenuation_np_per_m(bus.cable, frequency_hz)
+
+
+def _attenuation_np_per_m(cable: ResolvedCable, frequency_hz: float) -> float:
+    return float(propagation_constant_per_m(cable, frequency_hz).real[0])
 
 
 def plateau_length_m(bus: Bus) -> float:
@@ -69,7 +75,11 @@ def plateau_length_m(bus: Bus) -> float:
 
 def line_loss_db(bus: Bus, frequency_hz: float, length_m: float) -> float:
     """Cable attenuation over length_m at frequency_hz in dB: 8.686 alpha L with the exact alpha = Re(gamma)."""
-    return NEPER_DB * attenuation_np_per_m(bus, frequency_hz) * length_m
+    return _cable_loss_db(bus.cable, frequency_hz, length_m)
+
+
+def _cable_loss_db(cable: ResolvedCable, frequency_hz: float, length_m: float) -> float:
+    return NEPER_DB * _attenuation_np_per_m(cable, frequency_hz) * length_m
 
 
 def nine_db_length_m(bus: Bus, rate_bps: float) -> float:
@@ -98,20 +108,24 @@ def signal_path_m(bus: Bus) -> float:
 def loss_limited_rate_bps(bus: Bus, length_m: float, limit_db: float = LOSS_LIMIT_DB) -> float:
     """Highest bit rate at which the attenuation at f = rate over length_m stays within limit_db (bisection in
     log f), clamped to the plan's range of rates: continuous in the length. The plateau is a length limit no
-    rate changes; it is stated apart (plateau_length_m)."""
-    key = ("loss_limited_rate_bps", bus.cable, length_m, limit_db)
-    return bus.memo.get(key, lambda: _loss_limited_rate_bps(bus, length_m, limit_db))
+    rate changes; it is stated apart (plateau_length_m). A function of the cable and the length alone, so it is
+    kept across plans (an edit that leaves the longest path alone finds it known)."""
+    return _loss_limited_rate_bps(bus.cable, length_m, limit_db)
 
 
-def _loss_limited_rate_bps(bus: Bus, length_m: float, limit_db: float) -> float:
-    if line_loss_db(bus, MAX_RATE_BPS, length_m) <= limit_db:
+@functools.lru_cache(maxsize=256)
+def _loss_limited_rate_bps(cable: ResolvedCable, length_m: float, limit_db: float) -> float:
+    def loss_db(frequency_hz: float) -> float:
+        return _cable_loss_db(cable, frequency_hz, length_m)
+
+    if loss_db(MAX_RATE_BPS) <= limit_db:
         return MAX_RATE_BPS
-    if line_loss_db(bus, MIN_RATE_BPS, length_m) > limit_db:
+    if loss_db(MIN_RATE_BPS) > limit_db:
         return MIN_RATE_BPS
     lo, hi = math.log(MIN_RATE_BPS), math.log(MAX_RATE_BPS)
     for _ in range(60):
         mid = 0.5 * (lo + hi)
-        if line_loss_db(bus, math.exp(mid), length_m) <= limit_db:
+        if loss_db(math.exp(mid)) <= limit_db:
             lo = mid
         else:
             hi = mid
