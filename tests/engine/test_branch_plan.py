@@ -10,15 +10,9 @@ from pairline.engine.fieldmodel import field_setup
 from pairline.engine.plan import BusInputError, load_plan, plan_to_dict
 from pairline.engine.segments import plan_parts
 
-from tests.engine.topology_plans import four_wire, with_spur
+from tests.engine.topology_plans import four_wire, load_problems, with_spur
 
 SAMPLES = Path(__file__).resolve().parents[2] / "sample_buses"
-
-
-def _problems(doc):
-    with pytest.raises(BusInputError) as err:
-        load_plan(doc)
-    return {p.field: p for p in err.value.problems}
 
 
 def test_a_plan_with_branches_round_trips():
@@ -41,7 +35,7 @@ def test_a_plan_that_states_no_branch_has_none():
 def test_a_branch_from_a_point_past_the_trunk_end():
     doc = with_spur()
     doc["branches"][0]["junction_position_m"] = 320.0
-    found = _problems(doc)["branches.0.junction_position_m"]
+    found = load_problems(doc)["branches.0.junction_position_m"]
     assert found.value == 320.0 and found.allowed == {"min": 0.0, "max": 300.0, "unit": "m"}
     assert "past the trunk end at 300 m" in found.message
 
@@ -49,14 +43,14 @@ def test_a_branch_from_a_point_past_the_trunk_end():
 def test_a_segment_branch_is_held_to_its_own_trunk():
     doc = with_spur()
     doc["segments"][0]["branches"][0]["junction_position_m"] = 450.0
-    found = _problems(doc)["segments.0.branches.0.junction_position_m"]
+    found = load_problems(doc)["segments.0.branches.0.junction_position_m"]
     assert found.allowed["max"] == 400.0 and "Segment 1 ('store')" in found.message
 
 
 def test_a_node_on_a_branch_that_does_not_exist():
     doc = with_spur()
     doc["nodes"][2]["branch"] = "attic"
-    found = _problems(doc)["nodes.2.branch"]
+    found = load_problems(doc)["nodes.2.branch"]
     assert found.value == "attic" and found.allowed == {"choices": [None, "side-room"]}
     assert "'side-room'" in found.message
 
@@ -64,13 +58,13 @@ def test_a_node_on_a_branch_that_does_not_exist():
 def test_a_node_names_a_branch_of_another_trunk():
     doc = with_spur()
     doc["nodes"][2]["branch"] = "loft"  # the store segment's branch, not the master's
-    assert "nodes.2.branch" in _problems(doc)
+    assert "nodes.2.branch" in load_problems(doc)
 
 
 def test_a_node_past_its_branch_end():
     doc = with_spur()
     doc["nodes"][3]["position_m"] = 45.0  # the branch is 40 m
-    found = _problems(doc)["nodes.3.position_m"]
+    found = load_problems(doc)["nodes.3.position_m"]
     assert found.allowed == {"min": 0.0, "max": 40.0, "unit": "m"} and "along branch 'side-room'" in found.message
 
 
@@ -84,18 +78,18 @@ def test_a_branch_node_may_sit_farther_along_than_the_trunk_is_long():
 def test_two_branches_of_one_name():
     doc = with_spur()
     doc["branches"].append({"name": "side-room", "junction_position_m": 10.0, "length_m": 5.0})
-    assert "unique" in _problems(doc)["branches.1.name"].allowed["rule"]
+    assert "unique" in load_problems(doc)["branches.1.name"].allowed["rule"]
 
 
 def test_a_format_2_node_cannot_name_a_branch():
     v2 = json.loads((SAMPLES / "machine-hall-by-the-book.json").read_text(encoding="utf-8"))
     v2["nodes"][0]["branch"] = "x"
-    assert "format 3" in _problems(v2)["nodes.0.branch"].message
+    assert "format 3" in load_problems(v2)["nodes.0.branch"].message
 
 
 def test_a_four_wire_plan_has_no_branch():
     doc = four_wire(branches=[{"name": "b", "junction_position_m": 50.0, "length_m": 5.0}])
-    found = _problems(doc)["branches"]
+    found = load_problems(doc)["branches"]
     assert found.allowed == {"rule": "no branches on a four-wire plan"}
 
 
@@ -129,5 +123,5 @@ def test_a_branch_that_is_not_a_name_is_refused_naming_the_field(value):
     # found by the API fuzz: a list where the branch's name belongs once reached the cross-field checks
     doc = with_spur()
     doc["segments"][0]["nodes"][2]["branch"] = value
-    found = _problems(doc)
+    found = load_problems(doc)
     assert "segments.0.nodes.2.branch" in found

@@ -34,23 +34,33 @@ RISE_S = 100e-9  # the library's 1 Mbit/s edge class, edge-100ns
 STUB_LIMIT_M = 0.1 * RISE_S * 0.7 * 299_792_458.0
 
 
-def _bus(branch_m: float, star: bool) -> Bus:
-    doc = {
+def _trunk(nodes: list[dict], **more) -> dict:
+    """A 60 m lossless trunk terminated at both ends, a node at 15 m and one at 60 m around the given ones."""
+    return {
         "format_version": 3,
         "bit_rate_bps": 1e6,
         "trunk_length_m": 60.0,
         "cable": LOSSLESS_120,
         "default_device": "edge-100ns",
         "driver": {"stub_length_m": 0.2},
-        "branches": [{"name": "side", "junction_position_m": 30.0, "length_m": branch_m}],
         "nodes": [
             {"name": "t15", "position_m": 15.0, "stub_length_m": 0.3},
-            {"name": "half", "branch": "side", "position_m": branch_m / 2, "stub_length_m": 0.6, "may_drive": True},
-            {"name": "end", "branch": "side", "position_m": branch_m},
+            *nodes,
             {"name": "t60", "position_m": 60.0},
         ],
         "terminations": [{"position_m": 0.0, "resistance_ohm": 120.0}, {"position_m": 60.0, "resistance_ohm": 120.0}],
+        **more,
     }
+
+
+def _bus(branch_m: float, star: bool) -> Bus:
+    doc = _trunk(
+        [
+            {"name": "half", "branch": "side", "position_m": branch_m / 2, "stub_length_m": 0.6, "may_drive": True},
+            {"name": "end", "branch": "side", "position_m": branch_m},
+        ],
+        branches=[{"name": "side", "junction_position_m": 30.0, "length_m": branch_m}],
+    )
     if star:  # a second branch from the same junction, a node at its end that also talks
         doc["branches"].append({"name": "other", "junction_position_m": 30.0, "length_m": 9.0})
         doc["nodes"].append({"name": "o9", "branch": "other", "position_m": 9.0, "may_drive": True})
@@ -95,21 +105,12 @@ def test_a_one_node_spur_is_the_stub_it_replaces():
     # Hand reasoning: a branch carrying one node at its far end, with no stub of its own, is electrically that
     # node on a stub of the branch's length from the junction; both layouts give the same waveforms.
     spur = _bus(6.0, False)
-    doc = {
-        "format_version": 3,
-        "bit_rate_bps": 1e6,
-        "trunk_length_m": 60.0,
-        "cable": LOSSLESS_120,
-        "default_device": "edge-100ns",
-        "driver": {"stub_length_m": 0.2},
-        "nodes": [
-            {"name": "t15", "position_m": 15.0, "stub_length_m": 0.3},
+    doc = _trunk(
+        [
             {"name": "half", "position_m": 30.0, "stub_length_m": 3.6, "may_drive": True},
             {"name": "end", "position_m": 30.0, "stub_length_m": 6.0},
-            {"name": "t60", "position_m": 60.0},
-        ],
-        "terminations": [{"position_m": 0.0, "resistance_ohm": 120.0}, {"position_m": 60.0, "resistance_ohm": 120.0}],
-    }
+        ]
+    )
     stubs = build_bus(load_plan(doc))
     # the two-node branch is not two stubs: the shared first 3 m make a difference the tree shows
     a = step_responses(spur, max_time_s=WINDOW_S)

@@ -3,6 +3,9 @@
 import copy
 from typing import Any
 
+import pytest
+from pairline.engine.plan import BusInputError, Problem, load_plan
+
 
 def two_segments(**changes: Any) -> dict[str, Any]:
     """A 300 m segment with two nodes and a repeater at its far end into a 400 m segment of two nodes."""
@@ -93,3 +96,10 @@ def with_spur(**changes: Any) -> dict[str, Any]:
     doc["segments"][0]["nodes"].append({"name": "l1", "branch": "loft", "position_m": 12.0})
     doc.update(copy.deepcopy(changes))
     return doc
+
+
+def load_problems(doc: dict[str, Any]) -> dict[str, Problem]:
+    """The problems load_plan raises for a document, by field."""
+    with pytest.raises(BusInputError) as err:
+        load_plan(doc)
+    return {p.field: p for p in err.value.problems}
