@@ -24,6 +24,7 @@ from pairline.engine.network import NetworkReport, advised_plan, advised_verdict
 from pairline.engine.plan import BusInputError, BusPlan, Problem, load_plan, plan_to_dict
 from pairline.engine.rules.power import rating_text
 from pairline.engine.units import length_text, si_format
+from pairline.server.allocator import keep_freed_memory
 from pairline.server.json_input import JsonInputError, load_json
 from pairline.server.samples import UnknownSampleError, sample_file, sample_files, seed_samples
 from pairline.server.wording import METRIC_LENGTH, metres_of
@@ -564,6 +565,7 @@ def build_parser() -> argparse.ArgumentParser:
 def main(argv: Sequence[str] | None = None) -> int:
     """Entry point of the `pairline` command; returns the exit status."""
     args = build_parser().parse_args(argv)
+    keep_freed_memory()  # a check runs in this process
     run: Command = args.run
     return run(args, sys.stdout, sys.stderr)
 

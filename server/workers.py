@@ -26,6 +26,7 @@ from multiprocessing.process import BaseProcess
 from typing import Any, Literal, TypeVar
 
 from pairline.engine.plan import BusInputError, Problem
+from pairline.server.allocator import keep_freed_memory
 
 T = TypeVar("T")
 GRACE_S = 2.0  # beyond the time limit before a worker that does not answer is killed
@@ -81,6 +82,7 @@ def _address_space_bytes() -> int:
 def _worker_main(conn: Connection, time_limit_s: float, memory_limit_bytes: int) -> None:
     """Run jobs from conn until it closes. Answers ("ok", value), ("time",), ("memory",), ("input", problems)
     or ("error", traceback text)."""
+    keep_freed_memory()
     limit = _address_space_bytes() + memory_limit_bytes
     resource.setrlimit(resource.RLIMIT_AS, (limit, limit))
     signal.signal(signal.SIGALRM, _time_up)

@@ -20,6 +20,7 @@ with warnings.catch_warnings():
 
 from pairline.engine.check import check_plan
 from pairline.engine.plan import load_plan, plan_to_dict
+from pairline.server.allocator import keep_freed_memory
 from pairline.server.app import create_app
 from pairline.server.forms import form_from_plan
 from starlette.types import ASGIApp, Message, Receive, Scope, Send
@@ -80,6 +81,7 @@ def report(name: str, server_s: list[float], wall_s: list[float]) -> None:
 
 
 def main() -> int:
+    keep_freed_memory()  # as the check workers and the command line run checks (server.allocator)
     plan = thirty_two_receiver_plan()
     with tempfile.TemporaryDirectory() as tmp:
         timer = ServerTimer(create_app(Path(tmp) / "bench.db", load_samples=False))

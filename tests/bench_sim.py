@@ -36,6 +36,7 @@ from pairline.engine.metrics import receiver_metrics
 from pairline.engine.plan import load_plan
 from pairline.engine.tolerance import analyse_tolerances
 from pairline.engine.waveform import step_responses
+from pairline.server.allocator import keep_freed_memory
 
 from tests.engine.spice_netlist import ngspice_path, step_waveforms
 
@@ -111,6 +112,7 @@ def machine() -> str:
 
 
 def main() -> None:
+    keep_freed_memory()  # as the check workers and the command line run checks (server.allocator)
     quick = "--quick" in sys.argv  # no ngspice at 128 receivers, fewer repeats
     rows = Rows()
     print(f"machine: {machine()}")
