@@ -43,7 +43,7 @@ comes out multiplied by exp(s tau), tau its geometric path delay from the driver
 stub at the cable's speed v). Under a damped transform (large Re s) the plain transfer of a long path would
 underflow; the normalised one stays of order one, and the time-domain solver reads each probe in its own frame
 starting at tau. At a large real s the normalised transfer tends to the amplitude of the wave front that
-arrives at tau: every later reflection carries exp(-s (tau_i - tau)) and dies out (front_gain).
+arrives at tau: every later reflection carries exp(-s (tau_i - tau)) and dies out (settled_and_front).
 
 Variants (tolerance analysis): the cable and every load may carry a leading axis of n_v variants of the same
 layout; everything then runs batched over it (NetworkVariants).
@@ -697,7 +697,16 @@ def probe_spectra(
     return out
 
 
-def front_gain(
+@dataclass(frozen=True, slots=True)
+class SettledAndFront:
+    """What an edge response needs besides its transform, per volt of open-circuit drive, (n_v, n_drivers, n_p)."""
+
+    settled: np.ndarray  # V_probe / V_oc once settled (the DC solve, s = 0)
+    delay_s: np.ndarray  # geometric path delay (probe_delays_s)
+    front: np.ndarray  # amplitude of the wave front (front_gain)
+
+
+def settled_and_front(
     bus: Bus,
     topo: Topology,
     driver_names: tuple[str, ...],
@@ -705,19 +714,22 @@ def front_gain(
     s_real: float,
     variants: NetworkVariants | None = None,
     kinds: Branching | None = None,
-) -> np.ndarray:
-    """Amplitude of the wave front reaching each probe, per volt of open-circuit drive, (n_v, n_drivers, n_p): the
-    delay-normalised transfer at one large real Laplace point s_real (module docstring). A front that the cable
-    or a capacitance has rounded within about 1 / s_real reads as the part of it that is still sharp then.
+) -> SettledAndFront:
+    """The settled level, the path delay and the front amplitude of each probe, from one solve at s = 0 and at one
+    large real Laplace point s_real.
 
-    The cable's dielectric loss is left out here: its constant-phase model lets the highest frequencies run
-    slightly ahead of v, which at a real s would read as gain rather than as the small advance it is; its loss
-    at that scale, omega tan(delta) / (2 v), is under 1e-4 Np/m for the library cables, so a front loses nothing
-    measurable to it over a bus."""
+    Front: the delay-normalised transfer at s_real (module docstring). A front that the cable or a capacitance has
+    rounded within about 1 / s_real reads as the part of it that is still sharp then. The cable's dielectric loss
+    is left out of that solve: its constant-phase model lets the highest frequencies run slightly ahead of v,
+    which at a real s would read as gain rather than as the small advance it is; its loss at that scale,
+    omega tan(delta) / (2 v), is under 1e-4 Np/m for the library cables, so a front loses nothing measurable to
+    it over a bus. At s = 0 the model's dielectric admittance is 0 with or without it, so the settled level is the
+    plan's own."""
     var = nominal_variant(bus, topo) if variants is None else variants
     cables = tuple(replace(c, dielectric_loss_tangent=0.0) for c in var.cables)
-    net = solve_network(bus, np.array([s_real]), topo, driver_names, replace(var, cables=cables), kinds)
-    return np.asarray(probe_spectra(net, driver_names, points, advanced=True)[..., 0].real)
+    net = solve_network(bus, np.array([0.0, s_real]), topo, driver_names, replace(var, cables=cables), kinds)
+    spectra = probe_spectra(net, driver_names, points, advanced=True).real  # exp(0 tau) = 1 at s = 0
+    return SettledAndFront(spectra[..., 0], probe_delays_s(net, driver_names, points), spectra[..., 1])
 
 
 def _receiver_points(topo: Topology) -> ProbePoints:

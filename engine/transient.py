@@ -9,7 +9,7 @@ Frames. Probe p of driver d is read in its own frame, local time u = t - tau_dp,
 starts, and fine grids only span the time the signal is busy, not the time the edge spends on its way.
 
 Front. The delay-normalised transfer H(s) exp(s tau) tends, at a large real s, to a_dp, the amplitude of the wave
-front arriving at tau (engine.solve.front_gain, taken at s_f = 1 / sigma_min, the blur of the finest grid below).
+front arriving at tau (engine.solve.settled_and_front, taken at s_f = 1 / sigma_min, the blur of the finest grid below).
 The response is split into that front, a V r(u) with r the unit ramp (exact, in closed form), and a remainder of
 spectrum (H exp(s tau) - a) E(s), which the transform inverts. Where a lossless or constant-R path carries the
 ramp unrounded (a matched line, an open end's doubled first step, the driver's own pins) the remainder has no
@@ -61,13 +61,12 @@ from pairline.engine.solve import (
     Topology,
     branching,
     build_topology,
-    front_gain,
     node_probe,
     nominal_variant,
-    probe_delays_s,
     probe_points,
     probe_spectra,
     resolve_driver_names,
+    settled_and_front,
     solve_network,
 )
 from pairline.engine.units import delay_s, propagation_velocity_m_per_s
@@ -242,8 +241,9 @@ def _coarsening_error(x: np.ndarray, dt_s: float, extra_blur_s: float, dt_read_s
     if extra_blur_s <= 0.0:
         return out
     half = int(np.ceil(4.0 * extra_blur_s / dt_s))
-    padded = np.concatenate([np.repeat(x[..., :1], half, -1), x, np.repeat(x[..., -1:], half, -1)], axis=-1)
-    n = padded.shape[-1]
+    n = _fft_size(x.shape[-1] + 2 * half, 2)  # the right edge is held the longer, to a fast transform length
+    right = n - half - x.shape[-1]
+    padded = np.concatenate([np.repeat(x[..., :1], half, -1), x, np.repeat(x[..., -1:], right, -1)], axis=-1)
     f = np.fft.rfftfreq(n, dt_s)
     smooth = np.fft.irfft(np.fft.rfft(padded, axis=-1) * np.exp(-2.0 * (np.pi * f * extra_blur_s) ** 2), n=n, axis=-1)
     return np.asarray(out + np.abs(x - smooth[..., half : half + x.shape[-1]]))
@@ -352,11 +352,9 @@ def step_responses(
     v_oc = bus.driver.open_circuit_v
     t_edge = edge_duration_s(bus.driver.rise_time_s)
     kinds = branching(topo, nominal_variant(bus, topo))  # shared by every solve below
-    dc = solve_network(bus, np.zeros(1), topo, names, kinds=kinds)
-    v_final = v_oc * probe_spectra(dc, names, points)[0, ..., 0].real
-    start = probe_delays_s(dc, names, points)[0]
     dt_min = t_edge / MAX_SAMPLES_PER_EDGE
-    front = front_gain(bus, topo, names, points, np.pi * FINE_LOWPASS / dt_min, kinds=kinds)
+    ends = settled_and_front(bus, topo, names, points, np.pi * FINE_LOWPASS / dt_min, kinds=kinds)
+    v_final, start, front = v_oc * ends.settled[0], ends.delay_s[0], ends.front
     levels = _Levels(bus, topo, names, points, front, np.array([t_edge]), t_edge, kinds)
 
     horizon = t_edge + 6.0 * longest_delay_s(bus)  # settled is only declared past this
@@ -455,11 +453,10 @@ def variant_step_responses(
     t_edges = np.asarray(rise_times_s, dtype=float) / 0.8
     grid_edge = edge_duration_s(grid.rise_time_s)
     kinds = branching(topo, variants)  # shared by every solve below
-    dc = solve_network(bus, np.zeros(1), topo, names, variants, kinds)
-    v_final = v_oc * probe_spectra(dc, names, points)[..., 0].real[network_of]  # (n_v, 1, n_p)
-    start = probe_delays_s(dc, names, points)[network_of]
     dt_min = grid_edge / MAX_SAMPLES_PER_EDGE
-    front = front_gain(bus, topo, names, points, np.pi * FINE_LOWPASS / dt_min, variants, kinds)[network_of]
+    ends = settled_and_front(bus, topo, names, points, np.pi * FINE_LOWPASS / dt_min, variants, kinds)
+    v_final = v_oc * ends.settled[network_of]  # (n_v, 1, n_p)
+    start, front = ends.delay_s[network_of], ends.front[network_of]
     levels = _Levels(bus, topo, names, points, front, t_edges, grid_edge, kinds, variants, network_of)
     values = np.concatenate(
         [
