@@ -55,7 +55,7 @@ from dataclasses import dataclass, replace
 import numpy as np
 from numpy.typing import ArrayLike
 from pairline.engine.bus import Bus
-from pairline.engine.line import _tanh_and_tanhc, series_impedance_ohm_per_m, shunt_admittance_siemens_per_m
+from pairline.engine.line import series_impedance_ohm_per_m, shunt_admittance_siemens_per_m
 from pairline.engine.plan import BusInputError, Problem, ResolvedCable
 from pairline.engine.units import propagation_velocity_m_per_s
 
@@ -369,15 +369,20 @@ class _Sections:
 
 
 def _sections(z: np.ndarray, y: np.ndarray, s: np.ndarray, speed: np.ndarray, length_m: np.ndarray) -> _Sections:
-    """z, y: (n_v, n_s) per-metre Z', Y'; speed (n_v,) m/s; lengths (n_len,). Uses exp(-2 gamma l): no overflow."""
+    """z, y: (n_v, n_s) per-metre Z', Y'; speed (n_v,) m/s; lengths (n_len,). With e = exp(-2 gamma l):
+    tanh = (1 - e) / (1 + e) and sech(gamma l) exp(s l / v) = 2 exp(-(gamma - s / v) l) / (1 + e): two complex
+    exponentials per value, neither of which grows large (|e| <= 1, and the excess over the delay is the section's
+    attenuation)."""
     length = length_m[None, :, None]
     gamma = np.sqrt(z * y)[:, None, :]
     x = gamma * length
-    _, tc = _tanh_and_tanhc(x)
+    em = np.expm1(-2.0 * x)  # e - 1, exact near 0
+    one_plus_e = em + 2.0
+    tc = np.ones_like(em)
+    np.divide(-em / one_plus_e, x, out=tc, where=x != 0)  # tanh(x) / x, 1 at x = 0
     excess = (gamma - s[None, None, :] / speed[:, None, None]) * length  # attenuation and dispersion beyond the delay
-    log_sech_advanced = np.log(2.0) - excess - np.log1p(np.exp(-2.0 * x))
     return _Sections(
-        sech_advanced=np.exp(log_sech_advanced),
+        sech_advanced=2.0 * np.exp(-excess) / one_plus_e,
         z_tanh_ohm=z[:, None, :] * length * tc,
         y_tanh_siemens=y[:, None, :] * length * tc,
     )
@@ -618,17 +623,15 @@ def _junction_voltages(net: Network, name: str) -> tuple[np.ndarray, np.ndarray]
     if own_line >= 0:  # along the driver's line: outward to its end, inward to its trunk junction
         first, stop = topo.line_start[own_line], topo.line_start[own_line + 1]
         _outward(net.ratio_down[j + 1 - k_trunk : stop - k_trunk], v_j, v_junction[j + 1 : stop])
-        inward = np.cumprod(net.ratio_up[first - k_trunk : j + 1 - k_trunk][::-1], axis=0) * v_j
+        inward = np.empty((j + 1 - first, *v_j.shape), dtype=complex)
+        _outward(net.ratio_up[first - k_trunk : j + 1 - k_trunk][::-1], v_j, inward)
         v_junction[first:j] = inward[:-1][::-1]
         j = int(topo.line_junction[own_line])
         v_junction[j] = inward[-1]
     v_j = v_junction[j]
-    if j + 1 < k_trunk:
-        np.cumprod(net.ratio_right[j:], axis=0, out=v_trunk[j + 1 :])
-        v_trunk[j + 1 :] *= v_j
+    _outward(net.ratio_right[j:], v_j, v_trunk[j + 1 :])
     if j > 0:
-        np.cumprod(net.ratio_left[j - 1 :: -1], axis=0, out=v_trunk[j - 1 :: -1])
-        v_trunk[:j] *= v_j
+        _outward(net.ratio_left[j - 1 :: -1], v_j, v_trunk[j - 1 :: -1])
     for i in range(topo.line_junction.size):
         if i != own_line:
             first, stop = topo.line_start[i], topo.line_start[i + 1]
@@ -641,10 +644,13 @@ def _junction_voltages(net: Network, name: str) -> tuple[np.ndarray, np.ndarray]
 
 
 def _outward(ratios: np.ndarray, v_start: np.ndarray, out: np.ndarray) -> None:
-    """Voltages along a run of sections outward from a junction at v_start: out[i] = v_start prod(ratios[:i + 1])."""
-    if ratios.shape[0]:
-        np.cumprod(ratios, axis=0, out=out)
-        out *= v_start
+    """Voltages along a run of sections outward from a junction at v_start: out[i] = v_start prod(ratios[:i + 1]).
+    One product per section over whole (n_v, n_s) blocks: numpy's cumprod along the first axis walks the memory
+    across those blocks, several times slower on long Laplace grids."""
+    previous = v_start
+    for i in range(ratios.shape[0]):
+        np.multiply(previous, ratios[i], out=out[i])
+        previous = out[i]
 
 
 def probe_delays_s(net: Network, driver_names: tuple[str, ...], points: ProbePoints) -> np.ndarray:
