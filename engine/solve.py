@@ -368,8 +368,11 @@ class _Sections:
     y_tanh_siemens: np.ndarray  # tanh(gamma l) / Z0
 
 
-def _sections(z: np.ndarray, y: np.ndarray, s: np.ndarray, speed: np.ndarray, length_m: np.ndarray) -> _Sections:
-    """z, y: (n_v, n_s) per-metre Z', Y'; speed (n_v,) m/s; lengths (n_len,). With e = exp(-2 gamma l):
+def _sections(
+    z: np.ndarray, y: np.ndarray, s: np.ndarray, speed: np.ndarray, length_m: np.ndarray, cable_of: np.ndarray
+) -> _Sections:
+    """Terms of each variant, (n_v, n_len, n_s), from those of each distinct cable: z, y (n_c, n_s) per-metre Z',
+    Y'; speed (n_c,) m/s; lengths (n_len,); cable_of (n_v,) each variant's cable. With e = exp(-2 gamma l):
     tanh = (1 - e) / (1 + e) and sech(gamma l) exp(s l / v) = 2 exp(-(gamma - s / v) l) / (1 + e): two complex
     exponentials per value, neither of which grows large (|e| <= 1, and the excess over the delay is the section's
     attenuation)."""
@@ -381,11 +384,10 @@ def _sections(z: np.ndarray, y: np.ndarray, s: np.ndarray, speed: np.ndarray, le
     tc = np.ones_like(em)
     np.divide(-em / one_plus_e, x, out=tc, where=x != 0)  # tanh(x) / x, 1 at x = 0
     excess = (gamma - s[None, None, :] / speed[:, None, None]) * length  # attenuation and dispersion beyond the delay
-    return _Sections(
-        sech_advanced=2.0 * np.exp(-excess) / one_plus_e,
-        z_tanh_ohm=z[:, None, :] * length * tc,
-        y_tanh_siemens=y[:, None, :] * length * tc,
-    )
+    terms = (2.0 * np.exp(-excess) / one_plus_e, z[:, None, :] * length * tc, y[:, None, :] * length * tc)
+    if cable_of.size != z.shape[0] or np.any(cable_of != np.arange(cable_of.size)):
+        terms = tuple(t[cable_of] for t in terms)
+    return _Sections(*terms)
 
 
 @dataclass(frozen=True, slots=True)
@@ -485,9 +487,13 @@ def solve_network(
     kinds = branching(topo, var) if kinds is None else kinds
     s_arr = np.atleast_1d(np.asarray(s, dtype=complex))
     n_s = s_arr.size
-    z = np.stack([series_impedance_ohm_per_m(c, s_arr) for c in var.cables])  # (n_v, n_s)
-    y = np.stack([shunt_admittance_siemens_per_m(c, s_arr) for c in var.cables])
-    speed = np.array([propagation_velocity_m_per_s(c.velocity_factor) for c in var.cables])
+    # the cable's own terms once per distinct cable: variants that differ in their loads alone share them
+    cables = list(dict.fromkeys(var.cables))
+    cable_of = np.array([cables.index(c) for c in var.cables])  # (n_v,)
+    z = np.stack([series_impedance_ohm_per_m(c, s_arr) for c in cables])  # (n_c, n_s)
+    y = np.stack([shunt_admittance_siemens_per_m(c, s_arr) for c in cables])
+    speed_c = np.array([propagation_velocity_m_per_s(c.velocity_factor) for c in cables])
+    speed = speed_c[cable_of]
     n_v = speed.size
     k_count = topo.n_junctions
     k_trunk = topo.junction_position_m.size
@@ -495,7 +501,7 @@ def solve_network(
     # 1. branches: identical ones (same stub length and load in every variant) share one computation
     loads = [var.conductance_siemens, var.capacitance_f, var.series_rc_ohm, var.series_rc_f]
     stub_kind = kinds.stub_kind
-    stubs = _sections(z, y, s_arr, speed, kinds.stub_len_m)
+    stubs = _sections(z, y, s_arr, speed_c, kinds.stub_len_m, cable_of)
     g_k, c_k, rc_ohm_k, rc_f_k = (a[:, kinds.first] for a in loads)
     y_load = _load_admittance(g_k, c_k, rc_ohm_k, rc_f_k, s_arr)  # (n_v, n_kinds, n_s)
     zt_k = stubs.z_tanh_ohm[:, stub_kind]
@@ -511,7 +517,7 @@ def solve_network(
 
     # 2-3. sweeps along the lines, then along the trunk, with the voltage ratio across every section on the way
     seg_of = kinds.seg_of
-    seg = _sections(z, y, s_arr, speed, kinds.seg_len_m)
+    seg = _sections(z, y, s_arr, speed_c, kinds.seg_len_m, cable_of)
     sech = np.ascontiguousarray(np.moveaxis(seg.sech_advanced, 1, 0))  # (n_len, n_v, n_s)
     zt = np.ascontiguousarray(np.moveaxis(seg.z_tanh_ohm, 1, 0))
     yt = np.ascontiguousarray(np.moveaxis(seg.y_tanh_siemens, 1, 0))
