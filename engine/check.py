@@ -43,7 +43,8 @@ def check_plan(plan: BusPlan | dict[str, Any], *, simulate_advice: bool = True) 
     raises BusInputError. simulate_advice=False is the quick form for a verdict while typing (engine.advice.advise):
     the same verdict, advised plan, change list and spare capacity, without simulating the advised plan, and with
     the tolerance corners analysed only when the verdict needs them (engine.ruleset.run_rules, quick): when another
-    finding is tight or breaks already, receivers tight only at their worst corner read as holding."""
+    finding is tight or breaks already, receivers tight only at their worst corner read as holding. Nor does it
+    simulate a terminated bus without its terminators (a what-if finding that holds either way)."""
     if not isinstance(plan, BusPlan):
         plan = load_plan(plan)
     if not plan.is_one_bus:

@@ -71,7 +71,9 @@ def run_rules(bus: Bus, *, quick: bool = False) -> RuleRun:
 
     quick: the tolerance corners (engine.tolerance, the signal rule's tight band) are analysed only when the
     verdict needs them, when every other finding and every receiver's nominal waveform holds: a corner can only
-    make a holding receiver tight, so the verdict is always that of the full run."""
+    make a holding receiver tight, so the verdict is always that of the full run. Nor is a terminated bus
+    simulated again without its terminators (engine.rules.signal.confirm_termination_rule), a what-if that holds
+    whatever it shows."""
     simulation = simulate_bus(bus, tolerance=not quick)
     by_rule = {rule: rule(bus) for rule in RULES[:-1]}
     findings = [f for found in by_rule.values() for f in found]
@@ -86,7 +88,7 @@ def run_rules(bus: Bus, *, quick: bool = False) -> RuleRun:
         simulation = with_tolerance(bus, simulation)
     after_stubs = sum(1 for f in findings if f.rule_id in ("load.unit_loads", "load.driver", "stub.length"))
     findings[after_stubs:after_stubs] = check_branches(bus, simulation)
-    findings += check_signal_integrity(bus, simulation)
+    findings += check_signal_integrity(bus, simulation, what_if=not quick)
     return RuleRun(bus=bus, findings=tuple(findings), simulation=simulation)
 
 

@@ -18,10 +18,11 @@ DESCRIPTION = (
     "the status and every problem with its field, value and allowed range. POST /api/check gives the full "
     "check's verdict; it analyses the component tolerance corners only when that verdict needs them, so while "
     "another finding is tight or failing, a receiver that is tight only at its worst tolerance corner is listed on "
-    "the saved plan's page alone. Its answer holds the verdict and counts, the findings that do not hold with their "
-    "fixes, the spare capacity, the summary, the advice and the engine report of every finding of the plan; the "
-    "advised plan's own findings are left out (its verdict, counts and changes are given; a saved plan's page "
-    "twin has them)."
+    "the saved plan's page alone; nor does it simulate a terminated bus without its terminators (a what-if that "
+    "holds either way; its finding says it was not simulated). Its answer holds the verdict and counts, the "
+    "findings that do not hold with their fixes, the spare capacity, the summary, the advice and the engine "
+    "report of every finding of the plan; the advised plan's own findings are left out (its verdict, counts and "
+    "changes are given; a saved plan's page twin has them)."
 )
 PROBLEM_SCHEMA: dict[str, Any] = {
     "type": "object",

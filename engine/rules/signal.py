@@ -43,6 +43,11 @@ from pairline.engine.waveform import StepResponses, default_pattern, pattern_dur
 
 MAX_STUB_CONFIRMS = 8  # flagged stubs reported one by one; the rest summarised
 MAX_WATCHED = 8  # receivers judged in a second (what-if) simulation on large buses
+_WHAT_IF_LEFT_OUT = (
+    "Not simulated: the quick check (a verdict while typing) leaves out the bus simulated with its terminators "
+    "removed, a what-if that never moves the verdict of a bus that has them; the full check (a saved plan's page) "
+    "simulates it."
+)
 MAX_DRIVERS_ALL = 33  # every possible driver is simulated up to this many (32 transceivers + the driver)
 MAX_DRIVERS_SAMPLED = 12  # beyond, a sample of this many (drivers_to_simulate)
 PROBE_DRIVER_VALUES = 2048  # drivers x receivers whose edge responses are solved and held at once
@@ -184,11 +189,12 @@ def headline(j: SignalJudgement) -> tuple[str, float, float, str, str]:
     return "lowest sampled level", m.min_sample_v, th, "V", "min"
 
 
-def check_signal_integrity(bus: Bus, simulation: Simulation | None = None) -> list[Finding]:
+def check_signal_integrity(bus: Bus, simulation: Simulation | None = None, *, what_if: bool = True) -> list[Finding]:
     """Rules "signal.integrity" (one finding per receiver: BREAKS when its nominal waveform breaks for some driver,
     TIGHT when only its worst tolerance corner does), "signal.model" and "signal.tolerance" (what was assumed),
     and "signal.confirms" (stubs, termination); simulation: what simulate_bus(bus) returned, when the caller has
-    it already."""
+    it already. what_if=False leaves out the simulation of a terminated bus without its terminators
+    (confirm_termination_rule), which never moves the verdict."""
     sim = simulation if simulation is not None else simulate_bus(bus)
     primary = bus.plan.driver.name
     findings = []
@@ -258,7 +264,7 @@ def check_signal_integrity(bus: Bus, simulation: Simulation | None = None) -> li
     findings.append(tolerance_finding(sim.tolerance, bus.driver.rise_time_s))
     from_primary = {j.receiver: j for j, d in sim.worst if d == primary} or None
     findings += confirm_stub_rule(bus, from_primary, fixes_by_node)
-    findings.append(confirm_termination_rule(bus, from_primary))
+    findings.append(confirm_termination_rule(bus, from_primary, simulate=what_if))
     return findings
 
 
@@ -426,14 +432,33 @@ def _watch_list(bus: Bus, judged: dict[str, SignalJudgement] | None) -> list[str
     return watch
 
 
-def confirm_termination_rule(bus: Bus, judged: dict[str, SignalJudgement] | None = None) -> Finding:
+def confirm_termination_rule(
+    bus: Bus, judged: dict[str, SignalJudgement] | None = None, *, simulate: bool = True
+) -> Finding:
     """Rule "signal.confirms" for "termination.may_omit": the bus simulated without terminators.
 
     judged: the primary driver's judgements of the bus as laid out; on a bus of more than MAX_WATCHED
-    receivers the second simulation judges only the worst of those and the farthest two.
+    receivers the second simulation judges only the worst of those and the farthest two. With terminators fitted
+    that simulation is a what-if and the finding holds whatever it shows; simulate=False (the quick check) then
+    leaves it out and says so.
     """
     plan = bus.plan
     may_omit = line_may_stay_unterminated(bus)
+    if plan.terminations and not simulate:
+        return Finding(
+            rule_id="signal.confirms",
+            title="Unterminated-line rule: what-if not simulated in the quick check",
+            verdict=Verdict.HOLDS,
+            value=None,
+            limit=None,
+            unit="V",
+            limit_kind="none",
+            node=None,
+            criterion=_WHAT_IF_LEFT_OUT,
+            source=_SOURCE,
+            detail=_WHAT_IF_LEFT_OUT
+            + f" The rule says the line {'may stay unterminated' if may_omit else 'needs terminators'}.",
+        )
     if not plan.terminations:
         judged = judged if judged is not None else judge_bus(bus)
     else:

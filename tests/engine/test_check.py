@@ -354,3 +354,24 @@ def test_the_quick_check_keeps_the_full_checks_verdict_with_or_without_the_toler
     assert full.simulation.tolerance is not None and quick.simulation.tolerance is None
     note = next(f for f in quick.findings if f.rule_id == "signal.tolerance")
     assert "Not analysed" in note.detail
+
+
+def test_the_quick_check_leaves_out_the_what_if_without_terminators_and_says_so():
+    # The what-if (the bus simulated with its terminators removed) holds whatever it shows on a terminated bus, so
+    # the quick check leaves it out; a bus without terminators is judged as laid out, by both checks alike.
+    terminated = _slow_edges_doc(0.3)
+    full, quick = check_plan(terminated), check_plan(terminated, simulate_advice=False)
+    full_note = next(f for f in full.findings if f.rule_id == "signal.confirms" and "Unterminated" in f.title)
+    quick_note = next(f for f in quick.findings if f.rule_id == "signal.confirms" and "Unterminated" in f.title)
+    assert "with its terminators removed" in full_note.detail
+    assert quick_note.verdict is full_note.verdict is Verdict.HOLDS
+    assert "not simulated" in quick_note.title and "Not simulated" in quick_note.detail
+    assert full.verdict is quick.verdict
+    bare = terminated | {"terminations": []}
+    full, quick = check_plan(bare), check_plan(bare, simulate_advice=False)
+    as_laid_out = [
+        next(f for f in r.findings if f.rule_id == "signal.confirms" and "Unterminated" in f.title)
+        for r in (full, quick)
+    ]
+    assert as_laid_out[0] == as_laid_out[1]
+    assert "as laid out (no terminators)" in as_laid_out[0].detail
