@@ -58,7 +58,14 @@ from pairline.engine.metrics import (
     receiver_metrics,
 )
 from pairline.engine.solve import NetworkVariants, Topology, build_topology, with_cable
-from pairline.engine.transient import ACCURACY, StepResponses, edge_duration_s, step_responses, variant_step_responses
+from pairline.engine.transient import (
+    ACCURACY,
+    StepResponses,
+    edge_duration_s,
+    grid_index,
+    step_responses,
+    variant_step_responses,
+)
 from pairline.engine.units import si_format
 from pairline.engine.waveform import (
     default_pattern,
@@ -315,9 +322,8 @@ def _sampled_levels(
     shift = np.floor(u / t_bit).astype(int)
     u -= shift * t_bit
     n_s = n_bits - max(1, int(shift.max(initial=0)))
-    bit = np.arange(n_s)[None, :, None] + shift[:, None, :]  # (n_rx, n_s, n_tau) the bit each instant falls in
     at = np.arange(n_mem)[None, :, None] * t_bit + u[:, None, :]  # (n_rx, n_mem, n_tau)
-    k = np.clip(np.searchsorted(t, at, side="right") - 1, 0, t.size - 2)
+    k = grid_index(step.levels, at)
     w = np.clip((at - t[k]) / (t[k + 1] - t[k]), 0.0, 1.0)
     late = at > t[-1]
     flat = (k + np.arange(n_rx)[:, None, None] * t.size).reshape(n_rx, -1)  # into a variant's rows, flattened
@@ -329,9 +335,12 @@ def _sampled_levels(
         d0 = (rows[flat] - final).reshape(k.shape)
         d = d0 + ((rows[flat + 1] - final).reshape(k.shape) - d0) * w
         d = np.where(late, 0.0 if step.settled else (rows[t.size - 1 :: t.size, None] - final)[..., None], d)
-        wave = np.einsum("nm,rmj->rnj", toeplitz, d)  # (n_rx, n_bits, n_tau): the edges' sum in bit n'
+        wave = np.matmul(toeplitz, d)  # (n_rx, n_bits, n_tau): the edges' sum in bit n
         wave += level[None, :, None] * final[..., None]
-        driven = level[None, :n_s, None] * np.take_along_axis(wave, bit, axis=1)  # (n_rx, n_s, n_tau)
+        driven = np.empty((n_rx, n_s, tau_ui.shape[1]))  # bit n's instants, each read from the bit it falls in
+        for later in np.unique(shift):
+            np.copyto(driven, wave[:, later : later + n_s], where=(shift == later)[:, None, :])
+        driven *= level[None, :n_s, None]
         window_min = driven.min(axis=2)
         centre = driven[..., 1]
         if ones.any() and zeros.any():

@@ -430,6 +430,20 @@ def _grid_times(levels: "list[tuple[float, int, int, int]] | tuple[tuple[float, 
     return np.concatenate([np.arange(first, end) * dt for dt, _, first, end in levels])
 
 
+def grid_index(levels: "tuple[tuple[float, int, int, int], ...]", time_s: np.ndarray) -> np.ndarray:
+    """Per local time, the index of the last sample of the grid `levels` makes (StepResponses.levels) at or before
+    it, clipped to [0, n_t - 2]: np.searchsorted(time_s, t, "right") - 1 on that grid, worked out from each level's
+    spacing instead of searched (a level's samples are k dt, k = first .. end - 1; a time on a sample may land
+    on the one before it, with interpolation weight 1)."""
+    dt = np.array([lv[0] for lv in levels])
+    first = np.array([lv[2] for lv in levels])
+    count = np.array([lv[3] - lv[2] for lv in levels])
+    offset = np.concatenate([[0], np.cumsum(count)[:-1]])
+    level = np.clip(np.searchsorted(first * dt, time_s, side="right") - 1, 0, dt.size - 1)
+    within = np.clip(np.floor(time_s / dt[level]) - first[level], 0, count[level] - 1)
+    return np.asarray(np.clip(offset[level] + within.astype(np.int64), 0, int(count.sum()) - 2))
+
+
 def variant_step_responses(
     bus: Bus,
     grid: StepResponses,

@@ -5,6 +5,7 @@ import pytest
 from pairline.engine.bus import build_bus
 from pairline.engine.plan import BusInputError, load_plan
 from pairline.engine.solve import dc_transfer, driver_pin_probe, junction_probe, node_probe
+from pairline.engine.transient import grid_index
 from pairline.engine.units import SPEED_OF_LIGHT_M_PER_S
 from pairline.engine.waveform import (
     edge_duration_s,
@@ -252,3 +253,22 @@ def test_the_plans_probes_show_a_single_step_where_it_asks():
     for k, x_m in enumerate((0.0, 40.0, 100.0)):
         expected = _ramp(waves.time_s, _delay_s(x_m), 1.0)
         np.testing.assert_allclose(waves.v_diff_v[k], expected, atol=0.002, err_msg=waves.receiver_names[k])  # volts
+
+
+def test_a_time_is_placed_on_the_grid_as_a_sorted_search_places_it():
+    # Reference: numpy's searchsorted on the grid's own times, the last sample at or before each time. A time that
+    # lies on a sample may be placed on the sample before it (then read with interpolation weight 1); elsewhere
+    # the two agree exactly.
+    bus = probed_line(
+        source_ohm=0.0, far_ohm=120.0, length_m=1200.0, rise_s=2e-9, cable={"class_key": "pair-24awg-120"}
+    )
+    step = step_responses(bus, max_time_s=2e-3)
+    assert len(step.levels) > 3  # fine levels, the first, and later coarser ones
+    t = step.time_s
+    times = np.random.default_rng(7).uniform(-1e-6, 1.2 * t[-1], 50_000)
+    searched = np.clip(np.searchsorted(t, times, side="right") - 1, 0, t.size - 2)
+    placed = grid_index(step.levels, times)
+    off = placed != searched
+    assert np.all(np.isclose(times[off], t[searched[off]], rtol=1e-12, atol=0.0)), times[off]
+    on_samples = grid_index(step.levels, t[1:-1])
+    assert np.all((on_samples == np.arange(1, t.size - 1)) | (on_samples == np.arange(0, t.size - 2)))
