@@ -211,7 +211,13 @@ class _Levels:
                 spectra[..., part] = probe_spectra(net, group, self.points, advanced=True)[self.network_of]
             spectra -= self.front[:, d0 : d0 + len(group), :, None]
             spectra *= x_edge[:, None, None, :]
-            out[:, d0 : d0 + len(group)] = np.fft.irfft(spectra, n=n, axis=-1)[..., lo:hi] * gain
+            # a few probes at a time: the transform's full window of samples is held for those only
+            per_block = max(1, SPECTRUM_BUDGET_VALUES // (n * n_v * len(group)))
+            for p0 in range(0, n_p, per_block):
+                block = slice(p0, p0 + per_block)
+                out[:, d0 : d0 + len(group), block] = (
+                    np.fft.irfft(spectra[:, :, block], n=n, axis=-1)[..., lo:hi] * gain
+                )
         return out
 
     def total(self, remainder: np.ndarray, u_s: np.ndarray) -> np.ndarray:
