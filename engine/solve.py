@@ -353,10 +353,12 @@ def _load_admittance(g: np.ndarray, c: np.ndarray, rc_ohm: np.ndarray, rc_f: np.
     """Admittance of loads, (n_v, n_loads, n_s): G + s C, plus s C_t / (1 + s R_t C_t) for RC terminators."""
     s_row = s[None, None, :]
     y = g[..., None] + c[..., None] * s_row
-    rc = rc_f[..., None]
-    with np.errstate(invalid="ignore", divide="ignore"):
-        series = s_row * rc / (1.0 + s_row * rc_ohm[..., None] * rc)
-    return np.asarray(y + np.where(rc > 0, series, 0.0))
+    if np.any(rc_f > 0):
+        rc = rc_f[..., None]
+        with np.errstate(invalid="ignore", divide="ignore"):
+            series = s_row * rc / (1.0 + s_row * rc_ohm[..., None] * rc)
+        y += np.where(rc > 0, series, 0.0)
+    return np.asarray(y)
 
 
 @dataclass(frozen=True, slots=True)

@@ -195,7 +195,8 @@ class _Levels:
         f = np.arange(n // 2 + 1) / window
         s = DAMPING / window + 2j * np.pi * f
         weight = np.exp(-0.5 * (f * 2.0 * dt / lowpass) ** 2)
-        x_edge = np.stack([edge_spectrum(s, self.v_oc, t) * weight for t in self.t_edges])  # (n_v, n_s)
+        edges, edge_of = np.unique(self.t_edges, return_inverse=True)
+        x_edge = np.stack([edge_spectrum(s, self.v_oc, t) * weight for t in edges])[edge_of.ravel()]  # (n_v, n_s)
         k = np.arange(lo, hi)
         blur_s = dt / (np.pi * lowpass)  # the low-pass of the damped signal also scales it by exp((c blur)^2 / 2)
         gain = np.exp(DAMPING * k / n - 0.5 * (DAMPING / window * blur_s) ** 2) / dt
