@@ -19,7 +19,9 @@ from pairline.server.cost import check_work, estimated_check_s
 TIMEOUT_S = 300
 CHILD = """
 import json, sys, time
+from pairline.server.allocator import keep_freed_memory
 from pairline.server.jobs import checked_plan_page
+keep_freed_memory()  # as a check worker runs
 doc = json.loads(sys.stdin.read())
 start = time.perf_counter()
 checked_plan_page(doc, None, None, {}, None)

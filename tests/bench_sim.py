@@ -1,4 +1,4 @@
-"""Simulator benchmark (a script, not a test): PYTHONPATH=. python tests/bench_sim.py [--quick]
+"""Simulator benchmark (a script, not a test): python tests/bench_sim.py [--quick]   (from the repository root)
 
 Times, on invented buses of 32, 128 and 256 receivers (constant-R cable, so that ngspice models the same line):
 - full check: engine.check.check_plan, every rule including the signal rule (its waveforms for every driver, the
@@ -38,7 +38,8 @@ from pairline.engine.tolerance import analyse_tolerances
 from pairline.engine.waveform import step_responses
 from pairline.server.allocator import keep_freed_memory
 
-from tests.engine.spice_netlist import ngspice_path, step_waveforms
+sys.path.insert(0, str(Path(__file__).resolve().parents[1]))  # run as a script: the repository root
+from tests.engine.spice_netlist import ngspice_path, step_waveforms  # noqa: E402
 
 # Constant-R cable (no skin effect or dielectric loss) so that ngspice models the same line.
 CABLE = {"class_key": None, "z0_ohm": 120.0, "velocity_factor": 0.78, "resistance_ohm_per_m": 0.0842}
