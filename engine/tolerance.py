@@ -338,8 +338,8 @@ def _sampled_levels(
         wave = np.matmul(toeplitz, d)  # (n_rx, n_bits, n_tau): the edges' sum in bit n
         wave += level[None, :, None] * final[..., None]
         driven = np.empty((n_rx, n_s, tau_ui.shape[1]))  # bit n's instants, each read from the bit it falls in
-        for later in np.unique(shift):
-            np.copyto(driven, wave[:, later : later + n_s], where=(shift == later)[:, None, :])
+        for later in np.unique(shift):  # (an instant before its bit's start reads bit n - 1; bit -1 is the last)
+            np.copyto(driven, np.take(wave, np.arange(later, later + n_s), axis=1), where=(shift == later)[:, None, :])
         driven *= level[None, :n_s, None]
         window_min = driven.min(axis=2)
         centre = driven[..., 1]
