@@ -35,7 +35,7 @@ from pairline.engine.segments import plan_parts
 from pairline.engine.tolerance import tolerance_ranges
 from pairline.engine.units import delay_s, si_format
 
-SECONDS_PER_UNIT = 5.1e-7  # measured lower bound, see the module docstring
+SECONDS_PER_UNIT = 7.6e-8  # measured lower bound, see the module docstring
 DEFAULT_PATTERN_BITS = 127  # the longest built-in pseudo-random pattern (PRBS-7)
 EDGE_POINTS_PER_EDGE = 8  # edge response points per 0-100 % edge time
 FIRST_LEVEL_EDGES = 512  # edge times the finest time step covers at most

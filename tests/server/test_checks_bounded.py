@@ -48,7 +48,7 @@ def costliest_plan() -> dict:
     }
 
 
-def costly_plan(nodes: int = 64) -> dict:
+def costly_plan(nodes: int = 256) -> dict:
     """The costliest plan cut to a few nodes, spread over the same trunk: over the limit, but each of fewer bits,
     fewer transceivers or fewer nodes alone brings its estimate within it."""
     doc = costliest_plan()
@@ -80,7 +80,7 @@ def test_the_costliest_plan_is_refused_before_simulating_naming_what_to_change(c
     fields = {p["field"]: p for p in client.post("/api/check", json=costly_plan()).json()["problems"]}
     assert fields["test_pattern"]["value"] == 512 and fields["test_pattern"]["allowed"]["max_length"] < 512
     assert fields["nodes.0.may_drive"]["value"] == 32 and fields["nodes.0.may_drive"]["allowed"]["max"] < 32
-    assert fields["nodes"]["allowed"]["max_length"] < 64
+    assert fields["nodes"]["allowed"]["max_length"] < 256
     # the editor shows the same refusal as form errors beside the inputs, keeping what was typed
     saved = client.post("/api/plans", json=costly_plan())
     assert_problem(saved, field="test_pattern")
@@ -162,8 +162,8 @@ def test_the_editor_shows_a_refusal_beside_the_inputs(client, monkeypatch):
     form |= {"driver.device.class_key": "custom", "driver.device.rise_time_s": "0.5 ns"}
     form |= {"bit_rate_bps": "50", "trunk_length_m": "4000", "terminations.1.position_m": "4000"}
     form |= {"driver.device.open_circuit_v": "5", "driver.device.source_ohm": "30"}
-    rows = {f"nodes.{i}.{k}": v for i in range(5, 64) for k, v in (("name", f"x{i}"), ("position_m", str(i * 60)))}
-    roles = {f"nodes.{i}.may_drive": "true" if i < 32 else "false" for i in range(64)}
+    rows = {f"nodes.{i}.{k}": v for i in range(5, 256) for k, v in (("name", f"x{i}"), ("position_m", str(i * 15)))}
+    roles = {f"nodes.{i}.may_drive": "true" if i < 32 else "false" for i in range(256)}
     monkeypatch.setattr(client.app.state.pool, "run", no_worker)
     resp = client.post("/plans", data=form | rows | roles | {"action": "check"})
     assert resp.status_code == 422
