@@ -77,6 +77,7 @@ from pairline.engine.waveform import (
 
 VARIANTS_PER_BATCH = 32  # variants solved at once, at most
 BATCH_VALUES = 4_000_000  # variant x probe x sample values of the edge responses held at once
+SAMPLED_VALUES = 1_000_000  # receiver x bit x instant values of the window reading held at once
 INSTANT_TOLERANCE = ACCURACY  # of each probe's peak-to-peak: interpolation between window instants
 GENERIC_CABLE = CableClass("custom", "", 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, "")  # its default tolerances
 
@@ -309,7 +310,8 @@ def _sampled_levels(
 ) -> np.ndarray:
     """Lowest level, bits below the threshold and eye height, (3, n_variants, n_rx), of the step's variants
     `variants` (its probes are variant-major), receiver r read with its start edge at phase_s[r] (module
-    docstring). The instants are located on the step's grid once for all these variants."""
+    docstring). The instants are located on the step's grid once for all these variants, a block of receivers at a
+    time (SAMPLED_VALUES)."""
     n_rx = tau_ui.shape[0]
     b = np.frombuffer(bits.encode(), dtype=np.uint8) == ord("1")
     level = np.where(b, 1.0, -1.0)
@@ -322,33 +324,41 @@ def _sampled_levels(
     shift = np.floor(u / t_bit).astype(int)
     u -= shift * t_bit
     n_s = n_bits - max(1, int(shift.max(initial=0)))
-    at = np.arange(n_mem)[None, :, None] * t_bit + u[:, None, :]  # (n_rx, n_mem, n_tau)
-    k = grid_index(step.levels, at)
-    w = np.clip((at - t[k]) / (t[k + 1] - t[k]), 0.0, 1.0)
-    late = at > t[-1]
-    flat = (k + np.arange(n_rx)[:, None, None] * t.size).reshape(n_rx, -1)  # into a variant's rows, flattened
     ones, zeros = level[:n_s] > 0, level[:n_s] < 0
     out = np.empty((3, variants.size, n_rx))
-    for i, v in enumerate(variants):
-        final = step.v_final_v[0, v * n_rx : (v + 1) * n_rx, None]
-        rows = step.v_diff_v[0, v * n_rx : (v + 1) * n_rx].ravel()  # (n_rx * n_t,); D = rows - final
-        d0 = (rows[flat] - final).reshape(k.shape)
-        d = d0 + ((rows[flat + 1] - final).reshape(k.shape) - d0) * w
-        d = np.where(late, 0.0 if step.settled else (rows[t.size - 1 :: t.size, None] - final)[..., None], d)
-        wave = np.matmul(toeplitz, d)  # (n_rx, n_bits, n_tau): the edges' sum in bit n
-        wave += level[None, :, None] * final[..., None]
-        driven = np.empty((n_rx, n_s, tau_ui.shape[1]))  # bit n's instants, each read from the bit it falls in
-        for later in np.unique(shift):  # (an instant before its bit's start reads bit n - 1; bit -1 is the last)
-            np.copyto(driven, np.take(wave, np.arange(later, later + n_s), axis=1), where=(shift == later)[:, None, :])
-        driven *= level[None, :n_s, None]
-        window_min = driven.min(axis=2)
-        centre = driven[..., 1]
-        if ones.any() and zeros.any():
-            out[2, i] = centre[:, ones].min(axis=1) + centre[:, zeros].min(axis=1)
-        else:
-            out[2, i] = 2.0 * centre.min(axis=1)
-        out[0, i] = window_min.min(axis=1)
-        out[1, i] = np.count_nonzero(window_min < threshold_v, axis=1)
+    per_block = max(1, SAMPLED_VALUES // (n_mem * tau_ui.shape[1]))  # receivers whose instants are held at once
+    for r0 in range(0, n_rx, per_block):
+        block = slice(r0, min(n_rx, r0 + per_block))
+        n_b = block.stop - r0
+        at = np.arange(n_mem)[None, :, None] * t_bit + u[block, None, :]  # (n_b, n_mem, n_tau)
+        k = grid_index(step.levels, at)
+        w = np.clip((at - t[k]) / (t[k + 1] - t[k]), 0.0, 1.0)
+        late = at > t[-1]
+        flat = (k + np.arange(n_b)[:, None, None] * t.size).reshape(n_b, -1)  # into a variant's rows, flattened
+        for i, v in enumerate(variants):
+            probes = slice(v * n_rx + r0, v * n_rx + block.stop)
+            final = step.v_final_v[0, probes, None]
+            rows = step.v_diff_v[0, probes].ravel()  # (n_b * n_t,); D = rows - final
+            d0 = (rows[flat] - final).reshape(k.shape)
+            d = d0 + ((rows[flat + 1] - final).reshape(k.shape) - d0) * w
+            d = np.where(late, 0.0 if step.settled else (rows[t.size - 1 :: t.size, None] - final)[..., None], d)
+            wave = np.matmul(toeplitz, d)  # (n_b, n_bits, n_tau): the edges' sum in bit n
+            wave += level[None, :, None] * final[..., None]
+            driven = np.empty((n_b, n_s, tau_ui.shape[1]))  # bit n's instants, each read from the bit it falls in
+            for later in np.unique(
+                shift[block]
+            ):  # (an instant before its bit's start reads bit n - 1; bit -1: the last)
+                where = (shift[block] == later)[:, None, :]
+                np.copyto(driven, np.take(wave, np.arange(later, later + n_s), axis=1), where=where)
+            driven *= level[None, :n_s, None]
+            window_min = driven.min(axis=2)
+            centre = driven[..., 1]
+            if ones.any() and zeros.any():
+                out[2, i, block] = centre[:, ones].min(axis=1) + centre[:, zeros].min(axis=1)
+            else:
+                out[2, i, block] = 2.0 * centre.min(axis=1)
+            out[0, i, block] = window_min.min(axis=1)
+            out[1, i, block] = np.count_nonzero(window_min < threshold_v, axis=1)
     return out
 
 

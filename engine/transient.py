@@ -479,14 +479,14 @@ def variant_step_responses(
     v_final = v_oc * ends.settled[network_of]  # (n_v, 1, n_p)
     start, front = ends.delay_s[network_of], ends.front[network_of]
     levels = _Levels(bus, topo, names, points, front, t_edges, grid_edge, kinds, variants, network_of)
-    values = np.concatenate(
-        [
-            levels.total(levels.remainder(dt, n, first, end), np.arange(first, end) * dt)
-            for dt, n, first, end in grid.levels
-        ],
-        axis=-1,
-    )  # (n_v, 1, n_p, n_t)
     n_v, n_p = t_edges.size, len(chosen)
+    values = np.empty((n_v, 1, n_p, sum(end - first for _, _, first, end in grid.levels)))  # (n_v, 1, n_p, n_t)
+    at = 0
+    for dt, n, first, end in grid.levels:  # each level written in place: no second copy of the whole
+        values[..., at : at + end - first] = levels.total(
+            levels.remainder(dt, n, first, end), np.arange(first, end) * dt
+        )
+        at += end - first
     return replace(
         grid,
         time_s=_grid_times(grid.levels),
