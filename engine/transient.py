@@ -46,7 +46,7 @@ is coarsened to fit a sample count, only split when it would not fit in memory):
 Every sample of a level is kept where that level is used: finest first, each coarser one after the finer ends.
 """
 
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, replace
 
 import numpy as np
@@ -261,6 +261,18 @@ def _relative(error_v: np.ndarray, ptp: np.ndarray) -> np.ndarray:
     return np.asarray((error_v / ptp[..., None]).max(axis=(0, 1)))
 
 
+def _worst_relative_per_time(error: Callable[[np.ndarray], np.ndarray], x: np.ndarray, ptp: np.ndarray) -> np.ndarray:
+    """_relative(error(x), ptp), (n_t,), worked out a block of probes at a time (SPECTRUM_BUDGET_VALUES), so the
+    error's transforms and temporaries hold those probes only."""
+    per_block = max(1, SPECTRUM_BUDGET_VALUES // max(1, x.shape[-1]))
+    worst = np.zeros(x.shape[-1])
+    for d in range(x.shape[0]):
+        for p0 in range(0, x.shape[1], per_block):
+            block = (slice(d, d + 1), slice(p0, p0 + per_block))
+            np.maximum(worst, _relative(error(x[block]), ptp[block]), out=worst)
+    return worst
+
+
 def _finer_levels(
     levels: _Levels, x: np.ndarray, dt0: float, dt_min: float, ptp: np.ndarray, budget: int
 ) -> tuple[list[tuple[float, int, np.ndarray]], float]:
@@ -274,8 +286,13 @@ def _finer_levels(
     the level's own interpolation error."""
     t_edge = levels.t_edge
     fine: list[tuple[float, int, np.ndarray]] = []
-    doubling = _coarsening_error(x, dt0, np.sqrt(3.0) * _blur_s(dt0, t_edge), dt0) - _bend(x, dt0, dt0)
-    need = _relative(2.0 * doubling + _bend(x, dt0, dt0), ptp) > ACCURACY
+    blur = np.sqrt(3.0) * _blur_s(dt0, t_edge)
+
+    def first_level_error(xb: np.ndarray) -> np.ndarray:
+        bend = _bend(xb, dt0, dt0)
+        return np.asarray(2.0 * (_coarsening_error(xb, dt0, blur, dt0) - bend) + bend)
+
+    need = _worst_relative_per_time(first_level_error, x, ptp) > ACCURACY
     dt, need_t, coarse_x = dt0, np.arange(x.shape[-1]) * dt0, x
     busy_until = float(need_t[np.flatnonzero(need)[-1]]) if need.any() else 0.0
     while need.any() and dt > dt_min * (1.0 + 1e-9):
@@ -402,7 +419,12 @@ def step_responses(
         dt_next = 2.0 * TAIL_FACTOR * end / LATER_SAMPLES
         while dt_next > dt * (1.0 + 1e-9):
             extra = np.sqrt(max(_blur_s(dt_next, t_edge) ** 2 - _blur_s(dt, t_edge) ** 2, 0.0))
-            if _relative(_coarsening_error(x[..., late], dt, extra, dt_next), ptp).max() <= ACCURACY:
+
+            def coarsened(xb: np.ndarray, dt: float = dt, extra: float = extra, dt_next: float = dt_next) -> np.ndarray:
+                return _coarsening_error(xb, dt, extra, dt_next)
+
+            coarser = _worst_relative_per_time(coarsened, x[..., late], ptp)
+            if coarser.max(initial=0.0) <= ACCURACY:
                 break
             dt_next /= 2.0
         # at least doubling the span within the memory budget, even where that is coarser than the check asked
