@@ -8,8 +8,9 @@ bus took 9-13 ms with the defaults and 5-6 ms with the settings below (tests/ben
 
 keep_freed_memory() raises the mmap threshold to 32 MiB (larger arrays are still mapped alone and returned when
 freed), stops trimming the heap, and pads each heap extension a little, so a process reuses the pages it has
-touched: three checks of a sample bus in a row fault in about 9 000 pages with the defaults and about 50 so. What it holds then stays near its peak: a check worker's address-space limit
-(server.workers) already bounds that peak, and the pad is small beside the limit.
+touched: three checks of a sample bus in a row fault in about 9 000 pages with the defaults and about 50 so.
+What a process holds then stays near its peak: a check worker's address-space limit (server.workers) already
+bounds that peak, and the pad is small beside the limit.
 
 Process settings, not engine code: the check workers and the command line call it at start; on a C library
 without mallopt (not glibc) it does nothing.

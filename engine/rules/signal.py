@@ -34,7 +34,7 @@ from pairline.engine.fixes import ComputedFix, SignalJudgement, compute_fixes, j
 from pairline.engine.metrics import ReceiverMetrics, SampledLevels
 from pairline.engine.rules.cable_ends import end_name, required_ends_m, terminator_value_ohm
 from pairline.engine.rules.margins import band_verdict
-from pairline.engine.rules.signal_model import model_finding, tolerance_finding
+from pairline.engine.rules.signal_model import left_out_finding, model_finding, tolerance_finding
 from pairline.engine.rules.stubs import check_stubs
 from pairline.engine.rules.unterminated import line_may_stay_unterminated
 from pairline.engine.tolerance import ReceiverTolerance, ToleranceReport, analyse_tolerances
@@ -445,19 +445,12 @@ def confirm_termination_rule(
     plan = bus.plan
     may_omit = line_may_stay_unterminated(bus)
     if plan.terminations and not simulate:
-        return Finding(
-            rule_id="signal.confirms",
-            title="Unterminated-line rule: what-if not simulated in the quick check",
-            verdict=Verdict.HOLDS,
-            value=None,
-            limit=None,
-            unit="V",
-            limit_kind="none",
-            node=None,
-            criterion=_WHAT_IF_LEFT_OUT,
-            source=_SOURCE,
-            detail=_WHAT_IF_LEFT_OUT
-            + f" The rule says the line {'may stay unterminated' if may_omit else 'needs terminators'}.",
+        return left_out_finding(
+            "signal.confirms",
+            "Unterminated-line rule: what-if not simulated in the quick check",
+            _WHAT_IF_LEFT_OUT,
+            _SOURCE,
+            f" The rule says the line {'may stay unterminated' if may_omit else 'needs terminators'}.",
         )
     if not plan.terminations:
         judged = judged if judged is not None else judge_bus(bus)

@@ -80,22 +80,30 @@ def model_finding(bus: Bus) -> Finding:
     )
 
 
+def left_out_finding(rule_id: str, title: str, why: str, source: str, detail: str = "") -> Finding:
+    """A finding for an analysis the quick check leaves out because it cannot move the verdict: it holds, has no
+    value, and says why (`why`, then `detail`)."""
+    return Finding(
+        rule_id=rule_id,
+        title=title,
+        verdict=Verdict.HOLDS,
+        value=None,
+        limit=None,
+        unit="V",
+        limit_kind="none",
+        node=None,
+        criterion=why,
+        source=source,
+        detail=why + detail,
+    )
+
+
 def tolerance_finding(report: ToleranceReport | None, rise_time_s: float) -> Finding:
     """Rule "signal.tolerance": the ranges of the worst case and the tolerance that dominates; or, when the
     tolerances were not analysed (engine.ruleset.run_rules, quick), that they were not."""
     if report is None:
-        return Finding(
-            rule_id="signal.tolerance",
-            title="Worst case over component tolerances",
-            verdict=Verdict.HOLDS,
-            value=None,
-            limit=None,
-            unit="V",
-            limit_kind="none",
-            node=None,
-            criterion=_NOT_ANALYSED,
-            source=_TOLERANCE_SOURCE,
-            detail=_NOT_ANALYSED,
+        return left_out_finding(
+            "signal.tolerance", "Worst case over component tolerances", _NOT_ANALYSED, _TOLERANCE_SOURCE
         )
     ranges = []
     for r in report.ranges:
