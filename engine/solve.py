@@ -457,8 +457,8 @@ class Network:
     stub_y_tanh_siemens: np.ndarray  # (n_kinds, n_v, n_s) tanh(gamma l) / Z0
     branch_y: np.ndarray  # (n_kinds, n_v, n_s) admittance into each kind of branch when passive
     y_shunt: np.ndarray  # (K, n_v, n_s)
-    y_left: np.ndarray  # (K, n_v, n_s) looking left into the trunk, own shunt excluded
-    y_right: np.ndarray  # (K, n_v, n_s)
+    y_left: np.ndarray  # (K_t, n_v, n_s) looking left into the trunk, own shunt excluded; rows the drivers need
+    y_right: np.ndarray  # (K_t, n_v, n_s)
     ratio_right: np.ndarray  # (K - 1, n_v, n_s) V_{k+1} / V_k exp(s l_k / v), driver on the left of segment k
     ratio_left: np.ndarray  # (K - 1, n_v, n_s) V_k / V_{k+1} exp(s l_k / v), driver on the right
     rx_stub: np.ndarray  # (n_kinds, n_v, n_s) V_load / V_junction exp(s l_stub / v)
@@ -545,8 +545,11 @@ def solve_network(
             else:
                 line_y[i] = admittance
         y_shunt[topo.line_junction[i]] += line_y[i]
-    y_left = np.zeros((k_trunk, n_v, n_s), dtype=complex)
-    y_right = np.zeros((k_trunk, n_v, n_s), dtype=complex)
+    # rows the drivers need are filled by the sweeps below (the others are never read); the ends see nothing
+    y_left = np.empty((k_trunk, n_v, n_s), dtype=complex)
+    y_right = np.empty((k_trunk, n_v, n_s), dtype=complex)
+    y_left[0] = 0.0
+    y_right[-1] = 0.0
     ratio_left = np.empty((k_trunk - 1, n_v, n_s), dtype=complex)
     ratio_right = np.empty((k_trunk - 1, n_v, n_s), dtype=complex)
     beyond = np.empty((n_v, n_s), dtype=complex)
