@@ -325,7 +325,7 @@ def run_netlist(netlist: str, receiver_names: tuple[str, ...], timeout_s: float 
     v = data[:, 1:].T
     # ngspice may repeat a time point at breakpoints; keep the last value of each.
     keep = np.append(np.diff(time_s) > 0.0, True)
-    found = re.search(r"Transient time\s*=\s*([0-9.eE+-]+)", proc.stdout)
+    found = re.search(r"Transient (?:analysis )?time\s*=\s*([0-9.eE+-]+)", proc.stdout + proc.stderr)
     analysis_s = float(found.group(1)) if found else float("nan")
     return SpiceWaveforms(time_s[keep], receiver_names, v[:, keep], netlist, elapsed_s, analysis_s)
 
