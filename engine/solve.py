@@ -720,7 +720,7 @@ class SettledAndFront:
 
     settled: np.ndarray  # V_probe / V_oc once settled (the DC solve, s = 0)
     delay_s: np.ndarray  # geometric path delay (probe_delays_s)
-    front: np.ndarray  # amplitude of the wave front (front_gain)
+    front: np.ndarray  # amplitude of the wave front (module docstring)
 
 
 def settled_and_front(
