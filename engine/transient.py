@@ -48,6 +48,7 @@ Every sample of a level is kept where that level is used: finest first, each coa
 
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, replace
+from functools import partial
 
 import numpy as np
 from pairline.engine.bus import Bus
@@ -419,10 +420,7 @@ def step_responses(
         dt_next = 2.0 * TAIL_FACTOR * end / LATER_SAMPLES
         while dt_next > dt * (1.0 + 1e-9):
             extra = np.sqrt(max(_blur_s(dt_next, t_edge) ** 2 - _blur_s(dt, t_edge) ** 2, 0.0))
-
-            def coarsened(xb: np.ndarray, dt: float = dt, extra: float = extra, dt_next: float = dt_next) -> np.ndarray:
-                return _coarsening_error(xb, dt, extra, dt_next)
-
+            coarsened = partial(_coarsening_error, dt_s=dt, extra_blur_s=extra, dt_read_s=dt_next)
             coarser = _worst_relative_per_time(coarsened, x[..., late], ptp)
             if coarser.max(initial=0.0) <= ACCURACY:
                 break
