@@ -565,7 +565,7 @@ def build_parser() -> argparse.ArgumentParser:
 def main(argv: Sequence[str] | None = None) -> int:
     """Entry point of the `pairline` command; returns the exit status."""
     args = build_parser().parse_args(argv)
-    keep_freed_memory()  # a check runs in this process
+    keep_freed_memory()  # the commands check in this process (serve's check workers set it themselves)
     run: Command = args.run
     return run(args, sys.stdout, sys.stderr)
 
