@@ -189,8 +189,9 @@ class _Levels:
         sizes = (5 * topo.n_junctions + 3 * topo.branch_stub_m.size) * n_u
         self.points_per_solve = max(16, NETWORK_BUDGET_VALUES // sizes)
 
-    def remainder(self, dt: float, n: int, lo: int, hi: int) -> np.ndarray:
-        """Remainder samples k dt for k in [lo, hi), (n_v, n_d, n_p, hi - lo); hi <= n // 2 + 1."""
+    def remainder(self, dt: float, n: int, lo: int, hi: int, out: np.ndarray | None = None) -> np.ndarray:
+        """Remainder samples k dt for k in [lo, hi), (n_v, n_d, n_p, hi - lo); hi <= n // 2 + 1. out: where to
+        write them (a view of the caller's array), else a new array."""
         lowpass = lowpass_fraction(dt, self.t_edge)
         window = n * dt
         f = np.arange(n // 2 + 1) / window
@@ -202,7 +203,7 @@ class _Levels:
         blur_s = dt / (np.pi * lowpass)  # the low-pass of the damped signal also scales it by exp((c blur)^2 / 2)
         gain = np.exp(DAMPING * k / n - 0.5 * (DAMPING / window * blur_s) ** 2) / dt
         n_v, n_p = self.t_edges.size, len(self.points.probes)
-        out = np.empty((n_v, len(self.names), n_p, hi - lo))
+        out = np.empty((n_v, len(self.names), n_p, hi - lo)) if out is None else out
         per_pass = max(1, SPECTRUM_BUDGET_VALUES // max(1, s.size * n_p * n_v))
         for d0 in range(0, len(self.names), per_pass):
             group = self.names[d0 : d0 + per_pass]
@@ -223,8 +224,15 @@ class _Levels:
         return out
 
     def total(self, remainder: np.ndarray, u_s: np.ndarray) -> np.ndarray:
+        return np.asarray(remainder + self._front_ramp(u_s))
+
+    def add_front(self, remainder: np.ndarray, u_s: np.ndarray) -> None:
+        """total() in place."""
+        remainder += self._front_ramp(u_s)
+
+    def _front_ramp(self, u_s: np.ndarray) -> np.ndarray:
         ramp = np.clip(u_s[None, :] / self.t_edges[:, None], 0.0, 1.0)  # (n_v, n_t)
-        return np.asarray(remainder + self.v_oc * self.front[..., None] * ramp[:, None, None, :])
+        return np.asarray(self.v_oc * self.front[..., None] * ramp[:, None, None, :])
 
 
 def _blur_s(dt_s: float, t_edge_s: float) -> float:
@@ -503,9 +511,9 @@ def variant_step_responses(
     values = np.empty((n_v, 1, n_p, sum(end - first for _, _, first, end in grid.levels)))  # (n_v, 1, n_p, n_t)
     at = 0
     for dt, n, first, end in grid.levels:  # each level written in place: no second copy of the whole
-        values[..., at : at + end - first] = levels.total(
-            levels.remainder(dt, n, first, end), np.arange(first, end) * dt
-        )
+        level = values[..., at : at + end - first]
+        levels.remainder(dt, n, first, end, out=level)
+        levels.add_front(level, np.arange(first, end) * dt)
         at += end - first
     return replace(
         grid,
