@@ -335,6 +335,7 @@ def _sampled_levels(
         w = np.clip((at - t[k]) / (t[k + 1] - t[k]), 0.0, 1.0)
         late = at > t[-1]
         flat = (k + np.arange(n_b)[:, None, None] * t.size).reshape(n_b, -1)  # into a variant's rows, flattened
+        shift_b = shift[block]
         for i, v in enumerate(variants):
             probes = slice(v * n_rx + r0, v * n_rx + block.stop)
             final = step.v_final_v[0, probes, None]
@@ -344,11 +345,11 @@ def _sampled_levels(
             d = np.where(late, 0.0 if step.settled else (rows[t.size - 1 :: t.size, None] - final)[..., None], d)
             wave = np.matmul(toeplitz, d)  # (n_b, n_bits, n_tau): the edges' sum in bit n
             wave += level[None, :, None] * final[..., None]
-            driven = np.empty((n_b, n_s, tau_ui.shape[1]))  # bit n's instants, each read from the bit it falls in
-            for later in np.unique(
-                shift[block]
-            ):  # (an instant before its bit's start reads bit n - 1; bit -1: the last)
-                where = (shift[block] == later)[:, None, :]
+            # bit n's instants, each read from the bit it falls in (an instant before its bit's start reads bit
+            # n - 1; bit -1 is the last)
+            driven = np.empty((n_b, n_s, tau_ui.shape[1]))
+            for later in np.unique(shift_b):
+                where = (shift_b == later)[:, None, :]
                 np.copyto(driven, np.take(wave, np.arange(later, later + n_s), axis=1), where=where)
             driven *= level[None, :n_s, None]
             window_min = driven.min(axis=2)

@@ -43,14 +43,14 @@ from pairline.engine.waveform import StepResponses, default_pattern, pattern_dur
 
 MAX_STUB_CONFIRMS = 8  # flagged stubs reported one by one; the rest summarised
 MAX_WATCHED = 8  # receivers judged in a second (what-if) simulation on large buses
+MAX_DRIVERS_ALL = 33  # every possible driver is simulated up to this many (32 transceivers + the driver)
+MAX_DRIVERS_SAMPLED = 12  # beyond, a sample of this many (drivers_to_simulate)
+PROBE_DRIVER_VALUES = 2048  # drivers x receivers whose edge responses are solved and held at once
 _WHAT_IF_LEFT_OUT = (
     "Not simulated: the quick check (a verdict while typing) leaves out the bus simulated with its terminators "
     "removed, a what-if that never moves the verdict of a bus that has them; the full check (a saved plan's page) "
     "simulates it."
 )
-MAX_DRIVERS_ALL = 33  # every possible driver is simulated up to this many (32 transceivers + the driver)
-MAX_DRIVERS_SAMPLED = 12  # beyond, a sample of this many (drivers_to_simulate)
-PROBE_DRIVER_VALUES = 2048  # drivers x receivers whose edge responses are solved and held at once
 _SOURCE = (
     "Simulated waveforms (reflection simulation of the whole bus); receiver threshold ±200 mV from TIA/EIA-485-A "
     "and TIA/EIA-422-B; tolerance band from the parts' published tolerances (signal.tolerance)"
